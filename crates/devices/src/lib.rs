@@ -1,0 +1,23 @@
+//! Device models for Lamina, each behind the engine's [`lamina_engine::Element`] trait.
+//!
+//! * [`SquareLawFet`]: the long-channel square-law field-effect transistor, n or p type, with
+//!   optional channel-length modulation and Ward-Dutton intrinsic charges. It is a check
+//!   element with closed-form answers, not a model of any real device.
+//!
+//! ```
+//! use lamina_devices::{SquareLawFet, Polarity};
+//! use lamina_engine::{Element, EvalContext, Stamp};
+//! let fet = SquareLawFet::new(Polarity::N, 100e-6, 0.3);
+//! let (mut f, mut q, mut df, mut dq) = ([0.0; 3], [0.0; 3], [0.0; 9], [0.0; 9]);
+//! // drain 1 V, gate 0.8 V, source 0 V: saturated, I = k (V_GS - V_T)^2 / 2
+//! fet.evaluate(&[1.0, 0.8, 0.0], &EvalContext::dc(), &mut Stamp::new(&mut f, &mut q, &mut df, &mut dq));
+//! assert!((f[0] - 100e-6 * 0.25 / 2.0).abs() < 1e-15);
+//! ```
+//!
+//! What this crate does not do: numerics of the circuit (the engine does that) or parsing.
+
+#![deny(missing_docs)]
+
+mod square_law;
+
+pub use square_law::{Polarity, SquareLawFet};

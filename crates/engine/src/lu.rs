@@ -1,0 +1,483 @@
+//! Sparse LU for the Newton matrix: faer for ordering and pivoting, plus a fixed-pivot
+//! refactorisation that reuses faer's last pivot order.
+//!
+//! The matrix pattern is fixed for a whole run. faer computes a COLAMD column order and its
+//! symbolic analysis once ([`SparseLu::new`]). A numeric factorisation with partial pivoting
+//! gives row and column permutations `P`, `Q` with `P A Q = L U`. For that pivot order we
+//! compute the fill pattern of `L` and `U` once, and each later Newton iteration refactors
+//! `P A Q` along that fixed pattern (left-looking, no search for pivots, no allocation).
+//!
+//! Each fixed-order pivot is checked: `|u_jj| >= τ max_i |x_i|` over the column being
+//! eliminated (τ = [`PIVOT_THRESHOLD`]) and the column's growth `max |U_j| / max |A_j|` stays
+//! below [`GROWTH_LIMIT`]. When a check fails, faer refactors with fresh partial pivoting and
+//! the fixed pattern is rebuilt for its new order. A pivot that fails even in faer's own order
+//! means the matrix is numerically singular; the error names the column's unknown.
+//!
+//! faer's own numeric factorisation does not report numerical singularity (a zero column
+//! factorises and yields non-finite values), which is why the fixed path also serves as the
+//! singularity detector. [`LuStrategy::FaerOnly`] solves with faer's factors instead and detects
+//! singularity from non-finite solutions; it exists so tests can run every case through both.
+
+use faer::dyn_stack::{MemBuffer, MemStack, StackReq};
+use faer::linalg::lu::partial_pivoting::factor::PartialPivLuParams;
+use faer::sparse::linalg::lu::{
+    factorize_symbolic_lu, LuRef, LuSymbolicParams, NumericLu, SymbolicLu,
+};
+use faer::sparse::{SparseColMatRef, SymbolicSparseColMat};
+use faer::{Conj, MatMut, Par, Spec};
+
+/// Relative pivot threshold of the fixed-order refactorisation.
+pub const PIVOT_THRESHOLD: f64 = 1e-3;
+/// Largest accepted growth of a column from `A` to `U` in the fixed-order path.
+pub const GROWTH_LIMIT: f64 = 1e10;
+/// A pivot below this fraction of its column's largest entry of `A` counts as singular.
+const SINGULAR_RATIO: f64 = 1e-14;
+
+/// Which factorisation path a solver uses.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
+pub enum LuStrategy {
+    /// Fixed-pivot refactorisation with faer as the fallback (the default).
+    #[default]
+    FixedPivot,
+    /// faer's numeric factorisation and solve at every iteration.
+    FaerOnly,
+}
+
+/// Counters of what the solver did.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct LuStats {
+    /// Factorisations by faer (with partial pivoting).
+    pub faer_factorizations: u64,
+    /// Refactorisations along a fixed pivot order.
+    pub fixed_refactorizations: u64,
+    /// Fixed-order refactorisations that failed a pivot check and fell back to faer.
+    pub fallbacks: u64,
+}
+
+/// The matrix could not be factorised; `unknown` is the index of the unknown behind the
+/// offending column.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Singular {
+    /// Unknown (column of `A`) where elimination broke down.
+    pub unknown: usize,
+}
+
+struct FixedPivot {
+    row_fwd: Vec<usize>,
+    col_fwd: Vec<usize>,
+    /// Column `j` of `B = P A Q` as (slot in A's values, row of B), per column.
+    b_ptr: Vec<usize>,
+    b_slot: Vec<usize>,
+    b_row: Vec<usize>,
+    /// Strictly upper part of U by column, rows ascending.
+    u_ptr: Vec<usize>,
+    u_row: Vec<usize>,
+    u_val: Vec<f64>,
+    diag: Vec<f64>,
+    /// Strictly lower part of unit L by column.
+    l_ptr: Vec<usize>,
+    l_row: Vec<usize>,
+    l_val: Vec<f64>,
+    work: Vec<f64>,
+}
+
+impl FixedPivot {
+    fn build(pattern: &SymbolicSparseColMat<usize>, row_fwd: &[usize], col_fwd: &[usize]) -> Self {
+        let n = row_fwd.len();
+        let mut row_inv = vec![0; n];
+        for (i, &r) in row_fwd.iter().enumerate() {
+            row_inv[r] = i;
+        }
+        let col_ptr = pattern.col_ptr();
+        let row_idx = pattern.row_idx();
+        let mut b_ptr = Vec::with_capacity(n + 1);
+        let mut b_slot = Vec::with_capacity(row_idx.len());
+        let mut b_row = Vec::with_capacity(row_idx.len());
+        b_ptr.push(0);
+        for &ac in col_fwd {
+            for slot in col_ptr[ac]..col_ptr[ac + 1] {
+                b_slot.push(slot);
+                b_row.push(row_inv[row_idx[slot]]);
+            }
+            b_ptr.push(b_slot.len());
+        }
+        // Symbolic left-looking elimination without pivoting: the pattern of column j of the
+        // factors is the closure of B's column j under the columns of L already known.
+        let mut u_ptr = vec![0];
+        let mut u_row = Vec::new();
+        let mut l_ptr = vec![0];
+        let mut l_row: Vec<usize> = Vec::new();
+        let mut mark = vec![usize::MAX; n];
+        let mut heap = std::collections::BinaryHeap::new();
+        let mut lower = Vec::new();
+        for j in 0..n {
+            lower.clear();
+            let visit = |i: usize,
+                         heap: &mut std::collections::BinaryHeap<std::cmp::Reverse<usize>>,
+                         lower: &mut Vec<usize>,
+                         mark: &mut Vec<usize>| {
+                if mark[i] != j {
+                    mark[i] = j;
+                    if i < j {
+                        heap.push(std::cmp::Reverse(i));
+                    } else if i > j {
+                        lower.push(i);
+                    }
+                }
+            };
+            for &r in &b_row[b_ptr[j]..b_ptr[j + 1]] {
+                visit(r, &mut heap, &mut lower, &mut mark);
+            }
+            while let Some(std::cmp::Reverse(k)) = heap.pop() {
+                u_row.push(k);
+                for &i in &l_row[l_ptr[k]..l_ptr[k + 1]] {
+                    visit(i, &mut heap, &mut lower, &mut mark);
+                }
+            }
+            u_ptr.push(u_row.len());
+            lower.sort_unstable();
+            l_row.extend_from_slice(&lower);
+            l_ptr.push(l_row.len());
+        }
+        let (nu, nl) = (u_row.len(), l_row.len());
+        FixedPivot {
+            row_fwd: row_fwd.to_vec(),
+            col_fwd: col_fwd.to_vec(),
+            b_ptr,
+            b_slot,
+            b_row,
+            u_ptr,
+            u_row,
+            u_val: vec![0.0; nu],
+            diag: vec![0.0; n],
+            l_ptr,
+            l_row,
+            l_val: vec![0.0; nl],
+            work: vec![0.0; n],
+        }
+    }
+
+    /// Refactors along the fixed order. On failure returns the failing column of B and
+    /// whether the failure means a (numerically) zero pivot rather than a poor one.
+    fn refactor(&mut self, values: &[f64]) -> Result<(), (usize, bool)> {
+        let n = self.diag.len();
+        let w = &mut self.work;
+        for j in 0..n {
+            let mut amax = 0.0f64;
+            for k in self.b_ptr[j]..self.b_ptr[j + 1] {
+                let v = values[self.b_slot[k]];
+                w[self.b_row[k]] += v;
+                amax = amax.max(v.abs());
+            }
+            let mut umax = 0.0f64;
+            for k in self.u_ptr[j]..self.u_ptr[j + 1] {
+                let r = self.u_row[k];
+                let xr = w[r];
+                w[r] = 0.0;
+                self.u_val[k] = xr;
+                umax = umax.max(xr.abs());
+                if xr != 0.0 {
+                    for m in self.l_ptr[r]..self.l_ptr[r + 1] {
+                        w[self.l_row[m]] -= self.l_val[m] * xr;
+                    }
+                }
+            }
+            let pivot = w[j];
+            w[j] = 0.0;
+            let mut lmax = 0.0f64;
+            for m in self.l_ptr[j]..self.l_ptr[j + 1] {
+                lmax = lmax.max(w[self.l_row[m]].abs());
+            }
+            let apiv = pivot.abs();
+            let singular = !(apiv > SINGULAR_RATIO * amax) || !apiv.is_finite() || apiv == 0.0;
+            let poor = apiv < PIVOT_THRESHOLD * lmax || umax.max(apiv) > GROWTH_LIMIT * amax;
+            if singular || poor {
+                // Leave the work vector clean for the next attempt.
+                for m in self.l_ptr[j]..self.l_ptr[j + 1] {
+                    w[self.l_row[m]] = 0.0;
+                }
+                return Err((j, singular));
+            }
+            self.diag[j] = pivot;
+            let inv = 1.0 / pivot;
+            for m in self.l_ptr[j]..self.l_ptr[j + 1] {
+                let r = self.l_row[m];
+                self.l_val[m] = w[r] * inv;
+                w[r] = 0.0;
+            }
+        }
+        Ok(())
+    }
+
+    fn solve(&mut self, rhs: &mut [f64]) {
+        let n = self.diag.len();
+        let y = &mut self.work;
+        for i in 0..n {
+            y[i] = rhs[self.row_fwd[i]];
+        }
+        for j in 0..n {
+            let yj = y[j];
+            if yj != 0.0 {
+                for m in self.l_ptr[j]..self.l_ptr[j + 1] {
+                    y[self.l_row[m]] -= self.l_val[m] * yj;
+                }
+            }
+        }
+        for j in (0..n).rev() {
+            let yj = y[j] / self.diag[j];
+            y[j] = yj;
+            if yj != 0.0 {
+                for k in self.u_ptr[j]..self.u_ptr[j + 1] {
+                    y[self.u_row[k]] -= self.u_val[k] * yj;
+                }
+            }
+        }
+        for j in 0..n {
+            rhs[self.col_fwd[j]] = y[j];
+            y[j] = 0.0;
+        }
+    }
+
+    fn factor_nnz(&self) -> usize {
+        self.u_row.len() + self.l_row.len() + self.diag.len()
+    }
+}
+
+/// A sparse LU solver bound to one matrix pattern.
+pub struct SparseLu {
+    n: usize,
+    pattern: SymbolicSparseColMat<usize>,
+    symbolic: SymbolicLu<usize>,
+    numeric: NumericLu<usize, f64>,
+    mem: MemBuffer,
+    fixed: Option<FixedPivot>,
+    strategy: LuStrategy,
+    faer_current: bool,
+    stats: LuStats,
+}
+
+impl SparseLu {
+    /// Symbolic analysis of `pattern` (square, sorted rows per column).
+    pub fn new(pattern: SymbolicSparseColMat<usize>, strategy: LuStrategy) -> Result<Self, String> {
+        let n = pattern.nrows();
+        let symbolic = factorize_symbolic_lu(pattern.as_ref(), LuSymbolicParams::default())
+            .map_err(|e| format!("symbolic analysis failed: {e:?}"))?;
+        let params: Spec<PartialPivLuParams, f64> = Default::default();
+        let req = StackReq::any_of(&[
+            symbolic.factorize_numeric_lu_scratch::<f64>(Par::Seq, params),
+            symbolic.solve_in_place_scratch::<f64>(1, Par::Seq),
+        ]);
+        let mem =
+            MemBuffer::try_new(req).map_err(|_| "out of memory for LU workspace".to_string())?;
+        Ok(SparseLu {
+            n,
+            pattern,
+            symbolic,
+            numeric: NumericLu::new(),
+            mem,
+            fixed: None,
+            strategy,
+            faer_current: false,
+            stats: LuStats::default(),
+        })
+    }
+
+    /// What the solver has done so far.
+    pub fn stats(&self) -> LuStats {
+        self.stats
+    }
+
+    /// Nonzeros of `L + U` of the current fixed pattern (0 before the first factorisation or
+    /// with [`LuStrategy::FaerOnly`]).
+    pub fn factor_nnz(&self) -> usize {
+        self.fixed.as_ref().map_or(0, FixedPivot::factor_nnz)
+    }
+
+    /// Factorises the matrix whose values (in pattern order) are `values`.
+    pub fn factor(&mut self, values: &[f64]) -> Result<(), Singular> {
+        if self.strategy == LuStrategy::FixedPivot {
+            if let Some(fixed) = self.fixed.as_mut() {
+                match fixed.refactor(values) {
+                    Ok(()) => {
+                        self.stats.fixed_refactorizations += 1;
+                        self.faer_current = false;
+                        return Ok(());
+                    }
+                    Err(_) => self.stats.fallbacks += 1,
+                }
+            }
+        }
+        let a = SparseColMatRef::new(self.pattern.as_ref(), values);
+        let lu = self
+            .symbolic
+            .factorize_numeric_lu(
+                &mut self.numeric,
+                a,
+                Par::Seq,
+                MemStack::new(&mut self.mem),
+                Default::default(),
+            )
+            .map_err(|e| {
+                let index = match e {
+                    faer::sparse::linalg::LuError::SymbolicSingular { index } => index,
+                    faer::sparse::linalg::LuError::Generic(_) => 0,
+                };
+                Singular {
+                    unknown: self.symbolic.col_perm().arrays().0[index.min(self.n - 1)],
+                }
+            })?;
+        self.stats.faer_factorizations += 1;
+        self.faer_current = true;
+        if self.strategy == LuStrategy::FaerOnly {
+            return Ok(());
+        }
+        let (row_fwd, _) = lu.row_perm().arrays();
+        let (col_fwd, _) = lu.col_perm().arrays();
+        let same = self
+            .fixed
+            .as_ref()
+            .is_some_and(|f| f.row_fwd == row_fwd && f.col_fwd == col_fwd);
+        if !same {
+            self.fixed = Some(FixedPivot::build(&self.pattern, row_fwd, col_fwd));
+        }
+        let fixed = self.fixed.as_mut().expect("fixed pattern was just built");
+        match fixed.refactor(values) {
+            Ok(()) => Ok(()),
+            Err((col, _)) => Err(Singular {
+                unknown: fixed.col_fwd[col],
+            }),
+        }
+    }
+
+    /// Solves `A x = rhs` in place with the last factorisation.
+    pub fn solve(&mut self, rhs: &mut [f64]) -> Result<(), Singular> {
+        if self.strategy == LuStrategy::FaerOnly || self.fixed.is_none() {
+            let lu = LuRef::new_unchecked(&self.symbolic, &self.numeric);
+            let m = MatMut::from_column_major_slice_mut(rhs, self.n, 1);
+            lu.solve_in_place_with_conj(Conj::No, m, Par::Seq, MemStack::new(&mut self.mem));
+            if let Some(bad) = rhs.iter().position(|v| !v.is_finite()) {
+                return Err(Singular { unknown: bad });
+            }
+            return Ok(());
+        }
+        debug_assert!(!self.faer_current || self.fixed.is_some());
+        self.fixed.as_mut().expect("fixed factors exist").solve(rhs);
+        Ok(())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn pattern(n: usize, entries: &[(usize, usize)]) -> (SymbolicSparseColMat<usize>, Vec<usize>) {
+        let mut cols: Vec<Vec<usize>> = vec![Vec::new(); n];
+        for &(r, c) in entries {
+            cols[c].push(r);
+        }
+        for c in &mut cols {
+            c.sort_unstable();
+            c.dedup();
+        }
+        let mut col_ptr = vec![0];
+        let mut row_idx = Vec::new();
+        for c in &cols {
+            row_idx.extend_from_slice(c);
+            col_ptr.push(row_idx.len());
+        }
+        let slots = entries
+            .iter()
+            .map(|&(r, c)| col_ptr[c] + cols[c].binary_search(&r).unwrap())
+            .collect();
+        (
+            SymbolicSparseColMat::new_checked(n, n, col_ptr, None, row_idx),
+            slots,
+        )
+    }
+
+    /// A ring-like matrix with a zero-diagonal constraint row, solved by both paths and
+    /// compared with a dense product.
+    #[test]
+    fn both_paths_solve_a_cyclic_system_with_a_zero_diagonal() {
+        let n = 7;
+        let mut entries = Vec::new();
+        let mut vals = Vec::new();
+        for i in 0..n - 1 {
+            entries.push((i, i));
+            vals.push(2.0 + i as f64);
+            entries.push((i, (i + n - 2) % (n - 1)));
+            vals.push(-1.5);
+        }
+        // Last row/column: a source-like constraint x0 = b, current enters row 0.
+        entries.push((n - 1, 0));
+        vals.push(1.0);
+        entries.push((0, n - 1));
+        vals.push(1.0);
+        let (pat, slots) = pattern(n, &entries);
+        let mut values = vec![0.0; pat.row_idx().len()];
+        for (s, v) in slots.iter().zip(&vals) {
+            values[*s] += v;
+        }
+        let b: Vec<f64> = (0..n).map(|i| (i as f64 * 0.7).sin() + 0.3).collect();
+        for strategy in [LuStrategy::FixedPivot, LuStrategy::FaerOnly] {
+            let mut lu = SparseLu::new(pat.clone(), strategy).unwrap();
+            for round in 0..3 {
+                lu.factor(&values).unwrap();
+                let mut x = b.clone();
+                lu.solve(&mut x).unwrap();
+                let mut ax = vec![0.0; n];
+                for (&(r, c), v) in entries.iter().zip(&vals) {
+                    ax[r] += v * x[c];
+                }
+                for i in 0..n {
+                    assert!(
+                        (ax[i] - b[i]).abs() < 1e-12,
+                        "{strategy:?} round {round} row {i}"
+                    );
+                }
+            }
+            if strategy == LuStrategy::FixedPivot {
+                assert_eq!(lu.stats().faer_factorizations, 1);
+                assert_eq!(lu.stats().fixed_refactorizations, 2);
+            }
+        }
+    }
+
+    #[test]
+    fn a_zero_column_is_reported_as_singular() {
+        let (pat, slots) = pattern(3, &[(0, 0), (1, 1), (2, 2), (0, 1)]);
+        let mut values = vec![0.0; pat.row_idx().len()];
+        values[slots[0]] = 1.0;
+        values[slots[1]] = 0.0;
+        values[slots[2]] = 1.0;
+        values[slots[3]] = 0.0;
+        let mut lu = SparseLu::new(pat.clone(), LuStrategy::FixedPivot).unwrap();
+        assert_eq!(lu.factor(&values), Err(Singular { unknown: 1 }));
+        let mut lu = SparseLu::new(pat, LuStrategy::FaerOnly).unwrap();
+        lu.factor(&values).unwrap();
+        let mut x = vec![1.0; 3];
+        assert!(lu.solve(&mut x).is_err());
+    }
+
+    #[test]
+    fn a_poor_fixed_pivot_falls_back_to_faer() {
+        let (pat, slots) = pattern(2, &[(0, 0), (0, 1), (1, 0), (1, 1)]);
+        let mut values = vec![0.0; 4];
+        let set = |values: &mut Vec<f64>, a: [f64; 4]| {
+            for (s, v) in slots.iter().zip(a) {
+                values[*s] = v;
+            }
+        };
+        set(&mut values, [4.0, 1.0, 1.0, 3.0]);
+        let mut lu = SparseLu::new(pat, LuStrategy::FixedPivot).unwrap();
+        lu.factor(&values).unwrap();
+        // Now the old pivot is tiny relative to the column: the fixed path must refuse it.
+        set(&mut values, [1e-9, 1.0, 1.0, 3.0]);
+        lu.factor(&values).unwrap();
+        let mut x = vec![1.0, 2.0];
+        lu.solve(&mut x).unwrap();
+        assert!((1e-9 * x[0] + x[1] - 1.0).abs() < 1e-12);
+        assert!((x[0] + 3.0 * x[1] - 2.0).abs() < 1e-12);
+        assert_eq!(lu.stats().fallbacks, 1);
+    }
+}

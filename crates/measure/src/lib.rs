@@ -1,0 +1,21 @@
+//! Metrics from curves and waveforms: pure functions on sampled data, no simulation.
+//!
+//! * [`crossings`]: interpolated times where a signal crosses a level in one direction.
+//! * [`period`]: period and frequency from rising crossings after start-up is discarded,
+//!   with the spread of the periods used.
+//! * [`transfer`]: switching threshold and unity-gain points of a transfer curve.
+//!
+//! ```
+//! use lamina_measure::{crossings, Direction};
+//! let t = [0.0, 1.0, 2.0, 3.0];
+//! let v = [0.0, 1.0, 0.0, 1.0];
+//! let up = crossings(&t, &v, 0.5, Direction::Rising);
+//! assert_eq!(up, vec![0.5, 2.5]);
+//! ```
+
+#![deny(missing_docs)]
+
+mod period;
+pub mod transfer;
+
+pub use period::{crossings, period, Direction, PeriodError, PeriodEstimate};
