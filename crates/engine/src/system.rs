@@ -11,7 +11,8 @@
 //! `|Δ_i| ≤ reltol max(|x_i|, |x_i + Δ_i|) + abstol_i` (`vntol` for voltages, `abstol` for
 //! currents), and every equation's residual is small,
 //! `|F_i| ≤ reltol · scale_i + abstol_i` where `scale_i` is the largest single contribution to
-//! that row (amperes for KCL rows, volts for branch rows). Updates are damped so that no
+//! that row (amperes for KCL rows, volts for branch rows; for the charge derivative the
+//! contributions are `α₀` times the largest single element charge and the history term). Updates are damped so that no
 //! voltage moves by more than `max_voltage_step` per iteration.
 
 use crate::circuit::{Circuit, ElementId, NodeId};
@@ -144,6 +145,8 @@ pub struct System {
     pub(crate) f: Vec<f64>,
     pub(crate) q: Vec<f64>,
     scale: Vec<f64>,
+    /// Largest single element charge on each row (the total may cancel).
+    qscale: Vec<f64>,
     pub(crate) rhs: Vec<f64>,
     // Element-local buffers.
     xl: Vec<f64>,
@@ -308,6 +311,7 @@ impl System {
             f: vec![0.0; n],
             q: vec![0.0; n],
             scale: vec![0.0; n],
+            qscale: vec![0.0; n],
             rhs: vec![0.0; n],
             xl: vec![0.0; max_local],
             fl: vec![0.0; max_local],
@@ -387,6 +391,7 @@ impl System {
             f,
             q,
             scale,
+            qscale,
             xl,
             fl,
             ql,
@@ -398,6 +403,7 @@ impl System {
         f.fill(0.0);
         q.fill(0.0);
         scale.fill(0.0);
+        qscale.fill(0.0);
         for (e, element) in elements.iter().enumerate() {
             let map = &layout.loc_map[layout.loc_start[e]..layout.loc_start[e + 1]];
             let nl = map.len();
@@ -429,6 +435,10 @@ impl System {
                     }
                     if charge {
                         q[g] += ql[r];
+                        let aq = ql[r].abs();
+                        if aq > qscale[g] {
+                            qscale[g] = aq;
+                        }
                     }
                 }
             }
@@ -456,9 +466,12 @@ impl System {
         for i in 0..self.n {
             let mut fi = self.f[i];
             if load.a0 != 0.0 || load.hist.is_some() {
-                let dyn_i = load.a0 * self.q[i] + load.hist.map_or(0.0, |h| h[i]);
-                fi += dyn_i;
-                let a = dyn_i.abs();
+                // Both terms of the charge derivative count as contributions: their
+                // difference is small at convergence, their size sets the rounding floor.
+                let aq = load.a0 * self.q[i];
+                let hi = load.hist.map_or(0.0, |h| h[i]);
+                fi += aq + hi;
+                let a = (load.a0 * self.qscale[i]).max(hi.abs());
                 if a > self.scale[i] {
                     self.scale[i] = a;
                 }
@@ -651,6 +664,38 @@ impl System {
                 tried,
             },
         }
+    }
+
+    /// One DC Newton iteration at `x` (with `gmin` on every node): assembles the system in
+    /// place, refactorises the matrix and solves for the update, written to `delta`. Exposed for
+    /// benches and inspection; analyses call the damped iteration internally.
+    pub fn dc_newton_update(
+        &mut self,
+        x: &[f64],
+        gmin: f64,
+        delta: &mut [f64],
+    ) -> Result<(), EngineError> {
+        if x.len() != self.n || delta.len() != self.n {
+            return Err(EngineError::Invalid(format!(
+                "expected {} unknowns",
+                self.n
+            )));
+        }
+        let load = Load::dc(EvalContext::dc(), gmin);
+        self.assemble(x, &load.ctx, 0.0);
+        self.residual(x, &load, &Tolerances::default());
+        let fail = |s: &Self, unknown: usize| EngineError::Singular {
+            context: "DC Newton iteration".into(),
+            culprit: s.culprit(unknown, f64::NAN, 0.0),
+        };
+        if let Err(e) = self.lu.factor(&self.jac) {
+            return Err(fail(self, e.unknown));
+        }
+        delta.copy_from_slice(&self.rhs);
+        if let Err(e) = self.lu.solve(delta) {
+            return Err(fail(self, e.unknown));
+        }
+        Ok(())
     }
 
     /// The Newton matrix at `x` in DC (with `gmin` on every node) as a sparse matrix, for

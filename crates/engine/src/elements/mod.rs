@@ -11,4 +11,4 @@ mod waveform;
 pub use controlled::{Vccs, Vcvs};
 pub use passive::{Capacitor, ChargeFn, Inductor, NonlinearCapacitor, Resistor};
 pub use sources::{CurrentSource, VoltageSource};
-pub use waveform::{Waveform, WaveformError};
+pub use waveform::{Pulse, Sine, Waveform, WaveformError};

@@ -1,0 +1,152 @@
+//! Circuits built in code: the square-law reference inverter and rings of it.
+//!
+//! The reference values (k = 100 µA/V² for both devices, V_T = ±0.3 V, V_DD = 1 V, 1 fF from
+//! each stage output to ground) are the engine's check circuit; they describe no real process.
+
+use lamina_devices::{Polarity, SquareLawFet};
+use lamina_engine::elements::Capacitor;
+use lamina_engine::elements::VoltageSource;
+use lamina_engine::{Circuit, CircuitError, ElementId, NodeId};
+
+/// Parameters of a square-law inverter stage.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct SquareStage {
+    /// n device transconductance parameter (A/V²).
+    pub kn: f64,
+    /// p device transconductance parameter (A/V²).
+    pub kp: f64,
+    /// n threshold (V).
+    pub vtn: f64,
+    /// p threshold (V, negative).
+    pub vtp: f64,
+    /// Supply voltage (V).
+    pub vdd: f64,
+    /// Capacitance from each stage output to ground (F).
+    pub load: f64,
+    /// Channel-length modulation of both devices (1/V).
+    pub lambda: f64,
+    /// Gate capacitance `W L C_ox` of each device for Ward-Dutton charges (F), 0 for none.
+    pub gate_capacitance: f64,
+}
+
+impl Default for SquareStage {
+    fn default() -> Self {
+        SquareStage {
+            kn: 100e-6,
+            kp: 100e-6,
+            vtn: 0.3,
+            vtp: -0.3,
+            vdd: 1.0,
+            load: 1e-15,
+            lambda: 0.0,
+            gate_capacitance: 0.0,
+        }
+    }
+}
+
+fn fets(s: &SquareStage) -> (SquareLawFet, SquareLawFet) {
+    let n = SquareLawFet::new(Polarity::N, s.kn, s.vtn)
+        .with_length_modulation(s.lambda)
+        .with_gate_capacitance(s.gate_capacitance);
+    let p = SquareLawFet::new(Polarity::P, s.kp, s.vtp)
+        .with_length_modulation(s.lambda)
+        .with_gate_capacitance(s.gate_capacitance);
+    (n, p)
+}
+
+fn add_inverter(
+    c: &mut Circuit,
+    s: &SquareStage,
+    name: &str,
+    input: NodeId,
+    output: NodeId,
+    vdd: NodeId,
+) -> Result<(), CircuitError> {
+    let (n, p) = fets(s);
+    c.add(
+        &format!("{name}.pull_down"),
+        n,
+        &[output, input, Circuit::GROUND],
+    )?;
+    c.add(&format!("{name}.pull_up"), p, &[output, input, vdd])?;
+    if s.load != 0.0 {
+        c.add(
+            &format!("{name}.load"),
+            Capacitor::new(s.load),
+            &[output, Circuit::GROUND],
+        )?;
+    }
+    Ok(())
+}
+
+/// The handles a job needs on a ring of inverters.
+#[derive(Clone, Debug)]
+pub struct Ring {
+    /// Stage outputs in ring order (stage `i` drives `outputs[i]` from `outputs[i - 1]`).
+    pub outputs: Vec<NodeId>,
+    /// The supply source.
+    pub supply: ElementId,
+    /// Supply voltage.
+    pub vdd: f64,
+}
+
+/// An `stages`-stage ring of the inverter `stage`, with nodes `out[0]`, `out[1]`, ...
+pub fn square_ring(stages: usize, stage: &SquareStage) -> Result<(Circuit, Ring), CircuitError> {
+    let mut c = Circuit::new();
+    let vdd = c.node("vdd");
+    let supply = c.add(
+        "supply",
+        VoltageSource::dc(stage.vdd),
+        &[vdd, Circuit::GROUND],
+    )?;
+    let outputs: Vec<NodeId> = (0..stages).map(|i| c.node(&format!("out[{i}]"))).collect();
+    for i in 0..stages {
+        let input = outputs[(i + stages - 1) % stages];
+        add_inverter(
+            &mut c,
+            stage,
+            &format!("stage[{i}]"),
+            input,
+            outputs[i],
+            vdd,
+        )?;
+    }
+    Ok((
+        c,
+        Ring {
+            outputs,
+            supply,
+            vdd: stage.vdd,
+        },
+    ))
+}
+
+/// A square-law inverter driven by a sweepable source `input`, output at node `out`.
+pub struct Inverter {
+    /// The circuit.
+    pub circuit: Circuit,
+    /// The input source (sweep it with a DC sweep).
+    pub input: ElementId,
+    /// The output node.
+    pub output: NodeId,
+}
+
+/// One inverter with its supply and an input source at 0 V.
+pub fn square_inverter(stage: &SquareStage) -> Result<Inverter, CircuitError> {
+    let mut c = Circuit::new();
+    let vdd = c.node("vdd");
+    let inp = c.node("in");
+    let out = c.node("out");
+    c.add(
+        "supply",
+        VoltageSource::dc(stage.vdd),
+        &[vdd, Circuit::GROUND],
+    )?;
+    let input = c.add("drive", VoltageSource::dc(0.0), &[inp, Circuit::GROUND])?;
+    add_inverter(&mut c, stage, "inverter", inp, out, vdd)?;
+    Ok(Inverter {
+        circuit: c,
+        input,
+        output: out,
+    })
+}

@@ -1,0 +1,15 @@
+//! The `lamina` command's library half: built-in example circuits and the jobs the CLI runs
+//! on them. The binary (`src/main.rs`) only turns flags into a plan and a result into an exit
+//! code; everything it runs lives here so tests and benches use the same code.
+//!
+//! * [`builtin`]: circuits built in code (a square-law inverter and rings of it).
+//! * [`ring`]: the ring-oscillator job: start-up with a single circulating edge, a transient
+//!   that stops once enough periods have been seen, and the frequency measurement.
+//!
+//! Results are model estimates; check them against measurement and your process's rules
+//! before basing a design decision on them.
+
+#![deny(missing_docs)]
+
+pub mod builtin;
+pub mod ring;

@@ -1,0 +1,167 @@
+//! The ring-oscillator job.
+//!
+//! A ring of identical stages has a metastable balanced state (every node at the switching
+//! threshold), and a random kick often launches several edges. The job therefore starts from a
+//! single defect: `v_i = V_DD` for even `i` and 0 for odd `i`, which for odd `N` leaves nodes
+//! `N-1` and `0` both high, so exactly one edge circulates from t = 0. The transient stops by
+//! itself once `discard + measure` whole periods of `out[0]` have been seen; the frequency is
+//! the mean over the measured periods of interpolated rising mid-level crossings
+//! (`measure::period`), and the stage delay is `1 / (2 N f)`.
+
+use crate::builtin::Ring;
+use lamina_engine::{Control, EngineError, Integrator, Probe, Start, System, TransientParams};
+use lamina_measure::period;
+use std::fmt;
+
+/// How to run a ring.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct RingParams {
+    /// Integration formula.
+    pub integrator: Integrator,
+    /// Use the engine's tighter reference tolerances instead of the defaults.
+    pub reference: bool,
+    /// Periods discarded as start-up (default 3).
+    pub discard: usize,
+    /// Periods averaged (default 5).
+    pub measure: usize,
+    /// Give up if no result by this time (s).
+    pub time_limit: f64,
+}
+
+impl Default for RingParams {
+    fn default() -> Self {
+        RingParams {
+            integrator: Integrator::Trapezoidal,
+            reference: false,
+            discard: 3,
+            measure: 5,
+            time_limit: 1e-3,
+        }
+    }
+}
+
+/// What the ring job measured.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct RingReport {
+    /// Number of stages.
+    pub stages: usize,
+    /// Oscillation frequency (Hz).
+    pub frequency: f64,
+    /// Period (s).
+    pub period: f64,
+    /// Stage delay `1 / (2 N f)` (s).
+    pub stage_delay: f64,
+    /// Periods discarded as start-up.
+    pub periods_discarded: usize,
+    /// Periods averaged.
+    pub periods_used: usize,
+    /// `(max - min) / mean` of the averaged periods.
+    pub period_spread: f64,
+    /// Accepted time steps.
+    pub steps: usize,
+    /// Rejected time steps (truncation error and Newton failures).
+    pub rejected: usize,
+    /// Newton iterations.
+    pub newton_iterations: usize,
+    /// Simulated time (s).
+    pub simulated: f64,
+}
+
+/// Why the ring job produced no frequency.
+#[derive(Debug)]
+pub enum RingError {
+    /// The engine failed.
+    Engine(EngineError),
+    /// The ring did not oscillate (or not long enough) before the time limit.
+    NoOscillation(String),
+}
+
+impl fmt::Display for RingError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            RingError::Engine(e) => write!(f, "{e}"),
+            RingError::NoOscillation(why) => write!(f, "the ring does not oscillate: {why}"),
+        }
+    }
+}
+
+impl std::error::Error for RingError {}
+
+impl From<EngineError> for RingError {
+    fn from(e: EngineError) -> Self {
+        RingError::Engine(e)
+    }
+}
+
+/// The single-defect start state of a ring with supply `vdd`.
+pub fn single_edge_start(ring: &Ring) -> Start {
+    let vdd = ring.vdd;
+    Start::Given(
+        ring.outputs
+            .iter()
+            .enumerate()
+            .map(|(i, &node)| (node, if i % 2 == 0 { vdd } else { 0.0 }))
+            .collect(),
+    )
+}
+
+/// Runs the ring in `system` (compiled from the ring's circuit) and measures its frequency.
+pub fn run_ring(
+    system: &mut System,
+    ring: &Ring,
+    params: &RingParams,
+) -> Result<RingReport, RingError> {
+    let stages = ring.outputs.len();
+    if stages < 3 || stages % 2 == 0 {
+        return Err(RingError::NoOscillation(format!(
+            "a ring of inverting stages needs an odd number of at least 3 stages, this one has {stages}"
+        )));
+    }
+    let mut tp = if params.reference {
+        TransientParams::reference(params.time_limit)
+    } else {
+        TransientParams::new(params.time_limit)
+    };
+    tp.integrator = params.integrator;
+    tp.min_step = Some(params.time_limit * 1e-15);
+    let level = 0.5 * ring.vdd;
+    let needed = params.discard + params.measure + 1;
+    let mut seen = 0usize;
+    let mut last = f64::NAN;
+    let mut observer = |_t: f64, v: &[f64]| {
+        if last < level && v[0] >= level {
+            seen += 1;
+        }
+        last = v[0];
+        if seen > needed {
+            Control::Stop
+        } else {
+            Control::Continue
+        }
+    };
+    let probes = [Probe::Voltage(ring.outputs[0])];
+    let start = single_edge_start(ring);
+    let res = system.transient(&tp, &start, &probes, Some(&mut observer))?;
+    let est = period(&res.time, &res.signals[0], level, params.discard).map_err(|e| {
+        RingError::NoOscillation(format!("{e} by t = {:.3e} s", res.stats.end_time))
+    })?;
+    if est.periods_used < params.measure {
+        return Err(RingError::NoOscillation(format!(
+            "only {} whole periods after start-up by t = {:.3e} s",
+            est.periods_used, res.stats.end_time
+        )));
+    }
+    Ok(RingReport {
+        stages,
+        frequency: est.frequency,
+        period: est.period,
+        stage_delay: 1.0 / (2.0 * stages as f64 * est.frequency),
+        periods_discarded: est.periods_discarded,
+        periods_used: est.periods_used,
+        period_spread: est.spread,
+        steps: res.stats.accepted,
+        rejected: res.stats.rejected_lte + res.stats.rejected_newton,
+        newton_iterations: res.stats.newton_iterations,
+        simulated: res.stats.end_time,
+    })
+}

@@ -1,0 +1,96 @@
+//! Square-law ring oscillators (k = 100 µA/V², V_T = ±0.3 V, V_DD = 1 V, 1 fF loads).
+//!
+//! A ring of N identical stages oscillates at f = 1 / (2 N t_p) with t_p the stage delay
+//! (common practice; e.g. J. M. Rabaey, A. Chandrakasan, B. Nikolić, Digital Integrated
+//! Circuits, 2nd ed., 2003, ch. 5), so N·f is the same for every N once a single edge
+//! circulates.
+
+use lamina::builtin::{square_ring, SquareStage};
+use lamina::ring::{run_ring, RingParams, RingReport};
+use lamina_engine::{Integrator, System};
+
+fn ring(stages: usize, params: &RingParams) -> RingReport {
+    let (circuit, ring) = square_ring(stages, &SquareStage::default()).unwrap();
+    let mut sys = System::new(circuit).unwrap();
+    run_ring(&mut sys, &ring, params).unwrap()
+}
+
+#[test]
+fn n_times_frequency_is_constant_across_ring_lengths() {
+    let params = RingParams {
+        reference: true,
+        ..RingParams::default()
+    };
+    let nf: Vec<f64> = [5, 11, 51]
+        .iter()
+        .map(|&n| n as f64 * ring(n, &params).frequency)
+        .collect();
+    for v in &nf {
+        assert!((v / nf[1] - 1.0).abs() < 1e-3, "N f = {nf:?}");
+    }
+    // The measured periods are settled.
+    let r = ring(11, &params);
+    assert!(r.period_spread < 1e-5, "spread {}", r.period_spread);
+    assert!((r.stage_delay * 2.0 * 11.0 * r.frequency - 1.0).abs() < 1e-12);
+}
+
+#[test]
+fn integrators_agree_on_the_ring_frequency() {
+    let tr = ring(
+        11,
+        &RingParams {
+            reference: true,
+            ..RingParams::default()
+        },
+    );
+    let bdf2 = ring(
+        11,
+        &RingParams {
+            reference: true,
+            integrator: Integrator::Bdf2,
+            ..RingParams::default()
+        },
+    );
+    assert!(
+        (bdf2.frequency / tr.frequency - 1.0).abs() < 2e-5,
+        "TR {} BDF2 {}",
+        tr.frequency,
+        bdf2.frequency
+    );
+    // Backward Euler is first order and damps: at its default tolerances it still lands within
+    // a percent.
+    let be = ring(
+        11,
+        &RingParams {
+            integrator: Integrator::BackwardEuler,
+            ..RingParams::default()
+        },
+    );
+    assert!(
+        (be.frequency / tr.frequency - 1.0).abs() < 1e-2,
+        "TR {} BE {}",
+        tr.frequency,
+        be.frequency
+    );
+}
+
+#[test]
+fn default_tolerances_land_close_to_the_reference() {
+    let reference = ring(
+        11,
+        &RingParams {
+            reference: true,
+            ..RingParams::default()
+        },
+    );
+    let quick = ring(11, &RingParams::default());
+    assert!((quick.frequency / reference.frequency - 1.0).abs() < 2e-4);
+}
+
+#[test]
+fn an_even_ring_is_reported_as_not_oscillating() {
+    let (circuit, ring) = square_ring(4, &SquareStage::default()).unwrap();
+    let mut sys = System::new(circuit).unwrap();
+    let err = run_ring(&mut sys, &ring, &RingParams::default()).unwrap_err();
+    assert!(err.to_string().contains("odd number"), "{err}");
+}
