@@ -116,7 +116,7 @@ impl System {
         for p in probes {
             match *p {
                 Probe::Voltage(node) => {
-                    if node.0 >= self.n_nodes + 1 {
+                    if node.0 > self.n_nodes {
                         return Err(EngineError::Invalid(
                             "probe names a node of another circuit".into(),
                         ));

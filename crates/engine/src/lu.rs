@@ -189,7 +189,7 @@ impl FixedPivot {
                 lmax = lmax.max(w[self.l_row[m]].abs());
             }
             let apiv = pivot.abs();
-            let singular = !(apiv > SINGULAR_RATIO * amax) || !apiv.is_finite() || apiv == 0.0;
+            let singular = !apiv.is_finite() || apiv == 0.0 || apiv <= SINGULAR_RATIO * amax;
             let poor = apiv < PIVOT_THRESHOLD * lmax || umax.max(apiv) > GROWTH_LIMIT * amax;
             if singular || poor {
                 // Leave the work vector clean for the next attempt.

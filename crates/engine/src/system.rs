@@ -22,6 +22,70 @@ use crate::lu::{LuStats, LuStrategy, SparseLu};
 use faer::sparse::SymbolicSparseColMat;
 
 pub(crate) const NONE: usize = usize::MAX;
+/// Elements with at most this many local unknowns are evaluated into stack buffers.
+const SMALL: usize = 4;
+
+#[inline]
+fn gather(map: &[usize], x: &[f64], local: &mut [f64]) {
+    for (k, &g) in map.iter().enumerate() {
+        local[k] = if g == NONE { 0.0 } else { x[g] };
+    }
+}
+
+/// The assembly outputs one element's stamp is added into.
+struct Outputs<'a> {
+    jac: &'a mut [f64],
+    f: &'a mut [f64],
+    q: &'a mut [f64],
+    scale: &'a mut [f64],
+    qscale: &'a mut [f64],
+}
+
+impl Outputs<'_> {
+    #[allow(clippy::too_many_arguments)]
+    #[inline]
+    fn scatter(
+        &mut self,
+        map: &[usize],
+        slots: &[usize],
+        charge: bool,
+        a0: f64,
+        fl: &[f64],
+        ql: &[f64],
+        dfl: &[f64],
+        dql: &[f64],
+    ) {
+        for (r, &g) in map.iter().enumerate() {
+            if g != NONE {
+                self.f[g] += fl[r];
+                let a = fl[r].abs();
+                if a > self.scale[g] {
+                    self.scale[g] = a;
+                }
+                if charge {
+                    self.q[g] += ql[r];
+                    let aq = ql[r].abs();
+                    if aq > self.qscale[g] {
+                        self.qscale[g] = aq;
+                    }
+                }
+            }
+        }
+        if charge && a0 != 0.0 {
+            for (k, &s) in slots.iter().enumerate() {
+                if s != NONE {
+                    self.jac[s] += dfl[k] + a0 * dql[k];
+                }
+            }
+        } else {
+            for (k, &s) in slots.iter().enumerate() {
+                if s != NONE {
+                    self.jac[s] += dfl[k];
+                }
+            }
+        }
+    }
+}
 
 /// Convergence tolerances shared by every analysis.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -404,57 +468,49 @@ impl System {
         q.fill(0.0);
         scale.fill(0.0);
         qscale.fill(0.0);
+        let mut out = Outputs {
+            jac,
+            f,
+            q,
+            scale,
+            qscale,
+        };
         for (e, element) in elements.iter().enumerate() {
             let map = &layout.loc_map[layout.loc_start[e]..layout.loc_start[e + 1]];
+            let slots = &layout.slots[layout.slot_start[e]..layout.slot_start[e + 1]];
             let nl = map.len();
-            for (k, &g) in map.iter().enumerate() {
-                xl[k] = if g == NONE { 0.0 } else { x[g] };
-            }
             let charge = layout.has_charge[e];
-            fl[..nl].fill(0.0);
-            dfl[..nl * nl].fill(0.0);
-            if charge {
-                ql[..nl].fill(0.0);
-                dql[..nl * nl].fill(0.0);
-            }
-            {
-                let mut stamp = Stamp::new(
+            if nl <= SMALL {
+                // Small elements use stack buffers: zeroing them is a few vector stores
+                // instead of four library calls per element.
+                let mut xs = [0.0; SMALL];
+                let mut fs = [0.0; SMALL];
+                let mut qs = [0.0; SMALL];
+                let mut dfs = [0.0; SMALL * SMALL];
+                let mut dqs = [0.0; SMALL * SMALL];
+                gather(map, x, &mut xs[..nl]);
+                let (fs, qs, dfs, dqs) = (
+                    &mut fs[..nl],
+                    &mut qs[..nl],
+                    &mut dfs[..nl * nl],
+                    &mut dqs[..nl * nl],
+                );
+                element.evaluate(&xs[..nl], ctx, &mut Stamp::new(fs, qs, dfs, dqs));
+                out.scatter(map, slots, charge, a0, fs, qs, dfs, dqs);
+            } else {
+                gather(map, x, &mut xl[..nl]);
+                let (fs, qs, dfs, dqs) = (
                     &mut fl[..nl],
                     &mut ql[..nl],
                     &mut dfl[..nl * nl],
                     &mut dql[..nl * nl],
                 );
-                element.evaluate(&xl[..nl], ctx, &mut stamp);
-            }
-            for (r, &g) in map.iter().enumerate() {
-                if g != NONE {
-                    f[g] += fl[r];
-                    let a = fl[r].abs();
-                    if a > scale[g] {
-                        scale[g] = a;
-                    }
-                    if charge {
-                        q[g] += ql[r];
-                        let aq = ql[r].abs();
-                        if aq > qscale[g] {
-                            qscale[g] = aq;
-                        }
-                    }
-                }
-            }
-            let slots = &layout.slots[layout.slot_start[e]..layout.slot_start[e + 1]];
-            if charge && a0 != 0.0 {
-                for (k, &s) in slots.iter().enumerate() {
-                    if s != NONE {
-                        jac[s] += dfl[k] + a0 * dql[k];
-                    }
-                }
-            } else {
-                for (k, &s) in slots.iter().enumerate() {
-                    if s != NONE {
-                        jac[s] += dfl[k];
-                    }
-                }
+                fs.fill(0.0);
+                qs.fill(0.0);
+                dfs.fill(0.0);
+                dqs.fill(0.0);
+                element.evaluate(&xl[..nl], ctx, &mut Stamp::new(fs, qs, dfs, dqs));
+                out.scatter(map, slots, charge, a0, fs, qs, dfs, dqs);
             }
         }
     }
@@ -502,7 +558,7 @@ impl System {
         for i in 0..self.n {
             let abs = self.row_abstol(i, tol);
             let ratio = self.rhs[i].abs() / (tol.reltol * self.scale[i] + abs);
-            if !(ratio <= worst.0) {
+            if ratio.is_nan() || ratio > worst.0 {
                 worst = (ratio, i);
             }
         }
@@ -525,6 +581,10 @@ impl System {
 
     /// Newton iteration from `x` (overwritten with the solution). On success the assembly
     /// buffers hold `f`, `q` at the accepted point.
+    #[allow(
+        clippy::needless_range_loop,
+        reason = "x, delta and kinds are indexed together"
+    )]
     pub(crate) fn newton(
         &mut self,
         x: &mut [f64],

@@ -70,6 +70,9 @@ pub enum Start {
     Clamped(Vec<(NodeId, f64)>, OpParams),
 }
 
+/// A callback that sees each accepted time and the probes' values there.
+pub type Observer<'a> = &'a mut dyn FnMut(f64, &[f64]) -> Control;
+
 /// Whether an observer wants the run to go on.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum Control {
@@ -206,7 +209,7 @@ impl System {
         params: &TransientParams,
         start: &Start,
         probes: &[Probe],
-        mut observer: Option<&mut dyn FnMut(f64, &[f64]) -> Control>,
+        mut observer: Option<Observer<'_>>,
     ) -> Result<TransientResult, EngineError> {
         let p = params;
         if !(p.stop_time.is_finite() && p.stop_time > 0.0) {

@@ -56,7 +56,7 @@ fn locate(t: &[f64], v: &[f64], k: usize, level: f64) -> f64 {
     };
     let (mut lo, mut hi) = (t[k], t[k + 1]);
     let (flo, fhi) = (cubic(lo), cubic(hi));
-    if !(flo < 0.0 && fhi >= 0.0) && !(flo > 0.0 && fhi <= 0.0) {
+    if !((flo < 0.0 && fhi >= 0.0) || (flo > 0.0 && fhi <= 0.0)) {
         return linear;
     }
     let rising = flo < 0.0;
