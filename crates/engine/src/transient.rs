@@ -362,6 +362,7 @@ impl System {
         };
         let fixed = matches!(p.stepping, Stepping::Fixed(_));
         let mut last_failure: Option<NewtonFailure> = None;
+        let mut just_rejected = false;
         let mut last_fail_time = 0.0;
 
         while t < p.stop_time * (1.0 - 1e-12) {
@@ -491,12 +492,14 @@ impl System {
             if let Some(r) = ratio {
                 if r > 1.0 {
                     stats.rejected_lte += 1;
+                    just_rejected = true;
                     h = step * (0.9 * r.powf(-1.0 / (order + 1.0))).clamp(0.1, 0.9);
                     continue;
                 }
             }
 
             // Accept.
+            let was_rejected = std::mem::replace(&mut just_rejected, false);
             for k in 0..nr {
                 qdot[k] = match method {
                     Integrator::BackwardEuler => (q_new[k] - hist.q[0][k]) / step,
@@ -524,7 +527,10 @@ impl System {
                 Stepping::Fixed(hf) => hf,
                 Stepping::Adaptive => match ratio {
                     Some(r) => {
-                        step * (0.9 * r.max(1e-12).powf(-1.0 / (order + 1.0))).clamp(0.25, 2.0)
+                        // No growth right after a rejection: it keeps the controller from
+                        // alternating between a too-long step and its retry.
+                        let grow = if was_rejected { 1.0 } else { 2.0 };
+                        step * (0.9 * r.max(1e-12).powf(-1.0 / (order + 1.0))).clamp(0.25, grow)
                     }
                     None => step * 1.5,
                 },
