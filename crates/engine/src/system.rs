@@ -7,9 +7,9 @@
 //!
 //! Newton solves `J Δ = -F` with `F = f(x) + α₀ q(x) + h + g_min v` and `J = ∂f/∂x + α₀ ∂q/∂x
 //! + g_min` (α₀ and the history `h` come from the integration formula; both are 0 in DC).
-//! An iterate is accepted when its previous update was small for every unknown,
-//! `|Δ_i| ≤ reltol max(|x_i|, |x_i + Δ_i|) + abstol_i` (`vntol` for voltages, `abstol` for
-//! currents), and every equation's residual is small,
+//! An iterate `x` is accepted when the Newton correction computed at it is small for every
+//! unknown, `|Δ_i| ≤ reltol max(|x_i|, |x_i + Δ_i|) + abstol_i` (`vntol` for voltages, `abstol`
+//! for currents), and every equation's residual at it is small,
 //! `|F_i| ≤ reltol · scale_i + abstol_i` where `scale_i` is the largest single contribution to
 //! that row (amperes for KCL rows, volts for branch rows; for the charge derivative the
 //! contributions are `α₀` times the largest single element charge and the history term). Updates are damped so that no
@@ -592,19 +592,9 @@ impl System {
         params: &NewtonParams,
     ) -> Result<NewtonInfo, NewtonFailure> {
         let tol = params.tol;
-        let mut delta_ok = false;
         for it in 1..=params.max_iterations {
             self.assemble(x, &load.ctx, load.a0);
             let (ratio, _) = self.residual(x, load, &tol);
-            if delta_ok && ratio <= 1.0 {
-                return Ok(NewtonInfo {
-                    iterations: it,
-                    residual_ratio: ratio,
-                });
-            }
-            if it == params.max_iterations {
-                break;
-            }
             self.lu
                 .factor(&self.jac)
                 .map_err(|s| NewtonFailure::Singular { unknown: s.unknown })?;
@@ -630,18 +620,29 @@ impl System {
             } else {
                 1.0
             };
-            delta_ok = lambda == 1.0;
-            for i in 0..self.n {
-                let d = lambda * delta[i];
-                let new = x[i] + d;
-                if delta_ok {
-                    let bound =
-                        tol.reltol * x[i].abs().max(new.abs()) + self.unknown_abstol(i, &tol);
-                    if d.abs() > bound {
+            let mut delta_ok = lambda == 1.0 && ratio <= 1.0;
+            if delta_ok {
+                for i in 0..self.n {
+                    let bound = tol.reltol * x[i].abs().max((x[i] + delta[i]).abs())
+                        + self.unknown_abstol(i, &tol);
+                    if delta[i].abs() > bound {
                         delta_ok = false;
+                        break;
                     }
                 }
-                x[i] = new;
+            }
+            if delta_ok {
+                // Accept the point the buffers were assembled at: its residual passed and the
+                // Newton correction from it is within tolerance, so `f` and `q` there are
+                // exactly the state the integrator stores.
+                self.rhs = delta;
+                return Ok(NewtonInfo {
+                    iterations: it,
+                    residual_ratio: ratio,
+                });
+            }
+            for i in 0..self.n {
+                x[i] += lambda * delta[i];
             }
             self.rhs = delta;
         }
