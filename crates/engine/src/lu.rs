@@ -67,16 +67,16 @@ struct FixedPivot {
     col_fwd: Vec<usize>,
     /// Column `j` of `B = P A Q` as (slot in A's values, row of B), per column.
     b_ptr: Vec<usize>,
-    b_slot: Vec<usize>,
-    b_row: Vec<usize>,
+    b_slot: Vec<u32>,
+    b_row: Vec<u32>,
     /// Strictly upper part of U by column, rows ascending.
     u_ptr: Vec<usize>,
-    u_row: Vec<usize>,
+    u_row: Vec<u32>,
     u_val: Vec<f64>,
     diag: Vec<f64>,
     /// Strictly lower part of unit L by column.
     l_ptr: Vec<usize>,
-    l_row: Vec<usize>,
+    l_row: Vec<u32>,
     l_val: Vec<f64>,
     work: Vec<f64>,
 }
@@ -140,18 +140,20 @@ impl FixedPivot {
             l_ptr.push(l_row.len());
         }
         let (nu, nl) = (u_row.len(), l_row.len());
+        // Every stored index is < n (rows) or < nnz (slots); the numeric loops rely on it.
+        let narrow = |v: Vec<usize>| -> Vec<u32> { v.into_iter().map(|i| i as u32).collect() };
         FixedPivot {
             row_fwd: row_fwd.to_vec(),
             col_fwd: col_fwd.to_vec(),
             b_ptr,
-            b_slot,
-            b_row,
+            b_slot: narrow(b_slot),
+            b_row: narrow(b_row),
             u_ptr,
-            u_row,
+            u_row: narrow(u_row),
             u_val: vec![0.0; nu],
             diag: vec![0.0; n],
             l_ptr,
-            l_row,
+            l_row: narrow(l_row),
             l_val: vec![0.0; nl],
             work: vec![0.0; n],
         }
@@ -161,47 +163,57 @@ impl FixedPivot {
     /// whether the failure means a (numerically) zero pivot rather than a poor one.
     fn refactor(&mut self, values: &[f64]) -> Result<(), (usize, bool)> {
         let n = self.diag.len();
-        let w = &mut self.work;
+        debug_assert!(self.b_slot.iter().all(|&k| (k as usize) < values.len()));
+        let w = &mut self.work[..n];
+        // SAFETY (all unchecked accesses below): row indices in b_row, u_row and l_row are < n
+        // = w.len() and slots in b_slot are < values.len(), both by construction in `build`
+        // for the pattern these values belong to; ranges come from the matching pointer arrays.
         for j in 0..n {
             let mut amax = 0.0f64;
             for k in self.b_ptr[j]..self.b_ptr[j + 1] {
-                let v = values[self.b_slot[k]];
-                w[self.b_row[k]] += v;
-                amax = amax.max(v.abs());
+                unsafe {
+                    let v = *values.get_unchecked(*self.b_slot.get_unchecked(k) as usize);
+                    *w.get_unchecked_mut(*self.b_row.get_unchecked(k) as usize) += v;
+                    amax = amax.max(v.abs());
+                }
             }
             let mut umax = 0.0f64;
             for k in self.u_ptr[j]..self.u_ptr[j + 1] {
-                let r = self.u_row[k];
-                let xr = w[r];
-                w[r] = 0.0;
-                self.u_val[k] = xr;
-                umax = umax.max(xr.abs());
-                if xr != 0.0 {
-                    for m in self.l_ptr[r]..self.l_ptr[r + 1] {
-                        w[self.l_row[m]] -= self.l_val[m] * xr;
+                unsafe {
+                    let r = *self.u_row.get_unchecked(k) as usize;
+                    let xr = *w.get_unchecked(r);
+                    *w.get_unchecked_mut(r) = 0.0;
+                    *self.u_val.get_unchecked_mut(k) = xr;
+                    umax = umax.max(xr.abs());
+                    if xr != 0.0 {
+                        for m in *self.l_ptr.get_unchecked(r)..*self.l_ptr.get_unchecked(r + 1) {
+                            let i = *self.l_row.get_unchecked(m) as usize;
+                            *w.get_unchecked_mut(i) -= *self.l_val.get_unchecked(m) * xr;
+                        }
                     }
                 }
             }
             let pivot = w[j];
             w[j] = 0.0;
+            let lower = self.l_ptr[j]..self.l_ptr[j + 1];
             let mut lmax = 0.0f64;
-            for m in self.l_ptr[j]..self.l_ptr[j + 1] {
-                lmax = lmax.max(w[self.l_row[m]].abs());
+            for m in lower.clone() {
+                lmax = lmax.max(w[self.l_row[m] as usize].abs());
             }
             let apiv = pivot.abs();
             let singular = !apiv.is_finite() || apiv == 0.0 || apiv <= SINGULAR_RATIO * amax;
             let poor = apiv < PIVOT_THRESHOLD * lmax || umax.max(apiv) > GROWTH_LIMIT * amax;
             if singular || poor {
                 // Leave the work vector clean for the next attempt.
-                for m in self.l_ptr[j]..self.l_ptr[j + 1] {
-                    w[self.l_row[m]] = 0.0;
+                for m in lower {
+                    w[self.l_row[m] as usize] = 0.0;
                 }
                 return Err((j, singular));
             }
             self.diag[j] = pivot;
             let inv = 1.0 / pivot;
-            for m in self.l_ptr[j]..self.l_ptr[j + 1] {
-                let r = self.l_row[m];
+            for m in lower {
+                let r = self.l_row[m] as usize;
                 self.l_val[m] = w[r] * inv;
                 w[r] = 0.0;
             }
@@ -211,15 +223,19 @@ impl FixedPivot {
 
     fn solve(&mut self, rhs: &mut [f64]) {
         let n = self.diag.len();
-        let y = &mut self.work;
+        let y = &mut self.work[..n];
         for i in 0..n {
             y[i] = rhs[self.row_fwd[i]];
         }
+        // SAFETY: as in `refactor`, stored row indices are < n = y.len().
         for j in 0..n {
             let yj = y[j];
             if yj != 0.0 {
                 for m in self.l_ptr[j]..self.l_ptr[j + 1] {
-                    y[self.l_row[m]] -= self.l_val[m] * yj;
+                    unsafe {
+                        let i = *self.l_row.get_unchecked(m) as usize;
+                        *y.get_unchecked_mut(i) -= *self.l_val.get_unchecked(m) * yj;
+                    }
                 }
             }
         }
@@ -228,7 +244,10 @@ impl FixedPivot {
             y[j] = yj;
             if yj != 0.0 {
                 for k in self.u_ptr[j]..self.u_ptr[j + 1] {
-                    y[self.u_row[k]] -= self.u_val[k] * yj;
+                    unsafe {
+                        let i = *self.u_row.get_unchecked(k) as usize;
+                        *y.get_unchecked_mut(i) -= *self.u_val.get_unchecked(k) * yj;
+                    }
                 }
             }
         }

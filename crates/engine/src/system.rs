@@ -25,10 +25,28 @@ pub(crate) const NONE: usize = usize::MAX;
 /// Elements with at most this many local unknowns are evaluated into stack buffers.
 const SMALL: usize = 4;
 
+const NONE32: u32 = u32::MAX;
+
+/// Where one element's local indices live in the hot-loop layout.
+#[derive(Clone, Copy)]
+struct Plan {
+    map: u32,
+    slot: u32,
+    local: u8,
+    charge: bool,
+}
+
 #[inline]
-fn gather(map: &[usize], x: &[f64], local: &mut [f64]) {
+fn gather(map: &[u32], x: &[f64], local: &mut [f64]) {
     for (k, &g) in map.iter().enumerate() {
-        local[k] = if g == NONE { 0.0 } else { x[g] };
+        local[k] = if g == NONE32 {
+            0.0
+        } else {
+            debug_assert!((g as usize) < x.len());
+            // SAFETY: every index in the layout other than NONE32 was checked against the
+            // number of unknowns when the system was built.
+            unsafe { *x.get_unchecked(g as usize) }
+        };
     }
 }
 
@@ -46,8 +64,8 @@ impl Outputs<'_> {
     #[inline]
     fn scatter(
         &mut self,
-        map: &[usize],
-        slots: &[usize],
+        map: &[u32],
+        slots: &[u32],
         charge: bool,
         a0: f64,
         fl: &[f64],
@@ -55,33 +73,42 @@ impl Outputs<'_> {
         dfl: &[f64],
         dql: &[f64],
     ) {
+        debug_assert!(slots.len() == dfl.len() && dql.len() == dfl.len());
         for (r, &g) in map.iter().enumerate() {
-            if g != NONE {
-                self.f[g] += fl[r];
-                let a = fl[r].abs();
-                if a > self.scale[g] {
-                    self.scale[g] = a;
-                }
-                if charge {
-                    self.q[g] += ql[r];
-                    let aq = ql[r].abs();
-                    if aq > self.qscale[g] {
-                        self.qscale[g] = aq;
+            if g != NONE32 {
+                let g = g as usize;
+                debug_assert!(g < self.f.len());
+                // SAFETY: layout indices other than NONE32 are < the number of unknowns, which
+                // is the length of every per-row buffer (checked at build).
+                unsafe {
+                    *self.f.get_unchecked_mut(g) += fl[r];
+                    let a = fl[r].abs();
+                    let sc = self.scale.get_unchecked_mut(g);
+                    if a > *sc {
+                        *sc = a;
+                    }
+                    if charge {
+                        *self.q.get_unchecked_mut(g) += ql[r];
+                        let aq = ql[r].abs();
+                        let qs = self.qscale.get_unchecked_mut(g);
+                        if aq > *qs {
+                            *qs = aq;
+                        }
                     }
                 }
             }
         }
-        if charge && a0 != 0.0 {
-            for (k, &s) in slots.iter().enumerate() {
-                if s != NONE {
-                    self.jac[s] += dfl[k] + a0 * dql[k];
-                }
-            }
-        } else {
-            for (k, &s) in slots.iter().enumerate() {
-                if s != NONE {
-                    self.jac[s] += dfl[k];
-                }
+        let dynamic = charge && a0 != 0.0;
+        for (k, &s) in slots.iter().enumerate() {
+            if s != NONE32 {
+                let v = if dynamic {
+                    dfl[k] + a0 * dql[k]
+                } else {
+                    dfl[k]
+                };
+                debug_assert!((s as usize) < self.jac.len());
+                // SAFETY: slot indices other than NONE32 are < nnz (checked at build).
+                unsafe { *self.jac.get_unchecked_mut(s as usize) += v };
             }
         }
     }
@@ -177,14 +204,14 @@ struct Layout {
     /// Per element: start of its local-to-global map in `loc_map`.
     loc_start: Vec<usize>,
     loc_map: Vec<usize>,
-    /// Per element: start of its n×n slot list in `slots`.
-    slot_start: Vec<usize>,
-    slots: Vec<usize>,
-    has_charge: Vec<bool>,
     diag_slot: Vec<usize>,
     /// Slots of each row (for replacing a row by a clamp).
     row_slot_ptr: Vec<usize>,
     row_slots: Vec<usize>,
+    /// Hot-loop copies: per-element plans and 32-bit index lists.
+    plan: Vec<Plan>,
+    map32: Vec<u32>,
+    slots32: Vec<u32>,
 }
 
 /// A circuit compiled for analysis: fixed pattern, buffers and the LU solver.
@@ -335,6 +362,27 @@ impl System {
             row_slot_ptr.push(row_slots.len());
         }
         let nnz = row_idx.len();
+        if n >= NONE32 as usize || nnz >= NONE32 as usize || slots.len() >= NONE32 as usize {
+            return Err(EngineError::Invalid(format!(
+                "the circuit is too large: {n} unknowns and {nnz} matrix entries"
+            )));
+        }
+        let narrow = |v: &usize| if *v == NONE { NONE32 } else { *v as u32 };
+        let map32: Vec<u32> = loc_map.iter().map(narrow).collect();
+        let slots32: Vec<u32> = slots.iter().map(narrow).collect();
+        let plan: Vec<Plan> = (0..elements.len())
+            .map(|e| Plan {
+                map: loc_start[e] as u32,
+                slot: slot_start[e] as u32,
+                local: (loc_start[e + 1] - loc_start[e]) as u8,
+                charge: has_charge[e],
+            })
+            .collect();
+        if loc_start.windows(2).any(|w| w[1] - w[0] > u8::MAX as usize) {
+            return Err(EngineError::Invalid(
+                "an element has more than 255 local unknowns".into(),
+            ));
+        }
         let pattern = SymbolicSparseColMat::new_checked(n, n, col_ptr, None, row_idx);
         let lu = SparseLu::new(pattern.clone(), strategy).map_err(EngineError::Invalid)?;
         let mut is_charge_row = vec![false; n];
@@ -361,12 +409,12 @@ impl System {
             layout: Layout {
                 loc_start,
                 loc_map,
-                slot_start,
-                slots,
-                has_charge,
                 diag_slot,
                 row_slot_ptr,
                 row_slots,
+                plan,
+                map32,
+                slots32,
             },
             pattern,
             charge_rows,
@@ -475,11 +523,11 @@ impl System {
             scale,
             qscale,
         };
-        for (e, element) in elements.iter().enumerate() {
-            let map = &layout.loc_map[layout.loc_start[e]..layout.loc_start[e + 1]];
-            let slots = &layout.slots[layout.slot_start[e]..layout.slot_start[e + 1]];
-            let nl = map.len();
-            let charge = layout.has_charge[e];
+        for (element, plan) in elements.iter().zip(&layout.plan) {
+            let nl = plan.local as usize;
+            let map = &layout.map32[plan.map as usize..][..nl];
+            let slots = &layout.slots32[plan.slot as usize..][..nl * nl];
+            let charge = plan.charge;
             if nl <= SMALL {
                 // Small elements use stack buffers: zeroing them is a few vector stores
                 // instead of four library calls per element.
