@@ -51,9 +51,9 @@ fn floating_node_returns_to_zero_after_100_periods() {
                 // Tight Newton tolerances: what is left is the accepted iterates' residual
                 // (each step's charge balance holds to the Newton tolerance), not an
                 // integration error, which would grow with every step and every period.
-                p.tol.reltol = 1e-12;
+                p.tol.reltol = 1e-9;
                 p.tol.abstol = 1e-18;
-                p.tol.vntol = 1e-15;
+                p.tol.vntol = 1e-12;
                 let res = sys
                     .transient(
                         &p,
@@ -69,7 +69,7 @@ fn floating_node_returns_to_zero_after_100_periods() {
                     if res.signals[0][k] == 0.0 && res.time[k] > 0.0 {
                         checked += 1;
                         assert!(
-                            res.signals[1][k].abs() < 1e-11,
+                            res.signals[1][k].abs() < 1e-12,
                             "{strategy:?} {integrator:?} {stepping:?}: v(x) = {:e} at t = {:e}",
                             res.signals[1][k],
                             res.time[k]

@@ -7,9 +7,11 @@
 //!
 //! Newton solves `J Δ = -F` with `F = f(x) + α₀ q(x) + h + g_min v` and `J = ∂f/∂x + α₀ ∂q/∂x
 //! + g_min` (α₀ and the history `h` come from the integration formula; both are 0 in DC).
-//! An iterate `x` is accepted when the Newton correction computed at it is small for every
-//! unknown, `|Δ_i| ≤ reltol max(|x_i|, |x_i + Δ_i|) + abstol_i` (`vntol` for voltages, `abstol`
-//! for currents), and every equation's residual at it is small,
+//! An iterate `x` is accepted, with its last correction `Δ` added (and in time the charges
+//! carried along it, `q += (∂q/∂x) Δ`), when the Newton correction computed at it is small for
+//! every unknown,
+//! `|Δ_i| ≤ reltol max(|x_i|, |x_i + Δ_i|) + abstol_i` (`vntol` for voltages, `abstol` for
+//! currents), and every equation's residual at it is small,
 //! `|F_i| ≤ reltol · scale_i + abstol_i` where `scale_i` is the largest single contribution to
 //! that row (amperes for KCL rows, volts for branch rows; for the charge derivative the
 //! contributions are `α₀` times the largest single element charge and the history term). Updates are damped so that no
@@ -53,6 +55,7 @@ fn gather(map: &[u32], x: &[f64], local: &mut [f64]) {
 /// The assembly outputs one element's stamp is added into.
 struct Outputs<'a> {
     jac: &'a mut [f64],
+    cmat: &'a mut [f64],
     f: &'a mut [f64],
     q: &'a mut [f64],
     scale: &'a mut [f64],
@@ -101,14 +104,17 @@ impl Outputs<'_> {
         let dynamic = charge && a0 != 0.0;
         for (k, &s) in slots.iter().enumerate() {
             if s != NONE32 {
-                let v = if dynamic {
-                    dfl[k] + a0 * dql[k]
-                } else {
-                    dfl[k]
-                };
-                debug_assert!((s as usize) < self.jac.len());
-                // SAFETY: slot indices other than NONE32 are < nnz (checked at build).
-                unsafe { *self.jac.get_unchecked_mut(s as usize) += v };
+                debug_assert!((s as usize) < self.jac.len() && self.cmat.len() == self.jac.len());
+                // SAFETY: slot indices other than NONE32 are < nnz = jac.len() = cmat.len()
+                // (checked at build).
+                unsafe {
+                    if dynamic {
+                        *self.jac.get_unchecked_mut(s as usize) += dfl[k] + a0 * dql[k];
+                        *self.cmat.get_unchecked_mut(s as usize) += dql[k];
+                    } else {
+                        *self.jac.get_unchecked_mut(s as usize) += dfl[k];
+                    }
+                }
             }
         }
     }
@@ -233,6 +239,11 @@ pub struct System {
     pub(crate) breakpoint_elements: Vec<usize>,
     // Assembly outputs.
     pub(crate) jac: Vec<f64>,
+    /// `∂q/∂x` in pattern order (filled only when `a0 != 0`), to carry the charges along the
+    /// final Newton correction.
+    cmat: Vec<f64>,
+    /// Scratch for `C Δ`.
+    cdelta: Vec<f64>,
     pub(crate) f: Vec<f64>,
     pub(crate) q: Vec<f64>,
     scale: Vec<f64>,
@@ -420,6 +431,8 @@ impl System {
             charge_rows,
             breakpoint_elements,
             jac: vec![0.0; nnz],
+            cmat: vec![0.0; nnz],
+            cdelta: vec![0.0; n],
             f: vec![0.0; n],
             q: vec![0.0; n],
             scale: vec![0.0; n],
@@ -500,6 +513,7 @@ impl System {
             elements,
             layout,
             jac,
+            cmat,
             f,
             q,
             scale,
@@ -512,12 +526,16 @@ impl System {
             ..
         } = self;
         jac.fill(0.0);
+        if a0 != 0.0 {
+            cmat.fill(0.0);
+        }
         f.fill(0.0);
         q.fill(0.0);
         scale.fill(0.0);
         qscale.fill(0.0);
         let mut out = Outputs {
             jac,
+            cmat,
             f,
             q,
             scale,
@@ -680,9 +698,16 @@ impl System {
                 }
             }
             if delta_ok {
-                // Accept the point the buffers were assembled at: its residual passed and the
-                // Newton correction from it is within tolerance, so `f` and `q` there are
-                // exactly the state the integrator stores.
+                // Accepted: the residual here passed and the correction from here is within
+                // tolerance. The solution also takes that last correction, and the charges the
+                // integrator will store are carried along it to first order, q += (∂q/∂x) Δ,
+                // so unknowns and charges agree to O(Δ²) without another evaluation.
+                for i in 0..self.n {
+                    x[i] += delta[i];
+                }
+                if load.a0 != 0.0 {
+                    self.carry_charges(&delta);
+                }
                 self.rhs = delta;
                 return Ok(NewtonInfo {
                     iterations: it,
@@ -697,6 +722,24 @@ impl System {
         Err(NewtonFailure::NoConvergence {
             worst: self.worst_rows(x, load, &tol),
         })
+    }
+
+    /// `q += C Δ` with `C = ∂q/∂x` from the last assembly.
+    fn carry_charges(&mut self, delta: &[f64]) {
+        self.cdelta.fill(0.0);
+        let col_ptr = self.pattern.col_ptr();
+        let row_idx = self.pattern.row_idx();
+        for c in 0..self.n {
+            let d = delta[c];
+            if d != 0.0 {
+                for s in col_ptr[c]..col_ptr[c + 1] {
+                    self.cdelta[row_idx[s]] += self.cmat[s] * d;
+                }
+            }
+        }
+        for (q, cd) in self.q.iter_mut().zip(&self.cdelta) {
+            *q += cd;
+        }
     }
 
     /// The three rows with the largest residual-to-tolerance ratio at `x`.
