@@ -732,8 +732,9 @@ impl System {
         for c in 0..self.n {
             let d = delta[c];
             if d != 0.0 {
-                for s in col_ptr[c]..col_ptr[c + 1] {
-                    self.cdelta[row_idx[s]] += self.cmat[s] * d;
+                let range = col_ptr[c]..col_ptr[c + 1];
+                for (&r, &cv) in row_idx[range.clone()].iter().zip(&self.cmat[range]) {
+                    self.cdelta[r] += cv * d;
                 }
             }
         }
