@@ -1,0 +1,136 @@
+//! Diagnostics: what went wrong, where, and what to change.
+//!
+//! Each [`Diagnostic`] has a kind (stable, for tests), a primary span, a message, optional
+//! secondary labels ("first defined here") and a help line (often a "did you mean"). They are
+//! rendered with the source line and a caret by `codespan-reporting`.
+
+use crate::source::{Sources, Span};
+use codespan_reporting::diagnostic::{Diagnostic as CsDiagnostic, Label};
+use codespan_reporting::files::SimpleFiles;
+use codespan_reporting::term::{emit_into_string, Config};
+
+/// The kind of a diagnostic, stable across wording changes.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+pub enum ErrorKind {
+    /// A character that starts no token.
+    BadCharacter,
+    /// A malformed number literal.
+    BadNumber,
+    /// A string literal that does not close.
+    BadString,
+    /// A token where something else was expected.
+    Expected,
+    /// An unknown unit after a number.
+    UnknownUnit,
+    /// A name that refers to nothing (parameter, cell, device card, element kind, pin).
+    Unknown,
+    /// A name defined twice in one scope.
+    Duplicate,
+    /// Quantities of different dimensions combined or assigned.
+    UnitMismatch,
+    /// A pin left unconnected.
+    Unconnected,
+    /// A pin connected twice.
+    ConnectedTwice,
+    /// A value that is not allowed (out of range, not an integer, division by zero).
+    BadValue,
+    /// A file that includes itself, directly or not.
+    IncludeCycle,
+    /// A file that cannot be read.
+    Io,
+    /// Nesting, repetition or size beyond the language's limits.
+    Limit,
+}
+
+/// One finding, with where it is and what to change.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Diagnostic {
+    /// Stable kind.
+    pub kind: ErrorKind,
+    /// Where the fault is.
+    pub span: Span,
+    /// What was expected and what was found.
+    pub message: String,
+    /// Secondary places, with a note each.
+    pub notes: Vec<(Span, String)>,
+    /// What to change, if we can tell.
+    pub help: Option<String>,
+}
+
+impl Diagnostic {
+    /// A diagnostic of `kind` at `span`.
+    pub fn new(kind: ErrorKind, span: Span, message: String) -> Self {
+        Diagnostic {
+            kind,
+            span,
+            message,
+            notes: Vec::new(),
+            help: None,
+        }
+    }
+
+    /// Adds a secondary label.
+    pub fn with_note(mut self, span: Span, note: impl Into<String>) -> Self {
+        self.notes.push((span, note.into()));
+        self
+    }
+
+    /// Adds a help line.
+    pub fn with_help(mut self, help: impl Into<String>) -> Self {
+        self.help = Some(help.into());
+        self
+    }
+}
+
+/// The closest of `candidates` to `name`, if it is close enough to be a likely misspelling.
+pub fn did_you_mean<'a>(
+    name: &str,
+    candidates: impl IntoIterator<Item = &'a str>,
+) -> Option<String> {
+    let mut best: Option<(f64, &str)> = None;
+    for c in candidates {
+        let score = strsim::jaro_winkler(name, c);
+        if score > 0.8 && best.is_none_or(|(s, _)| score > s) {
+            best = Some((score, c));
+        }
+    }
+    best.map(|(_, c)| format!("did you mean `{c}`?"))
+}
+
+/// Renders diagnostics as plain text: `file:line:column`, the message, the source line with a
+/// caret under the fault, notes and help.
+pub fn render(sources: &Sources, diags: &[Diagnostic]) -> String {
+    let mut files = SimpleFiles::new();
+    for id in 0..sources.len() {
+        files.add(sources.name(id).to_string(), sources.text(id).to_string());
+    }
+    let config = Config::default();
+    let mut out = String::new();
+    for d in diags {
+        let mut labels = vec![Label::primary(d.span.file, d.span.start..d.span.end)];
+        for (span, note) in &d.notes {
+            labels
+                .push(Label::secondary(span.file, span.start..span.end).with_message(note.clone()));
+        }
+        let (line, col) = sources.line_column(d.span.file, d.span.start);
+        let mut cs = CsDiagnostic::error()
+            .with_message(format!(
+                "{}:{line}:{col}: {}",
+                sources.name(d.span.file),
+                d.message
+            ))
+            .with_labels(labels);
+        if let Some(h) = &d.help {
+            cs = cs.with_notes(vec![format!("help: {h}")]);
+        }
+        match emit_into_string(&config, &files, &cs) {
+            Ok(s) => out.push_str(&s),
+            Err(_) => out.push_str(&format!(
+                "error: {}:{line}:{col}: {}\n",
+                sources.name(d.span.file),
+                d.message
+            )),
+        }
+    }
+    out
+}
