@@ -5,6 +5,8 @@
 //! * [`builtin`]: circuits built in code (a square-law inverter and rings of it).
 //! * [`ring`]: the ring-oscillator job: start-up with a single circulating edge, a transient
 //!   that stops once enough periods have been seen, and the frequency measurement.
+//! * [`design`]: jobs on circuit files: load with `--set` overrides, the check summary, and the
+//!   analyses a file declares.
 //!
 //! Results are model estimates; check them against measurement and your process's rules
 //! before basing a design decision on them.
@@ -12,4 +14,5 @@
 #![deny(missing_docs)]
 
 pub mod builtin;
+pub mod design;
 pub mod ring;

@@ -1,9 +1,10 @@
 //! `lamina`: the command-line front end. Parses flags into a plan, runs it, and turns the
 //! result into an exit code: 0 success, 1 the analysis failed, 2 bad usage (from clap or from
-//! a flag value that makes no sense).
+//! a flag value that makes no sense), 3 the circuit file has errors.
 
 use clap::{Parser, Subcommand, ValueEnum};
-use lamina::builtin::{square_ring, SquareStage};
+use lamina::builtin::{square_ring, Ring, SquareStage};
+use lamina::design::{self, Outcome};
 use lamina::ring::{run_ring, RingParams, RingReport};
 use lamina_engine::{Integrator, System};
 use std::path::{Path, PathBuf};
@@ -38,14 +39,21 @@ enum Method {
 
 #[derive(Subcommand)]
 enum Job {
-    /// Oscillation frequency of a ring oscillator.
+    /// Oscillation frequency of a ring oscillator: a circuit file with an `analysis ring`, or a
+    /// built-in example.
     Ring {
-        /// Which built-in circuit to run.
+        /// Circuit file (`.lam`) declaring `analysis ring { nodes = ..., stages = ..., supply = ... }`.
+        #[arg(required_unless_present = "builtin", conflicts_with = "builtin")]
+        file: Option<PathBuf>,
+        /// Run a built-in circuit instead of a file.
         #[arg(long, value_enum)]
-        builtin: Builtin,
-        /// Number of stages (odd, at least 3).
+        builtin: Option<Builtin>,
+        /// Number of stages of the built-in ring (odd, at least 3).
         #[arg(long, default_value_t = 11)]
         stages: usize,
+        /// Override a top-level parameter of the file: `--set vdd=0.7V` (repeatable).
+        #[arg(long = "set", value_name = "NAME=VALUE")]
+        set: Vec<String>,
         /// Integration formula.
         #[arg(long, value_enum, default_value_t = Method::Trapezoidal)]
         integrator: Method,
@@ -59,10 +67,36 @@ enum Job {
         #[arg(long, value_name = "FILE")]
         dump_matrix: Option<PathBuf>,
     },
+    /// Parse and elaborate a circuit file; print a summary, or the errors with their places.
+    Check {
+        /// Circuit file (`.lam`).
+        file: PathBuf,
+        /// Override a top-level parameter: `--set vdd=0.7V` (repeatable).
+        #[arg(long = "set", value_name = "NAME=VALUE")]
+        set: Vec<String>,
+        /// Print the summary as one JSON object.
+        #[arg(long)]
+        json: bool,
+    },
+    /// Run every analysis a circuit file declares.
+    Run {
+        /// Circuit file (`.lam`).
+        file: PathBuf,
+        /// Override a top-level parameter: `--set vdd=0.7V` (repeatable).
+        #[arg(long = "set", value_name = "NAME=VALUE")]
+        set: Vec<String>,
+        /// Print one JSON object instead of tables.
+        #[arg(long)]
+        json: bool,
+    },
 }
 
 enum Failure {
+    /// Bad flags (exit 2).
     Usage(String),
+    /// A circuit file with errors (exit 3).
+    Invalid(String),
+    /// The analysis failed (exit 1).
     Analysis(String),
 }
 
@@ -73,6 +107,13 @@ fn main() -> ExitCode {
         Err(Failure::Usage(msg)) => {
             eprintln!("error: {msg}");
             ExitCode::from(2)
+        }
+        Err(Failure::Invalid(msg)) => {
+            eprint!("{msg}");
+            if !msg.ends_with('\n') {
+                eprintln!();
+            }
+            ExitCode::from(3)
         }
         Err(Failure::Analysis(msg)) => {
             eprintln!("error: {msg}");
@@ -95,14 +136,76 @@ fn write_whole(path: &Path, write: impl FnOnce(&Path) -> Result<(), String>) -> 
 
 fn run(cli: Cli) -> Result<(), Failure> {
     match cli.job {
+        Job::Check { file, set, json } => {
+            let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
+            let d = design::load(&file, &sets).map_err(Failure::Invalid)?;
+            if json {
+                println!("{}", design::summary_json(&d));
+            } else {
+                println!("{}", design::summary_text(&file, &d));
+            }
+            Ok(())
+        }
+        Job::Run { file, set, json } => {
+            let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
+            let results =
+                design::run_all(&file, &sets, &RingParams::default()).map_err(Failure::Invalid)?;
+            if json {
+                let items: Vec<serde_json::Value> =
+                    results.iter().map(|(k, o)| outcome_json(k, o)).collect();
+                println!("{}", serde_json::json!({ "analyses": items }));
+            } else {
+                for (_, o) in &results {
+                    print_outcome(o);
+                }
+            }
+            Ok(())
+        }
         Job::Ring {
-            builtin: Builtin::SquareRing,
+            file: Some(file),
+            set,
+            integrator,
+            reference,
+            json,
+            dump_matrix,
+            ..
+        } => {
+            let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
+            let d = design::load(&file, &sets).map_err(Failure::Invalid)?;
+            let base = RingParams {
+                integrator: method(integrator),
+                reference,
+                ..RingParams::default()
+            };
+            let (mut system, ring, params) =
+                design::ring_from(d, &base).map_err(Failure::Invalid)?;
+            if let Some(path) = dump_matrix {
+                dump(&mut system, &ring, &path)?;
+            }
+            let report = run_ring(&mut system, &ring, &params)
+                .map_err(|e| Failure::Analysis(e.to_string()))?;
+            if json {
+                println!("{}", ring_json(&report));
+            } else {
+                print_ring(&report);
+            }
+            Ok(())
+        }
+        Job::Ring {
+            file: None,
+            builtin,
             stages,
             integrator,
             reference,
             json,
             dump_matrix,
+            ..
         } => {
+            let Some(Builtin::SquareRing) = builtin else {
+                return Err(Failure::Usage(
+                    "give a circuit file or --builtin square-ring".into(),
+                ));
+            };
             if stages < 3 || stages % 2 == 0 || stages > 1_000_000 {
                 return Err(Failure::Usage(format!(
                     "--stages {stages}: a ring needs an odd number of stages from 3 to 1000000; \
@@ -113,32 +216,10 @@ fn run(cli: Cli) -> Result<(), Failure> {
                 .map_err(|e| Failure::Analysis(e.to_string()))?;
             let mut system = System::new(circuit).map_err(|e| Failure::Analysis(e.to_string()))?;
             if let Some(path) = dump_matrix {
-                let mut x = vec![0.0; system.unknown_count()];
-                for (i, &node) in ring.outputs.iter().enumerate() {
-                    if let Some(u) = system.node_unknown(node) {
-                        x[u] = if i % 2 == 0 { ring.vdd } else { 0.0 };
-                    }
-                }
-                let m = system
-                    .dc_matrix(&x, 1e-12)
-                    .map_err(|e| Failure::Analysis(e.to_string()))?;
-                write_whole(&path, |tmp| {
-                    sprs::io::write_matrix_market(tmp, &m)
-                        .map_err(|e| format!("cannot write {}: {e}", path.display()))
-                })
-                .map_err(Failure::Usage)?;
-                eprintln!(
-                    "wrote the {0}x{0} DC Newton matrix to {1}",
-                    m.rows(),
-                    path.display()
-                );
+                dump(&mut system, &ring, &path)?;
             }
             let params = RingParams {
-                integrator: match integrator {
-                    Method::Trapezoidal => Integrator::Trapezoidal,
-                    Method::Euler => Integrator::BackwardEuler,
-                    Method::Bdf2 => Integrator::Bdf2,
-                },
+                integrator: method(integrator),
                 reference,
                 ..RingParams::default()
             };
@@ -151,6 +232,99 @@ fn run(cli: Cli) -> Result<(), Failure> {
             }
             Ok(())
         }
+    }
+}
+
+fn method(m: Method) -> Integrator {
+    match m {
+        Method::Trapezoidal => Integrator::Trapezoidal,
+        Method::Euler => Integrator::BackwardEuler,
+        Method::Bdf2 => Integrator::Bdf2,
+    }
+}
+
+/// Writes the DC Newton matrix at the ring's single-edge start state (Matrix Market).
+fn dump(system: &mut System, ring: &Ring, path: &Path) -> Result<(), Failure> {
+    let mut x = vec![0.0; system.unknown_count()];
+    for (i, &node) in ring.outputs.iter().enumerate() {
+        if let Some(u) = system.node_unknown(node) {
+            x[u] = if i % 2 == 0 { ring.vdd } else { 0.0 };
+        }
+    }
+    let m = system
+        .dc_matrix(&x, 1e-12)
+        .map_err(|e| Failure::Analysis(e.to_string()))?;
+    write_whole(path, |tmp| {
+        sprs::io::write_matrix_market(tmp, &m)
+            .map_err(|e| format!("cannot write {}: {e}", path.display()))
+    })
+    .map_err(Failure::Usage)?;
+    eprintln!(
+        "wrote the {0}x{0} DC Newton matrix to {1}",
+        m.rows(),
+        path.display()
+    );
+    Ok(())
+}
+
+fn outcome_json(kind: &str, o: &Outcome) -> serde_json::Value {
+    match o {
+        Outcome::OperatingPoint(v) => {
+            let map: serde_json::Map<String, serde_json::Value> = v
+                .iter()
+                .map(|(n, x)| (n.clone(), serde_json::json!(x)))
+                .collect();
+            serde_json::json!({ "analysis": kind, "node_voltages_v": map })
+        }
+        Outcome::Transfer { vin, vout, points } => serde_json::json!({
+            "analysis": kind,
+            "vin": vin,
+            "vout": vout,
+            "vm": points.map(|p| p.vm),
+            "vil": points.map(|p| p.vil),
+            "vih": points.map(|p| p.vih),
+            "gain_max": points.map(|p| -p.gain_min),
+        }),
+        Outcome::Ring(r) => {
+            let mut v = ring_json(r);
+            v["analysis"] = serde_json::json!(kind);
+            v
+        }
+    }
+}
+
+fn print_outcome(o: &Outcome) {
+    match o {
+        Outcome::OperatingPoint(v) => {
+            println!("operating point (model estimate)");
+            for (n, x) in v {
+                println!("  {n:<24} {x:>14.6} V");
+            }
+        }
+        Outcome::Transfer { vin, points, .. } => {
+            println!("transfer curve, {} points (model estimate)", vin.len());
+            match points {
+                Some(p) => {
+                    println!(
+                        "  switching threshold V_M   {:>10.4} V   (v_out = v_in)",
+                        p.vm
+                    );
+                    println!(
+                        "  V_IL                      {:>10.4} V   (first slope of -1)",
+                        p.vil
+                    );
+                    println!(
+                        "  V_IH                      {:>10.4} V   (last slope of -1)",
+                        p.vih
+                    );
+                    println!("  peak gain                 {:>10.2}", -p.gain_min);
+                }
+                None => println!(
+                    "  the curve never crosses v_out = v_in or never reaches a slope of -1"
+                ),
+            }
+        }
+        Outcome::Ring(r) => print_ring(r),
     }
 }
 

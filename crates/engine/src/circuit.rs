@@ -197,6 +197,16 @@ impl Circuit {
         self.entries[id.0].element.kind()
     }
 
+    /// Every element, in insertion order.
+    pub fn elements(&self) -> impl Iterator<Item = ElementId> {
+        (0..self.entries.len()).map(ElementId)
+    }
+
+    /// Every node except ground, in creation order.
+    pub fn nodes(&self) -> impl Iterator<Item = NodeId> {
+        (1..self.node_names.len()).map(NodeId)
+    }
+
     /// Number of elements.
     pub fn element_count(&self) -> usize {
         self.entries.len()

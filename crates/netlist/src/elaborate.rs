@@ -127,13 +127,38 @@ pub struct Failure {
     pub diagnostics: Vec<Diagnostic>,
 }
 
+/// What an analysis setting takes.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum SettingKind {
+    /// A number (an expression, parameters allowed).
+    Number,
+    /// The name of a node, node array or element, taken as written (even if a parameter has
+    /// the same name).
+    Name,
+}
+
 /// Analyses the language knows, with the settings each accepts.
-pub const ANALYSES: &[(&str, &[&str])] = &[
+pub const ANALYSES: &[(&str, &[(&str, SettingKind)])] = &[
     ("operating_point", &[]),
-    ("sweep", &["source", "from", "to", "step"]),
-    ("transient", &["stop", "max_step", "integrator"]),
-    ("ring", &["nodes", "stages", "supply", "integrator"]),
-    ("transfer", &["source", "output", "from", "to", "step"]),
+    (
+        "transfer",
+        &[
+            ("source", SettingKind::Name),
+            ("output", SettingKind::Name),
+            ("from", SettingKind::Number),
+            ("to", SettingKind::Number),
+            ("step", SettingKind::Number),
+        ],
+    ),
+    (
+        "ring",
+        &[
+            ("nodes", SettingKind::Name),
+            ("stages", SettingKind::Number),
+            ("supply", SettingKind::Name),
+            ("integrator", SettingKind::Name),
+        ],
+    ),
 ];
 
 /// Reads files from disk; tests can supply their own.
@@ -438,7 +463,7 @@ impl<'s> Elaborator<'s> {
                 let mut d = Diagnostic::new(
                     ErrorKind::Unknown,
                     override_span[name],
-                    format!("--set {name}: the file has no top-level parameter `{name}`"),
+                    format!("no top-level parameter `{name}` to set"),
                 );
                 if let Some(h) = did_you_mean(name, seen.keys().map(String::as_str)) {
                     d = d.with_help(h);
@@ -587,31 +612,36 @@ impl<'s> Elaborator<'s> {
             self.diags.push(d);
             return;
         };
+        let refs: Vec<&Frame> = frames.iter().collect();
         let mut settings = Vec::new();
         for a in params {
-            if !keys.contains(&a.name.name.as_str()) {
+            let Some(&(_, setting_kind)) = keys.iter().find(|(k, _)| *k == a.name.name) else {
                 let mut d = Diagnostic::new(
                     ErrorKind::Unknown,
                     a.name.span,
                     format!("analysis `{}` has no setting `{}`", kind.name, a.name.name),
                 );
-                d = d.with_help(match did_you_mean(&a.name.name, keys.iter().copied()) {
+                let names: Vec<&str> = keys.iter().map(|k| k.0).collect();
+                d = d.with_help(match did_you_mean(&a.name.name, names.iter().copied()) {
                     Some(h) => h,
-                    None => format!("its settings are: {}", keys.join(", ")),
+                    None if names.is_empty() => "it takes no settings".to_string(),
+                    None => format!("its settings are: {}", names.join(", ")),
                 });
                 self.diags.push(d);
                 continue;
-            }
-            let value = match &a.value {
-                Expr::Name(id)
-                    if self
-                        .lookup(&id.name, &frames.iter().collect::<Vec<_>>())
-                        .is_none() =>
-                {
-                    SettingValue::Name(id.name.clone())
+            };
+            let value = match (setting_kind, &a.value) {
+                (SettingKind::Name, Expr::Name(id)) => SettingValue::Name(id.name.clone()),
+                (SettingKind::Name, Expr::Str(s, _)) => SettingValue::Text(s.clone()),
+                (SettingKind::Name, e) => {
+                    self.err(
+                        ErrorKind::BadValue,
+                        e.span(),
+                        format!("`{}` takes a name, such as `out`", a.name.name),
+                    );
+                    continue;
                 }
-                Expr::Str(s, _) => SettingValue::Text(s.clone()),
-                e => match self.eval(e, &frames.iter().collect::<Vec<_>>()) {
+                (SettingKind::Number, e) => match self.eval(e, &refs) {
                     Some(q) => SettingValue::Number(q.v, q.dim),
                     None => continue,
                 },

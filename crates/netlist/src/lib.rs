@@ -36,7 +36,7 @@ pub mod units;
 pub use diag::{render, Diagnostic, ErrorKind};
 pub use elaborate::{
     load_file, load_with, AnalysisDecl, Design, DiskReader, Failure, FileReader, Limits,
-    LoadOptions, Setting, SettingValue, Summary,
+    LoadOptions, Setting, SettingKind, SettingValue, Summary, ANALYSES,
 };
 pub use source::{Sources, Span};
 

@@ -1,0 +1,295 @@
+//! Jobs on circuit files: loading with overrides, the check summary, and the analyses a file
+//! declares (`operating_point`, `transfer`, `ring`).
+
+use crate::builtin::Ring;
+use crate::ring::{run_ring, RingParams, RingReport};
+use lamina_engine::{Circuit, Integrator, OpParams, Probe, Solution, SweepParams, System};
+use lamina_measure::transfer::{transfer_points, TransferPoints};
+use lamina_netlist::{load_file, render, AnalysisDecl, Design, LoadOptions, SettingValue};
+use std::path::Path;
+
+/// Parses `name=value` flags.
+pub fn parse_sets(sets: &[String]) -> Result<Vec<(String, String)>, String> {
+    sets.iter()
+        .map(|s| match s.split_once('=') {
+            Some((n, v)) if !n.trim().is_empty() && !v.trim().is_empty() => {
+                Ok((n.trim().to_string(), v.trim().to_string()))
+            }
+            _ => Err(format!(
+                "--set {s}: expected name=value, such as --set vdd=0.7V"
+            )),
+        })
+        .collect()
+}
+
+/// Loads and elaborates `path`; on failure returns the rendered diagnostics.
+pub fn load(path: &Path, sets: &[(String, String)]) -> Result<Design, String> {
+    let options = LoadOptions {
+        overrides: sets.to_vec(),
+        ..LoadOptions::default()
+    };
+    load_file(path, &options).map_err(|f| {
+        let n = f.diagnostics.len();
+        format!(
+            "{}{} error{} in {}",
+            render(&f.sources, &f.diagnostics),
+            n,
+            if n == 1 { "" } else { "s" },
+            path.display()
+        )
+    })
+}
+
+/// The summary `lamina check` prints.
+pub fn summary_text(path: &Path, d: &Design) -> String {
+    let s = &d.summary;
+    let mut out = format!(
+        "{}: ok\n  nodes      {}\n  elements   {}",
+        path.display(),
+        s.nodes,
+        s.elements.values().sum::<usize>()
+    );
+    for (k, n) in &s.elements {
+        out.push_str(&format!("\n    {k:<16} {n}"));
+    }
+    out.push_str(&format!(
+        "\n  cells      {}",
+        if s.cells.is_empty() {
+            "-".into()
+        } else {
+            s.cells.join(", ")
+        }
+    ));
+    out.push_str(&format!(
+        "\n  devices    {}",
+        if s.devices.is_empty() {
+            "-".into()
+        } else {
+            s.devices.join(", ")
+        }
+    ));
+    out.push_str(&format!(
+        "\n  analyses   {}",
+        if s.analyses.is_empty() {
+            "-".into()
+        } else {
+            s.analyses.join(", ")
+        }
+    ));
+    out
+}
+
+/// The same summary as JSON.
+pub fn summary_json(d: &Design) -> serde_json::Value {
+    let s = &d.summary;
+    serde_json::json!({
+        "nodes": s.nodes,
+        "elements": s.elements,
+        "cells": s.cells,
+        "devices": s.devices,
+        "analyses": s.analyses,
+    })
+}
+
+fn setting<'a>(a: &'a AnalysisDecl, key: &str) -> Option<&'a SettingValue> {
+    a.settings.iter().find(|s| s.name == key).map(|s| &s.value)
+}
+
+fn name_setting(a: &AnalysisDecl, key: &str) -> Result<String, String> {
+    match setting(a, key) {
+        Some(SettingValue::Name(n)) => Ok(n.clone()),
+        Some(_) => Err(format!(
+            "analysis `{}`: `{key}` must name a node or element",
+            a.kind
+        )),
+        None => Err(format!("analysis `{}` needs `{key} = ...`", a.kind)),
+    }
+}
+
+fn number_setting(a: &AnalysisDecl, key: &str) -> Result<f64, String> {
+    match setting(a, key) {
+        Some(SettingValue::Number(v, _)) => Ok(*v),
+        Some(_) => Err(format!("analysis `{}`: `{key}` must be a number", a.kind)),
+        None => Err(format!("analysis `{}` needs `{key} = ...`", a.kind)),
+    }
+}
+
+/// Parses an integrator name.
+pub fn integrator_named(name: &str) -> Result<Integrator, String> {
+    match name {
+        "trapezoidal" => Ok(Integrator::Trapezoidal),
+        "euler" | "backward_euler" => Ok(Integrator::BackwardEuler),
+        "bdf2" => Ok(Integrator::Bdf2),
+        other => Err(format!(
+            "unknown integrator `{other}`: use trapezoidal, euler or bdf2"
+        )),
+    }
+}
+
+/// The ring a file's `analysis ring { nodes = NAME, stages = N, supply = NODE }` describes,
+/// with the system compiled from the file's circuit.
+pub fn ring_from(design: Design, base: &RingParams) -> Result<(System, Ring, RingParams), String> {
+    let a = design
+        .analyses
+        .iter()
+        .find(|a| a.kind == "ring")
+        .ok_or("the file declares no `analysis ring { nodes = ..., stages = ..., supply = ... }`")?
+        .clone();
+    let nodes = name_setting(&a, "nodes")?;
+    let stages = number_setting(&a, "stages")?;
+    if stages.fract() != 0.0 || stages < 3.0 {
+        return Err(format!(
+            "analysis `ring`: `stages` must be a whole number of at least 3, found {stages}"
+        ));
+    }
+    let supply = name_setting(&a, "supply")?;
+    let mut params = *base;
+    if let Some(SettingValue::Text(t)) | Some(SettingValue::Name(t)) = setting(&a, "integrator") {
+        params.integrator = integrator_named(t)?;
+    }
+    let circuit: Circuit = design.circuit;
+    let mut outputs = Vec::new();
+    for i in 0..stages as usize {
+        let name = format!("{nodes}[{i}]");
+        outputs.push(
+            circuit
+                .find_node(&name)
+                .ok_or_else(|| format!("analysis `ring`: the circuit has no node `{name}`"))?,
+        );
+    }
+    let supply_node = match circuit.find_node(&supply) {
+        Some(n) => n,
+        None => {
+            let e = circuit
+                .find_element(&supply)
+                .ok_or_else(|| format!("analysis `ring`: no node or element called `{supply}`"))?;
+            return Err(format!(
+                "analysis `ring`: `supply` must name the supply node, not the element `{}`",
+                circuit.element_name(e)
+            ));
+        }
+    };
+    let supply_element = circuit
+        .elements()
+        .find(|&e| circuit.element_kind(e) == "voltage source")
+        .ok_or("analysis `ring`: the circuit has no voltage source to supply it")?;
+    let mut system = System::new(circuit).map_err(|e| e.to_string())?;
+    let (sol, _) = system
+        .operating_point(&OpParams::default())
+        .map_err(|e| e.to_string())?;
+    let vdd = sol.voltage(&system, supply_node);
+    if !(vdd > 0.0) {
+        return Err(format!("analysis `ring`: the supply node `{supply}` sits at {vdd} V; it needs a positive supply"));
+    }
+    Ok((
+        system,
+        Ring {
+            outputs,
+            supply: supply_element,
+            vdd,
+        },
+        params,
+    ))
+}
+
+/// What one declared analysis produced.
+pub enum Outcome {
+    /// Node voltages of the operating point.
+    OperatingPoint(Vec<(String, f64)>),
+    /// A transfer curve and its points.
+    Transfer {
+        /// Input values.
+        vin: Vec<f64>,
+        /// Output values.
+        vout: Vec<f64>,
+        /// Switching threshold and unity-gain points, if the curve has them.
+        points: Option<TransferPoints>,
+    },
+    /// A ring measurement.
+    Ring(RingReport),
+}
+
+/// Runs every analysis `design` declares, in order.
+pub fn run_all(
+    path: &Path,
+    sets: &[(String, String)],
+    base: &RingParams,
+) -> Result<Vec<(String, Outcome)>, String> {
+    let design = load(path, sets)?;
+    if design.analyses.is_empty() {
+        return Err(format!(
+            "{} declares no analysis; add one such as `analysis operating_point`",
+            path.display()
+        ));
+    }
+    let kinds: Vec<AnalysisDecl> = design.analyses.clone();
+    let mut out = Vec::new();
+    for a in &kinds {
+        // Each analysis gets a fresh elaboration, so sweeps and runs cannot affect each other.
+        let design = load(path, sets)?;
+        let outcome = match a.kind.as_str() {
+            "operating_point" => {
+                let names: Vec<String> = design
+                    .circuit
+                    .nodes()
+                    .map(|n| design.circuit.node_name(n).to_string())
+                    .collect();
+                let mut sys = System::new(design.circuit).map_err(|e| e.to_string())?;
+                let (sol, _): (Solution, _) = sys
+                    .operating_point(&OpParams::default())
+                    .map_err(|e| e.to_string())?;
+                Outcome::OperatingPoint(names.into_iter().zip(sol.x.iter().copied()).collect())
+            }
+            "transfer" => {
+                let source = name_setting(a, "source")?;
+                let output = name_setting(a, "output")?;
+                let (from, to, step) = (
+                    number_setting(a, "from")?,
+                    number_setting(a, "to")?,
+                    number_setting(a, "step")?,
+                );
+                if !(step > 0.0) || !(to > from) || (to - from) / step > 1e7 {
+                    return Err(
+                        "analysis `transfer`: need from < to and 0 < step, with at most 1e7 points"
+                            .into(),
+                    );
+                }
+                let src = design
+                    .circuit
+                    .find_element(&source)
+                    .ok_or_else(|| format!("analysis `transfer`: no element `{source}`"))?;
+                let out_node = design
+                    .circuit
+                    .find_node(&output)
+                    .ok_or_else(|| format!("analysis `transfer`: no node `{output}`"))?;
+                let n = ((to - from) / step).round() as usize;
+                let vin: Vec<f64> = (0..=n)
+                    .map(|i| from + (to - from) * i as f64 / n as f64)
+                    .collect();
+                let mut sys = System::new(design.circuit).map_err(|e| e.to_string())?;
+                let res = sys
+                    .dc_sweep(
+                        src,
+                        &vin,
+                        &[Probe::Voltage(out_node)],
+                        &SweepParams::default(),
+                    )
+                    .map_err(|e| e.to_string())?;
+                let vout = res.signals[0].clone();
+                let points = transfer_points(&vin, &vout);
+                Outcome::Transfer { vin, vout, points }
+            }
+            "ring" => {
+                let (mut sys, ring, params) = ring_from(design, base)?;
+                Outcome::Ring(run_ring(&mut sys, &ring, &params).map_err(|e| e.to_string())?)
+            }
+            other => {
+                return Err(format!(
+                    "analysis `{other}` is declared but `lamina run` cannot run it yet"
+                ))
+            }
+        };
+        out.push((a.kind.clone(), outcome));
+    }
+    Ok(out)
+}
