@@ -178,7 +178,7 @@ pub fn ring_from(design: Design, base: &RingParams) -> Result<(System, Ring, Rin
         .operating_point(&OpParams::default())
         .map_err(|e| e.to_string())?;
     let vdd = sol.voltage(&system, supply_node);
-    if !(vdd > 0.0) {
+    if vdd.is_nan() || vdd <= 0.0 {
         return Err(format!("analysis `ring`: the supply node `{supply}` sits at {vdd} V; it needs a positive supply"));
     }
     Ok((
@@ -248,7 +248,12 @@ pub fn run_all(
                     number_setting(a, "to")?,
                     number_setting(a, "step")?,
                 );
-                if !(step > 0.0) || !(to > from) || (to - from) / step > 1e7 {
+                if step.is_nan()
+                    || step <= 0.0
+                    || to.is_nan()
+                    || to <= from
+                    || (to - from) / step > 1e7
+                {
                     return Err(
                         "analysis `transfer`: need from < to and 0 < step, with at most 1e7 points"
                             .into(),

@@ -137,6 +137,18 @@ pub enum SettingKind {
     Name,
 }
 
+impl std::fmt::Debug for Failure {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&crate::diag::render(&self.sources, &self.diagnostics))
+    }
+}
+
+impl std::fmt::Display for Failure {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&crate::diag::render(&self.sources, &self.diagnostics))
+    }
+}
+
 /// Analyses the language knows, with the settings each accepts.
 pub const ANALYSES: &[(&str, &[(&str, SettingKind)])] = &[
     ("operating_point", &[]),
@@ -821,7 +833,7 @@ impl<'s> Elaborator<'s> {
                     }
                     BinOp::Mul => Q {
                         v: a.v * b.v,
-                        dim: combine(a.dim, b.dim, Dim::mul),
+                        dim: combine(a.dim, b.dim, Dim::times),
                     },
                     BinOp::Div => {
                         if b.v == 0.0 {
@@ -830,7 +842,7 @@ impl<'s> Elaborator<'s> {
                         }
                         Q {
                             v: a.v / b.v,
-                            dim: combine(a.dim, b.dim, Dim::div),
+                            dim: combine(a.dim, b.dim, Dim::per),
                         }
                     }
                     BinOp::Rem => {
@@ -1315,7 +1327,7 @@ impl<'s> Elaborator<'s> {
             let v = match g {
                 Some((q, s)) => match self.check_dim(*q, spec.dim, *s, spec.name) {
                     Some(v) => {
-                        if spec.positive && !(v > 0.0) {
+                        if spec.positive && (v <= 0.0 || v.is_nan()) {
                             self.err(
                                 ErrorKind::BadValue,
                                 *s,

@@ -740,10 +740,10 @@ impl<'a> Parser<'a> {
             };
             if divide {
                 scale /= s;
-                dim = dim.div(d);
+                dim = dim.per(d);
             } else {
                 scale *= s;
-                dim = dim.mul(d);
+                dim = dim.times(d);
             }
             first = false;
         }

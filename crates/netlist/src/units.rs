@@ -40,7 +40,7 @@ impl Dim {
     pub const PER_VOLT: Dim = Dim([0, 0, -1, 0, 0]);
 
     /// Product of two dimensions.
-    pub fn mul(self, o: Dim) -> Dim {
+    pub fn times(self, o: Dim) -> Dim {
         let mut d = [0i8; 5];
         for (i, v) in d.iter_mut().enumerate() {
             *v = self.0[i].saturating_add(o.0[i]);
@@ -49,8 +49,8 @@ impl Dim {
     }
 
     /// Quotient of two dimensions.
-    pub fn div(self, o: Dim) -> Dim {
-        self.mul(o.pow(-1))
+    pub fn per(self, o: Dim) -> Dim {
+        self.times(o.pow(-1))
     }
 
     /// Integer power.
