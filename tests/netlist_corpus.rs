@@ -1,0 +1,146 @@
+//! Golden corpora of circuit files: every example under `netlists/` and `tests/corpus/good`
+//! checks clean; every file under `tests/corpus/bad` is refused with the diagnostic kind and
+//! position its first line names (`# expect: Kind line:column`), whatever the wording.
+
+use lamina_netlist::{load_file, ErrorKind, LoadOptions};
+use std::path::{Path, PathBuf};
+
+fn lam_files(dir: &Path) -> Vec<PathBuf> {
+    let mut out = Vec::new();
+    for entry in std::fs::read_dir(dir).unwrap() {
+        let p = entry.unwrap().path();
+        if p.is_dir() {
+            out.extend(lam_files(&p));
+        } else if p.extension().is_some_and(|e| e == "lam") {
+            out.push(p);
+        }
+    }
+    out.sort();
+    out
+}
+
+fn kind_named(name: &str) -> ErrorKind {
+    use ErrorKind::*;
+    let all = [
+        BadCharacter,
+        BadNumber,
+        BadString,
+        Expected,
+        UnknownUnit,
+        Unknown,
+        Duplicate,
+        UnitMismatch,
+        Unconnected,
+        ConnectedTwice,
+        BadValue,
+        IncludeCycle,
+        Io,
+        Limit,
+    ];
+    *all.iter()
+        .find(|k| format!("{k:?}") == name)
+        .unwrap_or_else(|| panic!("unknown kind {name}"))
+}
+
+#[test]
+fn example_and_good_files_check_clean() {
+    let mut files = lam_files(Path::new("netlists"));
+    files.extend(lam_files(Path::new("tests/corpus/good")));
+    assert!(files.len() >= 12, "{files:?}");
+    for f in files {
+        if let Err(e) = load_file(&f, &LoadOptions::default()) {
+            panic!("{} should check clean:\n{e}", f.display());
+        }
+    }
+}
+
+#[test]
+fn bad_files_report_the_expected_kind_and_place() {
+    let files = lam_files(Path::new("tests/corpus/bad"));
+    assert!(files.len() >= 20);
+    let mut wrong = Vec::new();
+    for f in files {
+        let text = std::fs::read_to_string(&f).unwrap();
+        let expect = text
+            .lines()
+            .next()
+            .and_then(|l| l.strip_prefix("# expect: "))
+            .expect("expect line");
+        let (kind, place) = expect.split_once(' ').unwrap();
+        let (line, col) = place.split_once(':').unwrap();
+        let (kind, line, col): (ErrorKind, usize, usize) = (
+            kind_named(kind),
+            line.parse().unwrap(),
+            col.parse().unwrap(),
+        );
+        let failure = match load_file(&f, &LoadOptions::default()) {
+            Ok(_) => panic!("{} should be refused", f.display()),
+            Err(e) => e,
+        };
+        let found: Vec<(ErrorKind, usize, usize)> = failure
+            .diagnostics
+            .iter()
+            .map(|d| {
+                let (l, c) = failure.sources.line_column(d.span.file, d.span.start);
+                (d.kind, l, c)
+            })
+            .collect();
+        if !found.contains(&(kind, line, col)) {
+            wrong.push(format!(
+                "{}: expected {kind:?} at {line}:{col}, found {found:?}\n{failure}",
+                f.display()
+            ));
+        }
+    }
+    assert!(wrong.is_empty(), "{}", wrong.join("\n"));
+}
+
+#[test]
+fn overrides_replace_parameters_and_unknown_ones_are_named() {
+    let opts = LoadOptions {
+        overrides: vec![("stages".into(), "7".into())],
+        ..LoadOptions::default()
+    };
+    let d = load_file(Path::new("netlists/ring-21.lam"), &opts).unwrap();
+    assert_eq!(d.summary.elements["square_nfet"], 7);
+    let opts = LoadOptions {
+        overrides: vec![("stage".into(), "7".into())],
+        ..LoadOptions::default()
+    };
+    let f = load_file(Path::new("netlists/ring-21.lam"), &opts)
+        .err()
+        .unwrap();
+    assert_eq!(f.diagnostics[0].kind, ErrorKind::Unknown);
+    assert!(f.diagnostics[0]
+        .help
+        .as_deref()
+        .unwrap_or("")
+        .contains("stages"));
+    let opts = LoadOptions {
+        overrides: vec![("vdd".into(), "1 nm".into())],
+        ..LoadOptions::default()
+    };
+    let f = load_file(Path::new("netlists/ring-21.lam"), &opts)
+        .err()
+        .unwrap();
+    assert!(
+        f.diagnostics
+            .iter()
+            .any(|d| d.kind == ErrorKind::UnitMismatch),
+        "{f}"
+    );
+}
+
+#[test]
+fn hierarchical_names_follow_the_documented_scheme() {
+    let d = load_file(
+        Path::new("tests/corpus/good/nested.lam"),
+        &LoadOptions::default(),
+    )
+    .unwrap();
+    let c = &d.circuit;
+    assert!(c.find_element("cell[5].res").is_some());
+    assert!(c.find_node("cell[5].mid").is_some());
+    assert!(c.find_node("x[3]").is_some());
+    assert_eq!(d.summary.elements["resistor"], 9);
+}
