@@ -69,3 +69,66 @@ fn matrix_market_export_is_written_whole() {
     assert!(!dir.join("ring.mtx.partial").exists());
     std::fs::remove_dir_all(&dir).unwrap();
 }
+
+#[test]
+fn check_prints_a_summary_or_located_errors() {
+    let out = lamina(&["check", "netlists/ring-21.lam"]);
+    assert!(out.status.success());
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(
+        text.contains("square_nfet") && text.contains("21"),
+        "{text}"
+    );
+
+    let out = lamina(&[
+        "check",
+        "netlists/ring-21.lam",
+        "--json",
+        "--set",
+        "stages=9",
+    ]);
+    assert!(out.status.success());
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["elements"]["square_pfet"], 9);
+
+    let out = lamina(&["check", "tests/corpus/bad/unknown-kind.lam"]);
+    assert_eq!(out.status.code(), Some(3));
+    let err = String::from_utf8(out.stderr).unwrap();
+    assert!(
+        err.contains("unknown-kind.lam:2:1") && err.contains("did you mean `resistor`?"),
+        "{err}"
+    );
+    assert!(out.stdout.is_empty());
+
+    let out = lamina(&["check", "no/such/file.lam"]);
+    assert_eq!(out.status.code(), Some(3));
+    let out = lamina(&["check", "netlists/ring-21.lam", "--set", "novalue"]);
+    assert_eq!(out.status.code(), Some(2));
+}
+
+#[test]
+fn run_reproduces_the_declared_analyses() {
+    let out = lamina(&["run", "netlists/reference/square-inverter.lam", "--json"]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let t = &v["analyses"][0];
+    assert_eq!(t["analysis"], "transfer");
+    // Kang & Leblebici (2003) closed forms for the symmetric square-law inverter.
+    assert!((t["vil"].as_f64().unwrap() - 0.45).abs() < 1e-3);
+    assert!((t["vih"].as_f64().unwrap() - 0.55).abs() < 1e-3);
+
+    // The ring file and the built-in ring are the same circuit: same stage delay.
+    let file = lamina(&["ring", "netlists/reference/square-ring-11.lam", "--json"]);
+    let builtin = lamina(&["ring", "--builtin", "square-ring", "--json"]);
+    let a: serde_json::Value = serde_json::from_slice(&file.stdout).unwrap();
+    let b: serde_json::Value = serde_json::from_slice(&builtin.stdout).unwrap();
+    let (fa, fb) = (
+        a["frequency_hz"].as_f64().unwrap(),
+        b["frequency_hz"].as_f64().unwrap(),
+    );
+    assert!((fa / fb - 1.0).abs() < 1e-9, "{fa} vs {fb}");
+}

@@ -144,3 +144,44 @@ fn hierarchical_names_follow_the_documented_scheme() {
     assert!(c.find_node("x[3]").is_some());
     assert_eq!(d.summary.elements["resistor"], 9);
 }
+
+#[test]
+fn element_and_depth_limits_are_reported() {
+    use lamina_netlist::{load_source, Limits};
+    let text = "cell c0(p) {\n    resistor r (a = p, b = ground) { resistance = 1 kOhm }\n}\n\
+                cell c1(p) {\n    c0 x (p = p)\n    c0 y (p = p)\n}\n\
+                for i in 0..100000 { c1 top[i] (p = n) }\n";
+    let limits = Limits {
+        max_elements: 1000,
+        ..Limits::default()
+    };
+    let f = load_source(
+        "limit.lam",
+        text,
+        &LoadOptions {
+            limits,
+            ..LoadOptions::default()
+        },
+    )
+    .err()
+    .unwrap();
+    assert!(
+        f.diagnostics
+            .iter()
+            .any(|d| d.kind == ErrorKind::Limit && d.message.contains("1000")),
+        "{f}"
+    );
+    assert!(
+        f.diagnostics.len() <= 5,
+        "the limit stops elaboration: {} diagnostics",
+        f.diagnostics.len()
+    );
+    let deep = format!("param x = {}1{}\n", "(".repeat(200), ")".repeat(200));
+    let f = load_source("deep.lam", &deep, &LoadOptions::default())
+        .err()
+        .unwrap();
+    assert!(
+        f.diagnostics.iter().any(|d| d.kind == ErrorKind::Limit),
+        "{f}"
+    );
+}

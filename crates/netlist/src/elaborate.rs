@@ -394,6 +394,7 @@ struct Elaborator<'s> {
     summary: Summary,
     element_spans: HashMap<String, Span>,
     depth: usize,
+    created: usize,
 }
 
 /// One level of the scope chain: a cell instance's parameters and ports, or a loop variable.
@@ -417,6 +418,7 @@ impl<'s> Elaborator<'s> {
             summary: Summary::default(),
             element_spans: HashMap::new(),
             depth: 0,
+            created: 0,
         }
     }
 
@@ -672,7 +674,15 @@ impl<'s> Elaborator<'s> {
         });
     }
 
+    /// Whether elaboration should stop: too many errors to be useful, or the element limit.
+    fn saturated(&self) -> bool {
+        self.diags.len() > 200 || self.created > self.limits.max_elements
+    }
+
     fn body_stmt(&mut self, s: &'s Stmt, frames: &mut Vec<Frame>) {
+        if self.saturated() {
+            return;
+        }
         match s {
             Stmt::For {
                 var,
@@ -717,9 +727,7 @@ impl<'s> Elaborator<'s> {
                         self.body_stmt(s, frames);
                     }
                     frames.pop();
-                    if self.diags.len() > 200
-                        || self.summary.elements.values().sum::<usize>() > self.limits.max_elements
-                    {
+                    if self.saturated() {
                         break;
                     }
                 }
@@ -1367,7 +1375,8 @@ impl<'s> Elaborator<'s> {
         if !ok {
             return;
         }
-        if self.summary.elements.values().sum::<usize>() >= self.limits.max_elements {
+        if self.created >= self.limits.max_elements {
+            self.created += 1;
             self.err(
                 ErrorKind::Limit,
                 span,
@@ -1378,6 +1387,7 @@ impl<'s> Elaborator<'s> {
         let element = (k.build)(&Values { numbers, waveform });
         match self.circuit.add_boxed(&full, element, &pins) {
             Ok(_) => {
+                self.created += 1;
                 *self.summary.elements.entry(k.name.to_string()).or_insert(0) += 1;
                 self.element_spans.insert(full, name.span);
             }
