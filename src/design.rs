@@ -5,7 +5,9 @@ use crate::builtin::Ring;
 use crate::ring::{run_ring, RingParams, RingReport};
 use lamina_engine::{Circuit, Integrator, OpParams, Probe, Solution, SweepParams, System};
 use lamina_measure::transfer::{transfer_points, TransferPoints};
-use lamina_netlist::{load_file, render, AnalysisDecl, Design, LoadOptions, SettingValue};
+use lamina_netlist::{
+    load_file, render, render_warnings, AnalysisDecl, Design, LoadOptions, SettingValue,
+};
 use std::path::Path;
 
 /// Parses `name=value` flags.
@@ -28,7 +30,7 @@ pub fn load(path: &Path, sets: &[(String, String)]) -> Result<Design, String> {
         overrides: sets.to_vec(),
         ..LoadOptions::default()
     };
-    load_file(path, &options).map_err(|f| {
+    let design = load_file(path, &options).map_err(|f| {
         let n = f.diagnostics.len();
         format!(
             "{}{} error{} in {}",
@@ -37,7 +39,11 @@ pub fn load(path: &Path, sets: &[(String, String)]) -> Result<Design, String> {
             if n == 1 { "" } else { "s" },
             path.display()
         )
-    })
+    })?;
+    if !design.warnings.is_empty() {
+        eprint!("{}", render_warnings(&design.sources, &design.warnings));
+    }
+    Ok(design)
 }
 
 /// The summary `lamina check` prints.

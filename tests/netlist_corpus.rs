@@ -185,3 +185,31 @@ fn element_and_depth_limits_are_reported() {
         "{f}"
     );
 }
+
+#[test]
+fn a_node_with_one_pin_is_a_warning_with_a_suggestion() {
+    let text = "voltage_source s (pos = vdd, neg = ground) { dc = 1 V }\n\
+                resistor r1 (a = vdd, b = mid) { resistance = 1 kOhm }\n\
+                resistor r2 (a = mdi, b = ground) { resistance = 1 kOhm }\n\
+                resistor r3 (a = mid, b = ground) { resistance = 1 kOhm }\n";
+    let d = lamina_netlist::load_source("w.lam", text, &LoadOptions::default()).unwrap();
+    assert_eq!(d.warnings.len(), 1);
+    assert!(d.warnings[0].message.contains("`mdi`"));
+    assert_eq!(d.warnings[0].help.as_deref(), Some("did you mean `mid`?"));
+    let (line, col) = d
+        .sources
+        .line_column(d.warnings[0].span.file, d.warnings[0].span.start);
+    assert_eq!((line, col), (3, 18));
+}
+
+#[test]
+fn syntax_trees_of_every_corpus_file_are_lossless() {
+    let mut files = lam_files(Path::new("netlists"));
+    files.extend(lam_files(Path::new("tests/corpus")));
+    for f in files {
+        let text = std::fs::read_to_string(&f).unwrap();
+        let mut diags = Vec::new();
+        let tree = lamina_netlist::parser::SyntaxTree::parse(0, &text, &mut diags);
+        assert_eq!(tree.to_source(&text), text, "{}", f.display());
+    }
+}

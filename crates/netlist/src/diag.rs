@@ -87,19 +87,41 @@ pub fn did_you_mean<'a>(
     name: &str,
     candidates: impl IntoIterator<Item = &'a str>,
 ) -> Option<String> {
-    let mut best: Option<(f64, &str)> = None;
+    // Edit distance with transpositions catches short names ("mdi" for "mid"); Jaro-Winkler
+    // catches longer ones with a shared start.
+    let limit = (name.chars().count() / 4).max(1);
+    let mut best: Option<(usize, f64, &str)> = None;
     for c in candidates {
-        let score = strsim::jaro_winkler(name, c);
-        if score > 0.8 && best.is_none_or(|(s, _)| score > s) {
-            best = Some((score, c));
+        if c == name {
+            continue;
+        }
+        let d = strsim::osa_distance(name, c);
+        let jw = strsim::jaro_winkler(name, c);
+        if d <= limit || jw > 0.88 {
+            let better = match best {
+                None => true,
+                Some((bd, bjw, _)) => d < bd || (d == bd && jw > bjw),
+            };
+            if better {
+                best = Some((d, jw, c));
+            }
         }
     }
-    best.map(|(_, c)| format!("did you mean `{c}`?"))
+    best.map(|(_, _, c)| format!("did you mean `{c}`?"))
 }
 
 /// Renders diagnostics as plain text: `file:line:column`, the message, the source line with a
 /// caret under the fault, notes and help.
 pub fn render(sources: &Sources, diags: &[Diagnostic]) -> String {
+    render_as(sources, diags, false)
+}
+
+/// Renders findings that do not stop the design, as warnings.
+pub fn render_warnings(sources: &Sources, diags: &[Diagnostic]) -> String {
+    render_as(sources, diags, true)
+}
+
+fn render_as(sources: &Sources, diags: &[Diagnostic], warning: bool) -> String {
     let mut files = SimpleFiles::new();
     for id in 0..sources.len() {
         files.add(sources.name(id).to_string(), sources.text(id).to_string());
@@ -113,13 +135,17 @@ pub fn render(sources: &Sources, diags: &[Diagnostic]) -> String {
                 .push(Label::secondary(span.file, span.start..span.end).with_message(note.clone()));
         }
         let (line, col) = sources.line_column(d.span.file, d.span.start);
-        let mut cs = CsDiagnostic::error()
-            .with_message(format!(
-                "{}:{line}:{col}: {}",
-                sources.name(d.span.file),
-                d.message
-            ))
-            .with_labels(labels);
+        let mut cs = if warning {
+            CsDiagnostic::warning()
+        } else {
+            CsDiagnostic::error()
+        }
+        .with_message(format!(
+            "{}:{line}:{col}: {}",
+            sources.name(d.span.file),
+            d.message
+        ))
+        .with_labels(labels);
         if let Some(h) = &d.help {
             cs = cs.with_notes(vec![format!("help: {h}")]);
         }
@@ -133,4 +159,22 @@ pub fn render(sources: &Sources, diags: &[Diagnostic]) -> String {
         }
     }
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::did_you_mean;
+
+    #[test]
+    fn suggestions_for_transpositions_and_typos() {
+        assert_eq!(
+            did_you_mean("resistr", ["resistor", "capacitor"]).as_deref(),
+            Some("did you mean `resistor`?")
+        );
+        assert_eq!(
+            did_you_mean("mdi", ["mid", "vdd"]).as_deref(),
+            Some("did you mean `mid`?")
+        );
+        assert_eq!(did_you_mean("zzz", ["mid", "vdd"]), None);
+    }
 }

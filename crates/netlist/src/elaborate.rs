@@ -13,7 +13,7 @@ use crate::ast::*;
 use crate::catalog::{self, Kind, Values};
 use crate::diag::{did_you_mean, Diagnostic, ErrorKind};
 use crate::lexer::lex;
-use crate::parser::{parse, parse_expression};
+use crate::parser::parse_expression;
 use crate::source::{FileId, Sources, Span};
 use crate::units::Dim;
 use lamina_engine::elements::{Pulse, Sine, Waveform};
@@ -117,6 +117,8 @@ pub struct Design {
     pub parameters: Vec<(String, f64, Option<Dim>)>,
     /// Counts for a summary.
     pub summary: Summary,
+    /// Findings that do not stop the design (a node with a single connection, say).
+    pub warnings: Vec<Diagnostic>,
 }
 
 /// A failed load: the files read so far and every diagnostic.
@@ -254,14 +256,41 @@ pub fn load_with(
         });
     }
     let mut summary = e.summary;
-    let _ = &mut summary;
     summary.nodes = e.circuit.node_count();
+    // A node with one pin on it is usually a misspelt name.
+    let mut warnings = Vec::new();
+    let mut lonely: Vec<(NodeId, Span)> = e
+        .node_uses
+        .iter()
+        .filter(|(_, (n, _))| *n == 1)
+        .map(|(id, (_, s))| (*id, *s))
+        .collect();
+    lonely.sort_by_key(|(_, s)| (s.file, s.start));
+    for (id, span) in lonely.into_iter().take(50) {
+        let name = e.circuit.node_name(id).to_string();
+        let others: Vec<&str> = e
+            .node_uses
+            .iter()
+            .filter(|(o, (n, _))| **o != id && *n > 1)
+            .map(|(o, _)| e.circuit.node_name(*o))
+            .collect();
+        let mut d = Diagnostic::new(
+            ErrorKind::Unconnected,
+            span,
+            format!("node `{name}` connects to only one pin"),
+        );
+        if let Some(h) = did_you_mean(&name, others.iter().copied()) {
+            d = d.with_help(h);
+        }
+        warnings.push(d);
+    }
     Ok(Design {
         circuit: e.circuit,
         sources,
         analyses: e.analyses,
         parameters: e.parameter_list,
         summary,
+        warnings,
     })
 }
 
@@ -344,8 +373,8 @@ impl Loader<'_> {
             return None;
         }
         let id: FileId = self.sources.add(path.display().to_string(), text);
-        let toks = lex(id, self.sources.text(id), &mut self.diags);
-        let stmts = parse(&toks, &mut self.diags);
+        let stmts =
+            crate::parser::SyntaxTree::parse(id, self.sources.text(id), &mut self.diags).statements;
         self.stack.push((key, from));
         let dir = path.parent().map(Path::to_path_buf).unwrap_or_default();
         let out = self.splice(stmts, &dir);
@@ -395,6 +424,10 @@ struct Elaborator<'s> {
     element_spans: HashMap<String, Span>,
     depth: usize,
     created: usize,
+    /// Nodes and the spans of the connections the last `connect` made.
+    last_pins: Vec<(NodeId, Span)>,
+    /// Element pins on each node, with the first connection's place.
+    node_uses: HashMap<NodeId, (usize, Span)>,
 }
 
 /// One level of the scope chain: a cell instance's parameters and ports, or a loop variable.
@@ -419,6 +452,8 @@ impl<'s> Elaborator<'s> {
             element_spans: HashMap::new(),
             depth: 0,
             created: 0,
+            last_pins: Vec::new(),
+            node_uses: HashMap::new(),
         }
     }
 
@@ -1387,6 +1422,11 @@ impl<'s> Elaborator<'s> {
         let element = (k.build)(&Values { numbers, waveform });
         match self.circuit.add_boxed(&full, element, &pins) {
             Ok(_) => {
+                for &(n, at) in &self.last_pins {
+                    if !n.is_ground() {
+                        self.node_uses.entry(n).or_insert((0, at)).0 += 1;
+                    }
+                }
                 self.created += 1;
                 *self.summary.elements.entry(k.name.to_string()).or_insert(0) += 1;
                 self.element_spans.insert(full, name.span);
@@ -1417,6 +1457,7 @@ impl<'s> Elaborator<'s> {
     ) -> Option<Vec<NodeId>> {
         let mut pins: Vec<Option<(NodeId, Span)>> = vec![None; terminals.len()];
         let mut ok = true;
+        self.last_pins.clear();
         for c in connections {
             let Some(i) = terminals.iter().position(|t| *t == c.pin.name) else {
                 let mut d = Diagnostic::new(
@@ -1445,7 +1486,10 @@ impl<'s> Elaborator<'s> {
                 continue;
             }
             match self.node(&c.node, frames) {
-                Some(n) => pins[i] = Some((n, c.pin.span)),
+                Some(n) => {
+                    pins[i] = Some((n, c.pin.span));
+                    self.last_pins.push((n, c.node.span));
+                }
                 None => ok = false,
             }
         }

@@ -33,7 +33,7 @@ pub mod parser;
 pub mod source;
 pub mod units;
 
-pub use diag::{render, Diagnostic, ErrorKind};
+pub use diag::{render, render_warnings, Diagnostic, ErrorKind};
 pub use elaborate::{
     load_file, load_with, AnalysisDecl, Design, DiskReader, Failure, FileReader, Limits,
     LoadOptions, Setting, SettingKind, SettingValue, Summary, ANALYSES,

@@ -750,3 +750,47 @@ impl<'a> Parser<'a> {
         Ok((scale, dim))
     }
 }
+
+/// A parsed file: every token (comments and whitespace sit in the gaps between token spans,
+/// so the token list reproduces the file byte for byte) and the statements built over them,
+/// each carrying the spans of its parts.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SyntaxTree {
+    /// All tokens in order, ending with `Eof`.
+    pub tokens: Vec<Token>,
+    /// The statements.
+    pub statements: Vec<Stmt>,
+}
+
+impl SyntaxTree {
+    /// Lexes and parses `text` (file `file`), collecting diagnostics.
+    pub fn parse(file: crate::source::FileId, text: &str, diags: &mut Vec<Diagnostic>) -> Self {
+        let tokens = crate::lexer::lex(file, text, diags);
+        let statements = parse(&tokens, diags);
+        SyntaxTree { tokens, statements }
+    }
+
+    /// The trivia (whitespace, comments, skipped characters) before token `k`.
+    pub fn trivia_before(&self, k: usize) -> Span {
+        let t = self.tokens[k].span;
+        let start = if k == 0 {
+            0
+        } else {
+            self.tokens[k - 1].span.end
+        };
+        Span::new(t.file, start, t.start)
+    }
+
+    /// Rebuilds the source from the tokens and the trivia between them; equal to the text
+    /// the tree was parsed from.
+    pub fn to_source(&self, text: &str) -> String {
+        let mut out = String::with_capacity(text.len());
+        for k in 0..self.tokens.len() {
+            let lead = self.trivia_before(k);
+            out.push_str(&text[lead.start..lead.end]);
+            let s = self.tokens[k].span;
+            out.push_str(&text[s.start..s.end]);
+        }
+        out
+    }
+}

@@ -62,3 +62,17 @@ proptest! {
         check(&String::from_utf8_lossy(&b));
     }
 }
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 500, ..ProptestConfig::default() })]
+
+    /// The syntax tree is lossless: tokens plus the trivia between them give back the input.
+    #[test]
+    fn syntax_tree_reproduces_its_source(b in proptest::collection::vec(any::<u8>(), 0..300), cut in 0usize..GOOD.len()) {
+        for text in [String::from_utf8_lossy(&b).into_owned(), GOOD[..GOOD.floor_char_boundary(cut)].to_string()] {
+            let mut d = Vec::new();
+            let tree = lamina_netlist::parser::SyntaxTree::parse(0, &text, &mut d);
+            prop_assert_eq!(tree.to_source(&text), text);
+        }
+    }
+}
