@@ -18,6 +18,7 @@
 
 #![deny(missing_docs)]
 
+pub mod physics;
 mod square_law;
 
 pub use square_law::{Polarity, SquareLawFet};
