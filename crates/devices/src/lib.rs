@@ -1,5 +1,9 @@
 //! Device models for Lamina, each behind the engine's [`lamina_engine::Element`] trait.
 //!
+//! * [`SheetFet`]: the 2D-channel FET ([`sheet_fet`]): a gate stack ([`SheetFetCard`]) with a
+//!   metal or Dirac-semimetal gate, layered insulator and a monolayer channel; exact Fermi-Dirac
+//!   electrostatics ([`physics`]), charge-sheet drift-diffusion current, Ward-Dutton charges,
+//!   velocity saturation, contact resistance and overlap capacitance.
 //! * [`SquareLawFet`]: the long-channel square-law field-effect transistor, n or p type, with
 //!   optional channel-length modulation and Ward-Dutton intrinsic charges. It is a check
 //!   element with closed-form answers, not a model of any real device.
@@ -18,7 +22,10 @@
 
 #![deny(missing_docs)]
 
+pub mod dual;
 pub mod physics;
+pub mod sheet_fet;
 mod square_law;
 
+pub use sheet_fet::{Gate, Layer, SecondValley, SheetFet, SheetFetCard, SheetModel};
 pub use square_law::{Polarity, SquareLawFet};

@@ -1,0 +1,1050 @@
+//! The 2D-channel FET: a charge-sheet, drift-diffusion model of a monolayer channel under a
+//! layered gate insulator, exact in Fermi-Dirac statistics and charge-conserving.
+//!
+//! # Electrostatics (one local variable)
+//! At a point of the channel let `V` be the carriers' quasi-Fermi potential and `u = V_G - V`.
+//! With `ξ = (E_F - E_c)/q` the channel's degeneracy, the sheet densities are exact:
+//! `n = N_c F0(ξ/V_T) (+ a second valley)`, `p = N_v F0(-(ξ + E_g/q)/V_T)` with
+//! `N = D kT`, `D = g m / (2π ħ²)`. The local charges per area are the mobile charge
+//! `q (p - n)`, the trap charge `-q D_it (ξ + E_c - E_N)` (constant trap density per energy, so
+//! the occupancy integral is exact and linear in the Fermi level), the ionised dopants
+//! `q (N_D - N_A)` and the fixed charge. Gauss's law across the insulator (series layers,
+//! `1/C_ins = Σ t_i / (ε_i ε0)`) balances them against the gate charge `Q_g`:
+//!
+//! ```text
+//! metal gate:  u = ξ + (Φ_m - χ)/q + Q_g / C_ins
+//! Dirac gate:  u = ξ + (Φ_0 - χ)/q - μ_g/q + Q_g / C_ins,  n_g(μ_g) - p_g(μ_g) = n_res - Q_g/q
+//! ```
+//!
+//! `u(ξ)` is strictly increasing (`du/dξ >= 1`), so each `u` has one `ξ`, found by bracketed
+//! Newton. The channel and gate quantum capacitances are `q d(n - p)/dξ` and
+//! `q² d(n_g - p_g)/dμ_g`.
+//!
+//! # Current and charges (constant mobility)
+//! With sheet conductance `σ(u) = q (μ_n n + μ_p p)` (one quasi-Fermi level for both carriers,
+//! so ambipolar channels work) current continuity gives the charge-sheet result (H. C. Pao and
+//! C. T. Sah, Solid-State Electron. 9, 927, 1966; J. R. Brews, Solid-State Electron. 21, 345,
+//! 1978): `I_D = (W/L) [S(u_s) - S(u_d)]` with `S = ∫ σ du`. The position along the channel is
+//! `x/L = (S(u_s) - S(u)) / ΔS`, and the Ward-Dutton partition (D. E. Ward and R. W. Dutton,
+//! IEEE JSSC 13, 703, 1978) of the channel charge `ρ = q (p - n) + ρ_it` gives
+//!
+//! ```text
+//! Q_ch = W L (A_s - A_d) / ΔS,           A = ∫ ρ σ du
+//! Q_D  = W L [S_s (A_s - A_d) - (B_s - B_d)] / ΔS²,   B = ∫ S ρ σ du
+//! Q_S  = Q_ch - Q_D,   Q_G = -Q_ch
+//! ```
+//!
+//! so `Q_G + Q_D + Q_S = 0` by construction (the constant dopant and fixed charges carry no
+//! current and are left out of the terminal charges). For `|V_DS|` below a few millivolts the
+//! same quantities are taken as means along the channel with a fixed Gauss-Legendre rule, which
+//! has no `0/0` and is smooth through `V_DS = 0`. Source and drain enter symmetrically.
+//!
+//! # Tables
+//! `S`, `A`, `B`, `σ` and `ρ` are tabulated once per gate stack on a uniform `u` grid (spacing
+//! `V_T / 10`) and interpolated with cubic Hermite polynomials that use the exact derivatives,
+//! so currents and charges are C¹ in the terminal voltages and the Jacobian (by forward-mode
+//! differentiation) is exactly the derivative of what is returned. Outside the grid (more than
+//! 8 V beyond the flat-band point) the functions continue linearly.
+//!
+//! # Velocity saturation, contacts, overlap
+//! The current is multiplied by a Caughey-Thomas factor `[1 + (E/E_c)^β]^(-1/β)` (D. M. Caughey
+//! and R. E. Thomas, Proc. IEEE 55, 2192, 1967) of the mean field `E = V_eff / L`,
+//! `E_c = v_sat / max(μ_n, μ_p)`, where `V_eff` is `|ΔS| / σ_up` (σ at the higher-`u` end,
+//! with the absolute value and the maximum rounded over one thermal voltage so the current stays
+//! smooth and odd through `V_DS = 0`): it equals `|V_DS|` at low bias and saturates with the
+//! current, so the output conductance never turns negative. Contact resistances (Ω·m, divided by the width) are real resistors to
+//! internal drain and source nodes. Overlap or fringe capacitance per width adds linear
+//! gate-drain and gate-source charges. The intrinsic charges keep the constant-mobility profile.
+//!
+//! This is a model estimate: check it against measurement and your process before basing a
+//! design decision on it.
+
+use crate::dual::D3;
+use crate::physics::{
+    dirac_net_density, dirac_prefactor, parabolic_density, parabolic_dos, EPS0, K_B, Q,
+};
+use lamina_engine::{Element, EvalContext, Internal, Stamp, UnknownKind};
+use std::sync::{Arc, Mutex, Weak};
+
+/// The gate electrode.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Gate {
+    /// A metal with a work function (eV).
+    Metal {
+        /// Work function (eV).
+        work_function: f64,
+    },
+    /// A 2D semimetal (graphene-like) with a Dirac dispersion and an optional gap.
+    Dirac {
+        /// Fermi velocity (m/s).
+        fermi_velocity: f64,
+        /// Half of the band gap (eV); 0 for gapless graphene.
+        half_gap: f64,
+        /// Shift of the gap centre from the neutral point, as a fraction of the half gap
+        /// (0: split evenly between the bands).
+        gap_shift: f64,
+        /// Spin-valley degeneracy.
+        degeneracy: f64,
+        /// Work function at the neutral point (eV).
+        neutral_work_function: f64,
+        /// Residual electron density at zero charge (1/m², negative for holes).
+        residual_density: f64,
+    },
+}
+
+/// One insulator layer.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Layer {
+    /// Relative permittivity (out of plane).
+    pub permittivity: f64,
+    /// Thickness (m).
+    pub thickness: f64,
+}
+
+/// A second conduction valley above the first.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct SecondValley {
+    /// Energy above the conduction band edge (eV).
+    pub offset: f64,
+    /// Effective mass (electron masses).
+    pub mass: f64,
+    /// Spin-valley degeneracy.
+    pub degeneracy: f64,
+}
+
+/// Every physical parameter of a 2D-channel FET, in the units each field names.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SheetFetCard {
+    /// Gate electrode.
+    pub gate: Gate,
+    /// Insulator layers between gate and channel.
+    pub insulator: Vec<Layer>,
+    /// Electron effective mass (electron masses).
+    pub electron_mass: f64,
+    /// Hole effective mass (electron masses).
+    pub hole_mass: f64,
+    /// Electron spin-valley degeneracy.
+    pub electron_degeneracy: f64,
+    /// Hole spin-valley degeneracy.
+    pub hole_degeneracy: f64,
+    /// Band gap (eV).
+    pub band_gap: f64,
+    /// Electron affinity (eV).
+    pub electron_affinity: f64,
+    /// Ionised donors (1/m²).
+    pub donor_density: f64,
+    /// Ionised acceptors (1/m²).
+    pub acceptor_density: f64,
+    /// Optional second conduction valley.
+    pub second_valley: Option<SecondValley>,
+    /// Interface trap density (1/(eV m²)).
+    pub trap_density: f64,
+    /// Trap neutrality level below the conduction band edge (eV).
+    pub trap_neutral_level: f64,
+    /// Fixed sheet charge in units of q (1/m², positive for positive charge).
+    pub fixed_charge_density: f64,
+    /// Temperature (K).
+    pub temperature: f64,
+    /// Channel width (m).
+    pub width: f64,
+    /// Channel length (m).
+    pub length: f64,
+    /// Electron mobility (m²/(V s)).
+    pub electron_mobility: f64,
+    /// Hole mobility (m²/(V s)).
+    pub hole_mobility: f64,
+    /// Saturation velocity (m/s); 0 for none.
+    pub saturation_velocity: f64,
+    /// Caughey-Thomas exponent β.
+    pub saturation_exponent: f64,
+    /// Source contact resistance times width (Ω m).
+    pub source_resistance: f64,
+    /// Drain contact resistance times width (Ω m).
+    pub drain_resistance: f64,
+    /// Overlap or fringe capacitance per width and side (F/m).
+    pub overlap_capacitance: f64,
+}
+
+impl Default for SheetFetCard {
+    /// An ideal stack: metal gate at the channel's electron affinity, 5 nm of ε = 3.4, a
+    /// channel with m_e = 0.5, m_h = 0.6, g = 4 and 2, a 1.8 eV gap, 300 K, W = L = 1 µm,
+    /// 100 cm²/(V s), nothing else. A starting point for cards, not a material.
+    fn default() -> Self {
+        SheetFetCard {
+            gate: Gate::Metal { work_function: 4.0 },
+            insulator: vec![Layer {
+                permittivity: 3.4,
+                thickness: 5e-9,
+            }],
+            electron_mass: 0.5,
+            hole_mass: 0.6,
+            electron_degeneracy: 4.0,
+            hole_degeneracy: 2.0,
+            band_gap: 1.8,
+            electron_affinity: 4.0,
+            donor_density: 0.0,
+            acceptor_density: 0.0,
+            second_valley: None,
+            trap_density: 0.0,
+            trap_neutral_level: 0.9,
+            fixed_charge_density: 0.0,
+            temperature: 300.0,
+            width: 1e-6,
+            length: 1e-6,
+            electron_mobility: 100e-4,
+            hole_mobility: 100e-4,
+            saturation_velocity: 0.0,
+            saturation_exponent: 2.0,
+            source_resistance: 0.0,
+            drain_resistance: 0.0,
+            overlap_capacitance: 0.0,
+        }
+    }
+}
+
+fn positive(name: &str, v: f64) -> Result<(), String> {
+    if v.is_finite() && v > 0.0 {
+        Ok(())
+    } else {
+        Err(format!("`{name}` must be positive, found {v}"))
+    }
+}
+
+fn non_negative(name: &str, v: f64) -> Result<(), String> {
+    if v.is_finite() && v >= 0.0 {
+        Ok(())
+    } else {
+        Err(format!("`{name}` must not be negative, found {v}"))
+    }
+}
+
+impl SheetFetCard {
+    /// Checks every parameter's range.
+    pub fn validate(&self) -> Result<(), String> {
+        if self.insulator.is_empty() {
+            return Err("the gate stack needs at least one insulator layer".into());
+        }
+        for l in &self.insulator {
+            positive("insulator permittivity", l.permittivity)?;
+            positive("insulator thickness", l.thickness)?;
+        }
+        for (n, v) in [
+            ("electron_mass", self.electron_mass),
+            ("hole_mass", self.hole_mass),
+            ("electron_degeneracy", self.electron_degeneracy),
+            ("hole_degeneracy", self.hole_degeneracy),
+            ("band_gap", self.band_gap),
+            ("temperature", self.temperature),
+            ("width", self.width),
+            ("length", self.length),
+            ("electron_mobility", self.electron_mobility),
+            ("hole_mobility", self.hole_mobility),
+            ("saturation_exponent", self.saturation_exponent),
+        ] {
+            positive(n, v)?;
+        }
+        for (n, v) in [
+            ("donor_density", self.donor_density),
+            ("acceptor_density", self.acceptor_density),
+            ("trap_density", self.trap_density),
+            ("saturation_velocity", self.saturation_velocity),
+            ("source_resistance", self.source_resistance),
+            ("drain_resistance", self.drain_resistance),
+            ("overlap_capacitance", self.overlap_capacitance),
+        ] {
+            non_negative(n, v)?;
+        }
+        for (n, v) in [
+            ("electron_affinity", self.electron_affinity),
+            ("trap_neutral_level", self.trap_neutral_level),
+            ("fixed_charge_density", self.fixed_charge_density),
+        ] {
+            if !v.is_finite() {
+                return Err(format!("`{n}` must be finite"));
+            }
+        }
+        if self.saturation_exponent < 1.0 {
+            return Err("`saturation_exponent` must be at least 1".into());
+        }
+        if let Some(v) = &self.second_valley {
+            positive("second valley mass", v.mass)?;
+            positive("second valley degeneracy", v.degeneracy)?;
+            non_negative("second valley offset", v.offset)?;
+        }
+        if let Gate::Dirac {
+            fermi_velocity,
+            half_gap,
+            gap_shift,
+            degeneracy,
+            neutral_work_function,
+            residual_density,
+        } = &self.gate
+        {
+            positive("gate fermi_velocity", *fermi_velocity)?;
+            non_negative("gate half_gap", *half_gap)?;
+            positive("gate degeneracy", *degeneracy)?;
+            if gap_shift.is_nan() || gap_shift.abs() > 1.0 {
+                return Err("`gate gap_shift` must lie between -1 and 1".into());
+            }
+            if !neutral_work_function.is_finite() || !residual_density.is_finite() {
+                return Err("gate work function and residual density must be finite".into());
+            }
+        }
+        Ok(())
+    }
+
+    /// Geometric insulator capacitance per area (F/m²): `1 / Σ t_i / (ε_i ε0)`.
+    pub fn insulator_capacitance(&self) -> f64 {
+        1.0 / self
+            .insulator
+            .iter()
+            .map(|l| l.thickness / (l.permittivity * EPS0))
+            .sum::<f64>()
+    }
+
+    /// The card with geometry and contact fields cleared: what the tables depend on.
+    fn stack_key(&self) -> SheetFetCard {
+        SheetFetCard {
+            width: 0.0,
+            length: 0.0,
+            saturation_velocity: 0.0,
+            saturation_exponent: 0.0,
+            source_resistance: 0.0,
+            drain_resistance: 0.0,
+            overlap_capacitance: 0.0,
+            ..self.clone()
+        }
+    }
+}
+
+/// The local state of the channel at one value of `u = V_G - V`.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct LocalState {
+    /// `u` (V).
+    pub u: f64,
+    /// Channel degeneracy `(E_F - E_c)/q` (V).
+    pub xi: f64,
+    /// Electron sheet density (1/m²).
+    pub n: f64,
+    /// Hole sheet density (1/m²).
+    pub p: f64,
+    /// Variable channel charge per area (mobile and trapped, C/m²).
+    pub rho: f64,
+    /// Sheet conductance (S).
+    pub sigma: f64,
+    /// Channel quantum capacitance `q d(n - p)/dξ` (F/m²).
+    pub channel_quantum_capacitance: f64,
+    /// Gate quantum capacitance (F/m²), infinite for a metal gate.
+    pub gate_quantum_capacitance: f64,
+    /// Gate charge per area (C/m²).
+    pub gate_charge: f64,
+    /// `du/dξ`.
+    pub du_dxi: f64,
+    /// `dσ/du` (S/V).
+    pub dsigma_du: f64,
+    /// `dρ/du` (F/m²).
+    pub drho_du: f64,
+}
+
+/// The stack's physics in SI units, ready for local solves.
+#[derive(Clone, Debug)]
+struct Stack {
+    kt: f64,
+    vt: f64,
+    c_ins: f64,
+    dos_e: f64,
+    dos_h: f64,
+    valley: Option<(f64, f64)>,
+    gap: f64,
+    q_const: f64,
+    trap_c: f64,
+    trap_level: f64,
+    mu_n: f64,
+    mu_p: f64,
+    offset: f64,
+    dirac: Option<(f64, f64, f64, f64)>,
+}
+
+impl Stack {
+    fn new(card: &SheetFetCard) -> Self {
+        let kt = K_B * card.temperature;
+        let dirac = match card.gate {
+            Gate::Metal { .. } => None,
+            Gate::Dirac {
+                fermi_velocity,
+                half_gap,
+                gap_shift,
+                degeneracy,
+                residual_density,
+                ..
+            } => Some((
+                dirac_prefactor(fermi_velocity, degeneracy),
+                half_gap * Q,
+                gap_shift * half_gap * Q,
+                residual_density,
+            )),
+        };
+        let offset = match card.gate {
+            Gate::Metal { work_function } => work_function - card.electron_affinity,
+            Gate::Dirac {
+                neutral_work_function,
+                ..
+            } => neutral_work_function - card.electron_affinity,
+        };
+        Stack {
+            kt,
+            vt: kt / Q,
+            c_ins: card.insulator_capacitance(),
+            dos_e: parabolic_dos(card.electron_mass, card.electron_degeneracy),
+            dos_h: parabolic_dos(card.hole_mass, card.hole_degeneracy),
+            valley: card
+                .second_valley
+                .map(|v| (parabolic_dos(v.mass, v.degeneracy), v.offset * Q)),
+            gap: card.band_gap * Q,
+            q_const: Q * (card.donor_density - card.acceptor_density + card.fixed_charge_density),
+            trap_c: Q * card.trap_density,
+            trap_level: card.trap_neutral_level,
+            mu_n: card.electron_mobility,
+            mu_p: card.hole_mobility,
+            offset,
+            dirac,
+        }
+    }
+
+    /// Everything at degeneracy `xi`; `mu_guess` warm-starts the Dirac gate's solve.
+    fn at_xi(&self, xi: f64, mu_guess: &mut f64) -> LocalState {
+        let e = Q * xi;
+        let (mut n, mut dn) = parabolic_density(self.dos_e, self.kt, e);
+        if let Some((dos, off)) = self.valley {
+            let (n2, dn2) = parabolic_density(dos, self.kt, e - off);
+            n += n2;
+            dn += dn2;
+        }
+        let (p, dp_neg) = parabolic_density(self.dos_h, self.kt, -e - self.gap);
+        // Per volt of ξ.
+        let dn_dxi = dn * Q;
+        let dp_dxi = -dp_neg * Q;
+        let rho = Q * (p - n) - self.trap_c * (xi + self.trap_level);
+        let drho = Q * (dp_dxi - dn_dxi) - self.trap_c;
+        let qg = -(rho + self.q_const);
+        let cq_ch = Q * (dn_dxi - dp_dxi);
+        let (u, du, cq_g) = match self.dirac {
+            None => (
+                xi + self.offset + qg / self.c_ins,
+                1.0 - drho / self.c_ins,
+                f64::INFINITY,
+            ),
+            Some((pre, delta, shift, n_res)) => {
+                let target = n_res - qg / Q;
+                let mu = solve_dirac(pre, self.kt, delta, shift, target, mu_guess);
+                let (_, dnet) = dirac_net_density(pre, self.kt, delta, mu - shift);
+                let cq = Q * Q * dnet;
+                // dμ_g/dξ (volts per volt) = (dρ/dξ) / (q² dn_net/dμ).
+                let dmu = drho / cq;
+                (
+                    xi + self.offset - mu / Q + qg / self.c_ins,
+                    1.0 - dmu - drho / self.c_ins,
+                    cq,
+                )
+            }
+        };
+        let sigma = Q * (self.mu_n * n + self.mu_p * p);
+        let dsigma_dxi = Q * (self.mu_n * dn_dxi + self.mu_p * dp_dxi);
+        LocalState {
+            u,
+            xi,
+            n,
+            p,
+            rho,
+            sigma,
+            channel_quantum_capacitance: cq_ch,
+            gate_quantum_capacitance: cq_g,
+            gate_charge: qg,
+            du_dxi: du,
+            dsigma_du: dsigma_dxi / du,
+            drho_du: drho / du,
+        }
+    }
+
+    /// The state at `u`, solving `u(ξ) = u` by Newton with a bracket (`u` increases with `ξ`
+    /// at a rate of at least 1). `xi_guess` and `mu_guess` warm-start the solve.
+    fn at_u(&self, u: f64, xi_guess: &mut f64, mu_guess: &mut f64) -> LocalState {
+        let (mut lo, mut hi) = (f64::NEG_INFINITY, f64::INFINITY);
+        let mut xi = *xi_guess;
+        for _ in 0..200 {
+            let s = self.at_xi(xi, mu_guess);
+            let f = s.u - u;
+            if f.abs() <= 1e-13 * (1.0 + u.abs()) {
+                *xi_guess = xi;
+                return s;
+            }
+            if f > 0.0 {
+                hi = hi.min(xi);
+            } else {
+                lo = lo.max(xi);
+            }
+            let mut next = xi - f / s.du_dxi;
+            // du/dξ >= 1 bounds the distance to the root by |f|.
+            next = next.clamp(xi - f.abs(), xi + f.abs());
+            if !(next > lo && next < hi) {
+                next = if lo.is_finite() && hi.is_finite() {
+                    0.5 * (lo + hi)
+                } else {
+                    xi - f.signum() * f.abs().min(1.0)
+                };
+            }
+            if next == xi {
+                *xi_guess = xi;
+                return s;
+            }
+            xi = next;
+        }
+        *xi_guess = xi;
+        self.at_xi(xi, mu_guess)
+    }
+}
+
+/// Solves `n(μ - shift) - p(μ - shift) = target` for the Dirac gate's chemical potential (J).
+fn solve_dirac(pre: f64, kt: f64, delta: f64, shift: f64, target: f64, guess: &mut f64) -> f64 {
+    let (mut lo, mut hi) = (-20.0 * Q, 20.0 * Q);
+    let mut mu = guess.clamp(lo, hi);
+    for _ in 0..200 {
+        let (net, d) = dirac_net_density(pre, kt, delta, mu - shift);
+        let f = net - target;
+        if f.abs() <= 1e-12 * (target.abs() + pre * kt * kt) {
+            break;
+        }
+        if f > 0.0 {
+            hi = mu;
+        } else {
+            lo = mu;
+        }
+        let mut next = if d > 0.0 { mu - f / d } else { 0.5 * (lo + hi) };
+        if !(next > lo && next < hi) {
+            next = 0.5 * (lo + hi);
+        }
+        if (next - mu).abs() <= 1e-15 * Q {
+            mu = next;
+            break;
+        }
+        mu = next;
+    }
+    *guess = mu;
+    mu
+}
+
+/// Caughey-Thomas drift velocity `μ E / [1 + (μ E / v_sat)^β]^(1/β)` (Caughey and Thomas 1967).
+pub fn caughey_thomas_velocity(
+    mobility: f64,
+    field: f64,
+    saturation_velocity: f64,
+    beta: f64,
+) -> f64 {
+    let v0 = mobility * field;
+    v0 / (1.0 + (v0 / saturation_velocity).abs().powf(beta)).powf(1.0 / beta)
+}
+
+/// Per-stack tables on a uniform `u` grid.
+#[derive(Debug)]
+struct Tables {
+    u0: f64,
+    h: f64,
+    inv_h: f64,
+    sigma: Vec<f64>,
+    dsigma: Vec<f64>,
+    rho: Vec<f64>,
+    drho: Vec<f64>,
+    s: Vec<f64>,
+    a: Vec<f64>,
+    b: Vec<f64>,
+}
+
+/// Hermite cubic on one interval: value and derivative (per unit of `t`, times `1/h` outside).
+#[inline]
+fn hermite(t: f64, h: f64, f0: f64, d0: f64, f1: f64, d1: f64) -> (f64, f64) {
+    let t2 = t * t;
+    let t3 = t2 * t;
+    let v = (2.0 * t3 - 3.0 * t2 + 1.0) * f0
+        + (t3 - 2.0 * t2 + t) * h * d0
+        + (-2.0 * t3 + 3.0 * t2) * f1
+        + (t3 - t2) * h * d1;
+    let dv = (6.0 * t2 - 6.0 * t) * (f0 - f1) / h
+        + (3.0 * t2 - 4.0 * t + 1.0) * d0
+        + (3.0 * t2 - 2.0 * t) * d1;
+    (v, dv)
+}
+
+/// Interpolated S, A, B, σ, ρ at one `u` with their `u`-derivatives.
+#[derive(Clone, Copy, Debug, Default)]
+struct Point {
+    s: f64,
+    ds: f64,
+    a: f64,
+    da: f64,
+    b: f64,
+    db: f64,
+}
+
+impl Tables {
+    fn locate(&self, u: f64) -> (usize, f64, f64) {
+        let n = self.s.len();
+        let x = (u - self.u0) * self.inv_h;
+        if x <= 0.0 {
+            (0, 0.0, x * self.h)
+        } else if x >= (n - 1) as f64 {
+            (n - 2, 1.0, (x - (n - 1) as f64) * self.h)
+        } else {
+            let k = x as usize;
+            (k, x - k as f64, 0.0)
+        }
+    }
+
+    /// `(σ, dσ/du)` at `u`.
+    #[inline]
+    fn sigma(&self, u: f64) -> (f64, f64) {
+        let (k, t, out) = self.locate(u);
+        let (v, d) = hermite(
+            t,
+            self.h,
+            self.sigma[k],
+            self.dsigma[k],
+            self.sigma[k + 1],
+            self.dsigma[k + 1],
+        );
+        if out != 0.0 {
+            return (v, 0.0);
+        }
+        (v, d)
+    }
+
+    /// `(ρ, dρ/du)` at `u`.
+    #[inline]
+    fn rho(&self, u: f64) -> (f64, f64) {
+        let (k, t, out) = self.locate(u);
+        let (v, d) = hermite(
+            t,
+            self.h,
+            self.rho[k],
+            self.drho[k],
+            self.rho[k + 1],
+            self.drho[k + 1],
+        );
+        if out != 0.0 {
+            return (v, 0.0);
+        }
+        (v, d)
+    }
+
+    #[inline]
+    fn point(&self, u: f64) -> Point {
+        let (k, t, out) = self.locate(u);
+        let h = self.h;
+        let (s0, s1) = (self.s[k], self.s[k + 1]);
+        let (g0, g1) = (self.sigma[k], self.sigma[k + 1]);
+        let (r0, r1) = (self.rho[k], self.rho[k + 1]);
+        let (a0, a1) = (self.a[k], self.a[k + 1]);
+        let (b0, b1) = (self.b[k], self.b[k + 1]);
+        let (ra0, ra1) = (r0 * g0, r1 * g1);
+        let (s, ds) = hermite(t, h, s0, g0, s1, g1);
+        let (a, da) = hermite(t, h, a0, ra0, a1, ra1);
+        let (b, db) = hermite(t, h, b0, s0 * ra0, b1, s1 * ra1);
+        if out == 0.0 {
+            Point {
+                s,
+                ds,
+                a,
+                da,
+                b,
+                db,
+            }
+        } else {
+            // Linear continuation beyond the grid.
+            Point {
+                s: s + ds * out,
+                ds,
+                a: a + da * out,
+                da,
+                b: b + db * out,
+                db,
+            }
+        }
+    }
+}
+
+/// A gate stack's tables, shared by every device of the same stack.
+#[derive(Debug)]
+pub struct SheetModel {
+    stack: Stack,
+    tables: Tables,
+}
+
+/// Grid points per thermal voltage.
+const POINTS_PER_VT: f64 = 10.0;
+/// Half-width of the tabulated `u` range around the flat-band point (V).
+const U_HALF_RANGE: f64 = 8.0;
+
+impl SheetModel {
+    /// Solves the stack on its grid and integrates the tables.
+    pub fn build(card: &SheetFetCard) -> Result<SheetModel, String> {
+        card.validate()?;
+        let stack = Stack::new(card);
+        let mut mu_guess = 0.0;
+        // Centre the grid on the state with the channel Fermi level at midgap.
+        let centre = stack.at_xi(-0.5 * card.band_gap, &mut mu_guess).u;
+        let h = stack.vt / POINTS_PER_VT;
+        let n = (2.0 * U_HALF_RANGE / h).ceil() as usize + 1;
+        let u0 = centre - U_HALF_RANGE;
+        let mut sigma = Vec::with_capacity(n);
+        let mut dsigma = Vec::with_capacity(n);
+        let mut rho = Vec::with_capacity(n);
+        let mut drho = Vec::with_capacity(n);
+        let mut xi = -0.5 * card.band_gap - U_HALF_RANGE;
+        for k in 0..n {
+            let st = stack.at_u(u0 + k as f64 * h, &mut xi, &mut mu_guess);
+            sigma.push(st.sigma);
+            dsigma.push(st.dsigma_du);
+            rho.push(st.rho);
+            drho.push(st.drho_du);
+        }
+        // Integrals from the conductance minimum, where the device is off, so that off-state
+        // differences are between small numbers.
+        let kmin = (0..n)
+            .min_by(|&i, &j| sigma[i].total_cmp(&sigma[j]))
+            .unwrap_or(0);
+        let mut s = vec![0.0; n];
+        let mut a = vec![0.0; n];
+        let mut b = vec![0.0; n];
+        // Exact integral of the Hermite cubic through (f, f') at both ends.
+        let step =
+            |f0: f64, d0: f64, f1: f64, d1: f64| 0.5 * h * (f0 + f1) + h * h / 12.0 * (d0 - d1);
+        let ra = |k: usize| rho[k] * sigma[k];
+        let dra = |k: usize| drho[k] * sigma[k] + rho[k] * dsigma[k];
+        for k in kmin..n - 1 {
+            s[k + 1] = s[k] + step(sigma[k], dsigma[k], sigma[k + 1], dsigma[k + 1]);
+            a[k + 1] = a[k] + step(ra(k), dra(k), ra(k + 1), dra(k + 1));
+            let (f0, f1) = (s[k] * ra(k), s[k + 1] * ra(k + 1));
+            let (d0, d1) = (
+                sigma[k] * ra(k) + s[k] * dra(k),
+                sigma[k + 1] * ra(k + 1) + s[k + 1] * dra(k + 1),
+            );
+            b[k + 1] = b[k] + step(f0, d0, f1, d1);
+        }
+        for k in (1..=kmin).rev() {
+            s[k - 1] = s[k] - step(sigma[k - 1], dsigma[k - 1], sigma[k], dsigma[k]);
+            a[k - 1] = a[k] - step(ra(k - 1), dra(k - 1), ra(k), dra(k));
+            let (f0, f1) = (s[k - 1] * ra(k - 1), s[k] * ra(k));
+            let (d0, d1) = (
+                sigma[k - 1] * ra(k - 1) + s[k - 1] * dra(k - 1),
+                sigma[k] * ra(k) + s[k] * dra(k),
+            );
+            b[k - 1] = b[k] - step(f0, d0, f1, d1);
+        }
+        Ok(SheetModel {
+            stack,
+            tables: Tables {
+                u0,
+                h,
+                inv_h: 1.0 / h,
+                sigma,
+                dsigma,
+                rho,
+                drho,
+                s,
+                a,
+                b,
+            },
+        })
+    }
+
+    /// The model for `card`'s stack, built once and shared while any device uses it.
+    pub fn shared(card: &SheetFetCard) -> Result<Arc<SheetModel>, String> {
+        static CACHE: Mutex<Vec<(SheetFetCard, Weak<SheetModel>)>> = Mutex::new(Vec::new());
+        let key = card.stack_key();
+        {
+            let mut cache = CACHE.lock().unwrap_or_else(|p| p.into_inner());
+            cache.retain(|(_, w)| w.strong_count() > 0);
+            if let Some(m) = cache
+                .iter()
+                .find(|(k, _)| *k == key)
+                .and_then(|(_, w)| w.upgrade())
+            {
+                return Ok(m);
+            }
+        }
+        let model = Arc::new(SheetModel::build(card)?);
+        let mut cache = CACHE.lock().unwrap_or_else(|p| p.into_inner());
+        cache.push((key, Arc::downgrade(&model)));
+        Ok(model)
+    }
+
+    /// The exact local state at `u` (a direct solve, not the tables).
+    pub fn local_state(&self, u: f64) -> LocalState {
+        let mut xi = 0.0;
+        let mut mu = 0.0;
+        self.stack.at_u(u, &mut xi, &mut mu)
+    }
+
+    /// Tabulated `S(u) = ∫ σ du` (A) and `σ(u)`, for checks against direct computation.
+    pub fn table_s_sigma(&self, u: f64) -> (f64, f64) {
+        let p = self.tables.point(u);
+        (p.s, self.tables.sigma(u).0)
+    }
+
+    /// The tabulated range of `u` (V).
+    pub fn table_range(&self) -> (f64, f64) {
+        let t = &self.tables;
+        (t.u0, t.u0 + t.h * (t.s.len() - 1) as f64)
+    }
+
+    /// Thermal voltage kT/q (V).
+    pub fn thermal_voltage(&self) -> f64 {
+        self.stack.vt
+    }
+
+    /// Insulator capacitance per area (F/m²).
+    pub fn insulator_capacitance(&self) -> f64 {
+        self.stack.c_ins
+    }
+}
+
+/// Gauss-Legendre nodes and weights on [0, 1], four points.
+const GL_T: [f64; 4] = [
+    0.069_431_844_202_973_71,
+    0.330_009_478_207_571_9,
+    0.669_990_521_792_428_1,
+    0.930_568_155_797_026_3,
+];
+const GL_W: [f64; 4] = [
+    0.173_927_422_568_726_93,
+    0.326_072_577_431_273_07,
+    0.326_072_577_431_273_07,
+    0.173_927_422_568_726_93,
+];
+
+/// Intrinsic current (drain to source through the channel) and terminal charges (gate, drain,
+/// source) as functions of (V_D, V_G, V_S).
+#[derive(Clone, Copy, Debug)]
+pub struct Intrinsic {
+    /// Drain current (A).
+    pub current: D3,
+    /// Gate charge (C).
+    pub q_gate: D3,
+    /// Drain charge (C).
+    pub q_drain: D3,
+    /// Source charge (C).
+    pub q_source: D3,
+}
+
+/// The 2D-channel FET element.
+#[derive(Clone, Debug)]
+pub struct SheetFet {
+    model: Arc<SheetModel>,
+    width: f64,
+    length: f64,
+    critical_field: f64,
+    beta: f64,
+    g_drain: f64,
+    g_source: f64,
+    overlap: f64,
+}
+
+const PINS: &[&str] = &["drain", "gate", "source"];
+const BOTH: &[Internal] = &[
+    Internal {
+        name: "drain_int",
+        kind: UnknownKind::Voltage,
+    },
+    Internal {
+        name: "source_int",
+        kind: UnknownKind::Voltage,
+    },
+];
+const DRAIN_ONLY: &[Internal] = &[Internal {
+    name: "drain_int",
+    kind: UnknownKind::Voltage,
+}];
+const SOURCE_ONLY: &[Internal] = &[Internal {
+    name: "source_int",
+    kind: UnknownKind::Voltage,
+}];
+
+/// Below this |V_DS| (V) the mean-value formulation is used.
+const SMALL_VDS: f64 = 0.01;
+
+impl SheetFet {
+    /// A device from a card; the card's stack tables are shared with other devices.
+    pub fn new(card: &SheetFetCard) -> Result<Self, String> {
+        let model = SheetModel::shared(card)?;
+        let mu = card.electron_mobility.max(card.hole_mobility);
+        let critical_field = if card.saturation_velocity > 0.0 {
+            card.saturation_velocity / mu
+        } else {
+            f64::INFINITY
+        };
+        let g = |r: f64| if r > 0.0 { card.width / r } else { 0.0 };
+        Ok(SheetFet {
+            model,
+            width: card.width,
+            length: card.length,
+            critical_field,
+            beta: card.saturation_exponent,
+            g_drain: g(card.drain_resistance),
+            g_source: g(card.source_resistance),
+            overlap: card.overlap_capacitance * card.width,
+        })
+    }
+
+    /// The shared stack model.
+    pub fn model(&self) -> &SheetModel {
+        &self.model
+    }
+
+    /// Intrinsic current and charges at internal drain, gate and source voltages.
+    pub fn intrinsic(&self, vd: f64, vg: f64, vs: f64) -> Intrinsic {
+        let t = &self.model.tables;
+        let (vd, vg, vs) = (D3::var(vd, 0), D3::var(vg, 1), D3::var(vs, 2));
+        let us = vg - vs;
+        let ud = vg - vd;
+        let hv = us.v - ud.v;
+        let wl = self.width * self.length;
+        let (ds, qch, qd);
+        if hv.abs() >= SMALL_VDS {
+            let ps = t.point(us.v);
+            let pd = t.point(ud.v);
+            let ss = us.chain(ps.s, ps.ds);
+            let sd = ud.chain(pd.s, pd.ds);
+            let as_ = us.chain(ps.a, ps.da);
+            let ad = ud.chain(pd.a, pd.da);
+            let bs = us.chain(ps.b, ps.db);
+            let bd = ud.chain(pd.b, pd.db);
+            ds = ss - sd;
+            let da = as_ - ad;
+            qch = da / ds * wl;
+            qd = (ss * da - (bs - bd)) / (ds * ds) * wl;
+        } else {
+            // Means along the channel: u(t) = u_d + t (u_s - u_d).
+            let h = us - ud;
+            let mut msig = D3::c(0.0);
+            let mut mrs = D3::c(0.0);
+            let mut mqd = D3::c(0.0);
+            for i in 0..4 {
+                let ti = GL_T[i];
+                let ui = ud + h * ti;
+                let (sg, dsg) = t.sigma(ui.v);
+                let (r, dr) = t.rho(ui.v);
+                let sig = ui.chain(sg, dsg);
+                let rr = ui.chain(r, dr);
+                // Mean of σ over [u_i, u_s]: S_s - S(u_i) = (1 - t_i) h <σ>_i.
+                let mut inner = D3::c(0.0);
+                for j in 0..4 {
+                    let uj = ui + (us - ui) * GL_T[j];
+                    let (sj, dsj) = t.sigma(uj.v);
+                    inner = inner + uj.chain(sj, dsj) * GL_W[j];
+                }
+                msig = msig + sig * GL_W[i];
+                mrs = mrs + rr * sig * GL_W[i];
+                mqd = mqd + inner * rr * sig * ((1.0 - ti) * GL_W[i]);
+            }
+            ds = h * msig;
+            qch = mrs / msig * wl;
+            qd = mqd / (msig * msig) * wl;
+        }
+        let mut current = ds * (self.width / self.length);
+        if self.critical_field.is_finite() {
+            current = current * self.saturation_factor(us, ud, ds);
+        }
+        Intrinsic {
+            current,
+            q_gate: -qch,
+            q_drain: qd,
+            q_source: qch - qd,
+        }
+    }
+
+    /// Caughey-Thomas factor of the mean field `V_eff / L` (see the module docs).
+    fn saturation_factor(&self, us: D3, ud: D3, ds: D3) -> D3 {
+        let t = &self.model.tables;
+        let vt = self.model.stack.vt;
+        let half = (us - ud) * 0.5;
+        let mid = (us + ud) * 0.5;
+        let up = mid + (half * half + D3::c(vt * vt)).sqrt();
+        let (sg, dsg) = t.sigma(up.v);
+        let sig = up.chain(sg, dsg);
+        // The |ΔS| rounding scale: one thermal voltage keeps every derivative smooth on the
+        // scale of kT/q around V_DS = 0 and changes nothing at the fields where saturation acts.
+        let vdelta = vt;
+        let floor = sig * vdelta;
+        let veff = ((ds * ds + floor * floor).sqrt() - floor) / sig;
+        if veff.v <= 0.0 {
+            return D3::c(1.0);
+        }
+        let x = veff * (1.0 / (self.critical_field * self.length));
+        (D3::c(1.0) + x.powf(self.beta)).powf(-1.0 / self.beta)
+    }
+
+    fn layout(&self) -> (Option<usize>, Option<usize>) {
+        match (self.g_drain > 0.0, self.g_source > 0.0) {
+            (true, true) => (Some(3), Some(4)),
+            (true, false) => (Some(3), None),
+            (false, true) => (None, Some(3)),
+            (false, false) => (None, None),
+        }
+    }
+}
+
+impl Element for SheetFet {
+    fn kind(&self) -> &'static str {
+        "2D-channel FET"
+    }
+
+    fn terminals(&self) -> &'static [&'static str] {
+        PINS
+    }
+
+    fn internals(&self) -> &'static [Internal] {
+        match self.layout() {
+            (Some(_), Some(_)) => BOTH,
+            (Some(_), None) => DRAIN_ONLY,
+            (None, Some(_)) => SOURCE_ONLY,
+            (None, None) => &[],
+        }
+    }
+
+    fn has_charge(&self) -> bool {
+        true
+    }
+
+    fn evaluate(&self, x: &[f64], _ctx: &EvalContext, out: &mut Stamp<'_>) {
+        let (di, si) = self.layout();
+        let d = di.unwrap_or(0);
+        let s = si.unwrap_or(2);
+        let ch = self.intrinsic(x[d], x[1], x[s]);
+        let cols = [d, 1, s];
+        out.add_f(d, ch.current.v);
+        out.add_f(s, -ch.current.v);
+        for (k, &c) in cols.iter().enumerate() {
+            out.add_df(d, c, ch.current.d[k]);
+            out.add_df(s, c, -ch.current.d[k]);
+        }
+        for (row, q) in [(1, ch.q_gate), (d, ch.q_drain), (s, ch.q_source)] {
+            out.add_q(row, q.v);
+            for (k, &c) in cols.iter().enumerate() {
+                out.add_dq(row, c, q.d[k]);
+            }
+        }
+        if self.overlap > 0.0 {
+            out.branch_charge(1, d, self.overlap * (x[1] - x[d]), self.overlap);
+            out.branch_charge(1, s, self.overlap * (x[1] - x[s]), self.overlap);
+        }
+        if let Some(di) = di {
+            out.branch_current(0, di, self.g_drain * (x[0] - x[di]), self.g_drain);
+        }
+        if let Some(si) = si {
+            out.branch_current(2, si, self.g_source * (x[2] - x[si]), self.g_source);
+        }
+    }
+
+    fn boxed_clone(&self) -> Box<dyn Element> {
+        Box::new(self.clone())
+    }
+}

@@ -1,0 +1,300 @@
+//! Checks of the 2D-channel FET against closed forms and independent computations.
+
+use lamina_devices::physics::{K_B, Q};
+use lamina_devices::sheet_fet::caughey_thomas_velocity;
+use lamina_devices::{Gate, Layer, SheetFet, SheetFetCard};
+use quadrature::double_exponential::integrate;
+
+/// Reference device A of the issue: metal gate at the channel's electron affinity, ε = 3.4,
+/// 5 nm; m_e = 0.5, g = 4; E_g = 1.8 eV, m_h = 0.6; 300 K; 100 cm²/(V s); W = L = 1 µm.
+fn device_a() -> SheetFetCard {
+    SheetFetCard {
+        gate: Gate::Metal { work_function: 4.0 },
+        electron_affinity: 4.0,
+        insulator: vec![Layer {
+            permittivity: 3.4,
+            thickness: 5e-9,
+        }],
+        electron_mass: 0.5,
+        electron_degeneracy: 4.0,
+        hole_mass: 0.6,
+        hole_degeneracy: 2.0,
+        band_gap: 1.8,
+        temperature: 300.0,
+        electron_mobility: 100e-4,
+        hole_mobility: 100e-4,
+        width: 1e-6,
+        length: 1e-6,
+        ..SheetFetCard::default()
+    }
+}
+
+fn li2(x: f64) -> f64 {
+    // Independent dilogarithm for 0 <= x <= 1 (Euler's reflection beyond 1/2; L. Lewin 1981).
+    if x > 0.5 {
+        return std::f64::consts::PI.powi(2) / 6.0 - x.ln() * (-x).ln_1p() - li2(1.0 - x);
+    }
+    (1..200).map(|k| x.powi(k) / (k * k) as f64).sum()
+}
+
+/// The exact charge-sheet current of an electron-only 2D Fermi-Dirac channel under a metal
+/// gate, in closed form: Brews' charge-sheet integral (J. R. Brews, Solid-State Electron. 21,
+/// 345, 1978) with the exact 2D sheet density n = N ln(1 + e^(φ/V_T)) (Lundstrom & Guo 2006),
+/// I = (W/L) μ [(Q_s² - Q_d²)/(2C) + V_T Q0 (G(Q_s/Q0) - G(Q_d/Q0))],
+/// G(t) = t²/2 + t ln(1 - e^-t) - Li2(e^-t), and V = V_G' - Q/C - V_T ln(e^(Q/Q0) - 1) at each end.
+fn closed_form_current(card: &SheetFetCard, vg: f64, vd: f64) -> f64 {
+    let c = card.insulator_capacitance();
+    let kt = K_B * card.temperature;
+    let vt = kt / Q;
+    let dos = card.electron_degeneracy * card.electron_mass * 9.109_383_701_5e-31
+        / (2.0 * std::f64::consts::PI * (6.626_070_15e-34 / (2.0 * std::f64::consts::PI)).powi(2));
+    let q0 = Q * dos * kt;
+    let charge_at = |v: f64| -> f64 {
+        // Solve V = vg - Q/C - V_T ln(e^(Q/Q0) - 1) for Q > 0 by bisection in ln Q.
+        let f = |lq: f64| {
+            let qq = lq.exp();
+            vg - qq / c - vt * ((qq / q0).exp_m1()).ln() - v
+        };
+        let (mut lo, mut hi) = ((1e-30f64).ln(), (10.0f64).ln());
+        for _ in 0..200 {
+            let mid = 0.5 * (lo + hi);
+            if f(mid) > 0.0 {
+                lo = mid;
+            } else {
+                hi = mid;
+            }
+        }
+        (0.5 * (lo + hi)).exp()
+    };
+    // Written so that no argument of the dilogarithm exceeds 1/2 (no cancellation at small t).
+    let g = |t: f64| {
+        if t < 2f64.ln() {
+            0.5 * t * t - std::f64::consts::PI.powi(2) / 6.0 + li2(-(-t).exp_m1())
+        } else {
+            0.5 * t * t + t * (-(-t).exp_m1()).ln() - li2((-t).exp())
+        }
+    };
+    let (qs, qd) = (charge_at(0.0), charge_at(vd));
+    card.width / card.length
+        * card.electron_mobility
+        * ((qs * qs - qd * qd) / (2.0 * c) + vt * q0 * (g(qs / q0) - g(qd / q0)))
+}
+
+#[test]
+fn drain_current_matches_the_closed_form_charge_sheet_result() {
+    let card = device_a();
+    let fet = SheetFet::new(&card).unwrap();
+    for vg in [-0.2, 0.0, 0.5, 1.0] {
+        for vd in [0.005, 0.05, 0.3, 1.0] {
+            let model = fet.intrinsic(vd, vg, 0.0).current.v;
+            let exact = closed_form_current(&card, vg, vd);
+            assert!(
+                (model / exact - 1.0).abs() < 1e-6,
+                "V_G = {vg}, V_D = {vd}: {model:e} vs {exact:e}"
+            );
+        }
+    }
+}
+
+fn swing(fet: &SheetFet, vg: f64) -> f64 {
+    let dv = 1e-3;
+    let i1 = fet.intrinsic(0.1, vg - dv, 0.0).current.v;
+    let i2 = fet.intrinsic(0.1, vg + dv, 0.0).current.v;
+    2.0 * dv / (i2 / i1).log10()
+}
+
+/// Subthreshold swing ln(10) (kT/q) m with m = 1 + C_it / C_ins for a 2D channel without
+/// depletion charge (S. M. Sze and K. K. Ng, Physics of Semiconductor Devices, 3rd ed., 2007,
+/// MOSFET chapter; Y. Taur and T. H. Ning, Fundamentals of Modern VLSI Devices, 2nd ed., 2009,
+/// ch. 3).
+#[test]
+fn subthreshold_swing_is_thermal_and_follows_trap_capacitance() {
+    let card = device_a();
+    let ideal = (10f64).ln() * K_B * 300.0 / Q;
+    let ss = swing(&SheetFet::new(&card).unwrap(), -0.35);
+    assert!((ss / ideal - 1.0).abs() < 5e-3, "SS = {} mV/dec", ss * 1e3);
+    // C_it = C_ins / 4: q D_it = C_ins / 4.
+    let c = card.insulator_capacitance();
+    let traps = SheetFetCard {
+        trap_density: 0.25 * c / Q,
+        ..device_a()
+    };
+    let ss = swing(&SheetFet::new(&traps).unwrap(), -0.35);
+    assert!(
+        (ss / (1.25 * ideal) - 1.0).abs() < 5e-3,
+        "SS = {} mV/dec",
+        ss * 1e3
+    );
+}
+
+/// Ward-Dutton partition (Ward and Dutton 1978) in the square-law limit (cold, heavy-mass
+/// channel: degenerate and with a quantum capacitance far above C_ins): the drain holds 40 % of
+/// the channel charge in saturation and 50 % at V_DS = 0; the terminal charges sum to zero.
+#[test]
+fn ward_dutton_partition_limits() {
+    let cold = SheetFetCard {
+        temperature: 20.0,
+        electron_mass: 20.0,
+        ..device_a()
+    };
+    let fet = SheetFet::new(&cold).unwrap();
+    let sat = fet.intrinsic(2.0, 1.0, 0.0);
+    let qch = -sat.q_gate.v;
+    assert!(
+        (sat.q_drain.v / qch - 0.4).abs() < 2e-3,
+        "saturation share {}",
+        sat.q_drain.v / qch
+    );
+    let lin = fet.intrinsic(1e-4, 1.0, 0.0);
+    assert!((lin.q_drain.v / -lin.q_gate.v - 0.5).abs() < 1e-3);
+    let fet = SheetFet::new(&device_a()).unwrap();
+    for (vd, vg, vs) in [
+        (0.7, 0.4, 0.1),
+        (0.0, 1.0, 0.003),
+        (-0.5, 0.2, 0.3),
+        (1.0, -0.4, 0.0),
+    ] {
+        let c = fet.intrinsic(vd, vg, vs);
+        let sum = c.q_gate + c.q_drain + c.q_source;
+        assert!(
+            sum.v.abs() <= 1e-15 * c.q_gate.v.abs() + 1e-40,
+            "charge sum {:e}",
+            sum.v
+        );
+        for k in 0..3 {
+            assert!(sum.d[k].abs() <= 1e-14 * c.q_gate.d[k].abs().max(1e-30) + 1e-35);
+        }
+    }
+}
+
+/// Gummel symmetry test (C. C. McAndrew, IEEE Trans. Electron Devices 53, 2202, 2006): with
+/// V_D = +V_x, V_S = -V_x and the gate fixed, I_D is odd in V_x and smooth through 0 up to the
+/// third derivative (the second vanishes at 0).
+#[test]
+fn gummel_symmetry() {
+    for card in [
+        device_a(),
+        SheetFetCard {
+            saturation_velocity: 3.4e4,
+            saturation_exponent: 1.0,
+            ..device_a()
+        },
+    ] {
+        let fet = SheetFet::new(&card).unwrap();
+        let i = |x: f64| fet.intrinsic(x, 0.4, -x).current.v;
+        for x in [1e-5, 1e-3, 4e-3, 6e-3, 0.05, 0.4] {
+            assert!((i(x) + i(-x)).abs() <= 1e-12 * i(x).abs(), "odd at {x}");
+        }
+        let h = 2e-4;
+        let d1 = (i(h) - i(-h)) / (2.0 * h);
+        let d2 = (i(h) - 2.0 * i(0.0) + i(-h)) / (h * h);
+        assert!(
+            d2.abs() * h < 1e-6 * d1,
+            "second derivative at 0 should vanish: {d2:e}"
+        );
+        let d3 = |h: f64| (i(2.0 * h) - 2.0 * i(h) + 2.0 * i(-h) - i(-2.0 * h)) / (2.0 * h.powi(3));
+        let (a, b) = (d3(4e-4), d3(8e-4));
+        assert!(
+            (a - b).abs() <= 0.02 * a.abs().max(b.abs()) + 1e-3 * d1,
+            "third derivative {a:e} vs {b:e}"
+        );
+        // The analytic Jacobian is the derivative of the current.
+        let c = fet.intrinsic(0.02, 0.4, -0.01);
+        let num = (fet.intrinsic(0.02 + 1e-7, 0.4, -0.01).current.v
+            - fet.intrinsic(0.02 - 1e-7, 0.4, -0.01).current.v)
+            / 2e-7;
+        assert!((c.current.d[0] / num - 1.0).abs() < 1e-5);
+    }
+}
+
+/// Caughey-Thomas: v(E_c) = v_sat / 2^(1/β) with E_c = v_sat / μ (Caughey and Thomas 1967).
+#[test]
+fn caughey_thomas_critical_field() {
+    for beta in [1.0, 2.0, 1.5] {
+        let (mu, vsat) = (30e-4, 3.4e4);
+        let v = caughey_thomas_velocity(mu, vsat / mu, vsat, beta);
+        assert!((v / (vsat / 2f64.powf(1.0 / beta)) - 1.0).abs() < 1e-14);
+    }
+}
+
+/// A sheet doping ΔN under a metal gate moves the whole transfer curve by q ΔN / C_ins
+/// (Gauss's law: the charge adds to the gate charge at every local state; common practice).
+#[test]
+fn threshold_shift_with_sheet_doping() {
+    let card = device_a();
+    let dn = 1e16; // 1e12 /cm²
+    let doped = SheetFetCard {
+        donor_density: dn,
+        ..device_a()
+    };
+    let (a, b) = (
+        SheetFet::new(&card).unwrap(),
+        SheetFet::new(&doped).unwrap(),
+    );
+    let target = 1e-9;
+    let vth = |f: &SheetFet| {
+        let (mut lo, mut hi) = (-3.0, 3.0);
+        for _ in 0..100 {
+            let m = 0.5 * (lo + hi);
+            if f.intrinsic(0.05, m, 0.0).current.v > target {
+                hi = m;
+            } else {
+                lo = m;
+            }
+        }
+        0.5 * (lo + hi)
+    };
+    let shift = vth(&a) - vth(&b);
+    let expect = Q * dn / card.insulator_capacitance();
+    assert!(
+        (shift / expect - 1.0).abs() < 1e-4,
+        "shift {shift} vs {expect}"
+    );
+}
+
+/// Tables against the direct computation: σ(u) from a fresh local solve and differences of
+/// S(u) against adaptive quadrature of the directly solved σ, within 1e-6 relative over the
+/// operating range.
+#[test]
+fn table_interpolation_error_is_bounded() {
+    for card in [
+        device_a(),
+        SheetFetCard {
+            gate: Gate::Dirac {
+                fermi_velocity: 1e6,
+                half_gap: 0.015,
+                gap_shift: 0.0,
+                degeneracy: 4.0,
+                neutral_work_function: 4.0,
+                residual_density: 0.0,
+            },
+            insulator: vec![Layer {
+                permittivity: 3.4,
+                thickness: 2e-9,
+            }],
+            ..device_a()
+        },
+    ] {
+        let fet = SheetFet::new(&card).unwrap();
+        let m = fet.model();
+        let mut worst: f64 = 0.0;
+        let mut u = -1.5;
+        while u <= 2.0 {
+            let direct = m.local_state(u).sigma;
+            let (_, table) = m.table_s_sigma(u);
+            worst = worst.max((table / direct - 1.0).abs());
+            u += 0.0137;
+        }
+        assert!(worst < 1e-6, "σ interpolation error {worst:e}");
+        for (a, b) in [(-1.0, -0.6), (-0.3, 0.2), (0.2, 1.5)] {
+            let (sa, _) = m.table_s_sigma(a);
+            let (sb, _) = m.table_s_sigma(b);
+            let q = integrate(|u| m.local_state(u).sigma, a, b, 1e-9 * (sb - sa).abs()).integral;
+            assert!(
+                ((sb - sa) / q - 1.0).abs() < 1e-6,
+                "S from {a} to {b}: {} vs {q}",
+                sb - sa
+            );
+        }
+    }
+}
