@@ -5,6 +5,7 @@
 //! * [`builtin`]: circuits built in code (a square-law inverter and rings of it).
 //! * [`ring`]: the ring-oscillator job: start-up with a single circulating edge, a transient
 //!   that stops once enough periods have been seen, and the frequency measurement.
+//! * [`iv`]: device curves of the one FET in a file.
 //! * [`design`]: jobs on circuit files: load with `--set` overrides, the check summary, and the
 //!   analyses a file declares.
 //!
@@ -15,4 +16,5 @@
 
 pub mod builtin;
 pub mod design;
+pub mod iv;
 pub mod ring;

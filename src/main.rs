@@ -78,6 +78,23 @@ enum Job {
         #[arg(long)]
         json: bool,
     },
+    /// Drain current of the one FET in a file over gate and drain voltages, source grounded.
+    Iv {
+        /// Circuit file (`.lam`) with one FET whose source is at ground.
+        file: PathBuf,
+        /// Gate voltages: a list `0,0.5,1` or a range `START:STOP:STEP` (V).
+        #[arg(long, allow_hyphen_values = true)]
+        vgs: String,
+        /// Drain voltages: a list or a range (V).
+        #[arg(long, allow_hyphen_values = true)]
+        vds: String,
+        /// Override a top-level parameter: `--set name=value` (repeatable).
+        #[arg(long = "set", value_name = "NAME=VALUE")]
+        set: Vec<String>,
+        /// Print one JSON object instead of a table.
+        #[arg(long)]
+        json: bool,
+    },
     /// Run every analysis a circuit file declares.
     Run {
         /// Circuit file (`.lam`).
@@ -143,6 +160,35 @@ fn run(cli: Cli) -> Result<(), Failure> {
                 println!("{}", design::summary_json(&d));
             } else {
                 println!("{}", design::summary_text(&file, &d));
+            }
+            Ok(())
+        }
+        Job::Iv {
+            file,
+            vgs,
+            vds,
+            set,
+            json,
+        } => {
+            let vg = lamina::iv::parse_values("--vgs", &vgs).map_err(Failure::Usage)?;
+            let vd = lamina::iv::parse_values("--vds", &vds).map_err(Failure::Usage)?;
+            let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
+            let d = design::load(&file, &sets).map_err(Failure::Invalid)?;
+            let points = lamina::iv::run_iv(d, &vg, &vd).map_err(Failure::Analysis)?;
+            if json {
+                let pts: Vec<serde_json::Value> = points
+                    .iter()
+                    .map(|p| serde_json::json!({ "vgs": p.vgs, "vds": p.vds, "id": p.id }))
+                    .collect();
+                println!("{}", serde_json::json!({ "points": pts, "metrics": {} }));
+            } else {
+                println!(
+                    "{:>10} {:>10} {:>16}   (model estimate)",
+                    "V_GS (V)", "V_DS (V)", "I_D (A)"
+                );
+                for p in &points {
+                    println!("{:>10.4} {:>10.4} {:>16.6e}", p.vgs, p.vds, p.id);
+                }
             }
             Ok(())
         }

@@ -23,6 +23,7 @@
 #![deny(missing_docs)]
 
 pub mod dual;
+pub mod materials;
 pub mod physics;
 pub mod sheet_fet;
 mod square_law;

@@ -192,6 +192,16 @@ impl Circuit {
         &self.entries[id.0].name
     }
 
+    /// The nodes an element's terminals connect to, in terminal order.
+    pub fn element_pins(&self, id: ElementId) -> &[NodeId] {
+        &self.entries[id.0].pins
+    }
+
+    /// The terminal names of an element.
+    pub fn element_terminals(&self, id: ElementId) -> &'static [&'static str] {
+        self.entries[id.0].element.terminals()
+    }
+
     /// The kind of an element, such as `"resistor"`.
     pub fn element_kind(&self, id: ElementId) -> &'static str {
         self.entries[id.0].element.kind()

@@ -394,6 +394,22 @@ impl System {
         None
     }
 
+    /// Sets the independent source `source` to the constant `value` (for the following
+    /// analyses).
+    pub fn set_source_value(&mut self, source: ElementId, value: f64) -> Result<(), EngineError> {
+        let e = source.0;
+        if e >= self.elements.len()
+            || !self.elements[e].is_independent_source()
+            || !value.is_finite()
+        {
+            return Err(EngineError::Invalid(
+                "only an independent source can be set, to a finite value".into(),
+            ));
+        }
+        self.elements[e].set_constant_value(value);
+        Ok(())
+    }
+
     /// Sweeps the constant value of the independent source `source` through `values`,
     /// recording `probes` at each point. The source is restored afterwards.
     pub fn dc_sweep(

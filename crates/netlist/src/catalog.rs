@@ -2,7 +2,9 @@
 //! dimension each must have) and how to build the engine's element from them.
 
 use crate::units::Dim;
-use lamina_devices::{Polarity, SquareLawFet};
+use lamina_devices::{
+    materials, Gate, Layer, Polarity, SecondValley, SheetFet, SheetFetCard, SquareLawFet,
+};
 use lamina_engine::elements::{
     Capacitor, CurrentSource, Inductor, Resistor, Vccs, Vcvs, VoltageSource, Waveform,
 };
@@ -21,6 +23,8 @@ pub struct ParamSpec {
     pub positive: bool,
     /// Whether it takes a waveform (`pulse(...)`, `pwl(...)`, `sine(...)`).
     pub waveform: bool,
+    /// Whether it takes a name (a material from the library) instead of a number.
+    pub text: bool,
 }
 
 const fn req(name: &'static str, dim: Dim) -> ParamSpec {
@@ -30,6 +34,7 @@ const fn req(name: &'static str, dim: Dim) -> ParamSpec {
         default: None,
         positive: true,
         waveform: false,
+        text: false,
     }
 }
 
@@ -40,6 +45,7 @@ const fn opt(name: &'static str, dim: Dim, default: f64) -> ParamSpec {
         default: Some(default),
         positive: false,
         waveform: false,
+        text: false,
     }
 }
 
@@ -50,15 +56,56 @@ const fn wave(name: &'static str, dim: Dim) -> ParamSpec {
         default: None,
         positive: false,
         waveform: true,
+        text: false,
+    }
+}
+
+/// A parameter that may be left out: the builder sees whether it was given.
+const fn maybe(name: &'static str, dim: Dim) -> ParamSpec {
+    ParamSpec {
+        name,
+        dim,
+        default: Some(f64::NAN),
+        positive: false,
+        waveform: false,
+        text: false,
+    }
+}
+
+const fn named(name: &'static str) -> ParamSpec {
+    ParamSpec {
+        name,
+        dim: Dim::NONE,
+        default: Some(f64::NAN),
+        positive: false,
+        waveform: false,
+        text: true,
     }
 }
 
 /// Parameter values handed to a builder, in the order of the kind's specs.
 pub struct Values {
-    /// Numbers in SI units (`NaN` for an absent optional waveform parameter).
+    /// Numbers in SI units (`NaN` for waveform and name parameters, and for optional numbers
+    /// that were not given).
     pub numbers: Vec<f64>,
+    /// Whether each number was given (by the device card or the instance).
+    pub given: Vec<bool>,
+    /// Name-valued parameters.
+    pub texts: Vec<Option<String>>,
     /// The waveform, if the kind has a waveform parameter and it was given.
     pub waveform: Option<Waveform>,
+}
+
+impl Values {
+    fn get(&self, specs: &[ParamSpec], name: &str) -> Option<f64> {
+        let i = specs.iter().position(|p| p.name == name)?;
+        self.given[i].then_some(self.numbers[i])
+    }
+
+    fn text(&self, specs: &[ParamSpec], name: &str) -> Option<&str> {
+        let i = specs.iter().position(|p| p.name == name)?;
+        self.texts[i].as_deref()
+    }
 }
 
 /// An element kind.
@@ -71,8 +118,8 @@ pub struct Kind {
     pub terminals: &'static [&'static str],
     /// Parameters.
     pub params: &'static [ParamSpec],
-    /// Builds the element.
-    pub build: fn(&Values) -> Box<dyn Element>,
+    /// Builds the element, or says why the values do not make one.
+    pub build: fn(&Values) -> Result<Box<dyn Element>, String>,
 }
 
 fn source_wave(v: &Values) -> Waveform {
@@ -88,35 +135,35 @@ pub static KINDS: &[Kind] = &[
         about: "linear resistor",
         terminals: &["a", "b"],
         params: &[req("resistance", Dim::RESISTANCE)],
-        build: |v| Box::new(Resistor::new(v.numbers[0])),
+        build: |v| Ok(Box::new(Resistor::new(v.numbers[0]))),
     },
     Kind {
         name: "capacitor",
         about: "linear capacitor",
         terminals: &["a", "b"],
         params: &[req("capacitance", Dim::CAPACITANCE)],
-        build: |v| Box::new(Capacitor::new(v.numbers[0])),
+        build: |v| Ok(Box::new(Capacitor::new(v.numbers[0]))),
     },
     Kind {
         name: "inductor",
         about: "linear inductor",
         terminals: &["a", "b"],
         params: &[req("inductance", Dim::INDUCTANCE)],
-        build: |v| Box::new(Inductor::new(v.numbers[0])),
+        build: |v| Ok(Box::new(Inductor::new(v.numbers[0]))),
     },
     Kind {
         name: "voltage_source",
         about: "independent voltage source",
         terminals: &["pos", "neg"],
         params: &[opt("dc", Dim::VOLTAGE, 0.0), wave("wave", Dim::VOLTAGE)],
-        build: |v| Box::new(VoltageSource::new(source_wave(v))),
+        build: |v| Ok(Box::new(VoltageSource::new(source_wave(v)))),
     },
     Kind {
         name: "current_source",
         about: "independent current source (drives current out of `pos`)",
         terminals: &["pos", "neg"],
         params: &[opt("dc", Dim::CURRENT, 0.0), wave("wave", Dim::CURRENT)],
-        build: |v| Box::new(CurrentSource::new(source_wave(v))),
+        build: |v| Ok(Box::new(CurrentSource::new(source_wave(v)))),
     },
     Kind {
         name: "vcvs",
@@ -126,7 +173,7 @@ pub static KINDS: &[Kind] = &[
             positive: false,
             ..req("gain", Dim::NONE)
         }],
-        build: |v| Box::new(Vcvs::new(v.numbers[0])),
+        build: |v| Ok(Box::new(Vcvs::new(v.numbers[0]))),
     },
     Kind {
         name: "vccs",
@@ -136,7 +183,7 @@ pub static KINDS: &[Kind] = &[
             positive: false,
             ..req("transconductance", Dim::CONDUCTANCE)
         }],
-        build: |v| Box::new(Vccs::new(v.numbers[0])),
+        build: |v| Ok(Box::new(Vccs::new(v.numbers[0]))),
     },
     Kind {
         name: "square_nfet",
@@ -151,7 +198,7 @@ pub static KINDS: &[Kind] = &[
             opt("length_modulation", Dim::PER_VOLT, 0.0),
             opt("gate_capacitance", Dim::CAPACITANCE, 0.0),
         ],
-        build: |v| Box::new(square(Polarity::N, v)),
+        build: |v| Ok(Box::new(square(Polarity::N, v))),
     },
     Kind {
         name: "square_pfet",
@@ -166,9 +213,214 @@ pub static KINDS: &[Kind] = &[
             opt("length_modulation", Dim::PER_VOLT, 0.0),
             opt("gate_capacitance", Dim::CAPACITANCE, 0.0),
         ],
-        build: |v| Box::new(square(Polarity::P, v)),
+        build: |v| Ok(Box::new(square(Polarity::P, v))),
+    },
+    Kind {
+        name: "sheet_fet",
+        about: "2D-channel FET (Fermi-Dirac charge sheet, Ward-Dutton charges)",
+        terminals: &["drain", "gate", "source"],
+        params: SHEET_PARAMS,
+        build: |v| Ok(Box::new(SheetFet::new(&sheet_card(v)?)?)),
     },
 ];
+
+const ENERGY: Dim = Dim([0, 1, 1, 1, 0]);
+const PER_AREA: Dim = Dim([-2, 0, 0, 0, 0]);
+const PER_ENERGY_AREA: Dim = Dim([-2, -1, -1, -1, 0]);
+const MOBILITY: Dim = Dim([2, -1, -1, 0, 0]);
+const VELOCITY: Dim = Dim([1, -1, 0, 0, 0]);
+const RESISTANCE_WIDTH: Dim = Dim([1, 0, 1, -1, 0]);
+const CAPACITANCE_PER_WIDTH: Dim = Dim([-1, 1, -1, 1, 0]);
+
+/// Parameters of the 2D-channel FET. Names (materials) first, then numbers; any number given
+/// overrides the library value of the named material.
+static SHEET_PARAMS: &[ParamSpec] = &[
+    named("channel"),
+    named("gate"),
+    named("insulator"),
+    named("insulator2"),
+    maybe("insulator_layers", Dim::NONE),
+    maybe("insulator_thickness", Dim::LENGTH),
+    maybe("insulator_permittivity", Dim::NONE),
+    maybe("insulator2_layers", Dim::NONE),
+    maybe("insulator2_thickness", Dim::LENGTH),
+    maybe("insulator2_permittivity", Dim::NONE),
+    maybe("gate_work_function", ENERGY),
+    maybe("gate_fermi_velocity", VELOCITY),
+    maybe("gate_half_gap", ENERGY),
+    maybe("gate_gap_shift", Dim::NONE),
+    maybe("gate_degeneracy", Dim::NONE),
+    maybe("gate_residual_density", PER_AREA),
+    maybe("electron_mass", Dim::NONE),
+    maybe("hole_mass", Dim::NONE),
+    maybe("electron_degeneracy", Dim::NONE),
+    maybe("hole_degeneracy", Dim::NONE),
+    maybe("band_gap", ENERGY),
+    maybe("electron_affinity", ENERGY),
+    maybe("donor_density", PER_AREA),
+    maybe("acceptor_density", PER_AREA),
+    maybe("valley_offset", ENERGY),
+    maybe("valley_mass", Dim::NONE),
+    maybe("valley_degeneracy", Dim::NONE),
+    maybe("trap_density", PER_ENERGY_AREA),
+    maybe("trap_neutral_level", ENERGY),
+    maybe("fixed_charge_density", PER_AREA),
+    maybe("temperature", Dim::TEMPERATURE),
+    maybe("width", Dim::LENGTH),
+    maybe("length", Dim::LENGTH),
+    maybe("electron_mobility", MOBILITY),
+    maybe("hole_mobility", MOBILITY),
+    maybe("saturation_velocity", VELOCITY),
+    maybe("saturation_exponent", Dim::NONE),
+    maybe("source_resistance", RESISTANCE_WIDTH),
+    maybe("drain_resistance", RESISTANCE_WIDTH),
+    maybe("overlap_capacitance", CAPACITANCE_PER_WIDTH),
+];
+
+/// Builds a 2D-channel FET card from library names and numbers (energies arrive in joules
+/// and are stored in eV; trap densities arrive per joule and are stored per eV).
+pub fn sheet_card(v: &Values) -> Result<SheetFetCard, String> {
+    let p = SHEET_PARAMS;
+    let q = lamina_devices::physics::Q;
+    let ev = |name: &str| v.get(p, name).map(|x| x / q);
+    let mut card = SheetFetCard::default();
+    if let Some(ch) = v.text(p, "channel") {
+        materials::apply_channel(&mut card, ch)?;
+    }
+    let set = |slot: &mut f64, x: Option<f64>| {
+        if let Some(x) = x {
+            *slot = x;
+        }
+    };
+    set(&mut card.electron_mass, v.get(p, "electron_mass"));
+    set(&mut card.hole_mass, v.get(p, "hole_mass"));
+    set(
+        &mut card.electron_degeneracy,
+        v.get(p, "electron_degeneracy"),
+    );
+    set(&mut card.hole_degeneracy, v.get(p, "hole_degeneracy"));
+    set(&mut card.band_gap, ev("band_gap"));
+    set(&mut card.electron_affinity, ev("electron_affinity"));
+    set(&mut card.donor_density, v.get(p, "donor_density"));
+    set(&mut card.acceptor_density, v.get(p, "acceptor_density"));
+    set(
+        &mut card.trap_density,
+        v.get(p, "trap_density").map(|d| d * q),
+    );
+    set(&mut card.trap_neutral_level, ev("trap_neutral_level"));
+    set(
+        &mut card.fixed_charge_density,
+        v.get(p, "fixed_charge_density"),
+    );
+    set(&mut card.temperature, v.get(p, "temperature"));
+    set(&mut card.width, v.get(p, "width"));
+    set(&mut card.length, v.get(p, "length"));
+    set(&mut card.electron_mobility, v.get(p, "electron_mobility"));
+    set(&mut card.hole_mobility, v.get(p, "hole_mobility"));
+    set(
+        &mut card.saturation_velocity,
+        v.get(p, "saturation_velocity"),
+    );
+    set(
+        &mut card.saturation_exponent,
+        v.get(p, "saturation_exponent"),
+    );
+    set(&mut card.source_resistance, v.get(p, "source_resistance"));
+    set(&mut card.drain_resistance, v.get(p, "drain_resistance"));
+    set(
+        &mut card.overlap_capacitance,
+        v.get(p, "overlap_capacitance"),
+    );
+    if let Some(offset) = ev("valley_offset") {
+        card.second_valley = Some(SecondValley {
+            offset,
+            mass: v
+                .get(p, "valley_mass")
+                .ok_or("a second valley needs `valley_mass`")?,
+            degeneracy: v
+                .get(p, "valley_degeneracy")
+                .ok_or("a second valley needs `valley_degeneracy`")?,
+        });
+    }
+    // Gate: a library electrode, a Dirac sheet described in place, or a metal (by default at
+    // the channel's electron affinity: flat bands at zero gate voltage).
+    card.gate = match v.text(p, "gate") {
+        Some(g) => materials::gate(g)?,
+        None if v.get(p, "gate_fermi_velocity").is_some() => Gate::Dirac {
+            fermi_velocity: 0.0,
+            half_gap: 0.0,
+            gap_shift: 0.0,
+            degeneracy: 4.0,
+            neutral_work_function: card.electron_affinity,
+            residual_density: 0.0,
+        },
+        None => Gate::Metal {
+            work_function: card.electron_affinity,
+        },
+    };
+    match &mut card.gate {
+        Gate::Metal { work_function } => set(work_function, ev("gate_work_function")),
+        Gate::Dirac {
+            fermi_velocity,
+            half_gap,
+            gap_shift,
+            degeneracy,
+            neutral_work_function,
+            residual_density,
+        } => {
+            set(fermi_velocity, v.get(p, "gate_fermi_velocity"));
+            set(half_gap, ev("gate_half_gap"));
+            set(gap_shift, v.get(p, "gate_gap_shift"));
+            set(degeneracy, v.get(p, "gate_degeneracy"));
+            set(neutral_work_function, ev("gate_work_function"));
+            set(residual_density, v.get(p, "gate_residual_density"));
+        }
+    }
+    // Insulator layers: a library material with a layer count or thickness, or a
+    // permittivity and thickness.
+    let mut layers = Vec::new();
+    for (mat, count, thick, eps) in [
+        (
+            "insulator",
+            "insulator_layers",
+            "insulator_thickness",
+            "insulator_permittivity",
+        ),
+        (
+            "insulator2",
+            "insulator2_layers",
+            "insulator2_thickness",
+            "insulator2_permittivity",
+        ),
+    ] {
+        let layer = match v.text(p, mat) {
+            Some(name) => {
+                let mut l = materials::insulator_layer(name, v.get(p, count), v.get(p, thick))?;
+                set(&mut l.permittivity, v.get(p, eps));
+                Some(l)
+            }
+            None => match (v.get(p, eps), v.get(p, thick)) {
+                (Some(permittivity), Some(thickness)) => Some(Layer {
+                    permittivity,
+                    thickness,
+                }),
+                (None, None) if v.get(p, count).is_none() => None,
+                _ => {
+                    return Err(format!(
+                        "give `{mat}` (a library material) or both `{eps}` and `{thick}`"
+                    ))
+                }
+            },
+        };
+        layers.extend(layer);
+    }
+    if layers.is_empty() {
+        return Err("the gate stack needs an insulator: `insulator = hBN` with `insulator_layers`, or `insulator_permittivity` and `insulator_thickness`".into());
+    }
+    card.insulator = layers;
+    card.validate()?;
+    Ok(card)
+}
 
 fn square(p: Polarity, v: &Values) -> SquareLawFet {
     SquareLawFet::new(p, v.numbers[0], v.numbers[1])

@@ -408,6 +408,7 @@ struct Q {
 struct DeviceCard {
     kind: &'static Kind,
     values: Vec<(String, Q, Span)>,
+    texts: Vec<(String, String)>,
     waveform: Option<Waveform>,
 }
 
@@ -611,13 +612,18 @@ impl<'s> Elaborator<'s> {
             return;
         };
         let mut values = Vec::new();
+        let mut texts = Vec::new();
         let mut waveform = None;
         for a in params {
             let Some(spec) = kind.params.iter().find(|p| p.name == a.name.name) else {
                 self.unknown_param(&a.name, kind);
                 continue;
             };
-            if spec.waveform {
+            if spec.text {
+                if let Some(t) = self.text_value(&a.name, &a.value) {
+                    texts.push((a.name.name.clone(), t));
+                }
+            } else if spec.waveform {
                 waveform = self.waveform(&a.value, spec.dim, &[top]);
             } else if let Some(q) = self.eval(&a.value, &[top]) {
                 values.push((a.name.name.clone(), q, a.value.span()));
@@ -629,9 +635,29 @@ impl<'s> Elaborator<'s> {
             DeviceCard {
                 kind,
                 values,
+                texts,
                 waveform,
             },
         );
+    }
+
+    /// A name-valued parameter: a bare name or a string, taken as written.
+    fn text_value(&mut self, key: &Ident, e: &Expr) -> Option<String> {
+        match e {
+            Expr::Name(id) => Some(id.name.clone()),
+            Expr::Str(t, _) => Some(t.clone()),
+            other => {
+                self.err(
+                    ErrorKind::BadValue,
+                    other.span(),
+                    format!(
+                        "`{}` takes a name, such as a material from the library",
+                        key.name
+                    ),
+                );
+                None
+            }
+        }
     }
 
     fn unknown_param(&mut self, name: &Ident, kind: &Kind) {
@@ -1319,6 +1345,18 @@ impl<'s> Elaborator<'s> {
         let card_values: Vec<(String, Q, Span)> =
             card.map(|c| c.values.clone()).unwrap_or_default();
         let mut waveform = card.and_then(|c| c.waveform.clone());
+        let mut texts: Vec<Option<String>> = k
+            .params
+            .iter()
+            .map(|p| {
+                card.and_then(|c| {
+                    c.texts
+                        .iter()
+                        .find(|(n, _)| n == p.name)
+                        .map(|(_, t)| t.clone())
+                })
+            })
+            .collect();
         // Pins.
         let pins = self.connect(k.terminals, k.name, connections, span, &refs);
         // Parameters: card values, then instance overrides.
@@ -1350,6 +1388,13 @@ impl<'s> Elaborator<'s> {
                 waveform = self.waveform(&a.value, k.params[i].dim, &refs);
                 continue;
             }
+            if k.params[i].text {
+                match self.text_value(&a.name, &a.value) {
+                    Some(t) => texts[i] = Some(t),
+                    None => failed[i] = true,
+                }
+                continue;
+            }
             match self.eval(&a.value, &refs) {
                 Some(q) => given[i] = Some((q, a.value.span())),
                 None => failed[i] = true,
@@ -1357,13 +1402,14 @@ impl<'s> Elaborator<'s> {
         }
         let mut numbers = Vec::with_capacity(k.params.len());
         let mut ok = true;
+        let set: Vec<bool> = given.iter().map(Option::is_some).collect();
         for ((spec, g), &bad) in k.params.iter().zip(&given).zip(&failed) {
             if bad {
                 ok = false;
                 numbers.push(0.0);
                 continue;
             }
-            if spec.waveform {
+            if spec.waveform || spec.text {
                 numbers.push(f64::NAN);
                 continue;
             }
@@ -1419,7 +1465,21 @@ impl<'s> Elaborator<'s> {
             );
             return;
         }
-        let element = (k.build)(&Values { numbers, waveform });
+        let element = match (k.build)(&Values {
+            numbers,
+            given: set,
+            texts,
+            waveform,
+        }) {
+            Ok(e) => e,
+            Err(msg) => {
+                self.diags.push(
+                    Diagnostic::new(ErrorKind::BadValue, span, format!("`{full}`: {msg}"))
+                        .with_help("check the device card's parameters and material names"),
+                );
+                return;
+            }
+        };
         match self.circuit.add_boxed(&full, element, &pins) {
             Ok(_) => {
                 for &(n, at) in &self.last_pins {

@@ -1,0 +1,156 @@
+//! The material library: monolayer channels, insulators and gate electrodes with cited
+//! values, read from `data/materials.json` (compiled into the binary). Every value carries its
+//! source in the file; any value can be overridden in a device card.
+
+use crate::sheet_fet::{Gate, Layer, SheetFetCard};
+use serde_json::Value;
+use std::sync::OnceLock;
+
+const DATA: &str = include_str!("../data/materials.json");
+
+fn data() -> &'static Value {
+    static PARSED: OnceLock<Value> = OnceLock::new();
+    // The file is part of the crate and checked by a test, so a parse failure is a build bug.
+    PARSED.get_or_init(|| serde_json::from_str(DATA).expect("materials.json is valid JSON"))
+}
+
+fn names(section: &str) -> Vec<String> {
+    data()[section]
+        .as_object()
+        .map(|m| m.keys().cloned().collect())
+        .unwrap_or_default()
+}
+
+fn entry(section: &str, name: &str) -> Result<&'static Value, String> {
+    let v = &data()[section][name];
+    if v.is_null() {
+        Err(format!(
+            "no {} called `{name}` in the material library (it has: {})",
+            &section[..section.len() - 1],
+            names(section).join(", ")
+        ))
+    } else {
+        Ok(v)
+    }
+}
+
+fn number(e: &Value, key: &str, name: &str) -> Result<f64, String> {
+    e[key]["value"]
+        .as_f64()
+        .ok_or_else(|| format!("material `{name}` has no `{key}`"))
+}
+
+/// Names of the channel materials.
+pub fn channels() -> Vec<String> {
+    names("channels")
+}
+
+/// Names of the insulators.
+pub fn insulators() -> Vec<String> {
+    names("insulators")
+}
+
+/// Names of the gate electrodes.
+pub fn gates() -> Vec<String> {
+    names("gates")
+}
+
+/// The cited source of one value, e.g. `source("channels", "MoS2", "electron_mass")`.
+pub fn source(section: &str, name: &str, key: &str) -> Option<&'static str> {
+    data()[section][name][key]["source"].as_str()
+}
+
+/// Sets the channel fields of `card` from the library's `name`.
+pub fn apply_channel(card: &mut SheetFetCard, name: &str) -> Result<(), String> {
+    let e = entry("channels", name)?;
+    card.electron_mass = number(e, "electron_mass", name)?;
+    card.hole_mass = number(e, "hole_mass", name)?;
+    card.electron_degeneracy = number(e, "electron_degeneracy", name)?;
+    card.hole_degeneracy = number(e, "hole_degeneracy", name)?;
+    card.band_gap = number(e, "band_gap", name)?;
+    card.electron_affinity = number(e, "electron_affinity", name)?;
+    Ok(())
+}
+
+/// `layers` layers of the library insulator `name` (a layer count needs a layer thickness in
+/// the library; otherwise give `thickness` in metres).
+pub fn insulator_layer(
+    name: &str,
+    layers: Option<f64>,
+    thickness: Option<f64>,
+) -> Result<Layer, String> {
+    let e = entry("insulators", name)?;
+    let permittivity = number(e, "permittivity", name)?;
+    let thickness = match (layers, thickness) {
+        (_, Some(t)) => t,
+        (Some(k), None) => k * number(e, "layer_thickness", name).map_err(|_| {
+            format!("insulator `{name}` has no layer thickness in the library: give its thickness instead of a layer count")
+        })?,
+        (None, None) => return Err(format!("insulator `{name}` needs a thickness or a number of layers")),
+    };
+    Ok(Layer {
+        permittivity,
+        thickness,
+    })
+}
+
+/// The library gate electrode `name`.
+pub fn gate(name: &str) -> Result<Gate, String> {
+    let e = entry("gates", name)?;
+    match e["kind"].as_str() {
+        Some("metal") => Ok(Gate::Metal {
+            work_function: number(e, "work_function", name)?,
+        }),
+        Some("dirac") => Ok(Gate::Dirac {
+            fermi_velocity: number(e, "fermi_velocity", name)?,
+            half_gap: number(e, "half_gap", name)?,
+            gap_shift: 0.0,
+            degeneracy: number(e, "degeneracy", name)?,
+            neutral_work_function: number(e, "neutral_work_function", name)?,
+            residual_density: 0.0,
+        }),
+        _ => Err(format!("gate `{name}` has no kind in the library")),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Every value in the library names its source, and every entry builds.
+    #[test]
+    fn every_value_has_a_source_and_every_entry_loads() {
+        for section in ["channels", "insulators", "gates"] {
+            for (name, e) in data()[section].as_object().unwrap() {
+                for (key, v) in e.as_object().unwrap() {
+                    if key == "kind" {
+                        continue;
+                    }
+                    assert!(
+                        v["value"].is_number(),
+                        "{section}/{name}/{key} has no number"
+                    );
+                    assert!(
+                        v["source"].as_str().is_some_and(|s| s.len() > 10),
+                        "{section}/{name}/{key} has no source"
+                    );
+                }
+            }
+        }
+        for c in channels() {
+            let mut card = SheetFetCard::default();
+            apply_channel(&mut card, &c).unwrap();
+            card.validate().unwrap();
+        }
+        for g in gates() {
+            gate(&g).unwrap();
+        }
+        assert!(
+            (insulator_layer("hBN", Some(10.0), None).unwrap().thickness - 3.33e-9).abs() < 1e-15
+        );
+        assert!(insulator_layer("HfO2", Some(3.0), None).is_err());
+        assert!(apply_channel(&mut SheetFetCard::default(), "MoS3")
+            .unwrap_err()
+            .contains("MoS2"));
+    }
+}

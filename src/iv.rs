@@ -1,0 +1,137 @@
+//! The device-curve job: drain current of the one FET in a file over a grid of gate and drain
+//! voltages, source grounded.
+
+use lamina_engine::elements::VoltageSource;
+use lamina_engine::{Circuit, ElementId, NodeId, OpParams, Probe, SweepParams, System};
+use lamina_netlist::Design;
+
+/// Parses `LIST` (`0,0.1,0.5`) or `START:STOP:STEP` (`0:1:0.05`, stop included) in volts.
+pub fn parse_values(flag: &str, text: &str) -> Result<Vec<f64>, String> {
+    let bad = |why: &str| {
+        format!("{flag} {text}: {why}; give a list such as 0,0.5,1 or a range START:STOP:STEP such as 0:1:0.1")
+    };
+    let num = |s: &str| {
+        s.trim()
+            .trim_end_matches('V')
+            .trim()
+            .parse::<f64>()
+            .ok()
+            .filter(|v| v.is_finite())
+    };
+    if text.contains(':') {
+        let parts: Vec<&str> = text.split(':').collect();
+        if parts.len() != 3 {
+            return Err(bad("a range has three parts"));
+        }
+        let (a, b, h) = match (num(parts[0]), num(parts[1]), num(parts[2])) {
+            (Some(a), Some(b), Some(h)) => (a, b, h),
+            _ => return Err(bad("not a number")),
+        };
+        if h == 0.0 || (b - a) / h < -1e-9 {
+            return Err(bad(
+                "the step must be non-zero and point from START to STOP",
+            ));
+        }
+        let n = ((b - a) / h + 1e-9).floor() as usize;
+        if n > 1_000_000 {
+            return Err(bad("more than a million points"));
+        }
+        Ok((0..=n).map(|k| a + h * k as f64).collect())
+    } else {
+        text.split(',')
+            .map(|s| num(s).ok_or_else(|| bad("not a number")))
+            .collect()
+    }
+}
+
+/// One bias point.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct IvPoint {
+    /// Gate-source voltage (V).
+    pub vgs: f64,
+    /// Drain-source voltage (V).
+    pub vds: f64,
+    /// Current into the drain (A).
+    pub id: f64,
+}
+
+fn fets(c: &Circuit) -> Vec<ElementId> {
+    c.elements()
+        .filter(|&e| {
+            let t = c.element_terminals(e);
+            t.len() == 3 && t[0] == "drain" && t[1] == "gate" && t[2] == "source"
+        })
+        .collect()
+}
+
+fn driving_source(c: &Circuit, node: NodeId) -> Option<ElementId> {
+    c.elements().find(|&e| {
+        c.element_kind(e) == "voltage source" && c.element_pins(e) == [node, Circuit::GROUND]
+    })
+}
+
+/// Runs the grid: for each gate voltage, a DC sweep of the drain voltage.
+pub fn run_iv(design: Design, vgs: &[f64], vds: &[f64]) -> Result<Vec<IvPoint>, String> {
+    let mut c = design.circuit;
+    let found = fets(&c);
+    let fet = match found.as_slice() {
+        [one] => *one,
+        [] => {
+            return Err("the file has no FET (an element with drain, gate and source pins)".into())
+        }
+        many => {
+            return Err(format!(
+                "the file has {} FETs; `lamina iv` takes a file with one",
+                many.len()
+            ))
+        }
+    };
+    let pins = c.element_pins(fet).to_vec();
+    let (drain, gate, source) = (pins[0], pins[1], pins[2]);
+    if !source.is_ground() {
+        return Err(format!(
+            "the FET `{}` must have its source at ground, not at `{}`",
+            c.element_name(fet),
+            c.node_name(source)
+        ));
+    }
+    if drain.is_ground() || gate.is_ground() {
+        return Err("the FET's drain and gate must not be at ground".into());
+    }
+    let mut source_for = |node: NodeId, name: &str| -> Result<ElementId, String> {
+        match driving_source(&c, node) {
+            Some(e) => Ok(e),
+            None => c
+                .add(name, VoltageSource::dc(0.0), &[node, Circuit::GROUND])
+                .map_err(|e| e.to_string()),
+        }
+    };
+    let vg_src = source_for(gate, "iv.gate")?;
+    let vd_src = source_for(drain, "iv.drain")?;
+    let mut sys = System::new(c).map_err(|e| e.to_string())?;
+    let mut out = Vec::with_capacity(vgs.len() * vds.len());
+    let probe = [Probe::Current(vd_src)];
+    let params = SweepParams {
+        op: OpParams::default(),
+        ..SweepParams::default()
+    };
+    let gmin = params.op.gmin;
+    for &vg in vgs {
+        sys.set_source_value(vg_src, vg)
+            .map_err(|e| e.to_string())?;
+        let res = sys
+            .dc_sweep(vd_src, vds, &probe, &params)
+            .map_err(|e| e.to_string())?;
+        for (k, &vd) in vds.iter().enumerate() {
+            // The drain source's branch current flows from its positive pin through it, so the
+            // current it pushes into the drain node is the negative of that; the node's gmin
+            // draws gmin * V_D of it, which is not drain current.
+            out.push(IvPoint {
+                vgs: vg,
+                vds: vd,
+                id: -res.signals[0][k] - gmin * vd,
+            });
+        }
+    }
+    Ok(out)
+}
