@@ -9,7 +9,9 @@
 //! (`measure::period`), and the stage delay is `1 / (2 N f)`.
 
 use crate::builtin::Ring;
-use lamina_engine::{Control, EngineError, Integrator, Probe, Start, System, TransientParams};
+use lamina_engine::{
+    Control, EngineError, Integrator, OpParams, Probe, Start, System, TransientParams,
+};
 use lamina_measure::period;
 use std::fmt;
 
@@ -94,14 +96,18 @@ impl From<EngineError> for RingError {
 }
 
 /// The single-defect start state of a ring with supply `vdd`.
+///
+/// The stage outputs are held at those values in a DC solve (so the supply and any internal
+/// nodes start consistent, with every device charge in place) and released at t = 0.
 pub fn single_edge_start(ring: &Ring) -> Start {
     let vdd = ring.vdd;
-    Start::Given(
+    Start::Clamped(
         ring.outputs
             .iter()
             .enumerate()
             .map(|(i, &node)| (node, if i % 2 == 0 { vdd } else { 0.0 }))
             .collect(),
+        OpParams::default(),
     )
 }
 

@@ -49,10 +49,11 @@
 //! # Velocity saturation, contacts, overlap
 //! The current is multiplied by a Caughey-Thomas factor `[1 + (E/E_c)^β]^(-1/β)` (D. M. Caughey
 //! and R. E. Thomas, Proc. IEEE 55, 2192, 1967) of the mean field `E = V_eff / L`,
-//! `E_c = v_sat / max(μ_n, μ_p)`, where `V_eff` is `|ΔS| / σ_up` (σ at the higher-`u` end,
-//! with the absolute value and the maximum rounded over one thermal voltage so the current stays
-//! smooth and odd through `V_DS = 0`): it equals `|V_DS|` at low bias and saturates with the
-//! current, so the output conductance never turns negative. Contact resistances (Ω·m, divided by the width) are real resistors to
+//! `E_c = v_sat / max(μ_n, μ_p)`, where `V_eff` is `|ΔS| / σ_up` with `σ_up` the conductance
+//! at the better-conducting end (a smooth 4-norm maximum of the two ends, and `|ΔS|` rounded
+//! over one thermal voltage, so the current stays smooth and odd through `V_DS = 0`): it equals
+//! `|V_DS|` at low bias and saturates with the current, so the output conductance stays
+//! positive, for n and p channels alike. Contact resistances (Ω·m, divided by the width) are real resistors to
 //! internal drain and source nodes. Overlap or fringe capacitance per width adds linear
 //! gate-drain and gate-source charges. The intrinsic charges keep the constant-mobility profile.
 //!
@@ -965,15 +966,19 @@ impl SheetFet {
     fn saturation_factor(&self, us: D3, ud: D3, ds: D3) -> D3 {
         let t = &self.model.tables;
         let vt = self.model.stack.vt;
-        let half = (us - ud) * 0.5;
-        let mid = (us + ud) * 0.5;
-        let up = mid + (half * half + D3::c(vt * vt)).sqrt();
-        let (sg, dsg) = t.sigma(up.v);
-        let sig = up.chain(sg, dsg);
+        let (gs, dgs) = t.sigma(us.v);
+        let (gd, dgd) = t.sigma(ud.v);
+        let (ss, sd) = (us.chain(gs, dgs), ud.chain(gd, dgd));
+        // σ at the better-conducting end (the source side in normal operation, for either
+        // carrier), as the smooth 4-norm max(σ_s, σ_d): symmetric in source and drain, smooth
+        // through V_DS = 0, and almost independent of the far end once it is off.
+        let (big, small) = if ss.v >= sd.v { (ss, sd) } else { (sd, ss) };
+        let r = small / big;
+        let r2 = r * r;
+        let sig = big * (D3::c(1.0) + r2 * r2).powf(0.25);
         // The |ΔS| rounding scale: one thermal voltage keeps every derivative smooth on the
         // scale of kT/q around V_DS = 0 and changes nothing at the fields where saturation acts.
-        let vdelta = vt;
-        let floor = sig * vdelta;
+        let floor = sig * vt;
         let veff = ((ds * ds + floor * floor).sqrt() - floor) / sig;
         if veff.v <= 0.0 {
             return D3::c(1.0);

@@ -298,3 +298,46 @@ fn table_interpolation_error_is_bounded() {
         }
     }
 }
+
+/// With velocity saturation the output conductance stays positive across the output
+/// characteristic, for an electron channel and for a hole channel (source at the top rail),
+/// and the current still grows with the gate drive.
+#[test]
+fn output_conductance_stays_positive_with_velocity_saturation() {
+    let n = SheetFetCard {
+        saturation_velocity: 3.4e4,
+        length: 100e-9,
+        ..device_a()
+    };
+    let p = SheetFetCard {
+        gate: Gate::Metal {
+            work_function: 4.0 + 1.5,
+        },
+        hole_mobility: 40e-4,
+        ..n.clone()
+    };
+    for (card, sign) in [(n, 1.0), (p, -1.0)] {
+        let fet = SheetFet::new(&card).unwrap();
+        let mut last = 0.0;
+        for k in 1..=100 {
+            let vds = 0.01 * k as f64;
+            // p channel: source at +1 V, gate at 0, drain falling from the source.
+            let c = if sign > 0.0 {
+                fet.intrinsic(vds, 0.8, 0.0)
+            } else {
+                fet.intrinsic(1.0 - vds, 0.0, 1.0)
+            };
+            let i = sign * c.current.v;
+            assert!(
+                i > last,
+                "{} channel: current must grow with |V_DS| at {vds} V",
+                if sign > 0.0 { "n" } else { "p" }
+            );
+            // d|I|/d|V_DS| is dI/dV_D for both: the p drain falls as |V_DS| grows.
+            let gds = c.current.d[0];
+            assert!(gds > 0.0 || vds > 0.99, "g_ds {gds:e} at {vds} V");
+            last = i;
+        }
+        assert!(last > 1e-6, "the device conducts: {last:e} A");
+    }
+}

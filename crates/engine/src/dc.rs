@@ -19,6 +19,9 @@ use crate::element::EvalContext;
 use crate::error::EngineError;
 use crate::system::{Load, NewtonFailure, NewtonParams, System};
 
+/// Most stages of one homotopy (gmin or source stepping) before it gives up.
+const MAX_HOMOTOPY_STAGES: usize = 400;
+
 /// Parameters of an operating-point solve.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct OpParams {
@@ -251,7 +254,8 @@ impl System {
         let mut good = x.to_vec();
         let mut iters = 0;
         let mut first = true;
-        loop {
+        // Bounded: a homotopy that keeps alternating between success and failure gives up.
+        for _ in 0..MAX_HOMOTOPY_STAGES {
             let load = Load {
                 clamps,
                 ..Load::dc(ctx, g.max(params.gmin))
@@ -287,6 +291,7 @@ impl System {
                 }
             }
         }
+        None
     }
 
     fn source_stepping(
@@ -302,7 +307,8 @@ impl System {
         // λ = 0 first: all sources off.
         let scaled: Vec<(usize, f64)> = clamps.to_vec();
         let mut target = 0.0;
-        loop {
+        // Bounded: a homotopy that keeps alternating between success and failure gives up.
+        for _ in 0..MAX_HOMOTOPY_STAGES {
             let ctx = EvalContext {
                 source_scale: target,
                 ..EvalContext::dc()
@@ -334,6 +340,7 @@ impl System {
             }
             target = (lambda + step).min(1.0);
         }
+        None
     }
 
     fn pseudo_transient(

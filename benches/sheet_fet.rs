@@ -1,0 +1,84 @@
+//! The 2D-channel FET: one evaluation (current, charges and all their derivatives) over a
+//! spread of bias points, and building a card's tables.
+
+use lamina_devices::{Layer, SheetFet, SheetFetCard};
+use lamina_engine::{Element, EvalContext, Stamp};
+
+fn main() {
+    divan::main();
+}
+
+fn card() -> SheetFetCard {
+    SheetFetCard {
+        insulator: vec![Layer {
+            permittivity: 3.4,
+            thickness: 5e-9,
+        }],
+        saturation_velocity: 3.4e4,
+        ..SheetFetCard::default()
+    }
+}
+
+/// Median over bias points spread across off, subthreshold, linear and saturation, both
+/// polarities of V_DS, including the small-V_DS branch.
+#[divan::bench(sample_count = 200)]
+fn evaluate(bencher: divan::Bencher) {
+    let fet = SheetFet::new(&card()).unwrap();
+    let points: Vec<[f64; 3]> = (0..64)
+        .map(|k| {
+            let vg = -0.5 + 1.5 * ((k * 37) % 64) as f64 / 63.0;
+            let vd = -0.2 + 1.2 * ((k * 11) % 64) as f64 / 63.0;
+            [vd, vg, 0.0]
+        })
+        .collect();
+    let (mut f, mut q, mut df, mut dq) = ([0.0; 3], [0.0; 3], [0.0; 9], [0.0; 9]);
+    let ctx = EvalContext::dc();
+    let mut k = 0;
+    bencher.bench_local(|| {
+        let x = &points[k % points.len()];
+        k += 1;
+        fet.evaluate(
+            divan::black_box(x),
+            &ctx,
+            &mut Stamp::new(&mut f, &mut q, &mut df, &mut dq),
+        );
+        divan::black_box(f[0])
+    });
+}
+
+/// Building the tables of a new stack (the shared cache is bypassed by changing the
+/// temperature every time).
+#[divan::bench(sample_count = 20)]
+fn build_tables(bencher: divan::Bencher) {
+    let mut t = 300.0;
+    bencher.bench_local(|| {
+        t += 1e-6;
+        let c = SheetFetCard {
+            temperature: t,
+            ..card()
+        };
+        divan::black_box(lamina_devices::SheetModel::build(&c).unwrap())
+    });
+}
+
+/// The same for a graphene-like Dirac gate (an inner solve for the gate's Fermi level).
+#[divan::bench(sample_count = 20)]
+fn build_tables_dirac_gate(bencher: divan::Bencher) {
+    let mut t = 300.0;
+    bencher.bench_local(|| {
+        t += 1e-6;
+        let c = SheetFetCard {
+            temperature: t,
+            gate: lamina_devices::Gate::Dirac {
+                fermi_velocity: 1e6,
+                half_gap: 0.015,
+                gap_shift: 0.0,
+                degeneracy: 4.0,
+                neutral_work_function: 4.0,
+                residual_density: 0.0,
+            },
+            ..card()
+        };
+        divan::black_box(lamina_devices::SheetModel::build(&c).unwrap())
+    });
+}
