@@ -642,7 +642,11 @@ impl<'a> Parser<'a> {
                 Tok::Ident(s) => unit_atom(s).is_some(),
                 Tok::Punct("/") => {
                     let next = &p.toks[(p.pos + 1).min(p.toks.len() - 1)];
-                    !next.spaced && matches!(&next.tok, Tok::Ident(s) if unit_atom(s).is_some())
+                    let after = &p.toks[(p.pos + 2).min(p.toks.len() - 1)];
+                    !next.spaced
+                        && (matches!(&next.tok, Tok::Ident(s) if unit_atom(s).is_some())
+                            || (matches!(next.tok, Tok::Punct("("))
+                                && matches!(&after.tok, Tok::Ident(s) if unit_atom(s).is_some())))
                 }
                 _ => false,
             }
