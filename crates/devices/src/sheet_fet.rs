@@ -975,7 +975,7 @@ impl SheetFet {
         let (big, small) = if ss.v >= sd.v { (ss, sd) } else { (sd, ss) };
         let r = small / big;
         let r2 = r * r;
-        let sig = big * (D3::c(1.0) + r2 * r2).powf(0.25);
+        let sig = big * (D3::c(1.0) + r2 * r2).sqrt().sqrt();
         // The |ΔS| rounding scale: one thermal voltage keeps every derivative smooth on the
         // scale of kT/q around V_DS = 0 and changes nothing at the fields where saturation acts.
         let floor = sig * vt;
@@ -984,7 +984,14 @@ impl SheetFet {
             return D3::c(1.0);
         }
         let x = veff * (1.0 / (self.critical_field * self.length));
-        (D3::c(1.0) + x.powf(self.beta)).powf(-1.0 / self.beta)
+        // The common exponents without `powf`.
+        if self.beta == 2.0 {
+            D3::c(1.0) / (D3::c(1.0) + x * x).sqrt()
+        } else if self.beta == 1.0 {
+            D3::c(1.0) / (D3::c(1.0) + x)
+        } else {
+            (D3::c(1.0) + x.powf(self.beta)).powf(-1.0 / self.beta)
+        }
     }
 
     fn layout(&self) -> (Option<usize>, Option<usize>) {
