@@ -4,7 +4,8 @@
 use crate::builtin::Ring;
 use crate::ring::{run_ring, RingParams, RingReport};
 use lamina_engine::{Circuit, Integrator, OpParams, Probe, Solution, SweepParams, System};
-use lamina_measure::transfer::{transfer_points, TransferPoints};
+use lamina_measure::snm::{butterfly, NoiseMargin};
+use lamina_measure::transfer::{transfer_metrics, TransferMetrics};
 use lamina_netlist::{
     load_file, render, render_warnings, AnalysisDecl, Design, LoadOptions, SettingValue,
 };
@@ -208,18 +209,21 @@ pub enum Outcome {
         vin: Vec<f64>,
         /// Output values.
         vout: Vec<f64>,
-        /// Switching threshold and unity-gain points, if the curve has them.
-        points: Option<TransferPoints>,
+        /// Static figures, if the curve has a switching threshold and unity-gain points.
+        metrics: Option<TransferMetrics>,
+        /// Maximum-square noise margin of the curve against itself, if it has two lobes.
+        snm: Option<NoiseMargin>,
     },
     /// A ring measurement.
     Ring(RingReport),
 }
 
-/// Runs every analysis `design` declares, in order.
+/// Runs every analysis `design` declares, in order (or only those of kind `only`).
 pub fn run_all(
     path: &Path,
     sets: &[(String, String)],
     base: &RingParams,
+    only: Option<&str>,
 ) -> Result<Vec<(String, Outcome)>, String> {
     let design = load(path, sets)?;
     if design.analyses.is_empty() {
@@ -228,7 +232,19 @@ pub fn run_all(
             path.display()
         ));
     }
-    let kinds: Vec<AnalysisDecl> = design.analyses.clone();
+    let kinds: Vec<AnalysisDecl> = design
+        .analyses
+        .iter()
+        .filter(|a| only.is_none_or(|k| a.kind == k))
+        .cloned()
+        .collect();
+    if kinds.is_empty() {
+        return Err(format!(
+            "{} declares no `analysis {}`",
+            path.display(),
+            only.unwrap_or("")
+        ));
+    }
     let mut out = Vec::new();
     for a in &kinds {
         // Each analysis gets a fresh elaboration, so sweeps and runs cannot affect each other.
@@ -287,8 +303,14 @@ pub fn run_all(
                     )
                     .map_err(|e| e.to_string())?;
                 let vout = res.signals[0].clone();
-                let points = transfer_points(&vin, &vout);
-                Outcome::Transfer { vin, vout, points }
+                let metrics = transfer_metrics(&vin, &vout);
+                let snm = butterfly(&vin, &vout, &vin, &vout);
+                Outcome::Transfer {
+                    metrics,
+                    snm,
+                    vin,
+                    vout,
+                }
             }
             "ring" => {
                 let (mut sys, ring, params) = ring_from(design, base)?;

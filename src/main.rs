@@ -7,6 +7,7 @@ use lamina::builtin::{square_ring, Ring, SquareStage};
 use lamina::design::{self, Outcome};
 use lamina::ring::{run_ring, RingParams, RingReport};
 use lamina_engine::{Integrator, System};
+use lamina_measure::transfer::DEFINITIONS;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
@@ -88,6 +89,17 @@ enum Job {
         /// Drain voltages: a list or a range (V).
         #[arg(long, allow_hyphen_values = true)]
         vds: String,
+        /// Override a top-level parameter: `--set name=value` (repeatable).
+        #[arg(long = "set", value_name = "NAME=VALUE")]
+        set: Vec<String>,
+        /// Print one JSON object instead of a table.
+        #[arg(long)]
+        json: bool,
+    },
+    /// Transfer curve, switching threshold and noise margins from a file's `analysis transfer`.
+    Vtc {
+        /// Circuit file (`.lam`) declaring `analysis transfer { ... }`.
+        file: PathBuf,
         /// Override a top-level parameter: `--set name=value` (repeatable).
         #[arg(long = "set", value_name = "NAME=VALUE")]
         set: Vec<String>,
@@ -192,10 +204,26 @@ fn run(cli: Cli) -> Result<(), Failure> {
             }
             Ok(())
         }
+        Job::Vtc { file, set, json } => {
+            let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
+            let results = design::run_all(&file, &sets, &RingParams::default(), Some("transfer"))
+                .map_err(Failure::Invalid)?;
+            let (kind, outcome) = &results[0];
+            if json {
+                let mut v = outcome_json(kind, outcome);
+                if let Some(m) = v.as_object_mut() {
+                    m.remove("analysis");
+                }
+                println!("{v}");
+            } else {
+                print_outcome(outcome);
+            }
+            Ok(())
+        }
         Job::Run { file, set, json } => {
             let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
-            let results =
-                design::run_all(&file, &sets, &RingParams::default()).map_err(Failure::Invalid)?;
+            let results = design::run_all(&file, &sets, &RingParams::default(), None)
+                .map_err(Failure::Invalid)?;
             if json {
                 let items: Vec<serde_json::Value> =
                     results.iter().map(|(k, o)| outcome_json(k, o)).collect();
@@ -322,15 +350,32 @@ fn outcome_json(kind: &str, o: &Outcome) -> serde_json::Value {
                 .collect();
             serde_json::json!({ "analysis": kind, "node_voltages_v": map })
         }
-        Outcome::Transfer { vin, vout, points } => serde_json::json!({
-            "analysis": kind,
-            "vin": vin,
-            "vout": vout,
-            "vm": points.map(|p| p.vm),
-            "vil": points.map(|p| p.vil),
-            "vih": points.map(|p| p.vih),
-            "gain_max": points.map(|p| -p.gain_min),
-        }),
+        Outcome::Transfer {
+            vin,
+            vout,
+            metrics,
+            snm,
+        } => {
+            let defs: serde_json::Map<String, serde_json::Value> = DEFINITIONS
+                .iter()
+                .map(|(k, d)| (k.to_string(), serde_json::json!(d)))
+                .collect();
+            serde_json::json!({
+                "analysis": kind,
+                "vm": metrics.map(|m| m.vm),
+                "voh": metrics.map(|m| m.voh),
+                "vol": metrics.map(|m| m.vol),
+                "vil": metrics.map(|m| m.vil),
+                "vih": metrics.map(|m| m.vih),
+                "nmh": metrics.map(|m| m.nmh),
+                "nml": metrics.map(|m| m.nml),
+                "snm": snm.map(|m| m.snm),
+                "gain_max": metrics.map(|m| m.gain_max),
+                "definitions": defs,
+                "vin": vin,
+                "vout": vout,
+            })
+        }
         Outcome::Ring(r) => {
             let mut v = ring_json(r);
             v["analysis"] = serde_json::json!(kind);
@@ -347,23 +392,24 @@ fn print_outcome(o: &Outcome) {
                 println!("  {n:<24} {x:>14.6} V");
             }
         }
-        Outcome::Transfer { vin, points, .. } => {
+        Outcome::Transfer {
+            vin, metrics, snm, ..
+        } => {
             println!("transfer curve, {} points (model estimate)", vin.len());
-            match points {
-                Some(p) => {
-                    println!(
-                        "  switching threshold V_M   {:>10.4} V   (v_out = v_in)",
-                        p.vm
-                    );
-                    println!(
-                        "  V_IL                      {:>10.4} V   (first slope of -1)",
-                        p.vil
-                    );
-                    println!(
-                        "  V_IH                      {:>10.4} V   (last slope of -1)",
-                        p.vih
-                    );
-                    println!("  peak gain                 {:>10.2}", -p.gain_min);
+            match metrics {
+                Some(m) => {
+                    println!("  V_M      {:>9.4} V   input where v_out = v_in", m.vm);
+                    println!("  V_OH     {:>9.4} V   output at the lowest input", m.voh);
+                    println!("  V_OL     {:>9.4} V   output at the highest input", m.vol);
+                    println!("  V_IL     {:>9.4} V   lowest input with slope -1", m.vil);
+                    println!("  V_IH     {:>9.4} V   highest input with slope -1", m.vih);
+                    println!("  NM_H     {:>9.4} V   V_OH - V_IH (unity gain)", m.nmh);
+                    println!("  NM_L     {:>9.4} V   V_IL - V_OL (unity gain)", m.nml);
+                    match snm {
+                        Some(s) => println!("  SNM      {:>9.4} V   largest square in the butterfly (Seevinck 1987)", s.snm),
+                        None => println!("  SNM          -       the curve and its mirror enclose no lobes"),
+                    }
+                    println!("  gain     {:>9.2}     peak |dv_out/dv_in|", m.gain_max);
                 }
                 None => println!(
                     "  the curve never crosses v_out = v_in or never reaches a slope of -1"

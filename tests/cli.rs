@@ -132,3 +132,34 @@ fn run_reproduces_the_declared_analyses() {
     );
     assert!((fa / fb - 1.0).abs() < 1e-9, "{fa} vs {fb}");
 }
+
+#[test]
+fn vtc_reports_the_named_keys_of_the_reference_inverter() {
+    let out = lamina(&["vtc", "netlists/reference/square-inverter.lam", "--json"]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    // Closed forms for the symmetric square-law inverter (Kang & Leblebici 2003, ch. 5) and
+    // its maximum-square margin (Seevinck, List, Lohstroh 1987): see tests/inverter_margins.rs.
+    for (key, want, tol) in [
+        ("vm", 0.5, 1e-3),
+        ("voh", 1.0, 1e-6),
+        ("vol", 0.0, 1e-6),
+        ("vil", 0.45, 1e-3),
+        ("vih", 0.55, 1e-3),
+        ("nmh", 0.45, 1e-3),
+        ("nml", 0.45, 1e-3),
+        ("snm", 0.40, 2e-3),
+    ] {
+        let got = v[key].as_f64().unwrap_or_else(|| panic!("missing {key}"));
+        assert!((got - want).abs() < tol, "{key} = {got}");
+    }
+    assert!(v["gain_max"].as_f64().unwrap() > 50.0);
+    assert!(v["definitions"]["snm"]
+        .as_str()
+        .unwrap()
+        .contains("Seevinck"));
+}

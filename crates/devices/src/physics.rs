@@ -127,8 +127,8 @@ mod tests {
     /// rule from the `quadrature` crate), across the series switch at η = 0.
     #[test]
     fn f1_matches_quadrature() {
-        for eta in [-30.0, -5.0, -1.0, -1e-3, 0.0, 1e-3, 0.7, 3.0, 12.0, 40.0] {
-            let upper = (eta as f64).max(0.0) + 60.0;
+        for eta in [-30.0f64, -5.0, -1.0, -1e-3, 0.0, 1e-3, 0.7, 3.0, 12.0, 40.0] {
+            let upper = eta.max(0.0) + 60.0;
             // Split at the Fermi edge so the rule never integrates across the step.
             let g = |x: f64| x / (1.0 + (x - eta).exp());
             let edge = eta.max(0.0);

@@ -3,7 +3,9 @@
 //! * [`crossings`]: interpolated times where a signal crosses a level in one direction.
 //! * [`period`]: period and frequency from rising crossings after start-up is discarded,
 //!   with the spread of the periods used.
-//! * [`transfer`]: switching threshold and unity-gain points of a transfer curve.
+//! * [`transfer`]: switching threshold, output levels, unity-gain points, noise margins and peak
+//!   gain of a transfer curve.
+//! * [`snm`]: maximum-square static noise margin of two curves (Seevinck's rotation).
 //!
 //! ```
 //! use lamina_measure::{crossings, Direction};
@@ -16,6 +18,7 @@
 #![deny(missing_docs)]
 
 mod period;
+pub mod snm;
 pub mod transfer;
 
 pub use period::{crossings, period, Direction, PeriodError, PeriodEstimate};

@@ -90,3 +90,55 @@ mod tests {
         assert!((p.gain_min + 3.0).abs() < 1e-3);
     }
 }
+
+/// Every static figure of an inverting transfer curve, each with a named definition.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct TransferMetrics {
+    /// Switching threshold V_M: the input where `v_out = v_in`.
+    pub vm: f64,
+    /// Output high level V_OH: the output at the lowest input of the sweep.
+    pub voh: f64,
+    /// Output low level V_OL: the output at the highest input of the sweep.
+    pub vol: f64,
+    /// V_IL: the lowest input where the slope is -1.
+    pub vil: f64,
+    /// V_IH: the highest input where the slope is -1.
+    pub vih: f64,
+    /// High noise margin by the unity-gain definition, `NM_H = V_OH - V_IH`.
+    pub nmh: f64,
+    /// Low noise margin by the unity-gain definition, `NM_L = V_IL - V_OL`.
+    pub nml: f64,
+    /// Peak gain `max |dv_out/dv_in|`.
+    pub gain_max: f64,
+}
+
+/// The definitions behind [`TransferMetrics`], for reports.
+pub const DEFINITIONS: &[(&str, &str)] = &[
+    ("vm", "input where v_out = v_in"),
+    ("voh", "output at the lowest input of the sweep"),
+    ("vol", "output at the highest input of the sweep"),
+    ("vil", "lowest input where dv_out/dv_in = -1"),
+    ("vih", "highest input where dv_out/dv_in = -1"),
+    ("nmh", "unity-gain noise margin V_OH - V_IH"),
+    ("nml", "unity-gain noise margin V_IL - V_OL"),
+    ("snm", "side of the largest square in the smaller lobe of the butterfly (Seevinck, List, Lohstroh 1987)"),
+    ("gain_max", "largest |dv_out/dv_in| by central differences"),
+];
+
+/// The metrics of an inverting curve sampled at increasing `vin`, or `None` if it has no
+/// switching threshold or unity-gain points.
+pub fn transfer_metrics(vin: &[f64], vout: &[f64]) -> Option<TransferMetrics> {
+    let p = transfer_points(vin, vout)?;
+    let n = vin.len().min(vout.len());
+    let (voh, vol) = (vout[0], vout[n - 1]);
+    Some(TransferMetrics {
+        vm: p.vm,
+        voh,
+        vol,
+        vil: p.vil,
+        vih: p.vih,
+        nmh: voh - p.vih,
+        nml: p.vil - vol,
+        gain_max: -p.gain_min,
+    })
+}
