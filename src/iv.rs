@@ -135,3 +135,75 @@ pub fn run_iv(design: Design, vgs: &[f64], vds: &[f64]) -> Result<Vec<IvPoint>, 
     }
     Ok(out)
 }
+
+/// Device figures from the transfer characteristic at the largest |V_DS| of the grid.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct IvMetrics {
+    /// The V_DS the figures were taken at (V).
+    pub vds: f64,
+    /// Smallest subthreshold swing (mV/decade).
+    pub ss_min_mv_per_dec: Option<f64>,
+    /// Threshold by constant current: V_GS where |I_D| reaches [`THRESHOLD_CURRENT`] (V).
+    pub vth_v: Option<f64>,
+    /// Largest |I_D| over the V_GS sweep (A).
+    pub ion_a: Option<f64>,
+    /// Smallest |I_D| over the V_GS sweep (A).
+    pub ioff_a: Option<f64>,
+}
+
+/// The constant current of the threshold definition (A), common practice for devices of about
+/// unit width-to-length ratio.
+pub const THRESHOLD_CURRENT: f64 = 1e-7;
+
+/// What each metric means, for reports.
+pub const METRIC_DEFINITIONS: &[(&str, &str)] = &[
+    (
+        "ss_min_mv_per_dec",
+        "smallest dV_GS / dlog10|I_D| at the largest |V_DS| of the grid",
+    ),
+    (
+        "vth_v",
+        "constant-current threshold: V_GS where |I_D| first reaches 1e-7 A",
+    ),
+    (
+        "ion_a",
+        "largest |I_D| over the V_GS sweep at the largest |V_DS|",
+    ),
+    (
+        "ioff_a",
+        "smallest |I_D| over the V_GS sweep at the largest |V_DS|",
+    ),
+];
+
+/// Figures of a grid from [`run_iv`]; empty where the sweep has fewer than three gate voltages.
+pub fn iv_metrics(points: &[IvPoint]) -> IvMetrics {
+    let vds = points
+        .iter()
+        .map(|p| p.vds)
+        .fold(0.0f64, |m, v| if v.abs() > m.abs() { v } else { m });
+    let mut curve: Vec<(f64, f64)> = points
+        .iter()
+        .filter(|p| p.vds == vds)
+        .map(|p| (p.vgs, p.id))
+        .collect();
+    curve.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let (vg, id): (Vec<f64>, Vec<f64>) = curve.into_iter().unzip();
+    let mags: Vec<f64> = id.iter().map(|i| i.abs()).collect();
+    let none = IvMetrics {
+        vds,
+        ss_min_mv_per_dec: None,
+        vth_v: None,
+        ion_a: None,
+        ioff_a: None,
+    };
+    if vg.len() < 3 {
+        return none;
+    }
+    IvMetrics {
+        vds,
+        ss_min_mv_per_dec: lamina_measure::device::min_swing(&vg, &id).map(|(s, _)| s),
+        vth_v: lamina_measure::device::threshold_constant_current(&vg, &id, THRESHOLD_CURRENT),
+        ion_a: mags.iter().copied().reduce(f64::max),
+        ioff_a: mags.iter().copied().reduce(f64::min),
+    }
+}

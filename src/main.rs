@@ -11,6 +11,19 @@ use lamina_measure::transfer::DEFINITIONS;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
+/// Prints a line to stdout; a closed pipe (`lamina ... | head`) ends the program quietly
+/// instead of panicking.
+macro_rules! out {
+    ($($arg:tt)*) => {{
+        use std::io::Write;
+        if let Err(e) = writeln!(std::io::stdout().lock(), $($arg)*) {
+            if e.kind() == std::io::ErrorKind::BrokenPipe {
+                std::process::exit(0);
+            }
+        }
+    }};
+}
+
 #[derive(Parser)]
 #[command(
     name = "lamina",
@@ -169,9 +182,9 @@ fn run(cli: Cli) -> Result<(), Failure> {
             let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
             let d = design::load(&file, &sets).map_err(Failure::Invalid)?;
             if json {
-                println!("{}", design::summary_json(&d));
+                out!("{}", design::summary_json(&d));
             } else {
-                println!("{}", design::summary_text(&file, &d));
+                out!("{}", design::summary_text(&file, &d));
             }
             Ok(())
         }
@@ -192,14 +205,35 @@ fn run(cli: Cli) -> Result<(), Failure> {
                     .iter()
                     .map(|p| serde_json::json!({ "vgs": p.vgs, "vds": p.vds, "id": p.id }))
                     .collect();
-                println!("{}", serde_json::json!({ "points": pts, "metrics": {} }));
+                let m = lamina::iv::iv_metrics(&points);
+                let defs: serde_json::Map<String, serde_json::Value> =
+                    lamina::iv::METRIC_DEFINITIONS
+                        .iter()
+                        .map(|(k, d)| (k.to_string(), serde_json::json!(d)))
+                        .collect();
+                out!(
+                    "{}",
+                    serde_json::json!({
+                        "points": pts,
+                        "metrics": {
+                            "vds_v": m.vds,
+                            "ss_min_mv_per_dec": m.ss_min_mv_per_dec,
+                            "vth_v": m.vth_v,
+                            "ion_a": m.ion_a,
+                            "ioff_a": m.ioff_a,
+                            "definitions": defs,
+                        }
+                    })
+                );
             } else {
-                println!(
+                out!(
                     "{:>10} {:>10} {:>16}   (model estimate)",
-                    "V_GS (V)", "V_DS (V)", "I_D (A)"
+                    "V_GS (V)",
+                    "V_DS (V)",
+                    "I_D (A)"
                 );
                 for p in &points {
-                    println!("{:>10.4} {:>10.4} {:>16.6e}", p.vgs, p.vds, p.id);
+                    out!("{:>10.4} {:>10.4} {:>16.6e}", p.vgs, p.vds, p.id);
                 }
             }
             Ok(())
@@ -214,7 +248,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
                 if let Some(m) = v.as_object_mut() {
                     m.remove("analysis");
                 }
-                println!("{v}");
+                out!("{v}");
             } else {
                 print_outcome(outcome);
             }
@@ -227,7 +261,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             if json {
                 let items: Vec<serde_json::Value> =
                     results.iter().map(|(k, o)| outcome_json(k, o)).collect();
-                println!("{}", serde_json::json!({ "analyses": items }));
+                out!("{}", serde_json::json!({ "analyses": items }));
             } else {
                 for (_, o) in &results {
                     print_outcome(o);
@@ -259,7 +293,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             let report = run_ring(&mut system, &ring, &params)
                 .map_err(|e| Failure::Analysis(e.to_string()))?;
             if json {
-                println!("{}", ring_json(&report));
+                out!("{}", ring_json(&report));
             } else {
                 print_ring(&report);
             }
@@ -300,7 +334,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             let report = run_ring(&mut system, &ring, &params)
                 .map_err(|e| Failure::Analysis(e.to_string()))?;
             if json {
-                println!("{}", ring_json(&report));
+                out!("{}", ring_json(&report));
             } else {
                 print_ring(&report);
             }
@@ -387,33 +421,33 @@ fn outcome_json(kind: &str, o: &Outcome) -> serde_json::Value {
 fn print_outcome(o: &Outcome) {
     match o {
         Outcome::OperatingPoint(v) => {
-            println!("operating point (model estimate)");
+            out!("operating point (model estimate)");
             for (n, x) in v {
-                println!("  {n:<24} {x:>14.6} V");
+                out!("  {n:<24} {x:>14.6} V");
             }
         }
         Outcome::Transfer {
             vin, metrics, snm, ..
         } => {
-            println!("transfer curve, {} points (model estimate)", vin.len());
+            out!("transfer curve, {} points (model estimate)", vin.len());
             match metrics {
                 Some(m) => {
-                    println!("  V_M      {:>9.4} V   input where v_out = v_in", m.vm);
-                    println!("  V_OH     {:>9.4} V   output at the lowest input", m.voh);
-                    println!("  V_OL     {:>9.4} V   output at the highest input", m.vol);
-                    println!("  V_IL     {:>9.4} V   lowest input with slope -1", m.vil);
-                    println!("  V_IH     {:>9.4} V   highest input with slope -1", m.vih);
-                    println!("  NM_H     {:>9.4} V   V_OH - V_IH (unity gain)", m.nmh);
-                    println!("  NM_L     {:>9.4} V   V_IL - V_OL (unity gain)", m.nml);
+                    out!("  V_M      {:>9.4} V   input where v_out = v_in", m.vm);
+                    out!("  V_OH     {:>9.4} V   output at the lowest input", m.voh);
+                    out!("  V_OL     {:>9.4} V   output at the highest input", m.vol);
+                    out!("  V_IL     {:>9.4} V   lowest input with slope -1", m.vil);
+                    out!("  V_IH     {:>9.4} V   highest input with slope -1", m.vih);
+                    out!("  NM_H     {:>9.4} V   V_OH - V_IH (unity gain)", m.nmh);
+                    out!("  NM_L     {:>9.4} V   V_IL - V_OL (unity gain)", m.nml);
                     match snm {
-                        Some(s) => println!("  SNM      {:>9.4} V   largest square in the butterfly (Seevinck 1987)", s.snm),
-                        None => println!("  SNM          -       the curve and its mirror enclose no lobes"),
+                        Some(s) => out!("  SNM      {:>9.4} V   largest square in the butterfly (Seevinck 1987)", s.snm),
+                        None => out!("  SNM          -       the curve and its mirror enclose no lobes"),
                     }
-                    println!("  gain     {:>9.2}     peak |dv_out/dv_in|", m.gain_max);
+                    out!("  gain     {:>9.2}     peak |dv_out/dv_in|", m.gain_max);
                 }
-                None => println!(
-                    "  the curve never crosses v_out = v_in or never reaches a slope of -1"
-                ),
+                None => {
+                    out!("  the curve never crosses v_out = v_in or never reaches a slope of -1")
+                }
             }
         }
         Outcome::Ring(r) => print_ring(r),
@@ -429,6 +463,8 @@ fn ring_json(r: &RingReport) -> serde_json::Value {
         "periods_discarded": r.periods_discarded,
         "periods_used": r.periods_used,
         "period_spread": r.period_spread,
+        "avg_power_w": r.avg_power,
+        "energy_per_cycle_j": r.energy_per_cycle,
         "method": "period from rising mid-level crossings of out[0]",
         "steps": r.steps,
         "rejected_steps": r.rejected,
@@ -438,18 +474,25 @@ fn ring_json(r: &RingReport) -> serde_json::Value {
 }
 
 fn print_ring(r: &RingReport) {
-    println!("ring oscillator, {} stages (model estimate)", r.stages);
-    println!("  frequency      {:>14.6} GHz", r.frequency * 1e-9);
-    println!("  period         {:>14.6} ps", r.period * 1e12);
-    println!(
+    out!("ring oscillator, {} stages (model estimate)", r.stages);
+    out!("  frequency      {:>14.6} GHz", r.frequency * 1e-9);
+    out!("  period         {:>14.6} ps", r.period * 1e12);
+    out!(
         "  stage delay    {:>14.6} ps   (1 / (2 N f))",
         r.stage_delay * 1e12
     );
-    println!(
-        "  periods        {:>14}      ({} discarded as start-up, spread {:.1e})",
-        r.periods_used, r.periods_discarded, r.period_spread
+    out!(
+        "  supply power   {:>14.6} uW   (mean over the measured periods)",
+        r.avg_power * 1e6
     );
-    println!(
+    out!("  energy/cycle   {:>14.6} fJ", r.energy_per_cycle * 1e15);
+    out!(
+        "  periods        {:>14}      ({} discarded as start-up, spread {:.1e})",
+        r.periods_used,
+        r.periods_discarded,
+        r.period_spread
+    );
+    out!(
         "  time steps     {:>14}      ({} rejected, {} Newton iterations, {:.3} ns simulated)",
         r.steps,
         r.rejected,

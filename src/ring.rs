@@ -6,7 +6,9 @@
 //! `N-1` and `0` both high, so exactly one edge circulates from t = 0. The transient stops by
 //! itself once `discard + measure` whole periods of `out[0]` have been seen; the frequency is
 //! the mean over the measured periods of interpolated rising mid-level crossings
-//! (`measure::period`), and the stage delay is `1 / (2 N f)`.
+//! (`measure::period`), and the stage delay is `1 / (2 N f)`. Average supply power is the
+//! mean of `V_DD i_supply` over those same whole periods, and the energy per cycle is power
+//! times period.
 
 use crate::builtin::Ring;
 use lamina_engine::{
@@ -47,6 +49,10 @@ impl Default for RingParams {
 pub struct RingReport {
     /// Number of stages.
     pub stages: usize,
+    /// Average power drawn from the supply over the measured periods (W).
+    pub avg_power: f64,
+    /// Energy drawn from the supply per period (J).
+    pub energy_per_cycle: f64,
     /// Oscillation frequency (Hz).
     pub frequency: f64,
     /// Period (s).
@@ -145,7 +151,7 @@ pub fn run_ring(
             Control::Continue
         }
     };
-    let probes = [Probe::Voltage(ring.outputs[0])];
+    let probes = [Probe::Voltage(ring.outputs[0]), Probe::Current(ring.supply)];
     let start = single_edge_start(ring);
     let res = system.transient(&tp, &start, &probes, Some(&mut observer))?;
     let est = period(&res.time, &res.signals[0], level, params.discard).map_err(|e| {
@@ -157,8 +163,23 @@ pub fn run_ring(
             est.periods_used, res.stats.end_time
         )));
     }
+    // Supply power over the measured periods: the supply's branch current flows from its
+    // positive pin through it, so the current it delivers is the negative of that.
+    let crossings_up = lamina_measure::crossings(
+        &res.time,
+        &res.signals[0],
+        level,
+        lamina_measure::Direction::Rising,
+    );
+    let t0 = crossings_up[est.periods_discarded];
+    let t1 = crossings_up[est.periods_discarded + est.periods_used];
+    let power: Vec<f64> = res.signals[1].iter().map(|i| -i * ring.vdd).collect();
+    let avg_power =
+        lamina_measure::waveform::mean_over(&res.time, &power, t0, t1).unwrap_or(f64::NAN);
     Ok(RingReport {
         stages,
+        avg_power,
+        energy_per_cycle: avg_power * est.period,
         frequency: est.frequency,
         period: est.period,
         stage_delay: 1.0 / (2.0 * stages as f64 * est.frequency),

@@ -174,3 +174,41 @@ fn iv_flags_are_checked() {
     assert!(out.status.success());
     assert_eq!(String::from_utf8_lossy(&out.stdout).lines().count(), 6);
 }
+
+/// `lamina iv` metrics on the reference devices: with no traps, doping or gate quantum
+/// capacitance in play, the smallest swing is the thermal limit ln(10) kT/q within 0.5 %
+/// (Sze and Ng 2007; Taur and Ning 2009).
+#[test]
+fn iv_metrics_give_the_thermal_swing() {
+    for (file, temp) in [
+        ("netlists/reference/sheet-fet-a.lam", 300.0),
+        ("netlists/reference/sheet-fet-b.lam", 350.0),
+    ] {
+        let out = Command::new(env!("CARGO_BIN_EXE_lamina"))
+            .args([
+                "iv",
+                file,
+                "--vgs",
+                "-0.6:0.6:0.01",
+                "--vds",
+                "0.05,1",
+                "--json",
+            ])
+            .output()
+            .unwrap();
+        assert!(out.status.success());
+        let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+        let ss = v["metrics"]["ss_min_mv_per_dec"].as_f64().unwrap();
+        let ideal = 10f64.ln() * K_B * temp / Q * 1e3;
+        assert!(
+            (ss / ideal - 1.0).abs() < 5e-3,
+            "{file}: {ss} mV/dec vs {ideal}"
+        );
+        let (ion, ioff) = (
+            v["metrics"]["ion_a"].as_f64().unwrap(),
+            v["metrics"]["ioff_a"].as_f64().unwrap(),
+        );
+        assert!(ion / ioff > 1e6, "{ion:e} / {ioff:e}");
+        assert!(v["metrics"]["vth_v"].as_f64().is_some());
+    }
+}

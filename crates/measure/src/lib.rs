@@ -6,6 +6,9 @@
 //! * [`transfer`]: switching threshold, output levels, unity-gain points, noise margins and peak
 //!   gain of a transfer curve.
 //! * [`snm`]: maximum-square static noise margin of two curves (Seevinck's rotation).
+//! * [`waveform`]: transition times, propagation delays, average power over a window.
+//! * [`device`]: subthreshold swing, threshold voltage (constant current, maximum g_m),
+//!   currents and slopes at given biases.
 //!
 //! ```
 //! use lamina_measure::{crossings, Direction};
@@ -17,8 +20,10 @@
 
 #![deny(missing_docs)]
 
+pub mod device;
 mod period;
 pub mod snm;
 pub mod transfer;
+pub mod waveform;
 
 pub use period::{crossings, period, Direction, PeriodError, PeriodEstimate};
