@@ -62,7 +62,7 @@ pub fn propagation_delays(
 /// Mean of `p(t)` over `[t0, t1]` by the trapezoidal rule on the samples (linear between
 /// samples, the window's ends interpolated).
 pub fn mean_over(t: &[f64], p: &[f64], t0: f64, t1: f64) -> Option<f64> {
-    if !(t1 > t0) || t.len() < 2 {
+    if t1.is_nan() || t0.is_nan() || t1 <= t0 || t.len() < 2 {
         return None;
     }
     let at = |x: f64| -> f64 {
