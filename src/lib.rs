@@ -6,6 +6,7 @@
 //! * [`ring`]: the ring-oscillator job: start-up with a single circulating edge, a transient
 //!   that stops once enough periods have been seen, and the frequency measurement.
 //! * [`iv`]: device curves of the one FET in a file.
+//! * [`sweep`]: a file's analyses over a grid of parameter values, in parallel.
 //! * [`design`]: jobs on circuit files: load with `--set` overrides, the check summary, and the
 //!   analyses a file declares.
 //!
@@ -18,3 +19,4 @@ pub mod builtin;
 pub mod design;
 pub mod iv;
 pub mod ring;
+pub mod sweep;

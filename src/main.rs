@@ -120,6 +120,21 @@ enum Job {
         #[arg(long)]
         json: bool,
     },
+    /// A file's analyses over a grid of parameter values, points in parallel.
+    Sweep {
+        /// Circuit file (`.lam`) with its analyses.
+        file: PathBuf,
+        /// A swept top-level parameter: `name=LIST` or `name=START:STOP:STEP` (repeatable; the
+        /// grid is every combination, first parameter slowest).
+        #[arg(long = "param", value_name = "NAME=VALUES", required = true)]
+        param: Vec<String>,
+        /// Override a top-level parameter for every point: `--set name=value` (repeatable).
+        #[arg(long = "set", value_name = "NAME=VALUE")]
+        set: Vec<String>,
+        /// Print one JSON object instead of a table.
+        #[arg(long)]
+        json: bool,
+    },
     /// Run every analysis a circuit file declares.
     Run {
         /// Circuit file (`.lam`).
@@ -251,6 +266,73 @@ fn run(cli: Cli) -> Result<(), Failure> {
                 out!("{v}");
             } else {
                 print_outcome(outcome);
+            }
+            Ok(())
+        }
+        Job::Sweep {
+            file,
+            param,
+            set,
+            json,
+        } => {
+            let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
+            let axes: Vec<lamina::sweep::Axis> = param
+                .iter()
+                .map(|p| lamina::sweep::parse_axis(p))
+                .collect::<Result<_, _>>()
+                .map_err(Failure::Usage)?;
+            // Check the file once, so that a broken file is reported once and not per point.
+            design::load(&file, &sets).map_err(Failure::Invalid)?;
+            let rows = lamina::sweep::run_sweep(&file, &sets, &axes, true);
+            let keys: Vec<String> = rows
+                .iter()
+                .find(|r| r.error.is_none())
+                .map(|r| r.figures.iter().map(|(k, _)| k.clone()).collect())
+                .unwrap_or_default();
+            if json {
+                let items: Vec<serde_json::Value> = rows
+                    .iter()
+                    .map(|r| {
+                        let mut m = serde_json::Map::new();
+                        for (n, v) in &r.point {
+                            m.insert(n.clone(), serde_json::json!(v));
+                        }
+                        for (k, v) in &r.figures {
+                            m.insert(k.clone(), serde_json::json!(v));
+                        }
+                        if let Some(e) = &r.error {
+                            m.insert("error".into(), serde_json::json!(e));
+                        }
+                        serde_json::Value::Object(m)
+                    })
+                    .collect();
+                out!("{}", serde_json::json!({ "rows": items }));
+            } else {
+                let mut header: Vec<String> = axes.iter().map(|a| a.name.clone()).collect();
+                header.extend(keys.iter().cloned());
+                out!(
+                    "{}",
+                    header
+                        .iter()
+                        .map(|h| format!("{h:>22}"))
+                        .collect::<String>()
+                );
+                for r in &rows {
+                    let mut line: String =
+                        r.point.iter().map(|(_, v)| format!("{v:>22.6e}")).collect();
+                    match &r.error {
+                        Some(e) => line.push_str(&format!("   failed: {e}")),
+                        None => {
+                            for k in &keys {
+                                match r.figures.iter().find(|(n, _)| n == k) {
+                                    Some((_, v)) => line.push_str(&format!("{v:>22.6e}")),
+                                    None => line.push_str(&format!("{:>22}", "-")),
+                                }
+                            }
+                        }
+                    }
+                    out!("{line}");
+                }
             }
             Ok(())
         }

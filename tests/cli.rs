@@ -163,3 +163,45 @@ fn vtc_reports_the_named_keys_of_the_reference_inverter() {
         .unwrap()
         .contains("Seevinck"));
 }
+
+#[test]
+fn sweep_rows_come_in_grid_order_and_a_failed_point_does_not_stop_the_others() {
+    let out = lamina(&[
+        "sweep",
+        "netlists/reference/square-ring-11.lam",
+        "--param",
+        "vdd=0,1,0.8",
+        "--json",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let rows = v["rows"].as_array().unwrap();
+    assert_eq!(rows.len(), 3);
+    let vdds: Vec<f64> = rows.iter().map(|r| r["vdd"].as_f64().unwrap()).collect();
+    assert_eq!(vdds, vec![0.0, 1.0, 0.8]);
+    assert!(
+        rows[0]["error"].as_str().is_some(),
+        "a ring without supply does not oscillate: {}",
+        rows[0]
+    );
+    // The 1 V point is the reference ring: the same frequency as `lamina ring`.
+    let single = lamina(&["ring", "netlists/reference/square-ring-11.lam", "--json"]);
+    let s: serde_json::Value = serde_json::from_slice(&single.stdout).unwrap();
+    let (a, b) = (
+        rows[1]["ring.frequency_hz"].as_f64().unwrap(),
+        s["frequency_hz"].as_f64().unwrap(),
+    );
+    assert!((a / b - 1.0).abs() < 1e-12, "{a} vs {b}");
+    assert!(rows[2]["ring.frequency_hz"].as_f64().unwrap() < a);
+    let bad = lamina(&[
+        "sweep",
+        "netlists/reference/square-ring-11.lam",
+        "--param",
+        "vdd",
+    ]);
+    assert_eq!(bad.status.code(), Some(2));
+}
