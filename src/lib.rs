@@ -7,6 +7,7 @@
 //!   that stops once enough periods have been seen, and the frequency measurement.
 //! * [`iv`]: device curves of the one FET in a file.
 //! * [`sweep`]: a file's analyses over a grid of parameter values, in parallel.
+//! * [`plot`] and [`output`]: pictures (SVG and PNG) and data files, each written whole.
 //! * [`design`]: jobs on circuit files: load with `--set` overrides, the check summary, and the
 //!   analyses a file declares.
 //!
@@ -18,5 +19,7 @@
 pub mod builtin;
 pub mod design;
 pub mod iv;
+pub mod output;
+pub mod plot;
 pub mod ring;
 pub mod sweep;

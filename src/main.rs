@@ -5,7 +5,8 @@
 use clap::{Parser, Subcommand, ValueEnum};
 use lamina::builtin::{square_ring, Ring, SquareStage};
 use lamina::design::{self, Outcome};
-use lamina::ring::{run_ring, RingParams, RingReport};
+use lamina::output::{csv, ensure_dir, write_whole as write_file};
+use lamina::ring::{run_ring_recorded, RingParams, RingReport, RingWaves};
 use lamina_engine::{Integrator, System};
 use lamina_measure::transfer::DEFINITIONS;
 use std::path::{Path, PathBuf};
@@ -80,6 +81,9 @@ enum Job {
         /// Write the DC Newton matrix at the start state to this Matrix Market file.
         #[arg(long, value_name = "FILE")]
         dump_matrix: Option<PathBuf>,
+        /// Write waveforms (CSV), the summary (JSON) and plots (SVG, PNG) into this directory.
+        #[arg(long, value_name = "DIR")]
+        out: Option<PathBuf>,
     },
     /// Parse and elaborate a circuit file; print a summary, or the errors with their places.
     Check {
@@ -108,6 +112,9 @@ enum Job {
         /// Print one JSON object instead of a table.
         #[arg(long)]
         json: bool,
+        /// Write the points (CSV), the summary (JSON) and plots (SVG, PNG) into this directory.
+        #[arg(long, value_name = "DIR")]
+        out: Option<PathBuf>,
     },
     /// Transfer curve, switching threshold and noise margins from a file's `analysis transfer`.
     Vtc {
@@ -119,6 +126,9 @@ enum Job {
         /// Print one JSON object instead of a table.
         #[arg(long)]
         json: bool,
+        /// Write the curve (CSV), the summary (JSON) and plots (SVG, PNG) into this directory.
+        #[arg(long, value_name = "DIR")]
+        out: Option<PathBuf>,
     },
     /// A file's analyses over a grid of parameter values, points in parallel.
     Sweep {
@@ -179,18 +189,6 @@ fn main() -> ExitCode {
     }
 }
 
-/// Writes through a temporary file beside `path`, so the file appears whole or not at all.
-fn write_whole(path: &Path, write: impl FnOnce(&Path) -> Result<(), String>) -> Result<(), String> {
-    let mut tmp = path.as_os_str().to_owned();
-    tmp.push(".partial");
-    let tmp = PathBuf::from(tmp);
-    if let Err(e) = write(&tmp) {
-        let _ = std::fs::remove_file(&tmp);
-        return Err(e);
-    }
-    std::fs::rename(&tmp, path).map_err(|e| format!("cannot write {}: {e}", path.display()))
-}
-
 fn run(cli: Cli) -> Result<(), Failure> {
     match cli.job {
         Job::Check { file, set, json } => {
@@ -209,12 +207,16 @@ fn run(cli: Cli) -> Result<(), Failure> {
             vds,
             set,
             json,
+            out,
         } => {
             let vg = lamina::iv::parse_values("--vgs", &vgs).map_err(Failure::Usage)?;
             let vd = lamina::iv::parse_values("--vds", &vds).map_err(Failure::Usage)?;
             let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
             let d = design::load(&file, &sets).map_err(Failure::Invalid)?;
             let points = lamina::iv::run_iv(d, &vg, &vd).map_err(Failure::Analysis)?;
+            if let Some(dir) = &out {
+                write_iv(dir, &points).map_err(Failure::Usage)?;
+            }
             if json {
                 let pts: Vec<serde_json::Value> = points
                     .iter()
@@ -253,11 +255,19 @@ fn run(cli: Cli) -> Result<(), Failure> {
             }
             Ok(())
         }
-        Job::Vtc { file, set, json } => {
+        Job::Vtc {
+            file,
+            set,
+            json,
+            out,
+        } => {
             let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
             let results = design::run_all(&file, &sets, &RingParams::default(), Some("transfer"))
                 .map_err(Failure::Invalid)?;
             let (kind, outcome) = &results[0];
+            if let Some(dir) = &out {
+                write_vtc(dir, kind, outcome).map_err(Failure::Usage)?;
+            }
             if json {
                 let mut v = outcome_json(kind, outcome);
                 if let Some(m) = v.as_object_mut() {
@@ -358,6 +368,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             reference,
             json,
             dump_matrix,
+            out,
             ..
         } => {
             let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
@@ -372,8 +383,11 @@ fn run(cli: Cli) -> Result<(), Failure> {
             if let Some(path) = dump_matrix {
                 dump(&mut system, &ring, &path)?;
             }
-            let report = run_ring(&mut system, &ring, &params)
+            let (report, waves) = run_ring_recorded(&mut system, &ring, &params)
                 .map_err(|e| Failure::Analysis(e.to_string()))?;
+            if let Some(dir) = &out {
+                write_ring(dir, &report, &waves).map_err(Failure::Usage)?;
+            }
             if json {
                 out!("{}", ring_json(&report));
             } else {
@@ -389,6 +403,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             reference,
             json,
             dump_matrix,
+            out,
             ..
         } => {
             let Some(Builtin::SquareRing) = builtin else {
@@ -413,8 +428,11 @@ fn run(cli: Cli) -> Result<(), Failure> {
                 reference,
                 ..RingParams::default()
             };
-            let report = run_ring(&mut system, &ring, &params)
+            let (report, waves) = run_ring_recorded(&mut system, &ring, &params)
                 .map_err(|e| Failure::Analysis(e.to_string()))?;
+            if let Some(dir) = &out {
+                write_ring(dir, &report, &waves).map_err(Failure::Usage)?;
+            }
             if json {
                 out!("{}", ring_json(&report));
             } else {
@@ -423,6 +441,96 @@ fn run(cli: Cli) -> Result<(), Failure> {
             Ok(())
         }
     }
+}
+
+fn write_ring(dir: &Path, r: &RingReport, w: &RingWaves) -> Result<(), String> {
+    ensure_dir(dir)?;
+    let (t, a, b) = w;
+    let rows = t.iter().zip(a).zip(b).map(|((t, a), b)| vec![*t, *a, *b]);
+    write_file(
+        &dir.join("waveforms.csv"),
+        csv(&["time_s", "out[0]_v", "out[1]_v"], rows).as_bytes(),
+    )?;
+    write_file(
+        &dir.join("summary.json"),
+        format!("{}\n", ring_json(r)).as_bytes(),
+    )?;
+    lamina::plot::waveforms(&dir.join("waveforms"), t, &[("out[0]", a), ("out[1]", b)])?;
+    eprintln!(
+        "wrote waveforms.csv, summary.json and waveforms.svg/png to {}",
+        dir.display()
+    );
+    Ok(())
+}
+
+fn write_vtc(dir: &Path, kind: &str, o: &Outcome) -> Result<(), String> {
+    ensure_dir(dir)?;
+    if let Outcome::Transfer {
+        vin,
+        vout,
+        metrics,
+        snm,
+    } = o
+    {
+        let rows = vin.iter().zip(vout).map(|(a, b)| vec![*a, *b]);
+        write_file(
+            &dir.join("transfer.csv"),
+            csv(&["vin_v", "vout_v"], rows).as_bytes(),
+        )?;
+        let mut j = outcome_json(kind, o);
+        if let Some(m) = j.as_object_mut() {
+            m.remove("vin");
+            m.remove("vout");
+        }
+        write_file(&dir.join("summary.json"), format!("{j}\n").as_bytes())?;
+        let marks: Vec<(&str, f64)> = match metrics {
+            Some(m) => vec![("V_IL", m.vil), ("V_M", m.vm), ("V_IH", m.vih)],
+            None => Vec::new(),
+        };
+        lamina::plot::transfer(&dir.join("transfer"), vin, vout, &marks)?;
+        lamina::plot::butterfly(&dir.join("butterfly"), vin, vout, snm.map(|s| s.snm))?;
+        eprintln!(
+            "wrote transfer.csv, summary.json, transfer.svg/png and butterfly.svg/png to {}",
+            dir.display()
+        );
+    }
+    Ok(())
+}
+
+fn write_iv(dir: &Path, points: &[lamina::iv::IvPoint]) -> Result<(), String> {
+    ensure_dir(dir)?;
+    let rows = points.iter().map(|p| vec![p.vgs, p.vds, p.id]);
+    write_file(
+        &dir.join("iv.csv"),
+        csv(&["vgs_v", "vds_v", "id_a"], rows).as_bytes(),
+    )?;
+    let m = lamina::iv::iv_metrics(points);
+    let summary = serde_json::json!({
+        "vds_v": m.vds, "ss_min_mv_per_dec": m.ss_min_mv_per_dec, "vth_v": m.vth_v, "ion_a": m.ion_a, "ioff_a": m.ioff_a,
+    });
+    write_file(&dir.join("summary.json"), format!("{summary}\n").as_bytes())?;
+    let mut vds: Vec<f64> = points.iter().map(|p| p.vds).collect();
+    vds.sort_by(f64::total_cmp);
+    vds.dedup();
+    let curves: Vec<(f64, Vec<(f64, f64)>)> = vds
+        .iter()
+        .map(|&v| {
+            (
+                v,
+                points
+                    .iter()
+                    .filter(|p| p.vds == v)
+                    .map(|p| (p.vgs, p.id))
+                    .collect(),
+            )
+        })
+        .collect();
+    lamina::plot::transfer_log(&dir.join("transfer-log"), &curves, m.ss_min_mv_per_dec)?;
+    eprintln!(
+        "wrote iv.csv, summary.json and transfer-log.svg/png to {}",
+        dir.display()
+    );
+    Ok(())
 }
 
 fn method(m: Method) -> Integrator {
@@ -444,11 +552,10 @@ fn dump(system: &mut System, ring: &Ring, path: &Path) -> Result<(), Failure> {
     let m = system
         .dc_matrix(&x, 1e-12)
         .map_err(|e| Failure::Analysis(e.to_string()))?;
-    write_whole(path, |tmp| {
-        sprs::io::write_matrix_market(tmp, &m)
-            .map_err(|e| format!("cannot write {}: {e}", path.display()))
-    })
-    .map_err(Failure::Usage)?;
+    let mut bytes = Vec::new();
+    sprs::io::write_matrix_market_to_bufwrite(&mut bytes, &m)
+        .map_err(|e| Failure::Analysis(format!("cannot encode the matrix: {e}")))?;
+    write_file(path, &bytes).map_err(Failure::Usage)?;
     eprintln!(
         "wrote the {0}x{0} DC Newton matrix to {1}",
         m.rows(),

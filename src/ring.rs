@@ -123,6 +123,18 @@ pub fn run_ring(
     ring: &Ring,
     params: &RingParams,
 ) -> Result<RingReport, RingError> {
+    run_ring_recorded(system, ring, params).map(|(r, _)| r)
+}
+
+/// Recorded waveforms of a ring run: time and the first two stage outputs.
+pub type RingWaves = (Vec<f64>, Vec<f64>, Vec<f64>);
+
+/// As [`run_ring`], also returning the waveforms of `out[0]` and `out[1]`.
+pub fn run_ring_recorded(
+    system: &mut System,
+    ring: &Ring,
+    params: &RingParams,
+) -> Result<(RingReport, RingWaves), RingError> {
     let stages = ring.outputs.len();
     if stages < 3 || stages % 2 == 0 {
         return Err(RingError::NoOscillation(format!(
@@ -151,7 +163,11 @@ pub fn run_ring(
             Control::Continue
         }
     };
-    let probes = [Probe::Voltage(ring.outputs[0]), Probe::Current(ring.supply)];
+    let probes = [
+        Probe::Voltage(ring.outputs[0]),
+        Probe::Current(ring.supply),
+        Probe::Voltage(ring.outputs[1]),
+    ];
     let start = single_edge_start(ring);
     let res = system.transient(&tp, &start, &probes, Some(&mut observer))?;
     let est = period(&res.time, &res.signals[0], level, params.discard).map_err(|e| {
@@ -176,7 +192,7 @@ pub fn run_ring(
     let power: Vec<f64> = res.signals[1].iter().map(|i| -i * ring.vdd).collect();
     let avg_power =
         lamina_measure::waveform::mean_over(&res.time, &power, t0, t1).unwrap_or(f64::NAN);
-    Ok(RingReport {
+    let report = RingReport {
         stages,
         avg_power,
         energy_per_cycle: avg_power * est.period,
@@ -190,5 +206,10 @@ pub fn run_ring(
         rejected: res.stats.rejected_lte + res.stats.rejected_newton,
         newton_iterations: res.stats.newton_iterations,
         simulated: res.stats.end_time,
-    })
+    };
+    let mut signals = res.signals;
+    let second = signals.pop().unwrap_or_default();
+    let _supply = signals.pop();
+    let first = signals.pop().unwrap_or_default();
+    Ok((report, (res.time, first, second)))
 }

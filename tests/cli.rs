@@ -205,3 +205,61 @@ fn sweep_rows_come_in_grid_order_and_a_failed_point_does_not_stop_the_others() {
     ]);
     assert_eq!(bad.status.code(), Some(2));
 }
+
+#[test]
+fn out_writes_data_summary_and_plots() {
+    let dir = std::env::temp_dir().join(format!("lamina-out-{}", std::process::id()));
+    let d = dir.to_str().unwrap();
+    let vtc = lamina(&["vtc", "netlists/reference/square-inverter.lam", "--out", d]);
+    assert!(
+        vtc.status.success(),
+        "{}",
+        String::from_utf8_lossy(&vtc.stderr)
+    );
+    let ring = lamina(&[
+        "ring",
+        "--builtin",
+        "square-ring",
+        "--stages",
+        "5",
+        "--out",
+        &format!("{d}/ring"),
+    ]);
+    assert!(ring.status.success());
+    let iv = lamina(&[
+        "iv",
+        "netlists/reference/sheet-fet-a.lam",
+        "--vgs",
+        "0:1:0.1",
+        "--vds",
+        "1",
+        "--out",
+        &format!("{d}/iv"),
+    ]);
+    assert!(iv.status.success());
+    for f in [
+        "transfer.csv",
+        "summary.json",
+        "transfer.svg",
+        "transfer.png",
+        "butterfly.svg",
+        "ring/waveforms.png",
+        "ring/summary.json",
+        "iv/iv.csv",
+        "iv/transfer-log.svg",
+    ] {
+        let bytes = std::fs::read(dir.join(f)).unwrap_or_else(|_| panic!("{f} missing"));
+        assert!(bytes.len() > 100, "{f} is too small");
+        if f.ends_with(".png") {
+            assert_eq!(&bytes[1..4], b"PNG");
+        }
+        if f.ends_with(".svg") {
+            assert!(String::from_utf8_lossy(&bytes).contains("<svg"));
+        }
+    }
+    let summary: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(dir.join("summary.json")).unwrap()).unwrap();
+    assert!((summary["snm"].as_f64().unwrap() - 0.4).abs() < 2e-3);
+    assert!(!dir.join("summary.json.partial").exists());
+    std::fs::remove_dir_all(&dir).unwrap();
+}
