@@ -130,6 +130,17 @@ enum Job {
         #[arg(long, value_name = "DIR")]
         out: Option<PathBuf>,
     },
+    /// Gate delay from a file's `analysis delay { from = ..., to = ..., stop = ... }`.
+    Delay {
+        /// Circuit file (`.lam`) declaring `analysis delay { ... }` and driving its input.
+        file: PathBuf,
+        /// Override a top-level parameter: `--set name=value` (repeatable).
+        #[arg(long = "set", value_name = "NAME=VALUE")]
+        set: Vec<String>,
+        /// Print one JSON object instead of a table.
+        #[arg(long)]
+        json: bool,
+    },
     /// A file's analyses over a grid of parameter values, points in parallel.
     Sweep {
         /// Circuit file (`.lam`) with its analyses.
@@ -343,6 +354,22 @@ fn run(cli: Cli) -> Result<(), Failure> {
                     }
                     out!("{line}");
                 }
+            }
+            Ok(())
+        }
+        Job::Delay { file, set, json } => {
+            let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
+            let results = design::run_all(&file, &sets, &RingParams::default(), Some("delay"))
+                .map_err(Failure::Invalid)?;
+            let (kind, outcome) = &results[0];
+            if json {
+                let mut v = outcome_json(kind, outcome);
+                if let Some(m) = v.as_object_mut() {
+                    m.remove("analysis");
+                }
+                out!("{v}");
+            } else {
+                print_outcome(outcome);
             }
             Ok(())
         }
@@ -599,6 +626,15 @@ fn outcome_json(kind: &str, o: &Outcome) -> serde_json::Value {
                 "vout": vout,
             })
         }
+        Outcome::Delay(d) => serde_json::json!({
+            "analysis": kind,
+            "t_phl_s": d.t_phl,
+            "t_plh_s": d.t_plh,
+            "t_p_s": d.t_p,
+            "rise_s": d.rise,
+            "fall_s": d.fall,
+            "transitions": d.transitions,
+        }),
         Outcome::Ring(r) => {
             let mut v = ring_json(r);
             v["analysis"] = serde_json::json!(kind);
@@ -640,6 +676,24 @@ fn print_outcome(o: &Outcome) {
             }
         }
         Outcome::Ring(r) => print_ring(r),
+        Outcome::Delay(d) => {
+            let ps = |v: Option<f64>| v.map_or("-".to_string(), |x| format!("{:.3} ps", x * 1e12));
+            out!(
+                "gate delay over {} transitions (model estimate)",
+                d.transitions
+            );
+            out!(
+                "  t_pHL   {:>12}   output falls after the input rises (50 % to 50 %)",
+                ps(d.t_phl)
+            );
+            out!(
+                "  t_pLH   {:>12}   output rises after the input falls",
+                ps(d.t_plh)
+            );
+            out!("  t_p     {:>12}   mean of the two", ps(d.t_p));
+            out!("  rise    {:>12}   output 10-90 %", ps(d.rise));
+            out!("  fall    {:>12}   output 90-10 %", ps(d.fall));
+        }
     }
 }
 

@@ -69,6 +69,13 @@ fn figures(kind: &str, o: &Outcome) -> Vec<(String, f64)> {
             put("snm", snm.map(|m| m.snm));
             put("gain_max", metrics.map(|m| m.gain_max));
         }
+        Outcome::Delay(d) => {
+            put("t_phl_s", d.t_phl);
+            put("t_plh_s", d.t_plh);
+            put("t_p_s", d.t_p);
+            put("rise_s", d.rise);
+            put("fall_s", d.fall);
+        }
         Outcome::Ring(r) => {
             put("frequency_hz", Some(r.frequency));
             put("period_s", Some(r.period));

@@ -54,6 +54,8 @@ pub enum Expr {
         /// The whole call.
         span: Span,
     },
+    /// `name[index]`: an indexed name, meaningful where a node or element name is expected.
+    Indexed(Ident, Box<Expr>, Span),
     /// `-e`
     Neg(Box<Expr>, Span),
     /// `l op r`
@@ -75,7 +77,7 @@ impl Expr {
         match self {
             Expr::Number { span, .. } | Expr::Str(_, span) | Expr::Call { span, .. } => *span,
             Expr::Name(id) => id.span,
-            Expr::Neg(_, span) | Expr::Binary { span, .. } => *span,
+            Expr::Neg(_, span) | Expr::Binary { span, .. } | Expr::Indexed(_, _, span) => *span,
         }
     }
 }

@@ -165,6 +165,14 @@ pub const ANALYSES: &[(&str, &[(&str, SettingKind)])] = &[
         ],
     ),
     (
+        "delay",
+        &[
+            ("from", SettingKind::Name),
+            ("to", SettingKind::Name),
+            ("stop", SettingKind::Number),
+        ],
+    ),
+    (
         "ring",
         &[
             ("nodes", SettingKind::Name),
@@ -707,6 +715,12 @@ impl<'s> Elaborator<'s> {
             };
             let value = match (setting_kind, &a.value) {
                 (SettingKind::Name, Expr::Name(id)) => SettingValue::Name(id.name.clone()),
+                (SettingKind::Name, Expr::Indexed(id, index, _)) => {
+                    match self.eval_int(index, &refs) {
+                        Some(i) => SettingValue::Name(format!("{}[{i}]", id.name)),
+                        None => continue,
+                    }
+                }
                 (SettingKind::Name, Expr::Str(s, _)) => SettingValue::Text(s.clone()),
                 (SettingKind::Name, e) => {
                     self.err(
@@ -872,6 +886,17 @@ impl<'s> Elaborator<'s> {
                     None
                 }
             },
+            Expr::Indexed(id, _, span) => {
+                self.err(
+                    ErrorKind::BadValue,
+                    *span,
+                    format!(
+                        "`{}[...]` names a node or element; a number is expected here",
+                        id.name
+                    ),
+                );
+                None
+            }
             Expr::Neg(inner, _) => self.eval(inner, frames).map(|q| Q {
                 v: -q.v,
                 dim: q.dim,

@@ -617,6 +617,13 @@ impl<'a> Parser<'a> {
                         span,
                     });
                 }
+                if self.is_punct("[") && !self.toks[self.pos].spaced {
+                    self.bump();
+                    let index = self.expr()?;
+                    self.expect_punct("]")?;
+                    let span = span.to(self.prev_span());
+                    return Ok(Expr::Indexed(id, Box::new(index), span));
+                }
                 Ok(Expr::Name(id))
             }
             Tok::Punct("(") => {
