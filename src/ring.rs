@@ -152,11 +152,24 @@ pub fn run_ring_recorded(
     let needed = params.discard + params.measure + 1;
     let mut seen = 0usize;
     let mut last = f64::NAN;
-    let mut observer = |_t: f64, v: &[f64]| {
+    // Progress on stderr (hidden when stderr is not a terminal): periods seen and time reached.
+    let bar = indicatif::ProgressBar::new(needed as u64 + 1);
+    if let Ok(style) =
+        indicatif::ProgressStyle::with_template("{bar:30} {pos}/{len} periods  {msg}")
+    {
+        bar.set_style(style);
+    }
+    let mut steps = 0u64;
+    let mut observer = |t: f64, v: &[f64]| {
         if last < level && v[0] >= level {
             seen += 1;
+            bar.set_position(seen as u64);
         }
         last = v[0];
+        steps += 1;
+        if steps % 2000 == 0 {
+            bar.set_message(format!("t = {:.3} ns, {steps} steps", t * 1e9));
+        }
         if seen > needed {
             Control::Stop
         } else {
@@ -169,7 +182,9 @@ pub fn run_ring_recorded(
         Probe::Voltage(ring.outputs[1]),
     ];
     let start = single_edge_start(ring);
-    let res = system.transient(&tp, &start, &probes, Some(&mut observer))?;
+    let res = system.transient(&tp, &start, &probes, Some(&mut observer));
+    bar.finish_and_clear();
+    let res = res?;
     let est = period(&res.time, &res.signals[0], level, params.discard).map_err(|e| {
         RingError::NoOscillation(format!("{e} by t = {:.3e} s", res.stats.end_time))
     })?;
