@@ -407,20 +407,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             };
             let (mut system, ring, params) =
                 design::ring_from(d, &base).map_err(Failure::Invalid)?;
-            if let Some(path) = dump_matrix {
-                dump(&mut system, &ring, &path)?;
-            }
-            let (report, waves) = run_ring_recorded(&mut system, &ring, &params)
-                .map_err(|e| Failure::Analysis(e.to_string()))?;
-            if let Some(dir) = &out {
-                write_ring(dir, &report, &waves).map_err(Failure::Usage)?;
-            }
-            if json {
-                out!("{}", ring_json(&report));
-            } else {
-                print_ring(&report);
-            }
-            Ok(())
+            finish_ring(&mut system, &ring, &params, json, dump_matrix, out)
         }
         Job::Ring {
             file: None,
@@ -447,27 +434,39 @@ fn run(cli: Cli) -> Result<(), Failure> {
             let (circuit, ring) = square_ring(stages, &SquareStage::default())
                 .map_err(|e| Failure::Analysis(e.to_string()))?;
             let mut system = System::new(circuit).map_err(|e| Failure::Analysis(e.to_string()))?;
-            if let Some(path) = dump_matrix {
-                dump(&mut system, &ring, &path)?;
-            }
             let params = RingParams {
                 integrator: method(integrator),
                 reference,
                 ..RingParams::default()
             };
-            let (report, waves) = run_ring_recorded(&mut system, &ring, &params)
-                .map_err(|e| Failure::Analysis(e.to_string()))?;
-            if let Some(dir) = &out {
-                write_ring(dir, &report, &waves).map_err(Failure::Usage)?;
-            }
-            if json {
-                out!("{}", ring_json(&report));
-            } else {
-                print_ring(&report);
-            }
-            Ok(())
+            finish_ring(&mut system, &ring, &params, json, dump_matrix, out)
         }
     }
+}
+
+/// The ring job's common end: optional matrix dump, the run, files, and the report.
+fn finish_ring(
+    system: &mut System,
+    ring: &Ring,
+    params: &RingParams,
+    json: bool,
+    dump_matrix: Option<PathBuf>,
+    out: Option<PathBuf>,
+) -> Result<(), Failure> {
+    if let Some(path) = dump_matrix {
+        dump(system, ring, &path)?;
+    }
+    let (report, waves) =
+        run_ring_recorded(system, ring, params).map_err(|e| Failure::Analysis(e.to_string()))?;
+    if let Some(dir) = &out {
+        write_ring(dir, &report, &waves).map_err(Failure::Usage)?;
+    }
+    if json {
+        out!("{}", ring_json(&report));
+    } else {
+        print_ring(&report);
+    }
+    Ok(())
 }
 
 fn write_ring(dir: &Path, r: &RingReport, w: &RingWaves) -> Result<(), String> {

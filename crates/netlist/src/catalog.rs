@@ -128,6 +128,17 @@ fn source_wave(v: &Values) -> Waveform {
         .unwrap_or(Waveform::Constant(v.numbers[0]))
 }
 
+/// Parameters of both square-law reference FETs.
+static SQUARE_PARAMS: &[ParamSpec] = &[
+    req("k", Dim::TRANSCONDUCTANCE_PARAMETER),
+    ParamSpec {
+        positive: false,
+        ..req("threshold", Dim::VOLTAGE)
+    },
+    opt("length_modulation", Dim::PER_VOLT, 0.0),
+    opt("gate_capacitance", Dim::CAPACITANCE, 0.0),
+];
+
 /// Every element kind, in the order the language reference lists them.
 pub static KINDS: &[Kind] = &[
     Kind {
@@ -189,30 +200,14 @@ pub static KINDS: &[Kind] = &[
         name: "square_nfet",
         about: "square-law n-channel reference FET",
         terminals: &["drain", "gate", "source"],
-        params: &[
-            req("k", Dim::TRANSCONDUCTANCE_PARAMETER),
-            ParamSpec {
-                positive: false,
-                ..req("threshold", Dim::VOLTAGE)
-            },
-            opt("length_modulation", Dim::PER_VOLT, 0.0),
-            opt("gate_capacitance", Dim::CAPACITANCE, 0.0),
-        ],
+        params: SQUARE_PARAMS,
         build: |v| Ok(Box::new(square(Polarity::N, v))),
     },
     Kind {
         name: "square_pfet",
         about: "square-law p-channel reference FET (threshold negative)",
         terminals: &["drain", "gate", "source"],
-        params: &[
-            req("k", Dim::TRANSCONDUCTANCE_PARAMETER),
-            ParamSpec {
-                positive: false,
-                ..req("threshold", Dim::VOLTAGE)
-            },
-            opt("length_modulation", Dim::PER_VOLT, 0.0),
-            opt("gate_capacitance", Dim::CAPACITANCE, 0.0),
-        ],
+        params: SQUARE_PARAMS,
         build: |v| Ok(Box::new(square(Polarity::P, v))),
     },
     Kind {
