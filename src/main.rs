@@ -514,7 +514,13 @@ fn write_vtc(dir: &Path, kind: &str, o: &Outcome) -> Result<(), String> {
             None => Vec::new(),
         };
         lamina::plot::transfer(&dir.join("transfer"), vin, vout, &marks)?;
-        lamina::plot::butterfly(&dir.join("butterfly"), vin, vout, snm.map(|s| s.snm))?;
+        lamina::plot::butterfly(
+            &dir.join("butterfly"),
+            vin,
+            vout,
+            snm.map(|s| s.snm),
+            &snm.map(|s| s.squares.to_vec()).unwrap_or_default(),
+        )?;
         eprintln!(
             "wrote transfer.csv, summary.json, transfer.svg/png and butterfly.svg/png to {}",
             dir.display()

@@ -35,26 +35,27 @@ fn err<E: std::fmt::Debug>(e: E) -> String {
 /// Draws with `draw` into `stem.svg` and `stem.png`.
 fn both(
     stem: &Path,
+    size: (u32, u32),
     draw: impl Fn(&DrawingArea<SVGBackend<'_>, Shift>) -> DrawResult + Copy,
     draw_png: impl Fn(&DrawingArea<BitMapBackend<'_>, Shift>) -> DrawResult,
 ) -> DrawResult {
     register();
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
+        let root = SVGBackend::with_string(&mut svg, size).into_drawing_area();
         draw(&root)?;
         root.present().map_err(err)?;
     }
     crate::output::write_whole(&stem.with_extension("svg"), svg.as_bytes())?;
-    let mut buf = vec![0u8; (SIZE.0 * SIZE.1 * 3) as usize];
+    let mut buf = vec![0u8; (size.0 * size.1 * 3) as usize];
     {
-        let root = BitMapBackend::with_buffer(&mut buf, SIZE).into_drawing_area();
+        let root = BitMapBackend::with_buffer(&mut buf, size).into_drawing_area();
         draw_png(&root)?;
         root.present().map_err(err)?;
     }
     let mut png_bytes = Vec::new();
     {
-        let mut enc = png::Encoder::new(&mut png_bytes, SIZE.0, SIZE.1);
+        let mut enc = png::Encoder::new(&mut png_bytes, size.0, size.1);
         enc.set_color(png::ColorType::Rgb);
         enc.set_depth(png::BitDepth::Eight);
         let mut w = enc.write_header().map_err(err)?;
@@ -149,11 +150,17 @@ pub fn transfer(stem: &Path, vin: &[f64], vout: &[f64], marks: &[(&str, f64)]) -
             Ok(())
         }};
     }
-    both(stem, |r| body!(r), |r| body!(r))
+    both(stem, SIZE, |r| body!(r), |r| body!(r))
 }
 
-/// The butterfly: the curve and its mirror image.
-pub fn butterfly(stem: &Path, vin: &[f64], vout: &[f64], snm: Option<f64>) -> DrawResult {
+/// The butterfly: the curve and its mirror image, with the largest square of each lobe.
+pub fn butterfly(
+    stem: &Path,
+    vin: &[f64],
+    vout: &[f64],
+    snm: Option<f64>,
+    squares: &[((f64, f64), (f64, f64))],
+) -> DrawResult {
     let (lo, hi) = span(vin.iter().copied().chain(vout.iter().copied()));
     let title = match snm {
         Some(s) => format!("Butterfly, largest square {:.3} V (model estimate)", s),
@@ -189,10 +196,18 @@ pub fn butterfly(stem: &Path, vin: &[f64], vout: &[f64], snm: Option<f64>) -> Dr
                     WARM.stroke_width(2),
                 ))
                 .map_err(err)?;
+            for &((x0, y0), (x1, y1)) in squares {
+                chart
+                    .draw_series(std::iter::once(Rectangle::new(
+                        [(x0.min(x1), y0.min(y1)), (x0.max(x1), y0.max(y1))],
+                        MOSS.stroke_width(2),
+                    )))
+                    .map_err(err)?;
+            }
             Ok(())
         }};
     }
-    both(stem, |r| body!(r), |r| body!(r))
+    both(stem, (640, 640), |r| body!(r), |r| body!(r))
 }
 
 /// Waveforms against time (ns).
@@ -240,7 +255,7 @@ pub fn waveforms(stem: &Path, t: &[f64], series: &[(&str, &[f64])]) -> DrawResul
             Ok(())
         }};
     }
-    both(stem, |r| body!(r), |r| body!(r))
+    both(stem, SIZE, |r| body!(r), |r| body!(r))
 }
 
 /// Device transfer characteristics |I_D|(V_GS) on a log scale, one curve per V_DS.
@@ -302,5 +317,5 @@ pub fn transfer_log(
             Ok(())
         }};
     }
-    both(stem, |r| body!(r), |r| body!(r))
+    both(stem, SIZE, |r| body!(r), |r| body!(r))
 }

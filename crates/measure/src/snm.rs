@@ -17,6 +17,9 @@ pub struct NoiseMargin {
     pub upper_lobe: f64,
     /// The other lobe (V).
     pub lower_lobe: f64,
+    /// Opposite corners `(x, y)` of the largest square in each lobe (upper, lower), in the
+    /// butterfly's coordinates (curve 1's input and output).
+    pub squares: [((f64, f64), (f64, f64)); 2],
 }
 
 /// Interpolates `v` at `u` on a polyline sorted by increasing `u`.
@@ -68,10 +71,16 @@ pub fn butterfly(x1: &[f64], y1: &[f64], x2: &[f64], y2: &[f64]) -> Option<Noise
         .collect();
     grid.sort_by(f64::total_cmp);
     grid.dedup();
-    let d: Vec<f64> = grid
-        .iter()
-        .filter_map(|&u| Some(at(&au, &av, u)? - at(&bu, &bv, u)?))
-        .collect();
+    let mut us = Vec::with_capacity(grid.len());
+    let mut vas = Vec::with_capacity(grid.len());
+    let mut d = Vec::with_capacity(grid.len());
+    for &u in &grid {
+        if let (Some(va), Some(vb)) = (at(&au, &av, u), at(&bu, &bv, u)) {
+            us.push(u);
+            vas.push(va);
+            d.push(va - vb);
+        }
+    }
     let scale = d.iter().fold(0.0f64, |m, v| m.max(v.abs()));
     if d.len() < 3 || scale == 0.0 {
         return None;
@@ -91,26 +100,41 @@ pub fn butterfly(x1: &[f64], y1: &[f64], x2: &[f64], y2: &[f64]) -> Option<Noise
     segments.push((start, d.len() - 1));
     let last = segments.len() - 1;
     let (mut up, mut down) = (0.0f64, 0.0f64);
+    let (mut k_up, mut k_down) = (0usize, 0usize);
     for (i, &(a, b)) in segments.iter().enumerate() {
         let bounded = (i > 0 || meets(d[0])) && (i < last || meets(d[d.len() - 1]));
         if !bounded {
             continue;
         }
-        let peak = d[a..=b].iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        let k = (a..=b)
+            .max_by(|&i, &j| d[i].abs().total_cmp(&d[j].abs()))
+            .unwrap_or(a);
+        let peak = d[k].abs();
         if d[a] > 0.0 || d[b] > 0.0 {
-            up = up.max(peak);
-        } else {
-            down = down.max(peak);
+            if peak > up {
+                up = peak;
+                k_up = k;
+            }
+        } else if peak > down {
+            down = peak;
+            k_down = k;
         }
     }
     if up <= 0.0 || down <= 0.0 {
         return None;
     }
+    // The square's diagonal is the segment between the two curves at the peak's u, along the
+    // rotated v axis: back in (x, y) it joins opposite corners.
+    let corners = |k: usize| {
+        let (u, va, vb) = (us[k], vas[k], vas[k] - d[k]);
+        (((va + u) * s, (va - u) * s), ((vb + u) * s, (vb - u) * s))
+    };
     let (upper_lobe, lower_lobe) = (up * s, down * s);
     Some(NoiseMargin {
         snm: upper_lobe.min(lower_lobe),
         upper_lobe,
         lower_lobe,
+        squares: [corners(k_up), corners(k_down)],
     })
 }
 
@@ -138,6 +162,11 @@ mod tests {
         let m = butterfly(&x, &y, &x, &y).unwrap();
         assert!((m.snm - 0.5).abs() < 2e-3, "{m:?}");
         assert!((m.upper_lobe - m.lower_lobe).abs() < 1e-9);
+        // Each square's corners are a side apart in x and in y.
+        for ((x0, y0), (x1, y1)) in m.squares {
+            assert!(((x1 - x0).abs() - m.upper_lobe).abs() < 1e-9, "{m:?}");
+            assert!(((y1 - y0).abs() - m.upper_lobe).abs() < 1e-9);
+        }
     }
 
     /// A curve that never crosses its mirror image has no lobes.
