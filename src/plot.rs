@@ -159,7 +159,7 @@ pub fn butterfly(
     vin: &[f64],
     vout: &[f64],
     snm: Option<f64>,
-    squares: &[((f64, f64), (f64, f64))],
+    squares: &[lamina_measure::snm::Square],
 ) -> DrawResult {
     let (lo, hi) = span(vin.iter().copied().chain(vout.iter().copied()));
     let title = match snm {

@@ -8,6 +8,9 @@
 //! `max |v1(u) - v2(u)| / √2` over the `u` range where the difference keeps one sign; the
 //! margin of the pair is the smaller of its two lobes.
 
+/// Opposite corners `(x, y)` of a square in the butterfly's coordinates.
+pub type Square = ((f64, f64), (f64, f64));
+
 /// The maximum-square margins of a butterfly.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct NoiseMargin {
@@ -19,7 +22,7 @@ pub struct NoiseMargin {
     pub lower_lobe: f64,
     /// Opposite corners `(x, y)` of the largest square in each lobe (upper, lower), in the
     /// butterfly's coordinates (curve 1's input and output).
-    pub squares: [((f64, f64), (f64, f64)); 2],
+    pub squares: [Square; 2],
 }
 
 /// Interpolates `v` at `u` on a polyline sorted by increasing `u`.
