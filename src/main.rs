@@ -155,6 +155,9 @@ enum Job {
         /// Print one JSON object instead of a table.
         #[arg(long)]
         json: bool,
+        /// Write the rows (CSV, JSON) and a plot of every figure against the first parameter.
+        #[arg(long, value_name = "DIR")]
+        out: Option<PathBuf>,
     },
     /// Run every analysis a circuit file declares.
     Run {
@@ -295,6 +298,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             param,
             set,
             json,
+            out,
         } => {
             let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
             let axes: Vec<lamina::sweep::Axis> = param
@@ -305,6 +309,9 @@ fn run(cli: Cli) -> Result<(), Failure> {
             // Check the file once, so that a broken file is reported once and not per point.
             design::load(&file, &sets).map_err(Failure::Invalid)?;
             let rows = lamina::sweep::run_sweep(&file, &sets, &axes, true);
+            if let Some(dir) = &out {
+                write_sweep(dir, &axes, &rows).map_err(Failure::Usage)?;
+            }
             let keys: Vec<String> = rows
                 .iter()
                 .find(|r| r.error.is_none())
@@ -444,6 +451,87 @@ fn run(cli: Cli) -> Result<(), Failure> {
     }
 }
 
+/// Sweep rows as CSV and JSON, and each figure plotted against the first parameter (one curve
+/// per combination of the others).
+fn write_sweep(
+    dir: &Path,
+    axes: &[lamina::sweep::Axis],
+    rows: &[lamina::sweep::Row],
+) -> Result<(), String> {
+    ensure_dir(dir)?;
+    let keys: Vec<String> = rows
+        .iter()
+        .find(|r| r.error.is_none())
+        .map(|r| r.figures.iter().map(|(k, _)| k.clone()).collect())
+        .unwrap_or_default();
+    let mut text = axes
+        .iter()
+        .map(|a| a.name.clone())
+        .chain(keys.iter().cloned())
+        .chain(["error".to_string()])
+        .collect::<Vec<_>>()
+        .join(",");
+    text.push('\n');
+    for r in rows {
+        let mut cells: Vec<String> = r.point.iter().map(|(_, v)| format!("{v:e}")).collect();
+        for k in &keys {
+            cells.push(
+                r.figures
+                    .iter()
+                    .find(|(n, _)| n == k)
+                    .map_or(String::new(), |(_, v)| format!("{v:e}")),
+            );
+        }
+        cells.push(r.error.clone().unwrap_or_default().replace(',', ";"));
+        text.push_str(&cells.join(","));
+        text.push('\n');
+    }
+    write_file(&dir.join("sweep.csv"), text.as_bytes())?;
+    let Some(first) = axes.first() else {
+        return Ok(());
+    };
+    for k in &keys {
+        let mut series: Vec<(String, Vec<(f64, f64)>)> = Vec::new();
+        for r in rows.iter().filter(|r| r.error.is_none()) {
+            let label: String = r.point[1..]
+                .iter()
+                .map(|(n, v)| format!("{n} = {v}"))
+                .collect::<Vec<_>>()
+                .join(", ");
+            let label = if label.is_empty() { k.clone() } else { label };
+            if let Some((_, v)) = r.figures.iter().find(|(n, _)| n == k) {
+                match series.iter_mut().find(|(l, _)| *l == label) {
+                    Some((_, pts)) => pts.push((r.point[0].1, *v)),
+                    None => series.push((label, vec![(r.point[0].1, *v)])),
+                }
+            }
+        }
+        let stem: String = k
+            .chars()
+            .map(|c| {
+                if c.is_ascii_alphanumeric() || c == '_' {
+                    c
+                } else {
+                    '_'
+                }
+            })
+            .collect();
+        lamina::plot::curves(
+            &dir.join(stem),
+            &format!("{k} against {} (model estimate)", first.name),
+            &first.name,
+            k,
+            &series,
+        )?;
+    }
+    eprintln!(
+        "wrote sweep.csv and {} plots to {}",
+        keys.len(),
+        dir.display()
+    );
+    Ok(())
+}
+
 /// The ring job's common end: optional matrix dump, the run, files, and the report.
 fn finish_ring(
     system: &mut System,
@@ -558,6 +646,35 @@ fn write_iv(dir: &Path, points: &[lamina::iv::IvPoint]) -> Result<(), String> {
         })
         .collect();
     lamina::plot::transfer_log(&dir.join("transfer-log"), &curves, m.ss_min_mv_per_dec)?;
+    let mut vgs: Vec<f64> = points.iter().map(|p| p.vgs).collect();
+    vgs.sort_by(f64::total_cmp);
+    vgs.dedup();
+    if vds.len() > 1 {
+        // Output characteristics for up to six gate voltages spread over the sweep.
+        let pick: Vec<f64> = (0..vgs.len().min(6))
+            .map(|k| vgs[k * (vgs.len() - 1) / (vgs.len().min(6) - 1).max(1)])
+            .collect();
+        let series: Vec<(String, Vec<(f64, f64)>)> = pick
+            .iter()
+            .map(|&g| {
+                (
+                    format!("V_GS = {g:.2} V"),
+                    points
+                        .iter()
+                        .filter(|p| p.vgs == g)
+                        .map(|p| (p.vds, p.id))
+                        .collect(),
+                )
+            })
+            .collect();
+        lamina::plot::curves(
+            &dir.join("output"),
+            "Output characteristics (model estimate)",
+            "V_DS (V)",
+            "I_D (A)",
+            &series,
+        )?;
+    }
     eprintln!(
         "wrote iv.csv, summary.json and transfer-log.svg/png to {}",
         dir.display()

@@ -319,3 +319,63 @@ pub fn transfer_log(
     }
     both(stem, SIZE, |r| body!(r), |r| body!(r))
 }
+
+/// Curves `y(x)` with their own legend labels (output characteristics, swept figures).
+pub fn curves(
+    stem: &Path,
+    title: &str,
+    x_desc: &str,
+    y_desc: &str,
+    series: &[(String, Vec<(f64, f64)>)],
+) -> DrawResult {
+    let (x0, x1) = span(series.iter().flat_map(|(_, c)| c.iter().map(|p| p.0)));
+    let (y0, y1) = span(series.iter().flat_map(|(_, c)| c.iter().map(|p| p.1)));
+    let pad = 0.05 * (y1 - y0);
+    let colors = [
+        INK,
+        WARM,
+        MOSS,
+        RGBColor(120, 60, 150),
+        RGBColor(150, 40, 60),
+        RGBColor(30, 120, 140),
+    ];
+    macro_rules! body {
+        ($root:expr) => {{
+            let root = $root;
+            root.fill(&WHITE).map_err(err)?;
+            let mut chart = ChartBuilder::on(root)
+                .caption(title, ("sans-serif", 20))
+                .margin(14)
+                .x_label_area_size(44)
+                .y_label_area_size(70)
+                .build_cartesian_2d(x0..x1, y0 - pad..y1 + pad)
+                .map_err(err)?;
+            chart
+                .configure_mesh()
+                .x_desc(x_desc)
+                .y_desc(y_desc)
+                .y_label_formatter(&|v| format!("{v:.2e}"))
+                .light_line_style(RGBColor(235, 235, 235))
+                .draw()
+                .map_err(err)?;
+            for (k, (name, c)) in series.iter().enumerate() {
+                let col = colors[k % colors.len()];
+                chart
+                    .draw_series(LineSeries::new(c.iter().copied(), col.stroke_width(2)))
+                    .map_err(err)?
+                    .label(name.clone())
+                    .legend(move |(x, y)| {
+                        PathElement::new(vec![(x, y), (x + 20, y)], col.stroke_width(2))
+                    });
+            }
+            chart
+                .configure_series_labels()
+                .background_style(WHITE)
+                .border_style(RGBColor(180, 180, 180))
+                .draw()
+                .map_err(err)?;
+            Ok(())
+        }};
+    }
+    both(stem, SIZE, |r| body!(r), |r| body!(r))
+}
