@@ -75,6 +75,10 @@ enum Job {
         /// Use the tighter reference tolerances.
         #[arg(long)]
         reference: bool,
+        /// Estimate by edge travel (the time the single edge takes between two nodes) instead of
+        /// whole periods: for long rings, where a period is costly.
+        #[arg(long)]
+        edge: bool,
         /// Print one JSON object instead of a table.
         #[arg(long)]
         json: bool,
@@ -400,6 +404,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             set,
             integrator,
             reference,
+            edge,
             json,
             dump_matrix,
             out,
@@ -410,6 +415,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             let base = RingParams {
                 integrator: method(integrator),
                 reference,
+                edge,
                 ..RingParams::default()
             };
             let (mut system, ring, params) =
@@ -422,6 +428,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             stages,
             integrator,
             reference,
+            edge,
             json,
             dump_matrix,
             out,
@@ -444,6 +451,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             let params = RingParams {
                 integrator: method(integrator),
                 reference,
+                edge,
                 ..RingParams::default()
             };
             finish_ring(&mut system, &ring, &params, json, dump_matrix, out)
@@ -830,7 +838,7 @@ fn ring_json(r: &RingReport) -> serde_json::Value {
         "period_spread": r.period_spread,
         "avg_power_w": r.avg_power,
         "energy_per_cycle_j": r.energy_per_cycle,
-        "method": "period from rising mid-level crossings of out[0]",
+        "method": r.method,
         "steps": r.steps,
         "rejected_steps": r.rejected,
         "newton_iterations": r.newton_iterations,
@@ -846,11 +854,14 @@ fn print_ring(r: &RingReport) {
         "  stage delay    {:>14.6} ps   (1 / (2 N f))",
         r.stage_delay * 1e12
     );
-    out!(
-        "  supply power   {:>14.6} uW   (mean over the measured periods)",
-        r.avg_power * 1e6
-    );
-    out!("  energy/cycle   {:>14.6} fJ", r.energy_per_cycle * 1e15);
+    if r.avg_power.is_finite() {
+        out!(
+            "  supply power   {:>14.6} uW   (mean over the measured periods)",
+            r.avg_power * 1e6
+        );
+        out!("  energy/cycle   {:>14.6} fJ", r.energy_per_cycle * 1e15);
+    }
+    out!("  method         {}", r.method);
     out!(
         "  periods        {:>14}      ({} discarded as start-up, spread {:.1e})",
         r.periods_used,

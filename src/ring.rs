@@ -30,6 +30,8 @@ pub struct RingParams {
     pub measure: usize,
     /// Give up if no result by this time (s).
     pub time_limit: f64,
+    /// Measure by edge travel instead of whole periods (for very long rings).
+    pub edge: bool,
 }
 
 impl Default for RingParams {
@@ -39,6 +41,7 @@ impl Default for RingParams {
             reference: false,
             discard: 3,
             measure: 5,
+            edge: false,
             time_limit: 1e-3,
         }
     }
@@ -47,6 +50,8 @@ impl Default for RingParams {
 /// What the ring job measured.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct RingReport {
+    /// How the frequency was measured.
+    pub method: &'static str,
     /// Number of stages.
     pub stages: usize,
     /// Average power drawn from the supply over the measured periods (W).
@@ -141,6 +146,9 @@ pub fn run_ring_recorded(
             "a ring of inverting stages needs an odd number of at least 3 stages, this one has {stages}"
         )));
     }
+    if params.edge {
+        return run_edge(system, ring, params);
+    }
     let mut tp = if params.reference {
         TransientParams::reference(params.time_limit)
     } else {
@@ -208,6 +216,7 @@ pub fn run_ring_recorded(
     let avg_power =
         lamina_measure::waveform::mean_over(&res.time, &power, t0, t1).unwrap_or(f64::NAN);
     let report = RingReport {
+        method: METHOD_PERIOD,
         stages,
         avg_power,
         energy_per_cycle: avg_power * est.period,
@@ -225,6 +234,103 @@ pub fn run_ring_recorded(
     let mut signals = res.signals;
     let second = signals.pop().unwrap_or_default();
     let _supply = signals.pop();
+    let first = signals.pop().unwrap_or_default();
+    Ok((report, (res.time, first, second)))
+}
+
+/// Method text of the whole-period measurement.
+pub const METHOD_PERIOD: &str = "period from rising mid-level crossings of out[0]";
+/// Method text of the edge-travel estimate.
+pub const METHOD_EDGE: &str =
+    "edge travel: stage delay from the time the single edge takes between two nodes";
+
+/// The edge-travel estimate (for long rings of identical stages): after the single edge has
+/// formed over the first stages, it travels at constant speed, so the time between its
+/// mid-level crossings of two nodes A < B of the same parity gives the mean stage delay
+/// `t_p = (t_B - t_A) / (B - A)` and `f = 1 / (2 N t_p)`. No full period is simulated; supply
+/// power is not measured (NaN).
+fn run_edge(
+    system: &mut System,
+    ring: &Ring,
+    params: &RingParams,
+) -> Result<(RingReport, RingWaves), RingError> {
+    let stages = ring.outputs.len();
+    // Let the edge form over about 20 stages, then time it over as many as the ring allows.
+    let a = if stages > 60 { 20 } else { 2 * (stages / 6) };
+    // Up to 200 stages of travel: enough to average the edge's speed, and the cost of the
+    // run does not grow with the ring beyond that.
+    let b = a + 2 * ((stages - 1 - a) / 2).min(100);
+    if b <= a + 1 {
+        return Err(RingError::NoOscillation(format!(
+            "{stages} stages are too few for the edge-travel estimate; use whole periods"
+        )));
+    }
+    let mut tp = if params.reference {
+        TransientParams::reference(params.time_limit)
+    } else {
+        TransientParams::new(params.time_limit)
+    };
+    tp.integrator = params.integrator;
+    tp.min_step = Some(params.time_limit * 1e-15);
+    let level = 0.5 * ring.vdd;
+    let mut last = f64::NAN;
+    let bar = indicatif::ProgressBar::new(b as u64);
+    let mut steps = 0u64;
+    let mut observer = |t: f64, v: &[f64]| {
+        steps += 1;
+        if steps % 2000 == 0 {
+            bar.set_message(format!("t = {:.3} ns, {steps} steps", t * 1e9));
+        }
+        // Node B (even, starting high) falls when the edge reaches it.
+        let done = last > level && v[1] <= level;
+        last = v[1];
+        if done {
+            Control::Stop
+        } else {
+            Control::Continue
+        }
+    };
+    let probes = [
+        Probe::Voltage(ring.outputs[a]),
+        Probe::Voltage(ring.outputs[b]),
+    ];
+    let res = system.transient(&tp, &single_edge_start(ring), &probes, Some(&mut observer));
+    bar.finish_and_clear();
+    let res = res?;
+    let first = |v: &[f64]| {
+        lamina_measure::crossings(&res.time, v, level, lamina_measure::Direction::Falling)
+            .first()
+            .copied()
+    };
+    let (ta, tb) = match (first(&res.signals[0]), first(&res.signals[1])) {
+        (Some(ta), Some(tb)) if tb > ta => (ta, tb),
+        _ => {
+            return Err(RingError::NoOscillation(format!(
+                "no edge reached out[{b}] after out[{a}] by t = {:.3e} s",
+                res.stats.end_time
+            )))
+        }
+    };
+    let stage_delay = (tb - ta) / (b - a) as f64;
+    let frequency = 1.0 / (2.0 * stages as f64 * stage_delay);
+    let report = RingReport {
+        method: METHOD_EDGE,
+        stages,
+        avg_power: f64::NAN,
+        energy_per_cycle: f64::NAN,
+        frequency,
+        period: 1.0 / frequency,
+        stage_delay,
+        periods_discarded: 0,
+        periods_used: 0,
+        period_spread: f64::NAN,
+        steps: res.stats.accepted,
+        rejected: res.stats.rejected_lte + res.stats.rejected_newton,
+        newton_iterations: res.stats.newton_iterations,
+        simulated: res.stats.end_time,
+    };
+    let mut signals = res.signals;
+    let second = signals.pop().unwrap_or_default();
     let first = signals.pop().unwrap_or_default();
     Ok((report, (res.time, first, second)))
 }

@@ -156,3 +156,28 @@ fn frequency_agrees_with_measured_stage_delays() {
         report.frequency
     );
 }
+
+/// The edge-travel estimate (the time a settled single edge takes between two same-parity
+/// nodes gives the stage delay; common practice for long rings) agrees with whole periods.
+#[test]
+fn edge_travel_estimate_agrees_with_whole_periods() {
+    let period = ring(101, &RingParams::default());
+    let edge = ring(
+        101,
+        &RingParams {
+            edge: true,
+            ..RingParams::default()
+        },
+    );
+    assert!(
+        (edge.frequency / period.frequency - 1.0).abs() < 1e-3,
+        "{} vs {}",
+        edge.frequency,
+        period.frequency
+    );
+    assert_eq!(edge.method, lamina::ring::METHOD_EDGE);
+    assert!(
+        edge.simulated < 0.6 * period.simulated,
+        "no full period is needed"
+    );
+}
