@@ -144,6 +144,9 @@ enum Job {
         /// Print one JSON object instead of a table.
         #[arg(long)]
         json: bool,
+        /// Write the summary (JSON) into this directory.
+        #[arg(long, value_name = "DIR")]
+        out: Option<PathBuf>,
     },
     /// A file's analyses over a grid of parameter values, points in parallel.
     Sweep {
@@ -173,6 +176,10 @@ enum Job {
         /// Print one JSON object instead of tables.
         #[arg(long)]
         json: bool,
+        /// Write the summary of every analysis (JSON) and each transfer curve's data and plots
+        /// into this directory.
+        #[arg(long, value_name = "DIR")]
+        out: Option<PathBuf>,
     },
 }
 
@@ -368,10 +375,18 @@ fn run(cli: Cli) -> Result<(), Failure> {
             }
             Ok(())
         }
-        Job::Delay { file, set, json } => {
+        Job::Delay {
+            file,
+            set,
+            json,
+            out,
+        } => {
             let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
             let results = design::run_all(&file, &sets, &RingParams::default(), Some("delay"))
                 .map_err(Failure::Invalid)?;
+            if let Some(dir) = &out {
+                write_run(dir, &results).map_err(Failure::Usage)?;
+            }
             let (kind, outcome) = &results[0];
             if json {
                 let mut v = outcome_json(kind, outcome);
@@ -384,10 +399,18 @@ fn run(cli: Cli) -> Result<(), Failure> {
             }
             Ok(())
         }
-        Job::Run { file, set, json } => {
+        Job::Run {
+            file,
+            set,
+            json,
+            out,
+        } => {
             let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
             let results = design::run_all(&file, &sets, &RingParams::default(), None)
                 .map_err(Failure::Invalid)?;
+            if let Some(dir) = &out {
+                write_run(dir, &results).map_err(Failure::Usage)?;
+            }
             if json {
                 let items: Vec<serde_json::Value> =
                     results.iter().map(|(k, o)| outcome_json(k, o)).collect();
@@ -538,6 +561,28 @@ fn write_sweep(
         dir.display()
     );
     Ok(())
+}
+
+/// Every analysis's summary in one JSON file, and each transfer curve's files in a folder of
+/// its own (`transfer-1`, ...).
+fn write_run(dir: &Path, results: &[(String, Outcome)]) -> Result<(), String> {
+    ensure_dir(dir)?;
+    let mut items = Vec::new();
+    for (k, (kind, o)) in results.iter().enumerate() {
+        let mut j = outcome_json(kind, o);
+        if let Some(m) = j.as_object_mut() {
+            m.remove("vin");
+            m.remove("vout");
+        }
+        items.push(j);
+        if matches!(o, Outcome::Transfer { .. }) {
+            write_vtc(&dir.join(format!("{kind}-{}", k + 1)), kind, o)?;
+        }
+    }
+    write_file(
+        &dir.join("summary.json"),
+        format!("{}\n", serde_json::json!({ "analyses": items })).as_bytes(),
+    )
 }
 
 /// The ring job's common end: optional matrix dump, the run, files, and the report.
