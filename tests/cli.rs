@@ -257,6 +257,12 @@ fn out_writes_data_summary_and_plots() {
             assert!(String::from_utf8_lossy(&bytes).contains("<svg"));
         }
     }
+    let run = lamina(&["run", "netlists/inverter.lam", "--out", &format!("{d}/run")]);
+    assert!(run.status.success());
+    let all: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(dir.join("run/summary.json")).unwrap()).unwrap();
+    assert_eq!(all["analyses"][0]["analysis"], "transfer");
+    assert!(dir.join("run/transfer-1/butterfly.svg").exists());
     let summary: serde_json::Value =
         serde_json::from_slice(&std::fs::read(dir.join("summary.json")).unwrap()).unwrap();
     assert!((summary["snm"].as_f64().unwrap() - 0.4).abs() < 2e-3);
