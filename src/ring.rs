@@ -4,7 +4,9 @@
 //! threshold), and a random kick often launches several edges. The job therefore starts from a
 //! single defect: `v_i = V_DD` for even `i` and 0 for odd `i`, which for odd `N` leaves nodes
 //! `N-1` and `0` both high, so exactly one edge circulates from t = 0. The transient stops by
-//! itself once `discard + measure` whole periods of `out[0]` have been seen; the frequency is
+//! itself once, after at least `discard` start-up periods of `out[0]`, `measure` successive
+//! periods agree within [`SETTLE_TOLERANCE`] (settling detected; at most 20 periods more are
+//! run, and the report's spread says how well they agreed); the frequency is
 //! the mean over the measured periods of interpolated rising mid-level crossings
 //! (`measure::period`), and the stage delay is `1 / (2 N f)`. Average supply power is the
 //! mean of `V_DD i_supply` over those same whole periods, and the energy per cycle is power
@@ -24,7 +26,8 @@ pub struct RingParams {
     pub integrator: Integrator,
     /// Use the engine's tighter reference tolerances instead of the defaults.
     pub reference: bool,
-    /// Periods discarded as start-up (default 3).
+    /// Least number of periods discarded as start-up (default 3); more are discarded until
+    /// `measure` successive periods agree within [`SETTLE_TOLERANCE`].
     pub discard: usize,
     /// Periods averaged (default 5).
     pub measure: usize,
@@ -157,9 +160,14 @@ pub fn run_ring_recorded(
     tp.integrator = params.integrator;
     tp.min_step = Some(params.time_limit * 1e-15);
     let level = 0.5 * ring.vdd;
+    // Settling: after at least `discard` periods, stop once `measure` successive periods agree
+    // within SETTLE_TOLERANCE (or after MAX_EXTRA_PERIODS more, reporting the spread).
     let needed = params.discard + params.measure + 1;
+    let cap = needed + MAX_EXTRA_PERIODS;
     let mut seen = 0usize;
     let mut last = f64::NAN;
+    let mut last_t = 0.0;
+    let mut ups: Vec<f64> = Vec::new();
     // Progress on stderr (hidden when stderr is not a terminal): periods seen and time reached.
     let bar = indicatif::ProgressBar::new(needed as u64 + 1);
     if let Ok(style) =
@@ -172,13 +180,29 @@ pub fn run_ring_recorded(
         if last < level && v[0] >= level {
             seen += 1;
             bar.set_position(seen as u64);
+            ups.push(last_t + (level - last) / (v[0] - last) * (t - last_t));
         }
         last = v[0];
+        last_t = t;
         steps += 1;
         if steps % 2000 == 0 {
             bar.set_message(format!("t = {:.3} ns, {steps} steps", t * 1e9));
         }
-        if seen > needed {
+        let settled = seen > needed && {
+            let p: Vec<f64> = ups
+                .windows(2)
+                .rev()
+                .take(params.measure)
+                .map(|w| w[1] - w[0])
+                .collect();
+            let (lo, hi) = p
+                .iter()
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| {
+                    (a.min(x), b.max(x))
+                });
+            (hi - lo) / (p.iter().sum::<f64>() / p.len() as f64) <= SETTLE_TOLERANCE
+        };
+        if settled || seen > cap {
             Control::Stop
         } else {
             Control::Continue
@@ -193,7 +217,24 @@ pub fn run_ring_recorded(
     let res = system.transient(&tp, &start, &probes, Some(&mut observer));
     bar.finish_and_clear();
     let res = res?;
-    let est = period(&res.time, &res.signals[0], level, params.discard).map_err(|e| {
+    // Discard up to where the waveform settled (the interpolated crossings of the run decide).
+    let total = lamina_measure::crossings(
+        &res.time,
+        &res.signals[0],
+        level,
+        lamina_measure::Direction::Rising,
+    )
+    .len();
+    let discard = lamina_measure::settled_discard(
+        &res.time,
+        &res.signals[0],
+        level,
+        params.discard,
+        params.measure,
+        SETTLE_TOLERANCE,
+    )
+    .unwrap_or_else(|| total.saturating_sub(params.measure + 1).max(params.discard));
+    let est = period(&res.time, &res.signals[0], level, discard).map_err(|e| {
         RingError::NoOscillation(format!("{e} by t = {:.3e} s", res.stats.end_time))
     })?;
     if est.periods_used < params.measure {
@@ -237,6 +278,11 @@ pub fn run_ring_recorded(
     let first = signals.pop().unwrap_or_default();
     Ok((report, (res.time, first, second)))
 }
+
+/// Successive periods must agree within this (relative spread) to count as settled.
+pub const SETTLE_TOLERANCE: f64 = 1e-4;
+/// Periods run beyond the minimum while waiting for the waveform to settle.
+const MAX_EXTRA_PERIODS: usize = 20;
 
 /// Method text of the whole-period measurement.
 pub const METHOD_PERIOD: &str = "period from rising mid-level crossings of out[0]";

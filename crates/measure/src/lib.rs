@@ -26,4 +26,4 @@ pub mod snm;
 pub mod transfer;
 pub mod waveform;
 
-pub use period::{crossings, period, Direction, PeriodError, PeriodEstimate};
+pub use period::{crossings, period, settled_discard, Direction, PeriodError, PeriodEstimate};

@@ -133,6 +133,32 @@ pub fn period(
     })
 }
 
+/// The first start-up count `d >= min_discard` after which `measure` successive periods agree
+/// within `tol` (`(max - min) / mean`), from the rising crossings of `level`. `None` while the
+/// waveform has not settled (or has too few periods).
+pub fn settled_discard(
+    t: &[f64],
+    v: &[f64],
+    level: f64,
+    min_discard: usize,
+    measure: usize,
+    tol: f64,
+) -> Option<usize> {
+    let c = crossings(t, v, level, Direction::Rising);
+    let periods: Vec<f64> = c.windows(2).map(|w| w[1] - w[0]).collect();
+    let m = measure.max(1);
+    (min_discard..=periods.len().checked_sub(m)?).find(|&d| {
+        let w = &periods[d..d + m];
+        let (lo, hi) = w
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &p| {
+                (a.min(p), b.max(p))
+            });
+        let mean = w.iter().sum::<f64>() / m as f64;
+        (hi - lo) / mean <= tol
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -153,6 +179,35 @@ mod tests {
         assert_eq!(est.periods_discarded, 2);
         let down = crossings(&t, &v, 0.5, Direction::Falling);
         assert!(!down.is_empty());
+    }
+
+    /// A chirp that settles: periods shrink to a constant; settling is found where they agree.
+    #[test]
+    fn settling_is_detected_where_periods_agree() {
+        // Periods 2.0, 1.5, 1.25, 1.125, then 1.0 for ever (a square wave with those edges).
+        let mut edges = vec![0.0];
+        for p in [2.0, 1.5, 1.25, 1.125, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0] {
+            let last = *edges.last().unwrap();
+            edges.push(last + p);
+        }
+        let t: Vec<f64> = (0..120_000).map(|i| i as f64 * 1e-4).collect();
+        let v: Vec<f64> = t
+            .iter()
+            .map(|&x| {
+                let k = edges.partition_point(|&e| e <= x).max(1) - 1;
+                let next = edges.get(k + 1).copied().unwrap_or(f64::INFINITY);
+                if x - edges[k] < 0.5 * (next - edges[k]).min(1.0) {
+                    1.0
+                } else {
+                    0.0
+                }
+            })
+            .collect();
+        // The wave starts high, so the first rising crossing is at t = 2: the periods seen are
+        // 1.5, 1.25, 1.125, 1.0, ... and the first three that agree start at index 3.
+        assert_eq!(settled_discard(&t, &v, 0.5, 0, 3, 1e-3), Some(3));
+        assert_eq!(settled_discard(&t, &v, 0.5, 5, 3, 1e-3), Some(5));
+        assert_eq!(settled_discard(&t, &v, 0.5, 0, 30, 1e-3), None);
     }
 
     #[test]
