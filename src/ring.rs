@@ -152,13 +152,7 @@ pub fn run_ring_recorded(
     if params.edge {
         return run_edge(system, ring, params);
     }
-    let mut tp = if params.reference {
-        TransientParams::reference(params.time_limit)
-    } else {
-        TransientParams::new(params.time_limit)
-    };
-    tp.integrator = params.integrator;
-    tp.min_step = Some(params.time_limit * 1e-15);
+    let tp = transient_params(params);
     let level = 0.5 * ring.vdd;
     // Settling: after at least `discard` periods, stop once `measure` successive periods agree
     // within SETTLE_TOLERANCE (or after MAX_EXTRA_PERIODS more, reporting the spread).
@@ -279,6 +273,19 @@ pub fn run_ring_recorded(
     Ok((report, (res.time, first, second)))
 }
 
+/// The transient settings of a ring run: defaults or the reference setting, the chosen
+/// integrator, and a minimum step far below any stage delay.
+fn transient_params(params: &RingParams) -> TransientParams {
+    let mut tp = if params.reference {
+        TransientParams::reference(params.time_limit)
+    } else {
+        TransientParams::new(params.time_limit)
+    };
+    tp.integrator = params.integrator;
+    tp.min_step = Some(params.time_limit * 1e-15);
+    tp
+}
+
 /// Successive periods must agree within this (relative spread) to count as settled.
 pub const SETTLE_TOLERANCE: f64 = 1e-4;
 /// Periods run beyond the minimum while waiting for the waveform to settle.
@@ -311,13 +318,7 @@ fn run_edge(
             "{stages} stages are too few for the edge-travel estimate; use whole periods"
         )));
     }
-    let mut tp = if params.reference {
-        TransientParams::reference(params.time_limit)
-    } else {
-        TransientParams::new(params.time_limit)
-    };
-    tp.integrator = params.integrator;
-    tp.min_step = Some(params.time_limit * 1e-15);
+    let tp = transient_params(params);
     let level = 0.5 * ring.vdd;
     let mut last = f64::NAN;
     let bar = indicatif::ProgressBar::new(b as u64);
