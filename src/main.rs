@@ -52,6 +52,20 @@ enum Method {
     Bdf2,
 }
 
+/// Flags every file job shares.
+#[derive(clap::Args)]
+struct Common {
+    /// Override a top-level parameter: `--set name=value`, such as `--set vdd=0.7V` (repeatable).
+    #[arg(long = "set", value_name = "NAME=VALUE")]
+    set: Vec<String>,
+    /// Print one JSON object on stdout instead of a table.
+    #[arg(long)]
+    json: bool,
+    /// Write the data (CSV), the summary (JSON) and plots (SVG, PNG) into this directory.
+    #[arg(long, value_name = "DIR")]
+    out: Option<PathBuf>,
+}
+
 #[derive(Subcommand)]
 enum Job {
     /// Oscillation frequency of a ring oscillator: a circuit file with an `analysis ring`, or a
@@ -110,43 +124,22 @@ enum Job {
         /// Drain voltages: a list or a range (V).
         #[arg(long, allow_hyphen_values = true)]
         vds: String,
-        /// Override a top-level parameter: `--set name=value` (repeatable).
-        #[arg(long = "set", value_name = "NAME=VALUE")]
-        set: Vec<String>,
-        /// Print one JSON object instead of a table.
-        #[arg(long)]
-        json: bool,
-        /// Write the points (CSV), the summary (JSON) and plots (SVG, PNG) into this directory.
-        #[arg(long, value_name = "DIR")]
-        out: Option<PathBuf>,
+        #[command(flatten)]
+        common: Common,
     },
     /// Transfer curve, switching threshold and noise margins from a file's `analysis transfer`.
     Vtc {
         /// Circuit file (`.lam`) declaring `analysis transfer { ... }`.
         file: PathBuf,
-        /// Override a top-level parameter: `--set name=value` (repeatable).
-        #[arg(long = "set", value_name = "NAME=VALUE")]
-        set: Vec<String>,
-        /// Print one JSON object instead of a table.
-        #[arg(long)]
-        json: bool,
-        /// Write the curve (CSV), the summary (JSON) and plots (SVG, PNG) into this directory.
-        #[arg(long, value_name = "DIR")]
-        out: Option<PathBuf>,
+        #[command(flatten)]
+        common: Common,
     },
     /// Gate delay from a file's `analysis delay { from = ..., to = ..., stop = ... }`.
     Delay {
         /// Circuit file (`.lam`) declaring `analysis delay { ... }` and driving its input.
         file: PathBuf,
-        /// Override a top-level parameter: `--set name=value` (repeatable).
-        #[arg(long = "set", value_name = "NAME=VALUE")]
-        set: Vec<String>,
-        /// Print one JSON object instead of a table.
-        #[arg(long)]
-        json: bool,
-        /// Write the summary (JSON) into this directory.
-        #[arg(long, value_name = "DIR")]
-        out: Option<PathBuf>,
+        #[command(flatten)]
+        common: Common,
     },
     /// A file's analyses over a grid of parameter values, points in parallel.
     Sweep {
@@ -156,30 +149,15 @@ enum Job {
         /// grid is every combination, first parameter slowest).
         #[arg(long = "param", value_name = "NAME=VALUES", required = true)]
         param: Vec<String>,
-        /// Override a top-level parameter for every point: `--set name=value` (repeatable).
-        #[arg(long = "set", value_name = "NAME=VALUE")]
-        set: Vec<String>,
-        /// Print one JSON object instead of a table.
-        #[arg(long)]
-        json: bool,
-        /// Write the rows (CSV, JSON) and a plot of every figure against the first parameter.
-        #[arg(long, value_name = "DIR")]
-        out: Option<PathBuf>,
+        #[command(flatten)]
+        common: Common,
     },
     /// Run every analysis a circuit file declares.
     Run {
         /// Circuit file (`.lam`).
         file: PathBuf,
-        /// Override a top-level parameter: `--set vdd=0.7V` (repeatable).
-        #[arg(long = "set", value_name = "NAME=VALUE")]
-        set: Vec<String>,
-        /// Print one JSON object instead of tables.
-        #[arg(long)]
-        json: bool,
-        /// Write the summary of every analysis (JSON) and each transfer curve's data and plots
-        /// into this directory.
-        #[arg(long, value_name = "DIR")]
-        out: Option<PathBuf>,
+        #[command(flatten)]
+        common: Common,
     },
 }
 
@@ -230,9 +208,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             file,
             vgs,
             vds,
-            set,
-            json,
-            out,
+            common: Common { set, json, out },
         } => {
             let vg = lamina::iv::parse_values("--vgs", &vgs).map_err(Failure::Usage)?;
             let vd = lamina::iv::parse_values("--vds", &vds).map_err(Failure::Usage)?;
@@ -282,9 +258,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
         }
         Job::Vtc {
             file,
-            set,
-            json,
-            out,
+            common: Common { set, json, out },
         } => {
             let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
             let results = design::run_all(&file, &sets, &RingParams::default(), Some("transfer"))
@@ -307,9 +281,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
         Job::Sweep {
             file,
             param,
-            set,
-            json,
-            out,
+            common: Common { set, json, out },
         } => {
             let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
             let axes: Vec<lamina::sweep::Axis> = param
@@ -377,9 +349,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
         }
         Job::Delay {
             file,
-            set,
-            json,
-            out,
+            common: Common { set, json, out },
         } => {
             let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
             let results = design::run_all(&file, &sets, &RingParams::default(), Some("delay"))
@@ -401,9 +371,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
         }
         Job::Run {
             file,
-            set,
-            json,
-            out,
+            common: Common { set, json, out },
         } => {
             let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
             let results = design::run_all(&file, &sets, &RingParams::default(), None)
