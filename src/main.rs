@@ -267,15 +267,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             if let Some(dir) = &out {
                 write_vtc(dir, kind, outcome).map_err(Failure::Usage)?;
             }
-            if json {
-                let mut v = outcome_json(kind, outcome);
-                if let Some(m) = v.as_object_mut() {
-                    m.remove("analysis");
-                }
-                out!("{v}");
-            } else {
-                print_outcome(outcome);
-            }
+            print_single(kind, outcome, json);
             Ok(())
         }
         Job::Sweep {
@@ -358,15 +350,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
                 write_run(dir, &results).map_err(Failure::Usage)?;
             }
             let (kind, outcome) = &results[0];
-            if json {
-                let mut v = outcome_json(kind, outcome);
-                if let Some(m) = v.as_object_mut() {
-                    m.remove("analysis");
-                }
-                out!("{v}");
-            } else {
-                print_outcome(outcome);
-            }
+            print_single(kind, outcome, json);
             Ok(())
         }
         Job::Run {
@@ -732,6 +716,19 @@ fn dump(system: &mut System, ring: &Ring, path: &Path) -> Result<(), Failure> {
         path.display()
     );
     Ok(())
+}
+
+/// One analysis's result: its JSON object (without the `analysis` key) or its table.
+fn print_single(kind: &str, outcome: &Outcome, json: bool) {
+    if json {
+        let mut v = outcome_json(kind, outcome);
+        if let Some(m) = v.as_object_mut() {
+            m.remove("analysis");
+        }
+        out!("{v}");
+    } else {
+        print_outcome(outcome);
+    }
 }
 
 fn outcome_json(kind: &str, o: &Outcome) -> serde_json::Value {
