@@ -1,0 +1,304 @@
+//! Cells and loops: the statement walk, hierarchical names, pins and ports, repetition.
+
+use super::{Elaborator, Frame, Q};
+use crate::ast::*;
+use crate::diag::{did_you_mean, Diagnostic, ErrorKind};
+use crate::source::Span;
+use lamina_engine::{Circuit, NodeId};
+use std::collections::HashMap;
+
+impl<'s> Elaborator<'s> {
+    pub(super) fn check_cell_body(&mut self, body: &[Stmt]) {
+        for s in body {
+            match s {
+                Stmt::Cell { name, .. } => self.err(
+                    ErrorKind::Expected,
+                    name.span,
+                    "cells cannot be defined inside cells".into(),
+                ),
+                Stmt::Device { name, .. } => self.err(
+                    ErrorKind::Expected,
+                    name.span,
+                    "device cards belong at the top level, not inside a cell".into(),
+                ),
+                Stmt::Analysis { span, .. } => self.err(
+                    ErrorKind::Expected,
+                    *span,
+                    "analyses belong at the top level, not inside a cell".into(),
+                ),
+                Stmt::For { body, .. } => self.check_cell_body(body),
+                _ => {}
+            }
+        }
+    }
+
+    pub(super) fn body_stmt(&mut self, s: &'s Stmt, frames: &mut Vec<Frame>) {
+        if self.saturated() {
+            return;
+        }
+        match s {
+            Stmt::For {
+                var,
+                from,
+                to,
+                body,
+                span,
+            } => {
+                let refs: Vec<&Frame> = frames.iter().collect();
+                let (Some(a), Some(b)) = (self.eval_int(from, &refs), self.eval_int(to, &refs))
+                else {
+                    return;
+                };
+                let count = (b - a).max(0) as usize;
+                if count > self.limits.max_repeat {
+                    self.err(
+                        ErrorKind::Limit,
+                        *span,
+                        format!(
+                            "{count} repetitions exceed the limit of {}",
+                            self.limits.max_repeat
+                        ),
+                    );
+                    return;
+                }
+                let prefix = frames.last().map(|f| f.prefix.clone()).unwrap_or_default();
+                for i in a..b {
+                    let mut vars = HashMap::new();
+                    vars.insert(
+                        var.name.clone(),
+                        Q {
+                            v: i as f64,
+                            dim: None,
+                        },
+                    );
+                    frames.push(Frame {
+                        vars,
+                        ports: HashMap::new(),
+                        prefix: prefix.clone(),
+                    });
+                    for s in body {
+                        self.body_stmt(s, frames);
+                    }
+                    frames.pop();
+                    if self.saturated() {
+                        break;
+                    }
+                }
+            }
+            Stmt::Instance {
+                kind,
+                name,
+                connections,
+                params,
+                span,
+            } => {
+                self.instance(kind, name, connections, params, *span, frames);
+            }
+            Stmt::Param { .. } => {}
+            Stmt::Analysis { span, .. } => self.err(
+                ErrorKind::Expected,
+                *span,
+                "analyses belong at the top level".into(),
+            ),
+            Stmt::Cell { .. } | Stmt::Device { .. } | Stmt::Include { .. } => {}
+        }
+    }
+
+    pub(super) fn index_name(
+        &mut self,
+        base: &str,
+        index: &Option<Expr>,
+        frames: &[&Frame],
+    ) -> Option<String> {
+        match index {
+            None => Some(base.to_string()),
+            Some(e) => {
+                let i = self.eval_int(e, frames)?;
+                Some(format!("{base}[{i}]"))
+            }
+        }
+    }
+
+    pub(super) fn node(&mut self, r: &Indexed, frames: &[&Frame]) -> Option<NodeId> {
+        let name = self.index_name(&r.name.name, &r.index, frames)?;
+        if name == Circuit::GROUND_NAME {
+            return Some(Circuit::GROUND);
+        }
+        if r.index.is_none() {
+            for f in frames.iter().rev() {
+                if let Some(&n) = f.ports.get(&name) {
+                    return Some(n);
+                }
+            }
+        }
+        let prefix = frames.last().map(|f| f.prefix.as_str()).unwrap_or("");
+        Some(self.circuit.node(&format!("{prefix}{name}")))
+    }
+
+    /// Maps connections to pins in `terminals` order, reporting unknown, doubled and missing pins.
+    pub(super) fn connect(
+        &mut self,
+        terminals: &[&str],
+        what: &str,
+        connections: &[Connection],
+        span: Span,
+        frames: &[&Frame],
+    ) -> Option<Vec<NodeId>> {
+        let mut pins: Vec<Option<(NodeId, Span)>> = vec![None; terminals.len()];
+        let mut ok = true;
+        self.last_pins.clear();
+        for c in connections {
+            let Some(i) = terminals.iter().position(|t| *t == c.pin.name) else {
+                let mut d = Diagnostic::new(
+                    ErrorKind::Unknown,
+                    c.pin.span,
+                    format!("`{what}` has no pin `{}`", c.pin.name),
+                );
+                d = d.with_help(match did_you_mean(&c.pin.name, terminals.iter().copied()) {
+                    Some(h) => h,
+                    None => format!("its pins are: {}", terminals.join(", ")),
+                });
+                self.diags.push(d);
+                ok = false;
+                continue;
+            };
+            if let Some((_, first)) = pins[i] {
+                self.diags.push(
+                    Diagnostic::new(
+                        ErrorKind::ConnectedTwice,
+                        c.pin.span,
+                        format!("pin `{}` is connected twice", c.pin.name),
+                    )
+                    .with_note(first, "first connected here"),
+                );
+                ok = false;
+                continue;
+            }
+            match self.node(&c.node, frames) {
+                Some(n) => {
+                    pins[i] = Some((n, c.pin.span));
+                    self.last_pins.push((n, c.node.span));
+                }
+                None => ok = false,
+            }
+        }
+        let missing: Vec<&str> = terminals
+            .iter()
+            .zip(&pins)
+            .filter(|(_, p)| p.is_none())
+            .map(|(t, _)| *t)
+            .collect();
+        if ok && !missing.is_empty() {
+            self.diags.push(
+                Diagnostic::new(
+                    ErrorKind::Unconnected,
+                    span,
+                    format!(
+                        "pin(s) {} of `{what}` are not connected",
+                        missing.join(", ")
+                    ),
+                )
+                .with_help(format!("connect them, e.g. `{} = ground`", missing[0])),
+            );
+            ok = false;
+        }
+        ok.then(|| {
+            pins.into_iter()
+                .map(|p| p.map(|p| p.0).unwrap_or(Circuit::GROUND))
+                .collect()
+        })
+    }
+
+    #[allow(clippy::too_many_arguments)]
+    pub(super) fn cell_instance(
+        &mut self,
+        cell: &str,
+        ports: &'s [Ident],
+        body: &'s [Stmt],
+        full: &str,
+        name_span: Span,
+        connections: &[Connection],
+        params: &[Assign],
+        span: Span,
+        frames: &mut Vec<Frame>,
+    ) {
+        if self.depth >= self.limits.max_cell_depth {
+            self.err(
+                ErrorKind::Limit,
+                span,
+                format!(
+                    "cells nested deeper than {} levels (does `{cell}` contain itself?)",
+                    self.limits.max_cell_depth
+                ),
+            );
+            return;
+        }
+        let port_names: Vec<&str> = ports.iter().map(|p| p.name.as_str()).collect();
+        let refs: Vec<&Frame> = frames.iter().collect();
+        let Some(nodes) = self.connect(&port_names, cell, connections, span, &refs) else {
+            return;
+        };
+        // Instance overrides, evaluated in the caller's scope.
+        let defaults: Vec<(&Ident, &Expr)> = body
+            .iter()
+            .filter_map(|s| {
+                if let Stmt::Param { name, value } = s {
+                    Some((name, value))
+                } else {
+                    None
+                }
+            })
+            .collect();
+        let mut vars = HashMap::new();
+        for a in params {
+            if !defaults.iter().any(|(n, _)| n.name == a.name.name) {
+                let mut d = Diagnostic::new(
+                    ErrorKind::Unknown,
+                    a.name.span,
+                    format!("cell `{cell}` has no parameter `{}`", a.name.name),
+                );
+                if let Some(h) =
+                    did_you_mean(&a.name.name, defaults.iter().map(|(n, _)| n.name.as_str()))
+                {
+                    d = d.with_help(h);
+                }
+                self.diags.push(d);
+                continue;
+            }
+            if let Some(q) = self.eval(&a.value, &refs) {
+                vars.insert(a.name.name.clone(), q);
+            }
+        }
+        let mut port_map = HashMap::new();
+        for (p, n) in ports.iter().zip(nodes) {
+            port_map.insert(p.name.clone(), n);
+        }
+        frames.push(Frame {
+            vars,
+            ports: port_map,
+            prefix: format!("{full}."),
+        });
+        // Defaults for parameters the instance did not set, in the cell's own scope.
+        for (n, value) in defaults {
+            if frames.last().is_some_and(|f| f.vars.contains_key(&n.name)) {
+                continue;
+            }
+            let refs: Vec<&Frame> = frames.iter().collect();
+            // A cell sees the top-level parameters and its own, not its caller's loop variables.
+            let own: Vec<&Frame> = refs.last().copied().into_iter().collect();
+            if let Some(q) = self.eval(value, &own) {
+                if let Some(f) = frames.last_mut() {
+                    f.vars.insert(n.name.clone(), q);
+                }
+            }
+        }
+        let _ = name_span;
+        self.depth += 1;
+        // Inside the cell, only its own frame (plus globals) is visible.
+        let mut inner = vec![frames.pop().expect("frame was pushed")];
+        for s in body {
+            self.body_stmt(s, &mut inner);
+        }
+        self.depth -= 1;
+    }
+}

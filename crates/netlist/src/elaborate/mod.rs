@@ -1,0 +1,441 @@
+//! Elaboration: parameters evaluated, includes read, cells flattened, repetition expanded,
+//! units and pins checked, and the engine's circuit built.
+//!
+//! Order: every top-level `param` is evaluated first, in file order (a parameter may use the
+//! ones above it; `--set` replaces a parameter's expression in place). Device cards are then
+//! evaluated in the top-level scope. Instances, loops and analyses follow in file order.
+//!
+//! Hierarchical names: an instance `x` of a cell inside instance `top[2]` is `top[2].x`; a node
+//! `mid` local to a cell is `top[2].mid` in results and diagnostics. Ports take the caller's
+//! nodes; `ground` is ground everywhere.
+
+mod analyses;
+mod cards;
+mod cells;
+mod expr;
+mod files;
+
+pub use analyses::ANALYSES;
+pub use files::{DiskReader, FileReader};
+
+use crate::ast::*;
+use crate::catalog::Kind;
+use crate::diag::{did_you_mean, Diagnostic, ErrorKind};
+use crate::lexer::lex;
+use crate::parser::parse_expression;
+use crate::source::{FileId, Sources, Span};
+use crate::units::Dim;
+use files::Loader;
+use lamina_engine::elements::Waveform;
+use lamina_engine::{Circuit, NodeId};
+use std::collections::{BTreeMap, HashMap};
+use std::path::Path;
+
+/// Limits that keep hostile or mistaken input from exhausting memory or stack.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Limits {
+    /// Largest file in bytes (default 16 MiB).
+    pub max_file_bytes: usize,
+    /// Deepest include chain (default 32).
+    pub max_include_depth: usize,
+    /// Deepest cell-in-cell instantiation (default 64).
+    pub max_cell_depth: usize,
+    /// Most elements in one design (default 5,000,000).
+    pub max_elements: usize,
+    /// Most iterations of one `for` loop (default 10,000,000).
+    pub max_repeat: usize,
+}
+
+impl Default for Limits {
+    fn default() -> Self {
+        Limits {
+            max_file_bytes: 16 << 20,
+            max_include_depth: 32,
+            max_cell_depth: 64,
+            max_elements: 5_000_000,
+            max_repeat: 10_000_000,
+        }
+    }
+}
+
+/// How to load a design.
+#[derive(Clone, Debug, Default)]
+pub struct LoadOptions {
+    /// `name = value` overrides of top-level parameters, value in the language's syntax.
+    pub overrides: Vec<(String, String)>,
+    /// Input limits.
+    pub limits: Limits,
+}
+
+/// A value given to an analysis setting.
+#[derive(Clone, Debug, PartialEq)]
+pub enum SettingValue {
+    /// A number (SI) with the dimension written, if any.
+    Number(f64, Option<Dim>),
+    /// A name that is not a parameter: a node, node array or element.
+    Name(String),
+    /// A string.
+    Text(String),
+}
+
+/// One `key = value` of an analysis.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Setting {
+    /// The key.
+    pub name: String,
+    /// Its value.
+    pub value: SettingValue,
+    /// Where it is.
+    pub span: Span,
+}
+
+/// An `analysis` declaration.
+#[derive(Clone, Debug, PartialEq)]
+pub struct AnalysisDecl {
+    /// Which analysis.
+    pub kind: String,
+    /// Its settings in file order.
+    pub settings: Vec<Setting>,
+    /// The header.
+    pub span: Span,
+}
+
+/// What a check reports about an elaborated design.
+#[derive(Clone, Debug, PartialEq, Default)]
+pub struct Summary {
+    /// Nodes, ground included.
+    pub nodes: usize,
+    /// Element count by kind.
+    pub elements: BTreeMap<String, usize>,
+    /// Cells defined.
+    pub cells: Vec<String>,
+    /// Device cards defined.
+    pub devices: Vec<String>,
+    /// Analysis kinds declared, in order.
+    pub analyses: Vec<String>,
+}
+
+/// An elaborated design: the engine's circuit plus what the file declares.
+pub struct Design {
+    /// The flat circuit.
+    pub circuit: Circuit,
+    /// Every file read.
+    pub sources: Sources,
+    /// Declared analyses.
+    pub analyses: Vec<AnalysisDecl>,
+    /// Top-level parameters after overrides, in SI units.
+    pub parameters: Vec<(String, f64, Option<Dim>)>,
+    /// Counts for a summary.
+    pub summary: Summary,
+    /// Findings that do not stop the design (a node with a single connection, say).
+    pub warnings: Vec<Diagnostic>,
+}
+
+/// A failed load: the files read so far and every diagnostic.
+pub struct Failure {
+    /// Files read.
+    pub sources: Sources,
+    /// What went wrong, in order.
+    pub diagnostics: Vec<Diagnostic>,
+}
+
+/// What an analysis setting takes.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum SettingKind {
+    /// A number (an expression, parameters allowed).
+    Number,
+    /// The name of a node, node array or element, taken as written (even if a parameter has
+    /// the same name).
+    Name,
+}
+
+impl std::fmt::Debug for Failure {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&crate::diag::render(&self.sources, &self.diagnostics))
+    }
+}
+
+impl std::fmt::Display for Failure {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&crate::diag::render(&self.sources, &self.diagnostics))
+    }
+}
+
+/// Loads and elaborates the circuit file at `path`.
+pub fn load_file(path: &Path, options: &LoadOptions) -> Result<Design, Failure> {
+    load_with(path, options, &DiskReader)
+}
+
+/// Loads and elaborates `path` through `reader`.
+pub fn load_with(
+    path: &Path,
+    options: &LoadOptions,
+    reader: &dyn FileReader,
+) -> Result<Design, Failure> {
+    let mut l = Loader {
+        reader,
+        sources: Sources::new(),
+        diags: Vec::new(),
+        limits: options.limits,
+        stack: Vec::new(),
+    };
+    let stmts = l.load(path, None);
+    let Loader {
+        mut sources,
+        mut diags,
+        ..
+    } = l;
+    let overrides: Vec<(String, FileId)> = options
+        .overrides
+        .iter()
+        .map(|(name, text)| {
+            (
+                name.clone(),
+                sources.add(format!("--set {name}"), text.clone()),
+            )
+        })
+        .collect();
+    let Some(stmts) = stmts else {
+        return Err(Failure {
+            sources,
+            diagnostics: diags,
+        });
+    };
+    if !diags.is_empty() {
+        return Err(Failure {
+            sources,
+            diagnostics: diags,
+        });
+    }
+    let mut e = Elaborator::new(options.limits);
+    e.run(&stmts, &overrides, &sources);
+    // The same fault met again (in every iteration of a loop, say) is reported once.
+    let mut seen = std::collections::HashSet::new();
+    diags.extend(
+        e.diags
+            .into_iter()
+            .filter(|d| seen.insert((d.kind, d.span, d.message.clone()))),
+    );
+    if !diags.is_empty() {
+        return Err(Failure {
+            sources,
+            diagnostics: diags,
+        });
+    }
+    let mut summary = e.summary;
+    summary.nodes = e.circuit.node_count();
+    // A node with one pin on it is usually a misspelt name.
+    let mut warnings = Vec::new();
+    let mut lonely: Vec<(NodeId, Span)> = e
+        .node_uses
+        .iter()
+        .filter(|(_, (n, _))| *n == 1)
+        .map(|(id, (_, s))| (*id, *s))
+        .collect();
+    lonely.sort_by_key(|(_, s)| (s.file, s.start));
+    for (id, span) in lonely.into_iter().take(50) {
+        let name = e.circuit.node_name(id).to_string();
+        let others: Vec<&str> = e
+            .node_uses
+            .iter()
+            .filter(|(o, (n, _))| **o != id && *n > 1)
+            .map(|(o, _)| e.circuit.node_name(*o))
+            .collect();
+        let mut d = Diagnostic::new(
+            ErrorKind::Unconnected,
+            span,
+            format!("node `{name}` connects to only one pin"),
+        );
+        if let Some(h) = did_you_mean(&name, others.iter().copied()) {
+            d = d.with_help(h);
+        }
+        warnings.push(d);
+    }
+    Ok(Design {
+        circuit: e.circuit,
+        sources,
+        analyses: e.analyses,
+        parameters: e.parameter_list,
+        summary,
+        warnings,
+    })
+}
+
+/// A number with an optional dimension (`None`: a bare number, accepted for any dimension).
+#[derive(Clone, Copy, Debug, PartialEq)]
+struct Q {
+    v: f64,
+    dim: Option<Dim>,
+}
+
+struct DeviceCard {
+    kind: &'static Kind,
+    values: Vec<(String, Q, Span)>,
+    texts: Vec<(String, String)>,
+    waveform: Option<Waveform>,
+}
+
+struct Elaborator<'s> {
+    limits: Limits,
+    diags: Vec<Diagnostic>,
+    circuit: Circuit,
+    globals: HashMap<String, Q>,
+    parameter_list: Vec<(String, f64, Option<Dim>)>,
+    cells: HashMap<String, (&'s [Ident], &'s [Stmt], Span)>,
+    devices: HashMap<String, DeviceCard>,
+    analyses: Vec<AnalysisDecl>,
+    summary: Summary,
+    element_spans: HashMap<String, Span>,
+    depth: usize,
+    created: usize,
+    /// Nodes and the spans of the connections the last `connect` made.
+    last_pins: Vec<(NodeId, Span)>,
+    /// Element pins on each node, with the first connection's place.
+    node_uses: HashMap<NodeId, (usize, Span)>,
+}
+
+/// One level of the scope chain: a cell instance's parameters and ports, or a loop variable.
+struct Frame {
+    vars: HashMap<String, Q>,
+    ports: HashMap<String, NodeId>,
+    prefix: String,
+}
+
+impl<'s> Elaborator<'s> {
+    pub(super) fn new(limits: Limits) -> Self {
+        Elaborator {
+            limits,
+            diags: Vec::new(),
+            circuit: Circuit::new(),
+            globals: HashMap::new(),
+            parameter_list: Vec::new(),
+            cells: HashMap::new(),
+            devices: HashMap::new(),
+            analyses: Vec::new(),
+            summary: Summary::default(),
+            element_spans: HashMap::new(),
+            depth: 0,
+            created: 0,
+            last_pins: Vec::new(),
+            node_uses: HashMap::new(),
+        }
+    }
+
+    pub(super) fn err(&mut self, kind: ErrorKind, span: Span, msg: String) {
+        self.diags.push(Diagnostic::new(kind, span, msg));
+    }
+
+    pub(super) fn run(
+        &mut self,
+        stmts: &'s [Stmt],
+        overrides: &[(String, FileId)],
+        sources: &Sources,
+    ) {
+        // Overrides: each value is its own small source file, parsed as one expression.
+        let mut parsed: HashMap<String, Expr> = HashMap::new();
+        let mut override_span: HashMap<String, Span> = HashMap::new();
+        for (name, id) in overrides {
+            let text = sources.text(*id);
+            let mut d = Vec::new();
+            let toks = lex(*id, text, &mut d);
+            override_span.insert(name.clone(), Span::new(*id, 0, text.len()));
+            match parse_expression(&toks, &mut d) {
+                Some(e) if d.is_empty() => {
+                    parsed.insert(name.clone(), e);
+                }
+                _ => self.diags.extend(d),
+            }
+        }
+        let top = Frame {
+            vars: HashMap::new(),
+            ports: HashMap::new(),
+            prefix: String::new(),
+        };
+        let mut seen: HashMap<String, Span> = HashMap::new();
+        for s in stmts {
+            if let Stmt::Param { name, value } = s {
+                if let Some(first) = seen.get(&name.name) {
+                    self.diags.push(
+                        Diagnostic::new(
+                            ErrorKind::Duplicate,
+                            name.span,
+                            format!("parameter `{}` is defined twice", name.name),
+                        )
+                        .with_note(*first, "first defined here"),
+                    );
+                    continue;
+                }
+                seen.insert(name.name.clone(), name.span);
+                let q = match parsed.get(&name.name) {
+                    Some(e) => self.eval(e, &[&top]),
+                    None => self.eval(value, &[&top]),
+                };
+                if let Some(q) = q {
+                    self.globals.insert(name.name.clone(), q);
+                    self.parameter_list.push((name.name.clone(), q.v, q.dim));
+                }
+            }
+        }
+        for name in parsed.keys() {
+            if !seen.contains_key(name) {
+                let mut d = Diagnostic::new(
+                    ErrorKind::Unknown,
+                    override_span[name],
+                    format!("no top-level parameter `{name}` to set"),
+                );
+                if let Some(h) = did_you_mean(name, seen.keys().map(String::as_str)) {
+                    d = d.with_help(h);
+                }
+                self.diags.push(d);
+            }
+        }
+        // Cells and device cards.
+        for s in stmts {
+            match s {
+                Stmt::Cell { name, ports, body } => {
+                    if let Some(&(_, _, first)) = self.cells.get(&name.name) {
+                        self.diags.push(
+                            Diagnostic::new(
+                                ErrorKind::Duplicate,
+                                name.span,
+                                format!("cell `{}` is defined twice", name.name),
+                            )
+                            .with_note(first, "first defined here"),
+                        );
+                        continue;
+                    }
+                    self.check_cell_body(body);
+                    self.cells
+                        .insert(name.name.clone(), (ports, body, name.span));
+                    self.summary.cells.push(name.name.clone());
+                }
+                Stmt::Device {
+                    name,
+                    model,
+                    params,
+                } => {
+                    self.device_card(name, model, params, &top);
+                }
+                _ => {}
+            }
+        }
+        let mut frames = vec![top];
+        for s in stmts {
+            match s {
+                Stmt::Param { .. }
+                | Stmt::Cell { .. }
+                | Stmt::Device { .. }
+                | Stmt::Include { .. } => {}
+                Stmt::Analysis { kind, params, span } => {
+                    self.analysis(kind, params, *span, &frames)
+                }
+                other => self.body_stmt(other, &mut frames),
+            }
+        }
+    }
+
+    /// Whether elaboration should stop: too many errors to be useful, or the element limit.
+    pub(super) fn saturated(&self) -> bool {
+        self.diags.len() > 200 || self.created > self.limits.max_elements
+    }
+}
