@@ -150,3 +150,56 @@ pub fn square_inverter(stage: &SquareStage) -> Result<Inverter, CircuitError> {
         output: out,
     })
 }
+
+/// Applies `--set name=value` flags to a built-in square-law stage. Its parameters are `kn`,
+/// `kp` (A/V^2), `vtn`, `vtp`, `vdd` (V), `load` (F) and `lambda` (1/V); values need their
+/// unit, as in circuit files (`--set vdd=0.8V`).
+pub fn apply_sets(
+    stage: &mut SquareStage,
+    sets: &[(String, String)],
+) -> Result<(), crate::error::JobError> {
+    use crate::error::JobError;
+    use lamina_netlist::units::Dim;
+    for (name, text) in sets {
+        let (slot, dim): (&mut f64, Dim) = match name.as_str() {
+            "kn" => (&mut stage.kn, Dim::TRANSCONDUCTANCE_PARAMETER),
+            "kp" => (&mut stage.kp, Dim::TRANSCONDUCTANCE_PARAMETER),
+            "vtn" => (&mut stage.vtn, Dim::VOLTAGE),
+            "vtp" => (&mut stage.vtp, Dim::VOLTAGE),
+            "vdd" => (&mut stage.vdd, Dim::VOLTAGE),
+            "load" => (&mut stage.load, Dim::CAPACITANCE),
+            "lambda" => (&mut stage.lambda, Dim::PER_VOLT),
+            other => {
+                return Err(JobError::Usage(format!(
+                    "--set {other}: the built-in ring has no parameter `{other}`; its parameters \
+                     are kn, kp, vtn, vtp, vdd, load and lambda"
+                )))
+            }
+        };
+        let v = lamina_netlist::values::parse_values(text, None, 1)
+            .map_err(|why| JobError::Usage(format!("--set {name}={text}: {why}")))?;
+        match v.as_slice() {
+            [one] if one.dim == dim => *slot = one.si,
+            [one] => {
+                return Err(JobError::Usage(format!(
+                    "--set {name}={text}: `{name}` is {}, but this is {}; write it with a unit, \
+                     such as {name}={}",
+                    dim.describe(),
+                    one.dim.describe(),
+                    dim.example().replace(' ', "")
+                )))
+            }
+            _ => {
+                return Err(JobError::Usage(format!(
+                    "--set {name}={text}: give one value"
+                )))
+            }
+        }
+    }
+    if !(stage.vdd > 0.0 && stage.load > 0.0 && stage.kn > 0.0 && stage.kp > 0.0) {
+        return Err(JobError::Usage(
+            "the built-in ring needs positive vdd, load, kn and kp".into(),
+        ));
+    }
+    Ok(())
+}

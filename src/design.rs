@@ -2,49 +2,102 @@
 //! declares (`operating_point`, `transfer`, `ring`).
 
 use crate::builtin::Ring;
+use crate::error::JobError;
 use crate::ring::{run_ring, RingParams, RingReport};
 use lamina_engine::{Circuit, Integrator, OpParams, Probe, Solution, SweepParams, System};
 use lamina_measure::snm::{butterfly, NoiseMargin};
 use lamina_measure::transfer::{transfer_metrics, TransferMetrics};
 use lamina_netlist::{
-    load_file, render, render_warnings, AnalysisDecl, Design, LoadOptions, SettingValue,
+    load_file, render, render_warnings, Analysis, AnalysisDecl, Design, Diagnostic, ErrorKind,
+    LoadOptions,
 };
 use std::path::Path;
+use std::sync::Mutex;
 
-/// Parses `name=value` flags.
-pub fn parse_sets(sets: &[String]) -> Result<Vec<(String, String)>, String> {
-    sets.iter()
-        .map(|s| match s.split_once('=') {
+/// Parses `--set name=value` flags (the value in the language's syntax, checked against the
+/// parameter's dimension when the file is loaded). A name given twice is refused.
+pub fn parse_sets(sets: &[String]) -> Result<Vec<(String, String)>, JobError> {
+    let mut out: Vec<(String, String)> = Vec::new();
+    for s in sets {
+        let (n, v) = match s.split_once('=') {
             Some((n, v)) if !n.trim().is_empty() && !v.trim().is_empty() => {
-                Ok((n.trim().to_string(), v.trim().to_string()))
+                (n.trim().to_string(), v.trim().to_string())
             }
-            _ => Err(format!(
-                "--set {s}: expected name=value, such as --set vdd=0.7V"
-            )),
-        })
-        .collect()
+            _ => {
+                return Err(JobError::Usage(format!(
+                    "--set {s}: expected name=value, such as --set vdd=0.7V"
+                )))
+            }
+        };
+        if out.iter().any(|(m, _)| *m == n) {
+            return Err(JobError::Usage(format!(
+                "--set {n} is given twice; give each parameter once"
+            )));
+        }
+        out.push((n, v));
+    }
+    Ok(out)
 }
 
-/// Loads and elaborates `path`; on failure returns the rendered diagnostics.
-pub fn load(path: &Path, sets: &[(String, String)]) -> Result<Design, String> {
+/// Loads and elaborates `path`; on failure returns the rendered diagnostics, classified: a
+/// file that cannot be read (exit 4), faults only in `--set` values (exit 2), or faults in
+/// the circuit file (exit 3). Warnings go to stderr, each place once per process.
+pub fn load(path: &Path, sets: &[(String, String)]) -> Result<Design, JobError> {
     let options = LoadOptions {
         overrides: sets.to_vec(),
         ..LoadOptions::default()
     };
     let design = load_file(path, &options).map_err(|f| {
         let n = f.diagnostics.len();
-        format!(
+        let text = format!(
             "{}{} error{} in {}",
             render(&f.sources, &f.diagnostics),
             n,
             if n == 1 { "" } else { "s" },
             path.display()
-        )
+        );
+        if f.diagnostics.iter().any(|d| d.kind == ErrorKind::Io) {
+            JobError::Io(text)
+        } else if f
+            .diagnostics
+            .iter()
+            .all(|d| f.sources.name(d.span.file).starts_with("--set "))
+        {
+            JobError::Usage(text)
+        } else {
+            JobError::Invalid(text)
+        }
     })?;
-    if !design.warnings.is_empty() {
-        eprint!("{}", render_warnings(&design.sources, &design.warnings));
-    }
+    print_warnings_once(&design);
     Ok(design)
+}
+
+/// Prints the design's warnings that this process has not printed yet (a sweep or a run of
+/// several analyses loads the same file many times).
+fn print_warnings_once(design: &Design) {
+    static PRINTED: Mutex<Vec<(String, usize, String)>> = Mutex::new(Vec::new());
+    let mut printed = PRINTED.lock().unwrap_or_else(|p| p.into_inner());
+    let fresh: Vec<Diagnostic> = design
+        .warnings
+        .iter()
+        .filter(|w| {
+            let key = (
+                design.sources.name(w.span.file).to_string(),
+                w.span.start,
+                w.message.clone(),
+            );
+            if printed.contains(&key) {
+                false
+            } else {
+                printed.push(key);
+                true
+            }
+        })
+        .cloned()
+        .collect();
+    if !fresh.is_empty() {
+        crate::note_raw!("{}", render_warnings(&design.sources, &fresh));
+    }
 }
 
 /// The summary `lamina check` prints.
@@ -98,29 +151,6 @@ pub fn summary_json(d: &Design) -> serde_json::Value {
     })
 }
 
-fn setting<'a>(a: &'a AnalysisDecl, key: &str) -> Option<&'a SettingValue> {
-    a.settings.iter().find(|s| s.name == key).map(|s| &s.value)
-}
-
-fn name_setting(a: &AnalysisDecl, key: &str) -> Result<String, String> {
-    match setting(a, key) {
-        Some(SettingValue::Name(n)) => Ok(n.clone()),
-        Some(_) => Err(format!(
-            "analysis `{}`: `{key}` must name a node or element",
-            a.kind
-        )),
-        None => Err(format!("analysis `{}` needs `{key} = ...`", a.kind)),
-    }
-}
-
-fn number_setting(a: &AnalysisDecl, key: &str) -> Result<f64, String> {
-    match setting(a, key) {
-        Some(SettingValue::Number(v, _)) => Ok(*v),
-        Some(_) => Err(format!("analysis `{}`: `{key}` must be a number", a.kind)),
-        None => Err(format!("analysis `{}` needs `{key} = ...`", a.kind)),
-    }
-}
-
 /// Parses an integrator name.
 pub fn integrator_named(name: &str) -> Result<Integrator, String> {
     match name {
@@ -133,60 +163,59 @@ pub fn integrator_named(name: &str) -> Result<Integrator, String> {
     }
 }
 
-/// The ring a file's `analysis ring { nodes = NAME, stages = N, supply = NODE }` describes,
-/// with the system compiled from the file's circuit.
-pub fn ring_from(design: Design, base: &RingParams) -> Result<(System, Ring, RingParams), String> {
-    let a = design
+/// The ring a file's `analysis ring { nodes = NAME, stages = N, supply = NODE }` describes
+/// (checked when the file was loaded), with the system compiled from the file's circuit.
+pub fn ring_from(
+    design: Design,
+    base: &RingParams,
+) -> Result<(System, Ring, RingParams), JobError> {
+    let Some(Analysis::Ring {
+        nodes,
+        stages,
+        supply,
+        supply_source,
+        integrator,
+    }) = design
         .analyses
         .iter()
-        .find(|a| a.kind == "ring")
-        .ok_or("the file declares no `analysis ring { nodes = ..., stages = ..., supply = ... }`")?
-        .clone();
-    let nodes = name_setting(&a, "nodes")?;
-    let stages = number_setting(&a, "stages")?;
-    if stages.fract() != 0.0 || stages < 3.0 {
-        return Err(format!(
-            "analysis `ring`: `stages` must be a whole number of at least 3, found {stages}"
+        .map(|a| &a.analysis)
+        .find(|a| matches!(a, Analysis::Ring { .. }))
+        .cloned()
+    else {
+        return Err(JobError::Invalid(
+            "the file declares no `analysis ring { nodes = ..., stages = ..., supply = ... }`; add one"
+                .into(),
         ));
-    }
-    let supply = name_setting(&a, "supply")?;
+    };
     let mut params = *base;
-    if let Some(SettingValue::Text(t)) | Some(SettingValue::Name(t)) = setting(&a, "integrator") {
-        params.integrator = integrator_named(t)?;
+    if let Some(i) = integrator {
+        params.integrator = i;
     }
     let circuit: Circuit = design.circuit;
-    let mut outputs = Vec::new();
-    for i in 0..stages as usize {
-        let name = format!("{nodes}[{i}]");
-        outputs.push(
-            circuit
-                .find_node(&name)
-                .ok_or_else(|| format!("analysis `ring`: the circuit has no node `{name}`"))?,
-        );
-    }
-    let supply_node = match circuit.find_node(&supply) {
-        Some(n) => n,
-        None => {
-            let e = circuit
-                .find_element(&supply)
-                .ok_or_else(|| format!("analysis `ring`: no node or element called `{supply}`"))?;
-            return Err(format!(
-                "analysis `ring`: `supply` must name the supply node, not the element `{}`",
-                circuit.element_name(e)
-            ));
-        }
+    // The names were checked against this circuit when the file was loaded.
+    let node = |name: &str| {
+        circuit.find_node(name).ok_or_else(|| {
+            JobError::Invalid(format!("analysis `ring`: the circuit has no node `{name}`"))
+        })
     };
-    let supply_element = circuit
-        .elements()
-        .find(|&e| circuit.element_kind(e) == "voltage source")
-        .ok_or("analysis `ring`: the circuit has no voltage source to supply it")?;
-    let mut system = System::new(circuit).map_err(|e| e.to_string())?;
+    let outputs = (0..stages)
+        .map(|i| node(&format!("{nodes}[{i}]")))
+        .collect::<Result<Vec<_>, _>>()?;
+    let supply_node = node(&supply)?;
+    let supply_element = circuit.find_element(&supply_source).ok_or_else(|| {
+        JobError::Invalid(format!("analysis `ring`: no element `{supply_source}`"))
+    })?;
+    let analysis = |e: lamina_engine::EngineError| JobError::Analysis(e.to_string());
+    let mut system = System::new(circuit).map_err(analysis)?;
     let (sol, _) = system
         .operating_point(&OpParams::default())
-        .map_err(|e| e.to_string())?;
+        .map_err(analysis)?;
     let vdd = sol.voltage(&system, supply_node);
     if vdd.is_nan() || vdd <= 0.0 {
-        return Err(format!("analysis `ring`: the supply node `{supply}` sits at {vdd} V; it needs a positive supply"));
+        return Err(JobError::Analysis(format!(
+            "analysis `ring`: the supply node `{supply}` sits at {vdd} V at the operating point; \
+             a ring needs a positive supply"
+        )));
     }
     Ok((
         system,
@@ -226,13 +255,13 @@ pub fn run_all(
     sets: &[(String, String)],
     base: &RingParams,
     only: Option<&str>,
-) -> Result<Vec<(String, Outcome)>, String> {
+) -> Result<Vec<(String, Outcome)>, JobError> {
     let design = load(path, sets)?;
     if design.analyses.is_empty() {
-        return Err(format!(
+        return Err(JobError::Invalid(format!(
             "{} declares no analysis; add one such as `analysis operating_point`",
             path.display()
-        ));
+        )));
     }
     let kinds: Vec<AnalysisDecl> = design
         .analyses
@@ -241,93 +270,94 @@ pub fn run_all(
         .cloned()
         .collect();
     if kinds.is_empty() {
-        return Err(format!(
-            "{} declares no `analysis {}`",
+        return Err(JobError::Invalid(format!(
+            "{} declares no `analysis {}`; add one",
             path.display(),
             only.unwrap_or("")
-        ));
+        )));
     }
     let mut out = Vec::new();
     for a in &kinds {
         // Each analysis gets a fresh elaboration, so sweeps and runs cannot affect each other.
         let design = load(path, sets)?;
-        let outcome = match a.kind.as_str() {
-            "operating_point" => {
-                let names: Vec<String> = design
-                    .circuit
-                    .nodes()
-                    .map(|n| design.circuit.node_name(n).to_string())
-                    .collect();
-                let mut sys = System::new(design.circuit).map_err(|e| e.to_string())?;
-                let (sol, _): (Solution, _) = sys
-                    .operating_point(&OpParams::default())
-                    .map_err(|e| e.to_string())?;
-                Outcome::OperatingPoint(names.into_iter().zip(sol.x.iter().copied()).collect())
-            }
-            "transfer" => {
-                let source = name_setting(a, "source")?;
-                let output = name_setting(a, "output")?;
-                let (from, to, step) = (
-                    number_setting(a, "from")?,
-                    number_setting(a, "to")?,
-                    number_setting(a, "step")?,
-                );
-                if step.is_nan()
-                    || step <= 0.0
-                    || to.is_nan()
-                    || to <= from
-                    || (to - from) / step > 1e7
-                {
-                    return Err(
-                        "analysis `transfer`: need from < to and 0 < step, with at most 1e7 points"
-                            .into(),
-                    );
-                }
-                let src = design
-                    .circuit
-                    .find_element(&source)
-                    .ok_or_else(|| format!("analysis `transfer`: no element `{source}`"))?;
-                let out_node = design
-                    .circuit
-                    .find_node(&output)
-                    .ok_or_else(|| format!("analysis `transfer`: no node `{output}`"))?;
-                let n = ((to - from) / step).round() as usize;
-                let vin: Vec<f64> = (0..=n)
-                    .map(|i| from + (to - from) * i as f64 / n as f64)
-                    .collect();
-                let mut sys = System::new(design.circuit).map_err(|e| e.to_string())?;
-                let res = sys
-                    .dc_sweep(
-                        src,
-                        &vin,
-                        &[Probe::Voltage(out_node)],
-                        &SweepParams::default(),
-                    )
-                    .map_err(|e| e.to_string())?;
-                let vout = res.signals[0].clone();
-                let metrics = transfer_metrics(&vin, &vout);
-                let snm = butterfly(&vin, &vout, &vin, &vout);
-                Outcome::Transfer {
-                    metrics,
-                    snm,
-                    vin,
-                    vout,
-                }
-            }
-            "delay" => Outcome::Delay(delay(design, a)?),
-            "ring" => {
+        let outcome = match a.analysis {
+            Analysis::Ring { .. } => {
                 let (mut sys, ring, params) = ring_from(design, base)?;
-                Outcome::Ring(run_ring(&mut sys, &ring, &params).map_err(|e| e.to_string())?)
+                Outcome::Ring(
+                    run_ring(&mut sys, &ring, &params)
+                        .map_err(|e| JobError::Analysis(e.to_string()))?,
+                )
             }
-            other => {
-                return Err(format!(
-                    "analysis `{other}` is declared but `lamina run` cannot run it yet"
-                ))
-            }
+            _ => run_static(design, a).map_err(JobError::Analysis)?,
         };
         out.push((a.kind.clone(), outcome));
     }
     Ok(out)
+}
+
+/// Runs one operating-point, transfer or delay analysis.
+fn run_static(design: Design, a: &AnalysisDecl) -> Result<Outcome, String> {
+    Ok(match a.kind.as_str() {
+        "operating_point" => {
+            let names: Vec<String> = design
+                .circuit
+                .nodes()
+                .map(|n| design.circuit.node_name(n).to_string())
+                .collect();
+            let mut sys = System::new(design.circuit).map_err(|e| e.to_string())?;
+            let (sol, _): (Solution, _) = sys
+                .operating_point(&OpParams::default())
+                .map_err(|e| e.to_string())?;
+            Outcome::OperatingPoint(names.into_iter().zip(sol.x.iter().copied()).collect())
+        }
+        "transfer" => {
+            let Analysis::Transfer {
+                source,
+                output,
+                from,
+                to,
+                steps,
+            } = &a.analysis
+            else {
+                return Err("analysis `transfer` has no transfer settings".into());
+            };
+            let src = design
+                .circuit
+                .find_element(source)
+                .ok_or_else(|| format!("analysis `transfer`: no element `{source}`"))?;
+            let out_node = design
+                .circuit
+                .find_node(output)
+                .ok_or_else(|| format!("analysis `transfer`: no node `{output}`"))?;
+            let vin: Vec<f64> = (0..=*steps)
+                .map(|i| from + (to - from) * i as f64 / *steps as f64)
+                .collect();
+            let mut sys = System::new(design.circuit).map_err(|e| e.to_string())?;
+            let res = sys
+                .dc_sweep(
+                    src,
+                    &vin,
+                    &[Probe::Voltage(out_node)],
+                    &SweepParams::default(),
+                )
+                .map_err(|e| e.to_string())?;
+            let vout = res.signals[0].clone();
+            let metrics = transfer_metrics(&vin, &vout);
+            let snm = butterfly(&vin, &vout, &vin, &vout);
+            Outcome::Transfer {
+                metrics,
+                snm,
+                vin,
+                vout,
+            }
+        }
+        "delay" => Outcome::Delay(delay(design, a)?),
+        other => {
+            return Err(format!(
+                "analysis `{other}` is declared but cannot be run here"
+            ))
+        }
+    })
 }
 
 /// What the delay analysis measured (seconds), each averaged over the transitions seen.
@@ -358,18 +388,16 @@ fn delay(design: Design, a: &AnalysisDecl) -> Result<DelayReport, String> {
     use lamina_engine::{Start, TransientParams};
     use lamina_measure::waveform::{fall_times, propagation_delays, rise_times};
     use lamina_measure::Direction;
-    let from = name_setting(a, "from")?;
-    let to = name_setting(a, "to")?;
-    let stop = number_setting(a, "stop")?;
-    if stop.is_nan() || stop <= 0.0 {
-        return Err("analysis `delay`: `stop` must be a positive time".into());
-    }
+    let Analysis::Delay { from, to, stop } = &a.analysis else {
+        return Err("analysis `delay` has no delay settings".into());
+    };
+    let (from, to, stop) = (from.as_str(), to.as_str(), *stop);
     let c = &design.circuit;
     let nf = c
-        .find_node(&from)
+        .find_node(from)
         .ok_or_else(|| format!("analysis `delay`: no node `{from}`"))?;
     let nt = c
-        .find_node(&to)
+        .find_node(to)
         .ok_or_else(|| format!("analysis `delay`: no node `{to}`"))?;
     let mut sys = System::new(design.circuit).map_err(|e| e.to_string())?;
     let mut tp = TransientParams::new(stop);

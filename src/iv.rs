@@ -5,42 +5,36 @@ use lamina_engine::elements::VoltageSource;
 use lamina_engine::{Circuit, ElementId, NodeId, OpParams, Probe, SweepParams, System};
 use lamina_netlist::Design;
 
-/// Parses `LIST` (`0,0.1,0.5`) or `START:STOP:STEP` (`0:1:0.05`, stop included) in volts.
+/// Most bias points of one `iv` grid (gate values times drain values).
+pub const MAX_IV_POINTS: usize = 1_000_000;
+
+/// Parses a voltage flag: `LIST` (`0,0.1,0.5`) or `START:STOP:STEP` (`0:1:0.05`, stop
+/// included), in volts unless a unit is written (`-600:1000:20 mV`).
 pub fn parse_values(flag: &str, text: &str) -> Result<Vec<f64>, String> {
-    let bad = |why: &str| {
-        format!("{flag} {text}: {why}; give a list such as 0,0.5,1 or a range START:STOP:STEP such as 0:1:0.1")
-    };
-    let num = |s: &str| {
-        s.trim()
-            .trim_end_matches('V')
-            .trim()
-            .parse::<f64>()
-            .ok()
-            .filter(|v| v.is_finite())
-    };
-    if text.contains(':') {
-        let parts: Vec<&str> = text.split(':').collect();
-        if parts.len() != 3 {
-            return Err(bad("a range has three parts"));
-        }
-        let (a, b, h) = match (num(parts[0]), num(parts[1]), num(parts[2])) {
-            (Some(a), Some(b), Some(h)) => (a, b, h),
-            _ => return Err(bad("not a number")),
-        };
-        if h == 0.0 || (b - a) / h < -1e-9 {
-            return Err(bad(
-                "the step must be non-zero and point from START to STOP",
-            ));
-        }
-        let n = ((b - a) / h + 1e-9).floor() as usize;
-        if n > 1_000_000 {
-            return Err(bad("more than a million points"));
-        }
-        Ok((0..=n).map(|k| a + h * k as f64).collect())
-    } else {
-        text.split(',')
-            .map(|s| num(s).ok_or_else(|| bad("not a number")))
-            .collect()
+    let values = lamina_netlist::values::parse_values(text, Some("V"), MAX_IV_POINTS)
+        .map_err(|why| format!("{flag} {text}: {why}"))?;
+    if let Some(v) = values
+        .iter()
+        .find(|v| v.dim != lamina_netlist::units::Dim::VOLTAGE)
+    {
+        return Err(format!(
+            "{flag} {text}: `{}` is {}, not a voltage",
+            v.text,
+            v.dim.describe()
+        ));
+    }
+    Ok(values.iter().map(|v| v.si).collect())
+}
+
+/// Checks the size of a grid before it is run.
+pub fn check_grid(vgs: &[f64], vds: &[f64]) -> Result<(), String> {
+    match vgs.len().checked_mul(vds.len()) {
+        Some(n) if n <= MAX_IV_POINTS => Ok(()),
+        _ => Err(format!(
+            "the grid has {} x {} bias points, more than the limit of {MAX_IV_POINTS}; use larger steps",
+            vgs.len(),
+            vds.len()
+        )),
     }
 }
 

@@ -18,6 +18,7 @@
 
 pub mod builtin;
 pub mod design;
+pub mod error;
 pub mod iv;
 pub mod output;
 pub mod plot;

@@ -5,15 +5,17 @@
 use clap::{Parser, Subcommand, ValueEnum};
 use lamina::builtin::{square_ring, Ring, SquareStage};
 use lamina::design::{self, Outcome};
+use lamina::error::JobError as Failure;
 use lamina::output::{csv, ensure_dir, write_whole as write_file};
 use lamina::ring::{run_ring_recorded, RingParams, RingReport, RingWaves};
+use lamina::{note, note_raw};
 use lamina_engine::{Integrator, System};
 use lamina_measure::transfer::DEFINITIONS;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
-/// Prints a line to stdout; a closed pipe (`lamina ... | head`) ends the program quietly
-/// instead of panicking.
+/// Prints a line to stdout. A closed pipe (`lamina ... | head`) ends the program quietly; any
+/// other failure to write (a full disk, `> /dev/full`) is an output error, exit 4.
 macro_rules! out {
     ($($arg:tt)*) => {{
         use std::io::Write;
@@ -21,6 +23,8 @@ macro_rules! out {
             if e.kind() == std::io::ErrorKind::BrokenPipe {
                 std::process::exit(0);
             }
+            note!("error: cannot write to standard output: {e}");
+            std::process::exit(4);
         }
     }};
 }
@@ -77,10 +81,12 @@ enum Job {
         /// Run a built-in circuit instead of a file.
         #[arg(long, value_enum)]
         builtin: Option<Builtin>,
-        /// Number of stages of the built-in ring (odd, at least 3).
-        #[arg(long, default_value_t = 11)]
-        stages: usize,
-        /// Override a top-level parameter of the file: `--set vdd=0.7V` (repeatable).
+        /// Number of stages of the built-in ring (odd, at least 3; default 11). A file's ring
+        /// sets its own in `analysis ring`.
+        #[arg(long)]
+        stages: Option<usize>,
+        /// Override a top-level parameter of the file, or of the built-in ring (kn, kp, vtn,
+        /// vtp, vdd, load, lambda): `--set vdd=0.7V` (repeatable).
         #[arg(long = "set", value_name = "NAME=VALUE")]
         set: Vec<String>,
         /// Integration formula.
@@ -161,33 +167,21 @@ enum Job {
     },
 }
 
-enum Failure {
-    /// Bad flags (exit 2).
-    Usage(String),
-    /// A circuit file with errors (exit 3).
-    Invalid(String),
-    /// The analysis failed (exit 1).
-    Analysis(String),
-}
-
 fn main() -> ExitCode {
     let cli = Cli::parse();
     match run(cli) {
         Ok(()) => ExitCode::SUCCESS,
-        Err(Failure::Usage(msg)) => {
-            eprintln!("error: {msg}");
-            ExitCode::from(2)
-        }
-        Err(Failure::Invalid(msg)) => {
-            eprint!("{msg}");
-            if !msg.ends_with('\n') {
-                eprintln!();
+        Err(e) => {
+            match &e {
+                // Rendered diagnostics carry their own `error:` lines.
+                Failure::Invalid(msg) => note_raw!("{}", msg.trim_end_matches('\n')),
+                Failure::Usage(msg) | Failure::Io(msg) if msg.contains("\n") => {
+                    note_raw!("{}", msg.trim_end_matches('\n'))
+                }
+                other => note_raw!("error: {}", other.message()),
             }
-            ExitCode::from(3)
-        }
-        Err(Failure::Analysis(msg)) => {
-            eprintln!("error: {msg}");
-            ExitCode::from(1)
+            note!();
+            ExitCode::from(e.exit_code())
         }
     }
 }
@@ -195,8 +189,8 @@ fn main() -> ExitCode {
 fn run(cli: Cli) -> Result<(), Failure> {
     match cli.job {
         Job::Check { file, set, json } => {
-            let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
-            let d = design::load(&file, &sets).map_err(Failure::Invalid)?;
+            let sets = design::parse_sets(&set)?;
+            let d = design::load(&file, &sets)?;
             if json {
                 out!("{}", design::summary_json(&d));
             } else {
@@ -212,11 +206,12 @@ fn run(cli: Cli) -> Result<(), Failure> {
         } => {
             let vg = lamina::iv::parse_values("--vgs", &vgs).map_err(Failure::Usage)?;
             let vd = lamina::iv::parse_values("--vds", &vds).map_err(Failure::Usage)?;
-            let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
-            let d = design::load(&file, &sets).map_err(Failure::Invalid)?;
+            lamina::iv::check_grid(&vg, &vd).map_err(Failure::Usage)?;
+            let sets = design::parse_sets(&set)?;
+            let d = design::load(&file, &sets)?;
             let points = lamina::iv::run_iv(d, &vg, &vd).map_err(Failure::Analysis)?;
             if let Some(dir) = &out {
-                write_iv(dir, &points).map_err(Failure::Usage)?;
+                write_iv(dir, &points).map_err(Failure::Io)?;
             }
             if json {
                 let pts: Vec<serde_json::Value> = points
@@ -260,12 +255,11 @@ fn run(cli: Cli) -> Result<(), Failure> {
             file,
             common: Common { set, json, out },
         } => {
-            let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
-            let results = design::run_all(&file, &sets, &RingParams::default(), Some("transfer"))
-                .map_err(Failure::Invalid)?;
+            let sets = design::parse_sets(&set)?;
+            let results = design::run_all(&file, &sets, &RingParams::default(), Some("transfer"))?;
             let (kind, outcome) = &results[0];
             if let Some(dir) = &out {
-                write_vtc(dir, kind, outcome).map_err(Failure::Usage)?;
+                write_vtc(dir, kind, outcome).map_err(Failure::Io)?;
             }
             print_single(kind, outcome, json);
             Ok(())
@@ -275,17 +269,20 @@ fn run(cli: Cli) -> Result<(), Failure> {
             param,
             common: Common { set, json, out },
         } => {
-            let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
+            let sets = design::parse_sets(&set)?;
             let axes: Vec<lamina::sweep::Axis> = param
                 .iter()
                 .map(|p| lamina::sweep::parse_axis(p))
-                .collect::<Result<_, _>>()
-                .map_err(Failure::Usage)?;
-            // Check the file once, so that a broken file is reported once and not per point.
-            design::load(&file, &sets).map_err(Failure::Invalid)?;
+                .collect::<Result<_, _>>()?;
+            lamina::sweep::check_axes(&axes, &sets)?;
+            // Check the file once, at the grid's first point, so that a broken file or a value
+            // of the wrong dimension is reported once and not per point.
+            let mut first = sets.clone();
+            first.extend(axes.iter().map(|a| (a.name.clone(), a.texts[0].clone())));
+            design::load(&file, &first)?;
             let rows = lamina::sweep::run_sweep(&file, &sets, &axes, true);
             if let Some(dir) = &out {
-                write_sweep(dir, &axes, &rows).map_err(Failure::Usage)?;
+                write_sweep(dir, &axes, &rows).map_err(Failure::Io)?;
             }
             let keys: Vec<String> = rows
                 .iter()
@@ -337,17 +334,26 @@ fn run(cli: Cli) -> Result<(), Failure> {
                     out!("{line}");
                 }
             }
-            Ok(())
+            let failed: Vec<&lamina::sweep::Row> =
+                rows.iter().filter(|r| r.error.is_some()).collect();
+            match failed.first() {
+                None => Ok(()),
+                Some(r) => Err(Failure::Analysis(format!(
+                    "{} of {} points failed (their rows say why); the first: {}",
+                    failed.len(),
+                    rows.len(),
+                    r.error.as_deref().unwrap_or("")
+                ))),
+            }
         }
         Job::Delay {
             file,
             common: Common { set, json, out },
         } => {
-            let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
-            let results = design::run_all(&file, &sets, &RingParams::default(), Some("delay"))
-                .map_err(Failure::Invalid)?;
+            let sets = design::parse_sets(&set)?;
+            let results = design::run_all(&file, &sets, &RingParams::default(), Some("delay"))?;
             if let Some(dir) = &out {
-                write_run(dir, &results).map_err(Failure::Usage)?;
+                write_run(dir, &results).map_err(Failure::Io)?;
             }
             let (kind, outcome) = &results[0];
             print_single(kind, outcome, json);
@@ -357,11 +363,10 @@ fn run(cli: Cli) -> Result<(), Failure> {
             file,
             common: Common { set, json, out },
         } => {
-            let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
-            let results = design::run_all(&file, &sets, &RingParams::default(), None)
-                .map_err(Failure::Invalid)?;
+            let sets = design::parse_sets(&set)?;
+            let results = design::run_all(&file, &sets, &RingParams::default(), None)?;
             if let Some(dir) = &out {
-                write_run(dir, &results).map_err(Failure::Usage)?;
+                write_run(dir, &results).map_err(Failure::Io)?;
             }
             if json {
                 let items: Vec<serde_json::Value> =
@@ -375,6 +380,14 @@ fn run(cli: Cli) -> Result<(), Failure> {
             Ok(())
         }
         Job::Ring {
+            file: Some(_),
+            stages: Some(n),
+            ..
+        } => Err(Failure::Usage(format!(
+            "--stages {n} applies to the built-in ring only; a file's ring has `stages` in its \
+             `analysis ring`"
+        ))),
+        Job::Ring {
             file: Some(file),
             set,
             integrator,
@@ -385,22 +398,22 @@ fn run(cli: Cli) -> Result<(), Failure> {
             out,
             ..
         } => {
-            let sets = design::parse_sets(&set).map_err(Failure::Usage)?;
-            let d = design::load(&file, &sets).map_err(Failure::Invalid)?;
+            let sets = design::parse_sets(&set)?;
+            let d = design::load(&file, &sets)?;
             let base = RingParams {
                 integrator: method(integrator),
                 reference,
                 edge,
                 ..RingParams::default()
             };
-            let (mut system, ring, params) =
-                design::ring_from(d, &base).map_err(Failure::Invalid)?;
+            let (mut system, ring, params) = design::ring_from(d, &base)?;
             finish_ring(&mut system, &ring, &params, json, dump_matrix, out)
         }
         Job::Ring {
             file: None,
             builtin,
             stages,
+            set,
             integrator,
             reference,
             edge,
@@ -414,14 +427,17 @@ fn run(cli: Cli) -> Result<(), Failure> {
                     "give a circuit file or --builtin square-ring".into(),
                 ));
             };
+            let stages = stages.unwrap_or(11);
             if stages < 3 || stages % 2 == 0 || stages > 1_000_000 {
                 return Err(Failure::Usage(format!(
                     "--stages {stages}: a ring needs an odd number of stages from 3 to 1000000; \
                      give an odd count such as 11"
                 )));
             }
-            let (circuit, ring) = square_ring(stages, &SquareStage::default())
-                .map_err(|e| Failure::Analysis(e.to_string()))?;
+            let mut stage = SquareStage::default();
+            lamina::builtin::apply_sets(&mut stage, &design::parse_sets(&set)?)?;
+            let (circuit, ring) =
+                square_ring(stages, &stage).map_err(|e| Failure::Analysis(e.to_string()))?;
             let mut system = System::new(circuit).map_err(|e| Failure::Analysis(e.to_string()))?;
             let params = RingParams {
                 integrator: method(integrator),
@@ -507,7 +523,7 @@ fn write_sweep(
             &series,
         )?;
     }
-    eprintln!(
+    note!(
         "wrote sweep.csv and {} plots to {}",
         keys.len(),
         dir.display()
@@ -552,7 +568,7 @@ fn finish_ring(
     let (report, waves) =
         run_ring_recorded(system, ring, params).map_err(|e| Failure::Analysis(e.to_string()))?;
     if let Some(dir) = &out {
-        write_ring(dir, &report, &waves).map_err(Failure::Usage)?;
+        write_ring(dir, &report, &waves).map_err(Failure::Io)?;
     }
     if json {
         out!("{}", ring_json(&report));
@@ -575,7 +591,7 @@ fn write_ring(dir: &Path, r: &RingReport, w: &RingWaves) -> Result<(), String> {
         format!("{}\n", ring_json(r)).as_bytes(),
     )?;
     lamina::plot::waveforms(&dir.join("waveforms"), t, &[("out[0]", a), ("out[1]", b)])?;
-    eprintln!(
+    note!(
         "wrote waveforms.csv, summary.json and waveforms.svg/png to {}",
         dir.display()
     );
@@ -614,7 +630,7 @@ fn write_vtc(dir: &Path, kind: &str, o: &Outcome) -> Result<(), String> {
             snm.map(|s| s.snm),
             &snm.map(|s| s.squares.to_vec()).unwrap_or_default(),
         )?;
-        eprintln!(
+        note!(
             "wrote transfer.csv, summary.json, transfer.svg/png and butterfly.svg/png to {}",
             dir.display()
         );
@@ -680,7 +696,7 @@ fn write_iv(dir: &Path, points: &[lamina::iv::IvPoint]) -> Result<(), String> {
             &series,
         )?;
     }
-    eprintln!(
+    note!(
         "wrote iv.csv, summary.json and transfer-log.svg/png to {}",
         dir.display()
     );
@@ -709,8 +725,8 @@ fn dump(system: &mut System, ring: &Ring, path: &Path) -> Result<(), Failure> {
     let mut bytes = Vec::new();
     sprs::io::write_matrix_market_to_bufwrite(&mut bytes, &m)
         .map_err(|e| Failure::Analysis(format!("cannot encode the matrix: {e}")))?;
-    write_file(path, &bytes).map_err(Failure::Usage)?;
-    eprintln!(
+    write_file(path, &bytes).map_err(Failure::Io)?;
+    note!(
         "wrote the {0}x{0} DC Newton matrix to {1}",
         m.rows(),
         path.display()

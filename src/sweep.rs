@@ -2,36 +2,80 @@
 //! points run in parallel (rayon), results in grid order, a failed point reported in its row.
 
 use crate::design::{run_all, Outcome};
-use crate::iv::parse_values;
+use crate::error::JobError;
 use crate::ring::RingParams;
 use indicatif::{ParallelProgressIterator, ProgressBar, ProgressStyle};
+use lamina_netlist::units::Dim;
+use lamina_netlist::values::parse_values;
 use rayon::prelude::*;
 use std::path::Path;
+
+/// Most points of a sweep grid (the product of the axes' lengths).
+pub const MAX_SWEEP_POINTS: usize = 100_000;
 
 /// One swept parameter and its values.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Axis {
     /// Top-level parameter name.
     pub name: String,
-    /// Values, in the parameter's SI units (written as plain numbers).
+    /// Values in SI units.
     pub values: Vec<f64>,
+    /// The same values in the language's syntax, with their unit (`12e-1 V`), as overrides.
+    pub texts: Vec<String>,
+    /// Their dimension.
+    pub dim: Dim,
 }
 
-/// Parses `name=LIST` or `name=START:STOP:STEP`.
-pub fn parse_axis(text: &str) -> Result<Axis, String> {
+/// Parses `name=LIST` or `name=START:STOP:STEP`, values with units as in circuit files
+/// (`vdd=0.6:1.2:0.2V`, `len=50nm,100nm`).
+pub fn parse_axis(text: &str) -> Result<Axis, JobError> {
+    let usage = |why: String| JobError::Usage(format!("--param {text}: {why}"));
     let (name, vals) = text.split_once('=').ok_or_else(|| {
-        format!(
-            "--param {text}: expected name=LIST or name=START:STOP:STEP, such as vdd=0.5:1.2:0.1"
-        )
+        usage("expected name=LIST or name=START:STOP:STEP, such as vdd=0.5:1.2:0.1V".into())
     })?;
-    let values = parse_values(&format!("--param {name}"), vals)?;
-    if name.trim().is_empty() {
-        return Err(format!("--param {text}: the parameter name is missing"));
+    let name = name.trim();
+    if name.is_empty() {
+        return Err(usage("the parameter name is missing".into()));
     }
+    let values = parse_values(vals, None, MAX_SWEEP_POINTS).map_err(usage)?;
     Ok(Axis {
-        name: name.trim().to_string(),
-        values,
+        name: name.to_string(),
+        dim: values.first().map_or(Dim::NONE, |v| v.dim),
+        texts: values.iter().map(|v| v.text.clone()).collect(),
+        values: values.iter().map(|v| v.si).collect(),
     })
+}
+
+/// Checks a sweep's axes against each other and the `--set` flags: each name once, and a grid
+/// within [`MAX_SWEEP_POINTS`] (checked before anything is allocated).
+pub fn check_axes(axes: &[Axis], sets: &[(String, String)]) -> Result<(), JobError> {
+    for (i, a) in axes.iter().enumerate() {
+        if axes[..i].iter().any(|b| b.name == a.name) {
+            return Err(JobError::Usage(format!(
+                "--param {} is given twice; list all its values in one flag",
+                a.name
+            )));
+        }
+        if sets.iter().any(|(n, _)| *n == a.name) {
+            return Err(JobError::Usage(format!(
+                "`{}` is both set (--set) and swept (--param); give it in one of them",
+                a.name
+            )));
+        }
+    }
+    let total = axes
+        .iter()
+        .try_fold(1usize, |acc, a| acc.checked_mul(a.values.len()));
+    match total {
+        Some(n) if n <= MAX_SWEEP_POINTS => Ok(()),
+        _ => Err(JobError::Usage(format!(
+            "the grid has {} points, more than the limit of {MAX_SWEEP_POINTS}; use fewer values",
+            axes.iter()
+                .map(|a| a.values.len().to_string())
+                .collect::<Vec<_>>()
+                .join(" x ")
+        ))),
+    }
 }
 
 /// One grid point's results: the swept values, then measured figures or the error.
@@ -87,15 +131,15 @@ fn figures(kind: &str, o: &Outcome) -> Vec<(String, f64)> {
     f
 }
 
-/// Every combination of the axes' values, first axis slowest.
-pub fn grid(axes: &[Axis]) -> Vec<Vec<(String, f64)>> {
+/// Every combination of the axes' values (index into each axis), first axis slowest.
+pub fn grid(axes: &[Axis]) -> Vec<Vec<usize>> {
     let mut points = vec![Vec::new()];
     for a in axes {
         let mut next = Vec::with_capacity(points.len() * a.values.len());
         for p in &points {
-            for &v in &a.values {
-                let mut q = p.clone();
-                q.push((a.name.clone(), v));
+            for k in 0..a.values.len() {
+                let mut q: Vec<usize> = p.clone();
+                q.push(k);
                 next.push(q);
             }
         }
@@ -125,10 +169,12 @@ pub fn run_sweep(
     points
         .into_par_iter()
         .progress_with(bar)
-        .map(|point| {
+        .map(|index| {
             let mut local = sets.to_vec();
-            for (n, v) in &point {
-                local.push((n.clone(), format!("{v:e}")));
+            let mut point = Vec::with_capacity(axes.len());
+            for (a, &k) in axes.iter().zip(&index) {
+                local.push((a.name.clone(), a.texts[k].clone()));
+                point.push((a.name.clone(), a.values[k]));
             }
             match run_all(path, &local, &RingParams::default(), None) {
                 Ok(results) => {
@@ -142,9 +188,18 @@ pub fn run_sweep(
                 Err(e) => Row {
                     point,
                     figures: Vec::new(),
-                    error: Some(e.lines().next().unwrap_or("").to_string()),
+                    error: Some(first_line(e.message())),
                 },
             }
         })
         .collect()
+}
+
+/// The first line of a message that says something (rendered diagnostics start with it).
+fn first_line(text: &str) -> String {
+    text.lines()
+        .map(str::trim)
+        .find(|l| !l.is_empty())
+        .unwrap_or("failed")
+        .to_string()
 }

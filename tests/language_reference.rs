@@ -2,17 +2,17 @@
 //! `lam` must check clean, blocks marked `lam-bad` must be refused, so the document cannot
 //! drift from the parser.
 
-use lamina_netlist::{load_with, DiskReader, FileReader, LoadOptions};
+use lamina_netlist::{load_with, DiskReader, FileReader, LoadOptions, ReadError};
 use std::path::Path;
 
 struct Example<'a>(&'a str);
 
 impl FileReader for Example<'_> {
-    fn read(&self, path: &Path) -> Result<String, String> {
+    fn read(&self, path: &Path, max_bytes: usize) -> Result<String, ReadError> {
         if path == Path::new("netlists/example.lam") {
             Ok(self.0.to_string())
         } else {
-            DiskReader.read(path)
+            DiskReader.read(path, max_bytes)
         }
     }
 }

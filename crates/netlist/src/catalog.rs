@@ -108,6 +108,55 @@ impl Values {
     }
 }
 
+/// Why a kind's parameter values do not make an element.
+#[derive(Clone, Debug, PartialEq)]
+pub struct BuildError {
+    /// The parameter at fault, if one is (its name in circuit files).
+    pub param: Option<String>,
+    /// What is wrong.
+    pub message: String,
+    /// What to change, if known.
+    pub help: Option<String>,
+}
+
+impl BuildError {
+    /// An error about `param`.
+    pub fn at(param: &str, message: impl Into<String>, help: impl Into<String>) -> Self {
+        BuildError {
+            param: Some(param.to_string()),
+            message: message.into(),
+            help: Some(help.into()),
+        }
+    }
+}
+
+impl From<String> for BuildError {
+    /// A message from a device model or the material library; the first name in backticks
+    /// that is a parameter of the model (`temperature`, ...) or a material setting locates it.
+    fn from(message: String) -> Self {
+        let param = message
+            .split('`')
+            .skip(1)
+            .step_by(2)
+            .find(|w| SHEET_PARAMS.iter().any(|p| p.name == *w))
+            .map(str::to_string);
+        BuildError {
+            param,
+            message,
+            help: None,
+        }
+    }
+}
+
+impl From<&str> for BuildError {
+    fn from(message: &str) -> Self {
+        BuildError::from(message.to_string())
+    }
+}
+
+/// A cheap check of a card's values (see [`Kind::check`]).
+pub type CheckFn = fn(&Values) -> Result<(), BuildError>;
+
 /// An element kind.
 pub struct Kind {
     /// Name in circuit files.
@@ -119,13 +168,22 @@ pub struct Kind {
     /// Parameters.
     pub params: &'static [ParamSpec],
     /// Builds the element, or says why the values do not make one.
-    pub build: fn(&Values) -> Result<Box<dyn Element>, String>,
+    pub build: fn(&Values) -> Result<Box<dyn Element>, BuildError>,
+    /// Checks a device card's values without building the element (cheap, no tables), so
+    /// that a card's faults are reported once, at the card.
+    pub check: Option<CheckFn>,
 }
 
-fn source_wave(v: &Values) -> Waveform {
-    v.waveform
-        .clone()
-        .unwrap_or(Waveform::Constant(v.numbers[0]))
+fn source_wave(v: &Values) -> Result<Waveform, BuildError> {
+    match &v.waveform {
+        Some(_) if v.given[0] => Err(BuildError::at(
+            "dc",
+            "`dc` and `wave` are both given; a source has one value",
+            "keep `wave` for a time-varying source, or `dc` for a constant one",
+        )),
+        Some(w) => Ok(w.clone()),
+        None => Ok(Waveform::Constant(v.numbers[0])),
+    }
 }
 
 /// Parameters of both square-law reference FETs.
@@ -147,6 +205,7 @@ pub static KINDS: &[Kind] = &[
         terminals: &["a", "b"],
         params: &[req("resistance", Dim::RESISTANCE)],
         build: |v| Ok(Box::new(Resistor::new(v.numbers[0]))),
+        check: None,
     },
     Kind {
         name: "capacitor",
@@ -154,6 +213,7 @@ pub static KINDS: &[Kind] = &[
         terminals: &["a", "b"],
         params: &[req("capacitance", Dim::CAPACITANCE)],
         build: |v| Ok(Box::new(Capacitor::new(v.numbers[0]))),
+        check: None,
     },
     Kind {
         name: "inductor",
@@ -161,20 +221,23 @@ pub static KINDS: &[Kind] = &[
         terminals: &["a", "b"],
         params: &[req("inductance", Dim::INDUCTANCE)],
         build: |v| Ok(Box::new(Inductor::new(v.numbers[0]))),
+        check: None,
     },
     Kind {
         name: "voltage_source",
         about: "independent voltage source",
         terminals: &["pos", "neg"],
         params: &[opt("dc", Dim::VOLTAGE, 0.0), wave("wave", Dim::VOLTAGE)],
-        build: |v| Ok(Box::new(VoltageSource::new(source_wave(v)))),
+        build: |v| Ok(Box::new(VoltageSource::new(source_wave(v)?))),
+        check: None,
     },
     Kind {
         name: "current_source",
         about: "independent current source (drives current out of `pos`)",
         terminals: &["pos", "neg"],
         params: &[opt("dc", Dim::CURRENT, 0.0), wave("wave", Dim::CURRENT)],
-        build: |v| Ok(Box::new(CurrentSource::new(source_wave(v)))),
+        build: |v| Ok(Box::new(CurrentSource::new(source_wave(v)?))),
+        check: None,
     },
     Kind {
         name: "vcvs",
@@ -185,6 +248,7 @@ pub static KINDS: &[Kind] = &[
             ..req("gain", Dim::NONE)
         }],
         build: |v| Ok(Box::new(Vcvs::new(v.numbers[0]))),
+        check: None,
     },
     Kind {
         name: "vccs",
@@ -195,6 +259,7 @@ pub static KINDS: &[Kind] = &[
             ..req("transconductance", Dim::CONDUCTANCE)
         }],
         build: |v| Ok(Box::new(Vccs::new(v.numbers[0]))),
+        check: None,
     },
     Kind {
         name: "square_nfet",
@@ -202,6 +267,7 @@ pub static KINDS: &[Kind] = &[
         terminals: &["drain", "gate", "source"],
         params: SQUARE_PARAMS,
         build: |v| Ok(Box::new(square(Polarity::N, v))),
+        check: None,
     },
     Kind {
         name: "square_pfet",
@@ -209,6 +275,7 @@ pub static KINDS: &[Kind] = &[
         terminals: &["drain", "gate", "source"],
         params: SQUARE_PARAMS,
         build: |v| Ok(Box::new(square(Polarity::P, v))),
+        check: None,
     },
     Kind {
         name: "sheet_fet",
@@ -216,16 +283,17 @@ pub static KINDS: &[Kind] = &[
         terminals: &["drain", "gate", "source"],
         params: SHEET_PARAMS,
         build: |v| Ok(Box::new(SheetFet::new(&sheet_card(v)?)?)),
+        check: Some(|v| sheet_card(v).map(|_| ())),
     },
 ];
 
-const ENERGY: Dim = Dim([0, 1, 1, 1, 0]);
-const PER_AREA: Dim = Dim([-2, 0, 0, 0, 0]);
-const PER_ENERGY_AREA: Dim = Dim([-2, -1, -1, -1, 0]);
-const MOBILITY: Dim = Dim([2, -1, -1, 0, 0]);
-const VELOCITY: Dim = Dim([1, -1, 0, 0, 0]);
-const RESISTANCE_WIDTH: Dim = Dim([1, 0, 1, -1, 0]);
-const CAPACITANCE_PER_WIDTH: Dim = Dim([-1, 1, -1, 1, 0]);
+const ENERGY: Dim = Dim::ENERGY;
+const PER_AREA: Dim = Dim::PER_AREA;
+const PER_ENERGY_AREA: Dim = Dim::PER_ENERGY_AREA;
+const MOBILITY: Dim = Dim::MOBILITY;
+const VELOCITY: Dim = Dim::VELOCITY;
+const RESISTANCE_WIDTH: Dim = Dim::RESISTANCE_WIDTH;
+const CAPACITANCE_PER_WIDTH: Dim = Dim::CAPACITANCE_PER_WIDTH;
 
 /// Parameters of the 2D-channel FET. Names (materials) first, then numbers; any number given
 /// overrides the library value of the named material.
@@ -272,15 +340,98 @@ static SHEET_PARAMS: &[ParamSpec] = &[
     maybe("overlap_capacitance", CAPACITANCE_PER_WIDTH),
 ];
 
+/// Settings that describe a Dirac-sheet (graphene-like) gate and mean nothing on a metal.
+const DIRAC_GATE_SETTINGS: &[&str] = &[
+    "gate_fermi_velocity",
+    "gate_half_gap",
+    "gate_gap_shift",
+    "gate_degeneracy",
+    "gate_residual_density",
+];
+
+/// Checks settings that contradict each other or that another makes meaningless, naming the
+/// one to change.
+fn sheet_consistency(v: &Values) -> Result<(), BuildError> {
+    let p = SHEET_PARAMS;
+    for (count, thick) in [
+        ("insulator_layers", "insulator_thickness"),
+        ("insulator2_layers", "insulator2_thickness"),
+    ] {
+        if v.get(p, count).is_some() && v.get(p, thick).is_some() {
+            return Err(BuildError::at(
+                thick,
+                format!("`{count}` and `{thick}` are both given; one would silently win"),
+                format!(
+                    "give either the layer count or the thickness: remove `{thick}` or `{count}`"
+                ),
+            ));
+        }
+        if let Some(n) = v.get(p, count) {
+            if n.fract() != 0.0 || !(1.0..=1e6).contains(&n) {
+                return Err(BuildError::at(
+                    count,
+                    format!("`{count}` must be a whole number of layers from 1, found {n}"),
+                    format!(
+                        "write a whole count such as `{count} = 10`, or give a thickness instead"
+                    ),
+                ));
+            }
+        }
+    }
+    if v.get(p, "saturation_velocity") == Some(0.0) {
+        return Err(BuildError::at(
+            "saturation_velocity",
+            "`saturation_velocity = 0` would stop all current",
+            "leave `saturation_velocity` out for a device without velocity saturation",
+        ));
+    }
+    let gate_is_dirac = match v.text(p, "gate") {
+        Some(g) => matches!(materials::gate(g), Ok(Gate::Dirac { .. })),
+        None => v.get(p, "gate_fermi_velocity").is_some(),
+    };
+    if !gate_is_dirac {
+        if let Some(s) = DIRAC_GATE_SETTINGS.iter().find(|s| v.get(p, s).is_some()) {
+            let gate = v
+                .text(p, "gate")
+                .map_or("the default metal gate".to_string(), |g| {
+                    format!("gate `{g}`")
+                });
+            return Err(BuildError::at(
+                s,
+                format!("`{s}` describes a Dirac-sheet gate, but {gate} is a metal"),
+                "remove it, or use a Dirac gate (`gate = graphene`, or `gate_fermi_velocity` without `gate`)",
+            ));
+        }
+    }
+    if v.get(p, "valley_offset").is_none() {
+        if let Some(s) = ["valley_mass", "valley_degeneracy"]
+            .iter()
+            .find(|s| v.get(p, s).is_some())
+        {
+            return Err(BuildError::at(
+                s,
+                format!("`{s}` is given without `valley_offset`, so there is no second valley"),
+                "add `valley_offset` (its energy above the band edge) or remove it",
+            ));
+        }
+    }
+    Ok(())
+}
+
 /// Builds a 2D-channel FET card from library names and numbers (energies arrive in joules
 /// and are stored in eV; trap densities arrive per joule and are stored per eV).
-pub fn sheet_card(v: &Values) -> Result<SheetFetCard, String> {
+pub fn sheet_card(v: &Values) -> Result<SheetFetCard, BuildError> {
+    sheet_consistency(v)?;
     let p = SHEET_PARAMS;
     let q = lamina_devices::physics::Q;
     let ev = |name: &str| v.get(p, name).map(|x| x / q);
     let mut card = SheetFetCard::default();
     if let Some(ch) = v.text(p, "channel") {
-        materials::apply_channel(&mut card, ch)?;
+        materials::apply_channel(&mut card, ch).map_err(|m| BuildError {
+            param: Some("channel".into()),
+            message: m,
+            help: None,
+        })?;
     }
     let set = |slot: &mut f64, x: Option<f64>| {
         if let Some(x) = x {
@@ -340,7 +491,11 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, String> {
     // Gate: a library electrode, a Dirac sheet described in place, or a metal (by default at
     // the channel's electron affinity: flat bands at zero gate voltage).
     card.gate = match v.text(p, "gate") {
-        Some(g) => materials::gate(g)?,
+        Some(g) => materials::gate(g).map_err(|m| BuildError {
+            param: Some("gate".into()),
+            message: m,
+            help: None,
+        })?,
         None if v.get(p, "gate_fermi_velocity").is_some() => Gate::Dirac {
             fermi_velocity: 0.0,
             half_gap: 0.0,
@@ -390,7 +545,12 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, String> {
     ] {
         let layer = match v.text(p, mat) {
             Some(name) => {
-                let mut l = materials::insulator_layer(name, v.get(p, count), v.get(p, thick))?;
+                let mut l = materials::insulator_layer(name, v.get(p, count), v.get(p, thick))
+                    .map_err(|m| BuildError {
+                        param: Some(mat.into()),
+                        message: m,
+                        help: None,
+                    })?;
                 set(&mut l.permittivity, v.get(p, eps));
                 Some(l)
             }
@@ -401,16 +561,29 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, String> {
                 }),
                 (None, None) if v.get(p, count).is_none() => None,
                 _ => {
-                    return Err(format!(
-                        "give `{mat}` (a library material) or both `{eps}` and `{thick}`"
-                    ))
+                    let at = [count, eps, thick]
+                        .into_iter()
+                        .find(|k| v.get(p, k).is_some())
+                        .unwrap_or(mat);
+                    return Err(BuildError::at(
+                        at,
+                        format!("`{at}` needs `{mat}` (a library material) or both `{eps}` and `{thick}`"),
+                        format!("add `{mat} = hBN`, say, or give `{eps}` and `{thick}`"),
+                    ));
                 }
             },
         };
         layers.extend(layer);
     }
     if layers.is_empty() {
-        return Err("the gate stack needs an insulator: `insulator = hBN` with `insulator_layers`, or `insulator_permittivity` and `insulator_thickness`".into());
+        return Err(BuildError {
+            param: None,
+            message: "the gate stack needs an insulator".into(),
+            help: Some(
+                "add `insulator = hBN, insulator_layers = 10`, or `insulator_permittivity` and `insulator_thickness`"
+                    .into(),
+            ),
+        });
     }
     card.insulator = layers;
     card.validate()?;

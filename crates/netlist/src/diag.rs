@@ -28,6 +28,8 @@ pub enum ErrorKind {
     Duplicate,
     /// Quantities of different dimensions combined or assigned.
     UnitMismatch,
+    /// A number without a unit where a dimension is expected.
+    MissingUnit,
     /// A pin left unconnected.
     Unconnected,
     /// A pin connected twice.

@@ -82,33 +82,36 @@ pub fn lex(file: FileId, text: &str, diags: &mut Vec<Diagnostic>) -> Vec<Token> 
         let start = i;
         if c.is_ascii_digit() || (c == b'.' && i + 1 < bytes.len() && bytes[i + 1].is_ascii_digit())
         {
-            while i < bytes.len() && (bytes[i].is_ascii_digit() || bytes[i] == b'.') {
-                // Stop before a `..` range operator.
-                if bytes[i] == b'.' && i + 1 < bytes.len() && bytes[i + 1] == b'.' {
-                    break;
-                }
-                i += 1;
-            }
-            if i < bytes.len() && (bytes[i] == b'e' || bytes[i] == b'E') {
-                let mut j = i + 1;
-                if j < bytes.len() && (bytes[j] == b'+' || bytes[j] == b'-') {
-                    j += 1;
-                }
-                if j < bytes.len() && bytes[j].is_ascii_digit() {
-                    while j < bytes.len() && bytes[j].is_ascii_digit() {
-                        j += 1;
-                    }
-                    i = j;
-                }
-            }
+            i = number_end(bytes, i);
             let lit = &text[start..i];
+            // A literal whose digits are not all zero but whose value is 0 or subnormal has
+            // underflowed; one that is infinite has overflowed. Both are refused, never read
+            // as 0 or infinity.
+            let nonzero = lit
+                .split(['e', 'E'])
+                .next()
+                .is_some_and(|m| m.bytes().any(|b| (b'1'..=b'9').contains(&b)));
             match lit.parse::<f64>() {
-                Ok(v) if v.is_finite() => out.push(Token {
-                    tok: Tok::Number(v),
-                    span: Span::new(file, start, i),
-                    spaced,
-                }),
-                _ => diags.push(Diagnostic::new(
+                Ok(v) if v.is_finite() && (!nonzero || v >= f64::MIN_POSITIVE) => {
+                    out.push(Token {
+                        tok: Tok::Number(v),
+                        span: Span::new(file, start, i),
+                        spaced,
+                    })
+                }
+                Ok(v) => diags.push(
+                    Diagnostic::new(
+                        ErrorKind::BadNumber,
+                        Span::new(file, start, i),
+                        if v.is_infinite() {
+                            format!("`{lit}` is too large to represent")
+                        } else {
+                            format!("`{lit}` is too small to represent (it underflows to 0)")
+                        },
+                    )
+                    .with_help("numbers must lie between about 2.2e-308 and 1.8e308; use a unit prefix for small or large values"),
+                ),
+                Err(_) => diags.push(Diagnostic::new(
                     ErrorKind::BadNumber,
                     Span::new(file, start, i),
                     format!("`{lit}` is not a number"),
@@ -222,4 +225,28 @@ pub fn lex(file: FileId, text: &str, diags: &mut Vec<Diagnostic>) -> Vec<Token> 
         spaced: true,
     });
     out
+}
+
+/// The end of a number literal starting at `i`: digits and points (stopping before a `..`
+/// range operator), then an optional exponent `e`, `E` with an optional sign.
+pub(crate) fn number_end(bytes: &[u8], mut i: usize) -> usize {
+    while i < bytes.len() && (bytes[i].is_ascii_digit() || bytes[i] == b'.') {
+        if bytes[i] == b'.' && i + 1 < bytes.len() && bytes[i + 1] == b'.' {
+            break;
+        }
+        i += 1;
+    }
+    if i < bytes.len() && (bytes[i] == b'e' || bytes[i] == b'E') {
+        let mut j = i + 1;
+        if j < bytes.len() && (bytes[j] == b'+' || bytes[j] == b'-') {
+            j += 1;
+        }
+        if j < bytes.len() && bytes[j].is_ascii_digit() {
+            while j < bytes.len() && bytes[j].is_ascii_digit() {
+                j += 1;
+            }
+            i = j;
+        }
+    }
+    i
 }

@@ -32,11 +32,12 @@ pub mod lexer;
 pub mod parser;
 pub mod source;
 pub mod units;
+pub mod values;
 
 pub use diag::{render, render_warnings, Diagnostic, ErrorKind};
 pub use elaborate::{
-    load_file, load_with, AnalysisDecl, Design, DiskReader, Failure, FileReader, Limits,
-    LoadOptions, Setting, SettingKind, SettingValue, Summary, ANALYSES,
+    load_file, load_with, Analysis, AnalysisDecl, Design, DiskReader, Failure, FileReader, Limits,
+    LoadOptions, ReadError, SettingKind, Summary, ANALYSES,
 };
 pub use source::{Sources, Span};
 
@@ -50,11 +51,14 @@ pub fn load_source(name: &str, text: &str, options: &LoadOptions) -> Result<Desi
         text: &'a str,
     }
     impl FileReader for One<'_> {
-        fn read(&self, path: &Path) -> Result<String, String> {
+        fn read(&self, path: &Path, max_bytes: usize) -> Result<String, ReadError> {
             if path == Path::new(self.name) {
+                if self.text.len() > max_bytes {
+                    return Err(ReadError::TooLarge);
+                }
                 Ok(self.text.to_string())
             } else {
-                DiskReader.read(path)
+                DiskReader.read(path, max_bytes)
             }
         }
     }

@@ -5,7 +5,7 @@ use crate::ast::*;
 use crate::diag::{did_you_mean, Diagnostic, ErrorKind};
 use crate::lexer::{Tok, Token};
 use crate::source::Span;
-use crate::units::{base_symbols, unit_atom, Dim};
+use crate::units::{all_symbols, run_together, unit_atom, Dim};
 
 /// Deepest nesting of blocks and expressions the parser accepts.
 pub const MAX_DEPTH: usize = 64;
@@ -575,11 +575,16 @@ impl<'a> Parser<'a> {
                     Some(e) => span.to(e),
                     None => span,
                 };
-                Ok(Expr::Number {
-                    value: v * scale,
-                    dim,
-                    span,
-                })
+                let value = v * scale;
+                if !value.is_finite() || (v != 0.0 && value.abs() < f64::MIN_POSITIVE) {
+                    self.diags.push(Diagnostic::new(
+                        ErrorKind::BadNumber,
+                        span,
+                        "the value with its unit is too large or too small to represent".into(),
+                    ));
+                    return Err(());
+                }
+                Ok(Expr::Number { value, dim, span })
             }
             Tok::Str(s) => {
                 self.bump();
@@ -665,7 +670,7 @@ impl<'a> Parser<'a> {
                     s.chars().next().is_some_and(|c| c.is_alphabetic()) && s.len() <= 4;
                 if looks_like_unit && !matches!(self.peek_at(1), Tok::Punct("=") | Tok::Punct("("))
                 {
-                    if let Some(h) = did_you_mean(&s, base_symbols()) {
+                    if let Some(h) = unit_hint(&s) {
                         let span = self.span();
                         self.diags.push(
                             Diagnostic::new(
@@ -705,6 +710,23 @@ impl<'a> Parser<'a> {
                     && (matches!(&next.tok, Tok::Ident(s) if unit_atom(s).is_some())
                         || matches!(next.tok, Tok::Punct("(")));
                 if !joins {
+                    // `cm^2/Vs`: symbols run together, or a misspelt symbol, right after a
+                    // unit's `/` or `*` is a unit mistake, not a division by a parameter.
+                    if let Tok::Ident(w) = &next.tok {
+                        if !next.spaced && !first {
+                            if let Some(h) = unit_hint(w) {
+                                self.diags.push(
+                                    Diagnostic::new(
+                                        ErrorKind::UnknownUnit,
+                                        next.span,
+                                        format!("`{w}` is not a unit"),
+                                    )
+                                    .with_help(h),
+                                );
+                                return Err(());
+                            }
+                        }
+                    }
                     break;
                 }
                 let d = self.is_punct("/");
@@ -760,6 +782,21 @@ impl<'a> Parser<'a> {
         }
         Ok((scale, dim))
     }
+}
+
+/// What to write instead of `word` where a unit was expected: symbols run together need a
+/// space and parentheses (`Vs` -> `(V s)`), a misspelt symbol gets the closest one (`fFF` ->
+/// `fF`).
+fn unit_hint(word: &str) -> Option<String> {
+    if let Some(parts) = run_together(word) {
+        return Some(format!(
+            "units are separated by a space: write `({})`, as in `cm^2/({})`",
+            parts.join(" "),
+            parts.join(" ")
+        ));
+    }
+    let all = all_symbols();
+    did_you_mean(word, all.iter().map(String::as_str))
 }
 
 /// A parsed file: every token (comments and whitespace sit in the gaps between token spans,

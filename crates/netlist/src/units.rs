@@ -75,57 +75,110 @@ impl Dim {
         }
     }
 
+    /// Energy (J; eV in circuit files).
+    pub const ENERGY: Dim = Dim([0, 1, 1, 1, 0]);
+    /// Charge (C).
+    pub const CHARGE: Dim = Dim([0, 1, 0, 1, 0]);
+    /// Power (W).
+    pub const POWER: Dim = Dim([0, 0, 1, 1, 0]);
+    /// Area (m²).
+    pub const AREA: Dim = Dim([2, 0, 0, 0, 0]);
+    /// Density per area (1/m²).
+    pub const PER_AREA: Dim = Dim([-2, 0, 0, 0, 0]);
+    /// Density per energy and area (1/(J m²)).
+    pub const PER_ENERGY_AREA: Dim = Dim([-2, -1, -1, -1, 0]);
+    /// Mobility (m²/(V s)).
+    pub const MOBILITY: Dim = Dim([2, -1, -1, 0, 0]);
+    /// Velocity (m/s).
+    pub const VELOCITY: Dim = Dim([1, -1, 0, 0, 0]);
+    /// Resistance times width (Ohm m), as contact resistances are quoted.
+    pub const RESISTANCE_WIDTH: Dim = Dim([1, 0, 1, -1, 0]);
+    /// Capacitance per width (F/m).
+    pub const CAPACITANCE_PER_WIDTH: Dim = Dim([-1, 1, -1, 1, 0]);
+    /// Capacitance per area (F/m²).
+    pub const CAPACITANCE_PER_AREA: Dim = Dim([-2, 1, -1, 1, 0]);
+    /// Electric field (V/m).
+    pub const FIELD: Dim = Dim([-1, 0, 1, 0, 0]);
+
     /// A value written with a unit of this dimension, for help messages.
     pub fn example(self) -> String {
-        let named = [
-            (Dim::NONE, "2"),
-            (Dim::LENGTH, "50 nm"),
-            (Dim::TIME, "10 ps"),
-            (Dim::VOLTAGE, "0.8 V"),
-            (Dim::CURRENT, "10 uA"),
-            (Dim::TEMPERATURE, "300 K"),
-            (Dim::RESISTANCE, "10 kOhm"),
-            (Dim::CONDUCTANCE, "1 mS"),
-            (Dim::CAPACITANCE, "1 fF"),
-            (Dim::INDUCTANCE, "1 nH"),
-            (Dim::FREQUENCY, "1 GHz"),
-            (Dim::TRANSCONDUCTANCE_PARAMETER, "100 uA/V^2"),
-            (Dim::PER_VOLT, "0.1 /V"),
-        ];
-        named
-            .iter()
-            .find(|(d, _)| *d == self)
-            .map_or_else(|| format!("1 {self}"), |(_, e)| e.to_string())
+        match NAMED.iter().find(|n| n.0 == self) {
+            Some(n) => n.3.to_string(),
+            None => format!("1 {self}"),
+        }
     }
 
-    /// A plain-words name for common dimensions, for messages.
+    /// A plain-words name with the unit, for messages: "a length (m)".
     pub fn describe(self) -> String {
-        let named = [
-            (Dim::NONE, "a pure number"),
-            (Dim::LENGTH, "a length (m)"),
-            (Dim::TIME, "a time (s)"),
-            (Dim::VOLTAGE, "a voltage (V)"),
-            (Dim::CURRENT, "a current (A)"),
-            (Dim::TEMPERATURE, "a temperature (K)"),
-            (Dim::RESISTANCE, "a resistance (Ohm)"),
-            (Dim::CONDUCTANCE, "a conductance (S)"),
-            (Dim::CAPACITANCE, "a capacitance (F)"),
-            (Dim::INDUCTANCE, "an inductance (H)"),
-            (Dim::FREQUENCY, "a frequency (Hz)"),
-            (
-                Dim::TRANSCONDUCTANCE_PARAMETER,
-                "a transconductance parameter (A/V^2)",
-            ),
-            (Dim::PER_VOLT, "an inverse voltage (1/V)"),
-        ];
-        for (d, name) in named {
-            if d == self {
-                return name.to_string();
-            }
+        match NAMED.iter().find(|n| n.0 == self) {
+            Some(n) if self == Dim::NONE => n.1.to_string(),
+            Some(n) => format!("{} ({})", n.1, n.2),
+            None => format!("a quantity in {self}"),
         }
-        format!("a quantity in {self}")
+    }
+
+    /// The unit in the trade's words ("Ohm m", "cm^2/(V s)"), for tables and messages.
+    pub fn unit(self) -> String {
+        match NAMED.iter().find(|n| n.0 == self) {
+            Some(n) => n.2.to_string(),
+            None => self.to_string(),
+        }
     }
 }
+
+/// Dimensions with a name, the unit the trade writes them in, and an example value.
+const NAMED: &[(Dim, &str, &str, &str)] = &[
+    (Dim::NONE, "a pure number", "1", "2"),
+    (Dim::LENGTH, "a length", "m", "50 nm"),
+    (Dim::TIME, "a time", "s", "10 ps"),
+    (Dim::VOLTAGE, "a voltage", "V", "0.8 V"),
+    (Dim::CURRENT, "a current", "A", "10 uA"),
+    (Dim::TEMPERATURE, "a temperature", "K", "300 K"),
+    (Dim::RESISTANCE, "a resistance", "Ohm", "10 kOhm"),
+    (Dim::CONDUCTANCE, "a conductance", "S", "1 mS"),
+    (Dim::CAPACITANCE, "a capacitance", "F", "1 fF"),
+    (Dim::INDUCTANCE, "an inductance", "H", "1 nH"),
+    (Dim::FREQUENCY, "a frequency", "Hz", "1 GHz"),
+    (
+        Dim::TRANSCONDUCTANCE_PARAMETER,
+        "a transconductance parameter",
+        "A/V^2",
+        "100 uA/V^2",
+    ),
+    (Dim::PER_VOLT, "an inverse voltage", "1/V", "0.1 /V"),
+    (Dim::ENERGY, "an energy", "J, or eV", "0.9 eV"),
+    (Dim::CHARGE, "a charge", "C", "1 fC"),
+    (Dim::POWER, "a power", "W", "1 uW"),
+    (Dim::AREA, "an area", "m^2", "1 um^2"),
+    (Dim::PER_AREA, "a density per area", "1/m^2", "1e12 /cm^2"),
+    (
+        Dim::PER_ENERGY_AREA,
+        "a density per energy and area",
+        "1/(J m^2), or 1/(eV cm^2)",
+        "1e12 /(eV cm^2)",
+    ),
+    (Dim::MOBILITY, "a mobility", "m^2/(V s)", "40 cm^2/(V s)"),
+    (Dim::VELOCITY, "a velocity", "m/s", "3e6 cm/s"),
+    (
+        Dim::RESISTANCE_WIDTH,
+        "a resistance times width",
+        "Ohm m",
+        "300 Ohm um",
+    ),
+    (
+        Dim::CAPACITANCE_PER_WIDTH,
+        "a capacitance per width",
+        "F/m",
+        "0.1 fF/um",
+    ),
+    (
+        Dim::CAPACITANCE_PER_AREA,
+        "a capacitance per area",
+        "F/m^2",
+        "1 uF/cm^2",
+    ),
+    (Dim::FIELD, "an electric field", "V/m", "1 MV/cm"),
+];
 
 impl fmt::Display for Dim {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
@@ -205,6 +258,43 @@ pub fn base_symbols() -> impl Iterator<Item = &'static str> {
     BASES.iter().map(|b| b.0)
 }
 
+/// Every unit symbol with and without prefix (`fF`, `kOhm`, `cm`), for suggestions.
+pub fn all_symbols() -> Vec<String> {
+    let mut v: Vec<String> = BASES.iter().map(|b| b.0.to_string()).collect();
+    for (p, _) in PREFIXES {
+        for (b, _, _) in BASES {
+            if *p != "c" || *b == "m" {
+                v.push(format!("{p}{b}"));
+            }
+        }
+    }
+    v
+}
+
+/// If `word` is two or more unit symbols run together (`Vs`, `Ohmm`), the symbols.
+pub fn run_together(word: &str) -> Option<Vec<&str>> {
+    fn go<'a>(w: &'a str, out: &mut Vec<&'a str>) -> bool {
+        if w.is_empty() {
+            return out.len() >= 2;
+        }
+        for end in (1..=w.len()).rev() {
+            if !w.is_char_boundary(end) {
+                continue;
+            }
+            if unit_atom(&w[..end]).is_some() {
+                out.push(&w[..end]);
+                if go(&w[end..], out) {
+                    return true;
+                }
+                out.pop();
+            }
+        }
+        false
+    }
+    let mut out = Vec::new();
+    go(word, &mut out).then_some(out)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -218,6 +308,9 @@ mod tests {
         assert_eq!(unit_atom("ms"), Some((1e-3, Dim::TIME)));
         assert!(unit_atom("cV").is_none());
         assert!(unit_atom("out").is_none());
+        assert_eq!(run_together("Vs"), Some(vec!["V", "s"]));
+        assert_eq!(run_together("V"), None);
+        assert!(all_symbols().iter().any(|s| s == "fF"));
         let (s, d) = unit_atom("meV").unwrap();
         assert!((s - 1.602176634e-22).abs() < 1e-35);
         assert_eq!(d, Dim([0, 1, 1, 1, 0]));

@@ -1,11 +1,26 @@
-//! Analyses: the settings each analysis takes, checked with the circuit.
+//! Analyses: the settings each analysis takes, collected in file order and checked against the
+//! finished circuit, so that `lamina check` reports every setting error `lamina run` would
+//! meet, each at its place.
 
-use super::{AnalysisDecl, Elaborator, Frame, Setting, SettingKind, SettingValue};
+use super::{Elaborator, Frame, Q};
 use crate::ast::*;
 use crate::diag::{did_you_mean, Diagnostic, ErrorKind};
 use crate::source::Span;
+use crate::units::Dim;
+use lamina_engine::{Circuit, Integrator};
 
-/// Analyses the language knows, with the settings each accepts.
+/// What an analysis setting takes.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum SettingKind {
+    /// A number (an expression, parameters allowed).
+    Number,
+    /// The name of a node, node array or element, taken as written (even if a parameter has
+    /// the same name).
+    Name,
+}
+
+/// Analyses the language knows, with the settings each accepts (all required unless marked
+/// optional in the language reference: `integrator` of `ring`).
 pub const ANALYSES: &[(&str, &[(&str, SettingKind)])] = &[
     ("operating_point", &[]),
     (
@@ -37,7 +52,93 @@ pub const ANALYSES: &[(&str, &[(&str, SettingKind)])] = &[
     ),
 ];
 
+/// Settings that may be left out.
+const OPTIONAL: &[(&str, &str)] = &[("ring", "integrator")];
+
+/// Most points of a transfer sweep.
+pub const MAX_TRANSFER_POINTS: f64 = 1e7;
+
+/// A checked analysis, ready to run: every name it uses exists in the circuit and every
+/// number has its dimension and range.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Analysis {
+    /// Every node voltage at the DC operating point.
+    OperatingPoint,
+    /// A DC sweep of one source with the output's transfer curve.
+    Transfer {
+        /// The swept voltage or current source (element name).
+        source: String,
+        /// The output node.
+        output: String,
+        /// First value (V or A, SI).
+        from: f64,
+        /// Last value.
+        to: f64,
+        /// Number of equal steps from `from` to `to` (points: `steps + 1`).
+        steps: usize,
+    },
+    /// A transient from the operating point and the propagation delays from one node to
+    /// another.
+    Delay {
+        /// Input node.
+        from: String,
+        /// Output node.
+        to: String,
+        /// End time (s).
+        stop: f64,
+    },
+    /// A ring oscillator: stage outputs `nodes[0] .. nodes[stages - 1]`.
+    Ring {
+        /// Name of the node array.
+        nodes: String,
+        /// Number of stages (odd, at least 3).
+        stages: usize,
+        /// The supply node.
+        supply: String,
+        /// The voltage source that drives `supply` from ground.
+        supply_source: String,
+        /// Integration formula, if the file chose one.
+        integrator: Option<Integrator>,
+    },
+}
+
+/// An `analysis` declaration, checked.
+#[derive(Clone, Debug, PartialEq)]
+pub struct AnalysisDecl {
+    /// Which analysis (`transfer`, ...).
+    pub kind: String,
+    /// Its checked settings.
+    pub analysis: Analysis,
+    /// The header.
+    pub span: Span,
+}
+
+/// A setting's value as written, before the circuit is known.
+#[derive(Clone, Debug)]
+enum Raw {
+    Number(Q),
+    Name(String),
+}
+
+/// An analysis collected during the walk and checked once the circuit is complete.
+pub(super) struct Pending {
+    kind: &'static str,
+    header: Span,
+    values: Vec<(&'static str, Raw, Span)>,
+}
+
+impl Pending {
+    fn get(&self, key: &str) -> Option<(&Raw, Span)> {
+        self.values
+            .iter()
+            .find(|(k, _, _)| *k == key)
+            .map(|(_, r, s)| (r, *s))
+    }
+}
+
 impl<'s> Elaborator<'s> {
+    /// Collects an `analysis kind { ... }`: known kind, known and unrepeated keys, values
+    /// evaluated. Names are checked later, against the finished circuit.
     pub(super) fn analysis(
         &mut self,
         kind: &Ident,
@@ -45,7 +146,7 @@ impl<'s> Elaborator<'s> {
         span: Span,
         frames: &[Frame],
     ) {
-        let Some((_, keys)) = ANALYSES.iter().find(|(k, _)| *k == kind.name) else {
+        let Some(&(kind_name, keys)) = ANALYSES.iter().find(|(k, _)| *k == kind.name) else {
             let mut d = Diagnostic::new(
                 ErrorKind::Unknown,
                 kind.span,
@@ -53,14 +154,18 @@ impl<'s> Elaborator<'s> {
             );
             if let Some(h) = did_you_mean(&kind.name, ANALYSES.iter().map(|a| a.0)) {
                 d = d.with_help(h);
+            } else {
+                let all: Vec<&str> = ANALYSES.iter().map(|a| a.0).collect();
+                d = d.with_help(format!("the analyses are: {}", all.join(", ")));
             }
             self.diags.push(d);
             return;
         };
         let refs: Vec<&Frame> = frames.iter().collect();
-        let mut settings = Vec::new();
+        let mut values: Vec<(&'static str, Raw, Span)> = Vec::new();
+        let mut complete = true;
         for a in params {
-            let Some(&(_, setting_kind)) = keys.iter().find(|(k, _)| *k == a.name.name) else {
+            let Some(&(key, setting_kind)) = keys.iter().find(|(k, _)| *k == a.name.name) else {
                 let mut d = Diagnostic::new(
                     ErrorKind::Unknown,
                     a.name.span,
@@ -73,41 +178,428 @@ impl<'s> Elaborator<'s> {
                     None => format!("its settings are: {}", names.join(", ")),
                 });
                 self.diags.push(d);
+                complete = false;
                 continue;
             };
+            if let Some(&(_, _, first)) = values.iter().find(|(k, _, _)| *k == key) {
+                self.diags.push(
+                    Diagnostic::new(
+                        ErrorKind::Duplicate,
+                        a.name.span,
+                        format!("`{key}` is set twice"),
+                    )
+                    .with_note(first, "first set here")
+                    .with_help("keep one of the two"),
+                );
+                continue;
+            }
             let value = match (setting_kind, &a.value) {
-                (SettingKind::Name, Expr::Name(id)) => SettingValue::Name(id.name.clone()),
-                (SettingKind::Name, Expr::Indexed(id, index, _)) => {
-                    match self.eval_int(index, &refs) {
-                        Some(i) => SettingValue::Name(format!("{}[{i}]", id.name)),
-                        None => continue,
-                    }
-                }
-                (SettingKind::Name, Expr::Str(s, _)) => SettingValue::Text(s.clone()),
+                (SettingKind::Name, Expr::Name(id)) => Some(Raw::Name(id.name.clone())),
+                (SettingKind::Name, Expr::Str(s, _)) => Some(Raw::Name(s.clone())),
+                (SettingKind::Name, Expr::Indexed(id, index, _)) => self
+                    .eval_int(index, &refs)
+                    .map(|i| Raw::Name(format!("{}[{i}]", id.name))),
                 (SettingKind::Name, e) => {
-                    self.err(
-                        ErrorKind::BadValue,
-                        e.span(),
-                        format!("`{}` takes a name, such as `out`", a.name.name),
+                    self.diags.push(
+                        Diagnostic::new(
+                            ErrorKind::BadValue,
+                            e.span(),
+                            format!("`{key}` takes a name, not a value"),
+                        )
+                        .with_help(format!(
+                            "write the name as it is in the circuit, such as `{key} = out`"
+                        )),
                     );
-                    continue;
+                    None
                 }
-                (SettingKind::Number, e) => match self.eval(e, &refs) {
-                    Some(q) => SettingValue::Number(q.v, q.dim),
-                    None => continue,
-                },
+                (SettingKind::Number, e) => self.eval(e, &refs).map(Raw::Number),
             };
-            settings.push(Setting {
-                name: a.name.name.clone(),
-                value,
-                span: a.value.span(),
-            });
+            match value {
+                Some(v) => values.push((key, v, a.value.span())),
+                None => complete = false,
+            }
         }
         self.summary.analyses.push(kind.name.clone());
-        self.analyses.push(AnalysisDecl {
-            kind: kind.name.clone(),
-            settings,
+        if complete {
+            self.pending.push(Pending {
+                kind: kind_name,
+                header: span,
+                values,
+            });
+        }
+    }
+
+    /// Checks every collected analysis against the finished circuit.
+    pub(super) fn check_analyses(&mut self) {
+        for p in std::mem::take(&mut self.pending) {
+            if let Some(analysis) = self.check_analysis(&p) {
+                self.analyses.push(AnalysisDecl {
+                    kind: p.kind.to_string(),
+                    analysis,
+                    span: p.header,
+                });
+            }
+        }
+    }
+
+    fn check_analysis(&mut self, p: &Pending) -> Option<Analysis> {
+        let keys = ANALYSES.iter().find(|(k, _)| *k == p.kind)?.1;
+        let missing: Vec<&str> = keys
+            .iter()
+            .map(|k| k.0)
+            .filter(|k| p.get(k).is_none() && !OPTIONAL.contains(&(p.kind, *k)))
+            .collect();
+        if !missing.is_empty() {
+            let example = match p.kind {
+                "transfer" => "source = drive, output = out, from = 0 V, to = 1 V, step = 5 mV",
+                "delay" => "from = in, to = out, stop = 2 ns",
+                _ => "nodes = out, stages = 21, supply = vdd",
+            };
+            self.diags.push(
+                Diagnostic::new(
+                    ErrorKind::Unconnected,
+                    p.header,
+                    format!(
+                        "analysis `{}` needs {}",
+                        p.kind,
+                        missing
+                            .iter()
+                            .map(|m| format!("`{m} = ...`"))
+                            .collect::<Vec<_>>()
+                            .join(", ")
+                    ),
+                )
+                .with_help(format!("for example `analysis {} {{ {example} }}`", p.kind)),
+            );
+            return None;
+        }
+        match p.kind {
+            "operating_point" => Some(Analysis::OperatingPoint),
+            "transfer" => self.check_transfer(p),
+            "delay" => self.check_delay(p),
+            _ => self.check_ring(p),
+        }
+    }
+
+    fn name_of(&self, p: &Pending, key: &str) -> Option<(String, Span)> {
+        match p.get(key) {
+            Some((Raw::Name(n), s)) => Some((n.clone(), s)),
+            _ => None,
+        }
+    }
+
+    fn number_of(&self, p: &Pending, key: &str) -> Option<(Q, Span)> {
+        match p.get(key) {
+            Some((Raw::Number(q), s)) => Some((*q, s)),
+            _ => None,
+        }
+    }
+
+    /// A node of the circuit, or an error with the closest names.
+    fn existing_node(&mut self, name: &str, span: Span, key: &str) -> bool {
+        if name == Circuit::GROUND_NAME || self.circuit.find_node(name).is_some() {
+            return true;
+        }
+        let mut d = Diagnostic::new(
+            ErrorKind::Unknown,
             span,
+            format!("`{key}`: the circuit has no node `{name}`"),
+        );
+        let names: Vec<String> = self
+            .circuit
+            .nodes()
+            .map(|n| self.circuit.node_name(n).to_string())
+            .collect();
+        if let Some(h) = did_you_mean(name, names.iter().map(String::as_str)) {
+            d = d.with_help(h);
+        } else if self.circuit.find_element(name).is_some() {
+            d = d.with_help(format!("`{name}` is an element; `{key}` takes a node"));
+        }
+        self.diags.push(d);
+        false
+    }
+
+    /// A number of dimension `dim`, as its SI value.
+    fn number_in(&mut self, p: &Pending, key: &str, dim: Dim) -> Option<(f64, Span)> {
+        let (q, s) = self.number_of(p, key)?;
+        let v = self.check_dim(q, dim, s, key)?;
+        Some((v, s))
+    }
+
+    fn bad(&mut self, span: Span, msg: String, help: String) {
+        self.diags
+            .push(Diagnostic::new(ErrorKind::BadValue, span, msg).with_help(help));
+    }
+
+    fn check_transfer(&mut self, p: &Pending) -> Option<Analysis> {
+        let (source, src_span) = self.name_of(p, "source")?;
+        let (output, out_span) = self.name_of(p, "output")?;
+        let dim = match self.circuit.find_element(&source) {
+            Some(e) => match self.circuit.element_kind(e) {
+                "voltage source" => Some(Dim::VOLTAGE),
+                "current source" => Some(Dim::CURRENT),
+                other => {
+                    self.bad(
+                        src_span,
+                        format!("`source`: `{source}` is a {other}, not a source"),
+                        "name the voltage or current source to sweep".into(),
+                    );
+                    None
+                }
+            },
+            None => {
+                let mut d = Diagnostic::new(
+                    ErrorKind::Unknown,
+                    src_span,
+                    format!("`source`: the circuit has no element `{source}`"),
+                );
+                let sources: Vec<String> = self
+                    .circuit
+                    .elements()
+                    .filter(|&e| self.circuit.element_kind(e).ends_with(" source"))
+                    .map(|e| self.circuit.element_name(e).to_string())
+                    .collect();
+                d = d.with_help(
+                    match did_you_mean(&source, sources.iter().map(String::as_str)) {
+                        Some(h) => h,
+                        None if sources.is_empty() => {
+                            "add a voltage source to sweep, such as `voltage_source drive (pos = in, neg = ground)`".into()
+                        }
+                        None => format!("the sources are: {}", sources.join(", ")),
+                    },
+                );
+                self.diags.push(d);
+                None
+            }
+        };
+        let out_ok = self.existing_node(&output, out_span, "output");
+        let dim = dim?;
+        let from = self.number_in(p, "from", dim);
+        let to = self.number_in(p, "to", dim);
+        let step = self.number_in(p, "step", dim);
+        let ((from, _), (to, to_span), (step, step_span)) = (from?, to?, step?);
+        if !out_ok {
+            return None;
+        }
+        if to <= from {
+            self.bad(
+                to_span,
+                format!("`to` ({to:e}) must be above `from` ({from:e})"),
+                "sweep upwards: swap `from` and `to`".into(),
+            );
+            return None;
+        }
+        if step <= 0.0 {
+            self.bad(
+                step_span,
+                format!("`step` must be positive, found {step:e}"),
+                format!(
+                    "give a step such as `{}`",
+                    if dim == Dim::VOLTAGE { "5 mV" } else { "1 uA" }
+                ),
+            );
+            return None;
+        }
+        let count = (to - from) / step;
+        if count > MAX_TRANSFER_POINTS {
+            self.diags.push(
+                Diagnostic::new(
+                    ErrorKind::Limit,
+                    step_span,
+                    format!("{count:.3e} steps are more than the limit of {MAX_TRANSFER_POINTS:e}"),
+                )
+                .with_help("use a larger step"),
+            );
+            return None;
+        }
+        if count < 2.0 - 1e-9 {
+            self.bad(
+                step_span,
+                format!("`step` leaves fewer than 2 steps between `from` and `to` ({count:.3})"),
+                "use a step well below `to - from`, such as a hundredth of it".into(),
+            );
+            return None;
+        }
+        let steps = count.round().max(2.0) as usize;
+        if (count - steps as f64).abs() > 1e-6 * count {
+            let used = (to - from) / steps as f64;
+            self.warns.push(
+                Diagnostic::new(
+                    ErrorKind::BadValue,
+                    step_span,
+                    format!(
+                        "`step` does not divide `to - from` into whole steps ({count:.4}); the sweep uses {steps} equal steps of {used:.6e} {}",
+                        dim.unit()
+                    ),
+                )
+                .with_help("choose a step that divides the range"),
+            );
+        }
+        Some(Analysis::Transfer {
+            source,
+            output,
+            from,
+            to,
+            steps,
+        })
+    }
+
+    fn check_delay(&mut self, p: &Pending) -> Option<Analysis> {
+        let (from, from_span) = self.name_of(p, "from")?;
+        let (to, to_span) = self.name_of(p, "to")?;
+        let ok_from = self.existing_node(&from, from_span, "from");
+        let ok_to = self.existing_node(&to, to_span, "to");
+        let stop = self.number_in(p, "stop", Dim::TIME);
+        let (stop, stop_span) = stop?;
+        if !(ok_from && ok_to) {
+            return None;
+        }
+        if from == to {
+            self.bad(
+                to_span,
+                format!("`from` and `to` are the same node `{to}`"),
+                "`to` is the output whose delay after `from` is measured".into(),
+            );
+            return None;
+        }
+        if stop <= 0.0 {
+            self.bad(
+                stop_span,
+                format!("`stop` must be a positive time, found {stop:e} s"),
+                "give the end of the transient, such as `stop = 2 ns`".into(),
+            );
+            return None;
+        }
+        Some(Analysis::Delay { from, to, stop })
+    }
+
+    fn check_ring(&mut self, p: &Pending) -> Option<Analysis> {
+        let (nodes, nodes_span) = self.name_of(p, "nodes")?;
+        let (supply, supply_span) = self.name_of(p, "supply")?;
+        let (q, stages_span) = self.number_of(p, "stages")?;
+        let integrator = match self.name_of(p, "integrator") {
+            None => None,
+            Some((name, s)) => match name.as_str() {
+                "trapezoidal" => Some(Integrator::Trapezoidal),
+                "euler" => Some(Integrator::BackwardEuler),
+                "bdf2" => Some(Integrator::Bdf2),
+                other => {
+                    let mut d = Diagnostic::new(
+                        ErrorKind::Unknown,
+                        s,
+                        format!("no integrator called `{other}`"),
+                    );
+                    d = d.with_help(
+                        did_you_mean(other, ["trapezoidal", "euler", "bdf2"])
+                            .unwrap_or_else(|| "use trapezoidal, euler or bdf2".into()),
+                    );
+                    self.diags.push(d);
+                    return None;
+                }
+            },
+        };
+        let n = self.check_dim(q, Dim::NONE, stages_span, "stages")?;
+        if n.fract() != 0.0 || n < 3.0 || n % 2.0 == 0.0 || n > 1e7 {
+            self.bad(
+                stages_span,
+                format!("`stages` must be an odd whole number from 3 to 1e7, found {n}"),
+                "a ring of inverting stages oscillates only with an odd count, such as 21".into(),
+            );
+            return None;
+        }
+        let stages = n as usize;
+        // The array must have exactly `stages` members.
+        let missing =
+            (0..stages).find(|i| self.circuit.find_node(&format!("{nodes}[{i}]")).is_none());
+        if let Some(i) = missing {
+            let mut d = Diagnostic::new(
+                ErrorKind::Unknown,
+                nodes_span,
+                format!("`nodes`: the circuit has no node `{nodes}[{i}]`"),
+            );
+            d = if i == 0 {
+                let names: Vec<String> = self
+                    .circuit
+                    .nodes()
+                    .filter_map(|n| {
+                        let name = self.circuit.node_name(n);
+                        name.strip_suffix("[0]").map(str::to_string)
+                    })
+                    .collect();
+                d.with_help(
+                    did_you_mean(&nodes, names.iter().map(String::as_str)).unwrap_or_else(|| {
+                        "`nodes` names the array of stage outputs, such as `out` for `out[0]`, `out[1]`, ...".to_string()
+                    }),
+                )
+            } else {
+                d.with_note(
+                    stages_span,
+                    format!("the array has {i} nodes, not {stages}"),
+                )
+                .with_help(format!("set `stages = {i}` or extend the array"))
+            };
+            self.diags.push(d);
+            return None;
+        }
+        if self
+            .circuit
+            .find_node(&format!("{nodes}[{stages}]"))
+            .is_some()
+        {
+            let mut len = stages;
+            while len < 10_000_000 && self.circuit.find_node(&format!("{nodes}[{len}]")).is_some() {
+                len += 1;
+            }
+            self.bad(
+                stages_span,
+                format!("`stages = {stages}` but the array `{nodes}` has {len} nodes"),
+                format!("set `stages = {len}`"),
+            );
+            return None;
+        }
+        let Some(supply_node) = self.circuit.find_node(&supply) else {
+            let mut d = Diagnostic::new(
+                ErrorKind::Unknown,
+                supply_span,
+                format!("`supply`: the circuit has no node `{supply}`"),
+            );
+            if self.circuit.find_element(&supply).is_some() {
+                d = d.with_help(format!(
+                    "`{supply}` is an element; `supply` takes the node it drives"
+                ));
+            } else {
+                let names: Vec<String> = self
+                    .circuit
+                    .nodes()
+                    .map(|n| self.circuit.node_name(n).to_string())
+                    .collect();
+                if let Some(h) = did_you_mean(&supply, names.iter().map(String::as_str)) {
+                    d = d.with_help(h);
+                }
+            }
+            self.diags.push(d);
+            return None;
+        };
+        let driver = self.circuit.elements().find(|&e| {
+            self.circuit.element_kind(e) == "voltage source"
+                && self.circuit.element_pins(e) == [supply_node, Circuit::GROUND]
         });
+        let Some(driver) = driver else {
+            self.bad(
+                supply_span,
+                format!("no voltage source drives `{supply}` from ground"),
+                format!(
+                    "add `voltage_source supply (pos = {supply}, neg = ground) {{ dc = 1 V }}`"
+                ),
+            );
+            return None;
+        };
+        Some(Analysis::Ring {
+            nodes,
+            stages,
+            supply,
+            supply_source: self.circuit.element_name(driver).to_string(),
+            integrator,
+        })
     }
 }

@@ -1,13 +1,56 @@
-//! Device cards and element instances: parameters checked against the catalog, cards applied,
-//! elements built and added to the circuit.
+//! Device cards and element instances: parameters checked against the catalog where they are
+//! written, cards checked once at their own line, elements built and added to the circuit.
 
-use super::{DeviceCard, Elaborator, Frame, Q};
+use super::{Elaborator, Frame};
 use crate::ast::*;
-use crate::catalog::{self, Kind, Values};
+use crate::catalog::{self, BuildError, Kind, Values};
 use crate::diag::{did_you_mean, Diagnostic, ErrorKind};
 use crate::source::Span;
+use lamina_engine::elements::Waveform;
 use lamina_engine::CircuitError;
-use std::collections::HashMap;
+
+/// Parameter values written in one place (a device card or an instance), each checked against
+/// its kind's dimension and sign where it is written.
+#[derive(Clone, Default)]
+pub(super) struct Given {
+    numbers: Vec<(&'static str, f64, Span)>,
+    texts: Vec<(&'static str, String, Span)>,
+    waveform: Option<(Waveform, Span)>,
+    /// Whether every value was good.
+    ok: bool,
+}
+
+impl Given {
+    fn is_empty(&self) -> bool {
+        self.numbers.is_empty() && self.texts.is_empty() && self.waveform.is_none()
+    }
+
+    fn span_of(&self, name: &str) -> Option<Span> {
+        self.numbers
+            .iter()
+            .find(|n| n.0 == name)
+            .map(|n| n.2)
+            .or_else(|| self.texts.iter().find(|t| t.0 == name).map(|t| t.2))
+            .or_else(|| {
+                self.waveform
+                    .as_ref()
+                    .filter(|_| name == "wave")
+                    .map(|w| w.1)
+            })
+    }
+}
+
+/// A device card: its kind, its checked values, and whether it is bad.
+pub(super) struct DeviceCard {
+    kind: &'static Kind,
+    values: Given,
+    name_span: Span,
+    /// The card's own error in `diags`, if it has one; instances of a bad card add nothing but
+    /// a note on it.
+    error: Option<usize>,
+    /// Whether an instance has been noted on the card's error.
+    noted: bool,
+}
 
 impl<'s> Elaborator<'s> {
     pub(super) fn device_card(
@@ -37,22 +80,16 @@ impl<'s> Elaborator<'s> {
             self.diags.push(d);
             return;
         };
-        let mut values = Vec::new();
-        let mut texts = Vec::new();
-        let mut waveform = None;
-        for a in params {
-            let Some(spec) = kind.params.iter().find(|p| p.name == a.name.name) else {
-                self.unknown_param(&a.name, kind);
-                continue;
-            };
-            if spec.text {
-                if let Some(t) = self.text_value(&a.name, &a.value) {
-                    texts.push((a.name.name.clone(), t));
+        let errors_before = self.diags.len();
+        let values = self.given(kind, params, &[top]);
+        let mut error = (self.diags.len() > errors_before).then_some(errors_before);
+        // A card that could make an element is checked now, so its faults are reported once.
+        if values.ok {
+            if let (Some(check), Some(v)) = (kind.check, assemble(kind, None, &values)) {
+                if let Err(e) = check(&v) {
+                    error = Some(self.diags.len());
+                    self.build_error(e, None, &values, name.span, None);
                 }
-            } else if spec.waveform {
-                waveform = self.waveform(&a.value, spec.dim, &[top]);
-            } else if let Some(q) = self.eval(&a.value, &[top]) {
-                values.push((a.name.name.clone(), q, a.value.span()));
             }
         }
         self.summary.devices.push(name.name.clone());
@@ -61,10 +98,112 @@ impl<'s> Elaborator<'s> {
             DeviceCard {
                 kind,
                 values,
-                texts,
-                waveform,
+                name_span: name.span,
+                error,
+                noted: false,
             },
         );
+    }
+
+    /// Evaluates and checks `params` against `k`: known, unrepeated, of the right dimension and
+    /// sign. Each fault is reported at the value.
+    fn given(&mut self, k: &'static Kind, params: &[Assign], frames: &[&Frame]) -> Given {
+        let mut g = Given {
+            ok: true,
+            ..Given::default()
+        };
+        let mut seen: Vec<(&str, Span)> = Vec::new();
+        for a in params {
+            let Some(spec) = k.params.iter().find(|p| p.name == a.name.name) else {
+                self.unknown_param(&a.name, k);
+                g.ok = false;
+                continue;
+            };
+            if let Some(&(_, first)) = seen.iter().find(|(n, _)| *n == spec.name) {
+                self.diags.push(
+                    Diagnostic::new(
+                        ErrorKind::Duplicate,
+                        a.name.span,
+                        format!("`{}` is set twice", spec.name),
+                    )
+                    .with_note(first, "first set here")
+                    .with_help("keep one of the two; neither silently wins"),
+                );
+                g.ok = false;
+                continue;
+            }
+            seen.push((spec.name, a.name.span));
+            let at = a.value.span();
+            if spec.text {
+                match self.text_value(&a.name, &a.value) {
+                    Some(t) => g.texts.push((spec.name, t, at)),
+                    None => g.ok = false,
+                }
+                continue;
+            }
+            if spec.waveform {
+                match self.waveform(&a.value, spec.dim, frames) {
+                    Some(w) => g.waveform = Some((w, at)),
+                    None => g.ok = false,
+                }
+                continue;
+            }
+            let Some(q) = self.eval(&a.value, frames) else {
+                g.ok = false;
+                continue;
+            };
+            let Some(v) = self.check_dim(q, spec.dim, at, spec.name) else {
+                g.ok = false;
+                continue;
+            };
+            if spec.positive && (v.is_nan() || v <= 0.0) {
+                self.diags.push(
+                    Diagnostic::new(
+                        ErrorKind::BadValue,
+                        at,
+                        format!("`{}` must be positive, found {v:e}", spec.name),
+                    )
+                    .with_help(format!(
+                        "such as `{} = {}`",
+                        spec.name,
+                        spec.dim.example()
+                    )),
+                );
+                g.ok = false;
+                continue;
+            }
+            if spec.dim == crate::units::Dim::VOLTAGE {
+                self.max_voltage = self.max_voltage.max(v.abs());
+            }
+            g.numbers.push((spec.name, v, at));
+        }
+        g
+    }
+
+    /// Reports a build error at the parameter it names: where the instance set it, else where
+    /// the card set it, else at `fallback`; `note` points at the other place involved.
+    fn build_error(
+        &mut self,
+        e: BuildError,
+        inst: Option<&Given>,
+        card: &Given,
+        fallback: Span,
+        note: Option<(Span, String)>,
+    ) {
+        let at = e
+            .param
+            .as_deref()
+            .and_then(|p| inst.and_then(|g| g.span_of(p)).or_else(|| card.span_of(p)))
+            .unwrap_or(fallback);
+        let mut d = Diagnostic::new(ErrorKind::BadValue, at, e.message);
+        if let Some((s, n)) = note {
+            d = d.with_note(s, n);
+        }
+        d = d.with_help(
+            e.help
+                .unwrap_or_else(|| "check this value against the model's documented range".into()),
+        );
+        self.diags.push(d);
     }
 
     /// A name-valued parameter: a bare name or a string, taken as written.
@@ -109,6 +248,9 @@ impl<'s> Elaborator<'s> {
         span: Span,
         frames: &mut Vec<Frame>,
     ) {
+        if !self.tick(span) {
+            return;
+        }
         let refs: Vec<&Frame> = frames.iter().collect();
         let Some(local) = self.index_name(&name.name.name, &name.index, &refs) else {
             return;
@@ -129,143 +271,81 @@ impl<'s> Elaborator<'s> {
             );
             return;
         }
-        let (k, card): (&'static Kind, Option<&DeviceCard>) =
-            if let Some(card) = self.devices.get(&kind.name) {
-                (card.kind, Some(card))
-            } else if let Some(k) = catalog::kind(&kind.name) {
-                (k, None)
-            } else {
-                let mut d = Diagnostic::new(
-                    ErrorKind::Unknown,
-                    kind.span,
-                    format!(
-                        "no element kind, device card or cell called `{}`",
-                        kind.name
-                    ),
-                );
-                let mut names: Vec<&str> = catalog::KINDS.iter().map(|k| k.name).collect();
-                names.extend(self.cells.keys().map(String::as_str));
-                names.extend(self.devices.keys().map(String::as_str));
-                if let Some(h) = did_you_mean(&kind.name, names.iter().copied()) {
-                    d = d.with_help(h);
-                }
-                self.diags.push(d);
-                return;
-            };
-        let card_values: Vec<(String, Q, Span)> =
-            card.map(|c| c.values.clone()).unwrap_or_default();
-        let mut waveform = card.and_then(|c| c.waveform.clone());
-        let mut texts: Vec<Option<String>> = k
-            .params
-            .iter()
-            .map(|p| {
-                card.and_then(|c| {
-                    c.texts
-                        .iter()
-                        .find(|(n, _)| n == p.name)
-                        .map(|(_, t)| t.clone())
-                })
-            })
-            .collect();
-        // Pins.
-        let pins = self.connect(k.terminals, k.name, connections, span, &refs);
-        // Parameters: card values, then instance overrides.
-        let mut given: Vec<Option<(Q, Span)>> = vec![None; k.params.len()];
-        for (n, q, s) in &card_values {
-            if let Some(i) = k.params.iter().position(|p| p.name == n) {
-                given[i] = Some((*q, *s));
+        let k: &'static Kind = if let Some(card) = self.devices.get(&kind.name) {
+            card.kind
+        } else if let Some(k) = catalog::kind(&kind.name) {
+            k
+        } else {
+            let mut d = Diagnostic::new(
+                ErrorKind::Unknown,
+                kind.span,
+                format!(
+                    "no element kind, device card or cell called `{}`",
+                    kind.name
+                ),
+            );
+            let mut names: Vec<&str> = catalog::KINDS.iter().map(|k| k.name).collect();
+            names.extend(self.cells.keys().map(String::as_str));
+            names.extend(self.devices.keys().map(String::as_str));
+            if let Some(h) = did_you_mean(&kind.name, names.iter().copied()) {
+                d = d.with_help(h);
             }
-        }
-        let mut seen: HashMap<&str, Span> = HashMap::new();
-        let mut failed = vec![false; k.params.len()];
-        for a in params {
-            if let Some(first) = seen.insert(a.name.name.as_str(), a.name.span) {
-                self.diags.push(
-                    Diagnostic::new(
-                        ErrorKind::Duplicate,
-                        a.name.span,
-                        format!("`{}` is set twice", a.name.name),
-                    )
-                    .with_note(first, "first set here"),
-                );
-                continue;
-            }
-            let Some(i) = k.params.iter().position(|p| p.name == a.name.name) else {
-                self.unknown_param(&a.name, k);
-                continue;
-            };
-            if k.params[i].waveform {
-                waveform = self.waveform(&a.value, k.params[i].dim, &refs);
-                continue;
-            }
-            if k.params[i].text {
-                match self.text_value(&a.name, &a.value) {
-                    Some(t) => texts[i] = Some(t),
-                    None => failed[i] = true,
-                }
-                continue;
-            }
-            match self.eval(&a.value, &refs) {
-                Some(q) => given[i] = Some((q, a.value.span())),
-                None => failed[i] = true,
-            }
-        }
-        let mut numbers = Vec::with_capacity(k.params.len());
-        let mut ok = true;
-        let set: Vec<bool> = given.iter().map(Option::is_some).collect();
-        for ((spec, g), &bad) in k.params.iter().zip(&given).zip(&failed) {
-            if bad {
-                ok = false;
-                numbers.push(0.0);
-                continue;
-            }
-            if spec.waveform || spec.text {
-                numbers.push(f64::NAN);
-                continue;
-            }
-            let v = match g {
-                Some((q, s)) => match self.check_dim(*q, spec.dim, *s, spec.name) {
-                    Some(v) => {
-                        if spec.positive && (v <= 0.0 || v.is_nan()) {
-                            self.err(
-                                ErrorKind::BadValue,
-                                *s,
-                                format!("`{}` must be positive, found {v}", spec.name),
-                            );
-                            ok = false;
-                        }
-                        v
-                    }
-                    None => {
-                        ok = false;
-                        0.0
-                    }
-                },
-                None => match spec.default {
-                    Some(d) => d,
-                    None => {
-                        self.diags.push(
-                            Diagnostic::new(
-                                ErrorKind::Unconnected,
-                                span,
-                                format!("`{}` needs a value for `{}`", full, spec.name),
-                            )
-                            .with_help(format!(
-                                "add `{{ {} = ... }}` after the connections",
-                                spec.name
-                            )),
-                        );
-                        ok = false;
-                        0.0
-                    }
-                },
-            };
-            numbers.push(v);
-        }
-        let Some(pins) = pins else { return };
-        if !ok {
+            self.diags.push(d);
             return;
+        };
+        let pins = self.connect(k.terminals, k.name, connections, span, &refs);
+        let inst = self.given(k, params, &refs);
+        // A bad card was reported at its own line: note the first instance there, add nothing.
+        if let Some(card) = self.devices.get_mut(&kind.name) {
+            if let Some(i) = card.error {
+                if !card.noted {
+                    card.noted = true;
+                    if let Some(d) = self.diags.get_mut(i) {
+                        d.notes
+                            .push((name.name.span, format!("card used by `{full}`")));
+                    }
+                }
+                return;
+            }
         }
+        let (Some(pins), true) = (pins, inst.ok) else {
+            return;
+        };
+        let card = self
+            .devices
+            .get(&kind.name)
+            .map(|c| (c.values.clone(), c.name_span));
+        let empty = Given::default();
+        let card_values = card.as_ref().map_or(&empty, |c| &c.0);
+        let Some(values) = assemble(k, card.as_ref().map(|c| &c.0), &inst) else {
+            let missing: Vec<&str> = k
+                .params
+                .iter()
+                .filter(|p| p.default.is_none() && !p.waveform && !p.text)
+                .filter(|p| inst.span_of(p.name).is_none() && card_values.span_of(p.name).is_none())
+                .map(|p| p.name)
+                .collect();
+            self.diags.push(
+                Diagnostic::new(
+                    ErrorKind::Unconnected,
+                    span,
+                    format!(
+                        "`{}` needs a value for `{}`",
+                        kind.name,
+                        missing.join("`, `")
+                    ),
+                )
+                .with_help(format!(
+                    "add `{{ {} = {} }}` after the connections",
+                    missing.first().copied().unwrap_or(""),
+                    k.params
+                        .iter()
+                        .find(|p| Some(&p.name) == missing.first())
+                        .map_or("...".into(), |p| p.dim.example())
+                )),
+            );
+            return;
+        };
         if self.created >= self.limits.max_elements {
             self.created += 1;
             self.err(
@@ -275,18 +355,19 @@ impl<'s> Elaborator<'s> {
             );
             return;
         }
-        let element = match (k.build)(&Values {
-            numbers,
-            given: set,
-            texts,
-            waveform,
-        }) {
+        let element = match (k.build)(&values) {
             Ok(e) => e,
-            Err(msg) => {
-                self.diags.push(
-                    Diagnostic::new(ErrorKind::BadValue, span, format!("`{full}`: {msg}"))
-                        .with_help("check the device card's parameters and material names"),
-                );
+            Err(e) => {
+                // A fault from the instance's own values is reported there; one the card
+                // alone causes (found only when building) at the card, once.
+                let note = card
+                    .as_ref()
+                    .map(|(_, s)| (*s, "device card defined here".to_string()));
+                let fallback = match (&card, inst.is_empty()) {
+                    (Some((_, s)), true) => *s,
+                    _ => name.name.span,
+                };
+                self.build_error(e, Some(&inst), card_values, fallback, note);
                 return;
             }
         };
@@ -315,4 +396,51 @@ impl<'s> Elaborator<'s> {
             Err(e) => self.err(ErrorKind::BadValue, span, e.to_string()),
         }
     }
+}
+
+/// The values a builder sees: the instance's over the card's over the kind's defaults; `None`
+/// if a required value is missing.
+fn assemble(k: &'static Kind, card: Option<&Given>, inst: &Given) -> Option<Values> {
+    let mut numbers = Vec::with_capacity(k.params.len());
+    let mut given = Vec::with_capacity(k.params.len());
+    let mut texts = Vec::with_capacity(k.params.len());
+    let layers = [Some(inst), card];
+    for spec in k.params {
+        let text = layers
+            .iter()
+            .flatten()
+            .find_map(|g| g.texts.iter().find(|t| t.0 == spec.name))
+            .map(|t| t.1.clone());
+        texts.push(text);
+        if spec.waveform || spec.text {
+            numbers.push(f64::NAN);
+            given.push(false);
+            continue;
+        }
+        match layers
+            .iter()
+            .flatten()
+            .find_map(|g| g.numbers.iter().find(|n| n.0 == spec.name))
+        {
+            Some(n) => {
+                numbers.push(n.1);
+                given.push(true);
+            }
+            None => {
+                numbers.push(spec.default?);
+                given.push(false);
+            }
+        }
+    }
+    let waveform = layers
+        .iter()
+        .flatten()
+        .find_map(|g| g.waveform.as_ref())
+        .map(|w| w.0.clone());
+    Some(Values {
+        numbers,
+        given,
+        texts,
+        waveform,
+    })
 }

@@ -4,6 +4,7 @@ use super::{Elaborator, Frame, Q};
 use crate::ast::*;
 use crate::diag::{did_you_mean, Diagnostic, ErrorKind};
 use crate::source::Span;
+use crate::units::Dim;
 use lamina_engine::{Circuit, NodeId};
 use std::collections::HashMap;
 
@@ -63,12 +64,15 @@ impl<'s> Elaborator<'s> {
                 }
                 let prefix = frames.last().map(|f| f.prefix.clone()).unwrap_or_default();
                 for i in a..b {
+                    if !self.tick(*span) {
+                        break;
+                    }
                     let mut vars = HashMap::new();
                     vars.insert(
                         var.name.clone(),
                         Q {
                             v: i as f64,
-                            dim: None,
+                            dim: Dim::NONE,
                         },
                     );
                     frames.push(Frame {

@@ -27,6 +27,17 @@ impl<'s> Elaborator<'s> {
 
     pub(super) fn eval_int(&mut self, e: &Expr, frames: &[&Frame]) -> Option<i64> {
         let q = self.eval(e, frames)?;
+        if q.dim != Dim::NONE {
+            self.err(
+                ErrorKind::UnitMismatch,
+                e.span(),
+                format!(
+                    "expected a whole number without a unit, found {}",
+                    q.dim.describe()
+                ),
+            );
+            return None;
+        }
         if q.v.fract() != 0.0 || q.v.abs() > 1e15 {
             self.err(
                 ErrorKind::BadValue,
@@ -42,7 +53,7 @@ impl<'s> Elaborator<'s> {
         match e {
             Expr::Number { value, dim, .. } => Some(Q {
                 v: *value,
-                dim: *dim,
+                dim: dim.unwrap_or(Dim::NONE),
             }),
             Expr::Str(_, span) => {
                 self.err(
@@ -89,17 +100,10 @@ impl<'s> Elaborator<'s> {
                 let (a, b) = (a?, b?);
                 let v = match op {
                     BinOp::Add | BinOp::Sub => {
-                        let dim = match (a.dim, b.dim) {
-                            (Some(x), Some(y)) if x != y => {
-                                self.err(
-                                    ErrorKind::UnitMismatch,
-                                    *span,
-                                    format!("cannot add {} and {}", x.describe(), y.describe()),
-                                );
-                                return None;
-                            }
-                            (x, y) => x.or(y),
-                        };
+                        if !self.same_dims(a, b, *span, "add") {
+                            return None;
+                        }
+                        let dim = a.dim;
                         let v = if *op == BinOp::Add {
                             a.v + b.v
                         } else {
@@ -109,7 +113,7 @@ impl<'s> Elaborator<'s> {
                     }
                     BinOp::Mul => Q {
                         v: a.v * b.v,
-                        dim: combine(a.dim, b.dim, Dim::times),
+                        dim: a.dim.times(b.dim),
                     },
                     BinOp::Div => {
                         if b.v == 0.0 {
@@ -118,12 +122,15 @@ impl<'s> Elaborator<'s> {
                         }
                         Q {
                             v: a.v / b.v,
-                            dim: combine(a.dim, b.dim, Dim::per),
+                            dim: a.dim.per(b.dim),
                         }
                     }
                     BinOp::Rem => {
                         if b.v == 0.0 {
                             self.err(ErrorKind::BadValue, r.span(), "remainder by zero".into());
+                            return None;
+                        }
+                        if !self.same_dims(a, b, *span, "take the remainder of") {
                             return None;
                         }
                         Q {
@@ -132,7 +139,7 @@ impl<'s> Elaborator<'s> {
                         }
                     }
                     BinOp::Pow => {
-                        if b.dim.is_some_and(|d| d != Dim::NONE) {
+                        if b.dim != Dim::NONE {
                             self.err(
                                 ErrorKind::UnitMismatch,
                                 r.span(),
@@ -140,15 +147,19 @@ impl<'s> Elaborator<'s> {
                             );
                             return None;
                         }
-                        let dim = match a.dim {
-                            Some(d) if d != Dim::NONE => {
-                                if b.v.fract() != 0.0 {
-                                    self.err(ErrorKind::UnitMismatch, r.span(), "a quantity with a unit can only be raised to a whole power".into());
-                                    return None;
-                                }
-                                Some(d.pow(b.v as i32))
+                        let dim = if a.dim != Dim::NONE {
+                            if b.v.fract() != 0.0 || b.v.abs() > 12.0 {
+                                self.err(
+                                    ErrorKind::UnitMismatch,
+                                    r.span(),
+                                    "a quantity with a unit can only be raised to a whole power up to 12"
+                                        .into(),
+                                );
+                                return None;
                             }
-                            d => d,
+                            a.dim.pow(b.v as i32)
+                        } else {
+                            Dim::NONE
                         };
                         Q {
                             v: a.v.powf(b.v),
@@ -160,7 +171,15 @@ impl<'s> Elaborator<'s> {
                     self.err(
                         ErrorKind::BadValue,
                         *span,
-                        "the result is not a finite number".into(),
+                        "the result is too large or not a number".into(),
+                    );
+                    return None;
+                }
+                if v.v == 0.0 && matches!(op, BinOp::Mul | BinOp::Div | BinOp::Pow) && a.v != 0.0 {
+                    self.err(
+                        ErrorKind::BadValue,
+                        *span,
+                        "the result is too small to represent (it underflows to 0)".into(),
                     );
                     return None;
                 }
@@ -215,22 +234,15 @@ impl<'s> Elaborator<'s> {
             return None;
         }
         let x = vals[0];
-        let pure = |d: Option<Dim>| d.is_none_or(|d| d == Dim::NONE);
         let out = match n {
             "sqrt" => {
-                let dim = match x.dim {
-                    Some(d) => match d.sqrt() {
-                        Some(h) => Some(h),
-                        None => {
-                            self.err(
-                                ErrorKind::UnitMismatch,
-                                span,
-                                format!("the square root of {} has no unit", d.describe()),
-                            );
-                            return None;
-                        }
-                    },
-                    None => None,
+                let Some(dim) = x.dim.sqrt() else {
+                    self.err(
+                        ErrorKind::UnitMismatch,
+                        span,
+                        format!("the square root of {} has no unit", x.dim.describe()),
+                    );
+                    return None;
                 };
                 Q { v: x.v.sqrt(), dim }
             }
@@ -238,50 +250,39 @@ impl<'s> Elaborator<'s> {
                 v: x.v.abs(),
                 dim: x.dim,
             },
-            "floor" => Q {
-                v: x.v.floor(),
-                dim: x.dim,
-            },
-            "ceil" => Q {
-                v: x.v.ceil(),
-                dim: x.dim,
-            },
-            "round" => Q {
-                v: x.v.round(),
-                dim: x.dim,
-            },
             "min" | "max" => {
                 let y = vals[1];
-                if let (Some(a), Some(b)) = (x.dim, y.dim) {
-                    if a != b {
-                        self.err(
-                            ErrorKind::UnitMismatch,
-                            span,
-                            format!("cannot compare {} and {}", a.describe(), b.describe()),
-                        );
-                        return None;
-                    }
+                if !self.same_dims(x, y, span, "compare") {
+                    return None;
                 }
                 let v = if n == "min" {
                     x.v.min(y.v)
                 } else {
                     x.v.max(y.v)
                 };
-                Q {
-                    v,
-                    dim: x.dim.or(y.dim),
-                }
+                Q { v, dim: x.dim }
             }
             _ => {
-                if !pure(x.dim) || (expected == 2 && !pure(vals[1].dim)) {
-                    self.err(
+                // Rounding a quantity with a unit would depend on the unit it is counted in.
+                if x.dim != Dim::NONE || (expected == 2 && vals[1].dim != Dim::NONE) {
+                    let mut d = Diagnostic::new(
                         ErrorKind::UnitMismatch,
                         span,
                         format!("`{n}` needs pure numbers"),
                     );
+                    if x.dim != Dim::NONE {
+                        d = d.with_help(format!(
+                            "divide by a unit first, such as `{n}(x / 1 {})`",
+                            x.dim.unit().split(',').next().unwrap_or("")
+                        ));
+                    }
+                    self.diags.push(d);
                     return None;
                 }
                 let v = match n {
+                    "floor" => x.v.floor(),
+                    "ceil" => x.v.ceil(),
+                    "round" => x.v.round(),
                     "exp" => x.v.exp(),
                     "ln" => x.v.ln(),
                     "log10" => x.v.log10(),
@@ -290,7 +291,7 @@ impl<'s> Elaborator<'s> {
                     "tan" => x.v.tan(),
                     _ => x.v.powf(vals[1].v),
                 };
-                Q { v, dim: None }
+                Q { v, dim: Dim::NONE }
             }
         };
         if !out.v.is_finite() {
@@ -320,7 +321,11 @@ impl<'s> Elaborator<'s> {
             {
                 Some(a) => {
                     let q = me.eval(&a.value, frames)?;
-                    me.check_dim(q, d, a.value.span(), key)
+                    let v = me.check_dim(q, d, a.value.span(), key)?;
+                    if d == Dim::VOLTAGE {
+                        me.max_voltage = me.max_voltage.max(v.abs());
+                    }
+                    Some(v)
                 }
                 None => match default {
                     Some(v) => Some(v),
@@ -448,34 +453,69 @@ impl<'s> Elaborator<'s> {
         }
     }
 
+    /// The value of `q` if it has dimension `want`. A bare number is a pure number, never read
+    /// as SI: where a dimension is expected it is an error, except a plain zero, which is zero
+    /// in every unit.
     pub(super) fn check_dim(&mut self, q: Q, want: Dim, span: Span, what: &str) -> Option<f64> {
-        match q.dim {
-            Some(d) if d != want => {
-                self.diags.push(
-                    Diagnostic::new(
-                        ErrorKind::UnitMismatch,
-                        span,
-                        format!(
-                            "`{what}` must be {}, found {}",
-                            want.describe(),
-                            d.describe()
-                        ),
-                    )
-                    .with_help(format!(
-                        "write it with a unit, such as `{}`",
-                        want.example()
-                    )),
-                );
-                None
-            }
-            _ => Some(q.v),
+        if q.dim == want || (q.dim == Dim::NONE && q.v == 0.0) {
+            return Some(q.v);
         }
+        let d = if q.dim == Dim::NONE {
+            Diagnostic::new(
+                ErrorKind::MissingUnit,
+                span,
+                format!(
+                    "`{what}` is {}, but this is a number without a unit",
+                    want.describe()
+                ),
+            )
+            .with_help(format!(
+                "write it with a unit, such as `{what} = {}`; a parameter defined without a \
+                 unit is a pure number too (give it a unit where it is defined, or write `x * 1 {}`)",
+                want.example(),
+                want.unit().split(',').next().unwrap_or("")
+            ))
+        } else {
+            Diagnostic::new(
+                ErrorKind::UnitMismatch,
+                span,
+                format!(
+                    "`{what}` must be {}, found {}",
+                    want.describe(),
+                    q.dim.describe()
+                ),
+            )
+            .with_help(format!(
+                "write it with a unit, such as `{what} = {}`",
+                want.example()
+            ))
+        };
+        self.diags.push(d);
+        None
     }
-}
 
-fn combine(a: Option<Dim>, b: Option<Dim>, f: fn(Dim, Dim) -> Dim) -> Option<Dim> {
-    match (a, b) {
-        (None, None) => None,
-        (x, y) => Some(f(x.unwrap_or(Dim::NONE), y.unwrap_or(Dim::NONE))),
+    /// Whether `a` and `b` have one dimension; reports the mismatch at `span` if not.
+    fn same_dims(&mut self, a: Q, b: Q, span: Span, verb: &str) -> bool {
+        if a.dim == b.dim {
+            return true;
+        }
+        let mut d = Diagnostic::new(
+            ErrorKind::UnitMismatch,
+            span,
+            format!(
+                "cannot {verb} {} and {}",
+                a.dim.describe(),
+                b.dim.describe()
+            ),
+        );
+        if a.dim == Dim::NONE || b.dim == Dim::NONE {
+            let other = if a.dim == Dim::NONE { b.dim } else { a.dim };
+            d = d.with_help(format!(
+                "a number without a unit is a pure number; give it a unit, such as `{}`",
+                other.example()
+            ));
+        }
+        self.diags.push(d);
+        false
     }
 }

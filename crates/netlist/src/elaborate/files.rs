@@ -6,22 +6,50 @@ use crate::diag::{Diagnostic, ErrorKind};
 use crate::source::{FileId, Sources, Span};
 use std::path::{Path, PathBuf};
 
-/// Reads files from disk; tests can supply their own.
-pub trait FileReader {
-    /// The text of `path`, or an error message.
-    fn read(&self, path: &Path) -> Result<String, String>;
+/// Why a file could not be read.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum ReadError {
+    /// The file is larger than the limit; nothing beyond the limit was read.
+    TooLarge,
+    /// Any other failure, with the reason.
+    Other(String),
 }
 
-/// Reads from the file system.
+/// Reads files; tests can supply their own.
+pub trait FileReader {
+    /// The text of `path`, reading at most `max_bytes` bytes.
+    fn read(&self, path: &Path, max_bytes: usize) -> Result<String, ReadError>;
+}
+
+/// Reads from the file system. Only regular files are read (a FIFO, a device or a directory
+/// is refused before it is opened for reading), and never more than the limit.
 pub struct DiskReader;
 
 impl FileReader for DiskReader {
-    fn read(&self, path: &Path) -> Result<String, String> {
-        std::fs::read(path)
-            .map_err(|e| e.to_string())
-            .and_then(|b| {
-                String::from_utf8(b).map_err(|_| "the file is not valid UTF-8 text".to_string())
-            })
+    fn read(&self, path: &Path, max_bytes: usize) -> Result<String, ReadError> {
+        use std::io::Read;
+        let other = |e: std::io::Error| ReadError::Other(e.to_string());
+        let meta = std::fs::metadata(path).map_err(other)?;
+        if !meta.is_file() {
+            return Err(ReadError::Other(
+                "it is not a regular file (a directory, a FIFO or a device); give a circuit file"
+                    .into(),
+            ));
+        }
+        if meta.len() > max_bytes as u64 {
+            return Err(ReadError::TooLarge);
+        }
+        let file = std::fs::File::open(path).map_err(other)?;
+        // The file may grow between the check and the read: read one byte past the limit at most.
+        let mut bytes = Vec::new();
+        file.take(max_bytes as u64 + 1)
+            .read_to_end(&mut bytes)
+            .map_err(other)?;
+        if bytes.len() > max_bytes {
+            return Err(ReadError::TooLarge);
+        }
+        String::from_utf8(bytes)
+            .map_err(|_| ReadError::Other("the file is not valid UTF-8 text".into()))
     }
 }
 
@@ -68,41 +96,35 @@ impl Loader<'_> {
             }
             return None;
         }
-        let text = match self.reader.read(path) {
+        let text = match self.reader.read(path, self.limits.max_file_bytes) {
             Ok(t) => t,
-            Err(msg) => {
-                match from {
-                    Some(span) => self.diags.push(Diagnostic::new(
+            Err(e) => {
+                let (kind, msg) = match e {
+                    ReadError::TooLarge => (
+                        ErrorKind::Limit,
+                        format!(
+                            "`{}` is larger than the limit of {} bytes",
+                            path.display(),
+                            self.limits.max_file_bytes
+                        ),
+                    ),
+                    ReadError::Other(why) => (
                         ErrorKind::Io,
-                        span,
-                        format!("cannot read `{}`: {msg}", path.display()),
-                    )),
-                    None => {
-                        let id = self.sources.add(path.display().to_string(), String::new());
-                        self.diags.push(Diagnostic::new(
-                            ErrorKind::Io,
-                            Span::new(id, 0, 0),
-                            format!("cannot read `{}`: {msg}", path.display()),
-                        ));
-                    }
-                }
+                        format!("cannot read `{}`: {why}", path.display()),
+                    ),
+                };
+                let span = match from {
+                    Some(span) => span,
+                    None => Span::new(
+                        self.sources.add(path.display().to_string(), String::new()),
+                        0,
+                        0,
+                    ),
+                };
+                self.diags.push(Diagnostic::new(kind, span, msg));
                 return None;
             }
         };
-        if text.len() > self.limits.max_file_bytes {
-            let id = self.sources.add(path.display().to_string(), String::new());
-            self.diags.push(Diagnostic::new(
-                ErrorKind::Limit,
-                from.unwrap_or(Span::new(id, 0, 0)),
-                format!(
-                    "`{}` is {} bytes, more than the limit of {}",
-                    path.display(),
-                    text.len(),
-                    self.limits.max_file_bytes
-                ),
-            ));
-            return None;
-        }
         let id: FileId = self.sources.add(path.display().to_string(), text);
         let stmts =
             crate::parser::SyntaxTree::parse(id, self.sources.text(id), &mut self.diags).statements;

@@ -15,18 +15,17 @@ mod cells;
 mod expr;
 mod files;
 
-pub use analyses::ANALYSES;
-pub use files::{DiskReader, FileReader};
+pub use analyses::{Analysis, AnalysisDecl, SettingKind, ANALYSES, MAX_TRANSFER_POINTS};
+pub use files::{DiskReader, FileReader, ReadError};
 
 use crate::ast::*;
-use crate::catalog::Kind;
 use crate::diag::{did_you_mean, Diagnostic, ErrorKind};
 use crate::lexer::lex;
 use crate::parser::parse_expression;
 use crate::source::{FileId, Sources, Span};
 use crate::units::Dim;
+use cards::DeviceCard;
 use files::Loader;
-use lamina_engine::elements::Waveform;
 use lamina_engine::{Circuit, NodeId};
 use std::collections::{BTreeMap, HashMap};
 use std::path::Path;
@@ -44,6 +43,9 @@ pub struct Limits {
     pub max_elements: usize,
     /// Most iterations of one `for` loop (default 10,000,000).
     pub max_repeat: usize,
+    /// Most elaboration work in all: elements and cells placed plus loop iterations, counted
+    /// across every level of nesting (default 20,000,000).
+    pub max_work: usize,
 }
 
 impl Default for Limits {
@@ -54,6 +56,7 @@ impl Default for Limits {
             max_cell_depth: 64,
             max_elements: 5_000_000,
             max_repeat: 10_000_000,
+            max_work: 20_000_000,
         }
     }
 }
@@ -65,39 +68,6 @@ pub struct LoadOptions {
     pub overrides: Vec<(String, String)>,
     /// Input limits.
     pub limits: Limits,
-}
-
-/// A value given to an analysis setting.
-#[derive(Clone, Debug, PartialEq)]
-pub enum SettingValue {
-    /// A number (SI) with the dimension written, if any.
-    Number(f64, Option<Dim>),
-    /// A name that is not a parameter: a node, node array or element.
-    Name(String),
-    /// A string.
-    Text(String),
-}
-
-/// One `key = value` of an analysis.
-#[derive(Clone, Debug, PartialEq)]
-pub struct Setting {
-    /// The key.
-    pub name: String,
-    /// Its value.
-    pub value: SettingValue,
-    /// Where it is.
-    pub span: Span,
-}
-
-/// An `analysis` declaration.
-#[derive(Clone, Debug, PartialEq)]
-pub struct AnalysisDecl {
-    /// Which analysis.
-    pub kind: String,
-    /// Its settings in file order.
-    pub settings: Vec<Setting>,
-    /// The header.
-    pub span: Span,
 }
 
 /// What a check reports about an elaborated design.
@@ -124,7 +94,7 @@ pub struct Design {
     /// Declared analyses.
     pub analyses: Vec<AnalysisDecl>,
     /// Top-level parameters after overrides, in SI units.
-    pub parameters: Vec<(String, f64, Option<Dim>)>,
+    pub parameters: Vec<(String, f64, Dim)>,
     /// Counts for a summary.
     pub summary: Summary,
     /// Findings that do not stop the design (a node with a single connection, say).
@@ -137,16 +107,6 @@ pub struct Failure {
     pub sources: Sources,
     /// What went wrong, in order.
     pub diagnostics: Vec<Diagnostic>,
-}
-
-/// What an analysis setting takes.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum SettingKind {
-    /// A number (an expression, parameters allowed).
-    Number,
-    /// The name of a node, node array or element, taken as written (even if a parameter has
-    /// the same name).
-    Name,
 }
 
 impl std::fmt::Debug for Failure {
@@ -251,6 +211,12 @@ pub fn load_with(
         }
         warnings.push(d);
     }
+    let mut seen = std::collections::HashSet::new();
+    warnings.extend(
+        e.warns
+            .into_iter()
+            .filter(|d| seen.insert((d.kind, d.span, d.message.clone()))),
+    );
     Ok(Design {
         circuit: e.circuit,
         sources,
@@ -261,18 +227,11 @@ pub fn load_with(
     })
 }
 
-/// A number with an optional dimension (`None`: a bare number, accepted for any dimension).
+/// A number in SI units with its dimension (a bare number is a pure number).
 #[derive(Clone, Copy, Debug, PartialEq)]
 struct Q {
     v: f64,
-    dim: Option<Dim>,
-}
-
-struct DeviceCard {
-    kind: &'static Kind,
-    values: Vec<(String, Q, Span)>,
-    texts: Vec<(String, String)>,
-    waveform: Option<Waveform>,
+    dim: Dim,
 }
 
 struct Elaborator<'s> {
@@ -280,7 +239,7 @@ struct Elaborator<'s> {
     diags: Vec<Diagnostic>,
     circuit: Circuit,
     globals: HashMap<String, Q>,
-    parameter_list: Vec<(String, f64, Option<Dim>)>,
+    parameter_list: Vec<(String, f64, Dim)>,
     cells: HashMap<String, (&'s [Ident], &'s [Stmt], Span)>,
     devices: HashMap<String, DeviceCard>,
     analyses: Vec<AnalysisDecl>,
@@ -292,6 +251,14 @@ struct Elaborator<'s> {
     last_pins: Vec<(NodeId, Span)>,
     /// Element pins on each node, with the first connection's place.
     node_uses: HashMap<NodeId, (usize, Span)>,
+    /// Analyses collected in file order, checked once the circuit is complete.
+    pending: Vec<analyses::Pending>,
+    /// Findings that do not stop the design.
+    warns: Vec<Diagnostic>,
+    /// Elements placed and loop iterations run so far, across all nesting.
+    work: usize,
+    /// Largest voltage written in the design (sources, settings), for plausibility checks.
+    max_voltage: f64,
 }
 
 /// One level of the scope chain: a cell instance's parameters and ports, or a loop variable.
@@ -318,6 +285,10 @@ impl<'s> Elaborator<'s> {
             created: 0,
             last_pins: Vec::new(),
             node_uses: HashMap::new(),
+            pending: Vec::new(),
+            warns: Vec::new(),
+            work: 0,
+            max_voltage: 0.0,
         }
     }
 
@@ -367,7 +338,42 @@ impl<'s> Elaborator<'s> {
                 }
                 seen.insert(name.name.clone(), name.span);
                 let q = match parsed.get(&name.name) {
-                    Some(e) => self.eval(e, &[&top]),
+                    Some(e) => {
+                        // The replacement must have the dimension the file gives the parameter.
+                        let file = self.eval(value, &[&top]);
+                        let given = self.eval(e, &[&top]);
+                        match (file, given) {
+                            // A plain zero is zero in every unit.
+                            (Some(f), Some(g)) if g.dim == Dim::NONE && g.v == 0.0 => {
+                                Some(Q { v: 0.0, dim: f.dim })
+                            }
+                            (Some(f), Some(g)) if f.dim != g.dim => {
+                                let span = override_span[&name.name];
+                                let msg = format!(
+                                    "`{}` is {} in the file, but this value is {}",
+                                    name.name,
+                                    f.dim.describe(),
+                                    g.dim.describe()
+                                );
+                                let kind = if g.dim == Dim::NONE {
+                                    ErrorKind::MissingUnit
+                                } else {
+                                    ErrorKind::UnitMismatch
+                                };
+                                self.diags.push(
+                                    Diagnostic::new(kind, span, msg)
+                                        .with_note(name.span, "defined here")
+                                        .with_help(format!(
+                                            "write the value with a unit, such as `{}={}`",
+                                            name.name,
+                                            f.dim.example().replace(' ', "")
+                                        )),
+                                );
+                                Some(f) // the file's value, so later uses do not fail again
+                            }
+                            (_, g) => g,
+                        }
+                    }
                     None => self.eval(value, &[&top]),
                 };
                 if let Some(q) = q {
@@ -376,8 +382,8 @@ impl<'s> Elaborator<'s> {
                 }
             }
         }
-        for name in parsed.keys() {
-            if !seen.contains_key(name) {
+        for (name, _) in overrides {
+            if parsed.contains_key(name) && !seen.contains_key(name) {
                 let mut d = Diagnostic::new(
                     ErrorKind::Unknown,
                     override_span[name],
@@ -432,10 +438,38 @@ impl<'s> Elaborator<'s> {
                 other => self.body_stmt(other, &mut frames),
             }
         }
+        // Names in analyses are checked against a complete circuit only: after other errors
+        // they would mostly repeat them.
+        if self.diags.is_empty() {
+            self.check_analyses();
+        }
     }
 
     /// Whether elaboration should stop: too many errors to be useful, or the element limit.
     pub(super) fn saturated(&self) -> bool {
-        self.diags.len() > 200 || self.created > self.limits.max_elements
+        self.diags.len() > 200
+            || self.created > self.limits.max_elements
+            || self.work > self.limits.max_work
+    }
+
+    /// Counts one unit of elaboration work (an instance placed, a loop iteration); past the
+    /// limit, reports it once at `span` and returns false.
+    pub(super) fn tick(&mut self, span: Span) -> bool {
+        self.work += 1;
+        if self.work == self.limits.max_work + 1 {
+            self.diags.push(
+                Diagnostic::new(
+                    ErrorKind::Limit,
+                    span,
+                    format!(
+                        "elaboration needs more than {} steps (instances and loop iterations, \
+                         counted through every level of cells and loops)",
+                        self.limits.max_work
+                    ),
+                )
+                .with_help("nested loops and cells multiply: check the loop bounds and how often each cell places the next"),
+            );
+        }
+        self.work <= self.limits.max_work
     }
 }
