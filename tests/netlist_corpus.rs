@@ -30,6 +30,7 @@ fn kind_named(name: &str) -> ErrorKind {
         Unknown,
         Duplicate,
         UnitMismatch,
+        MissingUnit,
         Unconnected,
         ConnectedTwice,
         BadValue,
@@ -93,6 +94,75 @@ fn bad_files_report_the_expected_kind_and_place() {
         }
     }
     assert!(wrong.is_empty(), "{}", wrong.join("\n"));
+}
+
+/// Most refusals say what to change: the first diagnostic of at least 80 % of the bad corpus
+/// carries a help line.
+#[test]
+fn most_refusals_carry_a_help_line() {
+    let files = lam_files(Path::new("tests/corpus/bad"));
+    let helped = files
+        .iter()
+        .filter(|f| {
+            load_file(f, &LoadOptions::default())
+                .err()
+                .and_then(|e| e.diagnostics.first().map(|d| d.help.is_some()))
+                .unwrap_or(false)
+        })
+        .count();
+    assert!(
+        helped * 10 >= files.len() * 8,
+        "{helped} of {} refusals carry a help line",
+        files.len()
+    );
+}
+
+/// A bad value in a device card is reported once, at the card, however many instances use it;
+/// the first instance is a secondary label.
+#[test]
+fn a_card_error_is_reported_once_at_the_card() {
+    let text = "device n2d : sheet_fet {\n    channel = MoS2, insulator = hBN, gate = Au\n    \
+                insulator_layers = 10, temperature = -3 K\n}\n\
+                voltage_source vd (pos = d, neg = ground) { dc = 1 V }\n\
+                for i in 0..21 {\n    n2d m[i] (drain = d, gate = d, source = ground)\n}\n";
+    let f = lamina_netlist::load_source("card.lam", text, &LoadOptions::default())
+        .err()
+        .unwrap();
+    assert_eq!(f.diagnostics.len(), 1, "{f}");
+    let d = &f.diagnostics[0];
+    assert_eq!(f.sources.line_column(d.span.file, d.span.start).0, 3);
+    assert_eq!(d.notes.len(), 1, "{f}");
+    assert_eq!(
+        f.sources
+            .line_column(d.notes[0].0.file, d.notes[0].0.start)
+            .0,
+        7
+    );
+}
+
+/// Work that cannot fit in the limits is refused before any of it is done: the projected
+/// count is named, and nothing was placed.
+#[test]
+fn multiplied_work_is_refused_up_front() {
+    for (text, what) in [
+        (
+            "for i in 0..10000000 {\n for j in 0..10000000 {\n  resistor r[i * 10000000 + j] (a = n, b = ground) { resistance = 1 kOhm }\n }\n}\n",
+            "1.000e14",
+        ),
+        (
+            "cell a(p) {\n resistor r (a = p, b = ground) { resistance = 1 kOhm }\n}\n\
+             cell b(p) {\n for i in 0..5000 { a x[i] (p = p) }\n}\n\
+             for i in 0..5000 { b y[i] (p = n) }\n",
+            "2.500e7",
+        ),
+    ] {
+        let f = lamina_netlist::load_source("work.lam", text, &LoadOptions::default())
+            .err()
+            .unwrap();
+        assert_eq!(f.diagnostics.len(), 1, "{f}");
+        assert_eq!(f.diagnostics[0].kind, ErrorKind::Limit);
+        assert!(f.diagnostics[0].message.contains(what), "{f}");
+    }
 }
 
 #[test]

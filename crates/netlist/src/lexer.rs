@@ -137,7 +137,7 @@ pub fn lex(file: FileId, text: &str, diags: &mut Vec<Diagnostic>) -> Vec<Token> 
                     ErrorKind::BadCharacter,
                     Span::new(file, i, i + ch.len_utf8()),
                     format!("unexpected character `{ch}`"),
-                ));
+                ).with_help("names use letters, digits and `_`; remove the character or put text in double quotes"));
                 i += ch.len_utf8();
                 continue;
             }
@@ -216,7 +216,7 @@ pub fn lex(file: FileId, text: &str, diags: &mut Vec<Diagnostic>) -> Vec<Token> 
             ErrorKind::BadCharacter,
             Span::new(file, i, i + ch.len_utf8()),
             format!("unexpected character `{ch}`"),
-        ));
+        ).with_help("names use letters, digits and `_`; remove the character or put text in double quotes"));
         i += ch.len_utf8();
     }
     out.push(Token {

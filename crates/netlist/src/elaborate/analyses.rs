@@ -314,6 +314,12 @@ impl<'s> Elaborator<'s> {
             d = d.with_help(h);
         } else if self.circuit.find_element(name).is_some() {
             d = d.with_help(format!("`{name}` is an element; `{key}` takes a node"));
+        } else {
+            let mut some: Vec<&str> = names.iter().map(String::as_str).take(8).collect();
+            if names.len() > 8 {
+                some.push("...");
+            }
+            d = d.with_help(format!("the circuit's nodes are: {}", some.join(", ")));
         }
         self.diags.push(d);
         false

@@ -391,7 +391,9 @@ impl<'s> Elaborator<'s> {
                 if let Some(first) = self.element_spans.get(&n) {
                     d = d.with_note(*first, "first defined here");
                 }
-                self.diags.push(d);
+                self.diags.push(
+                    d.with_help("rename one of the two; element names are unique in their cell"),
+                );
             }
             Err(e) => self.err(ErrorKind::BadValue, span, e.to_string()),
         }

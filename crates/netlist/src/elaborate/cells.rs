@@ -52,16 +52,26 @@ impl<'s> Elaborator<'s> {
                 };
                 let count = (b - a).max(0) as usize;
                 if count > self.limits.max_repeat {
-                    self.err(
-                        ErrorKind::Limit,
-                        *span,
-                        format!(
-                            "{count} repetitions exceed the limit of {}",
-                            self.limits.max_repeat
-                        ),
+                    self.diags.push(
+                        Diagnostic::new(
+                            ErrorKind::Limit,
+                            *span,
+                            format!(
+                                "{count} repetitions exceed the limit of {}",
+                                self.limits.max_repeat
+                            ),
+                        )
+                        .with_help("check the loop bounds; a design this large needs splitting"),
                     );
                     return;
                 }
+                let body_cost = self.cost(body);
+                let n = count as f64;
+                if !self.affordable(n * body_cost, n * (1.0 + body_cost), *span, "this loop") {
+                    return;
+                }
+                let outer = self.multiplier;
+                self.multiplier *= count as f64;
                 let prefix = frames.last().map(|f| f.prefix.clone()).unwrap_or_default();
                 for i in a..b {
                     if !self.tick(*span) {
@@ -88,6 +98,7 @@ impl<'s> Elaborator<'s> {
                         break;
                     }
                 }
+                self.multiplier = outer;
             }
             Stmt::Instance {
                 kind,
@@ -173,7 +184,8 @@ impl<'s> Elaborator<'s> {
                         c.pin.span,
                         format!("pin `{}` is connected twice", c.pin.name),
                     )
-                    .with_note(first, "first connected here"),
+                    .with_note(first, "first connected here")
+                    .with_help("connect each pin once; remove one of the two"),
                 );
                 ok = false;
                 continue;
@@ -227,14 +239,26 @@ impl<'s> Elaborator<'s> {
         frames: &mut Vec<Frame>,
     ) {
         if self.depth >= self.limits.max_cell_depth {
-            self.err(
-                ErrorKind::Limit,
-                span,
-                format!(
-                    "cells nested deeper than {} levels (does `{cell}` contain itself?)",
-                    self.limits.max_cell_depth
-                ),
+            self.diags.push(
+                Diagnostic::new(
+                    ErrorKind::Limit,
+                    span,
+                    format!(
+                        "cells nested deeper than {} levels (does `{cell}` contain itself?)",
+                        self.limits.max_cell_depth
+                    ),
+                )
+                .with_help("a cell cannot place itself, directly or through other cells"),
             );
+            return;
+        }
+        let cost = self.cost(body);
+        if !self.affordable(
+            cost,
+            cost + 1.0,
+            span,
+            &format!("this instance of `{cell}`"),
+        ) {
             return;
         }
         let port_names: Vec<&str> = ports.iter().map(|p| p.name.as_str()).collect();
@@ -304,5 +328,68 @@ impl<'s> Elaborator<'s> {
             self.body_stmt(s, &mut inner);
         }
         self.depth -= 1;
+    }
+
+    /// A lower bound on the elements `stmts` place: elements count one, cells their own cost,
+    /// loops with literal bounds their count times their body (others nothing). Used to refuse
+    /// work that cannot fit in the limits before doing any of it.
+    pub(super) fn cost(&mut self, stmts: &'s [Stmt]) -> f64 {
+        let mut total = 0.0;
+        for s in stmts {
+            total += match s {
+                Stmt::Instance { kind, .. } => match self.cells.get(&kind.name) {
+                    Some(&(_, body, _)) => {
+                        if let Some(&c) = self.cell_costs.get(&kind.name) {
+                            c
+                        } else if self.costing.contains(&kind.name) {
+                            0.0 // recursion: reported by the depth limit
+                        } else {
+                            self.costing.push(kind.name.clone());
+                            let c = self.cost(body);
+                            self.costing.pop();
+                            self.cell_costs.insert(kind.name.clone(), c);
+                            c
+                        }
+                    }
+                    None => 1.0,
+                },
+                Stmt::For { from, to, body, .. } => match (from, to) {
+                    (Expr::Number { value: a, .. }, Expr::Number { value: b, .. }) => {
+                        (b - a).max(0.0) * self.cost(body)
+                    }
+                    _ => 0.0,
+                },
+                _ => 0.0,
+            };
+        }
+        total
+    }
+
+    /// Whether `elements` more elements and `steps` more steps, repeated by the enclosing
+    /// loops, fit in the element and work limits; reports at `span` if not.
+    pub(super) fn affordable(&mut self, elements: f64, steps: f64, span: Span, what: &str) -> bool {
+        let (elements, steps) = (elements * self.multiplier, steps * self.multiplier);
+        let room_work = self.limits.max_work.saturating_sub(self.work) as f64;
+        let room_elements = self.limits.max_elements.saturating_sub(self.created) as f64;
+        if steps <= room_work && elements <= room_elements {
+            return true;
+        }
+        let projected = elements.max(steps);
+        self.diags.push(
+            Diagnostic::new(
+                ErrorKind::Limit,
+                span,
+                format!(
+                    "{what} would place at least {projected:.3e} elements and steps (counting \
+                     through enclosing loops and nested cells), more than the limits of {} \
+                     elements and {} steps",
+                    self.limits.max_elements, self.limits.max_work
+                ),
+            )
+            .with_help("check the loop bounds and how often each cell places the next"),
+        );
+        // Stop elaborating: everything after would be cut short anyway.
+        self.work = self.limits.max_work + 2;
+        false
     }
 }

@@ -39,10 +39,13 @@ impl<'s> Elaborator<'s> {
             return None;
         }
         if q.v.fract() != 0.0 || q.v.abs() > 1e15 {
-            self.err(
-                ErrorKind::BadValue,
-                e.span(),
-                format!("expected a whole number, found {}", q.v),
+            self.diags.push(
+                Diagnostic::new(
+                    ErrorKind::BadValue,
+                    e.span(),
+                    format!("expected a whole number, found {}", q.v),
+                )
+                .with_help("round it, such as `round(x)` or `floor(x)`"),
             );
             return None;
         }
@@ -117,7 +120,14 @@ impl<'s> Elaborator<'s> {
                     },
                     BinOp::Div => {
                         if b.v == 0.0 {
-                            self.err(ErrorKind::BadValue, r.span(), "division by zero".into());
+                            self.diags.push(
+                                Diagnostic::new(
+                                    ErrorKind::BadValue,
+                                    r.span(),
+                                    "division by zero".into(),
+                                )
+                                .with_help("check the divisor's parameters"),
+                            );
                             return None;
                         }
                         Q {
@@ -473,7 +483,7 @@ impl<'s> Elaborator<'s> {
                 "write it with a unit, such as `{what} = {}`; a parameter defined without a \
                  unit is a pure number too (give it a unit where it is defined, or write `x * 1 {}`)",
                 want.example(),
-                want.unit().split(',').next().unwrap_or("")
+                want.example().split_once(' ').map_or("", |(_, u)| u)
             ))
         } else {
             Diagnostic::new(

@@ -121,7 +121,12 @@ impl Loader<'_> {
                         0,
                     ),
                 };
-                self.diags.push(Diagnostic::new(kind, span, msg));
+                let help = match kind {
+                    ErrorKind::Limit => "split the file, or check that it is a circuit file",
+                    _ => "check the path (an include is relative to the file that includes it)",
+                };
+                self.diags
+                    .push(Diagnostic::new(kind, span, msg).with_help(help));
                 return None;
             }
         };

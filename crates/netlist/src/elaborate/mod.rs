@@ -257,6 +257,12 @@ struct Elaborator<'s> {
     warns: Vec<Diagnostic>,
     /// Elements placed and loop iterations run so far, across all nesting.
     work: usize,
+    /// Product of the counts of the loops being expanded, through cells.
+    multiplier: f64,
+    /// Lower bounds on the elements each cell places (see `cost`).
+    cell_costs: HashMap<String, f64>,
+    /// Cells whose cost is being computed (recursion guard).
+    costing: Vec<String>,
     /// Largest voltage written in the design (sources, settings), for plausibility checks.
     max_voltage: f64,
 }
@@ -289,6 +295,9 @@ impl<'s> Elaborator<'s> {
             warns: Vec::new(),
             work: 0,
             max_voltage: 0.0,
+            multiplier: 1.0,
+            cell_costs: HashMap::new(),
+            costing: Vec::new(),
         }
     }
 
@@ -332,7 +341,8 @@ impl<'s> Elaborator<'s> {
                             name.span,
                             format!("parameter `{}` is defined twice", name.name),
                         )
-                        .with_note(*first, "first defined here"),
+                        .with_note(*first, "first defined here")
+                        .with_help("remove one, or rename it; change a value from the command line with --set"),
                     );
                     continue;
                 }
