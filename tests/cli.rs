@@ -271,3 +271,143 @@ fn out_writes_data_summary_and_plots() {
     assert!(!dir.join("summary.json.partial").exists());
     std::fs::remove_dir_all(&dir).unwrap();
 }
+
+/// The exit-code table (README, `--help`): 0 success, 1 an analysis failed, 2 bad usage, 3 the
+/// circuit file has errors, 4 a file could not be read or written; each code for each command.
+#[test]
+fn every_command_follows_the_exit_code_table() {
+    let dir = std::env::temp_dir().join(format!("lamina-codes-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    // Two voltage sources fight over one node: every analysis fails in its operating point.
+    let singular = dir.join("singular.lam");
+    std::fs::write(
+        &singular,
+        "param vdd = 1 V\n\
+         device nfet : square_nfet { k = 100 uA/V^2, threshold = 0.3 V }\n\
+         device pfet : square_pfet { k = 100 uA/V^2, threshold = -0.3 V }\n\
+         voltage_source supply (pos = vdd, neg = ground) { dc = vdd }\n\
+         voltage_source clash (pos = vdd, neg = ground) { dc = 2 V }\n\
+         voltage_source drive (pos = in, neg = ground) { wave = pulse(high = 1 V, rise = 10 ps, fall = 10 ps, width = 1 ns) }\n\
+         nfet pull_down (drain = out, gate = in, source = ground)\n\
+         pfet pull_up (drain = out, gate = in, source = vdd)\n\
+         for i in 0..3 {\n\
+             nfet pd[i] (drain = r[i], gate = r[(i + 2) % 3], source = ground)\n\
+             pfet pu[i] (drain = r[i], gate = r[(i + 2) % 3], source = vdd)\n\
+             capacitor c[i] (a = r[i], b = ground) { capacitance = 1 fF }\n\
+         }\n\
+         analysis transfer { source = drive, output = out, from = 0 V, to = vdd, step = 10 mV }\n\
+         analysis delay { from = in, to = out, stop = 2 ns }\n\
+         analysis ring { nodes = r, stages = 3, supply = vdd }\n",
+    )
+    .unwrap();
+    let singular_fet = dir.join("singular-fet.lam");
+    std::fs::write(
+        &singular_fet,
+        "device nfet : square_nfet { k = 100 uA/V^2, threshold = 0.3 V }\n\
+         voltage_source vg (pos = g, neg = ground) { dc = 0 V }\n\
+         voltage_source vd (pos = d, neg = ground) { dc = 0 V }\n\
+         voltage_source clash (pos = x, neg = ground) { dc = 1 V }\n\
+         voltage_source clash2 (pos = x, neg = ground) { dc = 2 V }\n\
+         resistor r (a = x, b = ground) { resistance = 1 kOhm }\n\
+         nfet m (drain = d, gate = g, source = ground)\n",
+    )
+    .unwrap();
+    let broken = dir.join("broken.lam");
+    std::fs::write(
+        &broken,
+        "resistr r1 (a = n, b = ground) { resistance = 1 kOhm }\n",
+    )
+    .unwrap();
+    let (s, sf, b) = (
+        singular.to_str().unwrap(),
+        singular_fet.to_str().unwrap(),
+        broken.to_str().unwrap(),
+    );
+    let inv = "netlists/reference/square-inverter.lam";
+    let ring = "netlists/reference/square-ring-11.lam";
+    let fet = "netlists/reference/sheet-fet-a.lam";
+    let delay = "netlists/fo4-chain.lam";
+    let missing = "no/such/file.lam";
+    // `--out` under a regular file cannot be created.
+    let unwritable = "Cargo.toml/out";
+    let iv = ["--vgs", "0:1:0.5", "--vds", "0.1"];
+    let cases: Vec<(Vec<&str>, i32)> = vec![
+        (vec!["check", inv], 0),
+        (vec!["check", inv, "--set", "vdd=1"], 2),
+        (vec!["check", b], 3),
+        (vec!["check", missing], 4),
+        (vec!["run", inv], 0),
+        (vec!["run", s], 1),
+        (vec!["run", inv, "--set", "vdd=0.8 nm"], 2),
+        (vec!["run", b], 3),
+        (vec!["run", missing], 4),
+        (vec!["run", inv, "--out", unwritable], 4),
+        (vec!["vtc", inv], 0),
+        (vec!["vtc", s], 1),
+        (vec!["vtc", inv, "--set", "nothing=1V"], 2),
+        (vec!["vtc", b], 3),
+        (vec!["vtc", missing], 4),
+        (vec!["vtc", inv, "--out", unwritable], 4),
+        (vec!["delay", delay], 0),
+        (vec!["delay", s], 1),
+        (vec!["delay", delay, "--set", "size=1 V"], 2),
+        (vec!["delay", b], 3),
+        (vec!["delay", missing], 4),
+        (vec!["ring", ring], 0),
+        (vec!["ring", s], 1),
+        (vec!["ring", ring, "--stages", "7"], 2),
+        (
+            vec!["ring", "--builtin", "square-ring", "--set", "vdd=1"],
+            2,
+        ),
+        (vec!["ring", b], 3),
+        (vec!["ring", missing], 4),
+        (vec!["ring", ring, "--out", unwritable], 4),
+        ([&["iv", fet][..], &iv[..]].concat(), 0),
+        ([&["iv", sf][..], &iv[..]].concat(), 1),
+        (vec!["iv", fet, "--vgs", "0:1:1e-7", "--vds", "0:1:1e-7"], 2),
+        ([&["iv", b][..], &iv[..]].concat(), 3),
+        ([&["iv", missing][..], &iv[..]].concat(), 4),
+        (
+            [&["iv", fet][..], &iv[..], &["--out", unwritable][..]].concat(),
+            4,
+        ),
+        (vec!["sweep", ring, "--param", "vdd=0.9V,1V"], 0),
+        (vec!["sweep", s, "--param", "vdd=0.9V,1V"], 1),
+        (vec!["sweep", ring, "--param", "vdd=0.9,1"], 2),
+        (
+            vec!["sweep", ring, "--param", "vdd=1V", "--set", "vdd=1V"],
+            2,
+        ),
+        (
+            vec!["sweep", ring, "--param", "vdd=1V", "--param", "vdd=2V"],
+            2,
+        ),
+        (
+            vec![
+                "sweep",
+                ring,
+                "--param",
+                "vdd=0:1:1e-6V",
+                "--param",
+                "stages=0:1:1e-6",
+            ],
+            2,
+        ),
+        (vec!["sweep", b, "--param", "vdd=1V"], 3),
+        (vec!["sweep", missing, "--param", "vdd=1V"], 4),
+    ];
+    let mut wrong = Vec::new();
+    for (args, code) in &cases {
+        let out = lamina(args);
+        if out.status.code() != Some(*code) {
+            wrong.push(format!(
+                "{args:?}: expected {code}, got {:?}\n{}",
+                out.status.code(),
+                String::from_utf8_lossy(&out.stderr)
+            ));
+        }
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+    assert!(wrong.is_empty(), "{}", wrong.join("\n"));
+}

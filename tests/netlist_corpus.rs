@@ -283,3 +283,30 @@ fn syntax_trees_of_every_corpus_file_are_lossless() {
         assert_eq!(tree.to_source(&text), text, "{}", f.display());
     }
 }
+
+/// Includes of anything but a regular file are refused before they are opened for reading:
+/// a character device that never ends and a FIFO that would block forever.
+#[test]
+fn includes_of_devices_and_fifos_are_refused() {
+    let dir = std::env::temp_dir().join(format!("lamina-fifo-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let fifo = dir.join("pipe.lam");
+    let made = std::process::Command::new("mkfifo")
+        .arg(&fifo)
+        .status()
+        .unwrap();
+    assert!(made.success(), "mkfifo is needed for this test");
+    for target in ["/dev/zero", fifo.to_str().unwrap()] {
+        let text = format!("include \"{target}\"\n");
+        let f = lamina_netlist::load_source("inc.lam", &text, &LoadOptions::default())
+            .err()
+            .unwrap();
+        assert_eq!(f.diagnostics.len(), 1, "{f}");
+        assert_eq!(f.diagnostics[0].kind, ErrorKind::Io, "{f}");
+        assert!(
+            f.diagnostics[0].message.contains("not a regular file"),
+            "{f}"
+        );
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+}
