@@ -91,6 +91,7 @@ pub fn insulator_layer(
     Ok(Layer {
         permittivity,
         thickness,
+        breakdown_field: number(e, "breakdown_field", name).ok(),
     })
 }
 
@@ -149,6 +150,15 @@ mod tests {
             (insulator_layer("hBN", Some(10.0), None).unwrap().thickness - 3.33e-9).abs() < 1e-15
         );
         assert!(insulator_layer("HfO2", Some(3.0), None).is_err());
+        for name in insulators() {
+            let field = insulator_layer(&name, None, Some(1e-9))
+                .unwrap()
+                .breakdown_field;
+            assert!(
+                field.is_some_and(|f| f > 1e8 && f < 1e10),
+                "{name}: breakdown field {field:?}"
+            );
+        }
         assert!(apply_channel(&mut SheetFetCard::default(), "MoS3")
             .unwrap_err()
             .contains("MoS2"));

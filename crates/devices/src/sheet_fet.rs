@@ -100,6 +100,9 @@ pub struct Layer {
     pub permittivity: f64,
     /// Thickness (m).
     pub thickness: f64,
+    /// Dielectric breakdown field (V/m) where known. It does not enter the model; the
+    /// plausibility check compares the field of a stated gate voltage with it.
+    pub breakdown_field: Option<f64>,
 }
 
 /// A second conduction valley above the first.
@@ -176,6 +179,7 @@ impl Default for SheetFetCard {
             insulator: vec![Layer {
                 permittivity: 3.4,
                 thickness: 5e-9,
+                breakdown_field: None,
             }],
             electron_mass: 0.5,
             hole_mass: 0.6,
@@ -313,6 +317,14 @@ impl SheetFetCard {
             source_resistance: 0.0,
             drain_resistance: 0.0,
             overlap_capacitance: 0.0,
+            insulator: self
+                .insulator
+                .iter()
+                .map(|l| Layer {
+                    breakdown_field: None,
+                    ..*l
+                })
+                .collect(),
             ..self.clone()
         }
     }

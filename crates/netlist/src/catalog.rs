@@ -398,6 +398,7 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, String> {
                 (Some(permittivity), Some(thickness)) => Some(Layer {
                     permittivity,
                     thickness,
+                    breakdown_field: None,
                 }),
                 (None, None) if v.get(p, count).is_none() => None,
                 _ => {
