@@ -59,7 +59,7 @@
 //! stops after 64 local evaluations per grid point on average. Whether a valid card is
 //! physically plausible (temperature outside [`TEMPERATURE_RANGE_K`], densities beyond what a
 //! monolayer holds, fields beyond an insulator's breakdown) is answered by
-//! the plausibility check.
+//! [`crate::warnings::plausibility`].
 //!
 //! # Velocity saturation, contacts, overlap
 //! The current is multiplied by a Caughey-Thomas factor `[1 + (E/E_c)^β]^(-1/β)` (D. M. Caughey
@@ -116,7 +116,8 @@ pub struct Layer {
     /// Thickness (m).
     pub thickness: f64,
     /// Dielectric breakdown field (V/m) where known. It does not enter the model; the
-    /// plausibility check compares the field of a stated gate voltage with it.
+    /// plausibility check ([`crate::warnings::plausibility`]) compares the field of a stated
+    /// gate voltage with it.
     pub breakdown_field: Option<f64>,
 }
 
@@ -308,7 +309,7 @@ impl SheetFetCard {
     ///
     /// The accepted ranges are numeric guards, set orders of magnitude beyond any material so
     /// that every intermediate of the stack solve stays finite; whether a value is physically
-    /// plausible is the plausibility check's question. The guards (card units):
+    /// plausible is [`crate::warnings::plausibility`]'s question. The guards (card units):
     ///
     /// | field | accepted |
     /// |---|---|

@@ -2,7 +2,9 @@
 //! and together, set to extreme, invalid or random values must give an error or a model whose
 //! tables respect the size cap, never a panic.
 
-use lamina_devices::sheet_fet::{MAX_TABLE_POINTS, MIN_TEMPERATURE_K};
+use lamina_devices::materials;
+use lamina_devices::sheet_fet::{MAX_TABLE_POINTS, MIN_TEMPERATURE_K, TEMPERATURE_RANGE_K};
+use lamina_devices::warnings::{plausibility, Implausible};
 use lamina_devices::{Gate, Layer, SecondValley, SheetFet, SheetFetCard, SheetModel};
 use proptest::prelude::*;
 use proptest::test_runner::{Config, RngSeed};
@@ -141,8 +143,20 @@ fn value() -> impl Strategy<Value = f64> {
 }
 
 /// What every card must satisfy: an error with a message, or a model within the size cap
-/// whose device builds and evaluates without panicking.
+/// whose device builds and evaluates without panicking; and plausibility warnings for any
+/// gate voltage, without panicking.
 fn outcome_is_bounded(card: &SheetFetCard) -> Result<(), String> {
+    for v in [
+        None,
+        Some(1.0),
+        Some(-1e300),
+        Some(f64::NAN),
+        Some(f64::INFINITY),
+    ] {
+        if plausibility(card, v).iter().any(|w| w.why.is_empty()) {
+            return Err("a warning without a reason".into());
+        }
+    }
     match SheetModel::build(card) {
         Err(e) if e.is_empty() => Err("an empty error message".into()),
         Err(_) => Ok(()),
@@ -433,4 +447,87 @@ fn dirac_gate_that_cannot_hold_the_charge_is_an_error() {
         Ok(m) => panic!("built {} points", m.table_points()),
         Err(e) => assert!(e.contains("Dirac gate"), "{e}"),
     }
+}
+
+/// The library's MoS2 on ten layers of hBN under a metal gate.
+fn mos2_on_hbn() -> SheetFetCard {
+    let mut card = SheetFetCard {
+        insulator: vec![materials::insulator_layer("hBN", Some(10.0), None).unwrap()],
+        ..SheetFetCard::default()
+    };
+    materials::apply_channel(&mut card, "MoS2").unwrap();
+    card
+}
+
+fn only(flags: &[Implausible]) -> &Implausible {
+    assert_eq!(flags.len(), 1, "{flags:#?}");
+    &flags[0]
+}
+
+/// 1000 K, 1e16 /cm² of donors and 10 V across 1 nm of SiO2 (100 MV/cm, ten times its
+/// breakdown field) are each flagged, in the units the trade prints them in.
+#[test]
+fn plausibility_flags_heat_dense_donors_and_a_field_beyond_breakdown() {
+    let hot = SheetFetCard {
+        temperature: 1000.0,
+        ..mos2_on_hbn()
+    };
+    let w = only(&plausibility(&hot, Some(1.0))).clone();
+    assert_eq!(
+        (w.parameter, w.value, w.unit, (w.low, w.high)),
+        ("temperature", 1000.0, "K", TEMPERATURE_RANGE_K)
+    );
+    assert!(w.to_string().contains("`temperature` = 1000"), "{w}");
+
+    let doped = SheetFetCard {
+        donor_density: 1e20,
+        ..mos2_on_hbn()
+    };
+    let w = only(&plausibility(&doped, None)).clone();
+    assert_eq!((w.parameter, w.unit), ("donor_density", "/cm^2"));
+    assert!((w.value / 1e16 - 1.0).abs() < 1e-12 && w.high < 1e16);
+
+    let thin = SheetFetCard {
+        insulator: vec![materials::insulator_layer("SiO2", None, Some(1e-9)).unwrap()],
+        ..mos2_on_hbn()
+    };
+    assert!(plausibility(&thin, None).is_empty());
+    let w = only(&plausibility(&thin, Some(10.0))).clone();
+    assert_eq!((w.parameter, w.unit), ("insulator", "MV/cm"));
+    // E = V / t for a single layer: 10 V / 1 nm = 1e10 V/m = 100 MV/cm.
+    assert!((w.value / 100.0 - 1.0).abs() < 1e-12, "{w}");
+    assert!((w.high / 10.0 - 1.0).abs() < 1e-12, "{w}");
+}
+
+/// The library's MoS2 on ten layers of hBN at 300 K with 1 V on the gate (3 MV/cm, a quarter
+/// of hBN's breakdown field) raises nothing.
+#[test]
+fn plausibility_is_silent_for_mos2_on_hbn_at_room_temperature() {
+    for v in [None, Some(1.0), Some(-1.0)] {
+        assert_eq!(plausibility(&mos2_on_hbn(), v), Vec::new());
+    }
+}
+
+/// Across a two-layer stack the displacement is continuous (ε1 E1 = ε2 E2) and the fields add
+/// up to the gate voltage (E1 t1 + E2 t2 = V): Gauss's law for series capacitors (common
+/// practice).
+#[test]
+fn insulator_fields_divide_as_series_capacitors() {
+    let card = SheetFetCard {
+        insulator: vec![
+            materials::insulator_layer("SiO2", None, Some(1e-9)).unwrap(),
+            materials::insulator_layer("HfO2", None, Some(1e-8)).unwrap(),
+        ],
+        ..mos2_on_hbn()
+    };
+    let flags = plausibility(&card, Some(-10.0));
+    assert_eq!(flags.len(), 2, "{flags:#?}");
+    assert_eq!(
+        (flags[0].parameter, flags[1].parameter),
+        ("insulator", "insulator2")
+    );
+    // Back to V/m.
+    let (e1, e2) = (flags[0].value * 1e8, flags[1].value * 1e8);
+    assert!((3.9 * e1 / (25.0 * e2) - 1.0).abs() < 1e-12);
+    assert!(((e1 * 1e-9 + e2 * 1e-8) / 10.0 - 1.0).abs() < 1e-12);
 }
