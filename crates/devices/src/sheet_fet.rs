@@ -921,7 +921,7 @@ impl Tables {
 fn grid(vt: f64) -> (f64, usize) {
     let span = 2.0 * U_HALF_RANGE;
     let fine = vt / POINTS_PER_VT;
-    // `as` saturates, and the comparison is false for NaN, so every input lands in range.
+    // A NaN or infinite count fails the comparison and takes the capped grid.
     let wanted = (span / fine).ceil();
     if wanted >= 1.0 && wanted < (MAX_TABLE_POINTS - 1) as f64 {
         (fine, wanted as usize + 1)
