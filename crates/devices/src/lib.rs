@@ -3,7 +3,9 @@
 //! * [`SheetFet`]: the 2D-channel FET ([`sheet_fet`]): a gate stack ([`SheetFetCard`]) with a
 //!   metal or Dirac-semimetal gate, layered insulator and a monolayer channel; exact Fermi-Dirac
 //!   electrostatics ([`physics`]), charge-sheet drift-diffusion current, Ward-Dutton charges,
-//!   velocity saturation, contact resistance and overlap capacitance.
+//!   velocity saturation, contact resistance and overlap capacitance. Cards are checked in two
+//!   steps: [`SheetFetCard::validate`] refuses values the arithmetic cannot carry, and
+//!   [`warnings::plausibility`] flags valid values the physics does not cover.
 //! * [`SquareLawFet`]: the long-channel square-law field-effect transistor, n or p type, with
 //!   optional channel-length modulation and Ward-Dutton intrinsic charges. It is a check
 //!   element with closed-form answers, not a model of any real device.
@@ -27,6 +29,7 @@ pub mod materials;
 pub mod physics;
 pub mod sheet_fet;
 mod square_law;
+pub mod warnings;
 
 pub use sheet_fet::{Gate, Layer, SecondValley, SheetFet, SheetFetCard, SheetModel};
 pub use square_law::{Polarity, SquareLawFet};

@@ -24,14 +24,55 @@ fn names(section: &str) -> Vec<String> {
 fn entry(section: &str, name: &str) -> Result<&'static Value, String> {
     let v = &data()[section][name];
     if v.is_null() {
+        let known = names(section);
+        let hint = suggestion(name, &known)
+            .map(|s| format!("; did you mean `{s}`?"))
+            .unwrap_or_default();
         Err(format!(
-            "no {} called `{name}` in the material library (it has: {})",
+            "no {} called `{name}` in the material library{hint} (it has: {})",
             &section[..section.len() - 1],
-            names(section).join(", ")
+            known.join(", ")
         ))
     } else {
         Ok(v)
     }
+}
+
+/// The known name `name` was probably meant to be: the one equal to it ignoring case, else the
+/// closest by edit distance ignoring case, if that distance is at most a third of the known
+/// name's length (so two-letter symbols such as `Au` are only matched by case). Names longer
+/// than 64 characters get no suggestion, which bounds the work.
+fn suggestion<'a>(name: &str, known: &'a [String]) -> Option<&'a str> {
+    let lower = name.to_lowercase();
+    if let Some(k) = known.iter().find(|k| k.to_lowercase() == lower) {
+        return Some(k);
+    }
+    if lower.chars().count() > 64 {
+        return None;
+    }
+    known
+        .iter()
+        .map(|k| (edit_distance(&lower, &k.to_lowercase()), k))
+        .filter(|(d, k)| *d <= k.chars().count() / 3)
+        .min_by_key(|(d, _)| *d)
+        .map(|(_, k)| k.as_str())
+}
+
+/// Levenshtein distance (insertions, deletions and substitutions of one character each), by
+/// the textbook dynamic programme over one row (common practice).
+fn edit_distance(a: &str, b: &str) -> usize {
+    let b: Vec<char> = b.chars().collect();
+    let mut row: Vec<usize> = (0..=b.len()).collect();
+    for (i, ca) in a.chars().enumerate() {
+        let mut diagonal = row[0];
+        row[0] = i + 1;
+        for (j, &cb) in b.iter().enumerate() {
+            let substitute = diagonal + usize::from(ca != cb);
+            diagonal = row[j + 1];
+            row[j + 1] = substitute.min(row[j] + 1).min(diagonal + 1);
+        }
+    }
+    row[b.len()]
 }
 
 fn number(e: &Value, key: &str, name: &str) -> Result<f64, String> {
@@ -91,6 +132,7 @@ pub fn insulator_layer(
     Ok(Layer {
         permittivity,
         thickness,
+        breakdown_field: number(e, "breakdown_field", name).ok(),
     })
 }
 
@@ -149,8 +191,34 @@ mod tests {
             (insulator_layer("hBN", Some(10.0), None).unwrap().thickness - 3.33e-9).abs() < 1e-15
         );
         assert!(insulator_layer("HfO2", Some(3.0), None).is_err());
+        for name in insulators() {
+            let field = insulator_layer(&name, None, Some(1e-9))
+                .unwrap()
+                .breakdown_field;
+            assert!(
+                field.is_some_and(|f| f > 1e8 && f < 1e10),
+                "{name}: breakdown field {field:?}"
+            );
+        }
         assert!(apply_channel(&mut SheetFetCard::default(), "MoS3")
             .unwrap_err()
             .contains("MoS2"));
+    }
+
+    /// Edit distances checked by hand: one substitution, one insertion, one deletion, the
+    /// classic kitten/sitting (3), and the empty string (the other string's length).
+    #[test]
+    fn edit_distance_counts_single_character_edits() {
+        for (a, b, d) in [
+            ("mos3", "mos2", 1),
+            ("grafene", "graphene", 2),
+            ("hbnn", "hbn", 1),
+            ("kitten", "sitting", 3),
+            ("", "wse2", 4),
+            ("wse2", "", 4),
+            ("al2o3", "al2o3", 0),
+        ] {
+            assert_eq!(edit_distance(a, b), d, "{a} / {b}");
+        }
     }
 }

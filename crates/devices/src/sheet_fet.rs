@@ -46,6 +46,21 @@
 //! differentiation) is exactly the derivative of what is returned. Outside the grid (more than
 //! 8 V beyond the flat-band point) the functions continue linearly.
 //!
+//! The grid has at most [`MAX_TABLE_POINTS`] points (3.7 MB of tables per stack). Below about
+//! 28 K, where `V_T / 10` would need more, the spacing coarsens to 16 V / 65,536 = 0.244 mV and
+//! the interpolation error grows where σ turns on: for the default card the tabulated σ is
+//! within 3e-7 of the direct solve at 30 K and above, 1.1e-6 at 20 K, 7e-4 at 4 K and 0.22 at
+//! 1 K, the floor [`MIN_TEMPERATURE_K`]. Colder cards are refused.
+//!
+//! # Limits
+//! [`SheetFetCard::validate`] accepts each field within a stated numeric range (wide enough for
+//! any material); [`SheetModel::build`] either returns a model or a message, never panics, and
+//! bounds its work: every local Newton or bisection loop stops after 200 steps, and the build
+//! stops after 64 local evaluations per grid point on average. Whether a valid card is
+//! physically plausible (temperature outside [`TEMPERATURE_RANGE_K`], densities beyond what a
+//! monolayer holds, fields beyond an insulator's breakdown) is answered by
+//! [`crate::warnings::plausibility`].
+//!
 //! # Velocity saturation, contacts, overlap
 //! The current is multiplied by a Caughey-Thomas factor `[1 + (E/E_c)^β]^(-1/β)` (D. M. Caughey
 //! and R. E. Thomas, Proc. IEEE 55, 2192, 1967) of the mean field `E = V_eff / L`,
@@ -100,6 +115,10 @@ pub struct Layer {
     pub permittivity: f64,
     /// Thickness (m).
     pub thickness: f64,
+    /// Dielectric breakdown field (V/m) where known. It does not enter the model; the
+    /// plausibility check ([`crate::warnings::plausibility`]) compares the field of a stated
+    /// gate voltage with it.
+    pub breakdown_field: Option<f64>,
 }
 
 /// A second conduction valley above the first.
@@ -176,6 +195,7 @@ impl Default for SheetFetCard {
             insulator: vec![Layer {
                 permittivity: 3.4,
                 thickness: 5e-9,
+                breakdown_field: None,
             }],
             electron_mass: 0.5,
             hole_mass: 0.6,
@@ -203,92 +223,252 @@ impl Default for SheetFetCard {
     }
 }
 
-fn positive(name: &str, v: f64) -> Result<(), String> {
-    if v.is_finite() && v > 0.0 {
-        Ok(())
+/// The lowest temperature (K) a card may have: a round number below the 1.5 to 4.2 K at which
+/// cryogenic transport of 2D channels is commonly measured (common practice), so that such
+/// cards still build. Colder than this, physics the model leaves out (dopant freeze-out,
+/// hopping, Coulomb blockade) dominates, and the thermal voltage (86 µV at 1 K) is already
+/// below the spacing of the size-capped tables (see the module docs).
+pub const MIN_TEMPERATURE_K: f64 = 1.0;
+
+/// The temperatures (K) the model is meant for: the -55 °C to 125 °C range of military-grade
+/// integrated circuits (common practice), the widest a logic design is usually specified over.
+/// The card's parameters are taken as temperature independent (constant mobility, fixed band
+/// gap, fully ionised dopants) and the material library holds room-temperature values, so
+/// cards outside this range build but draw a plausibility warning.
+pub const TEMPERATURE_RANGE_K: (f64, f64) = (218.15, 398.15);
+
+/// The highest temperature (K) a card may have: a numeric guard above the melting point of
+/// every solid (all below 4,300 K, recalled, not checked).
+const MAX_TEMPERATURE_K: f64 = 1e4;
+
+/// A number for an error message: plain between 0.001 and 1e5, otherwise in exponent form.
+fn show(v: f64) -> String {
+    if v == 0.0 || (v.abs() >= 1e-3 && v.abs() < 1e5) {
+        format!("{v}")
     } else {
-        Err(format!("`{name}` must be positive, found {v}"))
+        format!("{v:e}")
     }
 }
 
-fn non_negative(name: &str, v: f64) -> Result<(), String> {
-    if v.is_finite() && v >= 0.0 {
+/// A unit after a number, with its space, or nothing for a pure number.
+fn unit_suffix(unit: &str) -> String {
+    if unit.is_empty() {
+        String::new()
+    } else {
+        format!(" {unit}")
+    }
+}
+
+/// `lo <= v <= hi` (false for NaN).
+fn in_range(name: &str, v: f64, lo: f64, hi: f64, unit: &str) -> Result<(), String> {
+    if v >= lo && v <= hi {
         Ok(())
     } else {
-        Err(format!("`{name}` must not be negative, found {v}"))
+        Err(format!(
+            "`{name}` must lie in [{}, {}]{}, found {}",
+            show(lo),
+            show(hi),
+            unit_suffix(unit),
+            show(v)
+        ))
+    }
+}
+
+/// `0 < v <= hi` (false for NaN).
+fn above_zero(name: &str, v: f64, hi: f64, unit: &str) -> Result<(), String> {
+    if v > 0.0 && v <= hi {
+        Ok(())
+    } else {
+        Err(format!(
+            "`{name}` must lie in (0, {}]{}, found {}",
+            show(hi),
+            unit_suffix(unit),
+            show(v)
+        ))
+    }
+}
+
+/// `v == 0` or `lo <= v <= hi`: for resistances, where 0 means none and a tiny positive value
+/// would be an infinite conductance.
+fn zero_or_in_range(name: &str, v: f64, lo: f64, hi: f64, unit: &str) -> Result<(), String> {
+    if v == 0.0 || (v >= lo && v <= hi) {
+        Ok(())
+    } else {
+        Err(format!(
+            "`{name}` must be 0 (none) or lie in [{}, {}]{}, found {}",
+            show(lo),
+            show(hi),
+            unit_suffix(unit),
+            show(v)
+        ))
     }
 }
 
 impl SheetFetCard {
     /// Checks every parameter's range.
+    ///
+    /// The accepted ranges are numeric guards, set orders of magnitude beyond any material so
+    /// that every intermediate of the stack solve stays finite; whether a value is physically
+    /// plausible is [`crate::warnings::plausibility`]'s question. The guards (card units):
+    ///
+    /// | field | accepted |
+    /// |---|---|
+    /// | insulator permittivity | [1, 1e5] (no static permittivity is below vacuum's) |
+    /// | insulator thickness | [1e-12, 1e-2] m |
+    /// | insulator breakdown field | none, or (0, 1e12] V/m |
+    /// | masses (electron, hole, second valley) | [1e-4, 1e4] electron masses |
+    /// | degeneracies (channel, valley, gate) | [1e-3, 1e3] |
+    /// | band gap | (0, 20] eV |
+    /// | electron affinity, trap level, work functions | [-20, 20] eV |
+    /// | second valley offset, gate half gap | [0, 20] eV |
+    /// | donor, acceptor densities | [0, 1e21] 1/m² |
+    /// | fixed charge, gate residual density | [-1e21, 1e21] 1/m² |
+    /// | trap density | [0, 1e22] 1/(eV m²) |
+    /// | temperature | [[`MIN_TEMPERATURE_K`], 1e4] K |
+    /// | width, length | [1e-12, 1] m |
+    /// | mobilities | [1e-12, 1e3] m²/(V s) |
+    /// | saturation velocity | [0, 3e8] m/s (no faster than light) |
+    /// | saturation exponent | [1, 10] |
+    /// | contact resistances | 0, or [1e-12, 1e6] Ω m |
+    /// | overlap capacitance | [0, 1] F/m |
+    /// | gate Fermi velocity | [1e3, 3e8] m/s |
+    /// | gate gap shift | [-1, 1] |
+    ///
+    /// A card inside every range can still combine into a stack the tables cannot hold (a
+    /// flat-band point a million volts away, a Dirac gate that cannot carry the gate charge);
+    /// [`SheetModel::build`] reports those.
     pub fn validate(&self) -> Result<(), String> {
         if self.insulator.is_empty() {
             return Err("the gate stack needs at least one insulator layer".into());
         }
         for l in &self.insulator {
-            positive("insulator permittivity", l.permittivity)?;
-            positive("insulator thickness", l.thickness)?;
+            in_range("insulator permittivity", l.permittivity, 1.0, 1e5, "")?;
+            in_range("insulator thickness", l.thickness, 1e-12, 1e-2, "m")?;
+            if let Some(f) = l.breakdown_field {
+                above_zero("insulator breakdown field", f, 1e12, "V/m")?;
+            }
         }
+        if self.temperature > 0.0 && self.temperature < MIN_TEMPERATURE_K {
+            return Err(format!(
+                "`temperature` of {} K is a temperature below the model's floor of {} K \
+                 (accepted: [{}, {}] K)",
+                show(self.temperature),
+                show(MIN_TEMPERATURE_K),
+                show(MIN_TEMPERATURE_K),
+                show(MAX_TEMPERATURE_K)
+            ));
+        }
+        in_range(
+            "temperature",
+            self.temperature,
+            MIN_TEMPERATURE_K,
+            MAX_TEMPERATURE_K,
+            "K",
+        )?;
         for (n, v) in [
             ("electron_mass", self.electron_mass),
             ("hole_mass", self.hole_mass),
+        ] {
+            in_range(n, v, 1e-4, 1e4, "electron masses")?;
+        }
+        for (n, v) in [
             ("electron_degeneracy", self.electron_degeneracy),
             ("hole_degeneracy", self.hole_degeneracy),
-            ("band_gap", self.band_gap),
-            ("temperature", self.temperature),
-            ("width", self.width),
-            ("length", self.length),
-            ("electron_mobility", self.electron_mobility),
-            ("hole_mobility", self.hole_mobility),
-            ("saturation_exponent", self.saturation_exponent),
         ] {
-            positive(n, v)?;
+            in_range(n, v, 1e-3, 1e3, "")?;
+        }
+        above_zero("band_gap", self.band_gap, 20.0, "eV")?;
+        for (n, v) in [
+            ("electron_affinity", self.electron_affinity),
+            ("trap_neutral_level", self.trap_neutral_level),
+        ] {
+            in_range(n, v, -20.0, 20.0, "eV")?;
         }
         for (n, v) in [
             ("donor_density", self.donor_density),
             ("acceptor_density", self.acceptor_density),
-            ("trap_density", self.trap_density),
-            ("saturation_velocity", self.saturation_velocity),
-            ("source_resistance", self.source_resistance),
-            ("drain_resistance", self.drain_resistance),
-            ("overlap_capacitance", self.overlap_capacitance),
         ] {
-            non_negative(n, v)?;
+            in_range(n, v, 0.0, 1e21, "1/m²")?;
+        }
+        in_range(
+            "fixed_charge_density",
+            self.fixed_charge_density,
+            -1e21,
+            1e21,
+            "1/m²",
+        )?;
+        in_range("trap_density", self.trap_density, 0.0, 1e22, "1/(eV m²)")?;
+        for (n, v) in [("width", self.width), ("length", self.length)] {
+            in_range(n, v, 1e-12, 1.0, "m")?;
         }
         for (n, v) in [
-            ("electron_affinity", self.electron_affinity),
-            ("trap_neutral_level", self.trap_neutral_level),
-            ("fixed_charge_density", self.fixed_charge_density),
+            ("electron_mobility", self.electron_mobility),
+            ("hole_mobility", self.hole_mobility),
         ] {
-            if !v.is_finite() {
-                return Err(format!("`{n}` must be finite"));
-            }
+            in_range(n, v, 1e-12, 1e3, "m²/(V s)")?;
         }
-        if self.saturation_exponent < 1.0 {
-            return Err("`saturation_exponent` must be at least 1".into());
+        in_range(
+            "saturation_velocity",
+            self.saturation_velocity,
+            0.0,
+            3e8,
+            "m/s",
+        )?;
+        in_range(
+            "saturation_exponent",
+            self.saturation_exponent,
+            1.0,
+            10.0,
+            "",
+        )?;
+        for (n, v) in [
+            ("source_resistance", self.source_resistance),
+            ("drain_resistance", self.drain_resistance),
+        ] {
+            zero_or_in_range(n, v, 1e-12, 1e6, "Ω m")?;
         }
+        in_range(
+            "overlap_capacitance",
+            self.overlap_capacitance,
+            0.0,
+            1.0,
+            "F/m",
+        )?;
         if let Some(v) = &self.second_valley {
-            positive("second valley mass", v.mass)?;
-            positive("second valley degeneracy", v.degeneracy)?;
-            non_negative("second valley offset", v.offset)?;
+            in_range("second valley mass", v.mass, 1e-4, 1e4, "electron masses")?;
+            in_range("second valley degeneracy", v.degeneracy, 1e-3, 1e3, "")?;
+            in_range("second valley offset", v.offset, 0.0, 20.0, "eV")?;
         }
-        if let Gate::Dirac {
-            fermi_velocity,
-            half_gap,
-            gap_shift,
-            degeneracy,
-            neutral_work_function,
-            residual_density,
-        } = &self.gate
-        {
-            positive("gate fermi_velocity", *fermi_velocity)?;
-            non_negative("gate half_gap", *half_gap)?;
-            positive("gate degeneracy", *degeneracy)?;
-            if gap_shift.is_nan() || gap_shift.abs() > 1.0 {
-                return Err("`gate gap_shift` must lie between -1 and 1".into());
+        match &self.gate {
+            Gate::Metal { work_function } => {
+                in_range("gate work_function", *work_function, -20.0, 20.0, "eV")?;
             }
-            if !neutral_work_function.is_finite() || !residual_density.is_finite() {
-                return Err("gate work function and residual density must be finite".into());
+            Gate::Dirac {
+                fermi_velocity,
+                half_gap,
+                gap_shift,
+                degeneracy,
+                neutral_work_function,
+                residual_density,
+            } => {
+                in_range("gate fermi_velocity", *fermi_velocity, 1e3, 3e8, "m/s")?;
+                in_range("gate half_gap", *half_gap, 0.0, 20.0, "eV")?;
+                in_range("gate gap_shift", *gap_shift, -1.0, 1.0, "")?;
+                in_range("gate degeneracy", *degeneracy, 1e-3, 1e3, "")?;
+                in_range(
+                    "gate neutral_work_function",
+                    *neutral_work_function,
+                    -20.0,
+                    20.0,
+                    "eV",
+                )?;
+                in_range(
+                    "gate residual_density",
+                    *residual_density,
+                    -1e21,
+                    1e21,
+                    "1/m²",
+                )?;
             }
         }
         Ok(())
@@ -313,6 +493,14 @@ impl SheetFetCard {
             source_resistance: 0.0,
             drain_resistance: 0.0,
             overlap_capacitance: 0.0,
+            insulator: self
+                .insulator
+                .iter()
+                .map(|l| Layer {
+                    breakdown_field: None,
+                    ..*l
+                })
+                .collect(),
             ..self.clone()
         }
     }
@@ -412,8 +600,11 @@ impl Stack {
         }
     }
 
-    /// Everything at degeneracy `xi`; `mu_guess` warm-starts the Dirac gate's solve.
-    fn at_xi(&self, xi: f64, mu_guess: &mut f64) -> LocalState {
+    /// Everything at degeneracy `xi`, and whether the gate's charge balance was met (always
+    /// for a metal gate; a Dirac gate may be unable to hold the charge within its bracket).
+    /// `mu_guess` warm-starts the Dirac gate's solve; `work` counts the evaluations.
+    fn at_xi(&self, xi: f64, mu_guess: &mut f64, work: &mut usize) -> (LocalState, bool) {
+        *work += 1;
         let e = Q * xi;
         let (mut n, mut dn) = parabolic_density(self.dos_e, self.kt, e);
         if let Some((dos, off)) = self.valley {
@@ -429,15 +620,16 @@ impl Stack {
         let drho = Q * (dp_dxi - dn_dxi) - self.trap_c;
         let qg = -(rho + self.q_const);
         let cq_ch = Q * (dn_dxi - dp_dxi);
-        let (u, du, cq_g) = match self.dirac {
+        let (u, du, cq_g, gate_ok) = match self.dirac {
             None => (
                 xi + self.offset + qg / self.c_ins,
                 1.0 - drho / self.c_ins,
                 f64::INFINITY,
+                true,
             ),
             Some((pre, delta, shift, n_res)) => {
                 let target = n_res - qg / Q;
-                let mu = solve_dirac(pre, self.kt, delta, shift, target, mu_guess);
+                let (mu, ok) = solve_dirac(pre, self.kt, delta, shift, target, mu_guess, work);
                 let (_, dnet) = dirac_net_density(pre, self.kt, delta, mu - shift);
                 let cq = Q * Q * dnet;
                 // dμ_g/dξ (volts per volt) = (dρ/dξ) / (q² dn_net/dμ).
@@ -446,12 +638,13 @@ impl Stack {
                     xi + self.offset - mu / Q + qg / self.c_ins,
                     1.0 - dmu - drho / self.c_ins,
                     cq,
+                    ok,
                 )
             }
         };
         let sigma = Q * (self.mu_n * n + self.mu_p * p);
         let dsigma_dxi = Q * (self.mu_n * dn_dxi + self.mu_p * dp_dxi);
-        LocalState {
+        let state = LocalState {
             u,
             xi,
             n,
@@ -464,55 +657,102 @@ impl Stack {
             du_dxi: du,
             dsigma_du: dsigma_dxi / du,
             drho_du: drho / du,
-        }
+        };
+        (state, gate_ok)
     }
 
-    /// The state at `u`, solving `u(ξ) = u` by Newton with a bracket (`u` increases with `ξ`
-    /// at a rate of at least 1). `xi_guess` and `mu_guess` warm-start the solve.
-    fn at_u(&self, u: f64, xi_guess: &mut f64, mu_guess: &mut f64) -> LocalState {
+    /// The state at `u`, solving `u(ξ) = u` by safeguarded Newton, and whether the solve
+    /// converged with the gate's charge balance met. Because `du/dξ >= 1`, one evaluation
+    /// with residual `f` puts the root between `ξ` and `ξ - f`, so a finite bracket exists
+    /// from the first step; a Newton step that leaves it or fails to halve `|f|` is replaced
+    /// by bisection. Converged when `|f| <= 1e-13 (1 + |u|)` or the bracket is down to a few
+    /// rounding units of `ξ`; at most [`MAX_ITERATIONS`] steps, and a non-finite state ends
+    /// the solve unconverged. `xi_guess` and `mu_guess` warm-start the solve; `work` counts
+    /// evaluations.
+    fn at_u(
+        &self,
+        u: f64,
+        xi_guess: &mut f64,
+        mu_guess: &mut f64,
+        work: &mut usize,
+    ) -> (LocalState, bool) {
         let (mut lo, mut hi) = (f64::NEG_INFINITY, f64::INFINITY);
-        let mut xi = *xi_guess;
-        for _ in 0..200 {
-            let s = self.at_xi(xi, mu_guess);
+        let mut xi = if xi_guess.is_finite() { *xi_guess } else { 0.0 };
+        let mut last_f = f64::INFINITY;
+        let mut iterations = 0;
+        loop {
+            let (s, gate_ok) = self.at_xi(xi, mu_guess, work);
+            *xi_guess = xi;
             let f = s.u - u;
+            if !(f.is_finite() && s.du_dxi.is_finite()) {
+                return (s, false);
+            }
             if f.abs() <= 1e-13 * (1.0 + u.abs()) {
-                *xi_guess = xi;
-                return s;
+                return (s, gate_ok);
             }
             if f > 0.0 {
                 hi = hi.min(xi);
+                lo = lo.max(xi - f);
             } else {
                 lo = lo.max(xi);
+                hi = hi.min(xi - f);
             }
-            let mut next = xi - f / s.du_dxi;
-            // du/dξ >= 1 bounds the distance to the root by |f|.
-            next = next.clamp(xi - f.abs(), xi + f.abs());
-            if !(next > lo && next < hi) {
-                next = if lo.is_finite() && hi.is_finite() {
-                    0.5 * (lo + hi)
-                } else {
-                    xi - f.signum() * f.abs().min(1.0)
-                };
+            // Both ends are finite here, because f is.
+            if hi - lo <= 4.0 * f64::EPSILON * (1.0 + xi.abs()) {
+                return (s, gate_ok);
             }
+            iterations += 1;
+            if iterations >= MAX_ITERATIONS {
+                return (s, false);
+            }
+            let newton = xi - f / s.du_dxi;
+            let next = if f.abs() <= 0.5 * last_f && newton >= lo && newton <= hi && newton != xi {
+                newton
+            } else {
+                0.5 * (lo + hi)
+            };
+            last_f = f.abs();
             if next == xi {
-                *xi_guess = xi;
-                return s;
+                return (s, gate_ok);
             }
             xi = next;
         }
-        *xi_guess = xi;
-        self.at_xi(xi, mu_guess)
     }
 }
 
-/// Solves `n(μ - shift) - p(μ - shift) = target` for the Dirac gate's chemical potential (J).
-fn solve_dirac(pre: f64, kt: f64, delta: f64, shift: f64, target: f64, guess: &mut f64) -> f64 {
-    let (mut lo, mut hi) = (-20.0 * Q, 20.0 * Q);
-    let mut mu = guess.clamp(lo, hi);
-    for _ in 0..200 {
+/// Iteration cap of every Newton or bisection loop of the local solves.
+const MAX_ITERATIONS: usize = 200;
+/// Bracket of the Dirac gate's chemical potential around its neutral point (J): ±20 eV.
+const DIRAC_MU_LIMIT: f64 = 20.0 * Q;
+
+/// Solves `n(μ - shift) - p(μ - shift) = target` for the Dirac gate's chemical potential (J)
+/// within ±[`DIRAC_MU_LIMIT`], by Newton with bisection in at most [`MAX_ITERATIONS`] steps.
+/// The flag says whether it converged to a root inside the bracket.
+fn solve_dirac(
+    pre: f64,
+    kt: f64,
+    delta: f64,
+    shift: f64,
+    target: f64,
+    guess: &mut f64,
+    work: &mut usize,
+) -> (f64, bool) {
+    let (mut lo, mut hi) = (-DIRAC_MU_LIMIT, DIRAC_MU_LIMIT);
+    let mut mu = if guess.is_finite() {
+        guess.clamp(lo, hi)
+    } else {
+        0.0
+    };
+    let mut ok = false;
+    for _ in 0..MAX_ITERATIONS {
+        *work += 1;
         let (net, d) = dirac_net_density(pre, kt, delta, mu - shift);
         let f = net - target;
+        if !f.is_finite() {
+            break;
+        }
         if f.abs() <= 1e-12 * (target.abs() + pre * kt * kt) {
+            ok = true;
             break;
         }
         if f > 0.0 {
@@ -526,12 +766,15 @@ fn solve_dirac(pre: f64, kt: f64, delta: f64, shift: f64, target: f64, guess: &m
         }
         if (next - mu).abs() <= 1e-15 * Q {
             mu = next;
+            // Converged to the resolution of μ, unless pinned at the bracket's edge (the
+            // gate cannot hold the charge).
+            ok = mu.abs() < 0.99 * DIRAC_MU_LIMIT;
             break;
         }
         mu = next;
     }
     *guess = mu;
-    mu
+    (mu, ok)
 }
 
 /// Caughey-Thomas drift velocity `μ E / [1 + (μ E / v_sat)^β]^(1/β)` (Caughey and Thomas 1967).
@@ -672,6 +915,21 @@ impl Tables {
     }
 }
 
+/// Grid spacing (V) and number of points for thermal voltage `vt`: `V_T / 10` over the 16 V
+/// range, coarsened to the range over `MAX_TABLE_POINTS - 1` intervals where that would need
+/// more points.
+fn grid(vt: f64) -> (f64, usize) {
+    let span = 2.0 * U_HALF_RANGE;
+    let fine = vt / POINTS_PER_VT;
+    // A NaN or infinite count fails the comparison and takes the capped grid.
+    let wanted = (span / fine).ceil();
+    if wanted >= 1.0 && wanted < (MAX_TABLE_POINTS - 1) as f64 {
+        (fine, wanted as usize + 1)
+    } else {
+        (span / (MAX_TABLE_POINTS - 1) as f64, MAX_TABLE_POINTS)
+    }
+}
+
 /// A gate stack's tables, shared by every device of the same stack.
 #[derive(Debug)]
 pub struct SheetModel {
@@ -683,25 +941,79 @@ pub struct SheetModel {
 const POINTS_PER_VT: f64 = 10.0;
 /// Half-width of the tabulated `u` range around the flat-band point (V).
 const U_HALF_RANGE: f64 = 8.0;
+/// The most grid points one model tabulates: 2^16 intervals over the 16 V range (0.244 mV
+/// spacing). Each point holds seven `f64` values, so one model's tables stay within
+/// 65,537 × 7 × 8 bytes = 3.7 MB. At `V_T / 10` spacing the cap is reached at about 28 K.
+pub const MAX_TABLE_POINTS: usize = 65_537;
+/// How far (V) the flat-band point may lie from zero gate drive: beyond it the grid spacing
+/// would drown in the rounding of `u` itself.
+const MAX_CENTRE: f64 = 1e6;
+/// Budget of local evaluations per grid point, on average, for the whole build (a bound on
+/// the build time whatever the card). A warm-started solve takes a handful.
+const WORK_PER_POINT: usize = 64;
 
 impl SheetModel {
     /// Solves the stack on its grid and integrates the tables.
+    ///
+    /// Fails, with a message, for a card that [`SheetFetCard::validate`] refuses and for a
+    /// valid card whose stack the tables cannot hold: a flat-band point beyond ±1e6 V, a local
+    /// solve that does not converge (a Dirac gate that cannot carry the gate charge within
+    /// ±20 eV of its neutral point), a non-finite value, or more than 64 local evaluations per
+    /// grid point on average. The tables never exceed [`MAX_TABLE_POINTS`] points.
     pub fn build(card: &SheetFetCard) -> Result<SheetModel, String> {
         card.validate()?;
         let stack = Stack::new(card);
         let mut mu_guess = 0.0;
+        let mut work = 0;
         // Centre the grid on the state with the channel Fermi level at midgap.
-        let centre = stack.at_xi(-0.5 * card.band_gap, &mut mu_guess).u;
-        let h = stack.vt / POINTS_PER_VT;
-        let n = (2.0 * U_HALF_RANGE / h).ceil() as usize + 1;
+        let (mid, gate_ok) = stack.at_xi(-0.5 * card.band_gap, &mut mu_guess, &mut work);
+        let centre = mid.u;
+        if !gate_ok || !centre.is_finite() || centre.abs() > MAX_CENTRE {
+            return Err(format!(
+                "the channel is at midgap at a gate drive of {} V, outside the ±{} V the \
+                 tables can hold{}: check the work functions, the dopant, fixed and residual \
+                 charge densities and the insulator",
+                show(centre),
+                show(MAX_CENTRE),
+                if gate_ok {
+                    ""
+                } else {
+                    " (the Dirac gate cannot hold the charge there)"
+                }
+            ));
+        }
+        let (h, n) = grid(stack.vt);
         let u0 = centre - U_HALF_RANGE;
         let mut sigma = Vec::with_capacity(n);
         let mut dsigma = Vec::with_capacity(n);
         let mut rho = Vec::with_capacity(n);
         let mut drho = Vec::with_capacity(n);
         let mut xi = -0.5 * card.band_gap - U_HALF_RANGE;
+        let budget = WORK_PER_POINT * n;
         for k in 0..n {
-            let st = stack.at_u(u0 + k as f64 * h, &mut xi, &mut mu_guess);
+            let u = u0 + k as f64 * h;
+            let (st, ok) = stack.at_u(u, &mut xi, &mut mu_guess, &mut work);
+            let finite = [st.sigma, st.dsigma_du, st.rho, st.drho_du]
+                .iter()
+                .all(|v| v.is_finite());
+            if !ok || !finite {
+                return Err(format!(
+                    "the gate stack has no solution the tables can hold at {} V from \
+                     flat band{}: check the insulator, masses, densities and the gate",
+                    show(u - centre),
+                    if stack.dirac.is_some() {
+                        " (or the Dirac gate cannot carry the gate charge within ±20 eV)"
+                    } else {
+                        ""
+                    }
+                ));
+            }
+            if work > budget {
+                return Err(format!(
+                    "the gate-stack solve needed more than {WORK_PER_POINT} evaluations per \
+                     grid point: the card's parameters make the stack too stiff to tabulate"
+                ));
+            }
             sigma.push(st.sigma);
             dsigma.push(st.dsigma_du);
             rho.push(st.rho);
@@ -739,6 +1051,13 @@ impl SheetModel {
                 sigma[k] * ra(k) + s[k] * dra(k),
             );
             b[k - 1] = b[k] - step(f0, d0, f1, d1);
+        }
+        if !s.iter().chain(&a).chain(&b).all(|v| v.is_finite()) {
+            return Err(
+                "the tabulated integrals of the channel conductance and charge overflow: check \
+                 the mobilities, masses and degeneracies"
+                    .into(),
+            );
         }
         Ok(SheetModel {
             stack,
@@ -778,11 +1097,17 @@ impl SheetModel {
         Ok(model)
     }
 
-    /// The exact local state at `u` (a direct solve, not the tables).
+    /// The exact local state at `u` (a direct solve, not the tables; at most 200 Newton or
+    /// bisection steps, the last iterate if they do not converge).
     pub fn local_state(&self, u: f64) -> LocalState {
         let mut xi = 0.0;
         let mut mu = 0.0;
-        self.stack.at_u(u, &mut xi, &mut mu)
+        self.stack.at_u(u, &mut xi, &mut mu, &mut 0).0
+    }
+
+    /// The number of grid points of the tables, at most [`MAX_TABLE_POINTS`].
+    pub fn table_points(&self) -> usize {
+        self.tables.s.len()
     }
 
     /// Tabulated `S(u) = ∫ σ du` (A) and `σ(u)`, for checks against direct computation.

@@ -14,6 +14,7 @@ fn device_a() -> SheetFetCard {
         insulator: vec![Layer {
             permittivity: 3.4,
             thickness: 5e-9,
+            breakdown_field: None,
         }],
         electron_mass: 0.5,
         electron_degeneracy: 4.0,
@@ -271,6 +272,7 @@ fn table_interpolation_error_is_bounded() {
             insulator: vec![Layer {
                 permittivity: 3.4,
                 thickness: 2e-9,
+                breakdown_field: None,
             }],
             ..device_a()
         },

@@ -558,6 +558,7 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, BuildError> {
                 (Some(permittivity), Some(thickness)) => Some(Layer {
                     permittivity,
                     thickness,
+                    breakdown_field: None,
                 }),
                 (None, None) if v.get(p, count).is_none() => None,
                 _ => {
