@@ -13,6 +13,7 @@ fn card() -> SheetFetCard {
         insulator: vec![Layer {
             permittivity: 3.4,
             thickness: 5e-9,
+            breakdown_field: None,
         }],
         saturation_velocity: 3.4e4,
         ..SheetFetCard::default()

@@ -1275,6 +1275,18 @@ impl SheetFet {
             qch = mrs / msig * wl;
             qd = mqd / (msig * msig) * wl;
         }
+        let finite = |x: &D3| x.v.is_finite() && x.d.iter().all(|d| d.is_finite());
+        let (qch, qd) = if finite(&qch) && finite(&qd) {
+            (qch, qd)
+        } else {
+            // The conductance underflowed along the whole channel (a cold device that is off),
+            // so the σ-weighted partition is 0/0. Its limit for a uniform channel: the charge at
+            // the mid-channel potential, shared equally (q_d = q_ch / 2).
+            let um = (us + ud) * 0.5;
+            let (r, dr) = t.rho(um.v);
+            let q = um.chain(r, dr) * wl;
+            (q, q * 0.5)
+        };
         let mut current = ds * (self.width / self.length);
         if self.critical_field.is_finite() {
             current = current * self.saturation_factor(us, ud, ds);

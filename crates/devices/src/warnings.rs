@@ -47,9 +47,27 @@ impl fmt::Display for Implausible {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         write!(
             f,
-            "`{}` = {:.4} {} lies outside {:.4} to {:.4} {}: {}",
-            self.parameter, self.value, self.unit, self.low, self.high, self.unit, self.why
+            "`{}` = {} {} lies outside {} to {} {}: {}",
+            self.parameter,
+            short(self.value),
+            self.unit,
+            short(self.low),
+            short(self.high),
+            self.unit,
+            self.why
         )
+    }
+}
+
+/// Four significant digits, in plain notation between 1e-3 and 1e5 and in exponent
+/// notation elsewhere.
+fn short(x: f64) -> String {
+    if x == 0.0 || (1e-3..1e5).contains(&x.abs()) {
+        let s = format!("{x:.4}");
+        let s = s.trim_end_matches('0').trim_end_matches('.');
+        s.to_string()
+    } else {
+        format!("{x:.3e}")
     }
 }
 

@@ -531,3 +531,26 @@ fn insulator_fields_divide_as_series_capacitors() {
     assert!((3.9 * e1 / (25.0 * e2) - 1.0).abs() < 1e-12);
     assert!(((e1 * 1e-9 + e2 * 1e-8) / 10.0 - 1.0).abs() < 1e-12);
 }
+
+/// Cold and off, the channel conductance underflows to zero everywhere; the charges fall back
+/// to the uniform channel's (q_d = q_ch / 2) instead of 0/0. Checked at 4 K and 1.8 eV, where
+/// exp(-E_g / 2kT) is far below the smallest double.
+#[test]
+fn cold_off_devices_have_finite_charges() {
+    let fet = SheetFet::new(&SheetFetCard {
+        temperature: 4.0,
+        ..SheetFetCard::default()
+    })
+    .unwrap();
+    for (vd, vg) in [(0.5, 0.0), (1e-9, 0.0), (0.5, -0.3), (0.0, 0.0)] {
+        let i = fet.intrinsic(vd, vg, 0.0);
+        for q in [i.q_gate, i.q_drain, i.q_source] {
+            assert!(
+                q.v.is_finite() && q.d.iter().all(|d| d.is_finite()),
+                "vd {vd}, vg {vg}: {i:?}"
+            );
+        }
+        let total = i.q_gate.v + i.q_drain.v + i.q_source.v;
+        assert!(total.abs() <= 1e-9 * i.q_gate.v.abs().max(1e-30), "{i:?}");
+    }
+}

@@ -42,6 +42,9 @@ pub enum ErrorKind {
     Io,
     /// Nesting, repetition or size beyond the language's limits.
     Limit,
+    /// A value the model accepts but that lies far outside what its physics covers (a
+    /// warning).
+    Implausible,
 }
 
 /// One finding, with where it is and what to change.

@@ -79,7 +79,13 @@ fn load_checked(text: &str, what: &str) -> bool {
     match result {
         Ok(_) => true,
         Err(f) => {
-            assert!(!f.diagnostics.is_empty(), "{what}: refused without a reason");
+            assert!(
+                !f.diagnostics.is_empty(),
+                "{what}: refused without a reason"
+            );
+            if std::env::var_os("LAMINA_FUZZ_DEBUG").is_some() {
+                eprintln!("{what}: {}", f.diagnostics[0].message);
+            }
             for d in &f.diagnostics {
                 assert!(d.span.file < f.sources.len(), "{what}: unlocated {d:?}");
                 let len = f.sources.text(d.span.file).len();
@@ -163,11 +169,23 @@ fn extreme_values_of_every_parameter_never_panic() {
                     && matches!(spec.name, "k" | "threshold")
                 {
                     text.replacen(
-                        &format!("{} = {}", spec.name, if spec.name == "k" { "1 mA/V^2" } else { "0.3 V" }),
+                        &format!(
+                            "{} = {}",
+                            spec.name,
+                            if spec.name == "k" {
+                                "1 mA/V^2"
+                            } else {
+                                "0.3 V"
+                            }
+                        ),
                         &format!("{} = {value}", spec.name),
                         1,
                     )
-                    .replacen(&format!(", {} = {value} }}", spec.name), " }", 1)
+                    .replacen(
+                        &format!(", {} = {value} }}", spec.name),
+                        " }",
+                        1,
+                    )
                 } else {
                     text
                 };
@@ -180,22 +198,47 @@ fn extreme_values_of_every_parameter_never_panic() {
         }
     }
     // Both outcomes occur: the test would be empty if everything were refused.
-    assert!(loaded > 50 && refused > 50, "{loaded} loaded, {refused} refused");
+    assert!(
+        loaded > 50 && refused > 50,
+        "{loaded} loaded, {refused} refused"
+    );
 }
 
-const NODES: &[&str] = &["a", "b", "out", "vdd", "ground", "mid", "n[1]", "out[i]"];
+const NODES: &[&str] = &["a", "b", "out", "vdd", "ground", "mid", "n[1]", "a", "b"];
 const UNITS: &[&str] = &[
-    "V", "mV", "A", "uA", "nm", "um", "fF", "pF", "kOhm", "ps", "ns", "GHz", "K", "eV",
-    "cm^2/(V s)", "/cm^2", "Ohm um", "uA/V^2", "", "Vs", "fFF", "m",
+    "V",
+    "mV",
+    "A",
+    "uA",
+    "nm",
+    "um",
+    "fF",
+    "pF",
+    "kOhm",
+    "ps",
+    "ns",
+    "GHz",
+    "K",
+    "eV",
+    "cm^2/(V s)",
+    "/cm^2",
+    "Ohm um",
+    "uA/V^2",
+    "",
+    "Vs",
+    "fFF",
+    "m",
 ];
 
+/// A value in `unit`, mostly valid: now and then a wrong or missing unit, an extreme or a
+/// negative number.
 fn quantity(r: &mut Rng, unit: &str) -> String {
-    let unit = if r.chance(12) { r.pick(UNITS) } else { unit };
-    let n = match r.below(10) {
+    let unit = if r.chance(4) { r.pick(UNITS) } else { unit };
+    let n = match r.below(40) {
         0 => "0".to_string(),
         1 => format!("1e{}", r.below(700) as i32 - 350),
         2 => format!("-{}", 1 + r.below(50)),
-        _ => format!("{}.{}", r.below(20), r.below(100)),
+        _ => format!("{}.{}", 1 + r.below(20), r.below(100)),
     };
     format!("{n} {unit}").trim_end().to_string()
 }
@@ -204,31 +247,39 @@ fn statement(r: &mut Rng, params: &mut Vec<String>, cells: &mut Vec<String>) -> 
     match r.below(11) {
         0 => {
             let name = format!("p{}", params.len());
-            let e = match (r.below(4), params.last()) {
+            let name = if r.chance(3) { "p0".to_string() } else { name };
+            let e = match (r.below(4), params.iter().rev().find(|p| !p.is_empty())) {
                 (0, Some(p)) => format!("{p} * 2"),
                 (1, Some(p)) => format!("sqrt({p} * {p}) + {}", quantity(r, "V")),
-                _ => quantity(r, r.pick(&["V", "nm", "fF", "", "K"])),
+                _ => {
+                    let unit = r.pick(&["V", "nm", "fF", "", "K"]);
+                    quantity(r, unit)
+                }
             };
             params.push(name.clone());
             format!("param {name} = {e}")
         }
         1 => format!(
             "device nf{} : square_nfet {{ k = {}, threshold = {} }}",
-            r.below(3),
+            {
+                params.push(String::new());
+                params.len()
+            },
             quantity(r, "uA/V^2"),
             quantity(r, "V")
         ),
         2 => {
             let mut s = format!(
                 "device sf{} : sheet_fet {{ channel = {}, insulator = {}, gate = {}",
-                r.below(3),
-                r.pick(&["MoS2", "WSe2", "mos2", "Unobtainium", "WS2"]),
-                r.pick(&["hBN", "SiO2", "HfO2", "hbn"]),
-                r.pick(&["Au", "graphene", "Ti", "Graphene"])
+                {
+                    params.push(String::new());
+                    params.len()
+                },
+                r.pick(&["MoS2", "WSe2", "MoS2", "WS2", "MoSe2", "MoS2", "WSe2", "mos2"]),
+                r.pick(&["hBN", "hBN", "hBN", "hbn"]),
+                r.pick(&["Au", "graphene", "Ti", "Au", "Pd", "Pt", "Ni", "Graphene"])
             );
-            if r.chance(70) {
-                s.push_str(&format!(", insulator_layers = {}", r.below(40)));
-            }
+            s.push_str(&format!(", insulator_layers = {}", r.below(40)));
             for (key, unit) in [
                 ("insulator_thickness", "nm"),
                 ("temperature", "K"),
@@ -240,7 +291,11 @@ fn statement(r: &mut Rng, params: &mut Vec<String>, cells: &mut Vec<String>) -> 
                 ("gate_half_gap", "eV"),
                 ("source_resistance", "Ohm um"),
             ] {
-                if r.chance(15) {
+                if r.chance(if key == "insulator_thickness" || key == "gate_half_gap" {
+                    3
+                } else {
+                    15
+                }) {
                     s.push_str(&format!(", {key} = {}", quantity(r, unit)));
                 }
             }
@@ -249,20 +304,20 @@ fn statement(r: &mut Rng, params: &mut Vec<String>, cells: &mut Vec<String>) -> 
         }
         3 => format!(
             "resistor r{} (a = {}, b = {}) {{ resistance = {} }}",
-            r.below(50),
+            r.below(1000),
             r.pick(NODES),
             r.pick(NODES),
             quantity(r, "kOhm")
         ),
         4 => format!(
             "capacitor c{} (a = {}, b = ground) {{ capacitance = {} }}",
-            r.below(50),
+            r.below(1000),
             r.pick(NODES),
             quantity(r, "fF")
         ),
         5 => format!(
             "voltage_source v{} (pos = {}, neg = ground) {{ {} }}",
-            r.below(10),
+            1 + r.below(1000),
             r.pick(NODES),
             if r.chance(50) {
                 format!("dc = {}", quantity(r, "V"))
@@ -277,8 +332,8 @@ fn statement(r: &mut Rng, params: &mut Vec<String>, cells: &mut Vec<String>) -> 
         ),
         6 => format!(
             "{} m{} (drain = {}, gate = {}, source = {})",
-            r.pick(&["nf0", "nf1", "sf0", "sf1", "square_nfet"]),
-            r.below(20),
+            r.pick(&["nf0", "nf0", "sf0", "nf0", "sf0", "nf0", "nf1", "sf1"]),
+            r.below(1000),
             r.pick(NODES),
             r.pick(NODES),
             r.pick(NODES)
@@ -308,16 +363,16 @@ fn statement(r: &mut Rng, params: &mut Vec<String>, cells: &mut Vec<String>) -> 
         _ => match r.below(4) {
             0 => format!(
                 "analysis transfer {{ source = {}, output = {}, from = {}, to = {}, step = {} }}",
-                r.pick(&["v0", "v1", "r1", "nothing"]),
+                r.pick(&["v0", "v0", "v0", "nothing"]),
                 r.pick(NODES),
                 quantity(r, "V"),
-                quantity(r, "V"),
+                quantity(r, "V").replace("0.", "20."),
                 quantity(r, "mV")
             ),
             1 => format!(
                 "analysis delay {{ from = {}, to = {}, stop = {} }}",
-                r.pick(NODES),
-                r.pick(NODES),
+                r.pick(&["vdd", "a"]),
+                r.pick(&["b", "out", "mid"]),
                 quantity(r, "ns")
             ),
             2 => format!(
@@ -337,7 +392,12 @@ fn mutate(r: &mut Rng, line: &str) -> String {
         0 if !s.is_empty() => {
             let at = r.below(s.len());
             if s.is_char_boundary(at) {
-                s.insert(at, *[b'(', b'}', b'=', b'"', b'#', b'$', b',', b'\n'].get(r.below(8)).unwrap_or(&b'x') as char);
+                s.insert(
+                    at,
+                    *[b'(', b'}', b'=', b'"', b'#', b'$', b',', b'\n']
+                        .get(r.below(8))
+                        .unwrap_or(&b'x') as char,
+                );
             }
         }
         1 => {
@@ -352,7 +412,11 @@ fn mutate(r: &mut Rng, line: &str) -> String {
                 .join(" ");
         }
         2 => s = s.replacen(" V", "", 1).replacen(" nm", " V", 1),
-        3 => s = s.replacen("resistor", "resistr", 1).replacen("out", "otu", 1),
+        3 => {
+            s = s
+                .replacen("resistor", "resistr", 1)
+                .replacen("out", "otu", 1)
+        }
         4 => s = format!("{s}\n{s}"),
         _ => s = s.replacen(" = ", " ", 1),
     }
@@ -363,10 +427,19 @@ fn near_valid(seed: u64) -> String {
     let mut r = Rng(seed);
     let mut params = Vec::new();
     let mut cells = Vec::new();
-    let mut lines = vec!["voltage_source v0 (pos = vdd, neg = ground) { dc = 1 V }".to_string()];
+    let mut lines = vec![
+        "voltage_source v0 (pos = vdd, neg = ground) { dc = 1 V }".to_string(),
+        "device nf0 : square_nfet { k = 100 uA/V^2, threshold = 0.3 V }".to_string(),
+        "device sf0 : sheet_fet { channel = MoS2, insulator = hBN, insulator_layers = 10, gate = Au }"
+            .to_string(),
+    ];
     for _ in 0..3 + r.below(12) {
         let line = statement(&mut r, &mut params, &mut cells);
-        lines.push(if r.chance(20) { mutate(&mut r, &line) } else { line });
+        lines.push(if r.chance(4) {
+            mutate(&mut r, &line)
+        } else {
+            line
+        });
     }
     lines.join("\n") + "\n"
 }
@@ -381,5 +454,8 @@ fn near_valid_files_are_accepted_or_refused_with_located_diagnostics() {
         }
     }
     // The generator is near-valid: a good share of its files load.
-    assert!(loaded * 10 >= n, "only {loaded} of {n} generated files loaded");
+    assert!(
+        loaded * 10 >= n,
+        "only {loaded} of {n} generated files loaded"
+    );
 }

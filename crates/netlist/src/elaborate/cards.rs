@@ -89,6 +89,8 @@ impl<'s> Elaborator<'s> {
                 if let Err(e) = check(&v) {
                     error = Some(self.diags.len());
                     self.build_error(e, None, &values, name.span, None);
+                } else {
+                    self.note_plausibility(kind, &v, &values, name.span);
                 }
             }
         }
@@ -178,6 +180,32 @@ impl<'s> Elaborator<'s> {
             g.numbers.push((spec.name, v, at));
         }
         g
+    }
+
+    /// Keeps a sheet-FET card for the plausibility check at the end (when the largest voltage
+    /// in the design is known); `given` locates its values, `at` is where it is defined.
+    fn note_plausibility(&mut self, k: &'static Kind, v: &Values, given: &Given, at: Span) {
+        if k.name != "sheet_fet" || self.plausible.iter().any(|p| p.2 == at) {
+            return;
+        }
+        if let Ok(card) = catalog::sheet_card(v) {
+            self.plausible.push((card, given.clone(), at));
+        }
+    }
+
+    /// Warns, once per place, about sheet-FET values far outside what the model covers.
+    pub(super) fn plausibility_warnings(&mut self) {
+        let vmax = (self.max_voltage > 0.0).then_some(self.max_voltage);
+        for (card, given, at) in std::mem::take(&mut self.plausible) {
+            for w in lamina_devices::warnings::plausibility(&card, vmax) {
+                let span = given.span_of(w.parameter).unwrap_or(at);
+                self.warns.push(
+                    Diagnostic::new(ErrorKind::Implausible, span, w.to_string()).with_help(
+                        "a model estimate there is unreliable: check the value and its unit",
+                    ),
+                );
+            }
+        }
     }
 
     /// Reports a build error at the parameter it names: where the instance set it, else where
@@ -356,7 +384,12 @@ impl<'s> Elaborator<'s> {
             return;
         }
         let element = match (k.build)(&values) {
-            Ok(e) => e,
+            Ok(e) => {
+                if !inst.is_empty() || card.is_none() {
+                    self.note_plausibility(k, &values, &inst, name.name.span);
+                }
+                e
+            }
             Err(e) => {
                 // A fault from the instance's own values is reported there; one the card
                 // alone causes (found only when building) at the card, once.

@@ -263,6 +263,8 @@ struct Elaborator<'s> {
     cell_costs: HashMap<String, f64>,
     /// Cells whose cost is being computed (recursion guard).
     costing: Vec<String>,
+    /// Sheet-FET cards to check for plausibility: card, where its values are, where it is.
+    plausible: Vec<(lamina_devices::SheetFetCard, cards::Given, Span)>,
     /// Largest voltage written in the design (sources, settings), for plausibility checks.
     max_voltage: f64,
 }
@@ -295,6 +297,7 @@ impl<'s> Elaborator<'s> {
             warns: Vec::new(),
             work: 0,
             max_voltage: 0.0,
+            plausible: Vec::new(),
             multiplier: 1.0,
             cell_costs: HashMap::new(),
             costing: Vec::new(),
@@ -452,6 +455,7 @@ impl<'s> Elaborator<'s> {
         // they would mostly repeat them.
         if self.diags.is_empty() {
             self.check_analyses();
+            self.plausibility_warnings();
         }
     }
 
