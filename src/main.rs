@@ -33,7 +33,11 @@ macro_rules! out {
 #[command(
     name = "lamina",
     version,
-    about = "Circuit simulator for logic built from 2D-channel FETs"
+    about = "Circuit simulator for logic built from 2D-channel FETs",
+    after_help = "Exit codes: 0 success; 1 an analysis failed; 2 bad usage (flags, --set and \
+                  --param values); 3 the circuit file has errors; 4 an input or output file \
+                  could not be read or written.\n\
+                  Values carry units as in circuit files: --set vdd=0.8V, --param len=50nm,100nm."
 )]
 struct Cli {
     #[command(subcommand)]
