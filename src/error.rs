@@ -71,3 +71,19 @@ macro_rules! note_raw {
         let _ = write!(std::io::stderr().lock(), $($arg)*);
     }};
 }
+
+/// Prints a line to stdout. A closed pipe (`lamina ... | head`) ends the program quietly; any
+/// other failure to write (a full disk, `> /dev/full`) is an output error, exit 4.
+#[macro_export]
+macro_rules! out {
+    ($($arg:tt)*) => {{
+        use std::io::Write;
+        if let Err(e) = writeln!(std::io::stdout().lock(), $($arg)*) {
+            if e.kind() == std::io::ErrorKind::BrokenPipe {
+                std::process::exit(0);
+            }
+            $crate::note!("error: cannot write to standard output: {e}");
+            std::process::exit(4);
+        }
+    }};
+}

@@ -17,6 +17,7 @@
 #![deny(missing_docs)]
 
 pub mod builtin;
+pub mod cli;
 pub mod design;
 pub mod error;
 pub mod iv;

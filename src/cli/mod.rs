@@ -1,0 +1,163 @@
+//! The command-line jobs: one module per command, each owning its flags (`Args`), its plan and
+//! run, and its report (table, JSON, files, figures). `src/main.rs` only parses and dispatches.
+//!
+//! Shared here: the flags every file job takes ([`Common`]) and the report of each analysis
+//! kind, which `run`, `vtc`, `delay` and `ring` print the same way.
+
+pub mod check;
+pub mod delay;
+pub mod iv;
+pub mod ring;
+pub mod run;
+pub mod sweep;
+pub mod vtc;
+
+use crate::design::Outcome;
+use crate::out;
+use lamina_measure::transfer::DEFINITIONS;
+use ring::{print_ring, ring_json};
+use std::path::PathBuf;
+
+/// The flags of a job that runs one circuit file's analyses (`run`, `vtc`, `delay`).
+#[derive(clap::Args, Debug)]
+pub struct FileArgs {
+    /// Circuit file (`.lam`) declaring the analyses to run (`vtc`: an `analysis transfer`;
+    /// `delay`: an `analysis delay`, with its input driven by a pulse source).
+    pub file: PathBuf,
+    /// `--set`, `--json` and `--out`.
+    #[command(flatten)]
+    pub common: Common,
+}
+
+/// Flags every file job shares.
+#[derive(clap::Args, Debug)]
+pub struct Common {
+    /// Override a top-level parameter: `--set name=value`, such as `--set vdd=0.7V` (repeatable).
+    #[arg(long = "set", value_name = "NAME=VALUE")]
+    pub set: Vec<String>,
+    /// Print one JSON object on stdout instead of a table.
+    #[arg(long)]
+    pub json: bool,
+    /// Write the data (CSV), the summary (JSON) and plots (SVG, PNG) into this directory.
+    #[arg(long, value_name = "DIR")]
+    pub out: Option<PathBuf>,
+}
+
+/// One analysis's result: its JSON object (without the `analysis` key) or its table.
+pub(crate) fn print_single(kind: &str, outcome: &Outcome, json: bool) {
+    if json {
+        let mut v = outcome_json(kind, outcome);
+        if let Some(m) = v.as_object_mut() {
+            m.remove("analysis");
+        }
+        out!("{v}");
+    } else {
+        print_outcome(outcome);
+    }
+}
+
+pub(crate) fn outcome_json(kind: &str, o: &Outcome) -> serde_json::Value {
+    match o {
+        Outcome::OperatingPoint(v) => {
+            let map: serde_json::Map<String, serde_json::Value> = v
+                .iter()
+                .map(|(n, x)| (n.clone(), serde_json::json!(x)))
+                .collect();
+            serde_json::json!({ "analysis": kind, "node_voltages_v": map })
+        }
+        Outcome::Transfer {
+            vin,
+            vout,
+            metrics,
+            snm,
+        } => {
+            let defs: serde_json::Map<String, serde_json::Value> = DEFINITIONS
+                .iter()
+                .map(|(k, d)| (k.to_string(), serde_json::json!(d)))
+                .collect();
+            serde_json::json!({
+                "analysis": kind,
+                "vm": metrics.map(|m| m.vm),
+                "voh": metrics.map(|m| m.voh),
+                "vol": metrics.map(|m| m.vol),
+                "vil": metrics.map(|m| m.vil),
+                "vih": metrics.map(|m| m.vih),
+                "nmh": metrics.map(|m| m.nmh),
+                "nml": metrics.map(|m| m.nml),
+                "snm": snm.map(|m| m.snm),
+                "gain_max": metrics.map(|m| m.gain_max),
+                "definitions": defs,
+                "vin": vin,
+                "vout": vout,
+            })
+        }
+        Outcome::Delay(d) => serde_json::json!({
+            "analysis": kind,
+            "t_phl_s": d.t_phl,
+            "t_plh_s": d.t_plh,
+            "t_p_s": d.t_p,
+            "rise_s": d.rise,
+            "fall_s": d.fall,
+            "transitions": d.transitions,
+        }),
+        Outcome::Ring(r) => {
+            let mut v = ring_json(r);
+            v["analysis"] = serde_json::json!(kind);
+            v
+        }
+    }
+}
+
+pub(crate) fn print_outcome(o: &Outcome) {
+    match o {
+        Outcome::OperatingPoint(v) => {
+            out!("operating point (model estimate)");
+            for (n, x) in v {
+                out!("  {n:<24} {x:>14.6} V");
+            }
+        }
+        Outcome::Transfer {
+            vin, metrics, snm, ..
+        } => {
+            out!("transfer curve, {} points (model estimate)", vin.len());
+            match metrics {
+                Some(m) => {
+                    out!("  V_M      {:>9.4} V   input where v_out = v_in", m.vm);
+                    out!("  V_OH     {:>9.4} V   output at the lowest input", m.voh);
+                    out!("  V_OL     {:>9.4} V   output at the highest input", m.vol);
+                    out!("  V_IL     {:>9.4} V   lowest input with slope -1", m.vil);
+                    out!("  V_IH     {:>9.4} V   highest input with slope -1", m.vih);
+                    out!("  NM_H     {:>9.4} V   V_OH - V_IH (unity gain)", m.nmh);
+                    out!("  NM_L     {:>9.4} V   V_IL - V_OL (unity gain)", m.nml);
+                    match snm {
+                        Some(s) => out!("  SNM      {:>9.4} V   largest square in the butterfly (Seevinck 1987)", s.snm),
+                        None => out!("  SNM          -       the curve and its mirror enclose no lobes"),
+                    }
+                    out!("  gain     {:>9.2}     peak |dv_out/dv_in|", m.gain_max);
+                }
+                None => {
+                    out!("  the curve never crosses v_out = v_in or never reaches a slope of -1")
+                }
+            }
+        }
+        Outcome::Ring(r) => print_ring(r),
+        Outcome::Delay(d) => {
+            let ps = |v: Option<f64>| v.map_or("-".to_string(), |x| format!("{:.3} ps", x * 1e12));
+            out!(
+                "gate delay over {} transitions (model estimate)",
+                d.transitions
+            );
+            out!(
+                "  t_pHL   {:>12}   output falls after the input rises (50 % to 50 %)",
+                ps(d.t_phl)
+            );
+            out!(
+                "  t_pLH   {:>12}   output rises after the input falls",
+                ps(d.t_plh)
+            );
+            out!("  t_p     {:>12}   mean of the two", ps(d.t_p));
+            out!("  rise    {:>12}   output 10-90 %", ps(d.rise));
+            out!("  fall    {:>12}   output 90-10 %", ps(d.fall));
+        }
+    }
+}

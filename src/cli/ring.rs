@@ -1,0 +1,235 @@
+//! `lamina ring`: oscillation frequency, stage delay, power and energy of a ring oscillator
+//! from a file's `analysis ring` or a built-in ring.
+
+use crate::builtin::{square_ring, Ring, SquareStage};
+use crate::design;
+use crate::error::JobError;
+use crate::output::{csv, ensure_dir, write_whole as write_file};
+use crate::ring::{run_ring_recorded, RingParams, RingReport, RingWaves};
+use crate::{note, out};
+use clap::ValueEnum;
+use lamina_engine::{Integrator, System};
+use std::path::{Path, PathBuf};
+
+/// A circuit built in code.
+#[derive(Clone, Copy, Debug, ValueEnum)]
+pub enum Builtin {
+    /// A ring of square-law inverters (k = 100 uA/V^2, V_T = +/-0.3 V, V_DD = 1 V, 1 fF loads).
+    SquareRing,
+}
+
+/// Integration formula.
+#[derive(Clone, Copy, Debug, ValueEnum)]
+pub enum Method {
+    /// Trapezoidal rule (second order).
+    Trapezoidal,
+    /// Backward Euler (first order).
+    Euler,
+    /// Variable-step BDF2 (second order).
+    Bdf2,
+}
+
+/// Flags of `lamina ring`.
+#[derive(clap::Args, Debug)]
+pub struct Args {
+    /// Circuit file (`.lam`) declaring `analysis ring { nodes = ..., stages = ..., supply = ... }`.
+    #[arg(required_unless_present = "builtin", conflicts_with = "builtin")]
+    pub file: Option<PathBuf>,
+    /// Run a built-in circuit instead of a file.
+    #[arg(long, value_enum)]
+    pub builtin: Option<Builtin>,
+    /// Number of stages of the built-in ring (odd, at least 3; default 11). A file's ring
+    /// sets its own in `analysis ring`.
+    #[arg(long)]
+    pub stages: Option<usize>,
+    /// Override a top-level parameter of the file, or of the built-in ring (kn, kp, vtn,
+    /// vtp, vdd, load, lambda): `--set vdd=0.7V` (repeatable).
+    #[arg(long = "set", value_name = "NAME=VALUE")]
+    pub set: Vec<String>,
+    /// Integration formula.
+    #[arg(long, value_enum, default_value_t = Method::Trapezoidal)]
+    pub integrator: Method,
+    /// Use the tighter reference tolerances.
+    #[arg(long)]
+    pub reference: bool,
+    /// Estimate by edge travel (the time the single edge takes between two nodes) instead of
+    /// whole periods: for long rings, where a period is costly.
+    #[arg(long)]
+    pub edge: bool,
+    /// Print one JSON object instead of a table.
+    #[arg(long)]
+    pub json: bool,
+    /// Write the DC Newton matrix at the start state to this Matrix Market file.
+    #[arg(long, value_name = "FILE")]
+    pub dump_matrix: Option<PathBuf>,
+    /// Write waveforms (CSV), the summary (JSON) and plots (SVG, PNG) into this directory.
+    #[arg(long, value_name = "DIR")]
+    pub out: Option<PathBuf>,
+}
+
+/// Runs the job.
+pub fn run(a: Args) -> Result<(), JobError> {
+    let params = RingParams {
+        integrator: method(a.integrator),
+        reference: a.reference,
+        edge: a.edge,
+        ..RingParams::default()
+    };
+    match (&a.file, a.builtin) {
+        (Some(_), _) if a.stages.is_some() => Err(JobError::Usage(format!(
+            "--stages {} applies to the built-in ring only; a file's ring has `stages` in its \
+             `analysis ring`",
+            a.stages.unwrap_or(0)
+        ))),
+        (Some(file), _) => {
+            let sets = design::parse_sets(&a.set)?;
+            let d = design::load(file, &sets)?;
+            let (mut system, ring, params) = design::ring_from(d, &params)?;
+            finish_ring(&mut system, &ring, &params, a.json, a.dump_matrix, a.out)
+        }
+        (None, Some(Builtin::SquareRing)) => {
+            let stages = a.stages.unwrap_or(11);
+            if stages < 3 || stages % 2 == 0 || stages > 1_000_000 {
+                return Err(JobError::Usage(format!(
+                    "--stages {stages}: a ring needs an odd number of stages from 3 to 1000000; \
+                     give an odd count such as 11"
+                )));
+            }
+            let mut stage = SquareStage::default();
+            crate::builtin::apply_sets(&mut stage, &design::parse_sets(&a.set)?)?;
+            let (circuit, ring) =
+                square_ring(stages, &stage).map_err(|e| JobError::Analysis(e.to_string()))?;
+            let mut system = System::new(circuit).map_err(|e| JobError::Analysis(e.to_string()))?;
+            finish_ring(&mut system, &ring, &params, a.json, a.dump_matrix, a.out)
+        }
+        (None, None) => Err(JobError::Usage(
+            "give a circuit file or --builtin square-ring".into(),
+        )),
+    }
+}
+
+/// The ring job's common end: optional matrix dump, the run, files, and the report.
+pub(crate) fn finish_ring(
+    system: &mut System,
+    ring: &Ring,
+    params: &RingParams,
+    json: bool,
+    dump_matrix: Option<PathBuf>,
+    out: Option<PathBuf>,
+) -> Result<(), JobError> {
+    if let Some(path) = dump_matrix {
+        dump(system, ring, &path)?;
+    }
+    let (report, waves) =
+        run_ring_recorded(system, ring, params).map_err(|e| JobError::Analysis(e.to_string()))?;
+    if let Some(dir) = &out {
+        write_ring(dir, &report, &waves).map_err(JobError::Io)?;
+    }
+    if json {
+        out!("{}", ring_json(&report));
+    } else {
+        print_ring(&report);
+    }
+    Ok(())
+}
+
+pub(crate) fn write_ring(dir: &Path, r: &RingReport, w: &RingWaves) -> Result<(), String> {
+    ensure_dir(dir)?;
+    let (t, a, b) = w;
+    let rows = t.iter().zip(a).zip(b).map(|((t, a), b)| vec![*t, *a, *b]);
+    write_file(
+        &dir.join("waveforms.csv"),
+        csv(&["time_s", "out[0]_v", "out[1]_v"], rows).as_bytes(),
+    )?;
+    write_file(
+        &dir.join("summary.json"),
+        format!("{}\n", ring_json(r)).as_bytes(),
+    )?;
+    crate::plot::waveforms(&dir.join("waveforms"), t, &[("out[0]", a), ("out[1]", b)])?;
+    note!(
+        "wrote waveforms.csv, summary.json and waveforms.svg/png to {}",
+        dir.display()
+    );
+    Ok(())
+}
+
+pub(crate) fn method(m: Method) -> Integrator {
+    match m {
+        Method::Trapezoidal => Integrator::Trapezoidal,
+        Method::Euler => Integrator::BackwardEuler,
+        Method::Bdf2 => Integrator::Bdf2,
+    }
+}
+
+/// Writes the DC Newton matrix at the ring's single-edge start state (Matrix Market).
+pub(crate) fn dump(system: &mut System, ring: &Ring, path: &Path) -> Result<(), JobError> {
+    let mut x = vec![0.0; system.unknown_count()];
+    for (i, &node) in ring.outputs.iter().enumerate() {
+        if let Some(u) = system.node_unknown(node) {
+            x[u] = if i % 2 == 0 { ring.vdd } else { 0.0 };
+        }
+    }
+    let m = system
+        .dc_matrix(&x, 1e-12)
+        .map_err(|e| JobError::Analysis(e.to_string()))?;
+    let mut bytes = Vec::new();
+    sprs::io::write_matrix_market_to_bufwrite(&mut bytes, &m)
+        .map_err(|e| JobError::Analysis(format!("cannot encode the matrix: {e}")))?;
+    write_file(path, &bytes).map_err(JobError::Io)?;
+    note!(
+        "wrote the {0}x{0} DC Newton matrix to {1}",
+        m.rows(),
+        path.display()
+    );
+    Ok(())
+}
+
+pub(crate) fn ring_json(r: &RingReport) -> serde_json::Value {
+    serde_json::json!({
+        "stages": r.stages,
+        "frequency_hz": r.frequency,
+        "period_s": r.period,
+        "stage_delay_s": r.stage_delay,
+        "periods_discarded": r.periods_discarded,
+        "periods_used": r.periods_used,
+        "period_spread": r.period_spread,
+        "avg_power_w": r.avg_power,
+        "energy_per_cycle_j": r.energy_per_cycle,
+        "method": r.method,
+        "steps": r.steps,
+        "rejected_steps": r.rejected,
+        "newton_iterations": r.newton_iterations,
+        "simulated_s": r.simulated,
+    })
+}
+
+pub(crate) fn print_ring(r: &RingReport) {
+    out!("ring oscillator, {} stages (model estimate)", r.stages);
+    out!("  frequency      {:>14.6} GHz", r.frequency * 1e-9);
+    out!("  period         {:>14.6} ps", r.period * 1e12);
+    out!(
+        "  stage delay    {:>14.6} ps   (1 / (2 N f))",
+        r.stage_delay * 1e12
+    );
+    if r.avg_power.is_finite() {
+        out!(
+            "  supply power   {:>14.6} uW   (mean over the measured periods)",
+            r.avg_power * 1e6
+        );
+        out!("  energy/cycle   {:>14.6} fJ", r.energy_per_cycle * 1e15);
+    }
+    out!("  method         {}", r.method);
+    out!(
+        "  periods        {:>14}      ({} discarded as start-up, spread {:.1e})",
+        r.periods_used,
+        r.periods_discarded,
+        r.period_spread
+    );
+    out!(
+        "  time steps     {:>14}      ({} rejected, {} Newton iterations, {:.3} ns simulated)",
+        r.steps,
+        r.rejected,
+        r.newton_iterations,
+        r.simulated * 1e9
+    );
+}

@@ -1,0 +1,57 @@
+//! `lamina run`: every analysis a circuit file declares.
+
+use super::{outcome_json, print_outcome, Common};
+use crate::design::{self, Outcome};
+use crate::error::JobError;
+use crate::out;
+use crate::output::{ensure_dir, write_whole as write_file};
+use crate::ring::RingParams;
+use std::path::Path;
+
+/// Flags of `lamina run`.
+pub type Args = super::FileArgs;
+
+/// Runs the job.
+pub fn run(a: Args) -> Result<(), JobError> {
+    let Args {
+        file,
+        common: Common { set, json, out },
+    } = a;
+    let sets = design::parse_sets(&set)?;
+    let results = design::run_all(&file, &sets, &RingParams::default(), None)?;
+    if let Some(dir) = &out {
+        write_run(dir, &results).map_err(JobError::Io)?;
+    }
+    if json {
+        let items: Vec<serde_json::Value> =
+            results.iter().map(|(k, o)| outcome_json(k, o)).collect();
+        out!("{}", serde_json::json!({ "analyses": items }));
+    } else {
+        for (_, o) in &results {
+            print_outcome(o);
+        }
+    }
+    Ok(())
+}
+
+/// Every analysis's summary in one JSON file, and each transfer curve's files in a folder of
+/// its own (`transfer-1`, ...).
+pub(crate) fn write_run(dir: &Path, results: &[(String, Outcome)]) -> Result<(), String> {
+    ensure_dir(dir)?;
+    let mut items = Vec::new();
+    for (k, (kind, o)) in results.iter().enumerate() {
+        let mut j = outcome_json(kind, o);
+        if let Some(m) = j.as_object_mut() {
+            m.remove("vin");
+            m.remove("vout");
+        }
+        items.push(j);
+        if matches!(o, Outcome::Transfer { .. }) {
+            super::vtc::write_vtc(&dir.join(format!("{kind}-{}", k + 1)), kind, o)?;
+        }
+    }
+    write_file(
+        &dir.join("summary.json"),
+        format!("{}\n", serde_json::json!({ "analyses": items })).as_bytes(),
+    )
+}

@@ -1,0 +1,68 @@
+//! `lamina vtc`: a file's transfer curve, switching threshold and noise margins.
+
+use super::{outcome_json, print_single, Common};
+use crate::design::{self, Outcome};
+use crate::error::JobError;
+use crate::note;
+use crate::output::{csv, ensure_dir, write_whole as write_file};
+use crate::ring::RingParams;
+use std::path::Path;
+
+/// Flags of `lamina vtc`.
+pub type Args = super::FileArgs;
+
+/// Runs the job.
+pub fn run(a: Args) -> Result<(), JobError> {
+    let Args {
+        file,
+        common: Common { set, json, out },
+    } = a;
+    let sets = design::parse_sets(&set)?;
+    let results = design::run_all(&file, &sets, &RingParams::default(), Some("transfer"))?;
+    let (kind, outcome) = &results[0];
+    if let Some(dir) = &out {
+        write_vtc(dir, kind, outcome).map_err(JobError::Io)?;
+    }
+    print_single(kind, outcome, json);
+    Ok(())
+}
+
+pub(crate) fn write_vtc(dir: &Path, kind: &str, o: &Outcome) -> Result<(), String> {
+    ensure_dir(dir)?;
+    if let Outcome::Transfer {
+        vin,
+        vout,
+        metrics,
+        snm,
+    } = o
+    {
+        let rows = vin.iter().zip(vout).map(|(a, b)| vec![*a, *b]);
+        write_file(
+            &dir.join("transfer.csv"),
+            csv(&["vin_v", "vout_v"], rows).as_bytes(),
+        )?;
+        let mut j = outcome_json(kind, o);
+        if let Some(m) = j.as_object_mut() {
+            m.remove("vin");
+            m.remove("vout");
+        }
+        write_file(&dir.join("summary.json"), format!("{j}\n").as_bytes())?;
+        let marks: Vec<(&str, f64)> = match metrics {
+            Some(m) => vec![("V_IL", m.vil), ("V_M", m.vm), ("V_IH", m.vih)],
+            None => Vec::new(),
+        };
+        crate::plot::transfer(&dir.join("transfer"), vin, vout, &marks)?;
+        crate::plot::butterfly(
+            &dir.join("butterfly"),
+            vin,
+            vout,
+            snm.map(|s| s.snm),
+            &snm.map(|s| s.squares.to_vec()).unwrap_or_default(),
+        )?;
+        note!(
+            "wrote transfer.csv, summary.json, transfer.svg/png and butterfly.svg/png to {}",
+            dir.display()
+        );
+    }
+    Ok(())
+}
