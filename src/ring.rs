@@ -11,12 +11,42 @@
 //! (`measure::period`), and the stage delay is `1 / (2 N f)`. Average supply power is the
 //! mean of `V_DD i_supply` over those same whole periods, and the energy per cycle is power
 //! times period.
+//!
+//! # Measuring while the run goes
+//! Nothing grows with the length of the run. The engine stores no samples
+//! ([`Output::Streaming`]); the observer locates the rising crossings of `out[0]` as the steps
+//! arrive (the same cubic through the four samples around each crossing as
+//! `lamina_measure::crossings`, so the figures equal those of a full recording) and
+//! accumulates the supply energy `∫ V_DD i dt` by the trapezoidal rule, read at each crossing.
+//! The waveforms handed back for plots are thinned to at most [`RingParams::wave_samples`]
+//! samples by the engine's [`Decimator`].
+//!
+//! # Rings that do not oscillate
+//! A circuit that does not oscillate (an even number of inversions, a supply too low to switch
+//! the devices, a load that holds every node) is stopped early. A *transition* is a stage
+//! output crossing the middle fifth of the supply (from below `0.4 V_DD` to above `0.6 V_DD`
+//! or back; the band keeps a node resting at the switching threshold from counting noise as
+//! transitions). While a single edge circulates, some stage switches about every stage delay,
+//! so the job estimates the stage delay `t_e` from the first transitions (the time to the first
+//! one, and the largest gap among the first [`ESTIMATE_TRANSITIONS`]) and stops once no
+//! transition has come for [`RingParams::stall_delays`] times `t_e`. When no transition is
+//! ever seen, there is no delay to scale by, and the elapsed time `t` stands in for it (a
+//! working ring switches its first stage within about a stage delay): the run stops once
+//! every stage output has moved by less than [`STILL_FRACTION`]` · V_DD` per `t` (its
+//! derivative below `STILL_FRACTION · V_DD / t`) at every step since `t/2`, over at least
+//! [`STILL_STEPS`] steps. In whole-period runs the swing (max - min) of `out[0]` must also
+//! have settled over the measured periods, within [`SWING_TOLERANCE`]: a ring winding down to
+//! its balanced state keeps a regular period for a while. An edge-travel run also checks that
+//! the edge reached its far node through every stage in order. `RingParams::time_limit` stays
+//! the outer bound. Each of these ends in [`RingError::NoOscillation`] with the stage-output
+//! voltages the run ended at and the simulated time ([`RingHalt`]).
 
 use crate::builtin::Ring;
 use lamina_engine::{
-    Control, EngineError, Integrator, OpParams, Probe, Start, System, TransientParams,
+    Control, Decimator, EngineError, Integrator, OpParams, Output, Probe, Start, System,
+    TransientParams, TransientStats,
 };
-use lamina_measure::period;
+use lamina_measure::Direction;
 use std::fmt;
 
 /// How to run a ring.
@@ -35,6 +65,12 @@ pub struct RingParams {
     pub time_limit: f64,
     /// Measure by edge travel instead of whole periods (for very long rings).
     pub edge: bool,
+    /// Stop as not oscillating once no stage output has switched for this many stage delays
+    /// estimated from the first transitions (default 200; see the module doc).
+    pub stall_delays: f64,
+    /// Most samples kept of the waveforms [`run_ring_recorded`] returns (default 32768; at
+    /// least 2 are kept, the first and the last).
+    pub wave_samples: usize,
 }
 
 impl Default for RingParams {
@@ -46,6 +82,8 @@ impl Default for RingParams {
             measure: 5,
             edge: false,
             time_limit: 1e-3,
+            stall_delays: 200.0,
+            wave_samples: 1 << 15,
         }
     }
 }
@@ -83,20 +121,64 @@ pub struct RingReport {
     pub simulated: f64,
 }
 
+/// Why a ring run that produced no frequency stopped.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum HaltCause {
+    /// No stage output switched for [`RingParams::stall_delays`] estimated stage delays.
+    Stalled,
+    /// No stage output ever switched, and all of them stopped moving.
+    Still,
+    /// The swing of `out[0]` kept changing over the measured periods.
+    SwingUnsettled,
+    /// The run reached [`RingParams::time_limit`] without enough periods.
+    TimeLimit,
+    /// In an edge-travel run, the far node fell before the edge had switched the stages
+    /// before it in ring order: no single edge travels the ring.
+    NoTravellingEdge,
+}
+
+/// Where a ring run that produced no frequency ended.
+#[derive(Clone, Debug, PartialEq)]
+pub struct RingHalt {
+    /// Why it stopped.
+    pub cause: HaltCause,
+    /// Simulated time reached (s).
+    pub simulated: f64,
+    /// Accepted time steps.
+    pub steps: usize,
+    /// Stage-output voltages at the end, in ring order (V).
+    pub voltages: Vec<f64>,
+    /// Transitions seen (stage outputs crossing the middle fifth of the supply).
+    pub transitions: usize,
+    /// Stage delay estimated from the first transitions (s), when there were any.
+    pub stage_delay_estimate: Option<f64>,
+}
+
 /// Why the ring job produced no frequency.
 #[derive(Debug)]
 pub enum RingError {
     /// The engine failed.
     Engine(EngineError),
-    /// The ring did not oscillate (or not long enough) before the time limit.
-    NoOscillation(String),
+    /// The ring did not oscillate (or not long enough): why, and, when a run took place, where
+    /// it ended.
+    NoOscillation(String, Option<Box<RingHalt>>),
+}
+
+impl RingError {
+    /// Where the run ended, for a ring that did not oscillate after a run.
+    pub fn halt(&self) -> Option<&RingHalt> {
+        match self {
+            RingError::NoOscillation(_, halt) => halt.as_deref(),
+            RingError::Engine(_) => None,
+        }
+    }
 }
 
 impl fmt::Display for RingError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
             RingError::Engine(e) => write!(f, "{e}"),
-            RingError::NoOscillation(why) => write!(f, "the ring does not oscillate: {why}"),
+            RingError::NoOscillation(why, _) => write!(f, "the ring does not oscillate: {why}"),
         }
     }
 }
@@ -114,15 +196,19 @@ impl From<EngineError> for RingError {
 /// The stage outputs are held at those values in a DC solve (so the supply and any internal
 /// nodes start consistent, with every device charge in place) and released at t = 0.
 pub fn single_edge_start(ring: &Ring) -> Start {
-    let vdd = ring.vdd;
     Start::Clamped(
         ring.outputs
             .iter()
-            .enumerate()
-            .map(|(i, &node)| (node, if i % 2 == 0 { vdd } else { 0.0 }))
+            .zip(start_levels(ring))
+            .map(|(&node, v)| (node, v))
             .collect(),
         OpParams::default(),
     )
+}
+
+/// The stage-output voltages of the single-defect start, in ring order.
+fn start_levels(ring: &Ring) -> impl Iterator<Item = f64> + '_ {
+    (0..ring.outputs.len()).map(|i| if i % 2 == 0 { ring.vdd } else { 0.0 })
 }
 
 /// Runs the ring in `system` (compiled from the ring's circuit) and measures its frequency.
@@ -131,150 +217,50 @@ pub fn run_ring(
     ring: &Ring,
     params: &RingParams,
 ) -> Result<RingReport, RingError> {
-    run_ring_recorded(system, ring, params).map(|(r, _)| r)
+    run(system, ring, params, false).map(|(r, _)| r)
 }
 
 /// Recorded waveforms of a ring run: time and the first two stage outputs.
 pub type RingWaves = (Vec<f64>, Vec<f64>, Vec<f64>);
 
-/// As [`run_ring`], also returning the waveforms of `out[0]` and `out[1]`.
+/// As [`run_ring`], also returning the waveforms of `out[0]` and `out[1]`: the whole run,
+/// thinned to at most [`RingParams::wave_samples`] samples (the engine's [`Decimator`] rule).
 pub fn run_ring_recorded(
     system: &mut System,
     ring: &Ring,
     params: &RingParams,
 ) -> Result<(RingReport, RingWaves), RingError> {
-    let stages = ring.outputs.len();
-    if stages < 3 || stages % 2 == 0 {
-        return Err(RingError::NoOscillation(format!(
-            "a ring of inverting stages needs an odd number of at least 3 stages, this one has {stages}"
-        )));
-    }
-    if params.edge {
-        return run_edge(system, ring, params);
-    }
-    let tp = transient_params(params);
-    let level = 0.5 * ring.vdd;
-    // Settling: after at least `discard` periods, stop once `measure` successive periods agree
-    // within SETTLE_TOLERANCE (or after MAX_EXTRA_PERIODS more, reporting the spread).
-    let needed = params.discard + params.measure + 1;
-    let cap = needed + MAX_EXTRA_PERIODS;
-    let mut seen = 0usize;
-    let mut last = f64::NAN;
-    let mut last_t = 0.0;
-    let mut ups: Vec<f64> = Vec::new();
-    // Progress on stderr (hidden when stderr is not a terminal): periods seen and time reached.
-    let bar = indicatif::ProgressBar::new(needed as u64 + 1);
-    if let Ok(style) =
-        indicatif::ProgressStyle::with_template("{bar:30} {pos}/{len} periods  {msg}")
-    {
-        bar.set_style(style);
-    }
-    let mut steps = 0u64;
-    let mut observer = |t: f64, v: &[f64]| {
-        if last < level && v[0] >= level {
-            seen += 1;
-            bar.set_position(seen as u64);
-            ups.push(last_t + (level - last) / (v[0] - last) * (t - last_t));
-        }
-        last = v[0];
-        last_t = t;
-        steps += 1;
-        if steps % 2000 == 0 {
-            bar.set_message(format!("t = {:.3} ns, {steps} steps", t * 1e9));
-        }
-        let settled = seen > needed && {
-            let p: Vec<f64> = ups
-                .windows(2)
-                .rev()
-                .take(params.measure)
-                .map(|w| w[1] - w[0])
-                .collect();
-            let (lo, hi) = p
-                .iter()
-                .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| {
-                    (a.min(x), b.max(x))
-                });
-            (hi - lo) / (p.iter().sum::<f64>() / p.len() as f64) <= SETTLE_TOLERANCE
-        };
-        if settled || seen > cap {
-            Control::Stop
-        } else {
-            Control::Continue
-        }
-    };
-    let probes = [
-        Probe::Voltage(ring.outputs[0]),
-        Probe::Current(ring.supply),
-        Probe::Voltage(ring.outputs[1]),
-    ];
-    let start = single_edge_start(ring);
-    let res = system.transient(&tp, &start, &probes, Some(&mut observer));
-    bar.finish_and_clear();
-    let res = res?;
-    // Discard up to where the waveform settled (the interpolated crossings of the run decide).
-    let total = lamina_measure::crossings(
-        &res.time,
-        &res.signals[0],
-        level,
-        lamina_measure::Direction::Rising,
-    )
-    .len();
-    let discard = lamina_measure::settled_discard(
-        &res.time,
-        &res.signals[0],
-        level,
-        params.discard,
-        params.measure,
-        SETTLE_TOLERANCE,
-    )
-    .unwrap_or_else(|| total.saturating_sub(params.measure + 1).max(params.discard));
-    let est = period(&res.time, &res.signals[0], level, discard).map_err(|e| {
-        RingError::NoOscillation(format!("{e} by t = {:.3e} s", res.stats.end_time))
-    })?;
-    if est.periods_used < params.measure {
-        return Err(RingError::NoOscillation(format!(
-            "only {} whole periods after start-up by t = {:.3e} s",
-            est.periods_used, res.stats.end_time
-        )));
-    }
-    // Supply power over the measured periods: the supply's branch current flows from its
-    // positive pin through it, so the current it delivers is the negative of that.
-    let crossings_up = lamina_measure::crossings(
-        &res.time,
-        &res.signals[0],
-        level,
-        lamina_measure::Direction::Rising,
-    );
-    let t0 = crossings_up[est.periods_discarded];
-    let t1 = crossings_up[est.periods_discarded + est.periods_used];
-    let power: Vec<f64> = res.signals[1].iter().map(|i| -i * ring.vdd).collect();
-    let avg_power =
-        lamina_measure::waveform::mean_over(&res.time, &power, t0, t1).unwrap_or(f64::NAN);
-    let report = RingReport {
-        method: METHOD_PERIOD,
-        stages,
-        avg_power,
-        energy_per_cycle: avg_power * est.period,
-        frequency: est.frequency,
-        period: est.period,
-        stage_delay: 1.0 / (2.0 * stages as f64 * est.frequency),
-        periods_discarded: est.periods_discarded,
-        periods_used: est.periods_used,
-        period_spread: est.spread,
-        steps: res.stats.accepted,
-        rejected: res.stats.rejected_lte + res.stats.rejected_newton,
-        newton_iterations: res.stats.newton_iterations,
-        simulated: res.stats.end_time,
-    };
-    let mut signals = res.signals;
-    let second = signals.pop().unwrap_or_default();
-    let _supply = signals.pop();
-    let first = signals.pop().unwrap_or_default();
-    Ok((report, (res.time, first, second)))
+    run(system, ring, params, true)
 }
 
+/// Successive periods must agree within this (relative spread) to count as settled.
+pub const SETTLE_TOLERANCE: f64 = 1e-4;
+/// Periods run beyond the minimum while waiting for the waveform to settle.
+const MAX_EXTRA_PERIODS: usize = 20;
+/// Transitions whose gaps go into the stage-delay estimate (two rising and two falling edges,
+/// so a ring with a slow pull-up is judged by its slow edge).
+pub const ESTIMATE_TRANSITIONS: usize = 4;
+/// Half-width of the band a transition crosses, as a fraction of V_DD around V_DD / 2.
+const BAND: f64 = 0.1;
+/// Movement per elapsed time, as a fraction of V_DD, below which a stage output counts as
+/// still when no transition was ever seen.
+pub const STILL_FRACTION: f64 = 1e-3;
+/// Accepted steps the stillness must last (besides lasting since half the elapsed time).
+pub const STILL_STEPS: usize = 10;
+/// Largest relative spread `(max - min) / max` of the swing of `out[0]` over the measured
+/// periods (the peaks are read at the accepted steps, good to well under a percent).
+pub const SWING_TOLERANCE: f64 = 1e-2;
+/// Stage outputs named in a message before the rest are counted.
+const NAMED_VOLTAGES: usize = 8;
+
+/// Method text of the whole-period measurement.
+pub const METHOD_PERIOD: &str = "period from rising mid-level crossings of out[0]";
+/// Method text of the edge-travel estimate.
+pub const METHOD_EDGE: &str =
+    "edge travel: stage delay from the time the single edge takes between two nodes";
+
 /// The transient settings of a ring run: defaults or the reference setting, the chosen
-/// integrator, and a minimum step far below any stage delay.
+/// integrator, a minimum step far below any stage delay, and nothing stored.
 fn transient_params(params: &RingParams) -> TransientParams {
     let mut tp = if params.reference {
         TransientParams::reference(params.time_limit)
@@ -283,19 +269,517 @@ fn transient_params(params: &RingParams) -> TransientParams {
     };
     tp.integrator = params.integrator;
     tp.min_step = Some(params.time_limit * 1e-15);
+    tp.output = Output::Streaming;
     tp
 }
 
-/// Successive periods must agree within this (relative spread) to count as settled.
-pub const SETTLE_TOLERANCE: f64 = 1e-4;
-/// Periods run beyond the minimum while waiting for the waveform to settle.
-const MAX_EXTRA_PERIODS: usize = 20;
+/// Probes of a ring run: the supply current, then every stage output in ring order.
+fn probes(ring: &Ring) -> Vec<Probe> {
+    std::iter::once(Probe::Current(ring.supply))
+        .chain(ring.outputs.iter().map(|&n| Probe::Voltage(n)))
+        .collect()
+}
 
-/// Method text of the whole-period measurement.
-pub const METHOD_PERIOD: &str = "period from rising mid-level crossings of out[0]";
-/// Method text of the edge-travel estimate.
-pub const METHOD_EDGE: &str =
-    "edge travel: stage delay from the time the single edge takes between two nodes";
+fn run(
+    system: &mut System,
+    ring: &Ring,
+    params: &RingParams,
+    record: bool,
+) -> Result<(RingReport, RingWaves), RingError> {
+    let stages = ring.outputs.len();
+    if stages < 3 || stages % 2 == 0 {
+        return Err(RingError::NoOscillation(
+            format!(
+            "a ring of inverting stages needs an odd number of at least 3 stages, this one has {stages}"
+        ),
+            None,
+        ));
+    }
+    if !(ring.vdd.is_finite() && ring.vdd > 0.0) {
+        return Err(RingError::NoOscillation(
+            format!("the ring needs a positive supply, not {} V", ring.vdd),
+            None,
+        ));
+    }
+    if !(params.stall_delays.is_finite() && params.stall_delays > 0.0) {
+        return Err(RingError::NoOscillation(
+            format!(
+                "the stall limit must be a positive number of stage delays, not {}",
+                params.stall_delays
+            ),
+            None,
+        ));
+    }
+    if params.edge {
+        run_edge(system, ring, params, record)
+    } else {
+        run_periods(system, ring, params, record)
+    }
+}
+
+/// Watches every stage output for transitions and stillness (see the module doc) and keeps
+/// the latest values, so a run that stops can say where the ring came to rest.
+struct Monitor {
+    vdd: f64,
+    stall_delays: f64,
+    high: Vec<bool>,
+    values: Vec<f64>,
+    /// Time of each output's first transition (NaN before it).
+    first_switch: Vec<f64>,
+    t: f64,
+    transitions: usize,
+    last_transition: f64,
+    estimate: f64,
+    still_since: Option<f64>,
+    still_steps: usize,
+    halted: Option<HaltCause>,
+}
+
+impl Monitor {
+    fn new(ring: &Ring, params: &RingParams) -> Self {
+        let values: Vec<f64> = start_levels(ring).collect();
+        Monitor {
+            vdd: ring.vdd,
+            stall_delays: params.stall_delays,
+            high: values.iter().map(|&v| v > 0.5 * ring.vdd).collect(),
+            first_switch: vec![f64::NAN; values.len()],
+            values,
+            t: 0.0,
+            transitions: 0,
+            last_transition: 0.0,
+            estimate: 0.0,
+            still_since: None,
+            still_steps: 0,
+            halted: None,
+        }
+    }
+
+    /// Takes the stage outputs at an accepted time; true when the run should stop.
+    fn step(&mut self, t: f64, outputs: &[f64]) -> bool {
+        let (lo, hi) = ((0.5 - BAND) * self.vdd, (0.5 + BAND) * self.vdd);
+        let dt = t - self.t;
+        let mut fastest = 0.0f64;
+        let nodes = outputs
+            .iter()
+            .zip(&mut self.values)
+            .zip(&mut self.high)
+            .zip(&mut self.first_switch);
+        for (((&v, old), high), first) in nodes {
+            fastest = fastest.max((v - *old).abs());
+            *old = v;
+            let switched = if *high { v < lo } else { v > hi };
+            if switched {
+                *high = !*high;
+                if first.is_nan() {
+                    *first = t;
+                }
+                if self.transitions == 0 {
+                    self.estimate = t;
+                } else if self.transitions < ESTIMATE_TRANSITIONS {
+                    self.estimate = self.estimate.max(t - self.last_transition);
+                }
+                self.transitions += 1;
+                self.last_transition = t;
+            }
+        }
+        self.t = t;
+        if self.transitions > 0 {
+            if t - self.last_transition > self.stall_delays * self.estimate {
+                self.halted = Some(HaltCause::Stalled);
+            }
+        } else if dt > 0.0 && fastest / dt * t < STILL_FRACTION * self.vdd {
+            let since = *self.still_since.get_or_insert(t);
+            self.still_steps += 1;
+            if t >= 2.0 * since && self.still_steps >= STILL_STEPS {
+                self.halted = Some(HaltCause::Still);
+            }
+        } else {
+            self.still_since = None;
+            self.still_steps = 0;
+        }
+        self.halted.is_some()
+    }
+
+    /// The no-oscillation error for `cause`, with `detail` and where the run ended.
+    fn error(
+        &self,
+        system: &System,
+        ring: &Ring,
+        cause: HaltCause,
+        detail: &str,
+        stats: &TransientStats,
+    ) -> RingError {
+        let estimate = (self.transitions > 0).then_some(self.estimate);
+        let why = match cause {
+            HaltCause::Stalled => format!(
+                "no stage output switched (crossed 40-60 % of V_DD) for {} estimated stage delays \
+                 of {:.3e} s after the last transition at t = {:.3e} s",
+                self.stall_delays, self.estimate, self.last_transition
+            ),
+            HaltCause::Still => format!(
+                "no stage output ever switched and all stopped moving (less than {STILL_FRACTION} \
+                 V_DD per elapsed time since t = {:.3e} s)",
+                self.still_since.unwrap_or(0.0)
+            ),
+            HaltCause::SwingUnsettled | HaltCause::TimeLimit | HaltCause::NoTravellingEdge => {
+                detail.to_string()
+            }
+        };
+        let mut list = String::new();
+        for (k, (&node, v)) in ring.outputs.iter().zip(&self.values).enumerate() {
+            if k == NAMED_VOLTAGES {
+                list.push_str(&format!(" and {} more", ring.outputs.len() - k));
+                break;
+            }
+            if k > 0 {
+                list.push_str(", ");
+            }
+            list.push_str(&format!("{} = {v:.4} V", system.node_name(node)));
+        }
+        RingError::NoOscillation(
+            format!(
+                "{why}; stopped at t = {:.3e} s after {} steps with the stage outputs at {list}",
+                stats.end_time, stats.accepted
+            ),
+            Some(Box::new(RingHalt {
+                cause,
+                simulated: stats.end_time,
+                steps: stats.accepted,
+                voltages: self.values.clone(),
+                transitions: self.transitions,
+                stage_delay_estimate: estimate,
+            })),
+        )
+    }
+}
+
+/// The last four samples of a signal (with the supply power and energy there), oldest first:
+/// enough to place a crossing between the middle two by the cubic rule of
+/// `lamina_measure::crossings`, read one sample after the crossing is seen.
+struct Window {
+    t: [f64; 4],
+    v: [f64; 4],
+    p: [f64; 4],
+    e: [f64; 4],
+    len: usize,
+}
+
+impl Window {
+    fn new() -> Self {
+        Window {
+            t: [0.0; 4],
+            v: [0.0; 4],
+            p: [0.0; 4],
+            e: [0.0; 4],
+            len: 0,
+        }
+    }
+
+    fn push(&mut self, t: f64, v: f64, p: f64) {
+        let e = match self.len {
+            0 => 0.0,
+            n => self.e[n - 1] + 0.5 * (self.p[n - 1] + p) * (t - self.t[n - 1]),
+        };
+        if self.len == 4 {
+            self.t.rotate_left(1);
+            self.v.rotate_left(1);
+            self.p.rotate_left(1);
+            self.e.rotate_left(1);
+            self.len = 3;
+        }
+        let k = self.len;
+        (self.t[k], self.v[k], self.p[k], self.e[k]) = (t, v, p, e);
+        self.len += 1;
+    }
+
+    /// Whether the newest two samples cross `level` in `direction`.
+    fn crossed(&self, level: f64, direction: Direction) -> bool {
+        let s = match direction {
+            Direction::Rising => 1.0,
+            Direction::Falling => -1.0,
+        };
+        self.len >= 2 && {
+            let (a, b) = (self.v[self.len - 2], self.v[self.len - 1]);
+            s * (a - level) < 0.0 && s * (b - level) >= 0.0
+        }
+    }
+
+    /// Time of the crossing of `level` between samples `i` and `i + 1`, and the supply energy
+    /// there (linear power between the samples, as `mean_over` integrates).
+    fn locate(&self, i: usize, level: f64, direction: Direction) -> (f64, f64) {
+        let (ta, tb, va, vb) = (self.t[i], self.t[i + 1], self.v[i], self.v[i + 1]);
+        let linear = ta + (level - va) * (tb - ta) / (vb - va);
+        let x = if i >= 1 && i + 2 < self.len {
+            // One allocation per crossing, not per step.
+            lamina_measure::crossings(&self.t[..self.len], &self.v[..self.len], level, direction)
+                .into_iter()
+                .find(|&c| c >= ta && c <= tb)
+                .unwrap_or(linear)
+        } else {
+            linear
+        };
+        let p_x = if tb > ta {
+            self.p[i] + (self.p[i + 1] - self.p[i]) * (x - ta) / (tb - ta)
+        } else {
+            self.p[i + 1]
+        };
+        (x, self.e[i] + 0.5 * (self.p[i] + p_x) * (x - ta))
+    }
+}
+
+/// Rising mid-level crossings of `out[0]` with the supply energy at each, the swing of
+/// `out[0]` in each period, and the settling decision.
+struct Periods {
+    level: f64,
+    window: Window,
+    pending: bool,
+    /// Located crossings: time and supply energy.
+    ups: Vec<(f64, f64)>,
+    /// Linearly interpolated crossings, for the stop decision.
+    ups_linear: Vec<f64>,
+    /// Swing (max - min) of `out[0]` between successive crossings.
+    swings: Vec<f64>,
+    lo: f64,
+    hi: f64,
+}
+
+impl Periods {
+    fn new(level: f64) -> Self {
+        Periods {
+            level,
+            window: Window::new(),
+            pending: false,
+            ups: Vec::new(),
+            ups_linear: Vec::new(),
+            swings: Vec::new(),
+            lo: f64::INFINITY,
+            hi: f64::NEG_INFINITY,
+        }
+    }
+
+    fn push(&mut self, t: f64, v: f64, p: f64) {
+        self.window.push(t, v, p);
+        let n = self.window.len;
+        if self.pending {
+            self.ups
+                .push(self.window.locate(n - 3, self.level, Direction::Rising));
+            self.pending = false;
+        }
+        if self.window.crossed(self.level, Direction::Rising) {
+            self.pending = true;
+            let w = &self.window;
+            let (ta, va) = (w.t[n - 2], w.v[n - 2]);
+            self.ups_linear
+                .push(ta + (self.level - va) / (v - va) * (t - ta));
+            if self.ups_linear.len() > 1 {
+                self.swings.push(self.hi - self.lo);
+            }
+            (self.lo, self.hi) = (v, v);
+        }
+        self.lo = self.lo.min(v);
+        self.hi = self.hi.max(v);
+    }
+
+    /// Places a crossing seen at the last sample (linearly: nothing follows it).
+    fn finish(&mut self) {
+        if self.pending {
+            let n = self.window.len;
+            self.ups
+                .push(self.window.locate(n - 2, self.level, Direction::Rising));
+            self.pending = false;
+        }
+    }
+
+    /// Whether the last `measure` periods (of the linear crossings) agree within
+    /// [`SETTLE_TOLERANCE`] and their swings within [`SWING_TOLERANCE`], allocation-free.
+    fn settled(&self, measure: usize) -> bool {
+        let m = measure.max(1);
+        let c = &self.ups_linear;
+        if c.len() < m + 1 {
+            return false;
+        }
+        let (mut lo, mut hi, mut sum) = (f64::INFINITY, f64::NEG_INFINITY, 0.0);
+        for w in c[c.len() - m - 1..].windows(2) {
+            let p = w[1] - w[0];
+            lo = lo.min(p);
+            hi = hi.max(p);
+            sum += p;
+        }
+        let swings = &self.swings[self.swings.len().saturating_sub(m)..];
+        (hi - lo) / (sum / m as f64) <= SETTLE_TOLERANCE && swing_steady(swings)
+    }
+}
+
+/// Whether `swings` agree within [`SWING_TOLERANCE`] of the largest.
+fn swing_steady(swings: &[f64]) -> bool {
+    let (lo, hi) = swings
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| {
+            (a.min(x), b.max(x))
+        });
+    swings.is_empty() || hi - lo <= SWING_TOLERANCE * hi
+}
+
+/// The whole-period measurement.
+fn run_periods(
+    system: &mut System,
+    ring: &Ring,
+    params: &RingParams,
+    record: bool,
+) -> Result<(RingReport, RingWaves), RingError> {
+    let stages = ring.outputs.len();
+    let tp = transient_params(params);
+    let level = 0.5 * ring.vdd;
+    // Settling: after at least `discard` periods, stop once `measure` successive periods agree
+    // within SETTLE_TOLERANCE (or after MAX_EXTRA_PERIODS more, reporting the spread).
+    let needed = params.discard + params.measure + 1;
+    let cap = needed + MAX_EXTRA_PERIODS;
+    let mut periods = Periods::new(level);
+    let mut monitor = Monitor::new(ring, params);
+    let mut waves = Decimator::new(if record { params.wave_samples } else { 2 }, 2);
+    waves.push(0.0, &[ring.vdd, 0.0]);
+    // The supply energy counts from the first step (power taken as 0 at t = 0); only its
+    // differences between crossings are used.
+    periods.push(0.0, ring.vdd, 0.0);
+    // Progress on stderr (hidden when stderr is not a terminal): periods seen and time reached.
+    let bar = indicatif::ProgressBar::new(needed as u64 + 1);
+    if let Ok(style) =
+        indicatif::ProgressStyle::with_template("{bar:30} {pos}/{len} periods  {msg}")
+    {
+        bar.set_style(style);
+    }
+    let mut steps = 0u64;
+    let res = {
+        let mut observer = |t: f64, v: &[f64]| {
+            let outputs = &v[1..];
+            let seen = periods.ups_linear.len();
+            periods.push(t, outputs[0], -v[0] * ring.vdd);
+            if periods.ups_linear.len() > seen {
+                bar.set_position(periods.ups_linear.len() as u64);
+            }
+            if record {
+                waves.push(t, &outputs[..2]);
+            }
+            steps += 1;
+            if steps % 2000 == 0 {
+                bar.set_message(format!("t = {:.3} ns, {steps} steps", t * 1e9));
+            }
+            let seen = periods.ups_linear.len();
+            let stalled = monitor.step(t, outputs);
+            if stalled || (seen > needed && periods.settled(params.measure)) || seen > cap {
+                Control::Stop
+            } else {
+                Control::Continue
+            }
+        };
+        let probes = probes(ring);
+        system.transient(&tp, &single_edge_start(ring), &probes, Some(&mut observer))
+    };
+    bar.finish_and_clear();
+    let res = res?;
+    periods.finish();
+    let stats = res.stats;
+    if let Some(cause) = monitor.halted {
+        return Err(monitor.error(system, ring, cause, "", &stats));
+    }
+    let fail = |why: String| monitor.error(system, ring, HaltCause::TimeLimit, &why, &stats);
+    // Discard up to where the waveform settled: the first start-up count at or above
+    // `discard` after which `measure` located periods agree.
+    let c: Vec<f64> = periods.ups.iter().map(|u| u.0).collect();
+    let m = params.measure.max(1);
+    let lengths: Vec<f64> = c.windows(2).map(|w| w[1] - w[0]).collect();
+    let discard = lengths
+        .len()
+        .checked_sub(m)
+        .and_then(|last| {
+            (params.discard..=last).find(|&d| {
+                let w = &lengths[d..d + m];
+                let (lo, hi) = w
+                    .iter()
+                    .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &p| {
+                        (a.min(p), b.max(p))
+                    });
+                (hi - lo) / (w.iter().sum::<f64>() / m as f64) <= SETTLE_TOLERANCE
+                    && periods.swings.get(d..d + m).is_none_or(swing_steady)
+            })
+        })
+        .unwrap_or_else(|| {
+            c.len()
+                .saturating_sub(params.measure + 1)
+                .max(params.discard)
+        });
+    if c.len() < discard + 2 {
+        return Err(fail(format!(
+            "found {} rising crossings of {level} V on out[0] but need at least {} ({discard} \
+             discarded plus one whole period) by the time limit",
+            c.len(),
+            discard + 2
+        )));
+    }
+    let used = c.len() - 1 - discard;
+    if used < params.measure {
+        return Err(fail(format!(
+            "only {used} whole period(s) after start-up by the time limit, {} needed",
+            params.measure
+        )));
+    }
+    let kept = &lengths[discard..];
+    let period = (c[c.len() - 1] - c[discard]) / used as f64;
+    let (lo, hi) = kept
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &p| {
+            (a.min(p), b.max(p))
+        });
+    // The swing over the measured periods must have settled too: a ring winding down to its
+    // balanced state keeps a regular period for a while.
+    if let Some(swings) = periods.swings.get(discard..c.len() - 1) {
+        if !swing_steady(swings) {
+            let (first, last) = (swings[0], swings[swings.len() - 1]);
+            return Err(monitor.error(
+                system,
+                ring,
+                HaltCause::SwingUnsettled,
+                &format!(
+                    "the swing of out[0] does not settle: {first:.4} V in the first and \
+                     {last:.4} V in the last of the {used} measured periods (they must agree \
+                     within {} %)",
+                    SWING_TOLERANCE * 100.0
+                ),
+                &stats,
+            ));
+        }
+    }
+    // Supply power over the measured periods: the supply's branch current flows from its
+    // positive pin through it, so the power it delivers is -V_DD i (accumulated as energy).
+    let (t0, e0) = periods.ups[discard];
+    let (t1, e1) = periods.ups[c.len() - 1];
+    let avg_power = (e1 - e0) / (t1 - t0);
+    let frequency = 1.0 / period;
+    let report = RingReport {
+        method: METHOD_PERIOD,
+        stages,
+        avg_power,
+        energy_per_cycle: avg_power * period,
+        frequency,
+        period,
+        stage_delay: 1.0 / (2.0 * stages as f64 * frequency),
+        periods_discarded: discard,
+        periods_used: used,
+        period_spread: (hi - lo) / period,
+        steps: stats.accepted,
+        rejected: stats.rejected_lte + stats.rejected_newton,
+        newton_iterations: stats.newton_iterations,
+        simulated: stats.end_time,
+    };
+    Ok((report, split_waves(waves)))
+}
+
+fn split_waves(waves: Decimator) -> RingWaves {
+    let (time, mut signals) = waves.finish();
+    let second = signals.pop().unwrap_or_default();
+    let first = signals.pop().unwrap_or_default();
+    (time, first, second)
+}
 
 /// The edge-travel estimate (for long rings of identical stages): after the single edge has
 /// formed over the first stages, it travels at constant speed, so the time between its
@@ -306,6 +790,7 @@ fn run_edge(
     system: &mut System,
     ring: &Ring,
     params: &RingParams,
+    record: bool,
 ) -> Result<(RingReport, RingWaves), RingError> {
     let stages = ring.outputs.len();
     // Let the edge form over about 20 stages, then time it over as many as the ring allows.
@@ -314,48 +799,117 @@ fn run_edge(
     // run does not grow with the ring beyond that.
     let b = a + 2 * ((stages - 1 - a) / 2).min(100);
     if b <= a + 1 {
-        return Err(RingError::NoOscillation(format!(
-            "{stages} stages are too few for the edge-travel estimate; use whole periods"
-        )));
+        return Err(RingError::NoOscillation(
+            format!("{stages} stages are too few for the edge-travel estimate; use whole periods"),
+            None,
+        ));
     }
     let tp = transient_params(params);
     let level = 0.5 * ring.vdd;
-    let mut last = f64::NAN;
+    let mut monitor = Monitor::new(ring, params);
+    let mut waves = Decimator::new(if record { params.wave_samples } else { 2 }, 2);
+    // Nodes A and B are even: they start high and fall when the edge reaches them.
+    let mut window_a = Window::new();
+    window_a.push(0.0, ring.vdd, 0.0);
+    let mut pending_a = false;
+    let mut ta: Option<f64> = None;
+    let mut tb: Option<f64> = None;
+    let mut last_b = ring.vdd;
+    let mut last_t = 0.0;
+    waves.push(0.0, &[ring.vdd, ring.vdd]);
     let bar = indicatif::ProgressBar::new(b as u64);
     let mut steps = 0u64;
-    let mut observer = |t: f64, v: &[f64]| {
-        steps += 1;
-        if steps % 2000 == 0 {
-            bar.set_message(format!("t = {:.3} ns, {steps} steps", t * 1e9));
-        }
-        // Node B (even, starting high) falls when the edge reaches it.
-        let done = last > level && v[1] <= level;
-        last = v[1];
-        if done {
-            Control::Stop
-        } else {
-            Control::Continue
-        }
+    let res = {
+        let mut observer = |t: f64, v: &[f64]| {
+            let outputs = &v[1..];
+            steps += 1;
+            if steps % 2000 == 0 {
+                bar.set_message(format!("t = {:.3} ns, {steps} steps", t * 1e9));
+            }
+            if record {
+                waves.push(t, &[outputs[a], outputs[b]]);
+            }
+            if ta.is_none() {
+                window_a.push(t, outputs[a], 0.0);
+                let n = window_a.len;
+                if pending_a {
+                    ta = Some(window_a.locate(n - 3, level, Direction::Falling).0);
+                    pending_a = false;
+                } else if window_a.crossed(level, Direction::Falling) {
+                    pending_a = true;
+                }
+            }
+            let vb = outputs[b];
+            if last_b > level && vb <= level {
+                tb = Some(last_t + (level - last_b) / (vb - last_b) * (t - last_t));
+            }
+            last_b = vb;
+            last_t = t;
+            let stalled = monitor.step(t, outputs);
+            if stalled || tb.is_some() {
+                Control::Stop
+            } else {
+                Control::Continue
+            }
+        };
+        let probes = probes(ring);
+        system.transient(&tp, &single_edge_start(ring), &probes, Some(&mut observer))
     };
-    let probes = [
-        Probe::Voltage(ring.outputs[a]),
-        Probe::Voltage(ring.outputs[b]),
-    ];
-    let res = system.transient(&tp, &single_edge_start(ring), &probes, Some(&mut observer));
     bar.finish_and_clear();
     let res = res?;
-    let first = |v: &[f64]| {
-        lamina_measure::crossings(&res.time, v, level, lamina_measure::Direction::Falling)
-            .first()
-            .copied()
-    };
-    let (ta, tb) = match (first(&res.signals[0]), first(&res.signals[1])) {
+    let stats = res.stats;
+    if ta.is_none() && pending_a {
+        let n = window_a.len;
+        ta = Some(window_a.locate(n - 2, level, Direction::Falling).0);
+    }
+    if let Some(cause) = monitor.halted.filter(|_| tb.is_none()) {
+        return Err(monitor.error(system, ring, cause, "", &stats));
+    }
+    // The edge must have reached B through every stage from A, each switching after the one
+    // before it; a node that falls for another reason (a load pulling every node down) says
+    // nothing about the stage delay.
+    if let Some(t_b) = tb {
+        let first = &monitor.first_switch;
+        let broken = (a..b).find(|&i| {
+            let next = if i + 1 == b { t_b } else { first[i + 1] };
+            // NaN (not switched) fails too.
+            first[i].partial_cmp(&next) != Some(std::cmp::Ordering::Less)
+        });
+        if let Some(i) = broken {
+            let name = |k: usize| system.node_name(ring.outputs[k]);
+            let when = |k: usize, t: f64| {
+                if t.is_nan() {
+                    format!("{} had not switched", name(k))
+                } else {
+                    format!("{} switched at t = {t:.3e} s", name(k))
+                }
+            };
+            let next = if i + 1 == b { t_b } else { first[i + 1] };
+            return Err(monitor.error(
+                system,
+                ring,
+                HaltCause::NoTravellingEdge,
+                &format!(
+                    "{} fell at t = {t_b:.3e} s, but not after an edge travelling from {} ({}, {})",
+                    name(b),
+                    name(a),
+                    when(i, first[i]),
+                    when(i + 1, next),
+                ),
+                &stats,
+            ));
+        }
+    }
+    let (ta, tb) = match (ta, tb) {
         (Some(ta), Some(tb)) if tb > ta => (ta, tb),
         _ => {
-            return Err(RingError::NoOscillation(format!(
-                "no edge reached out[{b}] after out[{a}] by t = {:.3e} s",
-                res.stats.end_time
-            )))
+            return Err(monitor.error(
+                system,
+                ring,
+                HaltCause::TimeLimit,
+                &format!("no edge reached out[{b}] after out[{a}] by the time limit"),
+                &stats,
+            ))
         }
     };
     let stage_delay = (tb - ta) / (b - a) as f64;
@@ -371,13 +925,10 @@ fn run_edge(
         periods_discarded: 0,
         periods_used: 0,
         period_spread: f64::NAN,
-        steps: res.stats.accepted,
-        rejected: res.stats.rejected_lte + res.stats.rejected_newton,
-        newton_iterations: res.stats.newton_iterations,
-        simulated: res.stats.end_time,
+        steps: stats.accepted,
+        rejected: stats.rejected_lte + stats.rejected_newton,
+        newton_iterations: stats.newton_iterations,
+        simulated: stats.end_time,
     };
-    let mut signals = res.signals;
-    let second = signals.pop().unwrap_or_default();
-    let first = signals.pop().unwrap_or_default();
-    Ok((report, (res.time, first, second)))
+    Ok((report, split_waves(waves)))
 }

@@ -5,9 +5,10 @@
 //! Circuits, 2nd ed., 2003, ch. 5), so N·f is the same for every N once a single edge
 //! circulates.
 
-use lamina::builtin::{square_ring, SquareStage};
-use lamina::ring::{run_ring, RingParams, RingReport};
-use lamina_engine::{Integrator, System};
+use lamina::builtin::{square_ring, Ring, SquareStage};
+use lamina::ring::{run_ring, run_ring_recorded, HaltCause, RingHalt, RingParams, RingReport};
+use lamina_engine::elements::Resistor;
+use lamina_engine::{Circuit, Integrator, System};
 
 fn ring(stages: usize, params: &RingParams) -> RingReport {
     let (circuit, ring) = square_ring(stages, &SquareStage::default()).unwrap();
@@ -93,6 +94,7 @@ fn an_even_ring_is_reported_as_not_oscillating() {
     let mut sys = System::new(circuit).unwrap();
     let err = run_ring(&mut sys, &ring, &RingParams::default()).unwrap_err();
     assert!(err.to_string().contains("odd number"), "{err}");
+    assert!(err.halt().is_none(), "refused before any run");
 }
 
 /// Energy per cycle against the switched capacitance: every stage output is charged once per
@@ -180,4 +182,196 @@ fn edge_travel_estimate_agrees_with_whole_periods() {
         edge.simulated < 0.6 * period.simulated,
         "no full period is needed"
     );
+}
+
+/// Runs a ring that must not oscillate, with whole periods or edge travel, and returns where it
+/// stopped; the message must say so and name the settled stage outputs.
+fn halt(circuit: Circuit, ring: &Ring, edge: bool) -> (RingHalt, String) {
+    let mut sys = System::new(circuit).unwrap();
+    let params = RingParams {
+        edge,
+        ..RingParams::default()
+    };
+    let err = run_ring(&mut sys, ring, &params).unwrap_err();
+    let msg = err.to_string();
+    assert!(msg.contains("does not oscillate"), "{msg}");
+    let h = err
+        .halt()
+        .unwrap_or_else(|| panic!("no halt data: {msg}"))
+        .clone();
+    assert_eq!(h.voltages.len(), ring.outputs.len());
+    let first = sys.node_name(ring.outputs[0]);
+    assert!(
+        msg.contains(&format!("{first} = {:.4} V", h.voltages[0])),
+        "{msg}"
+    );
+    assert!(
+        msg.contains(&format!("{:.3e} s after {} steps", h.simulated, h.steps)),
+        "{msg}"
+    );
+    if ring.outputs.len() > 8 {
+        assert!(
+            msg.contains(&format!("and {} more", ring.outputs.len() - 8)),
+            "{msg}"
+        );
+    }
+    assert!(h.simulated < 0.2 * params.time_limit, "{msg}");
+    (h, msg)
+}
+
+/// With V_DD = 0.2 V below both thresholds (0.3 V) no square-law device conducts: nothing
+/// moves from the start state, no transition is ever seen, and the stillness rule stops the
+/// run within a few steps, with every output where it started.
+#[test]
+fn a_ring_below_threshold_stops_as_still() {
+    for (stages, edge) in [(11, false), (101, true)] {
+        let stage = SquareStage {
+            vdd: 0.2,
+            ..SquareStage::default()
+        };
+        let (circuit, ring) = square_ring(stages, &stage).unwrap();
+        let (h, msg) = halt(circuit, &ring, edge);
+        assert_eq!(h.cause, HaltCause::Still, "{msg}");
+        assert_eq!((h.transitions, h.stage_delay_estimate), (0, None));
+        assert!(h.steps <= 50, "{msg}");
+        for (i, v) in h.voltages.iter().enumerate() {
+            let start = if i % 2 == 0 { 0.2 } else { 0.0 };
+            assert!((v - start).abs() < 1e-6, "out[{i}] = {v}");
+        }
+    }
+}
+
+/// Six inverters with only five outputs named: the loop has an even number of inversions, so
+/// the alternating start is a stable state of the latch and nothing ever switches.
+#[test]
+fn a_loop_of_even_inversions_stops_as_still() {
+    let (circuit, six) = square_ring(6, &SquareStage::default()).unwrap();
+    let ring = Ring {
+        outputs: six.outputs[1..].to_vec(),
+        ..six
+    };
+    let (h, msg) = halt(circuit, &ring, false);
+    assert_eq!(h.cause, HaltCause::Still, "{msg}");
+    assert!(h.steps <= 50, "{msg}");
+    for (i, v) in h.voltages.iter().enumerate() {
+        let start = if i % 2 == 0 { 1.0 } else { 0.0 };
+        assert!((v - start).abs() < 1e-6, "listed output {i} = {v}");
+    }
+}
+
+/// 10 kΩ from every output to ground holds each node below 0.25 V even with its pull-up fully
+/// on (k/2 (V_DD - V_T)² = 24.5 µA, at most 0.245 V across 10 kΩ): the high nodes fall through
+/// the band at once and the ring stalls. Whole periods stop within a few hundred stage delays
+/// estimated from those first transitions (the steps may grow past the deadline by at most
+/// about the time run so far, hence the factor 3). Edge travel stops as soon as its far node
+/// falls without the edge having switched the stages before it.
+#[test]
+fn a_ring_held_low_by_its_loads_stops_early() {
+    for (stages, edge) in [(11, false), (101, true)] {
+        let (mut circuit, ring) = square_ring(stages, &SquareStage::default()).unwrap();
+        for (i, &n) in ring.outputs.iter().enumerate() {
+            circuit
+                .add(
+                    &format!("held[{i}]"),
+                    Resistor::new(1e4),
+                    &[n, Circuit::GROUND],
+                )
+                .unwrap();
+        }
+        let (h, msg) = halt(circuit, &ring, edge);
+        assert!(h.transitions > 0, "{msg}");
+        let te = h.stage_delay_estimate.unwrap();
+        let stall = RingParams::default().stall_delays;
+        if edge {
+            assert_eq!(h.cause, HaltCause::NoTravellingEdge, "{msg}");
+            assert!(h.simulated < stall * te, "{msg}");
+            assert!(
+                msg.contains("but not after an edge travelling from out[20]"),
+                "{msg}"
+            );
+        } else {
+            assert_eq!(h.cause, HaltCause::Stalled, "{msg}");
+            assert!(h.simulated > stall * te, "{msg}");
+            assert!(h.simulated < 3.0 * (stall + 2.0) * te, "{msg}");
+            // All outputs settle at the same low level.
+            for v in &h.voltages {
+                assert!((v - h.voltages[0]).abs() < 1e-3 && *v < 0.25, "{msg}");
+            }
+        }
+    }
+}
+
+/// A ring of N single-pole stages (gain A, time constant τ = RC) oscillates only when
+/// A cos(π/N) > 1, and then near that threshold at ω = tan(π/N) / τ (common practice; e.g.
+/// B. Razavi, Design of Analog CMOS Integrated Circuits, 2001, ring oscillators in the
+/// oscillators chapter). Square-law stages biased at V_DD / 2 by a resistor R from every output
+/// to a 0.5 V source have A = (k_n + k_p)(V_DD / 2 - V_T) R = 40 µS · R and τ = R · 1 fF. Below
+/// the threshold the ring winds down to its balanced state and must be refused (by the stall
+/// rule, or by the swing check while its period is still regular); just above it, it oscillates
+/// at the small-signal frequency.
+#[test]
+fn a_ring_below_the_oscillation_gain_is_refused() {
+    use lamina_engine::elements::VoltageSource;
+    let n = 11.0;
+    let threshold = 1.0 / (std::f64::consts::PI / n).cos() / 40e-6;
+    let run = |r: f64| {
+        let (mut circuit, ring) = square_ring(11, &SquareStage::default()).unwrap();
+        let mid = circuit.node("mid");
+        circuit
+            .add("bias", VoltageSource::dc(0.5), &[mid, Circuit::GROUND])
+            .unwrap();
+        for (i, &node) in ring.outputs.iter().enumerate() {
+            circuit
+                .add(&format!("bias[{i}]"), Resistor::new(r), &[node, mid])
+                .unwrap();
+        }
+        let mut sys = System::new(circuit).unwrap();
+        run_ring(&mut sys, &ring, &RingParams::default())
+    };
+    for factor in [0.9, 0.97, 0.99] {
+        let err = run(factor * threshold).unwrap_err();
+        let cause = err.halt().map(|h| h.cause);
+        assert!(
+            matches!(
+                cause,
+                Some(HaltCause::Stalled) | Some(HaltCause::SwingUnsettled)
+            ),
+            "gain {factor} of the threshold: {err}"
+        );
+    }
+    let r = 1.01 * threshold;
+    let report = run(r).unwrap();
+    let linear = (std::f64::consts::PI / n).tan() / (2.0 * std::f64::consts::PI * r * 1e-15);
+    assert!(
+        (report.frequency / linear - 1.0).abs() < 1e-2,
+        "{:e} vs {linear:e}",
+        report.frequency
+    );
+}
+
+/// The waveforms handed back for plots are thinned to `wave_samples`, and the measured
+/// figures do not depend on it (they are measured as the steps arrive).
+#[test]
+fn ring_waveforms_keep_their_bound_and_the_figures_do_not_move() {
+    let run = |wave_samples: usize| {
+        let (circuit, ring) = square_ring(11, &SquareStage::default()).unwrap();
+        let mut sys = System::new(circuit).unwrap();
+        let params = RingParams {
+            wave_samples,
+            ..RingParams::default()
+        };
+        run_ring_recorded(&mut sys, &ring, &params).unwrap()
+    };
+    let (whole, (t, a, b)) = run(1 << 20);
+    assert_eq!(t.len(), whole.steps + 1, "every step fits");
+    let (thin, (tt, ta, tb)) = run(100);
+    assert_eq!(thin, whole);
+    assert!(tt.len() <= 100 && tt.len() >= 50, "{} samples", tt.len());
+    assert_eq!((ta.len(), tb.len()), (tt.len(), tt.len()));
+    assert_eq!((tt[0], ta[0], tb[0]), (0.0, 1.0, 0.0));
+    assert_eq!(*tt.last().unwrap(), thin.simulated);
+    for (k, &tk) in tt.iter().enumerate() {
+        let i = t.partition_point(|&x| x < tk);
+        assert_eq!((t[i], a[i], b[i]), (tk, ta[k], tb[k]), "sample {k}");
+    }
 }

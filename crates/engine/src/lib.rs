@@ -54,6 +54,6 @@ pub use element::{Analysis, Element, EvalContext, Internal, Stamp, UnknownKind};
 pub use error::{Culprit, EngineError};
 pub use system::{NewtonInfo, NewtonParams, System, Tolerances};
 pub use transient::{
-    Control, Integrator, Observer, Output, Start, Stepping, TransientParams, TransientResult,
-    TransientStats,
+    Control, Decimator, Integrator, Observer, Output, Start, Stepping, TransientParams,
+    TransientResult, TransientStats,
 };

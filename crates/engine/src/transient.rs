@@ -21,6 +21,24 @@
 //! there, and the first step after it (and at t = 0) is a damped backward-Euler step, which
 //! keeps the trapezoidal rule from ringing. A step whose Newton solve fails is retried at a
 //! quarter of its length; below the minimum step the run stops with the worst equations named.
+//!
+//! # Recording and memory
+//! [`Output`] chooses what the run stores. [`Output::EveryStep`] and [`Output::Interval`] grow
+//! with the run (one sample per accepted step or per interval), so they suit runs whose length
+//! is known. Two modes are bounded however long the run:
+//!
+//! * [`Output::Decimated`]`(max)` keeps at most `max` samples (`max >= 2`). Samples are indexed
+//!   by accepted step (t = 0 is index 0, the k-th accepted step index k) and index k is kept
+//!   when k is a multiple of the stride `s`, a power of two starting at 1. When `max` samples
+//!   are kept and another step arrives, the samples at odd multiples of `s` are dropped and `s`
+//!   doubles; the last accepted step is appended at the end when the grid does not hold it. A
+//!   run of at most `max - 1` steps is therefore recorded whole.
+//!   Since the adaptive step is short where the waveform moves fast, a grid in step count
+//!   keeps edges better than one in time. [`Decimator`] is the same rule for callers that
+//!   record from an observer.
+//! * [`Output::Streaming`] stores nothing: the observer sees every accepted step and the
+//!   result's `time` and signals are empty. Jobs that measure while the run goes (crossings,
+//!   integrals) use it.
 
 use crate::circuit::NodeId;
 use crate::dc::{OpInfo, OpParams, Probe};
@@ -57,6 +75,11 @@ pub enum Output {
     EveryStep,
     /// Every `dt` seconds from 0, interpolated linearly between accepted steps.
     Interval(f64),
+    /// At most this many samples (at least 2), thinned by halving as the run goes (see the
+    /// module doc for the rule).
+    Decimated(usize),
+    /// Nothing stored; only the observer sees the steps.
+    Streaming,
 }
 
 /// How the run starts.
@@ -238,6 +261,13 @@ impl System {
                 return Err(EngineError::Invalid(
                     "output interval must be positive".into(),
                 ));
+            }
+        }
+        if let Output::Decimated(max) = p.output {
+            if max < 2 {
+                return Err(EngineError::Invalid(format!(
+                    "a decimated recording keeps at least 2 samples, {max} asked"
+                )));
             }
         }
         let (idx, names) = self.probe_unknowns(probes)?;
@@ -600,7 +630,7 @@ impl System {
     }
 }
 
-/// Collects samples, either at accepted steps or on a fixed grid.
+/// Collects samples, at accepted steps, on a fixed grid, decimated, or not at all.
 struct Recorder {
     mode: Output,
     time: Vec<f64>,
@@ -608,10 +638,15 @@ struct Recorder {
     last_t: f64,
     last: Vec<f64>,
     next_k: u64,
+    decimator: Option<Decimator>,
 }
 
 impl Recorder {
     fn new(mode: Output, m: usize) -> Self {
+        let decimator = match mode {
+            Output::Decimated(max) => Some(Decimator::new(max, m)),
+            _ => None,
+        };
         Recorder {
             mode,
             time: Vec::new(),
@@ -619,6 +654,7 @@ impl Recorder {
             last_t: 0.0,
             last: vec![0.0; m],
             next_k: 1,
+            decimator,
         }
     }
 
@@ -630,7 +666,15 @@ impl Recorder {
     }
 
     fn first(&mut self, t: f64, values: &[f64]) {
-        self.record(t, values);
+        match self.mode {
+            Output::EveryStep | Output::Interval(_) => self.record(t, values),
+            Output::Decimated(_) => {
+                if let Some(d) = self.decimator.as_mut() {
+                    d.push(t, values);
+                }
+            }
+            Output::Streaming => {}
+        }
         self.last_t = t;
         self.last.copy_from_slice(values);
     }
@@ -654,12 +698,144 @@ impl Recorder {
                 }
                 self.next_k += 1;
             },
+            Output::Decimated(_) => {
+                if let Some(d) = self.decimator.as_mut() {
+                    d.push(t, values);
+                }
+                return;
+            }
+            Output::Streaming => return,
         }
         self.last_t = t;
         self.last.copy_from_slice(values);
     }
 
     fn finish(self) -> (Vec<f64>, Vec<Vec<f64>>) {
+        match self.decimator {
+            Some(d) => d.finish(),
+            None => (self.time, self.signals),
+        }
+    }
+}
+
+/// A recording of at most `max` samples of `width` signals, however many are pushed.
+///
+/// The k-th pushed sample (from 0) is kept when k is a multiple of the stride, a power of two
+/// starting at 1; when `max` samples are kept and another arrives, those at odd multiples of
+/// the stride are dropped and the stride doubles. [`Decimator::finish`] appends the last pushed
+/// sample when the grid does not hold it, so a recording ends where its run ended. Memory is
+/// `max · (width + 1)` numbers; once the buffers have grown to that, pushing allocates nothing.
+///
+/// ```
+/// use lamina_engine::Decimator;
+/// let mut d = Decimator::new(10, 1);
+/// for k in 0..1000 {
+///     d.push(k as f64, &[2.0 * k as f64]);
+/// }
+/// let (t, v) = d.finish();
+/// assert!(t.len() <= 10);
+/// assert_eq!(t[0], 0.0);
+/// assert_eq!(*t.last().unwrap(), 999.0);
+/// assert_eq!(v[0][1], 2.0 * t[1]);
+/// ```
+#[derive(Clone, Debug)]
+pub struct Decimator {
+    max: usize,
+    stride: u64,
+    pushed: u64,
+    time: Vec<f64>,
+    signals: Vec<Vec<f64>>,
+    last_t: f64,
+    last: Vec<f64>,
+    last_kept: bool,
+}
+
+impl Decimator {
+    /// An empty recording of at most `max` samples of `width` signals (a `max` below 2 counts
+    /// as 2: the first and the last sample).
+    pub fn new(max: usize, width: usize) -> Self {
+        Decimator {
+            max: max.max(2),
+            stride: 1,
+            pushed: 0,
+            time: Vec::new(),
+            signals: vec![Vec::new(); width],
+            last_t: f64::NAN,
+            last: vec![f64::NAN; width],
+            last_kept: false,
+        }
+    }
+
+    /// Offers one sample; `values` holds one entry per signal (missing ones are recorded as
+    /// NaN, extra ones ignored).
+    pub fn push(&mut self, t: f64, values: &[f64]) {
+        let k = self.pushed;
+        self.pushed += 1;
+        self.last_t = t;
+        for (j, l) in self.last.iter_mut().enumerate() {
+            *l = values.get(j).copied().unwrap_or(f64::NAN);
+        }
+        // A full grid holds the previous sample; halving it leaves room for this one (or, if
+        // this one is off the new grid, for appending it at the end).
+        if self.time.len() >= self.max {
+            self.halve();
+        }
+        // The stride is a power of two: k is on the grid when its low bits are clear.
+        if k & (self.stride - 1) != 0 {
+            self.last_kept = false;
+            return;
+        }
+        self.time.push(t);
+        for (j, s) in self.signals.iter_mut().enumerate() {
+            s.push(self.last[j]);
+        }
+        self.last_kept = true;
+    }
+
+    /// Drops the samples at odd multiples of the stride and doubles it.
+    fn halve(&mut self) {
+        let keep = |v: &mut Vec<f64>| {
+            let n = v.len().div_ceil(2);
+            for i in 0..n {
+                v[i] = v[2 * i];
+            }
+            v.truncate(n);
+        };
+        keep(&mut self.time);
+        for s in &mut self.signals {
+            keep(s);
+        }
+        self.stride *= 2;
+    }
+
+    /// Samples kept so far (the last pushed one may be added by [`Decimator::finish`]).
+    pub fn len(&self) -> usize {
+        self.time.len()
+    }
+
+    /// Whether nothing has been kept.
+    pub fn is_empty(&self) -> bool {
+        self.time.is_empty()
+    }
+
+    /// The current stride in pushed samples.
+    pub fn stride(&self) -> u64 {
+        self.stride
+    }
+
+    /// Samples pushed so far.
+    pub fn pushed(&self) -> u64 {
+        self.pushed
+    }
+
+    /// The kept times and, per signal, the kept values (at most `max` samples).
+    pub fn finish(mut self) -> (Vec<f64>, Vec<Vec<f64>>) {
+        if self.pushed > 0 && !self.last_kept {
+            self.time.push(self.last_t);
+            for (s, &v) in self.signals.iter_mut().zip(&self.last) {
+                s.push(v);
+            }
+        }
         (self.time, self.signals)
     }
 }
