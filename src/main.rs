@@ -43,6 +43,7 @@ enum Job {
 }
 
 fn main() -> ExitCode {
+    lamina::output::on_interrupt();
     let result = match Cli::parse().job {
         Job::Ring(a) => cli::ring::run(a),
         Job::Check(a) => cli::check::run(a),

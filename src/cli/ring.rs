@@ -4,7 +4,7 @@
 use crate::builtin::{square_ring, Ring, SquareStage};
 use crate::design;
 use crate::error::JobError;
-use crate::output::{csv, ensure_dir, write_whole as write_file};
+use crate::output::{csv, ensure_dir, write_whole as write_file, OutputSet};
 use crate::ring::{run_ring_recorded, RingParams, RingReport, RingWaves};
 use crate::{note, out};
 use clap::ValueEnum;
@@ -69,6 +69,7 @@ pub struct Args {
 
 /// Runs the job.
 pub fn run(a: Args) -> Result<(), JobError> {
+    let set_out = OutputSet::begin_opt(a.out.as_deref())?;
     let params = RingParams {
         integrator: method(a.integrator),
         reference: a.reference,
@@ -85,7 +86,7 @@ pub fn run(a: Args) -> Result<(), JobError> {
             let sets = design::parse_sets(&a.set)?;
             let d = design::load(file, &sets)?;
             let (mut system, ring, params) = design::ring_from(d, &params)?;
-            finish_ring(&mut system, &ring, &params, a.json, a.dump_matrix, a.out)
+            finish_ring(&mut system, &ring, &params, a.json, a.dump_matrix, set_out)
         }
         (None, Some(Builtin::SquareRing)) => {
             let stages = a.stages.unwrap_or(11);
@@ -100,7 +101,7 @@ pub fn run(a: Args) -> Result<(), JobError> {
             let (circuit, ring) =
                 square_ring(stages, &stage).map_err(|e| JobError::Analysis(e.to_string()))?;
             let mut system = System::new(circuit).map_err(|e| JobError::Analysis(e.to_string()))?;
-            finish_ring(&mut system, &ring, &params, a.json, a.dump_matrix, a.out)
+            finish_ring(&mut system, &ring, &params, a.json, a.dump_matrix, set_out)
         }
         (None, None) => Err(JobError::Usage(
             "give a circuit file or --builtin square-ring".into(),
@@ -115,15 +116,16 @@ pub(crate) fn finish_ring(
     params: &RingParams,
     json: bool,
     dump_matrix: Option<PathBuf>,
-    out: Option<PathBuf>,
+    out: Option<OutputSet>,
 ) -> Result<(), JobError> {
     if let Some(path) = dump_matrix {
         dump(system, ring, &path)?;
     }
     let (report, waves) =
         run_ring_recorded(system, ring, params).map_err(|e| JobError::Analysis(e.to_string()))?;
-    if let Some(dir) = &out {
-        write_ring(dir, &report, &waves).map_err(JobError::Io)?;
+    if let Some(set) = out {
+        write_ring(set.dir(), &report, &waves).map_err(JobError::Io)?;
+        set.commit()?;
     }
     if json {
         out!("{}", ring_json(&report));
@@ -146,10 +148,6 @@ pub(crate) fn write_ring(dir: &Path, r: &RingReport, w: &RingWaves) -> Result<()
         format!("{}\n", ring_json(r)).as_bytes(),
     )?;
     crate::plot::waveforms(&dir.join("waveforms"), t, &[("out[0]", a), ("out[1]", b)])?;
-    note!(
-        "wrote waveforms.csv, summary.json and waveforms.svg/png to {}",
-        dir.display()
-    );
     Ok(())
 }
 

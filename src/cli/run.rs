@@ -4,7 +4,7 @@ use super::{outcome_json, print_outcome, Common};
 use crate::design::{self, Outcome};
 use crate::error::JobError;
 use crate::out;
-use crate::output::{ensure_dir, write_whole as write_file};
+use crate::output::{ensure_dir, write_whole as write_file, OutputSet};
 use crate::ring::RingParams;
 use std::path::Path;
 
@@ -17,10 +17,12 @@ pub fn run(a: Args) -> Result<(), JobError> {
         file,
         common: Common { set, json, out },
     } = a;
+    let set_out = OutputSet::begin_opt(out.as_deref())?;
     let sets = design::parse_sets(&set)?;
     let results = design::run_all(&file, &sets, &RingParams::default(), None)?;
-    if let Some(dir) = &out {
-        write_run(dir, &results).map_err(JobError::Io)?;
+    if let Some(set) = set_out {
+        write_run(set.dir(), &results).map_err(JobError::Io)?;
+        set.commit()?;
     }
     if json {
         let items: Vec<serde_json::Value> =

@@ -3,8 +3,8 @@
 use super::Common;
 use crate::design;
 use crate::error::JobError;
-use crate::output::{ensure_dir, write_whole as write_file};
-use crate::{note, out};
+use crate::out;
+use crate::output::{ensure_dir, write_whole as write_file, OutputSet};
 use std::path::{Path, PathBuf};
 
 /// Flags of `lamina sweep`.
@@ -29,6 +29,7 @@ pub fn run(a: Args) -> Result<(), JobError> {
         param,
         common: Common { set, json, out },
     } = a;
+    let set_out = OutputSet::begin_opt(out.as_deref())?;
     let sets = design::parse_sets(&set)?;
     let axes: Vec<crate::sweep::Axis> = param
         .iter()
@@ -41,8 +42,9 @@ pub fn run(a: Args) -> Result<(), JobError> {
     first.extend(axes.iter().map(|a| (a.name.clone(), a.texts[0].clone())));
     design::load(&file, &first)?;
     let rows = crate::sweep::run_sweep(&file, &sets, &axes, true);
-    if let Some(dir) = &out {
-        write_sweep(dir, &axes, &rows).map_err(JobError::Io)?;
+    if let Some(set) = set_out {
+        write_sweep(set.dir(), &axes, &rows).map_err(JobError::Io)?;
+        set.commit()?;
     }
     let keys: Vec<String> = rows
         .iter()
@@ -178,10 +180,5 @@ pub(crate) fn write_sweep(
             &series,
         )?;
     }
-    note!(
-        "wrote sweep.csv and {} plots to {}",
-        keys.len(),
-        dir.display()
-    );
     Ok(())
 }

@@ -3,8 +3,7 @@
 use super::{outcome_json, print_single, Common};
 use crate::design::{self, Outcome};
 use crate::error::JobError;
-use crate::note;
-use crate::output::{csv, ensure_dir, write_whole as write_file};
+use crate::output::{csv, ensure_dir, write_whole as write_file, OutputSet};
 use crate::ring::RingParams;
 use std::path::Path;
 
@@ -17,11 +16,13 @@ pub fn run(a: Args) -> Result<(), JobError> {
         file,
         common: Common { set, json, out },
     } = a;
+    let set_out = OutputSet::begin_opt(out.as_deref())?;
     let sets = design::parse_sets(&set)?;
     let results = design::run_all(&file, &sets, &RingParams::default(), Some("transfer"))?;
     let (kind, outcome) = &results[0];
-    if let Some(dir) = &out {
-        write_vtc(dir, kind, outcome).map_err(JobError::Io)?;
+    if let Some(set) = set_out {
+        write_vtc(set.dir(), kind, outcome).map_err(JobError::Io)?;
+        set.commit()?;
     }
     print_single(kind, outcome, json);
     Ok(())
@@ -59,10 +60,6 @@ pub(crate) fn write_vtc(dir: &Path, kind: &str, o: &Outcome) -> Result<(), Strin
             snm.map(|s| s.snm),
             &snm.map(|s| s.squares.to_vec()).unwrap_or_default(),
         )?;
-        note!(
-            "wrote transfer.csv, summary.json, transfer.svg/png and butterfly.svg/png to {}",
-            dir.display()
-        );
     }
     Ok(())
 }
