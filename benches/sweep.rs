@@ -14,13 +14,14 @@ fn ring_sweep_threads(bencher: divan::Bencher, threads: usize) {
         .num_threads(threads)
         .build()
         .unwrap();
-    let axes = [parse_axis("vdd=0.8,0.9,1.0,1.1").unwrap()];
+    let axes = [parse_axis("vdd=0.8,0.9,1.0,1.1V").unwrap()];
     bencher.bench_local(|| {
         pool.install(|| {
             divan::black_box(run_sweep(
                 Path::new("netlists/demo/ring-21.lam"),
                 &[],
                 &axes,
+                false,
                 false,
             ))
         })

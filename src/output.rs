@@ -101,7 +101,12 @@ impl OutputSet {
         }
         self.done = true;
         self.unregister();
-        crate::note!("wrote {} to {}", names.join(", "), self.target.display());
+        let shown = if names.len() > 6 {
+            format!("{}, ... ({} files)", names[..5].join(", "), names.len())
+        } else {
+            names.join(", ")
+        };
+        crate::note!("wrote {shown} to {}", self.target.display());
         Ok(())
     }
 

@@ -83,10 +83,90 @@ pub fn check_axes(axes: &[Axis], sets: &[(String, String)]) -> Result<(), JobErr
 pub struct Row {
     /// `(name, value)` of every axis at this point.
     pub point: Vec<(String, f64)>,
-    /// `(key, value)` of every figure, in analysis order (keys prefixed by the analysis kind).
+    /// `(key, value)` of every figure, in analysis order. Keys are the analysis kind, a `.`,
+    /// and the quantity with its unit: `transfer.vm_v`, `ring.frequency_hz`,
+    /// `operating_point.out[3]_v`; a pure number has no unit (`transfer.gain_max`).
     pub figures: Vec<(String, f64)>,
+    /// The transfer curves of this point (`(input, output)`), kept for the families of
+    /// curves `--out` draws; empty unless asked for.
+    pub curves: Vec<(Vec<f64>, Vec<f64>)>,
     /// Why the point failed, if it did.
     pub error: Option<String>,
+}
+
+/// Most transfer-curve samples a sweep keeps for its families of curves (about 160 MB); past
+/// it, curves are kept for an evenly spread subset of the points, and the report says so.
+pub const MAX_CURVE_SAMPLES: usize = 10_000_000;
+
+/// The columns of a set of rows: every key any row has, in order of first appearance, so a
+/// failed or partial first point loses nothing.
+pub fn columns(rows: &[Row]) -> Vec<String> {
+    let mut keys: Vec<String> = Vec::new();
+    let mut seen = std::collections::HashSet::new();
+    for r in rows {
+        for (k, _) in &r.figures {
+            if seen.insert(k.as_str()) {
+                keys.push(k.clone());
+            }
+        }
+    }
+    keys
+}
+
+/// A key's quantity and unit for a table header: `transfer.vm_v` -> `transfer.vm (V)`,
+/// `operating_point.out[3]_v` -> `node out[3] (V)`.
+pub fn label(key: &str) -> String {
+    const UNITS: &[(&str, &str)] = &[
+        ("_hz", " (Hz)"),
+        ("_s", " (s)"),
+        ("_v", " (V)"),
+        ("_w", " (W)"),
+        ("_j", " (J)"),
+        ("_a", " (A)"),
+    ];
+    let (kind, rest) = key.split_once('.').unwrap_or(("", key));
+    let (name, unit) = UNITS
+        .iter()
+        .find_map(|(s, u)| rest.strip_suffix(s).map(|n| (n.to_string(), u.to_string())))
+        .unwrap_or((rest.to_string(), String::new()));
+    if kind == "operating_point" {
+        format!("node {name}{unit}")
+    } else if kind.is_empty() {
+        format!("{name}{unit}")
+    } else {
+        format!("{kind}.{name}{unit}")
+    }
+}
+
+/// A swept parameter's column key: its name and its unit (`vdd_v`, `rc_ohm_m`, `stages`).
+pub fn axis_key(a: &Axis) -> String {
+    let unit = a.dim.unit();
+    let unit = unit.split(',').next().unwrap_or("");
+    if a.dim == Dim::NONE || unit.is_empty() {
+        return a.name.clone();
+    }
+    let slug: String = unit
+        .to_lowercase()
+        .replace("1/", "per_")
+        .replace('/', "_per_")
+        .chars()
+        .map(|c| if c.is_ascii_alphanumeric() { c } else { '_' })
+        .collect();
+    let slug = slug.trim_matches('_').replace("__", "_");
+    format!("{}_{slug}", a.name)
+}
+
+/// A swept parameter's table header: `vdd (V)`.
+pub fn axis_label(a: &Axis) -> String {
+    if a.dim == Dim::NONE {
+        a.name.clone()
+    } else {
+        format!(
+            "{} ({})",
+            a.name,
+            a.dim.unit().split(',').next().unwrap_or("")
+        )
+    }
 }
 
 fn figures(kind: &str, o: &Outcome) -> Vec<(String, f64)> {
@@ -99,18 +179,18 @@ fn figures(kind: &str, o: &Outcome) -> Vec<(String, f64)> {
     match o {
         Outcome::OperatingPoint(v) => {
             for (n, x) in v {
-                put(&format!("v({n})"), Some(*x));
+                put(&format!("{n}_v"), Some(*x));
             }
         }
         Outcome::Transfer { metrics, snm, .. } => {
-            put("vm", metrics.map(|m| m.vm));
-            put("voh", metrics.map(|m| m.voh));
-            put("vol", metrics.map(|m| m.vol));
-            put("vil", metrics.map(|m| m.vil));
-            put("vih", metrics.map(|m| m.vih));
-            put("nmh", metrics.map(|m| m.nmh));
-            put("nml", metrics.map(|m| m.nml));
-            put("snm", snm.map(|m| m.snm));
+            put("vm_v", metrics.map(|m| m.vm));
+            put("voh_v", metrics.map(|m| m.voh));
+            put("vol_v", metrics.map(|m| m.vol));
+            put("vil_v", metrics.map(|m| m.vil));
+            put("vih_v", metrics.map(|m| m.vih));
+            put("nmh_v", metrics.map(|m| m.nmh));
+            put("nml_v", metrics.map(|m| m.nml));
+            put("snm_v", snm.map(|m| m.snm));
             put("gain_max", metrics.map(|m| m.gain_max));
         }
         Outcome::Delay(d) => {
@@ -148,14 +228,20 @@ pub fn grid(axes: &[Axis]) -> Vec<Vec<usize>> {
     points
 }
 
-/// Runs the sweep. `progress` shows a bar on stderr (hidden when stderr is not a terminal).
+/// Runs the sweep. `progress` shows a bar on stderr (hidden when stderr is not a terminal);
+/// `keep_curves` keeps each point's transfer curves (within [`MAX_CURVE_SAMPLES`]).
 pub fn run_sweep(
     path: &Path,
     sets: &[(String, String)],
     axes: &[Axis],
     progress: bool,
+    keep_curves: bool,
 ) -> Vec<Row> {
     let points = grid(axes);
+    let total = points.len();
+    // Curves of every point while they fit; an evenly spread subset otherwise (decided per
+    // point from its index, so the result does not depend on the thread count).
+    let budget_per_point = MAX_CURVE_SAMPLES / total.max(1);
     let bar = if progress {
         ProgressBar::new(points.len() as u64)
     } else {
@@ -168,8 +254,9 @@ pub fn run_sweep(
     }
     points
         .into_par_iter()
+        .enumerate()
         .progress_with(bar)
-        .map(|index| {
+        .map(|(n, index)| {
             let mut local = sets.to_vec();
             let mut point = Vec::with_capacity(axes.len());
             for (a, &k) in axes.iter().zip(&index) {
@@ -179,15 +266,28 @@ pub fn run_sweep(
             match run_all(path, &local, &RingParams::default(), None) {
                 Ok(results) => {
                     let figures = results.iter().flat_map(|(k, o)| figures(k, o)).collect();
+                    let mut curves = Vec::new();
+                    if keep_curves {
+                        for (_, o) in &results {
+                            if let Outcome::Transfer { vin, vout, .. } = o {
+                                let stride = (2 * vin.len()).div_ceil(budget_per_point.max(1));
+                                if stride <= 1 || n % stride == 0 {
+                                    curves.push((vin.clone(), vout.clone()));
+                                }
+                            }
+                        }
+                    }
                     Row {
                         point,
                         figures,
+                        curves,
                         error: None,
                     }
                 }
                 Err(e) => Row {
                     point,
                     figures: Vec::new(),
+                    curves: Vec::new(),
                     error: Some(first_line(e.message())),
                 },
             }

@@ -183,7 +183,7 @@ fn sweep_rows_come_in_grid_order_and_a_failed_point_does_not_stop_the_others() {
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     let rows = v["rows"].as_array().unwrap();
     assert_eq!(rows.len(), 3);
-    let vdds: Vec<f64> = rows.iter().map(|r| r["vdd"].as_f64().unwrap()).collect();
+    let vdds: Vec<f64> = rows.iter().map(|r| r["vdd_v"].as_f64().unwrap()).collect();
     assert_eq!(vdds, vec![0.0, 1.0, 0.8]);
     assert!(
         rows[0]["error"].as_str().is_some(),
@@ -199,6 +199,23 @@ fn sweep_rows_come_in_grid_order_and_a_failed_point_does_not_stop_the_others() {
     );
     assert!((a / b - 1.0).abs() < 1e-12, "{a} vs {b}");
     assert!(rows[2]["ring.frequency_hz"].as_f64().unwrap() < a);
+    // The table takes its columns from every row, not the first (which failed here), heads
+    // each with its unit, and gives the failed row its reason.
+    let table = lamina(&[
+        "sweep",
+        "netlists/reference/square-ring-11.lam",
+        "--param",
+        "vdd=0,1V",
+    ]);
+    let text = String::from_utf8(table.stdout).unwrap();
+    let mut lines = text.lines();
+    let header = lines.next().unwrap();
+    assert!(
+        header.contains("vdd (V)") && header.contains("ring.frequency (Hz)"),
+        "{header}"
+    );
+    assert!(header.contains("ring.energy_per_cycle (J)") && header.ends_with("error"));
+    assert!(lines.next().unwrap().contains("positive supply"), "{text}");
     let bad = lamina(&[
         "sweep",
         "netlists/reference/square-ring-11.lam",

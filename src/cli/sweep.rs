@@ -5,6 +5,7 @@ use crate::design;
 use crate::error::JobError;
 use crate::out;
 use crate::output::{ensure_dir, write_whole as write_file, OutputSet};
+use crate::sweep::{axis_key, axis_label, columns, label, Axis, Row};
 use std::path::{Path, PathBuf};
 
 /// Flags of `lamina sweep`.
@@ -41,23 +42,19 @@ pub fn run(a: Args) -> Result<(), JobError> {
     let mut first = sets.clone();
     first.extend(axes.iter().map(|a| (a.name.clone(), a.texts[0].clone())));
     design::load(&file, &first)?;
-    let rows = crate::sweep::run_sweep(&file, &sets, &axes, true);
+    let rows = crate::sweep::run_sweep(&file, &sets, &axes, true, set_out.is_some());
     if let Some(set) = set_out {
         write_sweep(set.dir(), &axes, &rows).map_err(JobError::Io)?;
         set.commit()?;
     }
-    let keys: Vec<String> = rows
-        .iter()
-        .find(|r| r.error.is_none())
-        .map(|r| r.figures.iter().map(|(k, _)| k.clone()).collect())
-        .unwrap_or_default();
+    let keys = columns(&rows);
     if json {
         let items: Vec<serde_json::Value> = rows
             .iter()
             .map(|r| {
                 let mut m = serde_json::Map::new();
-                for (n, v) in &r.point {
-                    m.insert(n.clone(), serde_json::json!(v));
+                for (a, (_, v)) in axes.iter().zip(&r.point) {
+                    m.insert(axis_key(a), serde_json::json!(v));
                 }
                 for (k, v) in &r.figures {
                     m.insert(k.clone(), serde_json::json!(v));
@@ -68,32 +65,15 @@ pub fn run(a: Args) -> Result<(), JobError> {
                 serde_json::Value::Object(m)
             })
             .collect();
-        out!("{}", serde_json::json!({ "rows": items }));
-    } else {
-        let mut header: Vec<String> = axes.iter().map(|a| a.name.clone()).collect();
-        header.extend(keys.iter().cloned());
         out!(
             "{}",
-            header
-                .iter()
-                .map(|h| format!("{h:>22}"))
-                .collect::<String>()
+            serde_json::json!({
+                "rows": items,
+                "note": "model estimates: check them against measurement and your process",
+            })
         );
-        for r in &rows {
-            let mut line: String = r.point.iter().map(|(_, v)| format!("{v:>22.6e}")).collect();
-            match &r.error {
-                Some(e) => line.push_str(&format!("   failed: {e}")),
-                None => {
-                    for k in &keys {
-                        match r.figures.iter().find(|(n, _)| n == k) {
-                            Some((_, v)) => line.push_str(&format!("{v:>22.6e}")),
-                            None => line.push_str(&format!("{:>22}", "-")),
-                        }
-                    }
-                }
-            }
-            out!("{line}");
-        }
+    } else {
+        print_table(&axes, &keys, &rows);
     }
     let failed: Vec<&crate::sweep::Row> = rows.iter().filter(|r| r.error.is_some()).collect();
     match failed.first() {
@@ -107,24 +87,70 @@ pub fn run(a: Args) -> Result<(), JobError> {
     }
 }
 
-/// Sweep rows as CSV and JSON, and each figure plotted against the first parameter (one curve
-/// per combination of the others).
-pub(crate) fn write_sweep(
-    dir: &Path,
-    axes: &[crate::sweep::Axis],
-    rows: &[crate::sweep::Row],
-) -> Result<(), String> {
-    ensure_dir(dir)?;
-    let keys: Vec<String> = rows
+/// The rows as a table: one column per swept parameter and per figure any row has, each
+/// headed by its quantity and unit and at least two spaces wide apart; a failed point shows
+/// its reason in the last column, a figure a point could not measure shows `-`.
+fn print_table(axes: &[Axis], keys: &[String], rows: &[Row]) {
+    let mut header: Vec<String> = axes.iter().map(axis_label).collect();
+    header.extend(keys.iter().map(|k| label(k)));
+    let cells: Vec<Vec<String>> = rows
         .iter()
-        .find(|r| r.error.is_none())
-        .map(|r| r.figures.iter().map(|(k, _)| k.clone()).collect())
-        .unwrap_or_default();
+        .map(|r| {
+            let mut c: Vec<String> = r.point.iter().map(|(_, v)| number(*v)).collect();
+            for k in keys {
+                c.push(
+                    r.figures
+                        .iter()
+                        .find(|(n, _)| n == k)
+                        .map_or("-".to_string(), |(_, v)| number(*v)),
+                );
+            }
+            c
+        })
+        .collect();
+    let widths: Vec<usize> = (0..header.len())
+        .map(|j| {
+            cells
+                .iter()
+                .map(|c| c[j].len())
+                .chain([header[j].len()])
+                .max()
+                .unwrap_or(0)
+        })
+        .collect();
+    let line = |c: &[String]| -> String {
+        c.iter()
+            .zip(&widths)
+            .map(|(s, w)| format!("{s:>w$}"))
+            .collect::<Vec<_>>()
+            .join("  ")
+    };
+    out!("{}  error", line(&header));
+    for (r, c) in rows.iter().zip(&cells) {
+        match &r.error {
+            Some(e) => out!("{}  {e}", line(c)),
+            None => out!("{}  -", line(c)),
+        }
+    }
+}
+
+/// A number in a table: six significant digits, never `-0`.
+fn number(v: f64) -> String {
+    let v = if v == 0.0 { 0.0 } else { v };
+    format!("{v:.6e}")
+}
+
+/// Sweep rows as CSV, each figure plotted against the first parameter (one curve per
+/// combination of the others), and the family of transfer curves (one per point).
+pub(crate) fn write_sweep(dir: &Path, axes: &[Axis], rows: &[Row]) -> Result<(), String> {
+    ensure_dir(dir)?;
+    let keys = columns(rows);
     let mut text = axes
         .iter()
-        .map(|a| a.name.clone())
+        .map(axis_key)
         .chain(keys.iter().cloned())
         .chain(["error".to_string()])
+        .map(|h| csv_field(&h))
         .collect::<Vec<_>>()
         .join(",");
     text.push('\n');
@@ -138,7 +164,7 @@ pub(crate) fn write_sweep(
                     .map_or(String::new(), |(_, v)| format!("{v:e}")),
             );
         }
-        cells.push(r.error.clone().unwrap_or_default().replace(',', ";"));
+        cells.push(csv_field(r.error.as_deref().unwrap_or("")));
         text.push_str(&cells.join(","));
         text.push('\n');
     }
@@ -146,23 +172,85 @@ pub(crate) fn write_sweep(
     let Some(first) = axes.first() else {
         return Ok(());
     };
+    let legend = |r: &Row, from: usize| -> String {
+        axes.iter()
+            .zip(&r.point)
+            .skip(from)
+            .map(|(a, (n, v))| format!("{n} = {}", crate::plot::engineering(*v, &a.dim.unit())))
+            .collect::<Vec<_>>()
+            .join(", ")
+    };
+    let mut stems = Stems::default();
     for k in &keys {
         let mut series: Vec<(String, Vec<(f64, f64)>)> = Vec::new();
         for r in rows.iter().filter(|r| r.error.is_none()) {
-            let label: String = r.point[1..]
-                .iter()
-                .map(|(n, v)| format!("{n} = {v}"))
-                .collect::<Vec<_>>()
-                .join(", ");
-            let label = if label.is_empty() { k.clone() } else { label };
+            let name = legend(r, 1);
+            let name = if name.is_empty() { label(k) } else { name };
             if let Some((_, v)) = r.figures.iter().find(|(n, _)| n == k) {
-                match series.iter_mut().find(|(l, _)| *l == label) {
+                match series.iter_mut().find(|(l, _)| *l == name) {
                     Some((_, pts)) => pts.push((r.point[0].1, *v)),
-                    None => series.push((label, vec![(r.point[0].1, *v)])),
+                    None => series.push((name, vec![(r.point[0].1, *v)])),
                 }
             }
         }
-        let stem: String = k
+        crate::plot::curves(
+            &dir.join(stems.unique(k)),
+            &format!("{} against {}", label(k), first.name),
+            &axis_label(first),
+            &label(k),
+            &series,
+        )?;
+    }
+    // The family of transfer curves: one per point that kept its curve.
+    let family: Vec<(String, Vec<(f64, f64)>)> = rows
+        .iter()
+        .filter(|r| r.error.is_none())
+        .flat_map(|r| {
+            r.curves.iter().map(move |(vin, vout)| {
+                (
+                    legend(r, 0),
+                    vin.iter().copied().zip(vout.iter().copied()).collect(),
+                )
+            })
+        })
+        .collect();
+    if !family.is_empty() {
+        let mut csv = String::from("point,input,output\n");
+        for (name, pts) in &family {
+            for (x, y) in pts {
+                csv.push_str(&format!("{},{x:e},{y:e}\n", csv_field(name)));
+            }
+        }
+        write_file(&dir.join("transfer-curves.csv"), csv.as_bytes())?;
+        crate::plot::curves(
+            &dir.join("transfer-curves"),
+            "transfer curves",
+            "input (V)",
+            "output (V)",
+            &family,
+        )?;
+    }
+    Ok(())
+}
+
+/// A CSV field, quoted when it holds a comma, a quote or a line break.
+fn csv_field(s: &str) -> String {
+    if s.contains([',', '"', '\n']) {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
+}
+
+/// File stems for keys: letters, digits and `_` kept, other characters as `_`, and a number
+/// appended when two keys map to one stem (`out[3]_v` and `out_3__v` cannot overwrite each
+/// other's plots).
+#[derive(Default)]
+struct Stems(std::collections::HashSet<String>);
+
+impl Stems {
+    fn unique(&mut self, key: &str) -> String {
+        let base: String = key
             .chars()
             .map(|c| {
                 if c.is_ascii_alphanumeric() || c == '_' {
@@ -172,13 +260,34 @@ pub(crate) fn write_sweep(
                 }
             })
             .collect();
-        crate::plot::curves(
-            &dir.join(stem),
-            &format!("{k} against {} (model estimate)", first.name),
-            &first.name,
-            k,
-            &series,
-        )?;
+        let mut stem = base.clone();
+        let mut k = 2;
+        while !self.0.insert(stem.clone()) {
+            stem = format!("{base}-{k}");
+            k += 1;
+        }
+        stem
     }
-    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::Stems;
+    use crate::sweep::label;
+
+    #[test]
+    fn names_that_differ_in_punctuation_get_their_own_files() {
+        let mut s = Stems::default();
+        let a = s.unique("operating_point.out[3]_v");
+        let b = s.unique("operating_point.out_3__v");
+        assert_ne!(a, b);
+        assert!(!a.contains('[') && !a.contains('.'));
+    }
+
+    #[test]
+    fn node_columns_are_named_in_our_own_way() {
+        assert_eq!(label("operating_point.out[3]_v"), "node out[3] (V)");
+        assert_eq!(label("ring.frequency_hz"), "ring.frequency (Hz)");
+        assert_eq!(label("transfer.gain_max"), "transfer.gain_max");
+    }
 }
