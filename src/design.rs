@@ -247,6 +247,8 @@ pub enum Outcome {
     Ring(RingReport),
     /// Gate delay between two nodes of a driven circuit.
     Delay(DelayReport),
+    /// A general transient's record and figures.
+    Transient(crate::transient::TransientReport),
 }
 
 /// Runs every analysis `design` declares, in order (or only those of kind `only`).
@@ -352,6 +354,7 @@ fn run_static(design: Design, a: &AnalysisDecl) -> Result<Outcome, String> {
             }
         }
         "delay" => Outcome::Delay(delay(design, a)?),
+        "transient" => Outcome::Transient(crate::transient::run_transient(design, &a.analysis)?),
         other => {
             return Err(format!(
                 "analysis `{other}` is declared but cannot be run here"

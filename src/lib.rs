@@ -25,3 +25,4 @@ pub mod output;
 pub mod plot;
 pub mod ring;
 pub mod sweep;
+pub mod transient;

@@ -200,6 +200,19 @@ fn figures(kind: &str, o: &Outcome) -> Vec<(String, f64)> {
             put("rise_s", d.rise);
             put("fall_s", d.fall);
         }
+        Outcome::Transient(tr) => {
+            for s in &tr.supplies {
+                put(&format!("{}_avg_power_w", s.name), Some(s.avg_power));
+                put(&format!("{}_peak_power_w", s.name), Some(s.peak_power));
+                put(&format!("{}_energy_j", s.name), Some(s.energy));
+            }
+            for c in &tr.crossings {
+                put(
+                    &format!("{}_rising_crossings", c.node),
+                    Some(c.rising.len() as f64),
+                );
+            }
+        }
         Outcome::Ring(r) => {
             put("frequency_hz", Some(r.frequency));
             put("period_s", Some(r.period));

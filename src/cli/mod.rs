@@ -10,6 +10,7 @@ pub mod iv;
 pub mod ring;
 pub mod run;
 pub mod sweep;
+pub mod transient;
 pub mod vtc;
 
 use crate::design::Outcome;
@@ -105,6 +106,7 @@ pub(crate) fn outcome_json(kind: &str, o: &Outcome) -> serde_json::Value {
             v["analysis"] = serde_json::json!(kind);
             v
         }
+        Outcome::Transient(r) => transient::transient_json(kind, r),
     }
 }
 
@@ -141,6 +143,7 @@ pub(crate) fn print_outcome(o: &Outcome) {
             }
         }
         Outcome::Ring(r) => print_ring(r),
+        Outcome::Transient(r) => transient::print_transient(r),
         Outcome::Delay(d) => {
             let ps = |v: Option<f64>| v.map_or("-".to_string(), |x| format!("{:.3} ps", x * 1e12));
             out!(

@@ -48,8 +48,14 @@ pub(crate) fn write_run(dir: &Path, results: &[(String, Outcome)]) -> Result<(),
             m.remove("vout");
         }
         items.push(j);
-        if matches!(o, Outcome::Transfer { .. }) {
-            super::vtc::write_vtc(&dir.join(format!("{kind}-{}", k + 1)), kind, o)?;
+        match o {
+            Outcome::Transfer { .. } => {
+                super::vtc::write_vtc(&dir.join(format!("{kind}-{}", k + 1)), kind, o)?
+            }
+            Outcome::Transient(r) => {
+                super::transient::write_transient(&dir.join(format!("{kind}-{}", k + 1)), r)?
+            }
+            _ => {}
         }
     }
     write_file(

@@ -56,6 +56,8 @@ pub enum Expr {
     },
     /// `name[index]`: an indexed name, meaningful where a node or element name is expected.
     Indexed(Ident, Box<Expr>, Span),
+    /// `[a, b, ...]`: a list, meaningful where an analysis takes several names or values.
+    List(Vec<Expr>, Span),
     /// `-e`
     Neg(Box<Expr>, Span),
     /// `l op r`
@@ -77,7 +79,10 @@ impl Expr {
         match self {
             Expr::Number { span, .. } | Expr::Str(_, span) | Expr::Call { span, .. } => *span,
             Expr::Name(id) => id.span,
-            Expr::Neg(_, span) | Expr::Binary { span, .. } | Expr::Indexed(_, _, span) => *span,
+            Expr::Neg(_, span)
+            | Expr::Binary { span, .. }
+            | Expr::Indexed(_, _, span)
+            | Expr::List(_, span) => *span,
         }
     }
 }

@@ -37,7 +37,7 @@ pub mod values;
 pub use diag::{render, render_warnings, Diagnostic, ErrorKind};
 pub use elaborate::{
     load_file, load_with, Analysis, AnalysisDecl, Design, DiskReader, Failure, FileReader, Limits,
-    LoadOptions, ReadError, SettingKind, Summary, ANALYSES,
+    LoadOptions, ReadError, SettingKind, Summary, ANALYSES, MAX_TRANSIENT_SAMPLES,
 };
 pub use source::{Sources, Span};
 

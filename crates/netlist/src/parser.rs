@@ -637,6 +637,24 @@ impl<'a> Parser<'a> {
                 self.expect_punct(")")?;
                 Ok(e)
             }
+            Tok::Punct("[") => {
+                self.bump();
+                let mut items = Vec::new();
+                self.skip_newlines();
+                if !self.is_punct("]") {
+                    loop {
+                        self.skip_newlines();
+                        items.push(self.expr()?);
+                        self.skip_newlines();
+                        if !self.eat_punct(",") {
+                            break;
+                        }
+                    }
+                }
+                self.skip_newlines();
+                self.expect_punct("]")?;
+                Ok(Expr::List(items, span.to(self.prev_span())))
+            }
             _ => {
                 self.error_here("a value (a number, a name or `(`)");
                 Err(())

@@ -17,6 +17,10 @@ pub enum SettingKind {
     /// The name of a node, node array or element, taken as written (even if a parameter has
     /// the same name).
     Name,
+    /// A name or a list of names: `record = [out, in]`.
+    Names,
+    /// A list of numbers: `window = [1 ns, 5 ns]`.
+    Numbers,
 }
 
 /// Analyses the language knows, with the settings each accepts (all required unless marked
@@ -42,6 +46,16 @@ pub const ANALYSES: &[(&str, &[(&str, SettingKind)])] = &[
         ],
     ),
     (
+        "transient",
+        &[
+            ("stop", SettingKind::Number),
+            ("record", SettingKind::Names),
+            ("currents", SettingKind::Names),
+            ("interval", SettingKind::Number),
+            ("window", SettingKind::Numbers),
+        ],
+    ),
+    (
         "ring",
         &[
             ("nodes", SettingKind::Name),
@@ -53,7 +67,17 @@ pub const ANALYSES: &[(&str, &[(&str, SettingKind)])] = &[
 ];
 
 /// Settings that may be left out.
-const OPTIONAL: &[(&str, &str)] = &[("ring", "integrator")];
+const OPTIONAL: &[(&str, &str)] = &[
+    ("ring", "integrator"),
+    ("transient", "record"),
+    ("transient", "currents"),
+    ("transient", "interval"),
+    ("transient", "window"),
+];
+
+/// Most samples a transient keeps of each signal: the accepted steps are thinned to this many
+/// (the engine's decimation), and a fixed `interval` may not ask for more.
+pub const MAX_TRANSIENT_SAMPLES: usize = 200_000;
 
 /// Most points of a transfer sweep.
 pub const MAX_TRANSFER_POINTS: f64 = 1e7;
@@ -87,6 +111,21 @@ pub enum Analysis {
         /// End time (s).
         stop: f64,
     },
+    /// A general transient from the operating point, recording chosen node voltages and branch
+    /// currents and every voltage source's current and delivered power.
+    Transient {
+        /// End time (s).
+        stop: f64,
+        /// Recorded nodes (arrays expanded: `out` is `out[0]`, `out[1]`, ...).
+        nodes: Vec<String>,
+        /// Elements whose branch current is recorded (voltage sources, inductors,
+        /// voltage-controlled voltage sources).
+        currents: Vec<String>,
+        /// Fixed output interval (s); `None` records the accepted steps.
+        interval: Option<f64>,
+        /// Window of the derived figures (s): the whole run unless given.
+        window: (f64, f64),
+    },
     /// A ring oscillator: stage outputs `nodes[0] .. nodes[stages - 1]`.
     Ring {
         /// Name of the node array.
@@ -118,6 +157,8 @@ pub struct AnalysisDecl {
 enum Raw {
     Number(Q),
     Name(String),
+    Names(Vec<(String, Span)>),
+    Numbers(Vec<(Q, Span)>),
 }
 
 /// An analysis collected during the walk and checked once the circuit is complete.
@@ -194,6 +235,44 @@ impl<'s> Elaborator<'s> {
                 continue;
             }
             let value = match (setting_kind, &a.value) {
+                (SettingKind::Names, e) => {
+                    let items: &[Expr] = match e {
+                        Expr::List(items, _) => items,
+                        one => std::slice::from_ref(one),
+                    };
+                    let mut names = Vec::new();
+                    for item in items {
+                        match item {
+                            Expr::Name(id) => names.push((id.name.clone(), id.span)),
+                            Expr::Str(s, span) => names.push((s.clone(), *span)),
+                            Expr::Indexed(id, index, span) => {
+                                if let Some(i) = self.eval_int(index, &refs) {
+                                    names.push((format!("{}[{i}]", id.name), *span));
+                                }
+                            }
+                            other => self.diags.push(
+                                Diagnostic::new(
+                                    ErrorKind::BadValue,
+                                    other.span(),
+                                    format!("`{key}` takes names, not values"),
+                                )
+                                .with_help(format!("such as `{key} = [out, in]`")),
+                            ),
+                        }
+                    }
+                    (names.len() == items.len()).then_some(Raw::Names(names))
+                }
+                (SettingKind::Numbers, e) => {
+                    let items: &[Expr] = match e {
+                        Expr::List(items, _) => items,
+                        one => std::slice::from_ref(one),
+                    };
+                    let values: Vec<(Q, Span)> = items
+                        .iter()
+                        .filter_map(|i| self.eval(i, &refs).map(|q| (q, i.span())))
+                        .collect();
+                    (values.len() == items.len()).then_some(Raw::Numbers(values))
+                }
                 (SettingKind::Name, Expr::Name(id)) => Some(Raw::Name(id.name.clone())),
                 (SettingKind::Name, Expr::Str(s, _)) => Some(Raw::Name(s.clone())),
                 (SettingKind::Name, Expr::Indexed(id, index, _)) => self
@@ -253,6 +332,7 @@ impl<'s> Elaborator<'s> {
             let example = match p.kind {
                 "transfer" => "source = drive, output = out, from = 0 V, to = 1 V, step = 5 mV",
                 "delay" => "from = in, to = out, stop = 2 ns",
+                "transient" => "stop = 5 ns, record = [in, out]",
                 _ => "nodes = out, stages = 21, supply = vdd",
             };
             self.diags.push(
@@ -277,6 +357,7 @@ impl<'s> Elaborator<'s> {
             "operating_point" => Some(Analysis::OperatingPoint),
             "transfer" => self.check_transfer(p),
             "delay" => self.check_delay(p),
+            "transient" => self.check_transient(p),
             _ => self.check_ring(p),
         }
     }
@@ -606,6 +687,148 @@ impl<'s> Elaborator<'s> {
             supply,
             supply_source: self.circuit.element_name(driver).to_string(),
             integrator,
+        })
+    }
+
+    /// `analysis transient { stop, record, currents, interval, window }`.
+    fn check_transient(&mut self, p: &Pending) -> Option<Analysis> {
+        let (stop, stop_span) = self.number_in(p, "stop", Dim::TIME)?;
+        if stop <= 0.0 {
+            self.bad(
+                stop_span,
+                format!("`stop` must be a positive time, found {stop:e} s"),
+                "give the end of the run, such as `stop = 10 ns`".into(),
+            );
+            return None;
+        }
+        let mut ok = true;
+        // Nodes: a node, or the name of an array (`out` for `out[0]`, `out[1]`, ...).
+        let mut nodes = Vec::new();
+        if let Some((Raw::Names(names), _)) = p.get("record") {
+            for (name, span) in names {
+                if self.circuit.find_node(name).is_some() {
+                    nodes.push(name.clone());
+                } else if self.circuit.find_node(&format!("{name}[0]")).is_some() {
+                    let mut i = 0;
+                    while i < MAX_TRANSIENT_SAMPLES
+                        && self.circuit.find_node(&format!("{name}[{i}]")).is_some()
+                    {
+                        nodes.push(format!("{name}[{i}]"));
+                        i += 1;
+                    }
+                } else {
+                    ok &= self.existing_node(name, *span, "record");
+                }
+            }
+        }
+        let mut currents = Vec::new();
+        if let Some((Raw::Names(names), _)) = p.get("currents") {
+            for (name, span) in names {
+                match self.circuit.find_element(name) {
+                    Some(e) => {
+                        let kind = self.circuit.element_kind(e);
+                        if matches!(
+                            kind,
+                            "voltage source" | "inductor" | "voltage-controlled voltage source"
+                        ) {
+                            currents.push(name.clone());
+                        } else {
+                            self.bad(
+                                *span,
+                                format!("`{name}` is a {kind}, whose current is not an unknown of the circuit"),
+                                "record the voltages across it, or put a `voltage_source` of `dc = 0 V` in series and record its current".into(),
+                            );
+                            ok = false;
+                        }
+                    }
+                    None => {
+                        let mut d = Diagnostic::new(
+                            ErrorKind::Unknown,
+                            *span,
+                            format!("`currents`: the circuit has no element `{name}`"),
+                        );
+                        let names: Vec<String> = self
+                            .circuit
+                            .elements()
+                            .map(|e| self.circuit.element_name(e).to_string())
+                            .collect();
+                        if let Some(h) = did_you_mean(name, names.iter().map(String::as_str)) {
+                            d = d.with_help(h);
+                        }
+                        self.diags.push(d);
+                        ok = false;
+                    }
+                }
+            }
+        }
+        let interval = match self.number_of(p, "interval") {
+            None => None,
+            Some((q, s)) => {
+                let dt = self.check_dim(q, Dim::TIME, s, "interval")?;
+                if dt <= 0.0 {
+                    self.bad(
+                        s,
+                        format!("`interval` must be a positive time, found {dt:e} s"),
+                        "such as `interval = 10 ps`".into(),
+                    );
+                    return None;
+                }
+                if stop / dt > MAX_TRANSIENT_SAMPLES as f64 {
+                    self.diags.push(
+                        Diagnostic::new(
+                            ErrorKind::Limit,
+                            s,
+                            format!(
+                                "`interval` asks for {:.3e} samples, more than the limit of {MAX_TRANSIENT_SAMPLES}",
+                                stop / dt
+                            ),
+                        )
+                        .with_help("use a larger interval, or leave it out to record the accepted steps (thinned to the limit)"),
+                    );
+                    return None;
+                }
+                Some(dt)
+            }
+        };
+        let window = match p.get("window") {
+            None => (0.0, stop),
+            Some((Raw::Numbers(v), s)) => {
+                if v.len() != 2 {
+                    self.bad(
+                        s,
+                        format!("`window` takes two times, found {}", v.len()),
+                        "such as `window = [1 ns, 5 ns]`".into(),
+                    );
+                    return None;
+                }
+                let a = self.check_dim(v[0].0, Dim::TIME, v[0].1, "window");
+                let b = self.check_dim(v[1].0, Dim::TIME, v[1].1, "window");
+                let (a, b) = (a?, b?);
+                if !(0.0 <= a && a < b && b <= stop) {
+                    self.bad(s, format!("`window` must satisfy 0 <= start < end <= stop, found [{a:e} s, {b:e} s]"), "choose a part of the run, such as `window = [1 ns, 5 ns]`".into());
+                    return None;
+                }
+                (a, b)
+            }
+            Some(_) => return None,
+        };
+        if !ok {
+            return None;
+        }
+        if nodes.is_empty() && currents.is_empty() {
+            self.bad(
+                p.header,
+                "analysis `transient` records nothing".into(),
+                "add `record = [out]` (nodes or node arrays) or `currents = [supply]`".into(),
+            );
+            return None;
+        }
+        Some(Analysis::Transient {
+            stop,
+            nodes,
+            currents,
+            interval,
+            window,
         })
     }
 }

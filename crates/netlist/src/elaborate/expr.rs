@@ -93,6 +93,15 @@ impl<'s> Elaborator<'s> {
                 );
                 None
             }
+            Expr::List(_, span) => {
+                self.diags.push(
+                    Diagnostic::new(ErrorKind::BadValue, *span, "a list is not a number".into())
+                        .with_help(
+                        "lists are taken only by analysis settings, such as `record = [out, in]`",
+                    ),
+                );
+                None
+            }
             Expr::Neg(inner, _) => self.eval(inner, frames).map(|q| Q {
                 v: -q.v,
                 dim: q.dim,

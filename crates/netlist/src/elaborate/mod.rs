@@ -15,7 +15,9 @@ mod cells;
 mod expr;
 mod files;
 
-pub use analyses::{Analysis, AnalysisDecl, SettingKind, ANALYSES, MAX_TRANSFER_POINTS};
+pub use analyses::{
+    Analysis, AnalysisDecl, SettingKind, ANALYSES, MAX_TRANSFER_POINTS, MAX_TRANSIENT_SAMPLES,
+};
 pub use files::{DiskReader, FileReader, ReadError};
 
 use crate::ast::*;

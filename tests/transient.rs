@@ -1,0 +1,71 @@
+//! The general transient analysis end to end: the energy a source delivers to charge a
+//! capacitor through a resistor, and the node's mid-level crossing, against closed forms.
+
+use std::process::Command;
+
+/// Charging C through R from 0 to V with a step: the source delivers C V^2, half stored and
+/// half dissipated in R whatever R is (any circuits text, e.g. A. S. Sedra, K. C. Smith,
+/// Microelectronic Circuits, 7th ed., 2015, recalled, not checked); the node crosses V/2 at
+/// t = tau ln 2 after the step (first-order step response, common practice).
+#[test]
+fn a_charging_capacitor_takes_c_v_squared_from_its_source() {
+    let text = r#"
+voltage_source drive (pos = in, neg = ground) {
+    wave = pulse(low = 0 V, high = 1 V, delay = 1 ns, rise = 1 ps, fall = 1 ps, width = 100 ns)
+}
+resistor r (a = in, b = out) { resistance = 1 kOhm }
+capacitor c (a = out, b = ground) { capacitance = 1 pF }
+analysis transient { stop = 21 ns, record = [in, out], currents = [drive] }
+"#;
+    let dir = std::env::temp_dir().join(format!("lamina-transient-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let file = dir.join("rc.lam");
+    std::fs::write(&file, text).unwrap();
+    let out = Command::new(env!("CARGO_BIN_EXE_lamina"))
+        .args(["run", file.to_str().unwrap(), "--json", "--out"])
+        .arg(dir.join("result"))
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let a = &v["analyses"][0];
+    let s = &a["supplies"][0];
+    assert_eq!(s["source"], "drive");
+    let (c, vdd, tau) = (1e-12, 1.0, 1e-9);
+    // After 20 tau the capacitor is charged to within e^-20 of V.
+    let energy = s["energy_j"].as_f64().unwrap();
+    assert!((energy / (c * vdd * vdd) - 1.0).abs() < 2e-3, "{energy:e}");
+    let avg = s["avg_power_w"].as_f64().unwrap();
+    assert!((avg * 21e-9 / energy - 1.0).abs() < 1e-9);
+    // The peak power is V^2 / R, just after the step.
+    let peak = s["peak_power_w"].as_f64().unwrap();
+    assert!((peak / (vdd * vdd / 1e3) - 1.0).abs() < 0.02, "{peak:e}");
+    let out_node = a["crossings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|c| c["node"] == "out")
+        .unwrap();
+    let rise = out_node["rising_s"][0].as_f64().unwrap();
+    let expected = 1e-9 + 0.5e-12 + tau * 2f64.ln();
+    assert!(
+        (rise / expected - 1.0).abs() < 5e-3,
+        "{rise:e} vs {expected:e}"
+    );
+    // The record and its plots, one per group.
+    let files = dir.join("result").join("transient-1");
+    for f in ["transient.csv", "voltages.svg", "currents.svg", "power.svg"] {
+        assert!(files.join(f).exists(), "{f}");
+    }
+    let csv = std::fs::read_to_string(files.join("transient.csv")).unwrap();
+    assert!(
+        csv.starts_with("time_s,in_v,out_v,drive_a,drive_w"),
+        "{}",
+        &csv[..80]
+    );
+    std::fs::remove_dir_all(&dir).unwrap();
+}
