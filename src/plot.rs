@@ -1,10 +1,15 @@
-//! Plots: SVG and PNG with plotters, labelled in the embedded DejaVu Sans (see
-//! `assets/DejaVuSans-LICENSE.txt`), written whole or not at all.
+//! Figures: one builder ([`Figure`], drawn by [`draw`]) for every plot Lamina makes, so they
+//! share one look: quantity and unit on every axis (the unit with the SI prefix that suits the
+//! data, `output (mV)`, `time (ps)`), plain tick numbers, log axes labelled by decade in
+//! engineering notation (`1 pA`, `10 pA`, ...), markers on sampled points, legends naming each
+//! series, our palette. Each figure is written as SVG (900 x 560 units) and PNG at print
+//! resolution (1800 x 1120 pixels, everything drawn at twice the size), whole or not at all.
+//! Labels use the embedded DejaVu Sans (see `assets/DejaVuSans-LICENSE.txt`).
 //!
-//! * transfer curve with the gain on a second axis and V_IL, V_IH, V_M marked;
-//! * the butterfly of a curve and its mirror;
-//! * ring waveforms;
-//! * device transfer characteristics on a log scale, with the swing annotated.
+//! The figures: transfer curve with its gain and marks, butterfly with the largest squares,
+//! waveforms, device characteristics on a log axis, and curves of any figure against a
+//! parameter. Model estimates are flagged in the README and in the JSON summaries, not in
+//! every title.
 
 use plotters::coord::Shift;
 use plotters::prelude::*;
@@ -12,11 +17,22 @@ use std::path::Path;
 use std::sync::Once;
 
 const FONT: &[u8] = include_bytes!("../assets/DejaVuSans.ttf");
+/// SVG size in user units; the PNG is drawn at [`PNG_SCALE`] times this.
 const SIZE: (u32, u32) = (900, 560);
-/// Our palette: ink blue, warm orange, muted green.
-const INK: RGBColor = RGBColor(31, 58, 147);
-const WARM: RGBColor = RGBColor(214, 110, 24);
-const MOSS: RGBColor = RGBColor(64, 130, 80);
+/// PNG pixels per SVG unit.
+const PNG_SCALE: u32 = 2;
+/// Our palette: ink blue, warm orange, moss green, plum, brick, teal, ochre, slate.
+const PALETTE: [RGBColor; 8] = [
+    RGBColor(31, 58, 147),
+    RGBColor(214, 110, 24),
+    RGBColor(64, 130, 80),
+    RGBColor(120, 60, 150),
+    RGBColor(170, 50, 60),
+    RGBColor(30, 125, 140),
+    RGBColor(170, 135, 20),
+    RGBColor(90, 95, 110),
+];
+const GRID: RGBColor = RGBColor(232, 232, 232);
 
 fn register() {
     static ONCE: Once = Once::new();
@@ -32,25 +48,283 @@ fn err<E: std::fmt::Debug>(e: E) -> String {
     format!("cannot draw the plot: {e:?}")
 }
 
-/// Draws with `draw` into `stem.svg` and `stem.png`.
-fn both(
-    stem: &Path,
-    size: (u32, u32),
-    draw: impl Fn(&DrawingArea<SVGBackend<'_>, Shift>) -> DrawResult + Copy,
-    draw_png: impl Fn(&DrawingArea<BitMapBackend<'_>, Shift>) -> DrawResult,
-) -> DrawResult {
+/// An axis: the quantity and its SI unit (`"output"`, `"V"`), linear or logarithmic.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Axis {
+    /// What is plotted, in words or symbols (`input`, `V_GS`, `|I_D|`).
+    pub quantity: String,
+    /// Its SI unit without prefix (`V`, `A/µm`, `s`), empty for a pure number.
+    pub unit: String,
+    /// Logarithmic (of the magnitude; non-positive values are left out).
+    pub log: bool,
+}
+
+impl Axis {
+    /// A linear axis.
+    pub fn new(quantity: &str, unit: &str) -> Axis {
+        Axis {
+            quantity: quantity.into(),
+            unit: unit.into(),
+            log: false,
+        }
+    }
+
+    /// A logarithmic axis.
+    pub fn log(quantity: &str, unit: &str) -> Axis {
+        Axis {
+            log: true,
+            ..Axis::new(quantity, unit)
+        }
+    }
+
+    /// From a description `quantity (unit)`; no parentheses: a pure number.
+    pub fn described(desc: &str) -> Axis {
+        match desc.rsplit_once(" (") {
+            Some((q, u)) if u.ends_with(')') => Axis::new(q, &u[..u.len() - 1]),
+            _ => Axis::new(desc, ""),
+        }
+    }
+}
+
+/// How a series is drawn.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Style {
+    /// A solid line.
+    Line,
+    /// A dashed line (a second quantity on the right axis, say).
+    Dashed,
+    /// Markers only.
+    Points,
+}
+
+/// A named series of points.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Series {
+    /// Legend text (empty: no legend entry).
+    pub name: String,
+    /// The points, in the axes' SI units.
+    pub points: Vec<(f64, f64)>,
+    /// How it is drawn.
+    pub style: Style,
+    /// Whether each sample gets a marker (on by default for up to 60 points).
+    pub markers: bool,
+    /// Drawn against the right axis.
+    pub right: bool,
+}
+
+impl Series {
+    /// A line, with markers when it has few enough samples to show them.
+    pub fn line(name: &str, points: Vec<(f64, f64)>) -> Series {
+        Series {
+            name: name.into(),
+            markers: points.len() <= 60,
+            points,
+            style: Style::Line,
+            right: false,
+        }
+    }
+}
+
+/// Something drawn over the data.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Mark {
+    /// A labelled vertical line at `x`.
+    Vertical(f64, String),
+    /// A rectangle between two corners.
+    Rect((f64, f64), (f64, f64)),
+    /// A labelled point.
+    Point((f64, f64), String),
+}
+
+/// A figure: axes, series, marks and an optional title.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Figure {
+    /// Title (empty for none).
+    pub title: String,
+    /// Horizontal axis.
+    pub x: Axis,
+    /// Left axis.
+    pub y: Axis,
+    /// Right axis, if any series is drawn against it.
+    pub y_right: Option<Axis>,
+    /// The data.
+    pub series: Vec<Series>,
+    /// Marks over the data.
+    pub marks: Vec<Mark>,
+    /// Square plot area with equal ranges (a butterfly).
+    pub square: bool,
+}
+
+impl Figure {
+    /// An empty figure on two axes.
+    pub fn new(title: &str, x: Axis, y: Axis) -> Figure {
+        Figure {
+            title: title.into(),
+            x,
+            y,
+            y_right: None,
+            series: Vec::new(),
+            marks: Vec::new(),
+            square: false,
+        }
+    }
+}
+
+const PREFIXES: [(i32, &str); 10] = [
+    (-15, "f"),
+    (-12, "p"),
+    (-9, "n"),
+    (-6, "µ"),
+    (-3, "m"),
+    (0, ""),
+    (3, "k"),
+    (6, "M"),
+    (9, "G"),
+    (12, "T"),
+];
+
+/// How an axis maps data to drawing coordinates: a power of 1000 (linear) or log10 (log).
+#[derive(Clone, Debug)]
+struct Scale {
+    log: bool,
+    /// Linear: data times `factor`.
+    factor: f64,
+    /// The axis title with the prefixed unit.
+    title: String,
+    unit: String,
+    range: (f64, f64),
+}
+
+impl Scale {
+    fn new(
+        axis: &Axis,
+        values: impl Iterator<Item = f64>,
+        square_with: Option<(f64, f64)>,
+    ) -> Scale {
+        let v: Vec<f64> = values
+            .filter(|x| x.is_finite() && (!axis.log || *x > 0.0))
+            .collect();
+        if axis.log {
+            let lo = v.iter().map(|x| x.log10()).fold(f64::INFINITY, f64::min);
+            let hi = v
+                .iter()
+                .map(|x| x.log10())
+                .fold(f64::NEG_INFINITY, f64::max);
+            let (lo, hi) = if lo.is_finite() {
+                (lo.floor(), hi.ceil().max(lo.floor() + 1.0))
+            } else {
+                (0.0, 1.0)
+            };
+            let title = if axis.unit.is_empty() {
+                axis.quantity.clone()
+            } else {
+                format!("{} ({})", axis.quantity, axis.unit)
+            };
+            return Scale {
+                log: true,
+                factor: 1.0,
+                title,
+                unit: axis.unit.clone(),
+                range: (lo, hi),
+            };
+        }
+        let (lo, hi) = match square_with {
+            Some(r) => r,
+            None => span(v.iter().copied()),
+        };
+        let big = lo.abs().max(hi.abs());
+        let e = if axis.unit.is_empty() || big == 0.0 || !big.is_finite() {
+            0
+        } else {
+            // A little slack, so 0.99999 V reads as volts and not as 999.99 mV.
+            (((big.log10() + 0.002) / 3.0).floor() as i32 * 3).clamp(-15, 12)
+        };
+        let prefix = PREFIXES.iter().find(|p| p.0 == e).map_or("", |p| p.1);
+        let factor = 10f64.powi(-e);
+        let title = if axis.unit.is_empty() {
+            axis.quantity.clone()
+        } else {
+            format!("{} ({prefix}{})", axis.quantity, axis.unit)
+        };
+        let pad = if square_with.is_some() {
+            0.0
+        } else {
+            0.04 * (hi - lo)
+        };
+        Scale {
+            log: false,
+            factor,
+            title,
+            unit: axis.unit.clone(),
+            range: ((lo - pad) * factor, (hi + pad) * factor),
+        }
+    }
+
+    fn map(&self, v: f64) -> Option<f64> {
+        if self.log {
+            (v > 0.0 && v.is_finite()).then(|| v.log10())
+        } else {
+            v.is_finite().then_some(v * self.factor)
+        }
+    }
+
+    fn label(&self, v: f64) -> String {
+        if self.log {
+            if (v - v.round()).abs() > 1e-6 {
+                return String::new();
+            }
+            engineering(10f64.powi(v.round() as i32), &self.unit)
+        } else {
+            let s = format!("{v:.4}");
+            let s = s.trim_end_matches('0').trim_end_matches('.');
+            if s == "-0" {
+                "0".into()
+            } else {
+                s.to_string()
+            }
+        }
+    }
+
+    fn labels(&self) -> usize {
+        if self.log {
+            ((self.range.1 - self.range.0).round() as usize + 1).clamp(2, 30)
+        } else {
+            8
+        }
+    }
+}
+
+fn span(v: impl Iterator<Item = f64>) -> (f64, f64) {
+    let (lo, hi) = v.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), x| {
+        (a.min(x), b.max(x))
+    });
+    if lo.is_finite() && hi > lo {
+        (lo, hi)
+    } else if lo.is_finite() {
+        (
+            lo - 0.5 * lo.abs().max(1e-30),
+            hi + 0.5 * hi.abs().max(1e-30),
+        )
+    } else {
+        (0.0, 1.0)
+    }
+}
+
+/// Draws `fig` into `stem.svg` and `stem.png`.
+pub fn draw(stem: &Path, fig: &Figure) -> DrawResult {
     register();
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, size).into_drawing_area();
-        draw(&root)?;
+        let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
+        render(&root, fig, 1)?;
         root.present().map_err(err)?;
     }
     crate::output::write_whole(&stem.with_extension("svg"), svg.as_bytes())?;
+    let size = (SIZE.0 * PNG_SCALE, SIZE.1 * PNG_SCALE);
     let mut buf = vec![0u8; (size.0 * size.1 * 3) as usize];
     {
         let root = BitMapBackend::with_buffer(&mut buf, size).into_drawing_area();
-        draw_png(&root)?;
+        render(&root, fig, PNG_SCALE)?;
         root.present().map_err(err)?;
     }
     let mut png_bytes = Vec::new();
@@ -64,15 +338,243 @@ fn both(
     crate::output::write_whole(&stem.with_extension("png"), &png_bytes)
 }
 
-fn span(v: impl Iterator<Item = f64>) -> (f64, f64) {
-    let (lo, hi) = v.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), x| {
-        (a.min(x), b.max(x))
+fn render<DB: DrawingBackend>(root: &DrawingArea<DB, Shift>, fig: &Figure, k: u32) -> DrawResult
+where
+    DB::ErrorType: 'static,
+{
+    let k = k as i32;
+    let font = |size: i32| ("sans-serif", (size * k) as f64);
+    root.fill(&WHITE).map_err(err)?;
+    let left: Vec<&Series> = fig.series.iter().filter(|s| !s.right).collect();
+    let right: Vec<&Series> = fig.series.iter().filter(|s| s.right).collect();
+    let xs = fig.series.iter().flat_map(|s| s.points.iter().map(|p| p.0));
+    let mark_x = fig.marks.iter().flat_map(|m| match m {
+        Mark::Rect(a, b) => vec![a.0, b.0],
+        _ => Vec::new(),
     });
-    if lo.is_finite() && hi > lo {
-        (lo, hi)
+    let square = fig.square.then(|| {
+        span(
+            fig.series
+                .iter()
+                .flat_map(|s| s.points.iter().flat_map(|p| [p.0, p.1])),
+        )
+    });
+    let sx = Scale::new(&fig.x, xs.chain(mark_x), square);
+    let sy = Scale::new(
+        &fig.y,
+        left.iter().flat_map(|s| s.points.iter().map(|p| p.1)),
+        square,
+    );
+    let sr = fig.y_right.as_ref().map(|a| {
+        Scale::new(
+            a,
+            right.iter().flat_map(|s| s.points.iter().map(|p| p.1)),
+            None,
+        )
+    });
+    let area = if fig.square {
+        let side = (SIZE.1 as i32) * k;
+        let off = ((SIZE.0 as i32) * k - side) / 2;
+        root.margin(0, 0, off, off)
     } else {
-        (0.0, 1.0)
+        root.clone()
+    };
+    let mut builder = ChartBuilder::on(&area);
+    if !fig.title.is_empty() {
+        builder.caption(&fig.title, font(18));
     }
+    builder
+        .margin(12 * k)
+        .x_label_area_size(52 * k)
+        .y_label_area_size(74 * k);
+    if sr.is_some() {
+        builder.right_y_label_area_size(74 * k);
+    }
+    let mut chart = builder
+        .build_cartesian_2d(sx.range.0..sx.range.1, sy.range.0..sy.range.1)
+        .map_err(err)?
+        .set_secondary_coord(
+            sx.range.0..sx.range.1,
+            sr.as_ref().map_or(0.0..1.0, |s| s.range.0..s.range.1),
+        );
+    let xl = |v: &f64| sx.label(*v);
+    let yl = |v: &f64| sy.label(*v);
+    chart
+        .configure_mesh()
+        .x_desc(&sx.title)
+        .y_desc(&sy.title)
+        .x_labels(sx.labels())
+        .y_labels(sy.labels())
+        .x_label_formatter(&xl)
+        .y_label_formatter(&yl)
+        .axis_desc_style(font(16))
+        .label_style(font(14))
+        .light_line_style(GRID)
+        .bold_line_style(GRID.mix(0.0))
+        .axis_style(BLACK.stroke_width(k as u32))
+        .draw()
+        .map_err(err)?;
+    if let Some(r) = &sr {
+        let rl = |v: &f64| r.label(*v);
+        chart
+            .configure_secondary_axes()
+            .y_desc(&r.title)
+            .y_labels(r.labels())
+            .y_label_formatter(&rl)
+            .axis_desc_style(font(16))
+            .label_style(font(14))
+            .draw()
+            .map_err(err)?;
+    }
+    let stroke = (2 * k) as u32;
+    let mut any_legend = false;
+    for (n, s) in fig.series.iter().enumerate() {
+        let colour = PALETTE[n % PALETTE.len()];
+        let scale_y = if s.right {
+            sr.as_ref().unwrap_or(&sy)
+        } else {
+            &sy
+        };
+        let pts: Vec<(f64, f64)> = s
+            .points
+            .iter()
+            .filter_map(|&(x, y)| Some((sx.map(x)?, scale_y.map(y)?)))
+            .collect();
+        let style = colour.stroke_width(stroke);
+        let markers = s.markers || s.style == Style::Points;
+        let r = 3 * k;
+        macro_rules! put {
+            ($draw:ident) => {{
+                let anno = match s.style {
+                    Style::Points => chart
+                        .$draw(pts.iter().map(|&p| Circle::new(p, r, colour.filled())))
+                        .map_err(err)?,
+                    Style::Dashed => chart
+                        .$draw(DashedLineSeries::new(
+                            pts.iter().copied(),
+                            8 * k,
+                            5 * k,
+                            style,
+                        ))
+                        .map_err(err)?,
+                    Style::Line => chart
+                        .$draw(LineSeries::new(pts.iter().copied(), style))
+                        .map_err(err)?,
+                };
+                if !s.name.is_empty() {
+                    any_legend = true;
+                    anno.label(s.name.clone()).legend(move |(x, y)| {
+                        let line = PathElement::new(
+                            vec![(x, y), (x + 22 * k, y)],
+                            colour.stroke_width(stroke),
+                        );
+                        EmptyElement::at((0, 0))
+                            + line
+                            + Circle::new(
+                                (x + 11 * k, y),
+                                if markers { r } else { 0 },
+                                colour.filled(),
+                            )
+                    });
+                }
+                if markers && s.style != Style::Points {
+                    chart
+                        .$draw(pts.iter().map(|&p| Circle::new(p, r, colour.filled())))
+                        .map_err(err)?;
+                }
+            }};
+        }
+        if s.right {
+            put!(draw_secondary_series);
+        } else {
+            put!(draw_series);
+        }
+    }
+    let accent = PALETTE[2];
+    for (i, m) in fig.marks.iter().enumerate() {
+        match m {
+            Mark::Vertical(x, label) => {
+                if let Some(x) = sx.map(*x) {
+                    // Labels of nearby marks at staggered heights.
+                    let y_text = sy.range.1 - (i % 3) as f64 * 0.06 * (sy.range.1 - sy.range.0);
+                    chart
+                        .draw_series(std::iter::once(PathElement::new(
+                            vec![(x, sy.range.0), (x, sy.range.1)],
+                            accent.stroke_width(k as u32),
+                        )))
+                        .map_err(err)?;
+                    chart
+                        .draw_series(std::iter::once(Text::new(
+                            format!(" {label}"),
+                            (x, y_text),
+                            font(14).into_font().color(&accent),
+                        )))
+                        .map_err(err)?;
+                }
+            }
+            Mark::Rect(a, b) => {
+                if let (Some(x0), Some(y0), Some(x1), Some(y1)) =
+                    (sx.map(a.0), sy.map(a.1), sx.map(b.0), sy.map(b.1))
+                {
+                    chart
+                        .draw_series(std::iter::once(Rectangle::new(
+                            [(x0.min(x1), y0.min(y1)), (x0.max(x1), y0.max(y1))],
+                            accent.stroke_width(stroke),
+                        )))
+                        .map_err(err)?;
+                }
+            }
+            Mark::Point(p, label) => {
+                if let (Some(x), Some(y)) = (sx.map(p.0), sy.map(p.1)) {
+                    chart
+                        .draw_series(std::iter::once(Circle::new((x, y), 5 * k, accent.filled())))
+                        .map_err(err)?;
+                    chart
+                        .draw_series(std::iter::once(Text::new(
+                            label.clone(),
+                            (x, y),
+                            font(14).into_font().color(&accent),
+                        )))
+                        .map_err(err)?;
+                }
+            }
+        }
+    }
+    if any_legend {
+        // The corner with the fewest points, so the legend hides the least data.
+        let (x0, x1, y0, y1) = (sx.range.0, sx.range.1, sy.range.0, sy.range.1);
+        let corners = [
+            (SeriesLabelPosition::UpperLeft, x0, y1),
+            (SeriesLabelPosition::UpperRight, x1, y1),
+            (SeriesLabelPosition::LowerRight, x1, y0),
+            (SeriesLabelPosition::LowerLeft, x0, y0),
+        ];
+        let crowd = |cx: f64, cy: f64| {
+            fig.series
+                .iter()
+                .filter(|s| !s.right)
+                .flat_map(|s| s.points.iter())
+                .filter_map(|&(x, y)| Some((sx.map(x)?, sy.map(y)?)))
+                .filter(|(x, y)| {
+                    (x - cx).abs() < 0.35 * (x1 - x0) && (y - cy).abs() < 0.3 * (y1 - y0)
+                })
+                .count()
+        };
+        let best = corners
+            .into_iter()
+            .min_by_key(|c| crowd(c.1, c.2))
+            .map_or(SeriesLabelPosition::UpperLeft, |c| c.0);
+        chart
+            .configure_series_labels()
+            .label_font(font(14))
+            .legend_area_size(30 * k)
+            .background_style(WHITE.mix(0.9))
+            .border_style(RGBColor(190, 190, 190))
+            .position(best)
+            .draw()
+            .map_err(err)?;
+    }
+    Ok(())
 }
 
 /// Transfer curve, gain on the right axis, V_IL, V_IH and V_M marked.
@@ -85,72 +587,23 @@ pub fn transfer(stem: &Path, vin: &[f64], vout: &[f64], marks: &[(&str, f64)]) -
             )
         })
         .collect();
-    let (x0, x1) = span(vin.iter().copied());
-    let (_, y1) = span(vout.iter().copied());
-    let (_, g1) = span(gain.iter().map(|p| p.1));
-    macro_rules! body {
-        ($root:expr) => {{
-            let root = $root;
-            root.fill(&WHITE).map_err(err)?;
-            let mut chart = ChartBuilder::on(root)
-                .caption("Transfer curve (model estimate)", ("sans-serif", 22))
-                .margin(14)
-                .x_label_area_size(44)
-                .y_label_area_size(56)
-                .right_y_label_area_size(56)
-                .build_cartesian_2d(x0..x1, 0.0..y1 * 1.05)
-                .map_err(err)?
-                .set_secondary_coord(x0..x1, 0.0..g1 * 1.1);
-            chart
-                .configure_mesh()
-                .x_desc("input (V)")
-                .y_desc("output (V)")
-                .light_line_style(RGBColor(235, 235, 235))
-                .draw()
-                .map_err(err)?;
-            chart
-                .configure_secondary_axes()
-                .y_desc("gain |dv_out/dv_in|")
-                .draw()
-                .map_err(err)?;
-            chart
-                .draw_series(LineSeries::new(
-                    vin.iter().copied().zip(vout.iter().copied()),
-                    INK.stroke_width(2),
-                ))
-                .map_err(err)?
-                .label("output")
-                .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], INK.stroke_width(2)));
-            chart
-                .draw_secondary_series(LineSeries::new(gain.iter().copied(), WARM.stroke_width(1)))
-                .map_err(err)?
-                .label("gain")
-                .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], WARM));
-            for (name, x) in marks {
-                chart
-                    .draw_series(std::iter::once(PathElement::new(
-                        vec![(*x, 0.0), (*x, y1 * 1.05)],
-                        MOSS.stroke_width(1),
-                    )))
-                    .map_err(err)?;
-                chart
-                    .draw_series(std::iter::once(Text::new(
-                        name.to_string(),
-                        (*x, y1 * 1.0),
-                        ("sans-serif", 15).into_font().color(&MOSS),
-                    )))
-                    .map_err(err)?;
-            }
-            chart
-                .configure_series_labels()
-                .background_style(WHITE)
-                .border_style(RGBColor(180, 180, 180))
-                .draw()
-                .map_err(err)?;
-            Ok(())
-        }};
-    }
-    both(stem, SIZE, |r| body!(r), |r| body!(r))
+    let mut f = Figure::new("", Axis::new("input", "V"), Axis::new("output", "V"));
+    f.y_right = Some(Axis::new("gain |dv_out/dv_in|", ""));
+    f.series.push(Series::line(
+        "output",
+        vin.iter().copied().zip(vout.iter().copied()).collect(),
+    ));
+    f.series.push(Series {
+        style: Style::Dashed,
+        right: true,
+        markers: false,
+        ..Series::line("gain", gain)
+    });
+    f.marks = marks
+        .iter()
+        .map(|(n, x)| Mark::Vertical(*x, n.to_string()))
+        .collect();
+    draw(stem, &f)
 }
 
 /// The butterfly: the curve and its mirror image, with the largest square of each lobe.
@@ -161,101 +614,40 @@ pub fn butterfly(
     snm: Option<f64>,
     squares: &[lamina_measure::snm::Square],
 ) -> DrawResult {
-    let (lo, hi) = span(vin.iter().copied().chain(vout.iter().copied()));
     let title = match snm {
-        Some(s) => format!("Butterfly, largest square {:.3} V (model estimate)", s),
-        None => "Butterfly (no lobes; model estimate)".to_string(),
+        Some(s) => format!("largest square {}", engineering(s, "V")),
+        None => "no lobes".to_string(),
     };
-    macro_rules! body {
-        ($root:expr) => {{
-            let root = $root;
-            root.fill(&WHITE).map_err(err)?;
-            let mut chart = ChartBuilder::on(root)
-                .caption(&title, ("sans-serif", 22))
-                .margin(14)
-                .x_label_area_size(44)
-                .y_label_area_size(56)
-                .build_cartesian_2d(lo..hi, lo..hi)
-                .map_err(err)?;
-            chart
-                .configure_mesh()
-                .x_desc("node A (V)")
-                .y_desc("node B (V)")
-                .light_line_style(RGBColor(235, 235, 235))
-                .draw()
-                .map_err(err)?;
-            chart
-                .draw_series(LineSeries::new(
-                    vin.iter().copied().zip(vout.iter().copied()),
-                    INK.stroke_width(2),
-                ))
-                .map_err(err)?;
-            chart
-                .draw_series(LineSeries::new(
-                    vout.iter().copied().zip(vin.iter().copied()),
-                    WARM.stroke_width(2),
-                ))
-                .map_err(err)?;
-            for &((x0, y0), (x1, y1)) in squares {
-                chart
-                    .draw_series(std::iter::once(Rectangle::new(
-                        [(x0.min(x1), y0.min(y1)), (x0.max(x1), y0.max(y1))],
-                        MOSS.stroke_width(2),
-                    )))
-                    .map_err(err)?;
-            }
-            Ok(())
-        }};
-    }
-    both(stem, (640, 640), |r| body!(r), |r| body!(r))
+    let mut f = Figure::new(&title, Axis::new("node A", "V"), Axis::new("node B", "V"));
+    f.square = true;
+    f.series.push(Series {
+        markers: false,
+        ..Series::line(
+            "curve",
+            vin.iter().copied().zip(vout.iter().copied()).collect(),
+        )
+    });
+    f.series.push(Series {
+        markers: false,
+        ..Series::line(
+            "mirror",
+            vout.iter().copied().zip(vin.iter().copied()).collect(),
+        )
+    });
+    f.marks = squares.iter().map(|&(a, b)| Mark::Rect(a, b)).collect();
+    draw(stem, &f)
 }
 
-/// Waveforms against time (ns).
+/// Waveforms (V) against time (s).
 pub fn waveforms(stem: &Path, t: &[f64], series: &[(&str, &[f64])]) -> DrawResult {
-    let (t0, t1) = span(t.iter().map(|x| x * 1e9));
-    let (y0, y1) = span(series.iter().flat_map(|(_, s)| s.iter().copied()));
-    let colors = [INK, WARM, MOSS];
-    macro_rules! body {
-        ($root:expr) => {{
-            let root = $root;
-            root.fill(&WHITE).map_err(err)?;
-            let mut chart = ChartBuilder::on(root)
-                .caption("Ring waveforms (model estimate)", ("sans-serif", 22))
-                .margin(14)
-                .x_label_area_size(44)
-                .y_label_area_size(56)
-                .build_cartesian_2d(t0..t1, y0 - 0.05 * (y1 - y0)..y1 + 0.05 * (y1 - y0))
-                .map_err(err)?;
-            chart
-                .configure_mesh()
-                .x_desc("time (ns)")
-                .y_desc("voltage (V)")
-                .light_line_style(RGBColor(235, 235, 235))
-                .draw()
-                .map_err(err)?;
-            for (k, (name, s)) in series.iter().enumerate() {
-                let c = colors[k % colors.len()];
-                chart
-                    .draw_series(LineSeries::new(
-                        t.iter().map(|x| x * 1e9).zip(s.iter().copied()),
-                        c.stroke_width(2),
-                    ))
-                    .map_err(err)?
-                    .label(name.to_string())
-                    .legend(move |(x, y)| {
-                        PathElement::new(vec![(x, y), (x + 20, y)], c.stroke_width(2))
-                    });
-            }
-            chart
-                .configure_series_labels()
-                .background_style(WHITE)
-                .border_style(RGBColor(180, 180, 180))
-                .draw()
-                .map_err(err)?;
-            Ok(())
-        }};
+    let mut f = Figure::new("", Axis::new("time", "s"), Axis::new("voltage", "V"));
+    for (name, v) in series {
+        f.series.push(Series {
+            markers: false,
+            ..Series::line(name, t.iter().copied().zip(v.iter().copied()).collect())
+        });
     }
-    both(stem, SIZE, |r| body!(r), |r| body!(r))
+    draw(stem, &f)
 }
 
 /// Device transfer characteristics |I_D|(V_GS) on a log scale, one curve per V_DS.
@@ -264,63 +656,22 @@ pub fn transfer_log(
     curves: &[(f64, Vec<(f64, f64)>)],
     swing: Option<f64>,
 ) -> DrawResult {
-    let (x0, x1) = span(curves.iter().flat_map(|(_, c)| c.iter().map(|p| p.0)));
-    let mags = curves
-        .iter()
-        .flat_map(|(_, c)| c.iter().map(|p| p.1.abs()))
-        .filter(|v| *v > 0.0);
-    let (ylo, yhi) = span(mags);
     let title = match swing {
-        Some(s) => {
-            format!("Transfer characteristics, minimum swing {s:.1} mV/dec (model estimate)")
-        }
-        None => "Transfer characteristics (model estimate)".to_string(),
+        Some(s) => format!("minimum swing {s:.1} mV/dec"),
+        None => String::new(),
     };
-    let colors = [INK, WARM, MOSS];
-    macro_rules! body {
-        ($root:expr) => {{
-            let root = $root;
-            root.fill(&WHITE).map_err(err)?;
-            let mut chart = ChartBuilder::on(root)
-                .caption(&title, ("sans-serif", 20))
-                .margin(14)
-                .x_label_area_size(44)
-                .y_label_area_size(70)
-                .build_cartesian_2d(x0..x1, (ylo * 0.5..yhi * 2.0).log_scale())
-                .map_err(err)?;
-            chart
-                .configure_mesh()
-                .x_desc("V_GS (V)")
-                .y_desc("|I_D| (A)")
-                .y_label_formatter(&|v| format!("{v:.0e}"))
-                .draw()
-                .map_err(err)?;
-            for (k, (vds, c)) in curves.iter().enumerate() {
-                let col = colors[k % colors.len()];
-                chart
-                    .draw_series(LineSeries::new(
-                        c.iter().map(|p| (p.0, p.1.abs().max(ylo * 0.5))),
-                        col.stroke_width(2),
-                    ))
-                    .map_err(err)?
-                    .label(format!("V_DS = {vds} V"))
-                    .legend(move |(x, y)| {
-                        PathElement::new(vec![(x, y), (x + 20, y)], col.stroke_width(2))
-                    });
-            }
-            chart
-                .configure_series_labels()
-                .background_style(WHITE)
-                .border_style(RGBColor(180, 180, 180))
-                .draw()
-                .map_err(err)?;
-            Ok(())
-        }};
+    let mut f = Figure::new(&title, Axis::new("V_GS", "V"), Axis::log("|I_D|", "A"));
+    for (vds, c) in curves {
+        f.series.push(Series::line(
+            &format!("V_DS = {}", engineering(*vds, "V")),
+            c.iter().map(|p| (p.0, p.1.abs())).collect(),
+        ));
     }
-    both(stem, SIZE, |r| body!(r), |r| body!(r))
+    draw(stem, &f)
 }
 
-/// Curves `y(x)` with their own legend labels (output characteristics, swept figures).
+/// Curves `y(x)` with their own legend labels (output characteristics, swept figures); the
+/// axis descriptions are `quantity (unit)` in SI units.
 pub fn curves(
     stem: &Path,
     title: &str,
@@ -328,66 +679,33 @@ pub fn curves(
     y_desc: &str,
     series: &[(String, Vec<(f64, f64)>)],
 ) -> DrawResult {
-    let (x0, x1) = span(series.iter().flat_map(|(_, c)| c.iter().map(|p| p.0)));
-    let (y0, y1) = span(series.iter().flat_map(|(_, c)| c.iter().map(|p| p.1)));
-    let pad = 0.05 * (y1 - y0);
-    let colors = [
-        INK,
-        WARM,
-        MOSS,
-        RGBColor(120, 60, 150),
-        RGBColor(150, 40, 60),
-        RGBColor(30, 120, 140),
-    ];
-    macro_rules! body {
-        ($root:expr) => {{
-            let root = $root;
-            root.fill(&WHITE).map_err(err)?;
-            let mut chart = ChartBuilder::on(root)
-                .caption(title, ("sans-serif", 20))
-                .margin(14)
-                .x_label_area_size(44)
-                .y_label_area_size(70)
-                .build_cartesian_2d(x0..x1, y0 - pad..y1 + pad)
-                .map_err(err)?;
-            chart
-                .configure_mesh()
-                .x_desc(x_desc)
-                .y_desc(y_desc)
-                .y_label_formatter(&|v| format!("{v:.2e}"))
-                .light_line_style(RGBColor(235, 235, 235))
-                .draw()
-                .map_err(err)?;
-            for (k, (name, c)) in series.iter().enumerate() {
-                let col = colors[k % colors.len()];
-                chart
-                    .draw_series(LineSeries::new(c.iter().copied(), col.stroke_width(2)))
-                    .map_err(err)?
-                    .label(name.clone())
-                    .legend(move |(x, y)| {
-                        PathElement::new(vec![(x, y), (x + 20, y)], col.stroke_width(2))
-                    });
-            }
-            chart
-                .configure_series_labels()
-                .background_style(WHITE)
-                .border_style(RGBColor(180, 180, 180))
-                .draw()
-                .map_err(err)?;
-            Ok(())
-        }};
+    let mut f = Figure::new(title, Axis::described(x_desc), Axis::described(y_desc));
+    for (name, pts) in series {
+        f.series.push(Series::line(name, pts.clone()));
     }
-    both(stem, SIZE, |r| body!(r), |r| body!(r))
+    draw(stem, &f)
 }
 
 /// A value in engineering notation with an SI prefix on its unit, four significant digits:
 /// `engineering(6e-10, "s")` is `600 ps`, `engineering(0.6, "V")` is `600 mV`. Without a
 /// unit, or for zero, the plain number.
 pub fn engineering(v: f64, unit: &str) -> String {
-    const PREFIXES: [&str; 10] = ["f", "p", "n", "µ", "m", "", "k", "M", "G", "T"];
+    const PREFIXES: [&str; 13] = [
+        "y", "z", "a", "f", "p", "n", "µ", "m", "", "k", "M", "G", "T",
+    ];
+    // Four significant digits.
     let short = |x: f64| {
-        let s = format!("{x:.4}");
-        let s = s.trim_end_matches('0').trim_end_matches('.').to_string();
+        let digits = if x == 0.0 {
+            0
+        } else {
+            (3 - x.abs().log10().floor() as i32).clamp(0, 6) as usize
+        };
+        let s = format!("{x:.digits$}");
+        let s = if s.contains('.') {
+            s.trim_end_matches('0').trim_end_matches('.').to_string()
+        } else {
+            s
+        };
         if s == "-0" {
             "0".to_string()
         } else {
@@ -406,7 +724,10 @@ pub fn engineering(v: f64, unit: &str) -> String {
             format!("{plain} {unit}")
         };
     }
-    let e = ((v.abs().log10() / 3.0).floor() as i32).clamp(-5, 4);
+    if v.abs() < 1e-24 || v.abs() >= 1e15 {
+        return format!("{v:.3e} {unit}");
+    }
+    let e = ((v.abs().log10() / 3.0).floor() as i32).clamp(-8, 4);
     let m = v / 10f64.powi(3 * e);
     // Rounding can carry a mantissa to 1000: move to the next prefix.
     let (m, e) = if (m.abs() * 1e4).round() / 1e4 >= 1000.0 && e < 4 {
@@ -414,7 +735,7 @@ pub fn engineering(v: f64, unit: &str) -> String {
     } else {
         (m, e)
     };
-    format!("{} {}{unit}", short(m), PREFIXES[(e + 5) as usize])
+    format!("{} {}{unit}", short(m), PREFIXES[(e + 8) as usize])
 }
 
 #[cfg(test)]

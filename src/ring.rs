@@ -221,7 +221,23 @@ pub fn run_ring(
 }
 
 /// Recorded waveforms of a ring run: time and the first two stage outputs.
-pub type RingWaves = (Vec<f64>, Vec<f64>, Vec<f64>);
+pub type RingWaves = (Vec<f64>, Vec<(usize, Vec<f64>)>);
+
+/// Most stage outputs kept for plots: all of a ring this short, an evenly spread set of a
+/// longer one.
+pub const SHOWN_STAGES: usize = 5;
+
+/// The stages whose outputs a recorded run keeps: every stage of a short ring, else
+/// [`SHOWN_STAGES`] spread evenly from the first to the last.
+pub fn shown_stages(stages: usize) -> Vec<usize> {
+    if stages <= SHOWN_STAGES {
+        (0..stages).collect()
+    } else {
+        (0..SHOWN_STAGES)
+            .map(|k| k * (stages - 1) / (SHOWN_STAGES - 1))
+            .collect()
+    }
+}
 
 /// As [`run_ring`], also returning the waveforms of `out[0]` and `out[1]`: the whole run,
 /// thinned to at most [`RingParams::wave_samples`] samples (the engine's [`Decimator`] rule).
@@ -636,8 +652,13 @@ fn run_periods(
     let cap = needed + MAX_EXTRA_PERIODS;
     let mut periods = Periods::new(level);
     let mut monitor = Monitor::new(ring, params);
-    let mut waves = Decimator::new(if record { params.wave_samples } else { 2 }, 2);
-    waves.push(0.0, &[ring.vdd, 0.0]);
+    let shown = shown_stages(stages);
+    let mut waves = Decimator::new(if record { params.wave_samples } else { 2 }, shown.len());
+    let mut sample: Vec<f64> = shown
+        .iter()
+        .map(|i| if i % 2 == 0 { ring.vdd } else { 0.0 })
+        .collect();
+    waves.push(0.0, &sample);
     // The supply energy counts from the first step (power taken as 0 at t = 0); only its
     // differences between crossings are used.
     periods.push(0.0, ring.vdd, 0.0);
@@ -658,7 +679,10 @@ fn run_periods(
                 bar.set_position(periods.ups_linear.len() as u64);
             }
             if record {
-                waves.push(t, &outputs[..2]);
+                for (slot, &i) in sample.iter_mut().zip(&shown) {
+                    *slot = outputs[i];
+                }
+                waves.push(t, &sample);
             }
             steps += 1;
             if steps % 2000 == 0 {
@@ -771,14 +795,12 @@ fn run_periods(
         newton_iterations: stats.newton_iterations,
         simulated: stats.end_time,
     };
-    Ok((report, split_waves(waves)))
+    Ok((report, split_waves(waves, &shown)))
 }
 
-fn split_waves(waves: Decimator) -> RingWaves {
-    let (time, mut signals) = waves.finish();
-    let second = signals.pop().unwrap_or_default();
-    let first = signals.pop().unwrap_or_default();
-    (time, first, second)
+fn split_waves(waves: Decimator, shown: &[usize]) -> RingWaves {
+    let (time, signals) = waves.finish();
+    (time, shown.iter().copied().zip(signals).collect())
 }
 
 /// The edge-travel estimate (for long rings of identical stages): after the single edge has
@@ -807,6 +829,7 @@ fn run_edge(
     let tp = transient_params(params);
     let level = 0.5 * ring.vdd;
     let mut monitor = Monitor::new(ring, params);
+    let shown = [a, b];
     let mut waves = Decimator::new(if record { params.wave_samples } else { 2 }, 2);
     // Nodes A and B are even: they start high and fall when the edge reaches them.
     let mut window_a = Window::new();
@@ -930,5 +953,5 @@ fn run_edge(
         newton_iterations: stats.newton_iterations,
         simulated: stats.end_time,
     };
-    Ok((report, split_waves(waves)))
+    Ok((report, split_waves(waves, &shown)))
 }

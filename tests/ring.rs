@@ -362,13 +362,20 @@ fn ring_waveforms_keep_their_bound_and_the_figures_do_not_move() {
         };
         run_ring_recorded(&mut sys, &ring, &params).unwrap()
     };
-    let (whole, (t, a, b)) = run(1 << 20);
+    let (whole, (t, w)) = run(1 << 20);
+    // An 11-stage ring shows five stages spread from the first to the last.
+    assert_eq!(
+        w.iter().map(|s| s.0).collect::<Vec<_>>(),
+        vec![0, 2, 5, 7, 10]
+    );
+    let (a, b) = (&w[0].1, &w[1].1);
     assert_eq!(t.len(), whole.steps + 1, "every step fits");
-    let (thin, (tt, ta, tb)) = run(100);
+    let (thin, (tt, tw)) = run(100);
+    let (ta, tb) = (&tw[0].1, &tw[1].1);
     assert_eq!(thin, whole);
     assert!(tt.len() <= 100 && tt.len() >= 50, "{} samples", tt.len());
     assert_eq!((ta.len(), tb.len()), (tt.len(), tt.len()));
-    assert_eq!((tt[0], ta[0], tb[0]), (0.0, 1.0, 0.0));
+    assert_eq!((tt[0], ta[0], tb[0]), (0.0, 1.0, 1.0));
     assert_eq!(*tt.last().unwrap(), thin.simulated);
     for (k, &tk) in tt.iter().enumerate() {
         let i = t.partition_point(|&x| x < tk);

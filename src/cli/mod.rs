@@ -14,6 +14,9 @@ pub mod transient;
 pub mod vtc;
 
 use crate::design::Outcome;
+
+/// The caution every JSON summary carries (figures do not repeat it in their titles).
+pub const CAUTION: &str = "model estimates: check them against measurement and the rules of your process before basing a design decision on them";
 use crate::out;
 use lamina_measure::transfer::DEFINITIONS;
 use ring::{print_ring, ring_json};
@@ -50,6 +53,7 @@ pub(crate) fn print_single(kind: &str, outcome: &Outcome, json: bool) {
         let mut v = outcome_json(kind, outcome);
         if let Some(m) = v.as_object_mut() {
             m.remove("analysis");
+            m.insert("caution".into(), serde_json::json!(CAUTION));
         }
         out!("{v}");
     } else {

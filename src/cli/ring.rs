@@ -137,17 +137,27 @@ pub(crate) fn finish_ring(
 
 pub(crate) fn write_ring(dir: &Path, r: &RingReport, w: &RingWaves) -> Result<(), String> {
     ensure_dir(dir)?;
-    let (t, a, b) = w;
-    let rows = t.iter().zip(a).zip(b).map(|((t, a), b)| vec![*t, *a, *b]);
-    write_file(
-        &dir.join("waveforms.csv"),
-        csv(&["time_s", "out[0]_v", "out[1]_v"], rows).as_bytes(),
-    )?;
-    write_file(
-        &dir.join("summary.json"),
-        format!("{}\n", ring_json(r)).as_bytes(),
-    )?;
-    crate::plot::waveforms(&dir.join("waveforms"), t, &[("out[0]", a), ("out[1]", b)])?;
+    let (t, stages) = w;
+    let header: Vec<String> = std::iter::once("time_s".to_string())
+        .chain(stages.iter().map(|(i, _)| format!("stage{i}_v")))
+        .collect();
+    let header: Vec<&str> = header.iter().map(String::as_str).collect();
+    let rows = t.iter().enumerate().map(|(k, tk)| {
+        std::iter::once(*tk)
+            .chain(stages.iter().map(|(_, v)| v[k]))
+            .collect::<Vec<f64>>()
+    });
+    write_file(&dir.join("waveforms.csv"), csv(&header, rows).as_bytes())?;
+    let mut summary = ring_json(r);
+    summary["caution"] = serde_json::json!(super::CAUTION);
+    write_file(&dir.join("summary.json"), format!("{summary}\n").as_bytes())?;
+    let names: Vec<String> = stages.iter().map(|(i, _)| format!("stage {i}")).collect();
+    let series: Vec<(&str, &[f64])> = names
+        .iter()
+        .zip(stages)
+        .map(|(n, (_, v))| (n.as_str(), v.as_slice()))
+        .collect();
+    crate::plot::waveforms(&dir.join("waveforms"), t, &series)?;
     Ok(())
 }
 

@@ -27,7 +27,10 @@ pub fn run(a: Args) -> Result<(), JobError> {
     if json {
         let items: Vec<serde_json::Value> =
             results.iter().map(|(k, o)| outcome_json(k, o)).collect();
-        out!("{}", serde_json::json!({ "analyses": items }));
+        out!(
+            "{}",
+            serde_json::json!({ "analyses": items, "caution": super::CAUTION })
+        );
     } else {
         for (_, o) in &results {
             print_outcome(o);
@@ -60,6 +63,10 @@ pub(crate) fn write_run(dir: &Path, results: &[(String, Outcome)]) -> Result<(),
     }
     write_file(
         &dir.join("summary.json"),
-        format!("{}\n", serde_json::json!({ "analyses": items })).as_bytes(),
+        format!(
+            "{}\n",
+            serde_json::json!({ "analyses": items, "caution": super::CAUTION })
+        )
+        .as_bytes(),
     )
 }

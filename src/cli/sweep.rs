@@ -69,7 +69,7 @@ pub fn run(a: Args) -> Result<(), JobError> {
             "{}",
             serde_json::json!({
                 "rows": items,
-                "note": "model estimates: check them against measurement and your process",
+                "caution": super::CAUTION,
             })
         );
     } else {

@@ -47,6 +47,7 @@ pub(crate) fn write_vtc(dir: &Path, kind: &str, o: &Outcome) -> Result<(), Strin
             m.remove("vin");
             m.remove("vout");
         }
+        j["caution"] = serde_json::json!(super::CAUTION);
         write_file(&dir.join("summary.json"), format!("{j}\n").as_bytes())?;
         let marks: Vec<(&str, f64)> = match metrics {
             Some(m) => vec![("V_IL", m.vil), ("V_M", m.vm), ("V_IH", m.vih)],
