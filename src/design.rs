@@ -3,7 +3,7 @@
 
 use crate::builtin::Ring;
 use crate::error::JobError;
-use crate::ring::{run_ring, RingParams, RingReport};
+use crate::ring::{RingParams, RingReport};
 use lamina_engine::{Circuit, Integrator, OpParams, Probe, Solution, SweepParams, System};
 use lamina_measure::snm::{butterfly, NoiseMargin};
 use lamina_measure::transfer::{transfer_metrics, TransferMetrics};
@@ -244,7 +244,7 @@ pub enum Outcome {
         snm: Option<NoiseMargin>,
     },
     /// A ring measurement.
-    Ring(RingReport),
+    Ring(RingReport, crate::ring::RingWaves),
     /// Gate delay between two nodes of a driven circuit.
     Delay(DelayReport),
     /// A general transient's record and figures.
@@ -285,10 +285,9 @@ pub fn run_all(
         let outcome = match a.analysis {
             Analysis::Ring { .. } => {
                 let (mut sys, ring, params) = ring_from(design, base)?;
-                Outcome::Ring(
-                    run_ring(&mut sys, &ring, &params)
-                        .map_err(|e| JobError::Analysis(e.to_string()))?,
-                )
+                let (report, waves) = crate::ring::run_ring_recorded(&mut sys, &ring, &params)
+                    .map_err(|e| JobError::Analysis(e.to_string()))?;
+                Outcome::Ring(report, waves)
             }
             _ => run_static(design, a).map_err(JobError::Analysis)?,
         };

@@ -87,16 +87,77 @@ pub struct Row {
     /// and the quantity with its unit: `transfer.vm_v`, `ring.frequency_hz`,
     /// `operating_point.out[3]_v`; a pure number has no unit (`transfer.gain_max`).
     pub figures: Vec<(String, f64)>,
-    /// The transfer curves of this point (`(input, output)`), kept for the families of
-    /// curves `--out` draws; empty unless asked for.
-    pub curves: Vec<(Vec<f64>, Vec<f64>)>,
+    /// Curves of this point kept for the families `--out` draws (empty unless asked for):
+    /// transfer curves, the first stage's ring waveform, each recorded transient node.
+    pub curves: Vec<Curve>,
     /// Why the point failed, if it did.
     pub error: Option<String>,
 }
 
-/// Most transfer-curve samples a sweep keeps for its families of curves (about 160 MB); past
-/// it, curves are kept for an evenly spread subset of the points, and the report says so.
+/// Most curve samples a sweep keeps for its families of curves (about 160 MB); past it,
+/// curves are kept for an evenly spread subset of the points.
 pub const MAX_CURVE_SAMPLES: usize = 10_000_000;
+
+/// Most samples of one kept curve: longer ones are thinned evenly (first and last kept).
+pub const CURVE_SAMPLES: usize = 2000;
+
+/// One curve of one point, for a family of curves.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Curve {
+    /// The family it belongs to: `transfer`, `ring`, `transient out`.
+    pub family: String,
+    /// Horizontal axis description, `quantity (unit)`.
+    pub x_desc: &'static str,
+    /// Vertical axis description.
+    pub y_desc: &'static str,
+    /// The points.
+    pub points: Vec<(f64, f64)>,
+}
+
+/// At most [`CURVE_SAMPLES`] points of `x`, `y`, evenly thinned, the last one kept.
+fn thinned(x: &[f64], y: &[f64]) -> Vec<(f64, f64)> {
+    let n = x.len().min(y.len());
+    let stride = n.div_ceil(CURVE_SAMPLES).max(1);
+    let mut pts: Vec<(f64, f64)> = (0..n).step_by(stride).map(|k| (x[k], y[k])).collect();
+    if n > 0 && (n - 1) % stride != 0 {
+        pts.push((x[n - 1], y[n - 1]));
+    }
+    pts
+}
+
+/// The curves `o` contributes to the families.
+fn curves_of(o: &Outcome) -> Vec<Curve> {
+    match o {
+        Outcome::Transfer { vin, vout, .. } => vec![Curve {
+            family: "transfer curves".into(),
+            x_desc: "input (V)",
+            y_desc: "output (V)",
+            points: thinned(vin, vout),
+        }],
+        Outcome::Ring(_, (t, stages)) => stages
+            .first()
+            .map(|(_, v)| Curve {
+                family: "ring waveforms".into(),
+                x_desc: "time (s)",
+                y_desc: "first stage output (V)",
+                points: thinned(t, v),
+            })
+            .into_iter()
+            .collect(),
+        Outcome::Transient(r) => r
+            .signals
+            .iter()
+            .filter(|s| s.unit == "V")
+            .map(|s| Curve {
+                family: format!("transient {}", s.name),
+                x_desc: "time (s)",
+                y_desc: "voltage (V)",
+                points: thinned(&r.time, &s.values),
+            })
+            .collect(),
+        _ => Vec::new(),
+    }
+}
 
 /// The columns of a set of rows: every key any row has, in order of first appearance, so a
 /// failed or partial first point loses nothing.
@@ -213,7 +274,7 @@ fn figures(kind: &str, o: &Outcome) -> Vec<(String, f64)> {
                 );
             }
         }
-        Outcome::Ring(r) => {
+        Outcome::Ring(r, _) => {
             put("frequency_hz", Some(r.frequency));
             put("period_s", Some(r.period));
             put("stage_delay_s", Some(r.stage_delay));
@@ -276,17 +337,21 @@ pub fn run_sweep(
                 local.push((a.name.clone(), a.texts[k].clone()));
                 point.push((a.name.clone(), a.values[k]));
             }
-            match run_all(path, &local, &RingParams::default(), None) {
+            let ring = RingParams {
+                wave_samples: CURVE_SAMPLES,
+                ..RingParams::default()
+            };
+            match run_all(path, &local, &ring, None) {
                 Ok(results) => {
                     let figures = results.iter().flat_map(|(k, o)| figures(k, o)).collect();
                     let mut curves = Vec::new();
                     if keep_curves {
                         for (_, o) in &results {
-                            if let Outcome::Transfer { vin, vout, .. } = o {
-                                let stride = (2 * vin.len()).div_ceil(budget_per_point.max(1));
-                                if stride <= 1 || n % stride == 0 {
-                                    curves.push((vin.clone(), vout.clone()));
-                                }
+                            let c = curves_of(o);
+                            let size: usize = c.iter().map(|c| 2 * c.points.len()).sum();
+                            let stride = size.div_ceil(budget_per_point.max(1));
+                            if stride <= 1 || n % stride == 0 {
+                                curves.extend(c);
                             }
                         }
                     }

@@ -105,7 +105,7 @@ pub(crate) fn outcome_json(kind: &str, o: &Outcome) -> serde_json::Value {
             "fall_s": d.fall,
             "transitions": d.transitions,
         }),
-        Outcome::Ring(r) => {
+        Outcome::Ring(r, _) => {
             let mut v = ring_json(r);
             v["analysis"] = serde_json::json!(kind);
             v
@@ -146,7 +146,7 @@ pub(crate) fn print_outcome(o: &Outcome) {
                 }
             }
         }
-        Outcome::Ring(r) => print_ring(r),
+        Outcome::Ring(r, _) => print_ring(r),
         Outcome::Transient(r) => transient::print_transient(r),
         Outcome::Delay(d) => {
             let ps = |v: Option<f64>| v.map_or("-".to_string(), |x| format!("{:.3} ps", x * 1e12));

@@ -201,34 +201,36 @@ pub(crate) fn write_sweep(dir: &Path, axes: &[Axis], rows: &[Row]) -> Result<(),
             &series,
         )?;
     }
-    // The family of transfer curves: one per point that kept its curve.
-    let family: Vec<(String, Vec<(f64, f64)>)> = rows
-        .iter()
-        .filter(|r| r.error.is_none())
-        .flat_map(|r| {
-            r.curves.iter().map(move |(vin, vout)| {
-                (
-                    legend(r, 0),
-                    vin.iter().copied().zip(vout.iter().copied()).collect(),
-                )
-            })
-        })
-        .collect();
-    if !family.is_empty() {
-        let mut csv = String::from("point,input,output\n");
-        for (name, pts) in &family {
+    // Families of curves: one figure per family, one curve per point that kept it.
+    let mut families: Vec<(&str, &str, String, Vec<(String, Vec<(f64, f64)>)>)> = Vec::new();
+    for r in rows.iter().filter(|r| r.error.is_none()) {
+        for c in &r.curves {
+            let series = (legend(r, 0), c.points.clone());
+            match families.iter_mut().find(|f| f.2 == c.family) {
+                Some(f) => f.3.push(series),
+                None => families.push((c.x_desc, c.y_desc, c.family.clone(), vec![series])),
+            }
+        }
+    }
+    for (x_desc, y_desc, family, series) in &families {
+        let stem = stems.unique(&format!("{family} family"));
+        let mut csv = String::from("point,x,y\n");
+        for (name, pts) in series {
             for (x, y) in pts {
                 csv.push_str(&format!("{},{x:e},{y:e}\n", csv_field(name)));
             }
         }
-        write_file(&dir.join("transfer-curves.csv"), csv.as_bytes())?;
-        crate::plot::curves(
-            &dir.join("transfer-curves"),
-            "transfer curves",
-            "input (V)",
-            "output (V)",
-            &family,
-        )?;
+        write_file(&dir.join(format!("{stem}.csv")), csv.as_bytes())?;
+        // A figure stays readable with up to a dozen curves: evenly chosen ones beyond that
+        // (the CSV has them all).
+        let shown: Vec<(String, Vec<(f64, f64)>)> = if series.len() > 12 {
+            (0..12)
+                .map(|k| series[k * (series.len() - 1) / 11].clone())
+                .collect()
+        } else {
+            series.clone()
+        };
+        crate::plot::curves(&dir.join(&stem), family, x_desc, y_desc, &shown)?;
     }
     Ok(())
 }
