@@ -202,7 +202,7 @@ pub(crate) fn write_sweep(dir: &Path, axes: &[Axis], rows: &[Row]) -> Result<(),
         )?;
     }
     // Families of curves: one figure per family, one curve per point that kept it.
-    let mut families: Vec<(&str, &str, String, Vec<(String, Vec<(f64, f64)>)>)> = Vec::new();
+    let mut families: Vec<(&str, &str, String, Vec<Named>)> = Vec::new();
     for r in rows.iter().filter(|r| r.error.is_none()) {
         for c in &r.curves {
             let series = (legend(r, 0), c.points.clone());
@@ -234,6 +234,9 @@ pub(crate) fn write_sweep(dir: &Path, axes: &[Axis], rows: &[Row]) -> Result<(),
     }
     Ok(())
 }
+
+/// A named curve.
+type Named = (String, Vec<(f64, f64)>);
 
 /// A CSV field, quoted when it holds a comma, a quote or a line break.
 fn csv_field(s: &str) -> String {
