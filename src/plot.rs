@@ -294,6 +294,39 @@ impl Scale {
     }
 }
 
+/// At most about 4000 points for drawing: when there are more, each of 2000 bins along x keeps
+/// its lowest and highest point, in order, so spikes and edges survive.
+fn reduce(pts: Vec<(f64, f64)>, (x0, x1): (f64, f64)) -> Vec<(f64, f64)> {
+    const BINS: usize = 2000;
+    if pts.len() <= 2 * BINS || x1 <= x0 {
+        return pts;
+    }
+    let bin = |x: f64| (((x - x0) / (x1 - x0) * BINS as f64) as usize).min(BINS - 1);
+    let mut out = Vec::with_capacity(2 * BINS + 2);
+    let mut k = 0;
+    while k < pts.len() {
+        let b = bin(pts[k].0);
+        let (mut lo, mut hi) = (k, k);
+        let mut j = k;
+        while j < pts.len() && bin(pts[j].0) == b {
+            if pts[j].1 < pts[lo].1 {
+                lo = j;
+            }
+            if pts[j].1 > pts[hi].1 {
+                hi = j;
+            }
+            j += 1;
+        }
+        let (a, c) = (lo.min(hi), lo.max(hi));
+        out.push(pts[a]);
+        if c != a {
+            out.push(pts[c]);
+        }
+        k = j.max(k + 1);
+    }
+    out
+}
+
 fn span(v: impl Iterator<Item = f64>) -> (f64, f64) {
     let (lo, hi) = v.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), x| {
         (a.min(x), b.max(x))
@@ -427,6 +460,7 @@ where
             .map_err(err)?;
     }
     let stroke = (2 * k) as u32;
+    let segments = k > 1;
     let mut any_legend = false;
     for (n, s) in fig.series.iter().enumerate() {
         let colour = PALETTE[n % PALETTE.len()];
@@ -435,11 +469,13 @@ where
         } else {
             &sy
         };
-        let pts: Vec<(f64, f64)> = s
-            .points
-            .iter()
-            .filter_map(|&(x, y)| Some((sx.map(x)?, scale_y.map(y)?)))
-            .collect();
+        let pts: Vec<(f64, f64)> = reduce(
+            s.points
+                .iter()
+                .filter_map(|&(x, y)| Some((sx.map(x)?, scale_y.map(y)?)))
+                .collect(),
+            (sx.range.0, sx.range.1),
+        );
         let style = colour.stroke_width(stroke);
         let markers = s.markers || s.style == Style::Points;
         let r = 3 * k;
@@ -456,6 +492,11 @@ where
                             5 * k,
                             style,
                         ))
+                        .map_err(err)?,
+                    // Segment by segment on bitmaps: a thick polyline's mitred joins spike far
+                    // past the data at sharp turns there (vector renderers limit the mitre).
+                    Style::Line if segments => chart
+                        .$draw(pts.windows(2).map(|w| PathElement::new(vec![w[0], w[1]], style)))
                         .map_err(err)?,
                     Style::Line => chart
                         .$draw(LineSeries::new(pts.iter().copied(), style))
