@@ -1,9 +1,41 @@
 //! The device-curve job: drain current of the one FET in a file over a grid of gate and drain
-//! voltages, source grounded.
+//! voltages, source grounded, and the figures of the device's branch.
+//!
+//! # Which branch
+//! A 2D-channel FET can conduct electrons at positive and holes at negative gate voltage. The
+//! figures are taken on one branch, decided by the first rule that applies, and the report
+//! says which:
+//! 1. `--polarity n|p` ([`IvConfig::polarity`]);
+//! 2. the device kind, where it fixes the carrier (square-law n-FET and p-FET);
+//! 3. the currents at the smallest nonzero `|V_DS|` of the grid: the end of the gate sweep
+//!    whose `|I_D|` is at least [`POLARITY_RATIO`] times that of the other end decides: the
+//!    most positive `V_GS` the n (electron) branch, the most negative the p (hole) branch. A
+//!    small `V_DS` because there the gate controls the whole channel; at a large one the drain
+//!    end of an n device already conducts holes (the demo n-device carries 7.5e-7 A at
+//!    `V_GS = -0.6 V`, `V_DS = 1 V`, and 1.2e-20 A at 50 mV). Ends closer than that leave the
+//!    branch undecided, and the figures that need it are not reported.
+//!
+//! On the transfer curve at the largest `|V_DS|`, the branch runs from the smallest `|I_D|` of
+//! the sweep outward: towards positive `V_GS` for n, towards negative for p.
+//!
+//! # Figures
+//! Each is defined in [`METRIC_DEFINITIONS`]; a figure that cannot be taken is reported as not
+//! reported, with the reason, never as a number. Criteria scale with the device's `W/L`, read
+//! from its card ([`read_device`]): threshold current 100 nA x W/L, swing floor
+//! 1 pA x W/L (not below [`MIN_FLOOR_A`]). The swing is held against the thermal limit
+//! `ln(10) kT/q` at the card's temperature (S. M. Sze and K. K. Ng, Physics of Semiconductor
+//! Devices, 3rd ed., 2007, ch. 6): below it by no more than the solver's rounding it is
+//! reported as the limit, below it by more it is refused.
 
+use lamina_devices::physics::{K_B, Q};
+use lamina_devices::SheetFetCard;
 use lamina_engine::elements::VoltageSource;
 use lamina_engine::{Circuit, ElementId, NodeId, OpParams, Probe, SweepParams, System};
-use lamina_netlist::Design;
+use lamina_measure::device as measure;
+use lamina_netlist::ast::{Assign, Stmt};
+use lamina_netlist::units::Dim;
+use lamina_netlist::{Design, DiskReader, FileReader, LoadOptions, ReadError};
+use std::path::{Path, PathBuf};
 
 /// Most bias points of one `iv` grid (gate values times drain values).
 pub const MAX_IV_POINTS: usize = 1_000_000;
@@ -11,16 +43,34 @@ pub const MAX_IV_POINTS: usize = 1_000_000;
 /// Parses a voltage flag: `LIST` (`0,0.1,0.5`) or `START:STOP:STEP` (`0:1:0.05`, stop
 /// included), in volts unless a unit is written (`-600:1000:20 mV`).
 pub fn parse_values(flag: &str, text: &str) -> Result<Vec<f64>, String> {
-    let values = lamina_netlist::values::parse_values(text, Some("V"), MAX_IV_POINTS)
+    parse_quantity(flag, text, "V", Dim::VOLTAGE, MAX_IV_POINTS)
+}
+
+/// Parses a flag that takes one value of dimension `dim`, in `unit` unless one is written.
+pub fn parse_one(flag: &str, text: &str, unit: &str, dim: Dim) -> Result<f64, String> {
+    match parse_quantity(flag, text, unit, dim, 2)?.as_slice() {
+        [one] => Ok(*one),
+        _ => Err(format!(
+            "{flag} {text}: give one value, not a list or a range"
+        )),
+    }
+}
+
+fn parse_quantity(
+    flag: &str,
+    text: &str,
+    unit: &str,
+    dim: Dim,
+    max: usize,
+) -> Result<Vec<f64>, String> {
+    let values = lamina_netlist::values::parse_values(text, Some(unit), max)
         .map_err(|why| format!("{flag} {text}: {why}"))?;
-    if let Some(v) = values
-        .iter()
-        .find(|v| v.dim != lamina_netlist::units::Dim::VOLTAGE)
-    {
+    if let Some(v) = values.iter().find(|v| v.dim != dim) {
         return Err(format!(
-            "{flag} {text}: `{}` is {}, not a voltage",
+            "{flag} {text}: `{}` is {}, not {}",
             v.text,
-            v.dim.describe()
+            v.dim.describe(),
+            dim.describe()
         ));
     }
     Ok(values.iter().map(|v| v.si).collect())
@@ -49,13 +99,28 @@ pub struct IvPoint {
     pub id: f64,
 }
 
-fn fets(c: &Circuit) -> Vec<ElementId> {
-    c.elements()
+/// `x` with a negative zero made positive, so no report shows `-0`.
+pub fn unsigned_zero(x: f64) -> f64 {
+    x + 0.0
+}
+
+/// The circuit's one FET (an element with drain, gate and source pins).
+pub fn find_fet(c: &Circuit) -> Result<ElementId, String> {
+    let found: Vec<ElementId> = c
+        .elements()
         .filter(|&e| {
             let t = c.element_terminals(e);
             t.len() == 3 && t[0] == "drain" && t[1] == "gate" && t[2] == "source"
         })
-        .collect()
+        .collect();
+    match found.as_slice() {
+        [one] => Ok(*one),
+        [] => Err("the file has no FET (an element with drain, gate and source pins)".into()),
+        many => Err(format!(
+            "the file has {} FETs; `lamina iv` takes a file with one",
+            many.len()
+        )),
+    }
 }
 
 fn driving_source(c: &Circuit, node: NodeId) -> Option<ElementId> {
@@ -67,19 +132,7 @@ fn driving_source(c: &Circuit, node: NodeId) -> Option<ElementId> {
 /// Runs the grid: for each gate voltage, a DC sweep of the drain voltage.
 pub fn run_iv(design: Design, vgs: &[f64], vds: &[f64]) -> Result<Vec<IvPoint>, String> {
     let mut c = design.circuit;
-    let found = fets(&c);
-    let fet = match found.as_slice() {
-        [one] => *one,
-        [] => {
-            return Err("the file has no FET (an element with drain, gate and source pins)".into())
-        }
-        many => {
-            return Err(format!(
-                "the file has {} FETs; `lamina iv` takes a file with one",
-                many.len()
-            ))
-        }
-    };
+    let fet = find_fet(&c)?;
     let pins = c.element_pins(fet).to_vec();
     let (drain, gate, source) = (pins[0], pins[1], pins[2]);
     if !source.is_ground() {
@@ -105,10 +158,7 @@ pub fn run_iv(design: Design, vgs: &[f64], vds: &[f64]) -> Result<Vec<IvPoint>, 
     let mut sys = System::new(c).map_err(|e| e.to_string())?;
     let mut out = Vec::with_capacity(vgs.len() * vds.len());
     let probe = [Probe::Current(vd_src)];
-    let params = SweepParams {
-        op: OpParams::default(),
-        ..SweepParams::default()
-    };
+    let params = sweep_params();
     let gmin = params.op.gmin;
     for &vg in vgs {
         sys.set_source_value(vg_src, vg)
@@ -119,85 +169,733 @@ pub fn run_iv(design: Design, vgs: &[f64], vds: &[f64]) -> Result<Vec<IvPoint>, 
         for (k, &vd) in vds.iter().enumerate() {
             // The drain source's branch current flows from its positive pin through it, so the
             // current it pushes into the drain node is the negative of that; the node's gmin
-            // draws gmin * V_D of it, which is not drain current.
+            // draws gmin * V_D of it, which is not drain current. At V_D = 0 that is
+            // -0.0 - 0.0 = -0.0, hence the normalisation.
             out.push(IvPoint {
-                vgs: vg,
-                vds: vd,
-                id: -res.signals[0][k] - gmin * vd,
+                vgs: unsigned_zero(vg),
+                vds: unsigned_zero(vd),
+                id: unsigned_zero(-res.signals[0][k] - gmin * vd),
             });
         }
     }
     Ok(out)
 }
 
-/// Device figures from the transfer characteristic at the largest |V_DS| of the grid.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct IvMetrics {
-    /// The V_DS the figures were taken at (V).
-    pub vds: f64,
-    /// Smallest subthreshold swing (mV/decade).
-    pub ss_min_mv_per_dec: Option<f64>,
-    /// Threshold by constant current: V_GS where |I_D| reaches [`THRESHOLD_CURRENT`] (V).
-    pub vth_v: Option<f64>,
-    /// Largest |I_D| over the V_GS sweep (A).
-    pub ion_a: Option<f64>,
-    /// Smallest |I_D| over the V_GS sweep (A).
-    pub ioff_a: Option<f64>,
+fn sweep_params() -> SweepParams {
+    SweepParams {
+        op: OpParams::default(),
+        ..SweepParams::default()
+    }
 }
 
-/// The constant current of the threshold definition (A), common practice for devices of about
-/// unit width-to-length ratio.
-pub const THRESHOLD_CURRENT: f64 = 1e-7;
+/// Carrier type of a branch.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Polarity {
+    /// Electrons: the branch at positive gate voltage.
+    N,
+    /// Holes: the branch at negative gate voltage.
+    P,
+}
 
-/// What each metric means, for reports.
+impl Polarity {
+    /// `n` or `p`.
+    pub fn name(self) -> &'static str {
+        match self {
+            Polarity::N => "n",
+            Polarity::P => "p",
+        }
+    }
+
+    /// `electron` or `hole`.
+    pub fn carrier(self) -> &'static str {
+        match self {
+            Polarity::N => "electron",
+            Polarity::P => "hole",
+        }
+    }
+}
+
+/// Width, length and temperature of a 2D-channel FET, as its card and instance set them.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Geometry {
+    /// Channel width (m).
+    pub width_m: f64,
+    /// Channel length (m).
+    pub length_m: f64,
+    /// Temperature (K).
+    pub temperature_k: f64,
+}
+
+/// What `lamina iv` knows of the file's FET.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Device {
+    /// Instance name.
+    pub name: String,
+    /// Element kind (`2D-channel FET`, `square-law n-FET`, ...).
+    pub kind: &'static str,
+    /// The carrier, where the kind fixes it.
+    pub carrier: Option<Polarity>,
+    /// Width, length and temperature, or why they are not known.
+    pub geometry: Result<Geometry, String>,
+}
+
+const SHEET_KIND: &str = "2D-channel FET";
+const SQUARE_N_KIND: &str = "square-law n-FET";
+const SQUARE_P_KIND: &str = "square-law p-FET";
+const SQUARE_GEOMETRY: &str =
+    "a square-law card has no width, length or temperature; the current criteria take W/L = 1";
+
+impl Device {
+    /// Whether the device is a square-law check device (no geometry, no subthreshold current).
+    pub fn is_square_law(&self) -> bool {
+        self.carrier.is_some()
+    }
+
+    /// `W/L` for the current criteria: 1 for a square-law device (whose geometry note says so).
+    fn criteria_w_over_l(&self) -> Result<f64, String> {
+        match (&self.geometry, self.is_square_law()) {
+            (Ok(g), _) => Ok(g.width_m / g.length_m),
+            (Err(_), true) => Ok(1.0),
+            (Err(why), false) => Err(why.clone()),
+        }
+    }
+}
+
+/// Reads the file's FET: its name and kind, and for a 2D-channel FET the width, length and
+/// temperature its card and instance give (the card's defaults where neither does).
+///
+/// The elaborated circuit keeps device parameters inside the element, so they are read from
+/// the source: the instance (placed at the top level of the file or of a file it includes)
+/// and its card are found in the design's sources, and the expressions they give are
+/// evaluated by loading the file again with a `param` for each appended at its end, where
+/// they see the same top-level parameters and `--set` overrides as the card did.
+pub fn read_device(design: &Design, path: &Path, options: &LoadOptions) -> Result<Device, String> {
+    let c = &design.circuit;
+    let fet = find_fet(c)?;
+    let name = c.element_name(fet).to_string();
+    let kind = c.element_kind(fet);
+    let (carrier, geometry) = match kind {
+        SQUARE_N_KIND => (Some(Polarity::N), Err(SQUARE_GEOMETRY.to_string())),
+        SQUARE_P_KIND => (Some(Polarity::P), Err(SQUARE_GEOMETRY.to_string())),
+        SHEET_KIND => (None, sheet_geometry(design, path, options, &name)),
+        other => (
+            None,
+            Err(format!(
+                "`lamina iv` does not know the width, length or temperature of a {other}"
+            )),
+        ),
+    };
+    Ok(Device {
+        name,
+        kind,
+        carrier,
+        geometry,
+    })
+}
+
+fn sheet_geometry(
+    design: &Design,
+    path: &Path,
+    options: &LoadOptions,
+    name: &str,
+) -> Result<Geometry, String> {
+    let src = &design.sources;
+    let mut stmts: Vec<Stmt> = Vec::new();
+    for f in 0..src.len() {
+        if src.name(f).starts_with("--set ") {
+            continue;
+        }
+        let mut diags = Vec::new();
+        let toks = lamina_netlist::lexer::lex(f, src.text(f), &mut diags);
+        stmts.extend(lamina_netlist::parser::parse(&toks, &mut diags));
+    }
+    let unreadable = || {
+        format!(
+            "the width, length and temperature of `{name}` could not be read: it is not placed \
+             by name at the top level of the file or of a file it includes (inside a cell or a \
+             loop, or indexed)"
+        )
+    };
+    let mut instances = stmts.iter().filter_map(|s| match s {
+        Stmt::Instance {
+            kind,
+            name: n,
+            params,
+            ..
+        } if n.name.name == name && n.index.is_none() => Some((kind, params)),
+        _ => None,
+    });
+    let (kind, inst_params) = match (instances.next(), instances.next()) {
+        (Some(one), None) => one,
+        _ => return Err(unreadable()),
+    };
+    let card_params: &[Assign] = if kind.name == "sheet_fet" {
+        &[]
+    } else {
+        let mut cards = stmts.iter().filter_map(|s| match s {
+            Stmt::Device {
+                name: n,
+                model,
+                params,
+            } if n.name == kind.name && model.name == "sheet_fet" => Some(params),
+            _ => None,
+        });
+        match (cards.next(), cards.next()) {
+            (Some(p), None) => p,
+            _ => return Err(unreadable()),
+        }
+    };
+    let taken: Vec<&str> = design.parameters.iter().map(|p| p.0.as_str()).collect();
+    let prefix = (0..)
+        .map(|k| format!("lamina_iv_probe{k}"))
+        .find(|p| !taken.iter().any(|t| t.starts_with(p.as_str())))
+        .unwrap_or_default();
+    let defaults = SheetFetCard::default();
+    let keys = [
+        ("width", Dim::LENGTH, defaults.width),
+        ("length", Dim::LENGTH, defaults.length),
+        ("temperature", Dim::TEMPERATURE, defaults.temperature),
+    ];
+    let mut appended = String::new();
+    let mut given = [false; 3];
+    for (k, (key, _, _)) in keys.iter().enumerate() {
+        let assign = inst_params
+            .iter()
+            .chain(card_params)
+            .find(|a| a.name.name == *key);
+        if let Some(a) = assign {
+            given[k] = true;
+            let span = a.value.span();
+            let text = src.text(span.file).get(span.start..span.end).unwrap_or("");
+            appended.push_str(&format!("\nparam {prefix}_{key} = ({text})\n"));
+        }
+    }
+    let mut values = [0.0; 3];
+    let probed = if appended.is_empty() {
+        None
+    } else {
+        let reader = Appending {
+            top: path.to_path_buf(),
+            text: format!("{}{appended}", src.text(0)),
+        };
+        Some(
+            lamina_netlist::load_with(path, options, &reader)
+                .map_err(|_| format!("the width, length and temperature of `{name}` could not be evaluated a second time"))?,
+        )
+    };
+    for (k, (key, dim, default)) in keys.into_iter().enumerate() {
+        let probe = format!("{prefix}_{key}");
+        let found = probed
+            .as_ref()
+            .and_then(|d| d.parameters.iter().find(|p| p.0 == probe));
+        values[k] = match found {
+            Some((_, v, d)) if *d == dim && v.is_finite() && *v > 0.0 => *v,
+            Some(_) => {
+                return Err(format!(
+                    "`{key}` of `{name}` did not evaluate to a positive {}",
+                    dim.describe()
+                ))
+            }
+            None if !given[k] => default,
+            None => {
+                return Err(format!(
+                    "`{key}` of `{name}` could not be evaluated a second time"
+                ))
+            }
+        };
+    }
+    Ok(Geometry {
+        width_m: values[0],
+        length_m: values[1],
+        temperature_k: values[2],
+    })
+}
+
+/// Serves the top-level file with probe parameters appended; other files from disk.
+struct Appending {
+    top: PathBuf,
+    text: String,
+}
+
+impl FileReader for Appending {
+    fn read(&self, path: &Path, max_bytes: usize) -> Result<String, ReadError> {
+        if path == self.top {
+            if self.text.len() > max_bytes {
+                return Err(ReadError::TooLarge);
+            }
+            Ok(self.text.clone())
+        } else {
+            DiskReader.read(path, max_bytes)
+        }
+    }
+}
+
+/// How the figures are taken: each `None` is the documented default.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct IvConfig {
+    /// The branch, overriding the device kind and the currents.
+    pub polarity: Option<Polarity>,
+    /// Smallest `|I_D|` the swing is read from (A); default [`default_floor`].
+    pub current_floor_a: Option<f64>,
+    /// `V_GS` of I_on (V); default the end of the sweep on the branch's side.
+    pub on_bias_v: Option<f64>,
+    /// `V_GS` of I_off (V); default the `V_GS` of the branch's smallest `|I_D|`.
+    pub off_bias_v: Option<f64>,
+}
+
+/// The threshold criterion per square: `I_D = 100 nA x W/L` (common practice).
+pub const THRESHOLD_CURRENT_PER_SQUARE: f64 = 1e-7;
+
+/// The swing floor per square: `|I_D| >= 1 pA x W/L`, five decades below the threshold
+/// criterion, so the swing is read in the subthreshold region whatever the width.
+pub const FLOOR_PER_SQUARE: f64 = 1e-12;
+
+/// The default floor never goes below 1e-11 A, ten times the solver's absolute current
+/// tolerance (1e-12 A): a Newton solve accepts a current once its update is below
+/// 1e-12 A + 1e-3 |I_D|, so a current near 1e-12 A carries no guaranteed digit.
+pub const MIN_FLOOR_A: f64 = 1e-11;
+
+/// How many times the current at one end of the gate sweep must exceed that at the other to
+/// decide the branch from the currents.
+pub const POLARITY_RATIO: f64 = 10.0;
+
+/// The default swing floor for a device of the given `W/L` (A).
+pub fn default_floor(w_over_l: f64) -> f64 {
+    (FLOOR_PER_SQUARE * w_over_l).max(MIN_FLOOR_A)
+}
+
+/// The thermal limit of the subthreshold swing, `ln(10) kT/q`, in mV/decade.
+pub fn thermal_swing_mv_per_dec(temperature_k: f64) -> f64 {
+    1e3 * 10f64.ln() * K_B * temperature_k / Q
+}
+
+/// The branch the figures are taken on, and how it was decided.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Branch {
+    /// Its carrier.
+    pub polarity: Polarity,
+    /// How it was decided, in a sentence.
+    pub basis: String,
+}
+
+/// The constant-current threshold.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct CcThreshold {
+    /// Threshold (V).
+    pub vth_v: f64,
+    /// The criterion current (A).
+    pub criterion_a: f64,
+}
+
+/// The maximum-transconductance extrapolated threshold.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct GmThreshold {
+    /// Threshold (V): tangent intercept minus `V_DS / 2`.
+    pub vth_v: f64,
+    /// The `V_DS` of the curve used (V).
+    pub vds_v: f64,
+    /// The `V_GS` of the largest `|g_m|` (V).
+    pub vgs_v: f64,
+    /// Whether that is the last interior sample of the branch, so `g_m` may still rise beyond
+    /// the sweep and the value depends on how far it goes.
+    pub at_sweep_end: bool,
+}
+
+/// The smallest swing above the floor.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct SwingFigure {
+    /// Swing (mV/decade); the thermal limit where the chord came out below it within rounding.
+    pub mv_per_dec: f64,
+    /// `V_GS` of the chord's middle sample (V).
+    pub vgs_v: f64,
+    /// The decade of `|I_D|` at that sample (A): `[10^n, 10^(n+1))`.
+    pub decade_a: (f64, f64),
+    /// Whether the chord came out below the thermal limit within rounding and was raised to it.
+    pub at_limit: bool,
+}
+
+/// A current at a stated bias.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct BiasCurrent {
+    /// `V_GS` (V).
+    pub vgs_v: f64,
+    /// `|I_D|` (A).
+    pub a: f64,
+    /// `|I_D|` per width (A/um), where the width is known.
+    pub a_per_um: Option<f64>,
+}
+
+/// Device figures of a grid: each a value or the reason it is not reported.
+#[derive(Clone, Debug, PartialEq)]
+pub struct IvMetrics {
+    /// The device.
+    pub device: Device,
+    /// The `V_DS` the figures are taken at: the largest `|V_DS|` of the grid (V).
+    pub vds_v: f64,
+    /// The branch.
+    pub branch: Result<Branch, String>,
+    /// Constant-current threshold.
+    pub vth_cc: Result<CcThreshold, String>,
+    /// Maximum-g_m extrapolated threshold.
+    pub vth_gm: Result<GmThreshold, String>,
+    /// Smallest swing above the floor.
+    pub ss_min: Result<SwingFigure, String>,
+    /// `ln(10) kT/q` at the device's temperature (mV/decade).
+    pub ss_thermal_limit_mv_per_dec: Option<f64>,
+    /// The floor the swing is read above (A).
+    pub current_floor_a: Result<f64, String>,
+    /// I_on.
+    pub ion: Result<BiasCurrent, String>,
+    /// I_off.
+    pub ioff: Result<BiasCurrent, String>,
+}
+
+/// What each figure means, keyed as in the JSON report.
 pub const METRIC_DEFINITIONS: &[(&str, &str)] = &[
     (
-        "ss_min_mv_per_dec",
-        "smallest dV_GS / dlog10|I_D| at the largest |V_DS| of the grid",
+        "vds_v",
+        "the V_DS the figures are taken at: the largest |V_DS| of the grid",
     ),
     (
-        "vth_v",
-        "constant-current threshold: V_GS where |I_D| first reaches 1e-7 A",
+        "polarity",
+        "the branch: n (electrons, positive V_GS) or p (holes, negative V_GS); from --polarity, else the device kind, else the end of the gate sweep with at least 10x the |I_D| of the other at the smallest nonzero |V_DS|",
+    ),
+    ("polarity_basis", "how the branch was decided, in a sentence"),
+    ("device", "the FET's instance name"),
+    ("device_kind", "the FET's element kind"),
+    (
+        "not_reported",
+        "for each figure given as null, why it is not reported",
+    ),
+    ("width_um", "channel width from the device card"),
+    ("length_um", "channel length from the device card"),
+    ("w_over_l", "width over length"),
+    ("temperature_k", "device temperature from the device card"),
+    (
+        "vth_cc_v",
+        "constant-current threshold: V_GS where |I_D| first reaches vth_cc_criterion_a going out along the branch from its smallest |I_D|, at vds_v, interpolated in log |I_D|",
+    ),
+    (
+        "vth_cc_criterion_a",
+        "the constant current: 100 nA x W/L (common practice)",
+    ),
+    (
+        "vth_gm_v",
+        "linear extrapolation at maximum transconductance: V_GS intercept of the tangent to I_D(V_GS) at the largest |g_m| on the branch, at vth_gm_vds_v, minus vth_gm_vds_v / 2 (D. K. Schroder, Semiconductor Material and Device Characterization, 3rd ed., 2006, ch. 4); meaningful where vth_gm_vds_v is small against the overdrive",
+    ),
+    (
+        "vth_gm_vds_v",
+        "the V_DS of the extrapolation: the smallest nonzero |V_DS| of the grid",
+    ),
+    ("vth_gm_vgs_v", "the V_GS of the largest |g_m|"),
+    (
+        "vth_gm_at_sweep_end",
+        "true where the largest |g_m| is at the end of the sweep: g_m may still rise beyond it, and vth_gm_v depends on how far the sweep goes",
+    ),
+    (
+        "ss_min_mv_per_dec",
+        "smallest subthreshold swing dV_GS / dlog10|I_D| over chords of three neighbouring samples on the branch at vds_v, all with |I_D| >= current_floor_a; raised to ss_thermal_limit_mv_per_dec where below it within the solver's rounding, refused where below it by more",
+    ),
+    (
+        "ss_min_vgs_v",
+        "the V_GS of the middle sample of that chord",
+    ),
+    (
+        "ss_min_decade_a",
+        "the decade of |I_D| at that sample: [10^n, 10^(n+1)) A",
+    ),
+    (
+        "ss_thermal_limit_mv_per_dec",
+        "ln(10) kT/q at temperature_k (Sze and Ng 2007)",
+    ),
+    (
+        "current_floor_a",
+        "smallest |I_D| the swing is read from: --current-floor, default 1 pA x W/L but not below 1e-11 A (ten times the solver's absolute current tolerance)",
     ),
     (
         "ion_a",
-        "largest |I_D| over the V_GS sweep at the largest |V_DS|",
+        "|I_D| at V_GS = ion_vgs_v and V_DS = vds_v, interpolated in log |I_D|",
+    ),
+    ("ion_a_per_um", "ion_a per micrometre of width"),
+    (
+        "ion_vgs_v",
+        "--on-bias, default the end of the gate sweep on the branch's side",
     ),
     (
         "ioff_a",
-        "smallest |I_D| over the V_GS sweep at the largest |V_DS|",
+        "|I_D| at V_GS = ioff_vgs_v and V_DS = vds_v, interpolated in log |I_D|",
+    ),
+    ("ioff_a_per_um", "ioff_a per micrometre of width"),
+    (
+        "ioff_vgs_v",
+        "--off-bias, default the V_GS of the branch's smallest |I_D| at vds_v",
     ),
 ];
 
-/// Figures of a grid from [`run_iv`]; empty where the sweep has fewer than three gate voltages.
-pub fn iv_metrics(points: &[IvPoint]) -> IvMetrics {
-    let vds = points
-        .iter()
-        .map(|p| p.vds)
-        .fold(0.0f64, |m, v| if v.abs() > m.abs() { v } else { m });
+/// Whether `a` is a larger drain bias than `b`: larger in magnitude, and positive of two of one
+/// magnitude (so `--vds -1,1` takes its figures at +1 V).
+fn wider(a: f64, b: f64) -> bool {
+    a.abs() > b.abs() || (a.abs() == b.abs() && a > b)
+}
+
+/// Whether `a` is a smaller drain bias than `b`, positive of two of one magnitude.
+fn narrower(a: f64, b: f64) -> bool {
+    a.abs() < b.abs() || (a.abs() == b.abs() && a > b)
+}
+
+/// One transfer curve `(V_GS, I_D)` at `vds`, sorted by `V_GS`.
+fn transfer(points: &[IvPoint], vds: f64) -> (Vec<f64>, Vec<f64>) {
     let mut curve: Vec<(f64, f64)> = points
         .iter()
         .filter(|p| p.vds == vds)
         .map(|p| (p.vgs, p.id))
         .collect();
     curve.sort_by(|a, b| a.0.total_cmp(&b.0));
-    let (vg, id): (Vec<f64>, Vec<f64>) = curve.into_iter().unzip();
-    let mags: Vec<f64> = id.iter().map(|i| i.abs()).collect();
-    let none = IvMetrics {
-        vds,
-        ss_min_mv_per_dec: None,
-        vth_v: None,
-        ion_a: None,
-        ioff_a: None,
+    curve.dedup_by(|a, b| a.0 == b.0);
+    curve.into_iter().unzip()
+}
+
+/// The branch of a curve sorted by `V_GS`, ordered from its smallest `|I_D|` outward.
+fn branch_of(vg: &[f64], id: &[f64], p: Polarity) -> (Vec<f64>, Vec<f64>) {
+    let k = (0..id.len())
+        .min_by(|&a, &b| id[a].abs().total_cmp(&id[b].abs()))
+        .unwrap_or(0);
+    match p {
+        Polarity::N => (vg[k..].to_vec(), id[k..].to_vec()),
+        Polarity::P => (
+            vg[..=k.min(vg.len().saturating_sub(1))]
+                .iter()
+                .rev()
+                .copied()
+                .collect(),
+            id[..=k.min(id.len().saturating_sub(1))]
+                .iter()
+                .rev()
+                .copied()
+                .collect(),
+        ),
+    }
+}
+
+fn decide_branch(device: &Device, config: &IvConfig, points: &[IvPoint]) -> Result<Branch, String> {
+    if let Some(p) = config.polarity {
+        return Ok(Branch {
+            polarity: p,
+            basis: "set by --polarity".into(),
+        });
+    }
+    if let Some(p) = device.carrier {
+        return Ok(Branch {
+            polarity: p,
+            basis: format!("the device is a {}", device.kind),
+        });
+    }
+    let vds = points
+        .iter()
+        .map(|p| p.vds)
+        .filter(|v| *v != 0.0)
+        .reduce(|m, v| if narrower(v, m) { v } else { m })
+        .ok_or("no current flows at V_DS = 0 only; give --polarity n or p")?;
+    let (vg, id) = transfer(points, vds);
+    let (lo, hi) = match (vg.first(), vg.last()) {
+        (Some(&lo), Some(&hi)) if hi > lo => (lo, hi),
+        _ => return Err("one gate voltage shows no branch; give --polarity n or p".into()),
     };
-    if vg.len() < 3 {
-        return none;
+    let (i_lo, i_hi) = (id[0].abs(), id[id.len() - 1].abs());
+    let seen = format!(
+        "at V_DS = {} V, |I_D| = {:.3e} A at V_GS = {} V and {:.3e} A at V_GS = {} V",
+        show(vds),
+        i_hi,
+        show(hi),
+        i_lo,
+        show(lo)
+    );
+    if i_hi >= POLARITY_RATIO * i_lo && i_hi > 0.0 {
+        Ok(Branch {
+            polarity: Polarity::N,
+            basis: format!("from the currents: {seen}"),
+        })
+    } else if i_lo >= POLARITY_RATIO * i_hi && i_lo > 0.0 {
+        Ok(Branch {
+            polarity: Polarity::P,
+            basis: format!("from the currents: {seen}"),
+        })
+    } else {
+        Err(format!(
+            "the branch is undecided: {seen}, within a factor of {POLARITY_RATIO}; give --polarity n or p"
+        ))
     }
+}
+
+/// A number for a sentence: nine significant digits in the shortest form (so 1e-7 m shows as
+/// 0.1 um, not 0.09999999999999999), no negative zero.
+pub fn show(x: f64) -> String {
+    let rounded: f64 = format!("{x:.8e}").parse().unwrap_or(x);
+    format!("{}", unsigned_zero(rounded))
+}
+
+/// Figures of a grid from [`run_iv`] for `device`, taken as `config` says.
+pub fn iv_metrics(points: &[IvPoint], device: &Device, config: &IvConfig) -> IvMetrics {
+    let vds_v =
+        unsigned_zero(
+            points
+                .iter()
+                .map(|p| p.vds)
+                .fold(0.0f64, |m, v| if wider(v, m) { v } else { m }),
+        );
+    let (vg, id) = transfer(points, vds_v);
+    let branch = decide_branch(device, config, points);
+    let wl = device.criteria_w_over_l();
+    let width_um = device.geometry.as_ref().ok().map(|g| g.width_m * 1e6);
+    let temperature = device.geometry.as_ref().ok().map(|g| g.temperature_k);
+    let few = vg.len() < 3;
+    let need = |b: &Result<Branch, String>| -> Result<Polarity, String> {
+        if few {
+            return Err("the sweep has fewer than three gate voltages".into());
+        }
+        b.as_ref().map(|b| b.polarity).map_err(|e| e.clone())
+    };
+
+    let vth_cc = need(&branch).and_then(|p| {
+        let wl = wl.clone()?;
+        let criterion_a = THRESHOLD_CURRENT_PER_SQUARE * wl;
+        let (bv, bi) = branch_of(&vg, &id, p);
+        measure::threshold_constant_current(&bv, &bi, criterion_a)
+            .map(|v| CcThreshold {
+                vth_v: unsigned_zero(v),
+                criterion_a,
+            })
+            .ok_or(format!(
+                "|I_D| does not reach {criterion_a:.3e} A on the {} branch of the sweep",
+                p.name()
+            ))
+    });
+
+    let vth_gm = need(&branch).and_then(|p| {
+        let small = points
+            .iter()
+            .map(|q| q.vds)
+            .filter(|v| *v != 0.0)
+            .reduce(|m, v| if narrower(v, m) { v } else { m })
+            .ok_or("every V_DS is 0")?;
+        let (sv, si) = transfer(points, small);
+        let (bv, bi) = branch_of(&sv, &si, p);
+        match measure::max_gm(&bv, &bi) {
+            Some(g) => Ok(GmThreshold {
+                vth_v: unsigned_zero(g.intercept - small / 2.0),
+                vds_v: small,
+                vgs_v: g.vgs,
+                at_sweep_end: g.index + 2 == bv.len(),
+            }),
+            None => Err(format!(
+                "the {} branch at V_DS = {} V has no transconductance to extrapolate",
+                p.name(),
+                show(small)
+            )),
+        }
+    });
+
+    let current_floor_a = match config.current_floor_a {
+        Some(f) => Ok(f),
+        None => wl.clone().map(default_floor),
+    };
+    let ss_thermal_limit_mv_per_dec = temperature.map(thermal_swing_mv_per_dec);
+    let ss_min = need(&branch).and_then(|p| {
+        if device.is_square_law() {
+            return Err("the square-law model has no subthreshold current (zero below threshold), so no swing".into());
+        }
+        let limit = ss_thermal_limit_mv_per_dec
+            .ok_or_else(|| device.geometry.clone().err().unwrap_or_default())?;
+        let floor = current_floor_a.clone()?;
+        let (bv, bi) = branch_of(&vg, &id, p);
+        let s = measure::min_swing_above(&bv, &bi, floor).ok_or(format!(
+            "fewer than three neighbouring samples of the {} branch carry at least {floor:.3e} A",
+            p.name()
+        ))?;
+        let rel = sweep_params().op.newton.tol.reltol;
+        let allowed = s.rounding(rel);
+        let n = s.current.log10().floor();
+        let decade_a = (10f64.powf(n), 10f64.powf(n + 1.0));
+        if s.mv_per_dec >= limit {
+            Ok(SwingFigure {
+                mv_per_dec: s.mv_per_dec,
+                vgs_v: unsigned_zero(s.vgs),
+                decade_a,
+                at_limit: false,
+            })
+        } else if s.mv_per_dec >= limit * (1.0 - allowed) {
+            Ok(SwingFigure {
+                mv_per_dec: limit,
+                vgs_v: unsigned_zero(s.vgs),
+                decade_a,
+                at_limit: true,
+            })
+        } else {
+            Err(format!(
+                "refused: the smallest swing read, {:.2} mV/dec at V_GS = {} V from currents \
+                 near {:.1e} A, is {:.2} % below the thermal limit {limit:.2} mV/dec, more than \
+                 the {:.2} % the solver's relative tolerance allows; the currents there are \
+                 below the solver's accuracy: raise --current-floor",
+                s.mv_per_dec,
+                show(s.vgs),
+                s.current,
+                100.0 * (1.0 - s.mv_per_dec / limit),
+                100.0 * allowed
+            ))
+        }
+    });
+
+    let at_bias = |flag: &str, bias: Option<f64>, default: Result<f64, String>| {
+        if few {
+            return Err("the sweep has fewer than three gate voltages".to_string());
+        }
+        let v = match bias {
+            Some(v) => v,
+            None => default?,
+        };
+        let a = measure::current_at_log(&vg, &id, v)
+            .ok_or(format!(
+                "{flag} {} V lies outside the swept V_GS, {} to {} V",
+                show(v),
+                show(vg[0]),
+                show(vg[vg.len() - 1])
+            ))?
+            .abs();
+        Ok(BiasCurrent {
+            vgs_v: unsigned_zero(v),
+            a: unsigned_zero(a),
+            a_per_um: width_um.map(|w| unsigned_zero(a / w)),
+        })
+    };
+    let on_default = need(&branch).map(|p| match p {
+        Polarity::N => vg[vg.len() - 1],
+        Polarity::P => vg[0],
+    });
+    let off_default = need(&branch).map(|p| branch_of(&vg, &id, p).0[0]);
+    let ion = at_bias("--on-bias", config.on_bias_v, on_default);
+    let ioff = at_bias("--off-bias", config.off_bias_v, off_default);
     IvMetrics {
-        vds,
-        ss_min_mv_per_dec: lamina_measure::device::min_swing(&vg, &id).map(|(s, _)| s),
-        vth_v: lamina_measure::device::threshold_constant_current(&vg, &id, THRESHOLD_CURRENT),
-        ion_a: mags.iter().copied().reduce(f64::max),
-        ioff_a: mags.iter().copied().reduce(f64::min),
+        device: device.clone(),
+        vds_v,
+        branch,
+        vth_cc,
+        vth_gm,
+        ss_min,
+        ss_thermal_limit_mv_per_dec,
+        current_floor_a,
+        ion,
+        ioff,
     }
+}
+
+/// A dense drain grid for output characteristics: `n` points from `min(0, lowest)` to
+/// `max(0, highest)` of the user's `V_DS`; `None` where that span is empty.
+pub fn dense_vds(vds: &[f64], n: usize) -> Option<Vec<f64>> {
+    let lo = vds.iter().copied().fold(0.0f64, f64::min);
+    let hi = vds.iter().copied().fold(0.0f64, f64::max);
+    (hi > lo && n >= 2).then(|| {
+        (0..n)
+            .map(|k| unsigned_zero(lo + (hi - lo) * k as f64 / (n - 1) as f64))
+            .collect()
+    })
 }

@@ -8,6 +8,10 @@
 //!   tangent at the point of largest `g_m`); the result says which (D. K. Schroder,
 //!   Semiconductor Material and Device Characterization, 3rd ed., 2006, ch. 4).
 //! * Currents interpolated at given biases (for I_on and I_off) and transconductance.
+//! * The smallest swing over chords whose currents stay above a floor ([`min_swing_above`]),
+//!   with the decade it came from and the error that relative current errors can put on it
+//!   ([`Swing::rounding`]), so a caller can hold it against the thermal limit
+//!   `ln(10) kT/q` (Sze and Ng 2007, ch. 6).
 
 /// How a threshold voltage was obtained.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -72,17 +76,42 @@ pub fn threshold_constant_current(vgs: &[f64], id: &[f64], current: f64) -> Opti
     })
 }
 
-/// `V_GS` intercept of the tangent at the largest `|g_m|` (linear-region extrapolation).
-pub fn threshold_max_gm(vgs: &[f64], id: &[f64]) -> Option<f64> {
+/// The point of largest transconductance of a curve and its tangent.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct MaxGm {
+    /// Index of the sample (an interior one: `1..len - 1`).
+    pub index: usize,
+    /// `V_GS` of the sample (V).
+    pub vgs: f64,
+    /// `dI_D/dV_GS` there, central difference (S).
+    pub gm: f64,
+    /// `V_GS` intercept of the tangent there (V).
+    pub intercept: f64,
+}
+
+/// The largest `|g_m|` of the curve, with its tangent's `V_GS` intercept. A flat maximum (all
+/// within a relative 1e-9, as in the linear region of a square law) is taken at its first
+/// sample, so rounding does not choose the point.
+pub fn max_gm(vgs: &[f64], id: &[f64]) -> Option<MaxGm> {
     let g = slopes(vgs, id);
-    let (k, &(v, gm)) = g
-        .iter()
-        .enumerate()
-        .max_by(|a, b| a.1 .1.abs().total_cmp(&b.1 .1.abs()))?;
-    if gm == 0.0 {
+    let top = g.iter().map(|p| p.1.abs()).fold(0.0f64, f64::max);
+    if !(top > 0.0 && top.is_finite()) {
         return None;
     }
-    Some(v - id[k + 1] / gm)
+    let k = g.iter().position(|p| p.1.abs() >= top * (1.0 - 1e-9))?;
+    let (v, gm) = g[k];
+    Some(MaxGm {
+        index: k + 1,
+        vgs: v,
+        gm,
+        intercept: v - id[k + 1] / gm,
+    })
+}
+
+/// `V_GS` intercept of the tangent at the largest `|g_m|` (linear-region extrapolation); see
+/// [`max_gm`].
+pub fn threshold_max_gm(vgs: &[f64], id: &[f64]) -> Option<f64> {
+    max_gm(vgs, id).map(|m| m.intercept)
 }
 
 /// `I_D` at `v` by linear interpolation (for I_on, I_off at given biases).
@@ -98,6 +127,72 @@ pub fn current_at(vgs: &[f64], id: &[f64], v: f64) -> Option<f64> {
     } else {
         id[k]
     })
+}
+
+/// `I_D` at `v` interpolated linearly in `log10 |I_D|` between two samples of one sign (exact
+/// for an exponential subthreshold curve), linearly in `I_D` otherwise; `vgs` increasing.
+pub fn current_at_log(vgs: &[f64], id: &[f64], v: f64) -> Option<f64> {
+    let n = vgs.len().min(id.len());
+    if n < 2 || v < vgs[0] || v > vgs[n - 1] {
+        return None;
+    }
+    if let Some(k) = vgs[..n].iter().position(|&x| x == v) {
+        return Some(id[k]);
+    }
+    let k = vgs[..n].partition_point(|&x| x <= v).clamp(1, n - 1);
+    let (a, b, ia, ib) = (vgs[k - 1], vgs[k], id[k - 1], id[k]);
+    if ia * ib > 0.0 {
+        let t = (v - a) / (b - a);
+        let l = ia.abs().log10() + t * (ib.abs().log10() - ia.abs().log10());
+        Some(ia.signum() * 10f64.powf(l))
+    } else {
+        current_at(vgs, id, v)
+    }
+}
+
+/// A subthreshold swing taken from one chord of a sampled curve.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Swing {
+    /// The swing (mV/decade).
+    pub mv_per_dec: f64,
+    /// `V_GS` of the chord's middle sample (V).
+    pub vgs: f64,
+    /// `|I_D|` at the middle sample (A); the decade the swing came from contains it.
+    pub current: f64,
+    /// Decades of current the chord spans (> 0).
+    pub decades: f64,
+}
+
+impl Swing {
+    /// Relative error of this swing if each end current may be off by the fraction `rel`:
+    /// `2 log10(1 + rel) / decades`. Read off a chord, a swing is never smaller than the
+    /// curve's true smallest slope (mean-value theorem), so anything below a physical bound
+    /// by more than this is not rounding.
+    pub fn rounding(&self, rel: f64) -> f64 {
+        2.0 * (1.0 + rel).log10() / self.decades
+    }
+}
+
+/// Smallest swing over the chords `(k - 1, k + 1)` of a curve ordered from its off end towards
+/// its on end (`vgs` increasing for an n branch, decreasing for a p branch), taking only
+/// chords along which `|I_D|` rises and whose three samples all have `|I_D| >= floor`.
+pub fn min_swing_above(vgs: &[f64], id: &[f64], floor: f64) -> Option<Swing> {
+    let n = vgs.len().min(id.len());
+    let l = log_current(&id[..n]);
+    let lf = floor.abs().log10();
+    (1..n.saturating_sub(1))
+        .filter(|&k| (k - 1..=k + 1).all(|j| l[j].is_finite() && l[j] >= lf))
+        .filter_map(|k| {
+            let decades = l[k + 1] - l[k - 1];
+            let dv = (vgs[k + 1] - vgs[k - 1]).abs();
+            (decades > 0.0 && dv > 0.0).then(|| Swing {
+                mv_per_dec: 1e3 * dv / decades,
+                vgs: vgs[k],
+                current: id[k].abs(),
+                decades,
+            })
+        })
+        .min_by(|a, b| a.mv_per_dec.total_cmp(&b.mv_per_dec))
 }
 
 /// Transconductance `dI_D/dV_GS` (or output conductance, given `I_D(V_DS)`) at `v`.
@@ -152,5 +247,56 @@ mod tests {
         );
         assert!((vt - (x - il / g)).abs() < 1e-6, "{vt}");
         assert!((slope_at(&v, &i, 0.4).unwrap() - 2e-4 * 0.2).abs() < 1e-9);
+        // A flat g_m (a straight line) is taken at its first interior sample.
+        let line: Vec<f64> = v.iter().map(|x| 1e-4 * (x - 0.1)).collect();
+        let m = max_gm(&v, &line).unwrap();
+        assert_eq!(m.index, 1);
+        assert!((m.intercept - 0.1).abs() < 1e-12);
+    }
+
+    #[test]
+    fn swing_above_a_floor_comes_from_the_decades_above_it() {
+        // 80 mV/decade below 1e-9 A and exactly 60 mV/decade from there to 1e-6 A.
+        let v: Vec<f64> = (0..=60).map(|i| i as f64 * 0.01).collect();
+        let i: Vec<f64> = v
+            .iter()
+            .map(|&x| {
+                if x < 0.3 {
+                    1e-9 * 10f64.powf((x - 0.3) / 0.080)
+                } else {
+                    1e-9 * 10f64.powf((x - 0.3) / 0.060)
+                }
+            })
+            .collect();
+        let s = min_swing_above(&v, &i, 1e-12).unwrap();
+        assert!((s.mv_per_dec - 60.0).abs() < 1e-9, "{s:?}");
+        assert!(s.current >= 1e-9 && s.vgs >= 0.3);
+        assert!((s.decades - 0.02 / 0.060).abs() < 1e-9);
+        // Above a floor of 5e-5 A only the top two samples (6.8e-5 and 1e-4 A) remain, and
+        // two samples are no chord.
+        assert_eq!(min_swing_above(&v, &i, 5e-5), None);
+        assert!(min_swing_above(&v, &i, 4e-5).is_some());
+        // A p branch ordered from its off end: V_GS falling, current rising.
+        let vr: Vec<f64> = v.iter().rev().map(|x| -x).collect();
+        let ir: Vec<f64> = i.iter().rev().map(|x| -x).collect();
+        let p = min_swing_above(&vr, &ir, 1e-12);
+        assert_eq!(p, None, "read from the on end, the current falls: no chord");
+        let vp: Vec<f64> = v.iter().map(|x| -x).collect();
+        let ip: Vec<f64> = i.iter().map(|x| -x).collect();
+        let p = min_swing_above(&vp, &ip, 1e-12).unwrap();
+        assert!((p.mv_per_dec - 60.0).abs() < 1e-9);
+        // Two 1e-3 relative errors over a third of a decade move the swing by 0.26 %.
+        assert!((s.rounding(1e-3) - 2.0 * 1.001f64.log10() * 3.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn log_interpolation_is_exact_on_an_exponential() {
+        let v = [0.0, 0.1, 0.2];
+        let i = [1e-12, 1e-10, -1e-9];
+        assert!((current_at_log(&v, &i, 0.05).unwrap() / 1e-11 - 1.0).abs() < 1e-12);
+        assert_eq!(current_at_log(&v, &i, 0.1), Some(1e-10));
+        // Across a sign change it falls back to a straight line.
+        assert!((current_at_log(&v, &i, 0.15).unwrap() - (1e-10 - 1e-9) / 2.0).abs() < 1e-22);
+        assert_eq!(current_at_log(&v, &i, 0.25), None);
     }
 }

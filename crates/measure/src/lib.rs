@@ -7,8 +7,8 @@
 //!   gain of a transfer curve.
 //! * [`snm`]: maximum-square static noise margin of two curves (Seevinck's rotation).
 //! * [`waveform`]: transition times, propagation delays, average power over a window.
-//! * [`device`]: subthreshold swing, threshold voltage (constant current, maximum g_m),
-//!   currents and slopes at given biases.
+//! * [`device`]: subthreshold swing (also above a current floor, with its rounding), threshold
+//!   voltage (constant current, maximum g_m), currents and slopes at given biases.
 //!
 //! ```
 //! use lamina_measure::{crossings, Direction};
