@@ -496,7 +496,10 @@ where
                     // Segment by segment on bitmaps: a thick polyline's mitred joins spike far
                     // past the data at sharp turns there (vector renderers limit the mitre).
                     Style::Line if segments => chart
-                        .$draw(pts.windows(2).map(|w| PathElement::new(vec![w[0], w[1]], style)))
+                        .$draw(
+                            pts.windows(2)
+                                .map(|w| PathElement::new(vec![w[0], w[1]], style)),
+                        )
                         .map_err(err)?,
                     Style::Line => chart
                         .$draw(LineSeries::new(pts.iter().copied(), style))

@@ -8,7 +8,7 @@ use crate::iv::{
     dense_vds, iv_metrics, read_device, show, unsigned_zero, Device, IvConfig, IvMetrics, IvPoint,
     Polarity, METRIC_DEFINITIONS,
 };
-use crate::output::{csv, ensure_dir, write_whole as write_file};
+use crate::output::{csv, ensure_dir, write_whole as write_file, OutputSet};
 use crate::{note, out};
 use lamina_netlist::units::Dim;
 use lamina_netlist::LoadOptions;
@@ -75,6 +75,7 @@ pub fn run(a: Args) -> Result<(), JobError> {
         off_bias,
         common: Common { set, json, out },
     } = a;
+    let set_out = OutputSet::begin_opt(out.as_deref())?;
     let vg = crate::iv::parse_values("--vgs", &vgs).map_err(JobError::Usage)?;
     let vd = crate::iv::parse_values("--vds", &vds).map_err(JobError::Usage)?;
     crate::iv::check_grid(&vg, &vd).map_err(JobError::Usage)?;
@@ -119,8 +120,9 @@ pub fn run(a: Args) -> Result<(), JobError> {
             note!("warning: minimum swing {why}");
         }
     }
-    if let Some(dir) = &out {
-        write_iv(dir, &points, &m, || design::load(&file, &sets)).map_err(JobError::Io)?;
+    if let Some(set) = set_out {
+        write_iv(set.dir(), &points, &m, || design::load(&file, &sets)).map_err(JobError::Io)?;
+        set.commit()?;
     }
     if json {
         let pts: Vec<Value> = points
@@ -397,7 +399,12 @@ pub(crate) fn write_iv(
     )?;
     write_file(
         &dir.join("summary.json"),
-        format!("{}\n", metrics_json(m)).as_bytes(),
+        format!("{}\n", {
+            let mut j = metrics_json(m);
+            j["caution"] = serde_json::json!(super::CAUTION);
+            j
+        })
+        .as_bytes(),
     )?;
     let mut vds: Vec<f64> = points.iter().map(|p| p.vds).collect();
     vds.sort_by(f64::total_cmp);
@@ -417,31 +424,28 @@ pub(crate) fn write_iv(
         .collect();
     let swing = m.ss_min.as_ref().ok().map(|s| s.mv_per_dec);
     crate::plot::transfer_log(&dir.join("transfer-log"), &curves, swing)?;
-    let mut wrote = "iv.csv, summary.json, transfer-log.svg/png".to_string();
     match output_curves(points, m, &vds, reload) {
         Ok((series, own)) => {
             crate::plot::curves(
                 &dir.join("output"),
-                "Output characteristics (model estimate)",
+                "output characteristics",
                 "V_DS (V)",
                 "I_D (A)",
                 &series,
             )?;
-            wrote.push_str(", output.svg/png");
             if let Some(own) = own {
                 let rows = own.iter().map(|p| vec![p.vgs, p.vds, p.id]);
                 write_file(
                     &dir.join("output.csv"),
                     csv(&["vgs_v", "vds_v", "id_a"], rows).as_bytes(),
                 )?;
-                wrote.push_str(&format!(
-                    ", output.csv (the output characteristics' own run, {DENSE_OUTPUT_POINTS} V_DS points)"
-                ));
+                note!(
+                    "output.csv holds the output characteristics' own run ({DENSE_OUTPUT_POINTS} V_DS points)"
+                );
             }
         }
         Err(why) => note!("the output characteristics are not drawn: {why}"),
     }
-    note!("wrote {wrote} to {}", dir.display());
     Ok(())
 }
 
