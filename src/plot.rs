@@ -416,12 +416,21 @@ where
     if !fig.title.is_empty() {
         builder.caption(&fig.title, font(18));
     }
+    // Room for the longest tick label, then the axis title.
+    let room = |s: &Scale| {
+        let chars = [s.range.0, s.range.1, 0.5 * (s.range.0 + s.range.1)]
+            .iter()
+            .map(|&v| s.label(if s.log { v.round() } else { v }).chars().count())
+            .max()
+            .unwrap_or(4) as i32;
+        (chars * 9 + 40).max(64) * k
+    };
     builder
         .margin(12 * k)
         .x_label_area_size(52 * k)
-        .y_label_area_size(74 * k);
-    if sr.is_some() {
-        builder.right_y_label_area_size(74 * k);
+        .y_label_area_size(room(&sy));
+    if let Some(r) = &sr {
+        builder.right_y_label_area_size(room(r));
     }
     let mut chart = builder
         .build_cartesian_2d(sx.range.0..sx.range.1, sy.range.0..sy.range.1)
@@ -694,21 +703,27 @@ pub fn waveforms(stem: &Path, t: &[f64], series: &[(&str, &[f64])]) -> DrawResul
     draw(stem, &f)
 }
 
-/// Device transfer characteristics |I_D|(V_GS) on a log scale, one curve per V_DS.
+/// Device transfer characteristics |I_D|(V_GS) on a log scale, one curve per V_DS; per
+/// width in A/µm (the field's unit) when the width `width_m` is known.
 pub fn transfer_log(
     stem: &Path,
     curves: &[(f64, Vec<(f64, f64)>)],
     swing: Option<f64>,
+    width_m: Option<f64>,
 ) -> DrawResult {
     let title = match swing {
         Some(s) => format!("minimum swing {s:.1} mV/dec"),
         None => String::new(),
     };
-    let mut f = Figure::new(&title, Axis::new("V_GS", "V"), Axis::log("|I_D|", "A"));
+    let (y, per) = match width_m {
+        Some(w) if w > 0.0 => (Axis::log("|I_D| / W", "A/µm"), 1.0 / (w * 1e6)),
+        _ => (Axis::log("|I_D|", "A"), 1.0),
+    };
+    let mut f = Figure::new(&title, Axis::new("V_GS", "V"), y);
     for (vds, c) in curves {
         f.series.push(Series::line(
             &format!("V_DS = {}", engineering(*vds, "V")),
-            c.iter().map(|p| (p.0, p.1.abs())).collect(),
+            c.iter().map(|p| (p.0, p.1.abs() * per)).collect(),
         ));
     }
     draw(stem, &f)

@@ -423,14 +423,26 @@ pub(crate) fn write_iv(
         })
         .collect();
     let swing = m.ss_min.as_ref().ok().map(|s| s.mv_per_dec);
-    crate::plot::transfer_log(&dir.join("transfer-log"), &curves, swing)?;
+    let width = m.device.geometry.as_ref().ok().map(|g| g.width_m);
+    crate::plot::transfer_log(&dir.join("transfer-log"), &curves, swing, width)?;
     match output_curves(points, m, &vds, reload) {
         Ok((series, own)) => {
+            // Per width (A/µm) when the width is known.
+            let (y_desc, series) = match width {
+                Some(w) if w > 0.0 => (
+                    "I_D / W (A/µm)",
+                    series
+                        .into_iter()
+                        .map(|(n, c)| (n, c.into_iter().map(|(x, y)| (x, y / (w * 1e6))).collect()))
+                        .collect(),
+                ),
+                _ => ("I_D (A)", series),
+            };
             crate::plot::curves(
                 &dir.join("output"),
                 "output characteristics",
                 "V_DS (V)",
-                "I_D (A)",
+                y_desc,
                 &series,
             )?;
             if let Some(own) = own {
