@@ -217,7 +217,7 @@ pub fn run_ring(
     ring: &Ring,
     params: &RingParams,
 ) -> Result<RingReport, RingError> {
-    run(system, ring, params, false).map(|(r, _)| r)
+    run(system, ring, params, false, None).map(|(r, _)| r)
 }
 
 /// Recorded waveforms of a ring run: time and the first two stage outputs.
@@ -246,7 +246,18 @@ pub fn run_ring_recorded(
     ring: &Ring,
     params: &RingParams,
 ) -> Result<(RingReport, RingWaves), RingError> {
-    run(system, ring, params, true)
+    run(system, ring, params, true, None)
+}
+
+/// As [`run_ring_recorded`], keeping the waveforms of the stages `shown` (indices into the
+/// ring; those past its end are left out) instead of the default spread.
+pub fn run_ring_showing(
+    system: &mut System,
+    ring: &Ring,
+    params: &RingParams,
+    shown: &[usize],
+) -> Result<(RingReport, RingWaves), RingError> {
+    run(system, ring, params, true, Some(shown))
 }
 
 /// Successive periods must agree within this (relative spread) to count as settled.
@@ -301,6 +312,7 @@ fn run(
     ring: &Ring,
     params: &RingParams,
     record: bool,
+    shown: Option<&[usize]>,
 ) -> Result<(RingReport, RingWaves), RingError> {
     let stages = ring.outputs.len();
     if stages < 3 || stages % 2 == 0 {
@@ -329,7 +341,7 @@ fn run(
     if params.edge {
         run_edge(system, ring, params, record)
     } else {
-        run_periods(system, ring, params, record)
+        run_periods(system, ring, params, record, shown)
     }
 }
 
@@ -642,6 +654,7 @@ fn run_periods(
     ring: &Ring,
     params: &RingParams,
     record: bool,
+    shown: Option<&[usize]>,
 ) -> Result<(RingReport, RingWaves), RingError> {
     let stages = ring.outputs.len();
     let tp = transient_params(params);
@@ -652,7 +665,10 @@ fn run_periods(
     let cap = needed + MAX_EXTRA_PERIODS;
     let mut periods = Periods::new(level);
     let mut monitor = Monitor::new(ring, params);
-    let shown = shown_stages(stages);
+    let shown: Vec<usize> = match shown {
+        Some(s) => s.iter().copied().filter(|&i| i < stages).collect(),
+        None => shown_stages(stages),
+    };
     let mut waves = Decimator::new(if record { params.wave_samples } else { 2 }, shown.len());
     let mut sample: Vec<f64> = shown
         .iter()

@@ -65,6 +65,10 @@ pub struct Args {
     /// Write waveforms (CSV), the summary (JSON) and plots (SVG, PNG) into this directory.
     #[arg(long, value_name = "DIR")]
     pub out: Option<PathBuf>,
+    /// Stages whose waveforms `--out` keeps, such as `0,1,2` (default: five spread over the
+    /// ring, or all of a ring of five or fewer).
+    #[arg(long, value_name = "LIST", value_delimiter = ',')]
+    pub show: Vec<usize>,
 }
 
 /// Runs the job.
@@ -86,7 +90,15 @@ pub fn run(a: Args) -> Result<(), JobError> {
             let sets = design::parse_sets(&a.set)?;
             let d = design::load(file, &sets)?;
             let (mut system, ring, params) = design::ring_from(d, &params)?;
-            finish_ring(&mut system, &ring, &params, a.json, a.dump_matrix, set_out)
+            finish_ring(
+                &mut system,
+                &ring,
+                &params,
+                a.json,
+                a.dump_matrix,
+                set_out,
+                &a.show,
+            )
         }
         (None, Some(Builtin::SquareRing)) => {
             let stages = a.stages.unwrap_or(11);
@@ -101,7 +113,15 @@ pub fn run(a: Args) -> Result<(), JobError> {
             let (circuit, ring) =
                 square_ring(stages, &stage).map_err(|e| JobError::Analysis(e.to_string()))?;
             let mut system = System::new(circuit).map_err(|e| JobError::Analysis(e.to_string()))?;
-            finish_ring(&mut system, &ring, &params, a.json, a.dump_matrix, set_out)
+            finish_ring(
+                &mut system,
+                &ring,
+                &params,
+                a.json,
+                a.dump_matrix,
+                set_out,
+                &a.show,
+            )
         }
         (None, None) => Err(JobError::Usage(
             "give a circuit file or --builtin square-ring".into(),
@@ -117,12 +137,17 @@ pub(crate) fn finish_ring(
     json: bool,
     dump_matrix: Option<PathBuf>,
     out: Option<OutputSet>,
+    show: &[usize],
 ) -> Result<(), JobError> {
     if let Some(path) = dump_matrix {
         dump(system, ring, &path)?;
     }
-    let (report, waves) =
-        run_ring_recorded(system, ring, params).map_err(|e| JobError::Analysis(e.to_string()))?;
+    let (report, waves) = if show.is_empty() {
+        run_ring_recorded(system, ring, params)
+    } else {
+        crate::ring::run_ring_showing(system, ring, params, show)
+    }
+    .map_err(|e| JobError::Analysis(e.to_string()))?;
     if let Some(set) = out {
         write_ring(set.dir(), &report, &waves).map_err(JobError::Io)?;
         set.commit()?;
