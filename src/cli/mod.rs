@@ -33,6 +33,26 @@ pub struct FileArgs {
     pub common: Common,
 }
 
+/// What a file job ran: the results, whether JSON was asked for, and the output set (prepared
+/// before anything ran).
+pub(crate) struct FileRun {
+    pub results: Vec<(String, Outcome)>,
+    pub json: bool,
+    pub out: Option<crate::output::OutputSet>,
+}
+
+/// Prepares `--out`, then runs the analyses of the file (only those of kind `only`).
+pub(crate) fn run_file(a: FileArgs, only: Option<&str>) -> Result<FileRun, crate::error::JobError> {
+    let FileArgs {
+        file,
+        common: Common { set, json, out },
+    } = a;
+    let out = crate::output::OutputSet::begin_opt(out.as_deref())?;
+    let sets = crate::design::parse_sets(&set)?;
+    let results = crate::design::run_all(&file, &sets, &crate::ring::RingParams::default(), only)?;
+    Ok(FileRun { results, json, out })
+}
+
 /// Flags every file job shares.
 #[derive(clap::Args, Debug)]
 pub struct Common {

@@ -80,25 +80,18 @@ pub fn run(a: Args) -> Result<(), JobError> {
         edge: a.edge,
         ..RingParams::default()
     };
-    match (&a.file, a.builtin) {
-        (Some(_), _) if a.stages.is_some() => Err(JobError::Usage(format!(
-            "--stages {} applies to the built-in ring only; a file's ring has `stages` in its \
-             `analysis ring`",
-            a.stages.unwrap_or(0)
-        ))),
+    let (mut system, ring, params) = match (&a.file, a.builtin) {
+        (Some(_), _) if a.stages.is_some() => {
+            return Err(JobError::Usage(format!(
+                "--stages {} applies to the built-in ring only; a file's ring has `stages` in \
+                 its `analysis ring`",
+                a.stages.unwrap_or(0)
+            )))
+        }
         (Some(file), _) => {
             let sets = design::parse_sets(&a.set)?;
             let d = design::load(file, &sets)?;
-            let (mut system, ring, params) = design::ring_from(d, &params)?;
-            finish_ring(
-                &mut system,
-                &ring,
-                &params,
-                a.json,
-                a.dump_matrix,
-                set_out,
-                &a.show,
-            )
+            design::ring_from(d, &params)?
         }
         (None, Some(Builtin::SquareRing)) => {
             let stages = a.stages.unwrap_or(11);
@@ -112,21 +105,24 @@ pub fn run(a: Args) -> Result<(), JobError> {
             crate::builtin::apply_sets(&mut stage, &design::parse_sets(&a.set)?)?;
             let (circuit, ring) =
                 square_ring(stages, &stage).map_err(|e| JobError::Analysis(e.to_string()))?;
-            let mut system = System::new(circuit).map_err(|e| JobError::Analysis(e.to_string()))?;
-            finish_ring(
-                &mut system,
-                &ring,
-                &params,
-                a.json,
-                a.dump_matrix,
-                set_out,
-                &a.show,
-            )
+            let system = System::new(circuit).map_err(|e| JobError::Analysis(e.to_string()))?;
+            (system, ring, params)
         }
-        (None, None) => Err(JobError::Usage(
-            "give a circuit file or --builtin square-ring".into(),
-        )),
-    }
+        (None, None) => {
+            return Err(JobError::Usage(
+                "give a circuit file or --builtin square-ring".into(),
+            ))
+        }
+    };
+    finish_ring(
+        &mut system,
+        &ring,
+        &params,
+        a.json,
+        a.dump_matrix,
+        set_out,
+        &a.show,
+    )
 }
 
 /// The ring job's common end: optional matrix dump, the run, files, and the report.

@@ -1,11 +1,10 @@
 //! `lamina run`: every analysis a circuit file declares.
 
-use super::{outcome_json, print_outcome, Common};
-use crate::design::{self, Outcome};
+use super::{outcome_json, print_outcome};
+use crate::design::Outcome;
 use crate::error::JobError;
 use crate::out;
-use crate::output::{ensure_dir, write_whole as write_file, OutputSet};
-use crate::ring::RingParams;
+use crate::output::{ensure_dir, write_whole as write_file};
 use std::path::Path;
 
 /// Flags of `lamina run`.
@@ -13,14 +12,8 @@ pub type Args = super::FileArgs;
 
 /// Runs the job.
 pub fn run(a: Args) -> Result<(), JobError> {
-    let Args {
-        file,
-        common: Common { set, json, out },
-    } = a;
-    let set_out = OutputSet::begin_opt(out.as_deref())?;
-    let sets = design::parse_sets(&set)?;
-    let results = design::run_all(&file, &sets, &RingParams::default(), None)?;
-    if let Some(set) = set_out {
+    let super::FileRun { results, json, out } = super::run_file(a, None)?;
+    if let Some(set) = out {
         write_run(set.dir(), &results).map_err(JobError::Io)?;
         set.commit()?;
     }

@@ -1,10 +1,9 @@
 //! `lamina vtc`: a file's transfer curve, switching threshold and noise margins.
 
-use super::{outcome_json, print_single, Common};
-use crate::design::{self, Outcome};
+use super::{outcome_json, print_single};
+use crate::design::Outcome;
 use crate::error::JobError;
-use crate::output::{csv, ensure_dir, write_whole as write_file, OutputSet};
-use crate::ring::RingParams;
+use crate::output::{csv, ensure_dir, write_whole as write_file};
 use std::path::Path;
 
 /// Flags of `lamina vtc`.
@@ -12,15 +11,9 @@ pub type Args = super::FileArgs;
 
 /// Runs the job.
 pub fn run(a: Args) -> Result<(), JobError> {
-    let Args {
-        file,
-        common: Common { set, json, out },
-    } = a;
-    let set_out = OutputSet::begin_opt(out.as_deref())?;
-    let sets = design::parse_sets(&set)?;
-    let results = design::run_all(&file, &sets, &RingParams::default(), Some("transfer"))?;
+    let super::FileRun { results, json, out } = super::run_file(a, Some("transfer"))?;
     let (kind, outcome) = &results[0];
-    if let Some(set) = set_out {
+    if let Some(set) = out {
         write_vtc(set.dir(), kind, outcome).map_err(JobError::Io)?;
         set.commit()?;
     }
