@@ -14,6 +14,8 @@ use lamina_netlist::{
 use std::path::Path;
 use std::sync::Mutex;
 
+pub use crate::delay::DelayReport;
+
 /// Parses `--set name=value` flags (the value in the language's syntax, checked against the
 /// parameter's dimension when the file is loaded). A name given twice is refused.
 pub fn parse_sets(sets: &[String]) -> Result<Vec<(String, String)>, JobError> {
@@ -352,116 +354,16 @@ fn run_static(design: Design, a: &AnalysisDecl) -> Result<Outcome, String> {
                 vout,
             }
         }
-        "delay" => Outcome::Delay(delay(design, a)?),
+        "delay" => Outcome::Delay(crate::delay::delay(
+            design,
+            a,
+            &crate::delay::DelayParams::default(),
+        )?),
         "transient" => Outcome::Transient(crate::transient::run_transient(design, &a.analysis)?),
         other => {
             return Err(format!(
                 "analysis `{other}` is declared but cannot be run here"
             ))
         }
-    })
-}
-
-/// What the delay analysis measured (seconds), each averaged over the transitions seen.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct DelayReport {
-    /// Output falling after the input rises (50 % to 50 %).
-    pub t_phl: Option<f64>,
-    /// Output rising after the input falls.
-    pub t_plh: Option<f64>,
-    /// Mean of the two.
-    pub t_p: Option<f64>,
-    /// Output 10-90 % rise time.
-    pub rise: Option<f64>,
-    /// Output 90-10 % fall time.
-    pub fall: Option<f64>,
-    /// Transitions of the input measured.
-    pub transitions: usize,
-}
-
-fn mean(v: &[f64]) -> Option<f64> {
-    (!v.is_empty()).then(|| v.iter().sum::<f64>() / v.len() as f64)
-}
-
-/// `analysis delay { from = NODE, to = NODE, stop = TIME }`: a transient from the operating
-/// point (the file drives its input with a pulse source) and the propagation delays from
-/// `from` to `to` at the mid level of the input's swing, with the output's transition times.
-fn delay(design: Design, a: &AnalysisDecl) -> Result<DelayReport, String> {
-    use lamina_engine::{Start, TransientParams};
-    use lamina_measure::waveform::{fall_times, propagation_delays, rise_times};
-    use lamina_measure::Direction;
-    let Analysis::Delay { from, to, stop } = &a.analysis else {
-        return Err("analysis `delay` has no delay settings".into());
-    };
-    let (from, to, stop) = (from.as_str(), to.as_str(), *stop);
-    let c = &design.circuit;
-    let nf = c
-        .find_node(from)
-        .ok_or_else(|| format!("analysis `delay`: no node `{from}`"))?;
-    let nt = c
-        .find_node(to)
-        .ok_or_else(|| format!("analysis `delay`: no node `{to}`"))?;
-    let mut sys = System::new(design.circuit).map_err(|e| e.to_string())?;
-    let mut tp = TransientParams::new(stop);
-    tp.max_step = Some(stop / 2000.0);
-    let res = sys
-        .transient(
-            &tp,
-            &Start::OperatingPoint(OpParams::default()),
-            &[Probe::Voltage(nf), Probe::Voltage(nt)],
-            None,
-        )
-        .map_err(|e| e.to_string())?;
-    let (t, vi, vo) = (&res.time, &res.signals[0], &res.signals[1]);
-    let span = |v: &[f64]| {
-        v.iter()
-            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| {
-                (a.min(x), b.max(x))
-            })
-    };
-    let (ilo, ihi) = span(vi);
-    let (olo, ohi) = span(vo);
-    if ihi - ilo <= 0.0 {
-        return Err(format!(
-            "analysis `delay`: node `{from}` never switches before t = {stop:e} s"
-        ));
-    }
-    let mid = 0.5 * (ilo + ihi);
-    let omid = 0.5 * (olo + ohi);
-    // Delays from input mid-level crossings to output mid-level crossings (an inverting or a
-    // non-inverting path: whichever the output does next).
-    let pick = |din: Direction| -> Vec<f64> {
-        let inv = propagation_delays(
-            t,
-            vi,
-            vo,
-            mid,
-            din,
-            if din == Direction::Rising {
-                Direction::Falling
-            } else {
-                Direction::Rising
-            },
-        );
-        let non = propagation_delays(t, vi, vo, mid, din, din);
-        if (omid - mid).abs() < 0.5 * (ohi - olo) || inv.len() >= non.len() {
-            inv
-        } else {
-            non
-        }
-    };
-    let hl = pick(Direction::Rising);
-    let lh = pick(Direction::Falling);
-    let (thl, tlh) = (mean(&hl), mean(&lh));
-    Ok(DelayReport {
-        t_phl: thl,
-        t_plh: tlh,
-        t_p: match (thl, tlh) {
-            (Some(a), Some(b)) => Some(0.5 * (a + b)),
-            _ => None,
-        },
-        rise: mean(&rise_times(t, vo, olo, ohi)),
-        fall: mean(&fall_times(t, vo, olo, ohi)),
-        transitions: hl.len() + lh.len(),
     })
 }

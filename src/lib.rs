@@ -10,6 +10,7 @@
 //! * [`plot`] and [`output`]: pictures (SVG and PNG) and data files, each written whole.
 //! * [`design`]: jobs on circuit files: load with `--set` overrides, the check summary, and the
 //!   analyses a file declares.
+//! * [`delay`]: the delay job: propagation delays, polarity, rise and fall times of a path.
 //!
 //! Results are model estimates; check them against measurement and your process's rules
 //! before basing a design decision on them.
@@ -18,6 +19,7 @@
 
 pub mod builtin;
 pub mod cli;
+pub mod delay;
 pub mod design;
 pub mod error;
 pub mod iv;

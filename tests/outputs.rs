@@ -137,3 +137,28 @@ fn an_interrupted_sweep_leaves_nothing() {
     );
     let _ = std::fs::remove_dir_all(&base);
 }
+
+/// `delay --out` writes the delay run's waveforms and a plot with the measured crossings.
+#[test]
+fn delay_out_writes_its_waveforms() {
+    let base = scratch("delay-out");
+    let out = base.join("result");
+    let r = lamina(&[
+        "delay",
+        "netlists/fo4-chain.lam",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
+    let csv = std::fs::read_to_string(out.join("delay-1").join("waveforms.csv")).unwrap();
+    let header = csv.lines().next().unwrap();
+    assert!(
+        header.starts_with("time_s,") && header.matches("_v").count() == 2,
+        "{header}"
+    );
+    assert!(csv.lines().count() > 100);
+    for f in ["waveforms.svg", "waveforms.png"] {
+        assert!(out.join("delay-1").join(f).exists(), "{f}");
+    }
+    let _ = std::fs::remove_dir_all(&base);
+}

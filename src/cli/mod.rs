@@ -118,12 +118,18 @@ pub(crate) fn outcome_json(kind: &str, o: &Outcome) -> serde_json::Value {
         }
         Outcome::Delay(d) => serde_json::json!({
             "analysis": kind,
+            "polarity": d.polarity.as_str(),
             "t_phl_s": d.t_phl,
             "t_plh_s": d.t_plh,
             "t_p_s": d.t_p,
             "rise_s": d.rise,
             "fall_s": d.fall,
-            "transitions": d.transitions,
+            "levels": [d.levels.0, d.levels.1],
+            "falling": d.falling,
+            "rising": d.rising,
+            "transitions": d.falling + d.rising,
+            "unsettled": d.unsettled,
+            "warnings": d.warnings,
         }),
         Outcome::Ring(r, _) => {
             let mut v = ring_json(r);
@@ -170,21 +176,32 @@ pub(crate) fn print_outcome(o: &Outcome) {
         Outcome::Transient(r) => transient::print_transient(r),
         Outcome::Delay(d) => {
             let ps = |v: Option<f64>| v.map_or("-".to_string(), |x| format!("{:.3} ps", x * 1e12));
+            let (lo, hi) = (100.0 * d.levels.0, 100.0 * d.levels.1);
             out!(
-                "gate delay over {} transitions (model estimate)",
-                d.transitions
+                "gate delay, {} path, over {} falling and {} rising output transitions (model estimate)",
+                d.polarity.as_str(),
+                d.falling,
+                d.rising
             );
             out!(
-                "  t_pHL   {:>12}   output falls after the input rises (50 % to 50 %)",
-                ps(d.t_phl)
+                "  t_pHL   {:>12}   output falls ({} of them; 50 % to 50 %, from the input edge that caused it)",
+                ps(d.t_phl),
+                d.falling
             );
             out!(
-                "  t_pLH   {:>12}   output rises after the input falls",
-                ps(d.t_plh)
+                "  t_pLH   {:>12}   output rises ({} of them)",
+                ps(d.t_plh),
+                d.rising
             );
             out!("  t_p     {:>12}   mean of the two", ps(d.t_p));
-            out!("  rise    {:>12}   output 10-90 %", ps(d.rise));
-            out!("  fall    {:>12}   output 90-10 %", ps(d.fall));
+            out!(
+                "  rise    {:>12}   output {lo}-{hi} % of its own settled levels",
+                ps(d.rise)
+            );
+            out!("  fall    {:>12}   output {hi}-{lo} %", ps(d.fall));
+            for w in &d.warnings {
+                crate::note!("warning: {w}");
+            }
         }
     }
 }

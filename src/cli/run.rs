@@ -51,6 +51,9 @@ pub(crate) fn write_run(dir: &Path, results: &[(String, Outcome)]) -> Result<(),
             Outcome::Transient(r) => {
                 super::transient::write_transient(&dir.join(format!("{kind}-{}", k + 1)), r)?
             }
+            Outcome::Delay(d) => {
+                super::delay::write_delay(&dir.join(format!("{kind}-{}", k + 1)), d)?
+            }
             _ => {}
         }
     }

@@ -6,7 +6,9 @@
 //! * [`transfer`]: switching threshold, output levels, unity-gain points, noise margins and peak
 //!   gain of a transfer curve.
 //! * [`snm`]: maximum-square static noise margin of two curves (Seevinck's rotation).
-//! * [`waveform`]: transition times, propagation delays, average power over a window.
+//! * [`waveform`]: transitions between settled levels (`transitions`), each output transition
+//!   paired with the input transition that caused it and the path's polarity (`path_delays`),
+//!   transition times, propagation delays, average power over a window.
 //! * [`device`]: subthreshold swing (also above a current floor, with its rounding), threshold
 //!   voltage (constant current, maximum g_m), currents and slopes at given biases.
 //!
