@@ -217,3 +217,55 @@ pub fn csv(header: &[&str], rows: impl Iterator<Item = Vec<f64>>) -> String {
     }
     s
 }
+
+#[cfg(test)]
+mod tests {
+    use super::OutputSet;
+    use std::path::PathBuf;
+
+    fn scratch(name: &str) -> PathBuf {
+        let d = std::env::temp_dir().join(format!("lamina-set-{name}-{}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&d);
+        std::fs::create_dir_all(&d).unwrap();
+        d
+    }
+
+    fn entries(d: &std::path::Path) -> Vec<String> {
+        let mut v: Vec<String> = std::fs::read_dir(d)
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().to_string())
+            .collect();
+        v.sort();
+        v
+    }
+
+    /// A job that fails after writing part of its set leaves nothing: the staging directory
+    /// goes with the set.
+    #[test]
+    fn a_set_dropped_half_written_leaves_nothing() {
+        let base = scratch("drop");
+        {
+            let set = OutputSet::begin(&base.join("out")).unwrap();
+            std::fs::write(set.dir().join("half.csv"), "1,2\n").unwrap();
+        }
+        assert!(entries(&base).is_empty(), "{:?}", entries(&base));
+        let _ = std::fs::remove_dir_all(&base);
+    }
+
+    /// A move into place that fails (here the target became a file meanwhile) is undone:
+    /// the error is an I/O error, the target is as it was and nothing is left beside it.
+    #[test]
+    fn a_failed_move_is_undone() {
+        let base = scratch("move");
+        let target = base.join("out");
+        let set = OutputSet::begin(&target).unwrap();
+        std::fs::write(set.dir().join("a.csv"), "new").unwrap();
+        std::fs::write(set.dir().join("b.csv"), "new").unwrap();
+        std::fs::write(&target, "precious").unwrap();
+        let e = set.commit().unwrap_err();
+        assert_eq!(e.exit_code(), 4, "{e}");
+        assert_eq!(std::fs::read_to_string(&target).unwrap(), "precious");
+        assert_eq!(entries(&base), vec!["out"]);
+        let _ = std::fs::remove_dir_all(&base);
+    }
+}

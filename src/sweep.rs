@@ -199,6 +199,42 @@ pub fn label(key: &str) -> String {
     }
 }
 
+/// A key in words for figures: `transfer.vm_v` -> `transfer V_M (V)`, `ring.frequency_hz`
+/// -> `ring frequency (Hz)`, `operating_point.out[3]_v` -> `node out[3] (V)`.
+pub fn pretty(key: &str) -> String {
+    const NAMES: &[(&str, &str)] = &[
+        ("vm", "V_M"),
+        ("voh", "V_OH"),
+        ("vol", "V_OL"),
+        ("vil", "V_IL"),
+        ("vih", "V_IH"),
+        ("nmh", "NM_H"),
+        ("nml", "NM_L"),
+        ("snm", "static noise margin"),
+        ("gain_max", "peak gain"),
+        ("stage_delay", "stage delay"),
+        ("avg_power", "mean supply power"),
+        ("energy_per_cycle", "energy per cycle"),
+        ("t_phl", "t_pHL"),
+        ("t_plh", "t_pLH"),
+        ("rise", "rise time"),
+        ("fall", "fall time"),
+    ];
+    let l = label(key);
+    let Some((kind, rest)) = l.split_once('.') else {
+        return l;
+    };
+    let (name, unit) = match rest.split_once(" (") {
+        Some((n, u)) => (n, format!(" ({u}")),
+        None => (rest, String::new()),
+    };
+    let name = NAMES
+        .iter()
+        .find(|(k, _)| *k == name)
+        .map_or(name.replace('_', " "), |(_, v)| v.to_string());
+    format!("{} {name}{unit}", kind.replace('_', " "))
+}
+
 /// A swept parameter's column key: its name and its unit (`vdd_v`, `rc_ohm_m`, `stages`).
 pub fn axis_key(a: &Axis) -> String {
     let unit = a.dim.unit();

@@ -5,7 +5,7 @@ use crate::design;
 use crate::error::JobError;
 use crate::out;
 use crate::output::{ensure_dir, write_whole as write_file, OutputSet};
-use crate::sweep::{axis_key, axis_label, columns, label, Axis, Row};
+use crate::sweep::{axis_key, axis_label, columns, label, pretty, Axis, Row};
 use std::path::{Path, PathBuf};
 
 /// Flags of `lamina sweep`.
@@ -193,11 +193,16 @@ pub(crate) fn write_sweep(dir: &Path, axes: &[Axis], rows: &[Row]) -> Result<(),
                 }
             }
         }
+        let what = pretty(k);
         crate::plot::curves(
             &dir.join(stems.unique(k)),
-            &format!("{} against {}", label(k), first.name),
+            &format!(
+                "{} against {}",
+                what.split(" (").next().unwrap_or(&what),
+                first.name
+            ),
             &axis_label(first),
-            &label(k),
+            &what,
             &series,
         )?;
     }
@@ -278,7 +283,7 @@ impl Stems {
 #[cfg(test)]
 mod tests {
     use super::Stems;
-    use crate::sweep::label;
+    use crate::sweep::{label, pretty};
 
     #[test]
     fn names_that_differ_in_punctuation_get_their_own_files() {
@@ -294,5 +299,10 @@ mod tests {
         assert_eq!(label("operating_point.out[3]_v"), "node out[3] (V)");
         assert_eq!(label("ring.frequency_hz"), "ring.frequency (Hz)");
         assert_eq!(label("transfer.gain_max"), "transfer.gain_max");
+        assert_eq!(pretty("transfer.vm_v"), "transfer V_M (V)");
+        assert_eq!(
+            pretty("ring.energy_per_cycle_j"),
+            "ring energy per cycle (J)"
+        );
     }
 }
