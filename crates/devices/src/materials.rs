@@ -2,7 +2,7 @@
 //! values, read from `data/materials.json` (compiled into the binary). Every value carries its
 //! source in the file; any value can be overridden in a device card.
 
-use crate::sheet_fet::{Gate, Layer, SheetFetCard};
+use crate::sheet_fet::{Gate, Layer, SecondValley, SheetFetCard};
 use serde_json::Value;
 use std::sync::OnceLock;
 
@@ -110,7 +110,58 @@ pub fn apply_channel(card: &mut SheetFetCard, name: &str) -> Result<(), String> 
     card.hole_degeneracy = number(e, "hole_degeneracy", name)?;
     card.band_gap = number(e, "band_gap", name)?;
     card.electron_affinity = number(e, "electron_affinity", name)?;
+    // A second conduction valley (the other spin-split band, or another valley) where the
+    // library has one; all three keys or none.
+    card.second_valley = if e["valley_offset"].is_null() {
+        None
+    } else {
+        Some(SecondValley {
+            offset: number(e, "valley_offset", name)?,
+            mass: number(e, "valley_mass", name)?,
+            degeneracy: number(e, "valley_degeneracy", name)?,
+        })
+    };
     Ok(())
+}
+
+/// The optical (A-exciton) gap of the library channel `name` (eV), kept for reference: the
+/// model uses the quasi-particle gap `band_gap`, larger by the exciton binding energy.
+pub fn optical_gap(name: &str) -> Option<f64> {
+    data()["channels"][name]["optical_gap"]["value"].as_f64()
+}
+
+/// The range `(low, high)` its source gives for the permittivity of the library insulator
+/// `name`, where the library records one (the value is a representative inside it).
+pub fn permittivity_range(name: &str) -> Option<(f64, f64)> {
+    let r = data()["insulators"][name]["permittivity"]["range"].as_array()?;
+    match r.as_slice() {
+        [low, high] => Some((low.as_f64()?, high.as_f64()?)),
+        _ => None,
+    }
+}
+
+/// The temperature (K) at which the library's channel gaps are taken: they are room-temperature
+/// measurements, and 300 K is the usual reference (common practice).
+pub const LIBRARY_TEMPERATURE_K: f64 = 300.0;
+
+/// The quasi-particle gap (eV) of the library channel `channel` at `temperature_k`, from the
+/// Varshni fit `E(T) = E(0) - alpha T^2 / (T + beta)` (Y. P. Varshni, 'Temperature dependence of
+/// the energy gap in semiconductors', Physica 34, 149 (1967), recalled) whose `varshni_alpha`
+/// (eV/K) and `varshni_beta` (K) the library cites for that channel. The fit's shift
+/// `E(T) - E(300 K)` is applied to the library's `band_gap`, taken as the 300 K value; the
+/// fits are to optical (exciton) lines, and using their shift for the quasi-particle gap
+/// assumes a temperature-independent exciton binding energy. `None` for a channel without a
+/// fit, an unknown channel, or a temperature that is negative or not finite.
+pub fn band_gap_at(channel: &str, temperature_k: f64) -> Option<f64> {
+    if !(temperature_k.is_finite() && temperature_k >= 0.0) {
+        return None;
+    }
+    let e = &data()["channels"][channel];
+    let gap = e["band_gap"]["value"].as_f64()?;
+    let alpha = e["varshni_alpha"]["value"].as_f64()?;
+    let beta = e["varshni_beta"]["value"].as_f64()?;
+    let shift = |t: f64| alpha * t * t / (t + beta);
+    Some(gap - shift(temperature_k) + shift(LIBRARY_TEMPERATURE_K))
 }
 
 /// `layers` layers of the library insulator `name` (a layer count needs a layer thickness in
@@ -176,6 +227,15 @@ mod tests {
                         v["source"].as_str().is_some_and(|s| s.len() > 10),
                         "{section}/{name}/{key} has no source"
                     );
+                    // A stated range is two numbers around the value.
+                    if !v["range"].is_null() {
+                        let r = v["range"].as_array().expect("a range is an array");
+                        let x = v["value"].as_f64().unwrap();
+                        assert!(
+                            r.len() == 2 && r[0].as_f64() <= Some(x) && Some(x) <= r[1].as_f64(),
+                            "{section}/{name}/{key}: {x} outside its range {r:?}"
+                        );
+                    }
                 }
             }
         }
@@ -183,6 +243,19 @@ mod tests {
             let mut card = SheetFetCard::default();
             apply_channel(&mut card, &c).unwrap();
             card.validate().unwrap();
+            // The transport gap is used; the optical gap and the ionisation energy are kept
+            // for reference, so every channel has them.
+            for key in [
+                "band_gap",
+                "optical_gap",
+                "electron_affinity",
+                "ionisation_energy",
+            ] {
+                assert!(
+                    number(entry("channels", &c).unwrap(), key, &c).is_ok(),
+                    "{c}/{key}"
+                );
+            }
         }
         for g in gates() {
             gate(&g).unwrap();
