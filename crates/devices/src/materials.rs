@@ -129,7 +129,10 @@ fn directions(e: &Value) -> Vec<String> {
 /// The effective masses of an anisotropic library channel along and across `direction`:
 /// `[electron along, electron across, hole along, hole across]` (electron masses).
 pub fn anisotropic_masses(name: &str, direction: &str) -> Result<[f64; 4], String> {
-    let e = entry("channels", name)?;
+    masses_of(entry("channels", name)?, name, direction)
+}
+
+fn masses_of(e: &Value, name: &str, direction: &str) -> Result<[f64; 4], String> {
     let across = across(e, name, direction)?;
     Ok([
         number(e, &format!("electron_mass_{direction}"), name)?,
@@ -181,7 +184,16 @@ pub fn apply_channel_along(
     name: &str,
     direction: Option<&str>,
 ) -> Result<(), String> {
-    let e = entry("channels", name)?;
+    apply_entry(card, entry("channels", name)?, name, direction)
+}
+
+/// [`apply_channel_along`] for the library entry `e` called `name`.
+fn apply_entry(
+    card: &mut SheetFetCard,
+    e: &Value,
+    name: &str,
+    direction: Option<&str>,
+) -> Result<(), String> {
     match direction {
         None if !directions(e).is_empty() => {
             return Err(format!(
@@ -196,7 +208,7 @@ pub fn apply_channel_along(
             card.mobility.hole.transport_mass = None;
         }
         Some(d) => {
-            let [ea, ec, ha, hc] = anisotropic_masses(name, d)?;
+            let [ea, ec, ha, hc] = masses_of(e, name, d)?;
             card.electron_mass = (ea * ec).sqrt();
             card.hole_mass = (ha * hc).sqrt();
             card.mobility.electron.transport_mass = Some(ea);
@@ -320,6 +332,43 @@ mod tests {
         assert!(apply_channel(&mut SheetFetCard::default(), "MoS3")
             .unwrap_err()
             .contains("MoS2"));
+    }
+
+    /// Optional mobility keys of an entry reach the card: isotropic exponents, and values per
+    /// direction taking precedence over values for all directions (entries made up here).
+    #[test]
+    fn mobility_keys_of_an_entry_reach_the_card() {
+        let v = |x: f64| serde_json::json!({ "value": x, "source": "made up for this test" });
+        let iso = serde_json::json!({
+            "electron_mass": v(0.4), "hole_mass": v(0.5),
+            "electron_degeneracy": v(4.0), "hole_degeneracy": v(2.0),
+            "band_gap": v(1.8), "electron_affinity": v(4.2),
+            "electron_mobility_exponent": v(1.69), "hole_mobility_exponent": v(2.1),
+            "elastic_modulus": v(120.0), "electron_deformation_potential": v(3.0),
+        });
+        let mut card = SheetFetCard::default();
+        apply_entry(&mut card, &iso, "iso", None).unwrap();
+        assert_eq!(card.mobility.electron.exponent, 1.69);
+        assert_eq!(card.mobility.hole.exponent, 2.1);
+        assert_eq!(card.mobility.elastic_modulus, Some(120.0));
+        assert_eq!(card.mobility.electron.deformation_potential, Some(3.0));
+        assert_eq!(card.mobility.hole.deformation_potential, None);
+        assert_eq!(card.electron_mass, 0.4);
+        let aniso = serde_json::json!({
+            "electron_mass_a": v(0.2), "electron_mass_b": v(0.8),
+            "hole_mass_a": v(0.1), "hole_mass_b": v(0.9),
+            "electron_degeneracy": v(2.0), "hole_degeneracy": v(2.0),
+            "band_gap": v(1.5), "electron_affinity": v(4.0),
+            "elastic_modulus": v(50.0), "elastic_modulus_b": v(90.0),
+        });
+        let mut card = SheetFetCard::default();
+        apply_entry(&mut card, &aniso, "aniso", Some("b")).unwrap();
+        assert_eq!(card.mobility.elastic_modulus, Some(90.0));
+        assert_eq!(card.electron_mass, (0.8f64 * 0.2).sqrt());
+        assert_eq!(card.mobility.electron.transport_mass, Some(0.8));
+        apply_entry(&mut card, &aniso, "aniso", Some("a")).unwrap();
+        assert_eq!(card.mobility.elastic_modulus, Some(50.0));
+        assert_eq!(card.mobility.hole.transport_mass, Some(0.1));
     }
 
     /// Edit distances checked by hand: one substitution, one insertion, one deletion, the
