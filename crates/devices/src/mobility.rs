@@ -20,9 +20,9 @@
 //! used as given whatever the exponent.
 //!
 //! The acoustic-phonon formula is the deformation-potential result for a 2D sheet with
-//! elastic (equipartition) scattering by longitudinal acoustic phonons, as used by S. Takagi,
-//! J. L. Hoyt, J. J. Welser, J. F. Gibbons, J. Appl. Phys. 80, 1567 (1996) (recalled, not
-//! checked) and by J. Qiao, X. Kong, Z.-X. Hu, F. Yang, W. Ji, "High-mobility transport
+//! elastic (equipartition) scattering by longitudinal acoustic phonons, as used for silicon
+//! inversion layers by S. Takagi and co-workers (1994; reference recalled, not checked) and by
+//! J. Qiao, X. Kong, Z.-X. Hu, F. Yang, W. Ji, "High-mobility transport
 //! anisotropy and linear dichroism in few-layer black phosphorus", Nat. Commun. 5, 4475
 //! (2014), their equation (1): `E_1` is the deformation potential of the band edge, `C_2D`
 //! the 2D elastic modulus along the transport direction, `m_t` the effective mass along the
