@@ -225,7 +225,7 @@ fn demo_p_device_threshold_is_on_the_hole_branch() {
 fn an_undecided_branch_reports_no_figures() {
     let file = Path::new(env!("CARGO_MANIFEST_DIR")).join("netlists/demo/n-device.lam");
     // Both ends lie deep in the off region, near 1e-20 A.
-    let m = metrics(&file, &["--vgs", "-0.6:-0.48:0.06", "--vds", "0.05"]);
+    let m = metrics(&file, &["--vgs", "-0.78:-0.66:0.06", "--vds", "0.05"]);
     assert!(m["polarity"].is_null(), "{m}");
     for key in [
         "polarity",

@@ -4,7 +4,7 @@
 use lamina_engine::{Element, EvalContext, OpParams, Stamp, System};
 use lamina_netlist::{load_source, LoadOptions};
 
-const CARD: &str = "device n2d : sheet_fet {\n    channel = MoS2, insulator = hBN, insulator_layers = 10\n    gate_work_function = 4.6 eV, width = 1 um, length = 200 nm\n    electron_mobility = 40 cm^2/(V s) EXTRA\n}\n";
+const CARD: &str = "device n2d : sheet_fet {\n    channel = MoS2, insulator = hBN, insulator_layers = 10\n    gate_work_function = 4.26 eV, width = 1 um, length = 200 nm\n    electron_mobility = 40 cm^2/(V s) EXTRA\n}\n";
 
 fn drain_current(extra: &str, body: &str) -> f64 {
     let text = CARD.replace("EXTRA", extra) + body;

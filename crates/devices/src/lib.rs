@@ -6,6 +6,10 @@
 //!   velocity saturation, contact resistance and overlap capacitance. Cards are checked in two
 //!   steps: [`SheetFetCard::validate`] refuses values the arithmetic cannot carry, and
 //!   [`warnings::plausibility`] flags valid values the physics does not cover.
+//! * [`mobility`]: how a sheet FET's mobilities are obtained (as given, a power law in
+//!   temperature, or acoustic-phonon limited from deformation potentials, each optionally
+//!   combined with an impurity-limited mobility by Matthiessen's rule), and the report of
+//!   what a device uses ([`SheetFet::mobility_report`]).
 //! * [`SquareLawFet`]: the long-channel square-law field-effect transistor, n or p type, with
 //!   optional channel-length modulation and Ward-Dutton intrinsic charges. It is a check
 //!   element with closed-form answers, not a model of any real device.
@@ -26,6 +30,7 @@
 
 pub mod dual;
 pub mod materials;
+pub mod mobility;
 pub mod physics;
 pub mod sheet_fet;
 mod square_law;

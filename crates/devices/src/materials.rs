@@ -101,11 +101,120 @@ pub fn source(section: &str, name: &str, key: &str) -> Option<&'static str> {
     data()[section][name][key]["source"].as_str()
 }
 
-/// Sets the channel fields of `card` from the library's `name`.
+/// Sets the channel fields of `card` from the library's `name`, an isotropic channel (an
+/// anisotropic one needs a transport direction: [`apply_channel_along`]).
 pub fn apply_channel(card: &mut SheetFetCard, name: &str) -> Result<(), String> {
-    let e = entry("channels", name)?;
-    card.electron_mass = number(e, "electron_mass", name)?;
-    card.hole_mass = number(e, "hole_mass", name)?;
+    apply_channel_along(card, name, None)
+}
+
+/// The transport directions of the library channel `name` (`armchair`, `zigzag`), empty for
+/// an isotropic channel. An anisotropic entry gives its masses per direction, as
+/// `electron_mass_<direction>`, and may give the deformation potentials and the elastic
+/// modulus per direction in the same way.
+pub fn transport_directions(name: &str) -> Result<Vec<String>, String> {
+    Ok(directions(entry("channels", name)?))
+}
+
+fn directions(e: &Value) -> Vec<String> {
+    e.as_object()
+        .map(|m| {
+            m.keys()
+                .filter_map(|k| k.strip_prefix("electron_mass_"))
+                .map(str::to_string)
+                .collect()
+        })
+        .unwrap_or_default()
+}
+
+/// The effective masses of an anisotropic library channel along and across `direction`:
+/// `[electron along, electron across, hole along, hole across]` (electron masses).
+pub fn anisotropic_masses(name: &str, direction: &str) -> Result<[f64; 4], String> {
+    masses_of(entry("channels", name)?, name, direction)
+}
+
+fn masses_of(e: &Value, name: &str, direction: &str) -> Result<[f64; 4], String> {
+    let across = across(e, name, direction)?;
+    Ok([
+        number(e, &format!("electron_mass_{direction}"), name)?,
+        number(e, &format!("electron_mass_{across}"), name)?,
+        number(e, &format!("hole_mass_{direction}"), name)?,
+        number(e, &format!("hole_mass_{across}"), name)?,
+    ])
+}
+
+/// The other of an anisotropic channel's two directions.
+fn across(e: &Value, name: &str, direction: &str) -> Result<String, String> {
+    let dirs = directions(e);
+    if dirs.is_empty() {
+        return Err(format!(
+            "channel `{name}` is isotropic: `transport_direction` means nothing for it"
+        ));
+    }
+    if !dirs.iter().any(|d| d == direction) {
+        return Err(format!(
+            "no `transport_direction` `{direction}` for channel `{name}` (it has: {})",
+            dirs.join(", ")
+        ));
+    }
+    match dirs.iter().filter(|d| *d != direction).collect::<Vec<_>>()[..] {
+        [other] => Ok(other.clone()),
+        _ => Err(format!(
+            "channel `{name}` must list exactly two transport directions in the library, found {}",
+            dirs.len()
+        )),
+    }
+}
+
+/// A value that may be given per direction (`key_<direction>`) or for all (`key`).
+fn optional(e: &Value, key: &str, direction: Option<&str>) -> Option<f64> {
+    direction
+        .and_then(|d| e[format!("{key}_{d}")]["value"].as_f64())
+        .or_else(|| e[key]["value"].as_f64())
+}
+
+/// Sets the channel fields of `card` from the library's `name`; `direction` is the transport
+/// direction of an anisotropic channel (and must be `None` for an isotropic one). The
+/// density-of-states masses (`electron_mass`, `hole_mass`) of an anisotropic channel are the
+/// geometric means of the masses along and across the direction, and the masses along it
+/// are the transport masses of the mobility ([`crate::mobility`]). Mobility inputs the entry
+/// has (exponents, deformation potentials, elastic modulus) are set too; they act only when
+/// the card's mobility options call for them.
+pub fn apply_channel_along(
+    card: &mut SheetFetCard,
+    name: &str,
+    direction: Option<&str>,
+) -> Result<(), String> {
+    apply_entry(card, entry("channels", name)?, name, direction)
+}
+
+/// [`apply_channel_along`] for the library entry `e` called `name`.
+fn apply_entry(
+    card: &mut SheetFetCard,
+    e: &Value,
+    name: &str,
+    direction: Option<&str>,
+) -> Result<(), String> {
+    match direction {
+        None if !directions(e).is_empty() => {
+            return Err(format!(
+                "channel `{name}` is anisotropic: give `transport_direction` ({})",
+                directions(e).join(" or ")
+            ))
+        }
+        None => {
+            card.electron_mass = number(e, "electron_mass", name)?;
+            card.hole_mass = number(e, "hole_mass", name)?;
+            card.mobility.electron.transport_mass = None;
+            card.mobility.hole.transport_mass = None;
+        }
+        Some(d) => {
+            let [ea, ec, ha, hc] = masses_of(e, name, d)?;
+            card.electron_mass = (ea * ec).sqrt();
+            card.hole_mass = (ha * hc).sqrt();
+            card.mobility.electron.transport_mass = Some(ea);
+            card.mobility.hole.transport_mass = Some(ha);
+        }
+    }
     card.electron_degeneracy = number(e, "electron_degeneracy", name)?;
     card.hole_degeneracy = number(e, "hole_degeneracy", name)?;
     card.band_gap = number(e, "band_gap", name)?;
@@ -121,6 +230,18 @@ pub fn apply_channel(card: &mut SheetFetCard, name: &str) -> Result<(), String> 
             degeneracy: number(e, "valley_degeneracy", name)?,
         })
     };
+    let m = &mut card.mobility;
+    if let Some(g) = optional(e, "electron_mobility_exponent", direction) {
+        m.electron.exponent = g;
+    }
+    if let Some(g) = optional(e, "hole_mobility_exponent", direction) {
+        m.hole.exponent = g;
+    }
+    m.electron.deformation_potential = optional(e, "electron_deformation_potential", direction)
+        .or(m.electron.deformation_potential);
+    m.hole.deformation_potential =
+        optional(e, "hole_deformation_potential", direction).or(m.hole.deformation_potential);
+    m.elastic_modulus = optional(e, "elastic_modulus", direction).or(m.elastic_modulus);
     Ok(())
 }
 
@@ -240,17 +361,24 @@ mod tests {
             }
         }
         for c in channels() {
-            let mut card = SheetFetCard::default();
-            apply_channel(&mut card, &c).unwrap();
-            card.validate().unwrap();
-            // The transport gap is used; the optical gap and the ionisation energy are kept
-            // for reference, so every channel has them.
-            for key in [
-                "band_gap",
-                "optical_gap",
-                "electron_affinity",
-                "ionisation_energy",
-            ] {
+            let dirs = transport_directions(&c).unwrap();
+            if dirs.is_empty() {
+                let mut card = SheetFetCard::default();
+                apply_channel(&mut card, &c).unwrap();
+                card.validate().unwrap();
+            }
+            for d in &dirs {
+                let mut card = SheetFetCard::default();
+                apply_channel_along(&mut card, &c, Some(d)).unwrap();
+                card.validate().unwrap();
+            }
+            // The transport gap is used; the ionisation energy is kept for reference, and the
+            // optical gap for every dichalcogenide.
+            let mut keys = vec!["band_gap", "electron_affinity", "ionisation_energy"];
+            if c != "BP" {
+                keys.push("optical_gap");
+            }
+            for key in keys {
                 assert!(
                     number(entry("channels", &c).unwrap(), key, &c).is_ok(),
                     "{c}/{key}"
@@ -276,6 +404,43 @@ mod tests {
         assert!(apply_channel(&mut SheetFetCard::default(), "MoS3")
             .unwrap_err()
             .contains("MoS2"));
+    }
+
+    /// Optional mobility keys of an entry reach the card: isotropic exponents, and values per
+    /// direction taking precedence over values for all directions (entries made up here).
+    #[test]
+    fn mobility_keys_of_an_entry_reach_the_card() {
+        let v = |x: f64| serde_json::json!({ "value": x, "source": "made up for this test" });
+        let iso = serde_json::json!({
+            "electron_mass": v(0.4), "hole_mass": v(0.5),
+            "electron_degeneracy": v(4.0), "hole_degeneracy": v(2.0),
+            "band_gap": v(1.8), "electron_affinity": v(4.2),
+            "electron_mobility_exponent": v(1.69), "hole_mobility_exponent": v(2.1),
+            "elastic_modulus": v(120.0), "electron_deformation_potential": v(3.0),
+        });
+        let mut card = SheetFetCard::default();
+        apply_entry(&mut card, &iso, "iso", None).unwrap();
+        assert_eq!(card.mobility.electron.exponent, 1.69);
+        assert_eq!(card.mobility.hole.exponent, 2.1);
+        assert_eq!(card.mobility.elastic_modulus, Some(120.0));
+        assert_eq!(card.mobility.electron.deformation_potential, Some(3.0));
+        assert_eq!(card.mobility.hole.deformation_potential, None);
+        assert_eq!(card.electron_mass, 0.4);
+        let aniso = serde_json::json!({
+            "electron_mass_a": v(0.2), "electron_mass_b": v(0.8),
+            "hole_mass_a": v(0.1), "hole_mass_b": v(0.9),
+            "electron_degeneracy": v(2.0), "hole_degeneracy": v(2.0),
+            "band_gap": v(1.5), "electron_affinity": v(4.0),
+            "elastic_modulus": v(50.0), "elastic_modulus_b": v(90.0),
+        });
+        let mut card = SheetFetCard::default();
+        apply_entry(&mut card, &aniso, "aniso", Some("b")).unwrap();
+        assert_eq!(card.mobility.elastic_modulus, Some(90.0));
+        assert_eq!(card.electron_mass, (0.8f64 * 0.2).sqrt());
+        assert_eq!(card.mobility.electron.transport_mass, Some(0.8));
+        apply_entry(&mut card, &aniso, "aniso", Some("a")).unwrap();
+        assert_eq!(card.mobility.elastic_modulus, Some(50.0));
+        assert_eq!(card.mobility.hole.transport_mass, Some(0.1));
     }
 
     /// Edit distances checked by hand: one substitution, one insertion, one deletion, the

@@ -76,6 +76,7 @@
 //! design decision on it.
 
 use crate::dual::D3;
+use crate::mobility::{MobilityOptions, MobilityReport};
 use crate::physics::{
     dirac_net_density, dirac_prefactor, parabolic_density, parabolic_dos, EPS0, K_B, Q,
 };
@@ -183,6 +184,9 @@ pub struct SheetFetCard {
     pub drain_resistance: f64,
     /// Overlap or fringe capacitance per width and side (F/m).
     pub overlap_capacitance: f64,
+    /// How the mobilities are obtained ([`crate::mobility`]); the default uses
+    /// `electron_mobility` and `hole_mobility` as given.
+    pub mobility: MobilityOptions,
 }
 
 impl Default for SheetFetCard {
@@ -219,6 +223,7 @@ impl Default for SheetFetCard {
             source_resistance: 0.0,
             drain_resistance: 0.0,
             overlap_capacitance: 0.0,
+            mobility: MobilityOptions::default(),
         }
     }
 }
@@ -239,7 +244,7 @@ pub const TEMPERATURE_RANGE_K: (f64, f64) = (218.15, 398.15);
 
 /// The highest temperature (K) a card may have: a numeric guard above the melting point of
 /// every solid (all below 4,300 K, recalled, not checked).
-const MAX_TEMPERATURE_K: f64 = 1e4;
+pub(crate) const MAX_TEMPERATURE_K: f64 = 1e4;
 
 /// A number for an error message: plain between 0.001 and 1e5, otherwise in exponent form.
 fn show(v: f64) -> String {
@@ -260,7 +265,7 @@ fn unit_suffix(unit: &str) -> String {
 }
 
 /// `lo <= v <= hi` (false for NaN).
-fn in_range(name: &str, v: f64, lo: f64, hi: f64, unit: &str) -> Result<(), String> {
+pub(crate) fn in_range(name: &str, v: f64, lo: f64, hi: f64, unit: &str) -> Result<(), String> {
     if v >= lo && v <= hi {
         Ok(())
     } else {
@@ -275,7 +280,7 @@ fn in_range(name: &str, v: f64, lo: f64, hi: f64, unit: &str) -> Result<(), Stri
 }
 
 /// `0 < v <= hi` (false for NaN).
-fn above_zero(name: &str, v: f64, hi: f64, unit: &str) -> Result<(), String> {
+pub(crate) fn above_zero(name: &str, v: f64, hi: f64, unit: &str) -> Result<(), String> {
     if v > 0.0 && v <= hi {
         Ok(())
     } else {
@@ -333,6 +338,7 @@ impl SheetFetCard {
     /// | overlap capacitance | [0, 1] F/m |
     /// | gate Fermi velocity | [1e3, 3e8] m/s |
     /// | gate gap shift | [-1, 1] |
+    /// | mobility options | see [`crate::mobility::resolve`] |
     ///
     /// A card inside every range can still combine into a stack the tables cannot hold (a
     /// flat-band point a million volts away, a Dirac gate that cannot carry the gate charge);
@@ -471,6 +477,7 @@ impl SheetFetCard {
                 )?;
             }
         }
+        crate::mobility::resolve(self)?;
         Ok(())
     }
 
@@ -1172,6 +1179,7 @@ pub struct SheetFet {
     g_drain: f64,
     g_source: f64,
     overlap: f64,
+    mobility: MobilityReport,
 }
 
 const PINS: &[&str] = &["drain", "gate", "source"];
@@ -1198,8 +1206,12 @@ const SOURCE_ONLY: &[Internal] = &[Internal {
 const SMALL_VDS: f64 = 0.01;
 
 impl SheetFet {
-    /// A device from a card; the card's stack tables are shared with other devices.
+    /// A device from a card; the card's stack tables are shared with other devices. The
+    /// card's mobility options are resolved here, once ([`crate::mobility`]).
     pub fn new(card: &SheetFetCard) -> Result<Self, String> {
+        card.validate()?;
+        let mobility = crate::mobility::resolve(card)?;
+        let card = &card.with_resolved_mobility()?;
         let model = SheetModel::shared(card)?;
         let mu = card.electron_mobility.max(card.hole_mobility);
         let critical_field = if card.saturation_velocity > 0.0 {
@@ -1217,7 +1229,13 @@ impl SheetFet {
             g_drain: g(card.drain_resistance),
             g_source: g(card.source_resistance),
             overlap: card.overlap_capacitance * card.width,
+            mobility,
         })
+    }
+
+    /// The electron and hole mobilities the device uses, and how they were obtained.
+    pub fn mobility_report(&self) -> &MobilityReport {
+        &self.mobility
     }
 
     /// The shared stack model.

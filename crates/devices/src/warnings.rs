@@ -137,9 +137,10 @@ pub fn plausibility(card: &SheetFetCard, max_gate_voltage: Option<f64>) -> Vec<I
         card.temperature,
         "K",
         TEMPERATURE_RANGE_K,
-        "the model takes mobility, band gap and dopant ionisation as temperature independent \
-         and the material library holds room-temperature values; it is meant for the -55 °C \
-         to 125 °C of military-grade circuits (common practice)",
+        "the material library holds room-temperature values (a gap follows temperature only \
+         where the library cites a fit, a mobility only with an exponent or the phonon model) \
+         and dopants are taken as fully ionised; the model is meant for the -55 °C to 125 °C of \
+         military-grade circuits (common practice)",
     );
     let sites = MONOLAYER_ATOMS_PER_CM2;
     for (name, v) in [

@@ -2,6 +2,7 @@
 //! dimension each must have) and how to build the engine's element from them.
 
 use crate::units::Dim;
+use lamina_devices::mobility::LatticeModel;
 use lamina_devices::{
     materials, Gate, Layer, Polarity, SecondValley, SheetFet, SheetFetCard, SquareLawFet,
 };
@@ -302,6 +303,8 @@ static SHEET_PARAMS: &[ParamSpec] = &[
     named("gate"),
     named("insulator"),
     named("insulator2"),
+    named("transport_direction"),
+    named("mobility_model"),
     maybe("insulator_layers", Dim::NONE),
     maybe("insulator_thickness", Dim::LENGTH),
     maybe("insulator_permittivity", Dim::NONE),
@@ -338,7 +341,169 @@ static SHEET_PARAMS: &[ParamSpec] = &[
     maybe("source_resistance", RESISTANCE_WIDTH),
     maybe("drain_resistance", RESISTANCE_WIDTH),
     maybe("overlap_capacitance", CAPACITANCE_PER_WIDTH),
+    maybe("electron_mass_along", Dim::NONE),
+    maybe("electron_mass_across", Dim::NONE),
+    maybe("hole_mass_along", Dim::NONE),
+    maybe("hole_mass_across", Dim::NONE),
+    maybe("mobility_reference_temperature", Dim::TEMPERATURE),
+    maybe("electron_mobility_exponent", Dim::NONE),
+    maybe("hole_mobility_exponent", Dim::NONE),
+    maybe("electron_deformation_potential", ENERGY),
+    maybe("hole_deformation_potential", ENERGY),
+    maybe("elastic_modulus", Dim::ENERGY_PER_AREA),
+    maybe("electron_impurity_mobility", MOBILITY),
+    maybe("hole_impurity_mobility", MOBILITY),
 ];
+
+/// The values `mobility_model` takes.
+const MOBILITY_MODELS: &[(&str, LatticeModel)] = &[
+    ("power_law", LatticeModel::PowerLaw),
+    ("acoustic_phonon", LatticeModel::AcousticPhonon),
+];
+
+/// Settings of the power-law mobility, unused by the acoustic-phonon model.
+const POWER_LAW_SETTINGS: &[&str] = &[
+    "electron_mobility",
+    "hole_mobility",
+    "mobility_reference_temperature",
+    "electron_mobility_exponent",
+    "hole_mobility_exponent",
+];
+
+/// Inputs of the acoustic-phonon mobility, unused by the power law.
+const PHONON_SETTINGS: &[&str] = &[
+    "electron_deformation_potential",
+    "hole_deformation_potential",
+    "elastic_modulus",
+];
+
+/// The card's `mobility_model`, or an error naming the values it takes.
+fn mobility_model(v: &Values) -> Result<LatticeModel, BuildError> {
+    match v.text(SHEET_PARAMS, "mobility_model") {
+        None => Ok(LatticeModel::PowerLaw),
+        Some(name) => MOBILITY_MODELS
+            .iter()
+            .find(|(n, _)| *n == name)
+            .map(|(_, m)| *m)
+            .ok_or_else(|| {
+                BuildError::at(
+                    "mobility_model",
+                    format!("no `mobility_model` called `{name}`"),
+                    "write `mobility_model = power_law` (the default) or `mobility_model = acoustic_phonon`",
+                )
+            }),
+    }
+}
+
+/// Checks the mobility and anisotropy settings that contradict each other or that another
+/// makes meaningless.
+fn mobility_consistency(v: &Values) -> Result<(), BuildError> {
+    let p = SHEET_PARAMS;
+    for carrier in ["electron", "hole"] {
+        let mass = format!("{carrier}_mass");
+        for side in ["along", "across"] {
+            let pair = format!("{carrier}_mass_{side}");
+            if v.get(p, &mass).is_some() && v.get(p, &pair).is_some() {
+                return Err(BuildError::at(
+                    &pair,
+                    format!("`{mass}` and `{pair}` are both given; one would silently win"),
+                    format!(
+                        "give the masses along and across the channel (the density of states uses their geometric mean), or `{mass}` alone for an isotropic band"
+                    ),
+                ));
+            }
+        }
+    }
+    if v.text(p, "transport_direction").is_some() && v.text(p, "channel").is_none() {
+        return Err(BuildError::at(
+            "transport_direction",
+            "`transport_direction` is given without an anisotropic library `channel`",
+            "add `channel = BP`, say, or give `electron_mass_along` and `electron_mass_across` (and the hole masses) instead",
+        ));
+    }
+    match mobility_model(v)? {
+        LatticeModel::AcousticPhonon => {
+            if let Some(s) = POWER_LAW_SETTINGS.iter().find(|s| v.get(p, s).is_some()) {
+                return Err(BuildError::at(
+                    s,
+                    format!("`{s}` is not used by `mobility_model = acoustic_phonon`"),
+                    "remove it (add an impurity-limited mobility with `electron_impurity_mobility` or `hole_impurity_mobility`), or leave `mobility_model` out",
+                ));
+            }
+        }
+        LatticeModel::PowerLaw => {
+            if let Some(s) = PHONON_SETTINGS.iter().find(|s| v.get(p, s).is_some()) {
+                return Err(BuildError::at(
+                    s,
+                    format!("`{s}` is used only by `mobility_model = acoustic_phonon`"),
+                    "add `mobility_model = acoustic_phonon`, or remove it",
+                ));
+            }
+            if v.get(p, "mobility_reference_temperature").is_none() {
+                if let Some(s) = ["electron_mobility_exponent", "hole_mobility_exponent"]
+                    .iter()
+                    .find(|s| v.get(p, s).is_some())
+                {
+                    return Err(BuildError::at(
+                        s,
+                        format!(
+                            "`{s}` has no effect without `mobility_reference_temperature`: the mobility is then taken at the device temperature"
+                        ),
+                        "add `mobility_reference_temperature` (the temperature the given mobility holds at), or remove it",
+                    ));
+                }
+            }
+        }
+    }
+    Ok(())
+}
+
+/// Sets the anisotropic masses of `carrier` (`electron` or `hole`): the density-of-states
+/// mass is the geometric mean of the masses along and across the channel and the transport
+/// mass is the one along it. `library` holds the library channel's pair, if anisotropic.
+fn anisotropic_mass(
+    v: &Values,
+    carrier: &str,
+    library: Option<(f64, f64)>,
+    dos: &mut f64,
+    transport: &mut Option<f64>,
+) -> Result<(), BuildError> {
+    let p = SHEET_PARAMS;
+    let (along_name, across_name) = (
+        format!("{carrier}_mass_along"),
+        format!("{carrier}_mass_across"),
+    );
+    let mass = format!("{carrier}_mass");
+    if library.is_some() && v.get(p, &mass).is_some() {
+        return Err(BuildError::at(
+            &mass,
+            format!("`{mass}` is given for an anisotropic channel, whose density-of-states mass comes from its masses along and across the channel"),
+            format!("give `{along_name}` and `{across_name}` instead"),
+        ));
+    }
+    let along = v.get(p, &along_name).or(library.map(|l| l.0));
+    let across = v.get(p, &across_name).or(library.map(|l| l.1));
+    match (along, across) {
+        (Some(a), Some(c)) => {
+            *dos = (a * c).sqrt();
+            *transport = Some(a);
+            Ok(())
+        }
+        (None, None) => Ok(()),
+        (Some(_), None) | (None, Some(_)) => {
+            let (given, missing) = if along.is_some() {
+                (&along_name, &across_name)
+            } else {
+                (&across_name, &along_name)
+            };
+            Err(BuildError::at(
+                given,
+                format!("`{given}` needs `{missing}`: an anisotropic band has a mass along and a mass across the channel"),
+                format!("add `{missing}`, or give `{carrier}_mass` alone for an isotropic band"),
+            ))
+        }
+    }
+}
 
 /// Settings that describe a Dirac-sheet (graphene-like) gate and mean nothing on a metal.
 const DIRAC_GATE_SETTINGS: &[&str] = &[
@@ -422,16 +587,30 @@ fn sheet_consistency(v: &Values) -> Result<(), BuildError> {
 /// and are stored in eV; trap densities arrive per joule and are stored per eV).
 pub fn sheet_card(v: &Values) -> Result<SheetFetCard, BuildError> {
     sheet_consistency(v)?;
+    mobility_consistency(v)?;
     let p = SHEET_PARAMS;
     let q = lamina_devices::physics::Q;
     let ev = |name: &str| v.get(p, name).map(|x| x / q);
     let mut card = SheetFetCard::default();
+    let direction = v.text(p, "transport_direction");
+    let channel_error = |m: String| BuildError {
+        param: Some(
+            if m.contains("`transport_direction`") {
+                "transport_direction"
+            } else {
+                "channel"
+            }
+            .into(),
+        ),
+        message: m,
+        help: None,
+    };
+    let mut library_masses = None;
     if let Some(ch) = v.text(p, "channel") {
-        materials::apply_channel(&mut card, ch).map_err(|m| BuildError {
-            param: Some("channel".into()),
-            message: m,
-            help: None,
-        })?;
+        materials::apply_channel_along(&mut card, ch, direction).map_err(channel_error)?;
+        if let Some(d) = direction {
+            library_masses = Some(materials::anisotropic_masses(ch, d).map_err(channel_error)?);
+        }
     }
     let set = |slot: &mut f64, x: Option<f64>| {
         if let Some(x) = x {
@@ -440,6 +619,59 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, BuildError> {
     };
     set(&mut card.electron_mass, v.get(p, "electron_mass"));
     set(&mut card.hole_mass, v.get(p, "hole_mass"));
+    anisotropic_mass(
+        v,
+        "electron",
+        library_masses.map(|m| (m[0], m[1])),
+        &mut card.electron_mass,
+        &mut card.mobility.electron.transport_mass,
+    )?;
+    anisotropic_mass(
+        v,
+        "hole",
+        library_masses.map(|m| (m[2], m[3])),
+        &mut card.hole_mass,
+        &mut card.mobility.hole.transport_mass,
+    )?;
+    card.mobility.model = mobility_model(v)?;
+    let some = |slot: &mut Option<f64>, x: Option<f64>| {
+        if x.is_some() {
+            *slot = x;
+        }
+    };
+    some(
+        &mut card.mobility.reference_temperature,
+        v.get(p, "mobility_reference_temperature"),
+    );
+    set(
+        &mut card.mobility.electron.exponent,
+        v.get(p, "electron_mobility_exponent"),
+    );
+    set(
+        &mut card.mobility.hole.exponent,
+        v.get(p, "hole_mobility_exponent"),
+    );
+    some(
+        &mut card.mobility.electron.deformation_potential,
+        ev("electron_deformation_potential"),
+    );
+    some(
+        &mut card.mobility.hole.deformation_potential,
+        ev("hole_deformation_potential"),
+    );
+    // J/m² arrives in SI, which is N/m.
+    some(
+        &mut card.mobility.elastic_modulus,
+        v.get(p, "elastic_modulus"),
+    );
+    some(
+        &mut card.mobility.electron.impurity_mobility,
+        v.get(p, "electron_impurity_mobility"),
+    );
+    some(
+        &mut card.mobility.hole.impurity_mobility,
+        v.get(p, "hole_impurity_mobility"),
+    );
     set(
         &mut card.electron_degeneracy,
         v.get(p, "electron_degeneracy"),
@@ -459,6 +691,17 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, BuildError> {
         v.get(p, "fixed_charge_density"),
     );
     set(&mut card.temperature, v.get(p, "temperature"));
+    // The library's gaps are 300 K values: where it cites a temperature fit, the gap follows
+    // the device's temperature, the band edges moving apart evenly about midgap (the
+    // construction the library's edges use), unless the card gives the gap itself.
+    if let (Some(ch), None) = (v.text(p, "channel"), v.get(p, "band_gap")) {
+        if let Some(gap) = materials::band_gap_at(ch, card.temperature) {
+            if v.get(p, "electron_affinity").is_none() && card.temperature.is_finite() {
+                card.electron_affinity += 0.5 * (card.band_gap - gap);
+            }
+            card.band_gap = gap;
+        }
+    }
     set(&mut card.width, v.get(p, "width"));
     set(&mut card.length, v.get(p, "length"));
     set(&mut card.electron_mobility, v.get(p, "electron_mobility"));

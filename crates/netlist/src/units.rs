@@ -99,6 +99,8 @@ impl Dim {
     pub const CAPACITANCE_PER_AREA: Dim = Dim([-2, 1, -1, 1, 0]);
     /// Electric field (V/m).
     pub const FIELD: Dim = Dim([-1, 0, 1, 0, 0]);
+    /// Energy per area (J/m², the same as N/m): a 2D elastic modulus.
+    pub const ENERGY_PER_AREA: Dim = Dim([-2, 1, 1, 1, 0]);
 
     /// A value written with a unit of this dimension, for help messages.
     pub fn example(self) -> String {
@@ -178,6 +180,12 @@ const NAMED: &[(Dim, &str, &str, &str)] = &[
         "1 uF/cm^2",
     ),
     (Dim::FIELD, "an electric field", "V/m", "1 MV/cm"),
+    (
+        Dim::ENERGY_PER_AREA,
+        "an energy per area (a 2D elastic modulus)",
+        "J/m^2, the same as N/m",
+        "100 J/m^2",
+    ),
 ];
 
 impl fmt::Display for Dim {
