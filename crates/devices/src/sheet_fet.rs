@@ -17,8 +17,10 @@
 //! ```
 //!
 //! `u(ξ)` is strictly increasing (`du/dξ >= 1`), so each `u` has one `ξ`, found by bracketed
-//! Newton. The channel and gate quantum capacitances are `q d(n - p)/dξ` and
-//! `q² d(n_g - p_g)/dμ_g`.
+//! Newton. The Dirac gate's level `μ_g` is solved from its charge balance in `ln(n_g - p_g)`,
+//! so a level deep inside a gapped gate's gap (where both densities are exponentially small,
+//! at any temperature) is found to 1e-12 of the target density. The channel and gate quantum
+//! capacitances are `q d(n - p)/dξ` and `q² d(n_g - p_g)/dμ_g`.
 //!
 //! # Current and charges (constant mobility)
 //! With sheet conductance `σ(u) = q (μ_n n + μ_p p)` (one quasi-Fermi level for both carriers,
@@ -41,17 +43,17 @@
 //!
 //! # Tables
 //! `S`, `A`, `B`, `σ` and `ρ` are tabulated once per gate stack on a uniform core grid
-//! (spacing `V_T / 10`, 8 V either side of the midgap point) and interpolated with cubic
-//! Hermite polynomials that use the exact derivatives, so currents and charges are C¹ in the
-//! terminal voltages and the Jacobian (by forward-mode differentiation) is exactly the
-//! derivative of what is returned.
+//! (spacing `V_T / 10`, 8 V either side of the midgap point) and interpolated with Hermite
+//! polynomials that use the exact derivatives (cubics for σ and ρ; quintics through the second
+//! derivatives for `S`, `A`, `B`, whose derivatives are then exactly the cubics of σ, ρσ and
+//! `Sρσ`), so currents and charges are C¹ in the terminal voltages and the Jacobian (by
+//! forward-mode differentiation) is exactly the derivative of what is returned.
 //!
 //! Beyond the core, extensions reach at least ±[`U_REACH`] = ±1000 V of `u` (a back gate on
 //! 285 nm of SiO2 swept to ±100 V sits well inside): their knots are placed adaptively, each
 //! step doubling while σ, ρ and their derivatives stay within 1e-8 of the direct solve at a
 //! quarter, half and three quarters of it and halving (down to the core spacing) otherwise,
-//! and no wider than 5 % of its distance from the midgap point; `B` is interpolated there with
-//! a quintic through `B''`. Each side holds at most [`MAX_EXTENSION_POINTS`] knots (a few
+//! and no wider than 5 % of its distance from the midgap point. Each side holds at most [`MAX_EXTENSION_POINTS`] knots (a few
 //! hundred in practice), and an extension ends early only where the local solve fails (a
 //! Dirac gate that cannot carry the charge within ±20 eV). Inside
 //! [`SheetModel::valid_u_range`] currents, charges and their derivatives agree with the direct
@@ -820,8 +822,8 @@ fn solve_dirac(
             continue;
         }
         // Met to 1e-12 of the target, or (near the gap centre, where the difference n - p
-        // loses digits) the remaining Newton step is below a rounding unit of kT.
-        if g.abs() <= 1e-12 || (g / dg).abs() <= f64::EPSILON * kt {
+        // loses digits) met to 1e-6 with the remaining Newton step below a rounding unit of kT.
+        if g.abs() <= 1e-12 || (g.abs() <= 1e-6 && (g / dg).abs() <= f64::EPSILON * kt) {
             ok = true;
             break;
         }
@@ -1103,24 +1105,25 @@ impl Tables {
         let (a0, a1) = (self.a[k], self.a[k + 1]);
         let (b0, b1) = (self.b[k], self.b[k + 1]);
         let (ra0, ra1) = (r0 * g0, r1 * g1);
-        let (s, ds) = hermite(t, h, s0, g0, s1, g1);
-        let (a, da) = hermite(t, h, a0, ra0, a1, ra1);
-        let (b, db) = if k >= self.core_lo && k < self.core_hi {
-            hermite(t, h, b0, s0 * ra0, b1, s1 * ra1)
-        } else {
-            // The extensions' wide steps: B = ∫ S ρ σ du is a quintic where σ and ρ are
-            // nearly linear, so it takes the quintic through B'' = σ ρσ + S (ρσ)' as well.
-            let (dra0, dra1) = (
-                self.drho[k] * g0 + r0 * self.dsigma[k],
-                self.drho[k + 1] * g1 + r1 * self.dsigma[k + 1],
-            );
-            hermite5(
-                t,
-                h,
-                [b0, s0 * ra0, g0 * ra0 + s0 * dra0],
-                [b1, s1 * ra1, g1 * ra1 + s1 * dra1],
-            )
-        };
+        let (dg0, dg1) = (self.dsigma[k], self.dsigma[k + 1]);
+        let (dra0, dra1) = (
+            self.drho[k] * g0 + r0 * dg0,
+            self.drho[k + 1] * g1 + r1 * dg1,
+        );
+        // Quintics through the second derivatives as well. The knot values of S and A are
+        // exact integrals of the cubic Hermite interpolants of σ and ρσ, so the quintics'
+        // derivatives are exactly those cubics: the current's V_G derivative is the
+        // interpolated σ itself (to its accuracy, not the cubic's derivative error), and the
+        // small-V_DS path, which averages the interpolated σ, agrees with this one.
+        let (s, ds) = hermite5(t, h, [s0, g0, dg0], [s1, g1, dg1]);
+        let (a, da) = hermite5(t, h, [a0, ra0, dra0], [a1, ra1, dra1]);
+        // B = ∫ S ρ σ du, B'' = σ ρσ + S (ρσ)'.
+        let (b, db) = hermite5(
+            t,
+            h,
+            [b0, s0 * ra0, g0 * ra0 + s0 * dra0],
+            [b1, s1 * ra1, g1 * ra1 + s1 * dra1],
+        );
         Point {
             s,
             ds,
@@ -1546,9 +1549,9 @@ impl SheetModel {
         let ra = |k: usize| rho[k] * sigma[k];
         let dra = |k: usize| drho[k] * sigma[k] + rho[k] * dsigma[k];
         // ∫ S ρσ du over interval k, given S at its ends. In the core: the Hermite cubic
-        // through S ρσ and its derivative. In the extensions: the exact integral of the
-        // product of the Hermite cubics of S and of ρσ (four-point Gauss-Legendre, exact to
-        // degree 7), consistent with the quintic interpolation of B there.
+        // through S ρσ and its derivative. In the extensions, whose wide steps need more: the
+        // integral of the product of the interpolants of S (quintic) and of ρσ (cubic), by
+        // four-point Gauss-Legendre.
         let b_step = |k: usize, s0: f64, s1: f64| {
             let w = width(k);
             if (core_lo..core_hi).contains(&k) {
@@ -1561,7 +1564,12 @@ impl SheetModel {
             } else {
                 let mut sum = 0.0;
                 for (t, g) in GL_T.iter().zip(GL_W) {
-                    let (sv, _) = hermite(*t, w, s0, sigma[k], s1, sigma[k + 1]);
+                    let (sv, _) = hermite5(
+                        *t,
+                        w,
+                        [s0, sigma[k], dsigma[k]],
+                        [s1, sigma[k + 1], dsigma[k + 1]],
+                    );
                     let (pv, _) = hermite(*t, w, ra(k), dra(k), ra(k + 1), dra(k + 1));
                     sum += g * sv * pv;
                 }
