@@ -44,16 +44,17 @@
 //! # Tables
 //! `S`, `A`, `B`, `σ` and `ρ` are tabulated once per gate stack on a uniform core grid
 //! (spacing `V_T / 10`, 8 V either side of the midgap point) and interpolated with Hermite
-//! polynomials that use the exact derivatives (cubics for σ and ρ; quintics through the second
-//! derivatives for `S`, `A`, `B`, whose derivatives are then exactly the cubics of σ, ρσ and
-//! `Sρσ`), so currents and charges are C¹ in the terminal voltages and the Jacobian (by
-//! forward-mode differentiation) is exactly the derivative of what is returned.
+//! polynomials that use the exact derivatives (cubics, except `S`: a quintic through `σ'` as
+//! well, whose derivative is then exactly the cubic of σ), so currents and charges are C¹ in
+//! the terminal voltages and the Jacobian (by forward-mode differentiation) is exactly the
+//! derivative of what is returned.
 //!
 //! Beyond the core, extensions reach at least ±[`U_REACH`] = ±1000 V of `u` (a back gate on
 //! 285 nm of SiO2 swept to ±100 V sits well inside): their knots are placed adaptively, each
 //! step doubling while σ, ρ and their derivatives stay within 1e-8 of the direct solve at a
 //! quarter, half and three quarters of it and halving (down to the core spacing) otherwise,
-//! and no wider than 5 % of its distance from the midgap point. Each side holds at most [`MAX_EXTENSION_POINTS`] knots (a few
+//! and no wider than 5 % of its distance from the midgap point; `B` takes a quintic through
+//! `B''` there. Each side holds at most [`MAX_EXTENSION_POINTS`] knots (a few
 //! hundred in practice), and an extension ends early only where the local solve fails (a
 //! Dirac gate that cannot carry the charge within ±20 eV). Inside
 //! [`SheetModel::valid_u_range`] currents, charges and their derivatives agree with the direct
@@ -904,13 +905,21 @@ struct Tables {
     core_hi: usize,
     left_u: Vec<f64>,
     right_u: Vec<f64>,
-    sigma: Vec<f64>,
-    dsigma: Vec<f64>,
-    rho: Vec<f64>,
-    drho: Vec<f64>,
-    s: Vec<f64>,
-    a: Vec<f64>,
-    b: Vec<f64>,
+    /// The values at every knot, side by side so that one look-up touches two adjacent
+    /// records.
+    at: Vec<KnotValues>,
+}
+
+/// The tabulated values at one knot.
+#[derive(Clone, Copy, Debug)]
+struct KnotValues {
+    sigma: f64,
+    dsigma: f64,
+    rho: f64,
+    drho: f64,
+    s: f64,
+    a: f64,
+    b: f64,
 }
 
 /// Hermite cubic on one interval: value and derivative (per unit of `t`, times `1/h` outside).
@@ -932,21 +941,15 @@ fn hermite(t: f64, h: f64, f0: f64, d0: f64, f1: f64, d1: f64) -> (f64, f64) {
 /// value and derivative (per unit of `u`).
 #[inline]
 fn hermite5(t: f64, h: f64, f0: [f64; 3], f1: [f64; 3]) -> (f64, f64) {
-    let t2 = t * t;
-    let t3 = t2 * t;
-    let t4 = t3 * t;
-    let t5 = t4 * t;
-    let v = (1.0 - 10.0 * t3 + 15.0 * t4 - 6.0 * t5) * f0[0]
-        + (t - 6.0 * t3 + 8.0 * t4 - 3.0 * t5) * h * f0[1]
-        + 0.5 * (t2 - 3.0 * t3 + 3.0 * t4 - t5) * h * h * f0[2]
-        + (10.0 * t3 - 15.0 * t4 + 6.0 * t5) * f1[0]
-        + (-4.0 * t3 + 7.0 * t4 - 3.0 * t5) * h * f1[1]
-        + 0.5 * (t3 - 2.0 * t4 + t5) * h * h * f1[2];
-    let dv = (-30.0 * t2 + 60.0 * t3 - 30.0 * t4) * (f0[0] - f1[0]) / h
-        + (1.0 - 18.0 * t2 + 32.0 * t3 - 15.0 * t4) * f0[1]
-        + (-12.0 * t2 + 28.0 * t3 - 15.0 * t4) * f1[1]
-        + 0.5 * (2.0 * t - 9.0 * t2 + 12.0 * t3 - 5.0 * t4) * h * f0[2]
-        + 0.5 * (3.0 * t2 - 8.0 * t3 + 5.0 * t4) * h * f1[2];
+    // The polynomial in t, from the quintic Hermite basis, evaluated by Horner's rule.
+    let df = f1[0] - f0[0];
+    let (d0, d1) = (h * f0[1], h * f1[1]);
+    let (e0, e1) = (0.5 * h * h * f0[2], 0.5 * h * h * f1[2]);
+    let c3 = 10.0 * df - 6.0 * d0 - 4.0 * d1 - 3.0 * e0 + e1;
+    let c4 = -15.0 * df + 8.0 * d0 + 7.0 * d1 + 3.0 * e0 - 2.0 * e1;
+    let c5 = 6.0 * df - 3.0 * d0 - 3.0 * d1 - e0 + e1;
+    let v = f0[0] + t * (d0 + t * (e0 + t * (c3 + t * (c4 + t * c5))));
+    let dv = (d0 + t * (2.0 * e0 + t * (3.0 * c3 + t * (4.0 * c4 + t * 5.0 * c5)))) / h;
     (v, dv)
 }
 
@@ -984,6 +987,13 @@ impl Tables {
                 out: 0.0,
             };
         }
+        self.locate_outside_core(u, x)
+    }
+
+    /// [`Tables::locate`] outside the core grid (kept out of line: the hot path is the core).
+    #[cold]
+    #[inline(never)]
+    fn locate_outside_core(&self, u: f64, x: f64) -> Site {
         if x < 0.0 {
             let first = self.left_u[0];
             if u <= first {
@@ -1048,7 +1058,7 @@ impl Tables {
     /// or zero where it would make σ fall away from the tables.
     #[inline]
     fn sigma_slope(&self, k: usize, out: f64) -> f64 {
-        let d = self.dsigma[k];
+        let d = self.at[k].dsigma;
         if d * out >= 0.0 {
             d
         } else {
@@ -1063,15 +1073,15 @@ impl Tables {
         if out != 0.0 {
             let e = k + usize::from(out > 0.0);
             let g1 = self.sigma_slope(e, out);
-            return (self.sigma[e] + g1 * out, g1);
+            return (self.at[e].sigma + g1 * out, g1);
         }
         hermite(
             t,
             h,
-            self.sigma[k],
-            self.dsigma[k],
-            self.sigma[k + 1],
-            self.dsigma[k + 1],
+            self.at[k].sigma,
+            self.at[k].dsigma,
+            self.at[k + 1].sigma,
+            self.at[k + 1].dsigma,
         )
     }
 
@@ -1081,15 +1091,15 @@ impl Tables {
         let Site { k, t, h, out } = self.locate(u);
         if out != 0.0 {
             let e = k + usize::from(out > 0.0);
-            return (self.rho[e] + self.drho[e] * out, self.drho[e]);
+            return (self.at[e].rho + self.at[e].drho * out, self.at[e].drho);
         }
         hermite(
             t,
             h,
-            self.rho[k],
-            self.drho[k],
-            self.rho[k + 1],
-            self.drho[k + 1],
+            self.at[k].rho,
+            self.at[k].drho,
+            self.at[k + 1].rho,
+            self.at[k + 1].drho,
         )
     }
 
@@ -1099,31 +1109,36 @@ impl Tables {
         if out != 0.0 {
             return self.continuation(k + usize::from(out > 0.0), out);
         }
-        let (s0, s1) = (self.s[k], self.s[k + 1]);
-        let (g0, g1) = (self.sigma[k], self.sigma[k + 1]);
-        let (r0, r1) = (self.rho[k], self.rho[k + 1]);
-        let (a0, a1) = (self.a[k], self.a[k + 1]);
-        let (b0, b1) = (self.b[k], self.b[k + 1]);
+        let (p, q) = (&self.at[k], &self.at[k + 1]);
+        let (s0, s1) = (p.s, q.s);
+        let (g0, g1) = (p.sigma, q.sigma);
+        let (r0, r1) = (p.rho, q.rho);
+        let (a0, a1) = (p.a, q.a);
+        let (b0, b1) = (p.b, q.b);
         let (ra0, ra1) = (r0 * g0, r1 * g1);
-        let (dg0, dg1) = (self.dsigma[k], self.dsigma[k + 1]);
-        let (dra0, dra1) = (
-            self.drho[k] * g0 + r0 * dg0,
-            self.drho[k + 1] * g1 + r1 * dg1,
-        );
-        // Quintics through the second derivatives as well. The knot values of S and A are
-        // exact integrals of the cubic Hermite interpolants of σ and ρσ, so the quintics'
-        // derivatives are exactly those cubics: the current's V_G derivative is the
-        // interpolated σ itself (to its accuracy, not the cubic's derivative error), and the
-        // small-V_DS path, which averages the interpolated σ, agrees with this one.
+        let (dg0, dg1) = (p.dsigma, q.dsigma);
+        let dra = |v: &KnotValues| v.drho * v.sigma + v.rho * v.dsigma;
+        let (dra0, dra1) = (dra(p), dra(q));
+        // S by the quintic through σ' as well: S's knot values are exact integrals of the
+        // cubic Hermite interpolant of σ, so this quintic's derivative is exactly that cubic.
+        // The current's V_G derivative is then the interpolated σ itself (to its accuracy,
+        // not the larger derivative error of a cubic for S, which let the subthreshold swing
+        // dip 8e-6 below the thermal limit), and the small-V_DS path, which averages the
+        // interpolated σ, agrees with this one.
         let (s, ds) = hermite5(t, h, [s0, g0, dg0], [s1, g1, dg1]);
-        let (a, da) = hermite5(t, h, [a0, ra0, dra0], [a1, ra1, dra1]);
-        // B = ∫ S ρ σ du, B'' = σ ρσ + S (ρσ)'.
-        let (b, db) = hermite5(
-            t,
-            h,
-            [b0, s0 * ra0, g0 * ra0 + s0 * dra0],
-            [b1, s1 * ra1, g1 * ra1 + s1 * dra1],
-        );
+        let (a, da) = hermite(t, h, a0, ra0, a1, ra1);
+        let (b, db) = if k >= self.core_lo && k < self.core_hi {
+            hermite(t, h, b0, s0 * ra0, b1, s1 * ra1)
+        } else {
+            // The extensions' wide steps: B = ∫ S ρ σ du is a quintic where σ and ρ are
+            // nearly linear, so it takes the quintic through B'' = σ ρσ + S (ρσ)' there.
+            hermite5(
+                t,
+                h,
+                [b0, s0 * ra0, g0 * ra0 + s0 * dra0],
+                [b1, s1 * ra1, g1 * ra1 + s1 * dra1],
+            )
+        };
         Point {
             s,
             ds,
@@ -1137,10 +1152,12 @@ impl Tables {
     /// Beyond end knot `e` by `x` volts: σ and ρ continue linearly with their end slopes
     /// (σ never falling away from the tables), and S, A, B are the exact integrals of the
     /// continued σ, ρσ and Sρσ, so values and first derivatives are continuous at the knot.
+    #[cold]
+    #[inline(never)]
     fn continuation(&self, e: usize, x: f64) -> Point {
-        let (g, g1) = (self.sigma[e], self.sigma_slope(e, x));
-        let (r, r1) = (self.rho[e], self.drho[e]);
-        let se = self.s[e];
+        let (g, g1) = (self.at[e].sigma, self.sigma_slope(e, x));
+        let (r, r1) = (self.at[e].rho, self.at[e].drho);
+        let se = self.at[e].s;
         // ρσ = c0 + c1 x + c2 x², S = se + g x + g1 x²/2.
         let (c0, c1, c2) = (r * g, r * g1 + r1 * g, r1 * g1);
         let s2 = 0.5 * g1;
@@ -1161,9 +1178,9 @@ impl Tables {
         Point {
             s: se + x * (g + s2 * x),
             ds: g + g1 * x,
-            a: self.a[e] + x * (c0 + x * (0.5 * c1 + x * c2 / 3.0)),
+            a: self.at[e].a + x * (c0 + x * (0.5 * c1 + x * c2 / 3.0)),
             da: c0 + x * (c1 + x * c2),
-            b: self.b[e] + b * x,
+            b: self.at[e].b + b * x,
             db,
         }
     }
@@ -1606,13 +1623,17 @@ impl SheetModel {
                 core_hi,
                 left_u,
                 right_u,
-                sigma,
-                dsigma,
-                rho,
-                drho,
-                s,
-                a,
-                b,
+                at: (0..m)
+                    .map(|k| KnotValues {
+                        sigma: sigma[k],
+                        dsigma: dsigma[k],
+                        rho: rho[k],
+                        drho: drho[k],
+                        s: s[k],
+                        a: a[k],
+                        b: b[k],
+                    })
+                    .collect(),
             },
         })
     }
