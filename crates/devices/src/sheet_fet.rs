@@ -75,8 +75,9 @@
 //! # Limits
 //! [`SheetFetCard::validate`] accepts each field within a stated numeric range (wide enough for
 //! any material); [`SheetModel::build`] either returns a model or a message, never panics, and
-//! bounds its work: every local Newton or bisection loop stops after 200 steps, and the build
-//! stops after 64 local evaluations per grid point on average. Whether a valid card is
+//! bounds its work: every local Newton or bisection loop stops after 200 steps, the core grid
+//! stops after 64 local evaluations per grid point on average, and each extension stops after
+//! 64 × 4 × [`MAX_EXTENSION_POINTS`] evaluations (where its valid range then ends). Whether a valid card is
 //! physically plausible (temperature outside [`TEMPERATURE_RANGE_K`], densities beyond what a
 //! monolayer holds, fields beyond an insulator's breakdown) is answered by
 //! [`crate::warnings::plausibility`].
@@ -796,13 +797,17 @@ fn solve_dirac(
         (delta + kt).min(0.5 * m_max)
     };
     let mut ok = false;
-    // ln(d(n - p)/dm) at the gap centre, for levels too close to it to take n - p directly.
-    let (ln_n0, dln_n0) = dirac_band_log_density(pre, kt, delta, 0.0);
-    let ln_slope0 = ln_n0 + (2.0 * dln_n0).ln();
+    // ln(d(n - p)/dm) at the gap centre, for levels too close to it to take n - p directly
+    // (computed when first needed).
+    let mut ln_slope0 = f64::NAN;
     for _ in 0..MAX_ITERATIONS {
         *work += 1;
         let (g, dg) = if m < 1e-6 * kt {
             // n - p is odd in m: 2 n'(0) m to 1e-12 relative here, and p/n would round to 1.
+            if ln_slope0.is_nan() {
+                let (ln_n0, dln_n0) = dirac_band_log_density(pre, kt, delta, 0.0);
+                ln_slope0 = ln_n0 + (2.0 * dln_n0).ln();
+            }
             (ln_slope0 + m.ln() - ln_t, 1.0 / m)
         } else {
             let (ln_n, dln_n) = dirac_band_log_density(pre, kt, delta, m);
