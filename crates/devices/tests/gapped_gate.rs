@@ -71,7 +71,7 @@ fn gate_density_and_quantum_capacitance_match_quadrature() {
             for k in -20..=20 {
                 let mu = 0.025 * k as f64 * Q;
                 let (ln_n, ln_dn) = band_by_quadrature(pre, kt, delta, mu);
-                let (ln_p, ln_dp) = band_by_quadrature(pre, kt, delta, -mu);
+                let (_, ln_dp) = band_by_quadrature(pre, kt, delta, -mu);
                 let at = format!("{t} K, Δ = {half_gap} eV, μ = {} eV", mu / Q);
                 let (lg, dlg) = dirac_band_log_density(pre, kt, delta, mu);
                 assert!((lg - ln_n).abs() < 1e-9, "{at}: ln n {lg} vs {ln_n}");
@@ -96,7 +96,6 @@ fn gate_density_and_quantum_capacitance_match_quadrature() {
                         "{at}: C_Q {cq:e} vs {cq_quad:e}"
                     );
                 }
-                let _ = ln_p;
             }
         }
     }

@@ -37,7 +37,7 @@ fn direct(card: &SheetFetCard, local: &dyn Fn(f64) -> (f64, f64), us: f64, ud: f
         r * s
     };
     let da = quad(rs, ud, us, 1e-12, rs(us) * (us - ud));
-    // Inner integral with Gauss-Legendre on a fine split (the integrand is smooth).
+    // S_s - S(u) by its own quadrature at every outer node.
     let inner = |u: f64| quad(sig, u, us, 1e-12, sig(us) * (us - u).max(1e-9));
     let qd = quad(
         |u| inner(u) * rs(u),
