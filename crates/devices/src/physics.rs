@@ -110,6 +110,34 @@ pub fn dirac_band_density(prefactor: f64, kt: f64, delta: f64, mu: f64) -> (f64,
     (n, dn)
 }
 
+/// `ln n` and `d ln n / dμ` (per joule) of one (gapped) Dirac band, the same density as
+/// [`dirac_band_density`] but free of underflow: for a level deep in the gap or below the band
+/// (`η = (μ - Δ)/kT` down to about -1e300), where `n` itself is below the smallest `f64`.
+///
+/// For `η <= 0` it writes `F0(η) = x g0(x)` and `F1(η) = x g1(x)` with `x = e^η`,
+/// `g0 = ln(1 + x)/x` and `g1 = -Li2(-x)/x` (both 1 at `x = 0`), so that
+/// `ln n = ln(g/(2π(ħv)²) kT) + η + ln(Δ g0 + kT g1)`.
+pub fn dirac_band_log_density(prefactor: f64, kt: f64, delta: f64, mu: f64) -> (f64, f64) {
+    let eta = (mu - delta) / kt;
+    if eta > 0.0 {
+        let (n, dn) = dirac_band_density(prefactor, kt, delta, mu);
+        return (n.ln(), dn / n);
+    }
+    let x = eta.exp();
+    // Below 1e-8 the next terms of the series (x²/3 and x²/9) are under the rounding unit.
+    let (g0, g1) = if x < 1e-8 {
+        (1.0 - 0.5 * x, 1.0 - 0.25 * x)
+    } else {
+        (x.ln_1p() / x, f1(eta) / x)
+    };
+    let w = delta * g0 + kt * g1;
+    // dn/dμ = g/(2π(ħv)²) x [Δ/(1 + x) + kT g0].
+    (
+        (prefactor * kt).ln() + eta + w.ln(),
+        (delta / (1.0 + x) + kt * g0) / (kt * w),
+    )
+}
+
 /// Net electron density `n - p` of a gapped Dirac sheet and its derivative `d(n - p)/dμ`;
 /// `q² d(n - p)/dμ` is its quantum capacitance.
 pub fn dirac_net_density(prefactor: f64, kt: f64, delta: f64, mu: f64) -> (f64, f64) {
