@@ -1894,7 +1894,9 @@ impl SheetFet {
             (q, q * 0.5)
         };
         let mut current = ds * (self.width / self.length);
-        if self.critical_field.is_finite() {
+        // A channel whose conductance underflowed end to end (cold and off) carries exactly no
+        // current; the velocity-saturation factor of it would be 0/0.
+        if self.critical_field.is_finite() && ds.v != 0.0 {
             current = current * self.saturation_factor(us, ud, ds);
         }
         Intrinsic {

@@ -142,6 +142,19 @@ pub fn plausibility(card: &SheetFetCard, max_gate_voltage: Option<f64>) -> Vec<I
          and dopants are taken as fully ionised; the model is meant for the -55 °C to 125 °C of \
          military-grade circuits (common practice)",
     );
+    if let Some(v) = max_gate_voltage {
+        // The tables reach U_REACH from midgap; past it the channel charge continues linearly
+        // (exact only for a degenerate channel under a metal gate). Half of it leaves room for
+        // the flat-band offset.
+        r.check(
+            "voltage",
+            v.abs(),
+            "V",
+            (0.0, 0.5 * crate::sheet_fet::U_REACH),
+            "beyond about ±1000 V between gate and channel the model's tables end and the \
+             channel charge is continued linearly, exact only for a fully degenerate channel",
+        );
+    }
     let sites = MONOLAYER_ATOMS_PER_CM2;
     for (name, v) in [
         ("donor_density", card.donor_density),

@@ -497,6 +497,16 @@ fn plausibility_flags_heat_dense_donors_and_a_field_beyond_breakdown() {
     // E = V / t for a single layer: 10 V / 1 nm = 1e10 V/m = 100 MV/cm.
     assert!((w.value / 100.0 - 1.0).abs() < 1e-12, "{w}");
     assert!((w.high / 10.0 - 1.0).abs() < 1e-12, "{w}");
+
+    // A back gate swept to 600 V on a micrometre of oxide: below breakdown, but past where the
+    // tables end (U_REACH from midgap, with room for the flat-band offset).
+    let thick = SheetFetCard {
+        insulator: vec![materials::insulator_layer("SiO2", None, Some(1e-6)).unwrap()],
+        ..mos2_on_hbn()
+    };
+    assert!(plausibility(&thick, Some(100.0)).is_empty());
+    let w = only(&plausibility(&thick, Some(600.0))).clone();
+    assert_eq!((w.parameter, w.unit, w.value), ("voltage", "V", 600.0));
 }
 
 /// The library's MoS2 on ten layers of hBN at 300 K with 1 V on the gate (3 MV/cm, a quarter
@@ -541,20 +551,27 @@ fn insulator_fields_divide_as_series_capacitors() {
 /// exp(-E_g / 2kT) is far below the smallest double.
 #[test]
 fn cold_off_devices_have_finite_charges() {
-    let fet = SheetFet::new(&SheetFetCard {
-        temperature: 4.0,
-        ..SheetFetCard::default()
-    })
-    .unwrap();
-    for (vd, vg) in [(0.5, 0.0), (1e-9, 0.0), (0.5, -0.3), (0.0, 0.0)] {
-        let i = fet.intrinsic(vd, vg, 0.0);
-        for q in [i.q_gate, i.q_drain, i.q_source] {
+    for saturation_velocity in [0.0, 3.4e4] {
+        let fet = SheetFet::new(&SheetFetCard {
+            temperature: 4.0,
+            saturation_velocity,
+            ..SheetFetCard::default()
+        })
+        .unwrap();
+        for (vd, vg) in [(0.5, 0.0), (1e-9, 0.0), (0.5, -0.3), (0.0, 0.0)] {
+            let i = fet.intrinsic(vd, vg, 0.0);
             assert!(
-                q.v.is_finite() && q.d.iter().all(|d| d.is_finite()),
-                "vd {vd}, vg {vg}: {i:?}"
+                i.current.v.is_finite() && i.current.d.iter().all(|d| d.is_finite()),
+                "current at vd {vd}, vg {vg}: {i:?}"
             );
+            for q in [i.q_gate, i.q_drain, i.q_source] {
+                assert!(
+                    q.v.is_finite() && q.d.iter().all(|d| d.is_finite()),
+                    "vd {vd}, vg {vg}: {i:?}"
+                );
+            }
+            let total = i.q_gate.v + i.q_drain.v + i.q_source.v;
+            assert!(total.abs() <= 1e-9 * i.q_gate.v.abs().max(1e-30), "{i:?}");
         }
-        let total = i.q_gate.v + i.q_drain.v + i.q_source.v;
-        assert!(total.abs() <= 1e-9 * i.q_gate.v.abs().max(1e-30), "{i:?}");
     }
 }
