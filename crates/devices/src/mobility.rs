@@ -33,10 +33,34 @@
 //! rule, `1/μ = 1/μ_L + 1/μ_I` (common practice): the scattering rates of independent
 //! mechanisms add.
 //!
-//! The mobility is one number per carrier for the whole device: it does not depend on the
-//! carrier density or the field along the channel (velocity saturation is the card's
-//! Caughey-Thomas factor). A density-dependent mobility would change the tabulated
-//! conductance and is left out.
+//! # Density dependence (optional)
+//! Without further options the mobility is one number per carrier for the whole device. With
+//! a reference density `n_ref` (and an exponent `α`, default 1) the carrier's mobility `μ_0`
+//! obtained above becomes a function of its own sheet density `n` at each point of the
+//! channel:
+//!
+//! ```text
+//! μ(n) = μ_0 / (1 + (n_ref / n)^α),   i.e.   1/μ(n) = 1/μ_0 + 1/μ_C(n),  μ_C(n) = μ_0 (n / n_ref)^α
+//! ```
+//!
+//! a Coulomb (charged-impurity) limited term that rises as a power of the density, because
+//! the carriers screen the impurities better the more of them there are, combined with `μ_0`
+//! by Matthiessen's rule. Z. Yu, Z.-Y. Ong, Y. Pan, Y. Cui, R. Xin, Y. Shi, B. Wang, Y. Wu,
+//! T. Chen, Y.-W. Zhang, G. Zhang, X. Wang, "Realization of Room-Temperature Phonon-Limited
+//! Carrier Transport in Monolayer MoS2 by Dielectric and Carrier Screening", Adv. Mater. 28,
+//! 547 (2016), separate the mobility of monolayer MoS2 transistors this way into phonon- and
+//! Coulomb-impurity-limited parts and study the latter's scaling with carrier density (the
+//! paper and its subject found; the power-law form of that scaling, `μ_C ∝ n^α` with `α` of
+//! order one, is recalled, not checked). The form is empirical: `n_ref` is the density at
+//! which the Coulomb term halves the mobility and `α` how steeply it lifts off; both are
+//! fitted to a measured `μ(n)`, not derived from the stack.
+//!
+//! Limits (closed form): `μ → μ_0 (1 - (n_ref/n)^α)` far above `n_ref`, `μ → μ_0 (n/n_ref)^α`
+//! far below it, `μ_0 / 2` at `n = n_ref`. The density dependence enters the tabulated
+//! conductance `σ = q (μ_n(n) n + μ_p(p) p)` ([`DensityDependence::conductance_density`]), so
+//! the charge-sheet integrals stay integrals of `σ`; the velocity-saturation field
+//! `v_sat / max(μ_n, μ_p)` keeps the high-density `μ_0`. The mobility does not depend on the
+//! field along the channel other than through the card's Caughey-Thomas factor.
 //!
 //! [`crate::SheetFet::new`] resolves the options once ([`resolve`]) and builds its tables
 //! from the resulting mobilities; [`crate::SheetModel::build`] takes the card's
@@ -70,6 +94,35 @@ pub struct CarrierOptions {
     pub transport_mass: Option<f64>,
     /// Impurity- or interface-limited mobility (m²/(V s)), combined by Matthiessen's rule.
     pub impurity_mobility: Option<f64>,
+    /// Optional dependence of the mobility on the carrier's own sheet density.
+    pub density: Option<DensityDependence>,
+}
+
+/// The density dependence `μ(n) = μ_0 / (1 + (n_ref / n)^α)` of one carrier's mobility (see
+/// the module docs for the form and its source).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct DensityDependence {
+    /// `n_ref` (1/m²): the density at which the mobility is half of `μ_0`.
+    pub reference_density: f64,
+    /// `α`.
+    pub exponent: f64,
+}
+
+impl DensityDependence {
+    /// `μ(n) / μ_0 = s / (1 + s)` with `s = (n / n_ref)^α` (0 at `n = 0`).
+    pub fn factor(&self, n: f64) -> f64 {
+        let s = (n / self.reference_density).powf(self.exponent);
+        s / (1.0 + s)
+    }
+
+    /// `n μ(n) / μ_0` and its derivative in `n`, `f (1 + α / (1 + s))` with `f` the
+    /// [`factor`](Self::factor): what the conductance uses in place of `n` and `1`. Finite
+    /// for every finite `n >= 0`.
+    pub fn conductance_density(&self, n: f64) -> (f64, f64) {
+        let s = (n / self.reference_density).powf(self.exponent);
+        let f = s / (1.0 + s);
+        (n * f, f * (1.0 + self.exponent / (1.0 + s)))
+    }
 }
 
 /// How the card's mobilities are obtained (the default: as given).
@@ -127,6 +180,8 @@ pub struct CarrierMobility {
     pub source: LatticeSource,
     /// The impurity-limited part combined by Matthiessen's rule, if any (m²/(V s)).
     pub impurity: Option<f64>,
+    /// The density dependence that scales `mobility` along the channel, if any.
+    pub density: Option<DensityDependence>,
 }
 
 /// The electron and hole mobilities a device uses, and how they were obtained.
@@ -173,6 +228,8 @@ struct Names {
     deformation: &'static str,
     transport_mass: &'static str,
     impurity: &'static str,
+    density_reference: &'static str,
+    density_exponent: &'static str,
 }
 
 const ELECTRON: Names = Names {
@@ -182,6 +239,8 @@ const ELECTRON: Names = Names {
     deformation: "electron_deformation_potential",
     transport_mass: "electron_mass_along",
     impurity: "electron_impurity_mobility",
+    density_reference: "electron_mobility_density_reference",
+    density_exponent: "electron_mobility_density_exponent",
 };
 
 const HOLE: Names = Names {
@@ -191,6 +250,8 @@ const HOLE: Names = Names {
     deformation: "hole_deformation_potential",
     transport_mass: "hole_mass_along",
     impurity: "hole_impurity_mobility",
+    density_reference: "hole_mobility_density_reference",
+    density_exponent: "hole_mobility_density_exponent",
 };
 
 /// Checks one carrier's options and resolves its mobility.
@@ -212,6 +273,16 @@ fn carrier(
     }
     if let Some(mi) = o.impurity_mobility {
         in_range(names.impurity, mi, 1e-12, 1e3, "m²/(V s)")?;
+    }
+    if let Some(d) = o.density {
+        in_range(
+            names.density_reference,
+            d.reference_density,
+            1e4,
+            1e20,
+            "1/m²",
+        )?;
+        in_range(names.density_exponent, d.exponent, 0.1, 4.0, "")?;
     }
     let (lattice, source) = match m.model {
         LatticeModel::PowerLaw => match m.reference_temperature {
@@ -264,6 +335,7 @@ fn carrier(
         lattice,
         source,
         impurity: o.impurity_mobility,
+        density: o.density,
     })
 }
 
@@ -273,8 +345,9 @@ fn carrier(
 /// Accepted (beyond the card's own checks): reference temperature in [1, 1e4] K, exponents in
 /// [-10, 10], deformation potentials in (0, 1e3] eV, the elastic modulus in (0, 1e5] N/m,
 /// transport masses in [1e-4, 1e4] electron masses, impurity mobilities and the resulting
-/// mobilities in [1e-12, 1e3] m²/(V s). The acoustic-phonon model needs both deformation
-/// potentials and the elastic modulus.
+/// mobilities in [1e-12, 1e3] m²/(V s), density-dependence reference densities in [1e4, 1e20]
+/// 1/m² (1e0 to 1e16 /cm²) and their exponents in [0.1, 4]. The acoustic-phonon model needs
+/// both deformation potentials and the elastic modulus.
 pub fn resolve(card: &SheetFetCard) -> Result<MobilityReport, String> {
     let m = &card.mobility;
     if let Some(t_ref) = m.reference_temperature {
@@ -304,14 +377,23 @@ pub fn resolve(card: &SheetFetCard) -> Result<MobilityReport, String> {
 
 impl SheetFetCard {
     /// The card with its mobility options resolved: `electron_mobility` and `hole_mobility`
-    /// set to the mobilities used at its temperature and the options cleared, so that
-    /// [`crate::SheetModel::build`] sees the same mobilities as [`crate::SheetFet::new`].
+    /// set to the mobilities used at its temperature and the options cleared except the
+    /// density dependences (which the tables apply), so that [`crate::SheetModel::build`]
+    /// sees the same mobilities as [`crate::SheetFet::new`].
     pub fn with_resolved_mobility(&self) -> Result<SheetFetCard, String> {
         let r = resolve(self)?;
+        let keep = |o: &CarrierOptions| CarrierOptions {
+            density: o.density,
+            ..CarrierOptions::default()
+        };
         Ok(SheetFetCard {
             electron_mobility: r.electron.mobility,
             hole_mobility: r.hole.mobility,
-            mobility: MobilityOptions::default(),
+            mobility: MobilityOptions {
+                electron: keep(&self.mobility.electron),
+                hole: keep(&self.mobility.hole),
+                ..MobilityOptions::default()
+            },
             ..self.clone()
         })
     }
@@ -349,6 +431,15 @@ impl fmt::Display for CarrierMobility {
                 cm2(mi)
             ),
             None => write!(f, " ({lattice})"),
+        }?;
+        match self.density {
+            Some(d) => write!(
+                f,
+                " at high density, scaled by 1/(1 + ({:e} cm⁻² / n)^{})",
+                d.reference_density * 1e-4,
+                d.exponent
+            ),
+            None => Ok(()),
         }
     }
 }

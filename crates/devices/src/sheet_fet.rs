@@ -22,9 +22,10 @@
 //! at any temperature) is found to 1e-12 of the target density. The channel and gate quantum
 //! capacitances are `q d(n - p)/dξ` and `q² d(n_g - p_g)/dμ_g`.
 //!
-//! # Current and charges (constant mobility)
+//! # Current and charges
 //! With sheet conductance `σ(u) = q (μ_n n + μ_p p)` (one quasi-Fermi level for both carriers,
-//! so ambipolar channels work) current continuity gives the charge-sheet result (H. C. Pao and
+//! so ambipolar channels work; each mobility constant or, optionally, a function of its
+//! carrier's density, [`crate::mobility`], with `dσ/du` by the chain rule) current continuity gives the charge-sheet result (H. C. Pao and
 //! C. T. Sah, Solid-State Electron. 9, 927, 1966; J. R. Brews, Solid-State Electron. 21, 345,
 //! 1978): `I_D = (W/L) [S(u_s) - S(u_d)]` with `S = ∫ σ du`. The position along the channel is
 //! `x/L = (S(u_s) - S(u)) / ΔS`, and the Ward-Dutton partition (D. E. Ward and R. W. Dutton,
@@ -91,13 +92,14 @@
 //! `|V_DS|` at low bias and saturates with the current, so the output conductance stays
 //! positive, for n and p channels alike. Contact resistances (Ω·m, divided by the width) are real resistors to
 //! internal drain and source nodes. Overlap or fringe capacitance per width adds linear
-//! gate-drain and gate-source charges. The intrinsic charges keep the constant-mobility profile.
+//! gate-drain and gate-source charges. The intrinsic charges follow the conductance profile
+//! (with a density-dependent mobility too, since `A` and `B` are integrals of `σ`).
 //!
 //! This is a model estimate: check it against measurement and your process before basing a
 //! design decision on it.
 
 use crate::dual::D3;
-use crate::mobility::{MobilityOptions, MobilityReport};
+use crate::mobility::{DensityDependence, MobilityOptions, MobilityReport};
 use crate::physics::{
     dirac_band_log_density, dirac_net_density, dirac_prefactor, parabolic_density, parabolic_dos,
     EPS0, K_B, Q,
@@ -579,6 +581,8 @@ struct Stack {
     trap_level: f64,
     mu_n: f64,
     mu_p: f64,
+    density_n: Option<DensityDependence>,
+    density_p: Option<DensityDependence>,
     offset: f64,
     dirac: Option<(f64, f64, f64, f64)>,
 }
@@ -624,6 +628,8 @@ impl Stack {
             trap_level: card.trap_neutral_level,
             mu_n: card.electron_mobility,
             mu_p: card.hole_mobility,
+            density_n: card.mobility.electron.density,
+            density_p: card.mobility.hole.density,
             offset,
             dirac,
         }
@@ -674,8 +680,16 @@ impl Stack {
                 )
             }
         };
-        let sigma = Q * (self.mu_n * n + self.mu_p * p);
-        let dsigma_dxi = Q * (self.mu_n * dn_dxi + self.mu_p * dp_dxi);
+        // Without a density dependence `n` and `1` stand in unchanged, so such cards keep
+        // their conductance bit for bit.
+        let weigh = |d: Option<DensityDependence>, x: f64| match d {
+            None => (x, 1.0),
+            Some(d) => d.conductance_density(x),
+        };
+        let (gn, dgn) = weigh(self.density_n, n);
+        let (gp, dgp) = weigh(self.density_p, p);
+        let sigma = Q * (self.mu_n * gn + self.mu_p * gp);
+        let dsigma_dxi = Q * (self.mu_n * (dgn * dn_dxi) + self.mu_p * (dgp * dp_dxi));
         let state = LocalState {
             u,
             xi,
