@@ -2,7 +2,7 @@
 //! dimension each must have) and how to build the engine's element from them.
 
 use crate::units::Dim;
-use lamina_devices::mobility::LatticeModel;
+use lamina_devices::mobility::{DensityDependence, LatticeModel};
 use lamina_devices::{
     materials, Gate, Layer, Polarity, SecondValley, SheetFet, SheetFetCard, SquareLawFet,
 };
@@ -353,6 +353,10 @@ static SHEET_PARAMS: &[ParamSpec] = &[
     maybe("elastic_modulus", Dim::ENERGY_PER_AREA),
     maybe("electron_impurity_mobility", MOBILITY),
     maybe("hole_impurity_mobility", MOBILITY),
+    maybe("electron_mobility_density_reference", PER_AREA),
+    maybe("hole_mobility_density_reference", PER_AREA),
+    maybe("electron_mobility_density_exponent", Dim::NONE),
+    maybe("hole_mobility_density_exponent", Dim::NONE),
 ];
 
 /// The values `mobility_model` takes.
@@ -420,6 +424,21 @@ fn mobility_consistency(v: &Values) -> Result<(), BuildError> {
             "`transport_direction` is given without an anisotropic library `channel`",
             "add `channel = BP`, say, or give `electron_mass_along` and `electron_mass_across` (and the hole masses) instead",
         ));
+    }
+    for carrier in ["electron", "hole"] {
+        let exponent = format!("{carrier}_mobility_density_exponent");
+        let reference = format!("{carrier}_mobility_density_reference");
+        if v.get(p, &exponent).is_some() && v.get(p, &reference).is_none() {
+            return Err(BuildError::at(
+                &exponent,
+                format!(
+                    "`{exponent}` has no effect without `{reference}`: the mobility then does not depend on the density"
+                ),
+                format!(
+                    "add `{reference}` (the density at which the mobility is half its high-density value), or remove it"
+                ),
+            ));
+        }
     }
     match mobility_model(v)? {
         LatticeModel::AcousticPhonon => {
@@ -672,6 +691,19 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, BuildError> {
         &mut card.mobility.hole.impurity_mobility,
         v.get(p, "hole_impurity_mobility"),
     );
+    // The density dependence's exponent defaults to 1 (a Coulomb-limited mobility that
+    // rises in proportion to the density).
+    let density = |carrier: &str| {
+        v.get(p, &format!("{carrier}_mobility_density_reference"))
+            .map(|reference_density| DensityDependence {
+                reference_density,
+                exponent: v
+                    .get(p, &format!("{carrier}_mobility_density_exponent"))
+                    .unwrap_or(1.0),
+            })
+    };
+    card.mobility.electron.density = density("electron");
+    card.mobility.hole.density = density("hole");
     set(
         &mut card.electron_degeneracy,
         v.get(p, "electron_degeneracy"),

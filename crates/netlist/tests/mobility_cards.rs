@@ -223,3 +223,68 @@ fn circuit_file_settings_take_their_units() {
     let bad = good.replace("2.72 eV", "2.72");
     assert!(load_source("bp.lam", &bad, &LoadOptions::default()).is_err());
 }
+
+/// The density dependence of the mobility (Z. Yu et al., Adv. Mater. 28, 547 (2016); see
+/// `lamina_devices::mobility`): a reference density sets it with exponent 1 unless one is
+/// given, per carrier; an exponent alone, or out of range, is refused naming it; a reference
+/// density in /cm² arrives in /m²; and a card without the keys has no density dependence.
+#[test]
+fn density_dependence_settings_reach_the_card() {
+    let c = card(&[("electron_mobility_density_reference", 3e16)], &[]).unwrap();
+    let d = c.mobility.electron.density.unwrap();
+    assert_eq!((d.reference_density, d.exponent), (3e16, 1.0));
+    assert_eq!(c.mobility.hole.density, None);
+    let c = card(
+        &[
+            ("hole_mobility_density_reference", 1e16),
+            ("hole_mobility_density_exponent", 1.5),
+        ],
+        &[],
+    )
+    .unwrap();
+    let d = c.mobility.hole.density.unwrap();
+    assert_eq!((d.reference_density, d.exponent), (1e16, 1.5));
+    assert_eq!(c.mobility.electron.density, None);
+    c.validate().unwrap();
+    let plain = card(&[], &[]).unwrap();
+    assert_eq!(plain.mobility.electron.density, None);
+    assert_eq!(plain.mobility.hole.density, None);
+    refused_at(
+        &[("electron_mobility_density_exponent", 1.3)],
+        &[],
+        "electron_mobility_density_exponent",
+    );
+    refused_at(
+        &[("hole_mobility_density_exponent", 1.3)],
+        &[],
+        "hole_mobility_density_exponent",
+    );
+    // Out of range: the device model's check, located at the setting.
+    for (name, x) in [
+        ("electron_mobility_density_reference", -1.0),
+        ("hole_mobility_density_reference", 1e30),
+    ] {
+        refused_at(&[(name, x)], &[], name);
+    }
+    refused_at(
+        &[
+            ("electron_mobility_density_reference", 3e16),
+            ("electron_mobility_density_exponent", 0.0),
+        ],
+        &[],
+        "electron_mobility_density_exponent",
+    );
+    let text = "device n2d : sheet_fet {\n    channel = MoS2, insulator = hBN, \
+        insulator_layers = 10\n    electron_mobility_density_reference = 3e12 /cm^2\n}\n\
+        voltage_source vg (pos = g, neg = ground) { dc = 0.8 V }\n\
+        voltage_source vd (pos = d, neg = ground) { dc = 0.5 V }\n\
+        n2d m1 (drain = d, gate = g, source = ground)\n";
+    load_source("n.lam", text, &LoadOptions::default()).unwrap();
+    let bad = text.replace("3e12 /cm^2", "3e12 V");
+    assert!(load_source("n.lam", &bad, &LoadOptions::default()).is_err());
+    let bad = text.replace(
+        "3e12 /cm^2",
+        "3e12 /cm^2, electron_mobility_density_exponent = 9",
+    );
+    assert!(load_source("n.lam", &bad, &LoadOptions::default()).is_err());
+}
