@@ -122,6 +122,11 @@ fn tabulated_conductance_follows_the_density_form() {
 fn drain_current_scales_by_the_density_factor() {
     let plain = SheetFet::new(&card_with(None, None)).unwrap();
     let dep = SheetFet::new(&card_with(Some(ELECTRONS), None)).unwrap();
+    let report = dep.mobility_report().to_string();
+    assert!(
+        report.contains("scaled by 1/(1 + (3e12 cm⁻² / n)^1.3)"),
+        "{report}"
+    );
     let vd = 1e-3;
     let mut last = 0.0;
     let mut worst: f64 = 0.0;
