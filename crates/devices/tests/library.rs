@@ -6,7 +6,7 @@ use lamina_devices::materials::{
     apply_channel, band_gap_at, channels, insulator_layer, insulators, optical_gap,
     permittivity_range, source, LIBRARY_TEMPERATURE_K,
 };
-use lamina_devices::{SecondValley, SheetFetCard};
+use lamina_devices::{ExtraValley, SheetFetCard};
 
 /// kT/q at 300 K (V), from the CODATA 2018 k_B and q (common practice).
 const KT_300: f64 = 1.380649e-23 * 300.0 / 1.602176634e-19;
@@ -68,20 +68,21 @@ fn ionisation(channel: &str) -> f64 {
 }
 
 /// Every channel carries both spin-split conduction bands at K: the lower as the channel's
-/// own band (spin and valley degeneracy 2) and the upper as the second valley, a few kT up at
+/// own band (spin and valley degeneracy 2) and the upper as the first extra valley, a few kT up at
 /// most. In the W compounds the lower band is the spin-forbidden, heavier one, tens of meV
 /// below the other.
 #[test]
 fn both_spin_split_conduction_bands_are_present() {
     for c in dichalcogenides() {
         let k = card(&c);
-        let SecondValley {
+        let ExtraValley {
             offset,
             mass,
             degeneracy,
-        } = k
-            .second_valley
-            .unwrap_or_else(|| panic!("{c} has no second valley"));
+        } = *k
+            .extra_valleys
+            .first()
+            .unwrap_or_else(|| panic!("{c} has no extra valley"));
         assert_eq!(k.electron_degeneracy, 2.0, "{c}");
         assert_eq!(degeneracy, 2.0, "{c}");
         assert!(
@@ -98,7 +99,7 @@ fn both_spin_split_conduction_bands_are_present() {
     }
     for c in ["WS2", "WSe2"] {
         let k = card(c);
-        let v = k.second_valley.unwrap();
+        let v = k.extra_valleys[0];
         assert!(v.offset >= 0.02, "{c}: {} eV", v.offset);
         assert!(
             k.electron_mass > v.mass,
@@ -107,20 +108,22 @@ fn both_spin_split_conduction_bands_are_present() {
     }
 }
 
-/// A card built from the library without a second valley has none: building a channel over a
-/// card that had one replaces it with the library's.
+/// Building a channel over a card that had extra valleys replaces them all with the
+/// library's.
 #[test]
-fn applying_a_channel_replaces_the_second_valley() {
+fn applying_a_channel_replaces_the_extra_valleys() {
+    let other = ExtraValley {
+        offset: 0.5,
+        mass: 9.0,
+        degeneracy: 7.0,
+    };
     let mut k = SheetFetCard {
-        second_valley: Some(SecondValley {
-            offset: 0.5,
-            mass: 9.0,
-            degeneracy: 7.0,
-        }),
+        extra_valleys: vec![other; 3],
         ..SheetFetCard::default()
     };
     apply_channel(&mut k, "WSe2").unwrap();
-    let v = k.second_valley.unwrap();
+    assert_eq!(k.extra_valleys.len(), 1);
+    let v = k.extra_valleys[0];
     assert_eq!((v.offset, v.mass, v.degeneracy), (0.037, 0.28, 2.0));
 }
 
