@@ -3,9 +3,10 @@
 //! (values and their sources are in `data/materials.json`).
 
 use lamina_devices::materials::{
-    apply_channel, band_gap_at, channels, insulator_layer, insulators, optical_gap,
-    permittivity_range, source, LIBRARY_TEMPERATURE_K,
+    apply_channel, apply_channel_along, band_gap_at, channels, insulator_layer, insulators,
+    optical_gap, permittivity_range, source, transport_directions, LIBRARY_TEMPERATURE_K,
 };
+use lamina_devices::sheet_fet::{valley_key, MAX_EXTRA_VALLEYS};
 use lamina_devices::{ExtraValley, SheetFetCard};
 
 /// kT/q at 300 K (V), from the CODATA 2018 k_B and q (common practice).
@@ -105,6 +106,44 @@ fn both_spin_split_conduction_bands_are_present() {
             k.electron_mass > v.mass,
             "{c}: the lower (dark) band should be the heavier"
         );
+    }
+}
+
+/// The library's extra valleys come as complete, sourced triples of keys (`valley_` then
+/// `valley2_`, ...), a card built from an entry holds exactly those, and an entry without a
+/// second extra valley says why the Q (Lambda) valleys are absent.
+#[test]
+fn extra_valleys_are_complete_sourced_and_explained() {
+    for c in channels() {
+        let mut k = SheetFetCard::default();
+        let direction = transport_directions(&c).unwrap().first().cloned();
+        apply_channel_along(&mut k, &c, direction.as_deref()).unwrap();
+        let mut complete = 0;
+        for i in 0..MAX_EXTRA_VALLEYS {
+            let notes: Vec<_> = ["offset", "mass", "degeneracy"]
+                .iter()
+                .map(|w| source("channels", &c, &valley_key(i, w)))
+                .collect();
+            let given = notes.iter().filter(|n| n.is_some()).count();
+            assert!(
+                given == 0 || given == 3,
+                "{c}: valley {} has {given} of 3 keys",
+                i + 1
+            );
+            if given == 3 {
+                assert_eq!(complete, i, "{c}: valley {} follows a gap", i + 1);
+                assert!(notes.iter().all(|n| n.is_some_and(|n| n.len() > 20)), "{c}");
+                complete += 1;
+            }
+        }
+        assert_eq!(k.extra_valleys.len(), complete, "{c}");
+        if c != "BP" && complete < 2 {
+            let note = source("channels", &c, "valley_offset").unwrap();
+            assert!(
+                note.contains("Q (Lambda)") && note.contains("valley2_"),
+                "{c}: {note}"
+            );
+        }
     }
 }
 
