@@ -36,5 +36,5 @@ pub mod sheet_fet;
 mod square_law;
 pub mod warnings;
 
-pub use sheet_fet::{Gate, Layer, SecondValley, SheetFet, SheetFetCard, SheetModel};
+pub use sheet_fet::{ExtraValley, Gate, Layer, SheetFet, SheetFetCard, SheetModel};
 pub use square_law::{Polarity, SquareLawFet};

@@ -2,7 +2,7 @@
 //! values, read from `data/materials.json` (compiled into the binary). Every value carries its
 //! source in the file; any value can be overridden in a device card.
 
-use crate::sheet_fet::{Gate, Layer, SecondValley, SheetFetCard};
+use crate::sheet_fet::{valley_key, ExtraValley, Gate, Layer, SheetFetCard, MAX_EXTRA_VALLEYS};
 use serde_json::Value;
 use std::sync::OnceLock;
 
@@ -219,17 +219,21 @@ fn apply_entry(
     card.hole_degeneracy = number(e, "hole_degeneracy", name)?;
     card.band_gap = number(e, "band_gap", name)?;
     card.electron_affinity = number(e, "electron_affinity", name)?;
-    // A second conduction valley (the other spin-split band, or another valley) where the
-    // library has one; all three keys or none.
-    card.second_valley = if e["valley_offset"].is_null() {
-        None
-    } else {
-        Some(SecondValley {
-            offset: number(e, "valley_offset", name)?,
-            mass: number(e, "valley_mass", name)?,
-            degeneracy: number(e, "valley_degeneracy", name)?,
-        })
-    };
+    // Extra conduction valleys (the other spin-split band, the Q valleys) where the library
+    // has them, in key order (`valley_`, `valley2_`, ...); each with all three keys or none,
+    // and a later one only after an earlier one.
+    card.extra_valleys.clear();
+    for i in 0..MAX_EXTRA_VALLEYS {
+        let key = |what: &str| valley_key(i, what);
+        if e[key("offset").as_str()].is_null() {
+            break;
+        }
+        card.extra_valleys.push(ExtraValley {
+            offset: number(e, &key("offset"), name)?,
+            mass: number(e, &key("mass"), name)?,
+            degeneracy: number(e, &key("degeneracy"), name)?,
+        });
+    }
     let m = &mut card.mobility;
     if let Some(g) = optional(e, "electron_mobility_exponent", direction) {
         m.electron.exponent = g;

@@ -4,7 +4,8 @@
 //! # Electrostatics (one local variable)
 //! At a point of the channel let `V` be the carriers' quasi-Fermi potential and `u = V_G - V`.
 //! With `ξ = (E_F - E_c)/q` the channel's degeneracy, the sheet densities are exact:
-//! `n = N_c F0(ξ/V_T) (+ a second valley)`, `p = N_v F0(-(ξ + E_g/q)/V_T)` with
+//! `n = N_c F0(ξ/V_T) + Σ_i N_i F0((ξ - Δ_i/q)/V_T)` (the extra conduction valleys `i`, each
+//! `Δ_i` above the band edge), `p = N_v F0(-(ξ + E_g/q)/V_T)` with
 //! `N = D kT`, `D = g m / (2π ħ²)`. The local charges per area are the mobile charge
 //! `q (p - n)`, the trap charge `-q D_it (ξ + E_c - E_N)` (constant trap density per energy, so
 //! the occupancy integral is exact and linear in the Fermi level), the ionised dopants
@@ -146,9 +147,22 @@ pub struct Layer {
     pub breakdown_field: Option<f64>,
 }
 
-/// A second conduction valley above the first.
+/// The most extra conduction valleys a card may hold ([`SheetFetCard::extra_valleys`]): the
+/// other spin-split band at K and the Q (Λ) valleys leave room to spare.
+pub const MAX_EXTRA_VALLEYS: usize = 4;
+
+/// The card key of extra valley `index` (from 0): `valley_mass` for the first,
+/// `valley2_mass` for the second, and so on.
+pub fn valley_key(index: usize, what: &str) -> String {
+    match index {
+        0 => format!("valley_{what}"),
+        i => format!("valley{}_{what}", i + 1),
+    }
+}
+
+/// A conduction valley above the band edge, besides the lowest one.
 #[derive(Clone, Copy, Debug, PartialEq)]
-pub struct SecondValley {
+pub struct ExtraValley {
     /// Energy above the conduction band edge (eV).
     pub offset: f64,
     /// Effective mass (electron masses).
@@ -180,8 +194,9 @@ pub struct SheetFetCard {
     pub donor_density: f64,
     /// Ionised acceptors (1/m²).
     pub acceptor_density: f64,
-    /// Optional second conduction valley.
-    pub second_valley: Option<SecondValley>,
+    /// Extra conduction valleys above the band edge (at most [`MAX_EXTRA_VALLEYS`]), each
+    /// adding its own parabolic density of states; empty for none.
+    pub extra_valleys: Vec<ExtraValley>,
     /// Interface trap density (1/(eV m²)).
     pub trap_density: f64,
     /// Trap neutrality level below the conduction band edge (eV).
@@ -233,7 +248,7 @@ impl Default for SheetFetCard {
             electron_affinity: 4.0,
             donor_density: 0.0,
             acceptor_density: 0.0,
-            second_valley: None,
+            extra_valleys: Vec::new(),
             trap_density: 0.0,
             trap_neutral_level: 0.9,
             fixed_charge_density: 0.0,
@@ -345,11 +360,12 @@ impl SheetFetCard {
     /// | insulator permittivity | [1, 1e5] (no static permittivity is below vacuum's) |
     /// | insulator thickness | [1e-12, 1e-2] m |
     /// | insulator breakdown field | none, or (0, 1e12] V/m |
-    /// | masses (electron, hole, second valley) | [1e-4, 1e4] electron masses |
+    /// | masses (electron, hole, extra valleys) | [1e-4, 1e4] electron masses |
     /// | degeneracies (channel, valley, gate) | [1e-3, 1e3] |
     /// | band gap | (0, 20] eV |
     /// | electron affinity, trap level, work functions | [-20, 20] eV |
-    /// | second valley offset, gate half gap | [0, 20] eV |
+    /// | extra valley offsets, gate half gap | [0, 20] eV |
+    /// | extra valleys | at most [`MAX_EXTRA_VALLEYS`] |
     /// | donor, acceptor densities | [0, 1e21] 1/m² |
     /// | fixed charge, gate residual density | [-1e21, 1e21] 1/m² |
     /// | trap density | [0, 1e22] 1/(eV m²) |
@@ -464,10 +480,17 @@ impl SheetFetCard {
             1.0,
             "F/m",
         )?;
-        if let Some(v) = &self.second_valley {
-            in_range("second valley mass", v.mass, 1e-4, 1e4, "electron masses")?;
-            in_range("second valley degeneracy", v.degeneracy, 1e-3, 1e3, "")?;
-            in_range("second valley offset", v.offset, 0.0, 20.0, "eV")?;
+        if self.extra_valleys.len() > MAX_EXTRA_VALLEYS {
+            return Err(format!(
+                "{} extra conduction valleys given, at most {MAX_EXTRA_VALLEYS} are supported",
+                self.extra_valleys.len()
+            ));
+        }
+        for (i, v) in self.extra_valleys.iter().enumerate() {
+            let key = |what: &str| valley_key(i, what);
+            in_range(&key("mass"), v.mass, 1e-4, 1e4, "electron masses")?;
+            in_range(&key("degeneracy"), v.degeneracy, 1e-3, 1e3, "")?;
+            in_range(&key("offset"), v.offset, 0.0, 20.0, "eV")?;
         }
         match &self.gate {
             Gate::Metal { work_function } => {
@@ -574,7 +597,8 @@ struct Stack {
     c_ins: f64,
     dos_e: f64,
     dos_h: f64,
-    valley: Option<(f64, f64)>,
+    /// Each extra valley's density-of-states prefactor (1/(J m²)) and offset (J).
+    valleys: Vec<(f64, f64)>,
     gap: f64,
     q_const: f64,
     trap_c: f64,
@@ -619,9 +643,11 @@ impl Stack {
             c_ins: card.insulator_capacitance(),
             dos_e: parabolic_dos(card.electron_mass, card.electron_degeneracy),
             dos_h: parabolic_dos(card.hole_mass, card.hole_degeneracy),
-            valley: card
-                .second_valley
-                .map(|v| (parabolic_dos(v.mass, v.degeneracy), v.offset * Q)),
+            valleys: card
+                .extra_valleys
+                .iter()
+                .map(|v| (parabolic_dos(v.mass, v.degeneracy), v.offset * Q))
+                .collect(),
             gap: card.band_gap * Q,
             q_const: Q * (card.donor_density - card.acceptor_density + card.fixed_charge_density),
             trap_c: Q * card.trap_density,
@@ -642,7 +668,7 @@ impl Stack {
         *work += 1;
         let e = Q * xi;
         let (mut n, mut dn) = parabolic_density(self.dos_e, self.kt, e);
-        if let Some((dos, off)) = self.valley {
+        for &(dos, off) in &self.valleys {
             let (n2, dn2) = parabolic_density(dos, self.kt, e - off);
             n += n2;
             dn += dn2;

@@ -201,8 +201,15 @@ pub fn plausibility(card: &SheetFetCard, max_gate_voltage: Option<f64>) -> Vec<I
         ("electron_mass", card.electron_mass),
         ("hole_mass", card.hole_mass),
     ];
-    if let Some(v) = card.second_valley {
-        masses.push(("valley_mass", v.mass));
+    // The card keys of the extra valleys' masses, in order (validate bounds the count).
+    const VALLEY_MASSES: [&str; crate::sheet_fet::MAX_EXTRA_VALLEYS] = [
+        "valley_mass",
+        "valley2_mass",
+        "valley3_mass",
+        "valley4_mass",
+    ];
+    for (name, v) in VALLEY_MASSES.iter().zip(&card.extra_valleys) {
+        masses.push((name, v.mass));
     }
     for (name, v) in masses {
         r.check(name, v, "m0", (0.01, 10.0), mass_why);

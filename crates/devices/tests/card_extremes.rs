@@ -5,7 +5,7 @@
 use lamina_devices::materials;
 use lamina_devices::sheet_fet::{MAX_TABLE_POINTS, MIN_TEMPERATURE_K, TEMPERATURE_RANGE_K};
 use lamina_devices::warnings::{plausibility, Implausible};
-use lamina_devices::{Gate, Layer, SecondValley, SheetFet, SheetFetCard, SheetModel};
+use lamina_devices::{ExtraValley, Gate, Layer, SheetFet, SheetFetCard, SheetModel};
 use proptest::prelude::*;
 use proptest::test_runner::{Config, RngSeed};
 
@@ -49,13 +49,16 @@ fn dirac_field(card: &mut SheetFetCard, k: usize) -> &mut f64 {
     }
 }
 
-/// The card's second valley, made first if there is none.
-fn valley(card: &mut SheetFetCard) -> &mut SecondValley {
-    card.second_valley.get_or_insert(SecondValley {
-        offset: 0.1,
-        mass: 0.5,
-        degeneracy: 6.0,
-    })
+/// The card's first extra valley, made first if there is none.
+fn valley(card: &mut SheetFetCard) -> &mut ExtraValley {
+    if card.extra_valleys.is_empty() {
+        card.extra_valleys.push(ExtraValley {
+            offset: 0.1,
+            mass: 0.5,
+            degeneracy: 6.0,
+        });
+    }
+    &mut card.extra_valleys[0]
 }
 
 /// The card's second insulator layer, made first if there is none.
@@ -71,7 +74,7 @@ fn second_layer(card: &mut SheetFetCard) -> &mut Layer {
 }
 
 /// Sets numeric field `k` of `card` to `v` and returns a fragment its validation error must
-/// name. Field 0 makes the gate a metal; the fields of a Dirac gate, a second valley or a
+/// name. Field 0 makes the gate a metal; the fields of a Dirac gate, a first extra valley or a
 /// second layer make that part first.
 fn set_field(card: &mut SheetFetCard, k: usize, v: f64) -> &'static str {
     let (field, name): (&mut f64, &'static str) = match k {
@@ -99,9 +102,9 @@ fn set_field(card: &mut SheetFetCard, k: usize, v: f64) -> &'static str {
         15 => (&mut card.electron_affinity, "electron_affinity"),
         16 => (&mut card.donor_density, "donor_density"),
         17 => (&mut card.acceptor_density, "acceptor_density"),
-        18 => (&mut valley(card).offset, "valley offset"),
-        19 => (&mut valley(card).mass, "valley mass"),
-        20 => (&mut valley(card).degeneracy, "valley degeneracy"),
+        18 => (&mut valley(card).offset, "valley_offset"),
+        19 => (&mut valley(card).mass, "valley_mass"),
+        20 => (&mut valley(card).degeneracy, "valley_degeneracy"),
         21 => (&mut card.trap_density, "trap_density"),
         22 => (&mut card.trap_neutral_level, "trap_neutral_level"),
         23 => (&mut card.fixed_charge_density, "fixed_charge_density"),
@@ -375,13 +378,13 @@ fn huge_mass_or_thickness_is_an_error() {
             },
         ),
         (
-            "valley mass",
+            "valley_mass",
             SheetFetCard {
-                second_valley: Some(SecondValley {
+                extra_valleys: vec![ExtraValley {
                     offset: 0.1,
                     mass: 1e300,
                     degeneracy: 6.0,
-                }),
+                }],
                 ..SheetFetCard::default()
             },
         ),

@@ -3,10 +3,11 @@
 //! (values and their sources are in `data/materials.json`).
 
 use lamina_devices::materials::{
-    apply_channel, band_gap_at, channels, insulator_layer, insulators, optical_gap,
-    permittivity_range, source, LIBRARY_TEMPERATURE_K,
+    apply_channel, apply_channel_along, band_gap_at, channels, insulator_layer, insulators,
+    optical_gap, permittivity_range, source, transport_directions, LIBRARY_TEMPERATURE_K,
 };
-use lamina_devices::{SecondValley, SheetFetCard};
+use lamina_devices::sheet_fet::{valley_key, MAX_EXTRA_VALLEYS};
+use lamina_devices::{ExtraValley, SheetFetCard};
 
 /// kT/q at 300 K (V), from the CODATA 2018 k_B and q (common practice).
 const KT_300: f64 = 1.380649e-23 * 300.0 / 1.602176634e-19;
@@ -68,20 +69,21 @@ fn ionisation(channel: &str) -> f64 {
 }
 
 /// Every channel carries both spin-split conduction bands at K: the lower as the channel's
-/// own band (spin and valley degeneracy 2) and the upper as the second valley, a few kT up at
+/// own band (spin and valley degeneracy 2) and the upper as the first extra valley, a few kT up at
 /// most. In the W compounds the lower band is the spin-forbidden, heavier one, tens of meV
 /// below the other.
 #[test]
 fn both_spin_split_conduction_bands_are_present() {
     for c in dichalcogenides() {
         let k = card(&c);
-        let SecondValley {
+        let ExtraValley {
             offset,
             mass,
             degeneracy,
-        } = k
-            .second_valley
-            .unwrap_or_else(|| panic!("{c} has no second valley"));
+        } = *k
+            .extra_valleys
+            .first()
+            .unwrap_or_else(|| panic!("{c} has no extra valley"));
         assert_eq!(k.electron_degeneracy, 2.0, "{c}");
         assert_eq!(degeneracy, 2.0, "{c}");
         assert!(
@@ -98,7 +100,7 @@ fn both_spin_split_conduction_bands_are_present() {
     }
     for c in ["WS2", "WSe2"] {
         let k = card(c);
-        let v = k.second_valley.unwrap();
+        let v = k.extra_valleys[0];
         assert!(v.offset >= 0.02, "{c}: {} eV", v.offset);
         assert!(
             k.electron_mass > v.mass,
@@ -107,20 +109,60 @@ fn both_spin_split_conduction_bands_are_present() {
     }
 }
 
-/// A card built from the library without a second valley has none: building a channel over a
-/// card that had one replaces it with the library's.
+/// The library's extra valleys come as complete, sourced triples of keys (`valley_` then
+/// `valley2_`, ...), a card built from an entry holds exactly those, and an entry without a
+/// second extra valley says why the Q (Lambda) valleys are absent.
 #[test]
-fn applying_a_channel_replaces_the_second_valley() {
+fn extra_valleys_are_complete_sourced_and_explained() {
+    for c in channels() {
+        let mut k = SheetFetCard::default();
+        let direction = transport_directions(&c).unwrap().first().cloned();
+        apply_channel_along(&mut k, &c, direction.as_deref()).unwrap();
+        let mut complete = 0;
+        for i in 0..MAX_EXTRA_VALLEYS {
+            let notes: Vec<_> = ["offset", "mass", "degeneracy"]
+                .iter()
+                .map(|w| source("channels", &c, &valley_key(i, w)))
+                .collect();
+            let given = notes.iter().filter(|n| n.is_some()).count();
+            assert!(
+                given == 0 || given == 3,
+                "{c}: valley {} has {given} of 3 keys",
+                i + 1
+            );
+            if given == 3 {
+                assert_eq!(complete, i, "{c}: valley {} follows a gap", i + 1);
+                assert!(notes.iter().all(|n| n.is_some_and(|n| n.len() > 20)), "{c}");
+                complete += 1;
+            }
+        }
+        assert_eq!(k.extra_valleys.len(), complete, "{c}");
+        if c != "BP" && complete < 2 {
+            let note = source("channels", &c, "valley_offset").unwrap();
+            assert!(
+                note.contains("Q (Lambda)") && note.contains("valley2_"),
+                "{c}: {note}"
+            );
+        }
+    }
+}
+
+/// Building a channel over a card that had extra valleys replaces them all with the
+/// library's.
+#[test]
+fn applying_a_channel_replaces_the_extra_valleys() {
+    let other = ExtraValley {
+        offset: 0.5,
+        mass: 9.0,
+        degeneracy: 7.0,
+    };
     let mut k = SheetFetCard {
-        second_valley: Some(SecondValley {
-            offset: 0.5,
-            mass: 9.0,
-            degeneracy: 7.0,
-        }),
+        extra_valleys: vec![other; 3],
         ..SheetFetCard::default()
     };
     apply_channel(&mut k, "WSe2").unwrap();
-    let v = k.second_valley.unwrap();
+    assert_eq!(k.extra_valleys.len(), 1);
+    let v = k.extra_valleys[0];
     assert_eq!((v.offset, v.mass, v.degeneracy), (0.037, 0.28, 2.0));
 }
 

@@ -343,3 +343,140 @@ fn output_conductance_stays_positive_with_velocity_saturation() {
         assert!(last > 1e-6, "the device conducts: {last:e} A");
     }
 }
+
+/// The electron density of a channel with two extra conduction valleys is the sum over the
+/// three valleys of the 2D Fermi-Dirac occupation of a constant density of states,
+/// `n = Σ_i D_i ∫_{Δ_i}^∞ f(E - E_F) dE` with `D_i = g_i m_i / (2π ħ²)` (common practice;
+/// e.g. S. Datta, Quantum Transport: Atom to Transistor, Cambridge 2005, the 2D density of
+/// states of a parabolic band), here integrated by quadrature instead of the closed form
+/// `ln(1 + e^η)` the model uses; the channel quantum capacitance is `q² Σ_i D_i ∫ -∂f/∂E dE`
+/// the same way. Checked from depletion to above both extra valleys.
+#[test]
+fn density_with_two_extra_valleys_matches_a_fermi_dirac_sum() {
+    use lamina_devices::physics::{HBAR, M0};
+    use lamina_devices::ExtraValley;
+    let valleys = [(0.0, 0.5, 4.0), (0.03, 0.3, 2.0), (0.08, 0.6, 6.0)];
+    let card = SheetFetCard {
+        extra_valleys: valleys[1..]
+            .iter()
+            .map(|&(offset, mass, degeneracy)| ExtraValley {
+                offset,
+                mass,
+                degeneracy,
+            })
+            .collect(),
+        // A thin high-k insulator, so that the sweep fills both extra valleys.
+        insulator: vec![Layer {
+            permittivity: 20.0,
+            thickness: 2e-9,
+            breakdown_field: None,
+        }],
+        ..device_a()
+    };
+    let kt = K_B * card.temperature / Q; // eV
+    let m = lamina_devices::SheetModel::build(&card).unwrap();
+    let mut above_both = false;
+    for k in 0..=40 {
+        let s = m.local_state(-0.5 + 0.1 * f64::from(k));
+        // Energies in eV from the band edge; the Fermi level at ξ.
+        let f = |e: f64| 1.0 / (1.0 + ((e - s.xi) / kt).exp());
+        let minus_df = |e: f64| {
+            let x = (e - s.xi) / kt;
+            1.0 / (kt * (2.0 + x.exp() + (-x).exp()))
+        };
+        let (mut n, mut dn) = (0.0, 0.0);
+        for &(offset, mass, g) in &valleys {
+            let dos = g * mass * M0 / (2.0 * std::f64::consts::PI * HBAR * HBAR) * Q; // 1/(eV m²)
+            let top = offset.max(s.xi) + 80.0 * kt;
+            n += dos * integrate(f, offset, top, 1e-14).integral;
+            dn += dos * integrate(minus_df, offset, top, 1e-14).integral;
+        }
+        assert!(
+            (s.n / n - 1.0).abs() < 1e-9,
+            "xi {} V: n {} vs {n}",
+            s.xi,
+            s.n
+        );
+        // Holes lie 1.8 eV down: their share of the capacitance is far below the tolerance.
+        let cq = Q * dn;
+        assert!(
+            (s.channel_quantum_capacitance / cq - 1.0).abs() < 1e-8,
+            "xi {} V: C_q {} vs {cq}",
+            s.xi,
+            s.channel_quantum_capacitance
+        );
+        above_both |= s.xi > 0.08 + 2.0 * kt;
+    }
+    assert!(above_both, "the sweep must fill the upper valley");
+}
+
+/// Drain currents and gate charges (bit patterns of `f64`) of two cards without a second extra
+/// valley, recorded by the build before cards could hold more than one (commit 79dd444): the
+/// default card and one with a single extra valley (0.05 eV, 0.4 m0, g = 6), at
+/// V_G = 0.2, 0.6, 1.0, 1.5 V and V_D = 0.05, 0.8 V, in that order, current then charge.
+const BEFORE_DEFAULT: [u64; 16] = [
+    0x3ea812e3c33b3dd8,
+    0x3cd9ecf0532e496e,
+    0x3ec4aaaa144c04c3,
+    0x3cd2159939741ac6,
+    0x3ebeeb4932800198,
+    0x3cf09ba46549612e,
+    0x3eebbba0ec684910,
+    0x3ce691d9ce82e713,
+    0x3ec9322e79a0bae0,
+    0x3cfb0f31b4413eed,
+    0x3f001ac88c13ab08,
+    0x3cf35addd602da44,
+    0x3ed2c0767e870910,
+    0x3d0422ec73dce8a8,
+    0x3f0c46acff67881e,
+    0x3cff9510ed2bd266,
+];
+const BEFORE_ONE_VALLEY: [u64; 16] = [
+    0x3ea879ac8b2564ba,
+    0x3cda5b15e173f4f3,
+    0x3ec53c737b9f1713,
+    0x3cd25f8bb2308d4f,
+    0x3ebf27be03ef4d48,
+    0x3cf0bc16fa4f4be5,
+    0x3eec18bbf02bb352,
+    0x3ce6bd574397ba5c,
+    0x3ec954310f107030,
+    0x3cfb33b58ba1234b,
+    0x3f00392bd6e52302,
+    0x3cf37951bc9bee32,
+    0x3ed2d3e7a6772230,
+    0x3d0437cc87fe4770,
+    0x3f0c69e73dd51f32,
+    0x3cffba549e959b84,
+];
+
+/// Cards that give no second extra valley keep their results bit for bit across the change
+/// from one optional valley to a list of them.
+#[test]
+fn cards_without_a_second_extra_valley_keep_their_results_bit_for_bit() {
+    use lamina_devices::ExtraValley;
+    let one = SheetFetCard {
+        extra_valleys: vec![ExtraValley {
+            offset: 0.05,
+            mass: 0.4,
+            degeneracy: 6.0,
+        }],
+        ..SheetFetCard::default()
+    };
+    for (card, before) in [
+        (SheetFetCard::default(), BEFORE_DEFAULT),
+        (one, BEFORE_ONE_VALLEY),
+    ] {
+        let fet = SheetFet::new(&card).unwrap();
+        let mut now = Vec::new();
+        for vg in [0.2, 0.6, 1.0, 1.5] {
+            for vd in [0.05, 0.8] {
+                let r = fet.intrinsic(vd, vg, 0.0);
+                now.push(r.current.v.to_bits());
+                now.push(r.q_gate.v.to_bits());
+            }
+        }
+        assert_eq!(now, before, "{:?}", card.extra_valleys);
+    }
+}

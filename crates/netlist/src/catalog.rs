@@ -3,8 +3,9 @@
 
 use crate::units::Dim;
 use lamina_devices::mobility::{DensityDependence, LatticeModel};
+use lamina_devices::sheet_fet::valley_key;
 use lamina_devices::{
-    materials, Gate, Layer, Polarity, SecondValley, SheetFet, SheetFetCard, SquareLawFet,
+    materials, ExtraValley, Gate, Layer, Polarity, SheetFet, SheetFetCard, SquareLawFet,
 };
 use lamina_engine::elements::{
     Capacitor, CurrentSource, Inductor, Resistor, Vccs, Vcvs, VoltageSource, Waveform,
@@ -328,6 +329,9 @@ static SHEET_PARAMS: &[ParamSpec] = &[
     maybe("valley_offset", ENERGY),
     maybe("valley_mass", Dim::NONE),
     maybe("valley_degeneracy", Dim::NONE),
+    maybe("valley2_offset", ENERGY),
+    maybe("valley2_mass", Dim::NONE),
+    maybe("valley2_degeneracy", Dim::NONE),
     maybe("trap_density", PER_ENERGY_AREA),
     maybe("trap_neutral_level", ENERGY),
     maybe("fixed_charge_density", PER_AREA),
@@ -587,16 +591,26 @@ fn sheet_consistency(v: &Values) -> Result<(), BuildError> {
             ));
         }
     }
-    if v.get(p, "valley_offset").is_none() {
-        if let Some(s) = ["valley_mass", "valley_degeneracy"]
-            .iter()
-            .find(|s| v.get(p, s).is_some())
-        {
-            return Err(BuildError::at(
-                s,
-                format!("`{s}` is given without `valley_offset`, so there is no second valley"),
-                "add `valley_offset` (its energy above the band edge) or remove it",
-            ));
+    for (offset, others, which) in [
+        (
+            "valley_offset",
+            ["valley_mass", "valley_degeneracy"],
+            "first extra",
+        ),
+        (
+            "valley2_offset",
+            ["valley2_mass", "valley2_degeneracy"],
+            "second extra",
+        ),
+    ] {
+        if v.get(p, offset).is_none() {
+            if let Some(s) = others.iter().find(|s| v.get(p, s).is_some()) {
+                return Err(BuildError::at(
+                    s,
+                    format!("`{s}` is given without `{offset}`, so there is no {which} valley"),
+                    format!("add `{offset}` (its energy above the band edge) or remove it"),
+                ));
+            }
         }
     }
     Ok(())
@@ -752,16 +766,40 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, BuildError> {
         &mut card.overlap_capacitance,
         v.get(p, "overlap_capacitance"),
     );
-    if let Some(offset) = ev("valley_offset") {
-        card.second_valley = Some(SecondValley {
+    // Extra conduction valleys: a card's `valley_` keys replace the library's first extra
+    // valley (or give one), its `valley2_` keys the second.
+    for (i, offset) in ["valley_offset", "valley2_offset"].into_iter().enumerate() {
+        let Some(offset) = ev(offset) else { continue };
+        let mass_key = valley_key(i, "mass");
+        let degeneracy_key = valley_key(i, "degeneracy");
+        let valley = ExtraValley {
             offset,
-            mass: v
-                .get(p, "valley_mass")
-                .ok_or("a second valley needs `valley_mass`")?,
-            degeneracy: v
-                .get(p, "valley_degeneracy")
-                .ok_or("a second valley needs `valley_degeneracy`")?,
-        });
+            mass: v.get(p, &mass_key).ok_or_else(|| {
+                BuildError::at(
+                    &valley_key(i, "offset"),
+                    format!("an extra valley needs `{mass_key}`"),
+                    format!("add `{mass_key}` (its effective mass)"),
+                )
+            })?,
+            degeneracy: v.get(p, &degeneracy_key).ok_or_else(|| {
+                BuildError::at(
+                    &valley_key(i, "offset"),
+                    format!("an extra valley needs `{degeneracy_key}`"),
+                    format!("add `{degeneracy_key}` (its spin-valley degeneracy)"),
+                )
+            })?,
+        };
+        match card.extra_valleys.len().cmp(&i) {
+            std::cmp::Ordering::Greater => card.extra_valleys[i] = valley,
+            std::cmp::Ordering::Equal => card.extra_valleys.push(valley),
+            std::cmp::Ordering::Less => {
+                return Err(BuildError::at(
+                    "valley2_offset",
+                    "`valley2_offset` is given, but there is no first extra valley".to_string(),
+                    "add `valley_offset`, `valley_mass` and `valley_degeneracy`, or use a channel whose library entry has one",
+                ))
+            }
+        }
     }
     // Gate: a library electrode, a Dirac sheet described in place, or a metal (by default at
     // the channel's electron affinity: flat bands at zero gate voltage).
