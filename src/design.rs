@@ -63,7 +63,7 @@ pub fn load(path: &Path, sets: &[(String, String)]) -> Result<Design, JobError> 
         } else if f
             .diagnostics
             .iter()
-            .all(|d| f.sources.name(d.span.file).starts_with("--set "))
+            .all(|d| f.sources.name(d.span.file).starts_with("--set/--param "))
         {
             JobError::Usage(text)
         } else {

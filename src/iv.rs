@@ -302,7 +302,7 @@ fn sheet_geometry(
     let src = &design.sources;
     let mut stmts: Vec<Stmt> = Vec::new();
     for f in 0..src.len() {
-        if src.name(f).starts_with("--set ") {
+        if src.name(f).starts_with("--set/--param ") {
             continue;
         }
         let mut diags = Vec::new();

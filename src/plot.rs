@@ -11,6 +11,7 @@
 //! parameter. Model estimates are flagged in the README and in the JSON summaries, not in
 //! every title.
 
+pub use lamina_netlist::units::engineering;
 use plotters::coord::Shift;
 use plotters::prelude::*;
 use std::path::Path;
@@ -743,73 +744,4 @@ pub fn curves(
         f.series.push(Series::line(name, pts.clone()));
     }
     draw(stem, &f)
-}
-
-/// A value in engineering notation with an SI prefix on its unit, four significant digits:
-/// `engineering(6e-10, "s")` is `600 ps`, `engineering(0.6, "V")` is `600 mV`. Without a
-/// unit, or for zero, the plain number.
-pub fn engineering(v: f64, unit: &str) -> String {
-    const PREFIXES: [&str; 13] = [
-        "y", "z", "a", "f", "p", "n", "µ", "m", "", "k", "M", "G", "T",
-    ];
-    // Four significant digits.
-    let short = |x: f64| {
-        let digits = if x == 0.0 {
-            0
-        } else {
-            (3 - x.abs().log10().floor() as i32).clamp(0, 6) as usize
-        };
-        let s = format!("{x:.digits$}");
-        let s = if s.contains('.') {
-            s.trim_end_matches('0').trim_end_matches('.').to_string()
-        } else {
-            s
-        };
-        if s == "-0" {
-            "0".to_string()
-        } else {
-            s
-        }
-    };
-    if unit.is_empty() || v == 0.0 || !v.is_finite() {
-        let plain = if v != 0.0 && (v.abs() < 1e-3 || v.abs() >= 1e5) {
-            format!("{v:.3e}")
-        } else {
-            short(v)
-        };
-        return if unit.is_empty() {
-            plain
-        } else {
-            format!("{plain} {unit}")
-        };
-    }
-    if v.abs() < 1e-24 || v.abs() >= 1e15 {
-        return format!("{v:.3e} {unit}");
-    }
-    let e = ((v.abs().log10() / 3.0).floor() as i32).clamp(-8, 4);
-    let m = v / 10f64.powi(3 * e);
-    // Rounding can carry a mantissa to 1000: move to the next prefix.
-    let (m, e) = if (m.abs() * 1e4).round() / 1e4 >= 1000.0 && e < 4 {
-        (m / 1000.0, e + 1)
-    } else {
-        (m, e)
-    };
-    format!("{} {}{unit}", short(m), PREFIXES[(e + 8) as usize])
-}
-
-#[cfg(test)]
-mod engineering_tests {
-    use super::engineering;
-
-    #[test]
-    fn prefixes_follow_the_value() {
-        assert_eq!(engineering(6e-10, "s"), "600 ps");
-        assert_eq!(engineering(0.6, "V"), "600 mV");
-        assert_eq!(engineering(1.2, "V"), "1.2 V");
-        assert_eq!(engineering(7.36e8, "Hz"), "736 MHz");
-        assert_eq!(engineering(-3.3e-5, "A"), "-33 µA");
-        assert_eq!(engineering(0.0, "V"), "0 V");
-        assert_eq!(engineering(7.0, ""), "7");
-        assert_eq!(engineering(999.99996, "V"), "1 kV");
-    }
 }

@@ -137,22 +137,31 @@ pub fn run_transient(design: Design, a: &Analysis) -> Result<TransientReport, St
     let (w0, w1) = *window;
     let mut energy = vec![0.0; supplies.len()];
     let mut peak = vec![f64::NEG_INFINITY; supplies.len()];
-    let mut last: Option<(f64, Vec<f64>)> = None;
+    // Buffers reused at every step: the observer allocates nothing.
+    let mut power = vec![0.0; supplies.len()];
+    let mut last_power = vec![0.0; supplies.len()];
+    let mut last_t: Option<f64> = None;
     let mut steps = 0usize;
+    // The recorded nodes at every accepted step (thinned past the limit), for their crossings:
+    // a fixed output interval may be too coarse for them.
+    let node_count = nodes.len();
+    let mut stepped = lamina_engine::Decimator::new(MAX_TRANSIENT_SAMPLES, node_count);
     let mut observer = |t: f64, v: &[f64]| {
         steps += 1;
-        let power: Vec<f64> = (0..supplies.len())
-            .map(|k| {
-                let b = first_supply_probe + 3 * k;
-                -(v[b + 1] - v[b + 2]) * v[b]
-            })
-            .collect();
-        if let Some((t0, p0)) = &last {
+        if node_count > 0 {
+            stepped.push(t, &v[..node_count]);
+        }
+        for (k, p) in power.iter_mut().enumerate() {
+            let b = first_supply_probe + 3 * k;
+            *p = -(v[b + 1] - v[b + 2]) * v[b];
+        }
+        if let Some(t0) = last_t {
             // The part of [t0, t] inside the window, power linear in between.
             let (a, b) = (t0.max(w0), t.min(w1));
-            if b > a && t > *t0 {
+            if b > a && t > t0 {
                 for k in 0..power.len() {
-                    let at = |x: f64| p0[k] + (power[k] - p0[k]) * (x - t0) / (t - t0);
+                    let p0 = last_power[k];
+                    let at = |x: f64| p0 + (power[k] - p0) * (x - t0) / (t - t0);
                     energy[k] += 0.5 * (at(a) + at(b)) * (b - a);
                 }
             }
@@ -162,7 +171,8 @@ pub fn run_transient(design: Design, a: &Analysis) -> Result<TransientReport, St
                 peak[k] = peak[k].max(power[k]);
             }
         }
-        last = Some((t, power));
+        last_power.copy_from_slice(&power);
+        last_t = Some(t);
         lamina_engine::Control::Continue
     };
     let mut sys = System::new(design.circuit).map_err(|e| e.to_string())?;
@@ -215,7 +225,10 @@ pub fn run_transient(design: Design, a: &Analysis) -> Result<TransientReport, St
         })
         .collect();
     let time = res.time;
+    // Crossings from the accepted steps, not from the (possibly coarse) output samples.
+    let (step_time, step_values) = stepped.finish();
     let crossings_of = |name: &str, v: &[f64]| {
+        let time = &step_time;
         let inside: Vec<f64> = time
             .iter()
             .zip(v)
@@ -233,21 +246,21 @@ pub fn run_transient(design: Design, a: &Analysis) -> Result<TransientReport, St
             node: name.to_string(),
             level,
             rising: if moved {
-                keep(crossings(&time, v, level, Direction::Rising))
+                keep(crossings(time, v, level, Direction::Rising))
             } else {
                 Vec::new()
             },
             falling: if moved {
-                keep(crossings(&time, v, level, Direction::Falling))
+                keep(crossings(time, v, level, Direction::Falling))
             } else {
                 Vec::new()
             },
         }
     };
-    let crossings = out
+    let crossings = nodes
         .iter()
-        .filter(|s| s.unit == "V")
-        .map(|s| crossings_of(&s.name, &s.values))
+        .zip(&step_values)
+        .map(|(name, v)| crossings_of(name, v))
         .collect();
     Ok(TransientReport {
         thinned: interval.is_none() && res.stats.accepted + 1 > MAX_TRANSIENT_SAMPLES,

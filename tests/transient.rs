@@ -69,3 +69,40 @@ analysis transient { stop = 21 ns, record = [in, out], currents = [drive] }
     );
     std::fs::remove_dir_all(&dir).unwrap();
 }
+
+/// A coarse fixed output interval thins the record, not the crossings: they are found on the
+/// accepted steps (the input's 50 % crossing at the middle of its 10 ps rise after 1 ns).
+#[test]
+fn crossings_do_not_depend_on_the_output_interval() {
+    let dir = std::env::temp_dir().join(format!("lamina-interval-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    for interval in ["1 ns", "20 ns"] {
+        let file = dir.join("rc.lam");
+        std::fs::write(
+            &file,
+            format!(
+                "voltage_source drive (pos = in, neg = ground) {{\n\
+                 wave = pulse(high = 1 V, delay = 1 ns, rise = 10 ps, fall = 10 ps, width = 100 ns)\n}}\n\
+                 resistor r (a = in, b = out) {{ resistance = 1 kOhm }}\n\
+                 capacitor c (a = out, b = ground) {{ capacitance = 1 pF }}\n\
+                 analysis transient {{ stop = 12 ns, record = [in, out], interval = {interval} }}\n"
+            ),
+        )
+        .unwrap();
+        let out = Command::new(env!("CARGO_BIN_EXE_lamina"))
+            .args(["run", file.to_str().unwrap(), "--json"])
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+        let input = &v["analyses"][0]["crossings"][0];
+        assert_eq!(input["node"], "in");
+        let t = input["rising_s"][0].as_f64().unwrap();
+        assert!((t / 1.005e-9 - 1.0).abs() < 1e-3, "{interval}: {t:e}");
+    }
+    std::fs::remove_dir_all(&dir).unwrap();
+}

@@ -38,6 +38,13 @@ pub fn parse_levels(text: &str) -> Result<(f64, f64), JobError> {
             .map_err(|_| usage(&format!("`{s}` is not a number")))
     };
     let (low, high) = (number(a)?, number(b)?);
+    if high <= 1.0 {
+        return Err(usage(&format!(
+            "the levels are percentages; did you mean --levels {},{}?",
+            low * 100.0,
+            high * 100.0
+        )));
+    }
     if !(low > 0.0 && low < high && high < 100.0) {
         return Err(usage("the levels must satisfy 0 < low < high < 100"));
     }

@@ -73,6 +73,11 @@ pub struct Args {
 
 /// Runs the job.
 pub fn run(a: Args) -> Result<(), JobError> {
+    if !a.show.is_empty() && a.out.is_none() {
+        return Err(JobError::Usage(
+            "--show chooses the waveforms --out writes; add --out DIR".into(),
+        ));
+    }
     let set_out = OutputSet::begin_opt(a.out.as_deref())?;
     let params = RingParams {
         integrator: method(a.integrator),
@@ -135,6 +140,12 @@ pub(crate) fn finish_ring(
     out: Option<OutputSet>,
     show: &[usize],
 ) -> Result<(), JobError> {
+    if let Some(&i) = show.iter().find(|&&i| i >= ring.outputs.len()) {
+        return Err(JobError::Usage(format!(
+            "--show {i}: the ring has stages 0 to {}",
+            ring.outputs.len() - 1
+        )));
+    }
     if let Some(path) = dump_matrix {
         dump(system, ring, &path)?;
     }

@@ -284,13 +284,14 @@ pub fn plausibility(card: &SheetFetCard, max_gate_voltage: Option<f64>) -> Vec<I
                 "MV/cm",
                 (0.0, breakdown * 1e-8),
                 format!(
-                    "{v} V on the gate puts this field across layer {} of {} (ε = {}, {} nm; \
+                    "{} V on the gate puts this field across layer {} of {} (ε = {}, {} nm; \
                      series-capacitor division, leaving out the channel's own potential drop), \
                      above the layer's breakdown field",
+                    short(v),
                     k + 1,
                     card.insulator.len(),
-                    l.permittivity,
-                    l.thickness * 1e9
+                    short(l.permittivity),
+                    short(l.thickness * 1e9)
                 ),
             );
         }

@@ -96,6 +96,14 @@ pub fn did_you_mean<'a>(
     // catches longer ones with a shared start.
     let limit = (name.chars().count() / 4).max(1);
     let mut best: Option<(usize, f64, &str)> = None;
+    let candidates: Vec<&str> = candidates.into_iter().collect();
+    // The same name in another case is the likeliest mistake (`pf` for `pF`).
+    if let Some(c) = candidates
+        .iter()
+        .find(|c| **c != name && c.to_lowercase() == name.to_lowercase())
+    {
+        return Some(format!("did you mean `{c}`?"));
+    }
     for c in candidates {
         if c == name {
             continue;

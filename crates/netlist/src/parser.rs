@@ -806,6 +806,15 @@ impl<'a> Parser<'a> {
 /// space and parentheses (`Vs` -> `(V s)`), a misspelt symbol gets the closest one (`fFF` ->
 /// `fF`).
 fn unit_hint(word: &str) -> Option<String> {
+    let all = all_symbols();
+    if let Some(s) = all
+        .iter()
+        .find(|s| s.as_str() != word && s.to_lowercase() == word.to_lowercase())
+    {
+        return Some(format!(
+            "did you mean `{s}`? (unit symbols are case-sensitive)"
+        ));
+    }
     if let Some(parts) = run_together(word) {
         return Some(format!(
             "units are separated by a space: write `({})`, as in `cm^2/({})`",
@@ -813,7 +822,6 @@ fn unit_hint(word: &str) -> Option<String> {
             parts.join(" ")
         ));
     }
-    let all = all_symbols();
     did_you_mean(word, all.iter().map(String::as_str))
 }
 

@@ -6,7 +6,7 @@
 //! * one value: `0.8V`, `50 nm`, `-0.2 V`, `10`;
 //! * a list: `0.6V,0.8V,1V`, or `0.6,0.8,1 V` (a unit on the last item only applies to all);
 //! * a range `START:STOP:STEP` with STOP included when the step reaches it: `0.6:1.2:0.2V`
-//!   (a unit on the last part only applies to all three), `0.6V:1.2V:0.2V`.
+//!   (a unit on the last part only applies to all three), `0.6V:1.2V:0.2V`, `0V:1V:10mV`.
 //!
 //! Range points are computed in decimal, not by repeated floating-point addition: the point
 //! `0.6 + 3 x 0.2` of `0.6:1.2:0.2` is the number written `1.2`, exactly as if it had been typed.
@@ -197,17 +197,22 @@ pub fn parse_values(
         }
         return Ok(values);
     }
-    if parts[0].unit != parts[1].unit || parts[1].unit != parts[2].unit {
-        return Err(
-            "write START, STOP and STEP in one unit, or the unit once at the end (0.6:1.2:0.2V)"
-                .into(),
-        );
-    }
+    // Parts in one unit are stepped in decimal; parts in different units (`0V:1V:10mV`) in
+    // the first part's unit, by floating point.
+    let same_unit = parts[0].unit == parts[1].unit && parts[1].unit == parts[2].unit;
     let (start, stop, step) = (&values[0], &values[1], &values[2]);
     if step.si == 0.0 || (stop.si - start.si) / step.si < 0.0 {
         return Err("the step must be non-zero and point from START to STOP".into());
     }
     let count = ((stop.si - start.si) / step.si * (1.0 + 1e-12)).floor();
+    if count < 1.0 && stop.si != start.si {
+        return Err(format!(
+            "the step {} is larger than the range from {} to {}, which leaves one point; a unit \
+             written once at the end applies to all three parts: write each part with its \
+             unit, such as 0V:1V:10mV",
+            step.text, start.text, stop.text
+        ));
+    }
     if count.is_nan() || count >= max_points as f64 {
         return Err(format!(
             "the range has {:.3e} points, more than the limit of {max_points}",
@@ -222,9 +227,10 @@ pub fn parse_values(
         decimal(&parts[1].number),
         decimal(&parts[2].number),
     ) {
-        (Some(a), Some(b), Some(h)) => Some((a, b, h)),
+        (Some(a), Some(b), Some(h)) if same_unit => Some((a, b, h)),
         _ => None,
     };
+    let step_in_first_unit = step.si / scale;
     let mut out = Vec::with_capacity(n as usize + 1);
     for k in 0..=n {
         let (number, v) = match exact.and_then(|(a, _, h)| {
@@ -238,7 +244,7 @@ pub fn parse_values(
             Some((m, e)) => (format!("{m}e{e}"), from_decimal(m, e)),
             None => {
                 let v = parts[0].number.parse::<f64>().unwrap_or(f64::NAN)
-                    + k as f64 * parts[2].number.parse::<f64>().unwrap_or(f64::NAN);
+                    + k as f64 * step_in_first_unit;
                 (format!("{v:e}"), v)
             }
         };
@@ -304,10 +310,15 @@ mod tests {
         assert!(parse_values("1e400", None, 10).is_err());
         assert!(parse_values("0:1:1e-9", None, 1_000_000).is_err());
         assert!(parse_values("1V,2nm", None, 10).is_err());
+        assert!(parse_values("0V:1nm:1V", None, 10).is_err());
         assert!(parse_values("0:1", None, 10).is_err());
         assert!(parse_values("0:1:0", None, 10).is_err());
         assert!(parse_values("1:0:0.1", None, 10).is_err());
         assert!(parse_values("0.8 Vs", None, 10).is_err());
         assert!(parse_values("abc", None, 10).is_err());
+        // A unit on the step alone would make the whole range 0 to 1 mV in 10 mV steps.
+        assert!(parse_values("0:1:10mV", None, 10).is_err());
+        assert_eq!(si("0V:1V:500mV", None), vec![0.0, 0.5, 1.0]);
+        assert_eq!(si("0.6V:1200mV:0.2V", None).len(), 4);
     }
 }

@@ -6,7 +6,7 @@ use super::{Elaborator, Frame, Q};
 use crate::ast::*;
 use crate::diag::{did_you_mean, Diagnostic, ErrorKind};
 use crate::source::Span;
-use crate::units::Dim;
+use crate::units::{engineering, Dim};
 use lamina_engine::{Circuit, Integrator};
 
 /// What an analysis setting takes.
@@ -471,7 +471,11 @@ impl<'s> Elaborator<'s> {
         if to <= from {
             self.bad(
                 to_span,
-                format!("`to` ({to:e}) must be above `from` ({from:e})"),
+                format!(
+                    "`to` ({}) must be above `from` ({})",
+                    engineering(to, &dim.unit()),
+                    engineering(from, &dim.unit())
+                ),
                 "sweep upwards: swap `from` and `to`".into(),
             );
             return None;
@@ -479,7 +483,10 @@ impl<'s> Elaborator<'s> {
         if step <= 0.0 {
             self.bad(
                 step_span,
-                format!("`step` must be positive, found {step:e}"),
+                format!(
+                    "`step` must be positive, found {}",
+                    engineering(step, &dim.unit())
+                ),
                 format!(
                     "give a step such as `{}`",
                     if dim == Dim::VOLTAGE { "5 mV" } else { "1 uA" }
@@ -552,7 +559,10 @@ impl<'s> Elaborator<'s> {
         if stop <= 0.0 {
             self.bad(
                 stop_span,
-                format!("`stop` must be a positive time, found {stop:e} s"),
+                format!(
+                    "`stop` must be a positive time, found {}",
+                    engineering(stop, "s")
+                ),
                 "give the end of the transient, such as `stop = 2 ns`".into(),
             );
             return None;
@@ -696,7 +706,10 @@ impl<'s> Elaborator<'s> {
         if stop <= 0.0 {
             self.bad(
                 stop_span,
-                format!("`stop` must be a positive time, found {stop:e} s"),
+                format!(
+                    "`stop` must be a positive time, found {}",
+                    engineering(stop, "s")
+                ),
                 "give the end of the run, such as `stop = 10 ns`".into(),
             );
             return None;
@@ -768,7 +781,10 @@ impl<'s> Elaborator<'s> {
                 if dt <= 0.0 {
                     self.bad(
                         s,
-                        format!("`interval` must be a positive time, found {dt:e} s"),
+                        format!(
+                            "`interval` must be a positive time, found {}",
+                            engineering(dt, "s")
+                        ),
                         "such as `interval = 10 ps`".into(),
                     );
                     return None;
@@ -805,7 +821,15 @@ impl<'s> Elaborator<'s> {
                 let b = self.check_dim(v[1].0, Dim::TIME, v[1].1, "window");
                 let (a, b) = (a?, b?);
                 if !(0.0 <= a && a < b && b <= stop) {
-                    self.bad(s, format!("`window` must satisfy 0 <= start < end <= stop, found [{a:e} s, {b:e} s]"), "choose a part of the run, such as `window = [1 ns, 5 ns]`".into());
+                    self.bad(
+                        s,
+                        format!(
+                            "`window` must satisfy 0 <= start < end <= stop, found [{}, {}]",
+                            engineering(a, "s"),
+                            engineering(b, "s")
+                        ),
+                        "choose a part of the run, such as `window = [1 ns, 5 ns]`".into(),
+                    );
                     return None;
                 }
                 (a, b)

@@ -227,10 +227,14 @@ impl<'s> Elaborator<'s> {
         if let Some((s, n)) = note {
             d = d.with_note(s, n);
         }
-        d = d.with_help(
-            e.help
-                .unwrap_or_else(|| "check this value against the model's documented range".into()),
-        );
+        let help = e.help.or_else(|| {
+            // A library name's message carries its own suggestion and the known names.
+            (!d.message.contains("did you mean") && !d.message.contains("library"))
+                .then(|| "check this value against the model's documented range".into())
+        });
+        if let Some(h) = help {
+            d = d.with_help(h);
+        }
         self.diags.push(d);
     }
 

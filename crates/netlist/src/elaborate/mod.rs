@@ -153,7 +153,7 @@ pub fn load_with(
         .map(|(name, text)| {
             (
                 name.clone(),
-                sources.add(format!("--set {name}"), text.clone()),
+                sources.add(format!("--set/--param {name}"), text.clone()),
             )
         })
         .collect();
@@ -386,6 +386,9 @@ impl<'s> Elaborator<'s> {
                                 );
                                 Some(f) // the file's value, so later uses do not fail again
                             }
+                            // A value that did not evaluate was reported; the file's value
+                            // stands in so that later uses are not reported again.
+                            (f, None) => f,
                             (_, g) => g,
                         }
                     }
