@@ -129,6 +129,25 @@ fn driving_source(c: &Circuit, node: NodeId) -> Option<ElementId> {
     })
 }
 
+/// Whether the file has what `iv` needs: exactly one FET, its source at ground, its drain and
+/// gate not at ground. A file without it has an error of its own, not a failed analysis.
+pub fn check_device(design: &Design) -> Result<(), String> {
+    let c = &design.circuit;
+    let fet = find_fet(c)?;
+    let pins = c.element_pins(fet);
+    if !pins[2].is_ground() {
+        return Err(format!(
+            "the FET `{}` must have its source at ground, not at `{}`",
+            c.element_name(fet),
+            c.node_name(pins[2])
+        ));
+    }
+    if pins[0].is_ground() || pins[1].is_ground() {
+        return Err("the FET's drain and gate must not be at ground".into());
+    }
+    Ok(())
+}
+
 /// Runs the grid: for each gate voltage, a DC sweep of the drain voltage.
 pub fn run_iv(design: Design, vgs: &[f64], vds: &[f64]) -> Result<Vec<IvPoint>, String> {
     let mut c = design.circuit;

@@ -384,6 +384,8 @@ fn every_command_follows_the_exit_code_table() {
         ([&["iv", sf][..], &iv[..]].concat(), 1),
         (vec!["iv", fet, "--vgs", "0:1:1e-7", "--vds", "0:1:1e-7"], 2),
         ([&["iv", b][..], &iv[..]].concat(), 3),
+        // A file without the one FET iv needs has an error of its own (the inverter has two).
+        ([&["iv", inv][..], &iv[..]].concat(), 3),
         ([&["iv", missing][..], &iv[..]].concat(), 4),
         (
             [&["iv", fet][..], &iv[..], &["--out", unwritable][..]].concat(),

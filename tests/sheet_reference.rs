@@ -160,8 +160,9 @@ fn iv_flags_are_checked() {
     ]);
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("START:STOP:STEP"));
+    // A file without exactly one FET is a file error (exit 3), not a failed analysis.
     let out = run(&["iv", "netlists/ring-5.lam", "--vgs", "0", "--vds", "1"]);
-    assert_eq!(out.status.code(), Some(1));
+    assert_eq!(out.status.code(), Some(3));
     assert!(String::from_utf8_lossy(&out.stderr).contains("FETs"));
     let out = run(&[
         "iv",

@@ -112,6 +112,8 @@ pub fn run(a: Args) -> Result<(), JobError> {
         overrides: sets.clone(),
         ..LoadOptions::default()
     };
+    crate::iv::check_device(&d)
+        .map_err(|why| JobError::Invalid(format!("error: {}: {why}", file.display())))?;
     let device = read_device(&d, &file, &options).map_err(JobError::Analysis)?;
     let points = crate::iv::run_iv(d, &vg, &vd).map_err(JobError::Analysis)?;
     let m = iv_metrics(&points, &device, &config);
