@@ -38,10 +38,15 @@ pub fn run(a: Args) -> Result<(), JobError> {
         .collect::<Result<_, _>>()?;
     crate::sweep::check_axes(&axes, &sets)?;
     // Check the file once, at the grid's first point, so that a broken file or a value
-    // of the wrong dimension is reported once and not per point.
+    // of the wrong dimension is reported once and not per point. A first point that is
+    // refused only for its own values (the file loads without them) is a failed row instead.
     let mut first = sets.clone();
     first.extend(axes.iter().map(|a| (a.name.clone(), a.texts[0].clone())));
-    design::load(&file, &first)?;
+    if let Err(e) = design::load(&file, &first) {
+        if matches!(e, JobError::Usage(_)) || design::load(&file, &sets).is_err() {
+            return Err(e);
+        }
+    }
     let rows = crate::sweep::run_sweep(&file, &sets, &axes, true, set_out.is_some());
     if let Some(set) = set_out {
         write_sweep(set.dir(), &axes, &rows).map_err(JobError::Io)?;
