@@ -28,14 +28,11 @@
 //! reported as the limit, below it by more it is refused.
 
 use lamina_devices::physics::{K_B, Q};
-use lamina_devices::SheetFetCard;
 use lamina_engine::elements::VoltageSource;
 use lamina_engine::{Circuit, ElementId, NodeId, OpParams, Probe, SweepParams, System};
 use lamina_measure::device as measure;
-use lamina_netlist::ast::{Assign, Stmt};
 use lamina_netlist::units::Dim;
-use lamina_netlist::{Design, DiskReader, FileReader, LoadOptions, ReadError};
-use std::path::{Path, PathBuf};
+use lamina_netlist::Design;
 
 /// Most bias points of one `iv` grid (gate values times drain values).
 pub const MAX_IV_POINTS: usize = 1_000_000;
@@ -281,14 +278,9 @@ impl Device {
 }
 
 /// Reads the file's FET: its name and kind, and for a 2D-channel FET the width, length and
-/// temperature its card and instance give (the card's defaults where neither does).
-///
-/// The elaborated circuit keeps device parameters inside the element, so they are read from
-/// the source: the instance (placed at the top level of the file or of a file it includes)
-/// and its card are found in the design's sources, and the expressions they give are
-/// evaluated by loading the file again with a `param` for each appended at its end, where
-/// they see the same top-level parameters and `--set` overrides as the card did.
-pub fn read_device(design: &Design, path: &Path, options: &LoadOptions) -> Result<Device, String> {
+/// temperature of the card it was built from (as the elaborator resolved it: card, instance
+/// and `--set` values, defaults where none is given).
+pub fn read_device(design: &Design) -> Result<Device, String> {
     let c = &design.circuit;
     let fet = find_fet(c)?;
     let name = c.element_name(fet).to_string();
@@ -296,7 +288,17 @@ pub fn read_device(design: &Design, path: &Path, options: &LoadOptions) -> Resul
     let (carrier, geometry) = match kind {
         SQUARE_N_KIND => (Some(Polarity::N), Err(SQUARE_GEOMETRY.to_string())),
         SQUARE_P_KIND => (Some(Polarity::P), Err(SQUARE_GEOMETRY.to_string())),
-        SHEET_KIND => (None, sheet_geometry(design, path, options, &name)),
+        SHEET_KIND => (
+            None,
+            design
+                .sheet_card(fet)
+                .map(|card| Geometry {
+                    width_m: card.width,
+                    length_m: card.length,
+                    temperature_k: card.temperature,
+                })
+                .ok_or_else(|| format!("the card of `{name}` could not be read")),
+        ),
         other => (
             None,
             Err(format!(
@@ -310,143 +312,6 @@ pub fn read_device(design: &Design, path: &Path, options: &LoadOptions) -> Resul
         carrier,
         geometry,
     })
-}
-
-fn sheet_geometry(
-    design: &Design,
-    path: &Path,
-    options: &LoadOptions,
-    name: &str,
-) -> Result<Geometry, String> {
-    let src = &design.sources;
-    let mut stmts: Vec<Stmt> = Vec::new();
-    for f in 0..src.len() {
-        if src.name(f).starts_with("--set/--param ") {
-            continue;
-        }
-        let mut diags = Vec::new();
-        let toks = lamina_netlist::lexer::lex(f, src.text(f), &mut diags);
-        stmts.extend(lamina_netlist::parser::parse(&toks, &mut diags));
-    }
-    let unreadable = || {
-        format!(
-            "the width, length and temperature of `{name}` could not be read: it is not placed \
-             by name at the top level of the file or of a file it includes (inside a cell or a \
-             loop, or indexed)"
-        )
-    };
-    let mut instances = stmts.iter().filter_map(|s| match s {
-        Stmt::Instance {
-            kind,
-            name: n,
-            params,
-            ..
-        } if n.name.name == name && n.index.is_none() => Some((kind, params)),
-        _ => None,
-    });
-    let (kind, inst_params) = match (instances.next(), instances.next()) {
-        (Some(one), None) => one,
-        _ => return Err(unreadable()),
-    };
-    let card_params: &[Assign] = if kind.name == "sheet_fet" {
-        &[]
-    } else {
-        let mut cards = stmts.iter().filter_map(|s| match s {
-            Stmt::Device {
-                name: n,
-                model,
-                params,
-            } if n.name == kind.name && model.name == "sheet_fet" => Some(params),
-            _ => None,
-        });
-        match (cards.next(), cards.next()) {
-            (Some(p), None) => p,
-            _ => return Err(unreadable()),
-        }
-    };
-    let taken: Vec<&str> = design.parameters.iter().map(|p| p.0.as_str()).collect();
-    let prefix = (0..)
-        .map(|k| format!("lamina_iv_probe{k}"))
-        .find(|p| !taken.iter().any(|t| t.starts_with(p.as_str())))
-        .unwrap_or_default();
-    let defaults = SheetFetCard::default();
-    let keys = [
-        ("width", Dim::LENGTH, defaults.width),
-        ("length", Dim::LENGTH, defaults.length),
-        ("temperature", Dim::TEMPERATURE, defaults.temperature),
-    ];
-    let mut appended = String::new();
-    let mut given = [false; 3];
-    for (k, (key, _, _)) in keys.iter().enumerate() {
-        let assign = inst_params
-            .iter()
-            .chain(card_params)
-            .find(|a| a.name.name == *key);
-        if let Some(a) = assign {
-            given[k] = true;
-            let span = a.value.span();
-            let text = src.text(span.file).get(span.start..span.end).unwrap_or("");
-            appended.push_str(&format!("\nparam {prefix}_{key} = ({text})\n"));
-        }
-    }
-    let mut values = [0.0; 3];
-    let probed = if appended.is_empty() {
-        None
-    } else {
-        let reader = Appending {
-            top: path.to_path_buf(),
-            text: format!("{}{appended}", src.text(0)),
-        };
-        Some(
-            lamina_netlist::load_with(path, options, &reader)
-                .map_err(|_| format!("the width, length and temperature of `{name}` could not be evaluated a second time"))?,
-        )
-    };
-    for (k, (key, dim, default)) in keys.into_iter().enumerate() {
-        let probe = format!("{prefix}_{key}");
-        let found = probed
-            .as_ref()
-            .and_then(|d| d.parameters.iter().find(|p| p.0 == probe));
-        values[k] = match found {
-            Some((_, v, d)) if *d == dim && v.is_finite() && *v > 0.0 => *v,
-            Some(_) => {
-                return Err(format!(
-                    "`{key}` of `{name}` did not evaluate to a positive {}",
-                    dim.describe()
-                ))
-            }
-            None if !given[k] => default,
-            None => {
-                return Err(format!(
-                    "`{key}` of `{name}` could not be evaluated a second time"
-                ))
-            }
-        };
-    }
-    Ok(Geometry {
-        width_m: values[0],
-        length_m: values[1],
-        temperature_k: values[2],
-    })
-}
-
-/// Serves the top-level file with probe parameters appended; other files from disk.
-struct Appending {
-    top: PathBuf,
-    text: String,
-}
-
-impl FileReader for Appending {
-    fn read(&self, path: &Path, max_bytes: usize) -> Result<String, ReadError> {
-        if path == self.top {
-            if self.text.len() > max_bytes {
-                return Err(ReadError::TooLarge);
-            }
-            Ok(self.text.clone())
-        } else {
-            DiskReader.read(path, max_bytes)
-        }
-    }
 }
 
 /// How the figures are taken: each `None` is the documented default.

@@ -92,7 +92,7 @@ fn operating_point_reports_its_path_and_singular_nodes_are_named() {
     };
     match sys.operating_point(&params) {
         Err(EngineError::Singular { culprit, .. }) => {
-            assert_eq!(culprit.unknown, "v(lonely)");
+            assert_eq!(culprit.unknown, "node lonely");
             assert!(culprit.elements.iter().any(|e| e.starts_with("c ")));
         }
         other => panic!("expected a singular-matrix error, got {other:?}"),

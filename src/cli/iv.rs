@@ -11,7 +11,6 @@ use crate::iv::{
 use crate::output::{csv, ensure_dir, write_whole as write_file, OutputSet};
 use crate::{note, out};
 use lamina_netlist::units::Dim;
-use lamina_netlist::LoadOptions;
 use serde_json::{json, Map, Value};
 use std::path::{Path, PathBuf};
 
@@ -108,13 +107,9 @@ pub fn run(a: Args) -> Result<(), JobError> {
     };
     let sets = design::parse_sets(&set)?;
     let d = design::load(&file, &sets)?;
-    let options = LoadOptions {
-        overrides: sets.clone(),
-        ..LoadOptions::default()
-    };
     crate::iv::check_device(&d)
         .map_err(|why| JobError::Invalid(format!("error: {}: {why}", file.display())))?;
-    let device = read_device(&d, &file, &options).map_err(JobError::Analysis)?;
+    let device = read_device(&d).map_err(JobError::Analysis)?;
     let points = crate::iv::run_iv(d, &vg, &vd).map_err(JobError::Analysis)?;
     let m = iv_metrics(&points, &device, &config);
     if let Err(why) = &m.ss_min {

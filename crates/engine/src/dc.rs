@@ -125,7 +125,7 @@ impl System {
                         ));
                     }
                     idx.push(self.node_unknown(node));
-                    names.push(format!("v({})", self.node_name(node)));
+                    names.push(crate::system::node_label(self.node_name(node)));
                 }
                 Probe::Current(e) => {
                     let u = self.branch_unknown(e).ok_or_else(|| {

@@ -7,7 +7,7 @@ use std::fmt;
 /// One unknown that stands out in a failure, with the elements attached to it.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Culprit {
-    /// The unknown's name: `v(node)` or `element.internal`.
+    /// The unknown's name: `node out` or `element.internal`.
     pub unknown: String,
     /// Its equation's residual (A for node rows, V for branch rows) or its last Newton update.
     pub value: f64,

@@ -274,7 +274,7 @@ impl System {
             .collect();
         let mut unknown_names: Vec<String> = node_names[1..]
             .iter()
-            .map(|name| format!("v({name})"))
+            .map(|name| node_label(name))
             .collect();
         let mut unknown_owner = vec![None; n_nodes];
         let mut loc_start = Vec::new();
@@ -457,7 +457,8 @@ impl System {
         self.jac.len()
     }
 
-    /// The name of unknown `i`: `v(node)` or `element.internal`.
+    /// The name of unknown `i`: `node out` for a node voltage, `element.internal` (such as
+    /// `supply.i`) for an element's own unknown.
     pub fn unknown_name(&self, i: usize) -> &str {
         &self.unknown_names[i]
     }
@@ -873,4 +874,9 @@ impl System {
             self.jac.clone(),
         ))
     }
+}
+
+/// How results and diagnostics name a node voltage: `node out`.
+pub(crate) fn node_label(name: &str) -> String {
+    format!("node {name}")
 }

@@ -182,6 +182,28 @@ impl<'s> Elaborator<'s> {
         g
     }
 
+    /// Records the resolved card of a 2D-FET element; instances that change nothing share their
+    /// device card's.
+    fn keep_sheet_card(&mut self, element: usize, card: &str, unchanged: bool, v: &Values) {
+        let cached = unchanged
+            .then(|| self.card_cache.get(card).cloned())
+            .flatten();
+        let resolved = match cached {
+            Some(c) => c,
+            None => match catalog::sheet_card(v) {
+                Ok(c) => {
+                    let c = std::sync::Arc::new(c);
+                    if unchanged {
+                        self.card_cache.insert(card.to_string(), c.clone());
+                    }
+                    c
+                }
+                Err(_) => return,
+            },
+        };
+        self.sheet_cards.insert(element, resolved);
+    }
+
     /// Keeps a sheet-FET card for the plausibility check at the end (when the largest voltage
     /// in the design is known); `given` locates its values, `at` is where it is defined.
     fn note_plausibility(&mut self, k: &'static Kind, v: &Values, given: &Given, at: Span) {
@@ -409,7 +431,10 @@ impl<'s> Elaborator<'s> {
             }
         };
         match self.circuit.add_boxed(&full, element, &pins) {
-            Ok(_) => {
+            Ok(id) => {
+                if k.name == "sheet_fet" {
+                    self.keep_sheet_card(id.index(), &kind.name, inst.is_empty(), &values);
+                }
                 for &(n, at) in &self.last_pins {
                     if !n.is_ground() {
                         self.node_uses.entry(n).or_insert((0, at)).0 += 1;

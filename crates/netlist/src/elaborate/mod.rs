@@ -28,9 +28,11 @@ use crate::source::{FileId, Sources, Span};
 use crate::units::Dim;
 use cards::DeviceCard;
 use files::Loader;
+use lamina_devices::SheetFetCard;
 use lamina_engine::{Circuit, NodeId};
 use std::collections::{BTreeMap, HashMap};
 use std::path::Path;
+use std::sync::Arc;
 
 /// Limits that keep hostile or mistaken input from exhausting memory or stack.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -101,6 +103,17 @@ pub struct Design {
     pub summary: Summary,
     /// Findings that do not stop the design (a node with a single connection, say).
     pub warnings: Vec<Diagnostic>,
+    /// The resolved card of each 2D-channel FET, by element position (shared between the
+    /// instances of a card that change nothing).
+    sheet_cards: BTreeMap<usize, Arc<SheetFetCard>>,
+}
+
+impl Design {
+    /// The resolved card of a 2D-channel FET of the circuit (geometry, temperature and
+    /// physics as the element was built), or `None` for any other element.
+    pub fn sheet_card(&self, element: lamina_engine::ElementId) -> Option<&SheetFetCard> {
+        self.sheet_cards.get(&element.index()).map(|c| c.as_ref())
+    }
 }
 
 /// A failed load: the files read so far and every diagnostic.
@@ -226,6 +239,7 @@ pub fn load_with(
         parameters: e.parameter_list,
         summary,
         warnings,
+        sheet_cards: e.sheet_cards,
     })
 }
 
@@ -267,6 +281,10 @@ struct Elaborator<'s> {
     costing: Vec<String>,
     /// Sheet-FET cards to check for plausibility: card, where its values are, where it is.
     plausible: Vec<(lamina_devices::SheetFetCard, cards::Given, Span)>,
+    /// Resolved 2D-FET cards by element position, and the card of each device card used
+    /// unchanged (computed once per card).
+    sheet_cards: BTreeMap<usize, Arc<SheetFetCard>>,
+    card_cache: HashMap<String, Arc<SheetFetCard>>,
     /// Largest voltage written in the design (sources, settings), for plausibility checks.
     max_voltage: f64,
 }
@@ -299,6 +317,8 @@ impl<'s> Elaborator<'s> {
             warns: Vec::new(),
             work: 0,
             max_voltage: 0.0,
+            sheet_cards: BTreeMap::new(),
+            card_cache: HashMap::new(),
             plausible: Vec::new(),
             multiplier: 1.0,
             cell_costs: HashMap::new(),
