@@ -4,7 +4,7 @@
 use crate::builtin::Ring;
 use crate::error::JobError;
 use crate::ring::{RingParams, RingReport};
-use lamina_engine::{Circuit, Integrator, OpParams, Probe, Solution, SweepParams, System};
+use lamina_engine::{Circuit, OpParams, Probe, Solution, SweepParams, System};
 use lamina_measure::snm::{butterfly, NoiseMargin};
 use lamina_measure::transfer::{transfer_metrics, TransferMetrics};
 use lamina_netlist::{
@@ -151,18 +151,6 @@ pub fn summary_json(d: &Design) -> serde_json::Value {
         "devices": s.devices,
         "analyses": s.analyses,
     })
-}
-
-/// Parses an integrator name.
-pub fn integrator_named(name: &str) -> Result<Integrator, String> {
-    match name {
-        "trapezoidal" => Ok(Integrator::Trapezoidal),
-        "euler" | "backward_euler" => Ok(Integrator::BackwardEuler),
-        "bdf2" => Ok(Integrator::Bdf2),
-        other => Err(format!(
-            "unknown integrator `{other}`: use trapezoidal, euler or bdf2"
-        )),
-    }
 }
 
 /// The ring a file's `analysis ring { nodes = NAME, stages = N, supply = NODE }` describes
