@@ -142,6 +142,25 @@ impl<'a> Stamp<'a> {
     }
 }
 
+/// A quantity an element reports about its state at an operating point (for insight; the
+/// analyses never read it).
+#[derive(Clone, Debug, PartialEq)]
+pub struct Detail {
+    /// Short name, such as `"electron density at source"`.
+    pub name: &'static str,
+    /// Its value.
+    pub value: DetailValue,
+}
+
+/// The value of a [`Detail`].
+#[derive(Clone, Debug, PartialEq)]
+pub enum DetailValue {
+    /// A number in SI units, with the unit's symbol (`"1/m^2"`, `"V"`).
+    Number(f64, &'static str),
+    /// A one-word classification, such as an operating region.
+    Word(&'static str),
+}
+
 /// A circuit element or device model in charge-oriented form.
 ///
 /// Implementations must be pure functions of the local unknowns and the context: the engine may
@@ -182,6 +201,13 @@ pub trait Element: Send + Sync + std::fmt::Debug {
     /// (used by DC sweeps). Returns false for elements that have no such value.
     fn set_constant_value(&mut self, _value: f64) -> bool {
         false
+    }
+
+    /// Extra quantities at the local unknowns `x` for operating-point reports: carrier
+    /// densities, an operating region, ... (none by default). Currents, conductances and
+    /// capacitances are not listed here: the engine derives them from [`Element::evaluate`].
+    fn details(&self, _x: &[f64]) -> Vec<Detail> {
+        Vec::new()
     }
 
     /// A copy of this element behind a new box (so a sweep can restore a source).

@@ -44,14 +44,19 @@ mod dc;
 pub mod element;
 pub mod elements;
 mod error;
+mod linear;
 pub mod lu;
 mod system;
 mod transient;
 
 pub use circuit::{Circuit, CircuitError, ElementId, NodeId};
 pub use dc::{OpInfo, OpMethod, OpParams, Probe, Solution, SweepParams, SweepResult};
-pub use element::{Analysis, Element, EvalContext, Internal, Stamp, UnknownKind};
+pub use element::{
+    Analysis, Detail, DetailValue, Element, EvalContext, Internal, Stamp, UnknownKind,
+};
 pub use error::{Culprit, EngineError};
+pub use faer::c64;
+pub use linear::{ElementLinearization, Linearization};
 pub use system::{NewtonInfo, NewtonParams, System, Tolerances};
 pub use transient::{
     Control, Decimator, Integrator, Observer, Output, Start, Stepping, TransientParams,

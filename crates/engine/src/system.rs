@@ -27,15 +27,15 @@ pub(crate) const NONE: usize = usize::MAX;
 /// Elements with at most this many local unknowns are evaluated into stack buffers.
 const SMALL: usize = 4;
 
-const NONE32: u32 = u32::MAX;
+pub(crate) const NONE32: u32 = u32::MAX;
 
 /// Where one element's local indices live in the hot-loop layout.
 #[derive(Clone, Copy)]
-struct Plan {
-    map: u32,
-    slot: u32,
-    local: u8,
-    charge: bool,
+pub(crate) struct Plan {
+    pub(crate) map: u32,
+    pub(crate) slot: u32,
+    pub(crate) local: u8,
+    pub(crate) charge: bool,
 }
 
 #[inline]
@@ -206,18 +206,18 @@ impl<'a> Load<'a> {
     }
 }
 
-struct Layout {
+pub(crate) struct Layout {
     /// Per element: start of its local-to-global map in `loc_map`.
-    loc_start: Vec<usize>,
-    loc_map: Vec<usize>,
+    pub(crate) loc_start: Vec<usize>,
+    pub(crate) loc_map: Vec<usize>,
     diag_slot: Vec<usize>,
     /// Slots of each row (for replacing a row by a clamp).
     row_slot_ptr: Vec<usize>,
     row_slots: Vec<usize>,
     /// Hot-loop copies: per-element plans and 32-bit index lists.
-    plan: Vec<Plan>,
-    map32: Vec<u32>,
-    slots32: Vec<u32>,
+    pub(crate) plan: Vec<Plan>,
+    pub(crate) map32: Vec<u32>,
+    pub(crate) slots32: Vec<u32>,
 }
 
 /// A circuit compiled for analysis: fixed pattern, buffers and the LU solver.
@@ -233,8 +233,8 @@ pub struct System {
     pub(crate) kinds: Vec<UnknownKind>,
     unknown_names: Vec<String>,
     unknown_owner: Vec<Option<usize>>,
-    layout: Layout,
-    pattern: SymbolicSparseColMat<usize>,
+    pub(crate) layout: Layout,
+    pub(crate) pattern: SymbolicSparseColMat<usize>,
     pub(crate) charge_rows: Vec<usize>,
     pub(crate) breakpoint_elements: Vec<usize>,
     // Assembly outputs.
