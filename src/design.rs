@@ -4,7 +4,7 @@
 use crate::builtin::Ring;
 use crate::error::JobError;
 use crate::ring::{RingParams, RingReport};
-use lamina_engine::{Circuit, OpParams, Probe, Solution, SweepParams, System};
+use lamina_engine::{Circuit, OpParams, Probe, SweepParams, System};
 use lamina_measure::snm::{butterfly, NoiseMargin};
 use lamina_measure::transfer::{transfer_metrics, TransferMetrics};
 use lamina_netlist::{
@@ -221,7 +221,7 @@ pub fn ring_from(
 /// What one declared analysis produced.
 pub enum Outcome {
     /// Node voltages of the operating point.
-    OperatingPoint(Vec<(String, f64)>),
+    OperatingPoint(crate::op::OpReport),
     /// A transfer curve and its points.
     Transfer {
         /// Input values.
@@ -290,16 +290,8 @@ pub fn run_all(
 fn run_static(design: Design, a: &AnalysisDecl) -> Result<Outcome, String> {
     Ok(match a.kind.as_str() {
         "operating_point" => {
-            let names: Vec<String> = design
-                .circuit
-                .nodes()
-                .map(|n| design.circuit.node_name(n).to_string())
-                .collect();
             let mut sys = System::new(design.circuit).map_err(|e| e.to_string())?;
-            let (sol, _): (Solution, _) = sys
-                .operating_point(&OpParams::default())
-                .map_err(|e| e.to_string())?;
-            Outcome::OperatingPoint(names.into_iter().zip(sol.x.iter().copied()).collect())
+            Outcome::OperatingPoint(crate::op::operating_point(&mut sys)?)
         }
         "transfer" => {
             let Analysis::Transfer {

@@ -10,6 +10,8 @@
 //! * [`plot`] and [`output`]: pictures (SVG and PNG) and data files, each written whole.
 //! * [`design`]: jobs on circuit files: load with `--set` overrides, the check summary, and the
 //!   analyses a file declares.
+//! * [`op`]: the operating point with source powers and each FET's currents, small-signal
+//!   figures and region.
 //! * [`delay`]: the delay job: propagation delays, polarity, rise and fall times of a path.
 //!
 //! Results are model estimates; check them against measurement and your process's rules
@@ -23,6 +25,7 @@ pub mod delay;
 pub mod design;
 pub mod error;
 pub mod iv;
+pub mod op;
 pub mod output;
 pub mod plot;
 pub mod ring;

@@ -274,8 +274,8 @@ fn figures(kind: &str, o: &Outcome) -> Vec<(String, f64)> {
         }
     };
     match o {
-        Outcome::OperatingPoint(v) => {
-            for (n, x) in v {
+        Outcome::OperatingPoint(op) => {
+            for (n, x) in &op.nodes {
                 put(&format!("{n}_v"), Some(*x));
             }
         }

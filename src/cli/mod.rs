@@ -83,12 +83,10 @@ pub(crate) fn print_single(kind: &str, outcome: &Outcome, json: bool) {
 
 pub(crate) fn outcome_json(kind: &str, o: &Outcome) -> serde_json::Value {
     match o {
-        Outcome::OperatingPoint(v) => {
-            let map: serde_json::Map<String, serde_json::Value> = v
-                .iter()
-                .map(|(n, x)| (n.clone(), serde_json::json!(x)))
-                .collect();
-            serde_json::json!({ "analysis": kind, "node_voltages_v": map })
+        Outcome::OperatingPoint(op) => {
+            let mut j = crate::op::json(op);
+            j["analysis"] = serde_json::json!(kind);
+            j
         }
         Outcome::Transfer {
             vin,
@@ -142,12 +140,7 @@ pub(crate) fn outcome_json(kind: &str, o: &Outcome) -> serde_json::Value {
 
 pub(crate) fn print_outcome(o: &Outcome) {
     match o {
-        Outcome::OperatingPoint(v) => {
-            out!("operating point (model estimate)");
-            for (n, x) in v {
-                out!("  {n:<24} {x:>14.6} V");
-            }
-        }
+        Outcome::OperatingPoint(op) => out!("{}", crate::op::text(op).trim_end()),
         Outcome::Transfer {
             vin, metrics, snm, ..
         } => {

@@ -54,6 +54,13 @@ pub(crate) fn write_run(dir: &Path, results: &[(String, Outcome)]) -> Result<(),
             Outcome::Delay(d) => {
                 super::delay::write_delay(&dir.join(format!("{kind}-{}", k + 1)), d)?
             }
+            Outcome::OperatingPoint(op) => {
+                let sub = dir.join(format!("{kind}-{}", k + 1));
+                ensure_dir(&sub)?;
+                for (name, body) in crate::op::csv(op) {
+                    write_file(&sub.join(name), body.as_bytes())?;
+                }
+            }
             _ => {}
         }
     }

@@ -108,6 +108,8 @@ use crate::physics::{
 use lamina_engine::{Element, EvalContext, Internal, Stamp, UnknownKind};
 use std::sync::{Arc, Mutex, Weak};
 
+mod insight;
+
 /// The gate electrode.
 #[derive(Clone, Debug, PartialEq)]
 pub enum Gate {
@@ -2039,6 +2041,10 @@ impl Element for SheetFet {
         if let Some(si) = si {
             out.branch_current(2, si, self.g_source * (x[2] - x[si]), self.g_source);
         }
+    }
+
+    fn details(&self, x: &[f64]) -> Vec<lamina_engine::Detail> {
+        self.insight(x)
     }
 
     fn boxed_clone(&self) -> Box<dyn Element> {

@@ -215,6 +215,35 @@ impl Element for SquareLawFet {
         }
     }
 
+    /// The region of the square law: `off` for `V_GS - V_T <= 0` (mirrored for a p device,
+    /// source being the lower end), `linear` for `V_DS < V_GS - V_T`, else `saturation`.
+    fn details(&self, x: &[f64]) -> Vec<lamina_engine::Detail> {
+        let sign = match self.polarity {
+            Polarity::N => 1.0,
+            Polarity::P => -1.0,
+        };
+        let (vd, vg, vs) = (sign * x[0], sign * x[1], sign * x[2]);
+        let (v_hi, v_lo) = if vd >= vs { (vd, vs) } else { (vs, vd) };
+        let ov = vg - v_lo - self.vt_n;
+        let region = if ov <= 0.0 {
+            "off"
+        } else if v_hi - v_lo < ov {
+            "linear"
+        } else {
+            "saturation"
+        };
+        vec![
+            lamina_engine::Detail {
+                name: "region",
+                value: lamina_engine::DetailValue::Word(region),
+            },
+            lamina_engine::Detail {
+                name: "overdrive",
+                value: lamina_engine::DetailValue::Number(ov, "V"),
+            },
+        ]
+    }
+
     fn boxed_clone(&self) -> Box<dyn Element> {
         Box::new(self.clone())
     }

@@ -305,6 +305,31 @@ impl System {
         Ok(self.elements[element.index()].details(&lin.x))
     }
 
+    /// Every element, in circuit order.
+    pub fn elements(&self) -> impl Iterator<Item = ElementId> {
+        (0..self.elements.len()).map(ElementId)
+    }
+
+    /// An element's name.
+    pub fn element_label(&self, element: ElementId) -> &str {
+        self.element_name(element.index())
+    }
+
+    /// An element's kind, such as `"resistor"`.
+    pub fn element_kind(&self, element: ElementId) -> &'static str {
+        self.elements[element.index()].kind()
+    }
+
+    /// An element's terminal names.
+    pub fn element_terminals(&self, element: ElementId) -> &'static [&'static str] {
+        self.elements[element.index()].terminals()
+    }
+
+    /// Whether an element is an independent source.
+    pub fn is_independent_source(&self, element: ElementId) -> bool {
+        self.elements[element.index()].is_independent_source()
+    }
+
     fn check_len(&self, x: &[f64]) -> Result<(), EngineError> {
         if x.len() == self.n {
             Ok(())
