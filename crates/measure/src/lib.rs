@@ -9,6 +9,8 @@
 //! * [`waveform`]: transitions between settled levels (`transitions`), each output transition
 //!   paired with the input transition that caused it and the path's polarity (`path_delays`),
 //!   transition times, propagation delays, average power over a window.
+//! * [`lsq`]: bounded least squares with standard errors, correlations and the parameter
+//!   combinations the data cannot determine (for calibration).
 //! * [`device`]: subthreshold swing (also above a current floor, with its rounding), threshold
 //!   voltage (constant current, maximum g_m), currents and slopes at given biases.
 //!
@@ -23,6 +25,7 @@
 #![deny(missing_docs)]
 
 pub mod device;
+pub mod lsq;
 mod period;
 pub mod snm;
 pub mod transfer;
