@@ -114,7 +114,7 @@ pub fn find_fet(c: &Circuit) -> Result<ElementId, String> {
         [one] => Ok(*one),
         [] => Err("the file has no FET (an element with drain, gate and source pins)".into()),
         many => Err(format!(
-            "the file has {} FETs; `lamina iv` takes a file with one",
+            "the file has {} FETs; `lamina iv` and `lamina cv` take a file with one",
             many.len()
         )),
     }
@@ -130,7 +130,11 @@ fn driving_source(c: &Circuit, node: NodeId) -> Option<ElementId> {
 /// gate not at ground. A file without it has an error of its own, not a failed analysis.
 pub fn check_device(design: &Design) -> Result<(), String> {
     let c = &design.circuit;
-    let fet = find_fet(c)?;
+    check_pins(c, find_fet(c)?)
+}
+
+/// The FET's source at ground, its drain and gate not.
+fn check_pins(c: &Circuit, fet: ElementId) -> Result<(), String> {
     let pins = c.element_pins(fet);
     if !pins[2].is_ground() {
         return Err(format!(
@@ -145,32 +149,45 @@ pub fn check_device(design: &Design) -> Result<(), String> {
     Ok(())
 }
 
-/// Runs the grid: for each gate voltage, a DC sweep of the drain voltage.
-pub fn run_iv(design: Design, vgs: &[f64], vds: &[f64]) -> Result<Vec<IvPoint>, String> {
-    let mut c = design.circuit;
-    let fet = find_fet(&c)?;
-    let pins = c.element_pins(fet).to_vec();
-    let (drain, gate, source) = (pins[0], pins[1], pins[2]);
-    if !source.is_ground() {
-        return Err(format!(
-            "the FET `{}` must have its source at ground, not at `{}`",
-            c.element_name(fet),
-            c.node_name(source)
-        ));
-    }
-    if drain.is_ground() || gate.is_ground() {
-        return Err("the FET's drain and gate must not be at ground".into());
-    }
+/// The file's one FET and the voltage sources on its gate and drain.
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct Driven {
+    /// The FET.
+    pub fet: ElementId,
+    /// The source driving its gate from ground.
+    pub gate: ElementId,
+    /// The source driving its drain from ground.
+    pub drain: ElementId,
+}
+
+/// Finds the circuit's one FET (its source at ground, drain and gate not) and the voltage
+/// sources driving its gate and drain from ground: the file's own where it has one, else one
+/// added as `JOB.gate` or `JOB.drain` at 0 V.
+pub(crate) fn drive(c: &mut Circuit, job: &str) -> Result<Driven, String> {
+    let fet = find_fet(c)?;
+    check_pins(c, fet)?;
+    let (drain, gate) = (c.element_pins(fet)[0], c.element_pins(fet)[1]);
     let mut source_for = |node: NodeId, name: &str| -> Result<ElementId, String> {
-        match driving_source(&c, node) {
+        match driving_source(c, node) {
             Some(e) => Ok(e),
             None => c
                 .add(name, VoltageSource::dc(0.0), &[node, Circuit::GROUND])
                 .map_err(|e| e.to_string()),
         }
     };
-    let vg_src = source_for(gate, "iv.gate")?;
-    let vd_src = source_for(drain, "iv.drain")?;
+    let gate = source_for(gate, &format!("{job}.gate"))?;
+    let drain = source_for(drain, &format!("{job}.drain"))?;
+    Ok(Driven { fet, gate, drain })
+}
+
+/// Runs the grid: for each gate voltage, a DC sweep of the drain voltage.
+pub fn run_iv(design: Design, vgs: &[f64], vds: &[f64]) -> Result<Vec<IvPoint>, String> {
+    let mut c = design.circuit;
+    let Driven {
+        gate: vg_src,
+        drain: vd_src,
+        ..
+    } = drive(&mut c, "iv")?;
     let mut sys = System::new(c).map_err(|e| e.to_string())?;
     let mut out = Vec::with_capacity(vgs.len() * vds.len());
     let probe = [Probe::Current(vd_src)];

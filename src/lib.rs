@@ -6,6 +6,7 @@
 //! * [`ring`]: the ring-oscillator job: start-up with a single circulating edge, a transient
 //!   that stops once enough periods have been seen, and the frequency measurement.
 //! * [`iv`]: device curves of the one FET in a file.
+//! * [`cv`]: gate capacitances and the gate stack's parts of the one 2D-channel FET in a file.
 //! * [`sweep`]: a file's analyses over a grid of parameter values, in parallel.
 //! * [`plot`] and [`output`]: pictures (SVG and PNG) and data files, each written whole.
 //! * [`design`]: jobs on circuit files: load with `--set` overrides, the check summary, and the
@@ -21,6 +22,7 @@
 
 pub mod builtin;
 pub mod cli;
+pub mod cv;
 pub mod delay;
 pub mod design;
 pub mod error;

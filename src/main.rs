@@ -32,6 +32,8 @@ enum Job {
     Check(cli::check::Args),
     /// Drain current of the one FET in a file over gate and drain voltages, source grounded.
     Iv(cli::iv::Args),
+    /// Gate capacitances and the gate stack's parts of the one 2D-channel FET in a file.
+    Cv(cli::cv::Args),
     /// Transfer curve, switching threshold and noise margins from a file's `analysis transfer`.
     Vtc(cli::vtc::Args),
     /// Gate delay from a file's `analysis delay { from = ..., to = ..., stop = ... }`.
@@ -48,6 +50,7 @@ fn main() -> ExitCode {
         Job::Ring(a) => cli::ring::run(a),
         Job::Check(a) => cli::check::run(a),
         Job::Iv(a) => cli::iv::run(a),
+        Job::Cv(a) => cli::cv::run(a),
         Job::Vtc(a) => cli::vtc::run(a),
         Job::Delay(a) => cli::delay::run(a),
         Job::Sweep(a) => cli::sweep::run(a),

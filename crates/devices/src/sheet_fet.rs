@@ -61,7 +61,9 @@
 //! Dirac gate that cannot carry the charge within ±20 eV). Inside
 //! [`SheetModel::valid_u_range`] currents, charges and their derivatives agree with the direct
 //! solve within 1e-6 relative (measured 2e-8 for the thick back gate at ±100 V; below 30 K
-//! the capped core is coarser, see below). Beyond it σ
+//! the capped core is coarser, see below), except the slope of ρ (a gate capacitance) between
+//! core knots: within 1e-5, the slope of a cubic on an exponential (measured 8.2e-6 in
+//! subthreshold at 300 K; exact at the knots). Beyond it σ
 //! and ρ continue linearly with their end slopes (σ never falling away from the tables) and
 //! `S`, `A`, `B` as their exact integrals: C¹ at the end, exact for a degenerate channel under
 //! a metal gate, but no longer the solved physics; a caller detects this by comparing
@@ -583,6 +585,9 @@ pub struct LocalState {
     pub gate_quantum_capacitance: f64,
     /// Gate charge per area (C/m²).
     pub gate_charge: f64,
+    /// A Dirac gate's Fermi level above its neutral point, `μ_g / q` (V), as its charge
+    /// balance solves it; `None` for a metal gate, whose level does not move with its charge.
+    pub gate_level: Option<f64>,
     /// `du/dξ`.
     pub du_dxi: f64,
     /// `dσ/du` (S/V).
@@ -683,11 +688,12 @@ impl Stack {
         let drho = Q * (dp_dxi - dn_dxi) - self.trap_c;
         let qg = -(rho + self.q_const);
         let cq_ch = Q * (dn_dxi - dp_dxi);
-        let (u, du, cq_g, gate_ok) = match self.dirac {
+        let (u, du, cq_g, gate_level, gate_ok) = match self.dirac {
             None => (
                 xi + self.offset + qg / self.c_ins,
                 1.0 - drho / self.c_ins,
                 f64::INFINITY,
+                None,
                 true,
             ),
             Some((pre, delta, shift, n_res)) => {
@@ -704,6 +710,7 @@ impl Stack {
                     xi + self.offset - mu / Q + qg / self.c_ins,
                     1.0 - dmu - drho / self.c_ins,
                     cq,
+                    Some(mu / Q),
                     ok,
                 )
             }
@@ -728,6 +735,7 @@ impl Stack {
             channel_quantum_capacitance: cq_ch,
             gate_quantum_capacitance: cq_g,
             gate_charge: qg,
+            gate_level,
             du_dxi: du,
             dsigma_du: dsigma_dxi / du,
             drho_du: drho / du,
@@ -1768,6 +1776,14 @@ impl SheetModel {
     pub fn insulator_capacitance(&self) -> f64 {
         self.stack.c_ins
     }
+
+    /// Interface trap capacitance per area, `q D_it` (F/m²): constant, because the trap
+    /// density per energy is (see the module docs). It sits in parallel with the channel's
+    /// quantum capacitance, so at one point of the channel
+    /// `dρ/du = -1 / (1/C_ins + 1/C_Qg + 1/(C_Qch + C_it))` (`1/C_Qg = 0` for a metal gate).
+    pub fn trap_capacitance(&self) -> f64 {
+        self.stack.trap_c
+    }
 }
 
 /// Gauss-Legendre nodes and weights on [0, 1], four points.
@@ -1871,6 +1887,22 @@ impl SheetFet {
     /// The shared stack model.
     pub fn model(&self) -> &SheetModel {
         &self.model
+    }
+
+    /// Overlap or fringe capacitance of one side, gate to drain or gate to source (F): the
+    /// card's value per width times the width.
+    pub fn overlap_capacitance(&self) -> f64 {
+        self.overlap
+    }
+
+    /// The intrinsic channel's drain and source voltages `(V_D', V_S')` (V) from the element's
+    /// local unknowns `x` (terminal voltages, then the internal nodes [`Element::internals`]
+    /// names): behind the contact resistances where the card has them, the terminals' own
+    /// voltages otherwise. The channel's ends are then at `u = V_G - V_S'` and `V_G - V_D'`.
+    /// `None` when `x` is shorter than the element's local unknowns.
+    pub fn channel_voltages(&self, x: &[f64]) -> Option<(f64, f64)> {
+        let (di, si) = self.layout();
+        Some((*x.get(di.unwrap_or(0))?, *x.get(si.unwrap_or(2))?))
     }
 
     /// Intrinsic current and charges at internal drain, gate and source voltages.
