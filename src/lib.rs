@@ -10,6 +10,8 @@
 //! * [`plot`] and [`output`]: pictures (SVG and PNG) and data files, each written whole.
 //! * [`design`]: jobs on circuit files: load with `--set` overrides, the check summary, and the
 //!   analyses a file declares.
+//! * [`describe`]: resolved 2D-FET cards with the origin of every value, and figures derived
+//!   from the stack (EOT, flat-band and threshold voltages), for `check --verbose`.
 //! * [`delay`]: the delay job: propagation delays, polarity, rise and fall times of a path.
 //!
 //! Results are model estimates; check them against measurement and your process's rules
@@ -20,6 +22,7 @@
 pub mod builtin;
 pub mod cli;
 pub mod delay;
+pub mod describe;
 pub mod design;
 pub mod error;
 pub mod iv;

@@ -7,6 +7,7 @@
 pub mod check;
 pub mod delay;
 pub mod iv;
+pub mod materials;
 pub mod ring;
 pub mod run;
 pub mod sweep;
