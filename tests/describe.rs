@@ -150,6 +150,7 @@ device bp : sheet_fet { channel = BP, transport_direction = armchair, insulator 
 voltage_source vg (pos = g, neg = ground) { dc = 0.5 V }
 hot a (drain = g, gate = g, source = ground)
 bp b (drain = g, gate = g, source = ground)
+hot c (drain = g, gate = g, source = ground) { mobility_reference_temperature = 300 K }
 ";
     let d = load_source("t.lam", text, &LoadOptions::default()).unwrap_or_else(|e| panic!("{e}"));
     let (cards, _) = describe(&d).unwrap();
@@ -166,6 +167,21 @@ bp b (drain = g, gate = g, source = ground)
     let (o, t) = origin(&cards[1], "electron_mass_along");
     assert_eq!(o, &library("BP", "electron_mass_armchair"));
     assert_eq!(t, along);
+    // Mobility inputs are listed only where the mobility model uses them: the library's
+    // exponent once a reference temperature makes the power law act, the phonon inputs
+    // only under the phonon model.
+    let listed = |c: &Described, key: &str| c.values.iter().any(|v| v.key == key);
+    assert!(!listed(&cards[0], "electron_mobility_exponent"));
+    assert!(listed(&cards[0], "electron_mobility"));
+    assert!(!listed(&cards[1], "elastic_modulus"));
+    assert_eq!(
+        origin(&cards[2], "electron_mobility_exponent"),
+        (&library("MoS2", "electron_mobility_exponent"), 1.69)
+    );
+    assert_eq!(
+        origin(&cards[2], "mobility_reference_temperature"),
+        (&Origin::Instance, 300.0)
+    );
 }
 
 fn sio2_card(thickness: f64, work_function: f64) -> SheetFetCard {

@@ -186,11 +186,11 @@ fn print_card(c: &Described) {
         if c.element_count == 1 { "" } else { "s" }
     );
     for (key, name, s) in &c.names {
-        out!("  {key:<36} {name:<14} {:<10} {}", "", setter(*s));
+        out!("  {key:<36} {name:>16} {:<10} {}", "", setter(*s));
     }
     for v in &c.values {
         out!(
-            "  {:<36} {:>14} {:<10} {}",
+            "  {:<36} {:>16} {:<10} {}",
             v.key,
             num(v.value),
             v.unit,
@@ -200,7 +200,7 @@ fn print_card(c: &Described) {
     let f = &c.figures;
     out!("  derived (model estimates)");
     let line = |what: &str, value: String, unit: &str| {
-        out!("    {what:<34} {value:>14} {unit}");
+        out!("    {what:<34} {value:>16} {unit}");
     };
     line(
         "insulator capacitance C_ins",

@@ -109,7 +109,7 @@ pub const SECTIONS: [&str; 3] = ["channels", "insulators", "gates"];
 pub struct LibraryValue {
     /// Its key in the entry (`band_gap`, `electron_mass_armchair`, ...).
     pub key: &'static str,
-    /// The number, in [`unit`]`(key)`.
+    /// The number, in the unit [`unit()`] gives for `key`.
     pub value: f64,
     /// The range its source gives, where the library records one (the value is a
     /// representative inside it).

@@ -1038,7 +1038,10 @@ pub struct CardValue {
 
 /// Every value of the resolved card `card` with where it came from, grouped as a reader
 /// wants them: channel, doping and traps, gate, insulator layers, geometry and transport,
-/// mobility options. Optional values are listed only where the card has them.
+/// mobility inputs. Optional values are listed only where the card has them, and mobility
+/// inputs only where the card's mobility model uses them (a library channel's phonon inputs
+/// mean nothing to the power law, say); the mobility each carrier then uses is the device's
+/// [`SheetFet::mobility_report`].
 pub fn resolved_values(card: &SheetFetCard, o: &CardOrigins) -> Vec<CardValue> {
     let mut rows = Vec::new();
     let by = |key: &str| match o.setter(key) {
@@ -1260,8 +1263,6 @@ pub fn resolved_values(card: &SheetFetCard, o: &CardOrigins) -> Vec<CardValue> {
         ("temperature", card.temperature, "K"),
         ("width", card.width, "m"),
         ("length", card.length, "m"),
-        ("electron_mobility", card.electron_mobility, "m²/(V s)"),
-        ("hole_mobility", card.hole_mobility, "m²/(V s)"),
         ("saturation_velocity", card.saturation_velocity, "m/s"),
         ("saturation_exponent", card.saturation_exponent, "1"),
         ("source_resistance", card.source_resistance, "Ω m"),
@@ -1270,17 +1271,33 @@ pub fn resolved_values(card: &SheetFetCard, o: &CardOrigins) -> Vec<CardValue> {
     ] {
         push(key, value, unit, by(key).unwrap_or(Origin::Default));
     }
-    // Mobility options: the exponents always (the library may give them), the rest where set.
+    // Mobility inputs, only those the card's mobility model uses: the power law's mobilities
+    // (and its exponents with a reference temperature), the phonon model's inputs.
     let m = &card.mobility;
-    if let Some(t) = m.reference_temperature {
+    let power_law = m.model == LatticeModel::PowerLaw;
+    if power_law {
+        for (key, value) in [
+            ("electron_mobility", card.electron_mobility),
+            ("hole_mobility", card.hole_mobility),
+        ] {
+            push(key, value, "m²/(V s)", by(key).unwrap_or(Origin::Default));
+        }
+    }
+    if let (Some(t), true) = (m.reference_temperature, power_law) {
         let key = "mobility_reference_temperature";
         push(key, t, "K", by(key).unwrap_or(Origin::Default));
     }
     for (carrier, c) in [("electron", &m.electron), ("hole", &m.hole)] {
-        let key = format!("{carrier}_mobility_exponent");
-        push(&key, c.exponent, "1", plain(&key, "channels", channel));
+        if power_law && m.reference_temperature.is_some() {
+            let key = format!("{carrier}_mobility_exponent");
+            push(&key, c.exponent, "1", plain(&key, "channels", channel));
+        }
         let optional = [
-            ("deformation_potential", c.deformation_potential, "eV"),
+            (
+                "deformation_potential",
+                c.deformation_potential.filter(|_| !power_law),
+                "eV",
+            ),
             ("impurity_mobility", c.impurity_mobility, "m²/(V s)"),
             (
                 "mobility_density_reference",
@@ -1300,7 +1317,7 @@ pub fn resolved_values(card: &SheetFetCard, o: &CardOrigins) -> Vec<CardValue> {
             }
         }
     }
-    if let Some(c) = m.elastic_modulus {
+    if let (Some(c), false) = (m.elastic_modulus, power_law) {
         push(
             "elastic_modulus",
             c,
