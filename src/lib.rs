@@ -13,6 +13,8 @@
 //!   analyses a file declares.
 //! * [`op`]: the operating point with source powers and each FET's currents, small-signal
 //!   figures and region.
+//! * [`describe`]: resolved 2D-FET cards with the origin of every value, and figures derived
+//!   from the stack (EOT, flat-band and threshold voltages), for `check --verbose`.
 //! * [`delay`]: the delay job: propagation delays, polarity, rise and fall times of a path.
 //!
 //! Results are model estimates; check them against measurement and your process's rules
@@ -24,6 +26,7 @@ pub mod builtin;
 pub mod cli;
 pub mod cv;
 pub mod delay;
+pub mod describe;
 pub mod design;
 pub mod error;
 pub mod iv;

@@ -42,6 +42,8 @@ enum Job {
     Sweep(cli::sweep::Args),
     /// Run every analysis a circuit file declares.
     Run(cli::run::Args),
+    /// The material library: channels, insulators and gates with values, units and sources.
+    Materials(cli::materials::Args),
 }
 
 fn main() -> ExitCode {
@@ -55,6 +57,7 @@ fn main() -> ExitCode {
         Job::Delay(a) => cli::delay::run(a),
         Job::Sweep(a) => cli::sweep::run(a),
         Job::Run(a) => cli::run::run(a),
+        Job::Materials(a) => cli::materials::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

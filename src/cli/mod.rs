@@ -8,6 +8,7 @@ pub mod check;
 pub mod cv;
 pub mod delay;
 pub mod iv;
+pub mod materials;
 pub mod ring;
 pub mod run;
 pub mod sweep;

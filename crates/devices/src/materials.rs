@@ -101,6 +101,78 @@ pub fn source(section: &str, name: &str, key: &str) -> Option<&'static str> {
     data()[section][name][key]["source"].as_str()
 }
 
+/// The library's three sections, in the order a listing shows them.
+pub const SECTIONS: [&str; 3] = ["channels", "insulators", "gates"];
+
+/// One value of a library entry, as the file holds it.
+#[derive(Clone, Debug, PartialEq)]
+pub struct LibraryValue {
+    /// Its key in the entry (`band_gap`, `electron_mass_armchair`, ...).
+    pub key: &'static str,
+    /// The number, in the unit [`unit()`] gives for `key`.
+    pub value: f64,
+    /// The range its source gives, where the library records one (the value is a
+    /// representative inside it).
+    pub range: Option<(f64, f64)>,
+    /// The cited source.
+    pub source: &'static str,
+}
+
+/// Every numeric value of the entry `name` in `section` (one of [`SECTIONS`]), in key order,
+/// or the message naming the known entries.
+pub fn values(section: &str, name: &str) -> Result<Vec<LibraryValue>, String> {
+    let e = entry(section, name)?;
+    Ok(e.as_object()
+        .into_iter()
+        .flatten()
+        .filter_map(|(key, v)| {
+            let range = match v["range"].as_array().map(Vec::as_slice) {
+                Some([lo, hi]) => lo.as_f64().zip(hi.as_f64()),
+                _ => None,
+            };
+            Some(LibraryValue {
+                key: key.as_str(),
+                value: v["value"].as_f64()?,
+                range,
+                source: v["source"].as_str()?,
+            })
+        })
+        .collect())
+}
+
+/// The kind of the library gate `name`: `metal` or `dirac`.
+pub fn gate_kind(name: &str) -> Option<&'static str> {
+    data()["gates"][name]["kind"].as_str()
+}
+
+/// The unit of a library key (see the file's `about`): `eV` for energies, `m0` for masses in
+/// free-electron masses, `1` for pure numbers (degeneracies, exponents, relative
+/// permittivities), SI otherwise. `None` for a key the library does not use.
+pub fn unit(key: &str) -> Option<&'static str> {
+    const UNITS: &[(&str, &str)] = &[
+        ("varshni_alpha", "eV/K"),
+        ("varshni_beta", "K"),
+        ("mobility_exponent", "1"),
+        ("mass", "m0"),
+        ("degeneracy", "1"),
+        ("gap", "eV"),
+        ("electron_affinity", "eV"),
+        ("ionisation_energy", "eV"),
+        ("offset", "eV"),
+        ("deformation_potential", "eV"),
+        ("work_function", "eV"),
+        ("elastic_modulus", "J/m²"),
+        ("permittivity", "1"),
+        ("layer_thickness", "m"),
+        ("breakdown_field", "V/m"),
+        ("fermi_velocity", "m/s"),
+    ];
+    UNITS
+        .iter()
+        .find(|(stem, _)| key.contains(stem))
+        .map(|(_, unit)| *unit)
+}
+
 /// Sets the channel fields of `card` from the library's `name`, an isotropic channel (an
 /// anisotropic one needs a transport direction: [`apply_channel_along`]).
 pub fn apply_channel(card: &mut SheetFetCard, name: &str) -> Result<(), String> {
@@ -408,6 +480,32 @@ mod tests {
         assert!(apply_channel(&mut SheetFetCard::default(), "MoS3")
             .unwrap_err()
             .contains("MoS2"));
+    }
+
+    /// Every value of every entry is listed with a unit, its number and its source, and the
+    /// listing agrees with the accessors the card builder uses.
+    #[test]
+    fn every_value_is_listed_with_a_unit() {
+        for section in SECTIONS {
+            for name in names(section) {
+                let listed = values(section, &name).unwrap();
+                let keys = data()[section][&name].as_object().unwrap();
+                // Every key but a gate's `kind` is a number with a source.
+                assert_eq!(listed.len(), keys.len() - usize::from(section == "gates"));
+                for v in &listed {
+                    assert!(unit(v.key).is_some(), "{section}/{name}/{}", v.key);
+                    assert_eq!(Some(v.source), source(section, &name, v.key));
+                }
+            }
+        }
+        let eps = values("insulators", "HfO2").unwrap();
+        let eps = eps.iter().find(|v| v.key == "permittivity").unwrap();
+        assert_eq!(eps.range, permittivity_range("HfO2"));
+        assert_eq!(unit("electron_mass_armchair"), Some("m0"));
+        assert_eq!(unit("valley2_offset"), Some("eV"));
+        assert_eq!(gate_kind("graphene"), Some("dirac"));
+        assert_eq!(gate_kind("Au"), Some("metal"));
+        assert!(values("gates", "Aum").unwrap_err().contains("Au"));
     }
 
     /// Optional mobility keys of an entry reach the card: isotropic exponents, and values per

@@ -914,3 +914,416 @@ fn square(p: Polarity, v: &Values) -> SquareLawFet {
 pub fn kind(name: &str) -> Option<&'static Kind> {
     KINDS.iter().find(|k| k.name == name)
 }
+
+/// Who set a parameter of a 2D-FET element.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Setter {
+    /// Nobody: the library or the model's default supplies it.
+    Unset,
+    /// The device card.
+    Card,
+    /// The instance (or, for a `sheet_fet` placed without a device card, its own values).
+    Instance,
+}
+
+/// Which parameters of one 2D-FET element its device card and its instance set, and the
+/// names they gave: enough to say where each value of the element's resolved card came from
+/// ([`resolved_values`]). Kept beside the resolved card by the elaborator, shared like it
+/// between the instances of a card that change nothing.
+#[derive(Clone, Debug, PartialEq)]
+pub struct CardOrigins {
+    device: String,
+    setters: Vec<Setter>,
+    texts: Vec<Option<String>>,
+}
+
+impl CardOrigins {
+    /// The origins of `v`, the values a `sheet_fet` element of device card (or kind) `device`
+    /// was built from; `by_instance` says whether the instance set a parameter.
+    pub fn new(device: &str, v: &Values, by_instance: impl Fn(&str) -> bool) -> Self {
+        let setters = SHEET_PARAMS
+            .iter()
+            .enumerate()
+            .map(|(i, spec)| {
+                let given = v.given.get(i).copied().unwrap_or(false)
+                    || v.texts.get(i).is_some_and(Option::is_some);
+                match (given, by_instance(spec.name)) {
+                    (false, _) => Setter::Unset,
+                    (true, true) => Setter::Instance,
+                    (true, false) => Setter::Card,
+                }
+            })
+            .collect();
+        CardOrigins {
+            device: device.to_string(),
+            setters,
+            texts: v.texts.clone(),
+        }
+    }
+
+    /// The device card the element was placed from (`sheet_fet` for one placed directly).
+    pub fn device(&self) -> &str {
+        &self.device
+    }
+
+    /// Who set the parameter `name` (`Unset` for a name that is no parameter).
+    pub fn setter(&self, name: &str) -> Setter {
+        SHEET_PARAMS
+            .iter()
+            .position(|p| p.name == name)
+            .and_then(|i| self.setters.get(i).copied())
+            .unwrap_or(Setter::Unset)
+    }
+
+    /// The name given for the name-valued parameter `name` (`channel`, `gate`, ...).
+    pub fn text(&self, name: &str) -> Option<&str> {
+        SHEET_PARAMS
+            .iter()
+            .position(|p| p.name == name)
+            .and_then(|i| self.texts.get(i))
+            .and_then(|t| t.as_deref())
+    }
+
+    /// The name-valued parameters that were given, with their names and who set them.
+    pub fn names(&self) -> Vec<(&'static str, &str, Setter)> {
+        SHEET_PARAMS
+            .iter()
+            .zip(&self.texts)
+            .zip(&self.setters)
+            .filter_map(|((p, t), s)| t.as_deref().map(|t| (p.name, t, *s)))
+            .collect()
+    }
+}
+
+/// Where one value of a resolved 2D-FET card came from.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Origin {
+    /// The instance set it.
+    Instance,
+    /// The device card set it.
+    Card,
+    /// The material library's entry `entry` in `section`, under `key`; `note` says how the
+    /// library value was adjusted, if it was.
+    Library {
+        /// `channels`, `insulators` or `gates`.
+        section: &'static str,
+        /// The entry (`MoS2`, ...).
+        entry: String,
+        /// The library key (`band_gap`, `electron_mass_armchair`, ...).
+        key: String,
+        /// How the value was adjusted (a temperature fit, say), if it was.
+        note: Option<String>,
+    },
+    /// Computed from other values, as said.
+    Derived(String),
+    /// The model's default.
+    Default,
+}
+
+/// One value of a resolved 2D-FET card: the card key that sets it, its value in `unit` (the
+/// card's own units: eV for energies, free-electron masses `m0`, `1` for pure numbers, SI
+/// otherwise) and where it came from.
+#[derive(Clone, Debug, PartialEq)]
+pub struct CardValue {
+    /// The card key (`insulator_breakdown_field` and `insulator2_breakdown_field`, which the
+    /// library supplies and no card sets, are named after their layer).
+    pub key: String,
+    /// The value.
+    pub value: f64,
+    /// Its unit.
+    pub unit: &'static str,
+    /// Where it came from.
+    pub origin: Origin,
+}
+
+/// Every value of the resolved card `card` with where it came from, grouped as a reader
+/// wants them: channel, doping and traps, gate, insulator layers, geometry and transport,
+/// mobility inputs. Optional values are listed only where the card has them, and mobility
+/// inputs only where the card's mobility model uses them (a library channel's phonon inputs
+/// mean nothing to the power law, say); the mobility each carrier then uses is the device's
+/// [`SheetFet::mobility_report`].
+pub fn resolved_values(card: &SheetFetCard, o: &CardOrigins) -> Vec<CardValue> {
+    let mut rows = Vec::new();
+    let by = |key: &str| match o.setter(key) {
+        Setter::Card => Some(Origin::Card),
+        Setter::Instance => Some(Origin::Instance),
+        Setter::Unset => None,
+    };
+    let channel = o.text("channel");
+    let direction = o.text("transport_direction");
+    // A library key of `entry`, per transport direction where the entry has one.
+    let library = |section: &'static str, entry: Option<&str>, key: &str| {
+        let entry = entry?;
+        [
+            direction.map(|d| format!("{key}_{d}")),
+            Some(key.to_string()),
+        ]
+        .into_iter()
+        .flatten()
+        .find(|k| materials::source(section, entry, k).is_some())
+        .map(|key| Origin::Library {
+            section,
+            entry: entry.to_string(),
+            key,
+            note: None,
+        })
+    };
+    let mut push = |key: &str, value: f64, unit: &'static str, origin: Origin| {
+        rows.push(CardValue {
+            key: key.to_string(),
+            value,
+            unit,
+            origin,
+        })
+    };
+    let plain = |key: &str, section: &'static str, entry: Option<&str>| {
+        by(key)
+            .or_else(|| library(section, entry, key))
+            .unwrap_or(Origin::Default)
+    };
+    // Channel band structure.
+    for (carrier, mass, transport) in [
+        (
+            "electron",
+            card.electron_mass,
+            card.mobility.electron.transport_mass,
+        ),
+        ("hole", card.hole_mass, card.mobility.hole.transport_mass),
+    ] {
+        let key = format!("{carrier}_mass");
+        let (along, across) = (format!("{key}_along"), format!("{key}_across"));
+        let origin = if let Some(o) = by(&key) {
+            o
+        } else if by(&along).is_some() || by(&across).is_some() {
+            Origin::Derived(format!(
+                "geometric mean of `{along}` and `{across}` (density-of-states mass)"
+            ))
+        } else if let (Some(ch), Some(d), Some(_)) = (channel, direction, transport) {
+            Origin::Derived(format!(
+                "geometric mean of the library's {ch} masses along and across `{d}` (density-of-states mass)"
+            ))
+        } else {
+            plain(&key, "channels", channel)
+        };
+        push(&key, mass, "m0", origin);
+        if let Some(t) = transport {
+            let origin = by(&along)
+                .or_else(|| library("channels", channel, &key))
+                .unwrap_or(Origin::Default);
+            push(&along, t, "m0", origin);
+        }
+    }
+    for key in ["electron_degeneracy", "hole_degeneracy"] {
+        let value = if key.starts_with('e') {
+            card.electron_degeneracy
+        } else {
+            card.hole_degeneracy
+        };
+        push(key, value, "1", plain(key, "channels", channel));
+    }
+    // The library's gap follows the temperature where it cites a fit (see `sheet_card`).
+    let fitted = by("band_gap").is_none()
+        && channel.is_some_and(|ch| materials::band_gap_at(ch, card.temperature).is_some());
+    let adjusted = |origin: Origin, how: &str| match origin {
+        Origin::Library {
+            section,
+            entry,
+            key,
+            ..
+        } if fitted && card.temperature != materials::LIBRARY_TEMPERATURE_K => Origin::Library {
+            section,
+            entry,
+            key,
+            note: Some(how.to_string()),
+        },
+        other => other,
+    };
+    let gap = adjusted(
+        plain("band_gap", "channels", channel),
+        "moved from its 300 K value to the device temperature by the library's Varshni fit",
+    );
+    push("band_gap", card.band_gap, "eV", gap);
+    let affinity = adjusted(
+        plain("electron_affinity", "channels", channel),
+        "moved by half the gap's change with temperature (band edges apart evenly about midgap)",
+    );
+    push("electron_affinity", card.electron_affinity, "eV", affinity);
+    for (i, valley) in card.extra_valleys.iter().enumerate() {
+        for (what, value, unit) in [
+            ("offset", valley.offset, "eV"),
+            ("mass", valley.mass, "m0"),
+            ("degeneracy", valley.degeneracy, "1"),
+        ] {
+            let key = valley_key(i, what);
+            let offset = valley_key(i, "offset");
+            // A card's valley keys replace the library's valley as a whole.
+            let origin = by(&key)
+                .or_else(|| by(&offset).map(|_| Origin::Default))
+                .or_else(|| library("channels", channel, &key))
+                .unwrap_or(Origin::Default);
+            push(&key, value, unit, origin);
+        }
+    }
+    // Doping, traps, fixed charge.
+    for (key, value, unit) in [
+        ("donor_density", card.donor_density, "1/m²"),
+        ("acceptor_density", card.acceptor_density, "1/m²"),
+        ("trap_density", card.trap_density, "1/(eV m²)"),
+        ("trap_neutral_level", card.trap_neutral_level, "eV"),
+        ("fixed_charge_density", card.fixed_charge_density, "1/m²"),
+    ] {
+        push(key, value, unit, by(key).unwrap_or(Origin::Default));
+    }
+    // Gate.
+    let gate = o.text("gate");
+    let affinity_default = || {
+        Origin::Derived("the channel's electron affinity (flat bands at zero gate voltage)".into())
+    };
+    match &card.gate {
+        Gate::Metal { work_function } => {
+            let origin = by("gate_work_function")
+                .or_else(|| library("gates", gate, "work_function"))
+                .unwrap_or_else(affinity_default);
+            push("gate_work_function", *work_function, "eV", origin);
+        }
+        Gate::Dirac {
+            fermi_velocity,
+            half_gap,
+            gap_shift,
+            degeneracy,
+            neutral_work_function,
+            residual_density,
+        } => {
+            let origin = by("gate_work_function")
+                .or_else(|| library("gates", gate, "neutral_work_function"))
+                .unwrap_or_else(affinity_default);
+            push("gate_work_function", *neutral_work_function, "eV", origin);
+            for (key, lib_key, value, unit) in [
+                (
+                    "gate_fermi_velocity",
+                    "fermi_velocity",
+                    *fermi_velocity,
+                    "m/s",
+                ),
+                ("gate_half_gap", "half_gap", *half_gap, "eV"),
+                ("gate_gap_shift", "gap_shift", *gap_shift, "1"),
+                ("gate_degeneracy", "degeneracy", *degeneracy, "1"),
+                (
+                    "gate_residual_density",
+                    "residual_density",
+                    *residual_density,
+                    "1/m²",
+                ),
+            ] {
+                let origin = by(key)
+                    .or_else(|| library("gates", gate, lib_key))
+                    .unwrap_or(Origin::Default);
+                push(key, value, unit, origin);
+            }
+        }
+    }
+    // Insulator layers, in the order the card's settings make them.
+    let present = ["insulator", "insulator2"].into_iter().filter(|m| {
+        o.text(m).is_some()
+            || o.setter(&format!("{m}_permittivity")) != Setter::Unset
+            || o.setter(&format!("{m}_thickness")) != Setter::Unset
+    });
+    for (mat, layer) in present.zip(&card.insulator) {
+        let name = o.text(mat);
+        let (eps, thick, count) = (
+            format!("{mat}_permittivity"),
+            format!("{mat}_thickness"),
+            format!("{mat}_layers"),
+        );
+        let origin = by(&eps)
+            .or_else(|| library("insulators", name, "permittivity"))
+            .unwrap_or(Origin::Default);
+        push(&eps, layer.permittivity, "1", origin);
+        let origin = match (by(&thick), by(&count), name) {
+            (Some(o), _, _) => o,
+            (None, Some(_), Some(n)) => {
+                let per_layer = materials::insulator_layer(n, Some(1.0), None)
+                    .map_or(f64::NAN, |l| l.thickness);
+                Origin::Derived(format!(
+                    "`{count}` = {} times the library's {n} layer_thickness",
+                    (layer.thickness / per_layer).round()
+                ))
+            }
+            _ => Origin::Default,
+        };
+        push(&thick, layer.thickness, "m", origin);
+        if let Some(field) = layer.breakdown_field {
+            let key = format!("{mat}_breakdown_field");
+            let origin = library("insulators", name, "breakdown_field").unwrap_or(Origin::Default);
+            push(&key, field, "V/m", origin);
+        }
+    }
+    // Geometry, temperature, transport and contacts.
+    for (key, value, unit) in [
+        ("temperature", card.temperature, "K"),
+        ("width", card.width, "m"),
+        ("length", card.length, "m"),
+        ("saturation_velocity", card.saturation_velocity, "m/s"),
+        ("saturation_exponent", card.saturation_exponent, "1"),
+        ("source_resistance", card.source_resistance, "Ω m"),
+        ("drain_resistance", card.drain_resistance, "Ω m"),
+        ("overlap_capacitance", card.overlap_capacitance, "F/m"),
+    ] {
+        push(key, value, unit, by(key).unwrap_or(Origin::Default));
+    }
+    // Mobility inputs, only those the card's mobility model uses: the power law's mobilities
+    // (and its exponents with a reference temperature), the phonon model's inputs.
+    let m = &card.mobility;
+    let power_law = m.model == LatticeModel::PowerLaw;
+    if power_law {
+        for (key, value) in [
+            ("electron_mobility", card.electron_mobility),
+            ("hole_mobility", card.hole_mobility),
+        ] {
+            push(key, value, "m²/(V s)", by(key).unwrap_or(Origin::Default));
+        }
+    }
+    if let (Some(t), true) = (m.reference_temperature, power_law) {
+        let key = "mobility_reference_temperature";
+        push(key, t, "K", by(key).unwrap_or(Origin::Default));
+    }
+    for (carrier, c) in [("electron", &m.electron), ("hole", &m.hole)] {
+        if power_law && m.reference_temperature.is_some() {
+            let key = format!("{carrier}_mobility_exponent");
+            push(&key, c.exponent, "1", plain(&key, "channels", channel));
+        }
+        let optional = [
+            (
+                "deformation_potential",
+                c.deformation_potential.filter(|_| !power_law),
+                "eV",
+            ),
+            ("impurity_mobility", c.impurity_mobility, "m²/(V s)"),
+            (
+                "mobility_density_reference",
+                c.density.map(|d| d.reference_density),
+                "1/m²",
+            ),
+            (
+                "mobility_density_exponent",
+                c.density.map(|d| d.exponent),
+                "1",
+            ),
+        ];
+        for (what, value, unit) in optional {
+            if let Some(value) = value {
+                let key = format!("{carrier}_{what}");
+                push(&key, value, unit, plain(&key, "channels", channel));
+            }
+        }
+    }
+    if let (Some(c), false) = (m.elastic_modulus, power_law) {
+        push(
+            "elastic_modulus",
+            c,
+            "J/m²",
+            plain("elastic_modulus", "channels", channel),
+        );
+    }
+    rows
+}

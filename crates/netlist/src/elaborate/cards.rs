@@ -3,7 +3,7 @@
 
 use super::{Elaborator, Frame};
 use crate::ast::*;
-use crate::catalog::{self, BuildError, Kind, Values};
+use crate::catalog::{self, BuildError, CardOrigins, Kind, Values};
 use crate::diag::{did_you_mean, Diagnostic, ErrorKind};
 use crate::source::Span;
 use lamina_engine::elements::Waveform;
@@ -184,7 +184,8 @@ impl<'s> Elaborator<'s> {
 
     /// Records the resolved card of a 2D-FET element; instances that change nothing share their
     /// device card's.
-    fn keep_sheet_card(&mut self, element: usize, card: &str, unchanged: bool, v: &Values) {
+    fn keep_sheet_card(&mut self, element: usize, card: &str, inst: &Given, v: &Values) {
+        let unchanged = inst.is_empty();
         let cached = unchanged
             .then(|| self.card_cache.get(card).cloned())
             .flatten();
@@ -192,7 +193,8 @@ impl<'s> Elaborator<'s> {
             Some(c) => c,
             None => match catalog::sheet_card(v) {
                 Ok(c) => {
-                    let c = std::sync::Arc::new(c);
+                    let origins = CardOrigins::new(card, v, |p| inst.span_of(p).is_some());
+                    let c = (std::sync::Arc::new(c), std::sync::Arc::new(origins));
                     if unchanged {
                         self.card_cache.insert(card.to_string(), c.clone());
                     }
@@ -433,7 +435,7 @@ impl<'s> Elaborator<'s> {
         match self.circuit.add_boxed(&full, element, &pins) {
             Ok(id) => {
                 if k.name == "sheet_fet" {
-                    self.keep_sheet_card(id.index(), &kind.name, inst.is_empty(), &values);
+                    self.keep_sheet_card(id.index(), &kind.name, &inst, &values);
                 }
                 for &(n, at) in &self.last_pins {
                     if !n.is_ground() {

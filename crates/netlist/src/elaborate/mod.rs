@@ -21,6 +21,7 @@ pub use analyses::{
 pub use files::{DiskReader, FileReader, ReadError};
 
 use crate::ast::*;
+use crate::catalog::CardOrigins;
 use crate::diag::{did_you_mean, Diagnostic, ErrorKind};
 use crate::lexer::lex;
 use crate::parser::parse_expression;
@@ -105,14 +106,23 @@ pub struct Design {
     pub warnings: Vec<Diagnostic>,
     /// The resolved card of each 2D-channel FET, by element position (shared between the
     /// instances of a card that change nothing).
-    sheet_cards: BTreeMap<usize, Arc<SheetFetCard>>,
+    sheet_cards: BTreeMap<usize, SheetCard>,
 }
+
+/// A resolved 2D-FET card and where its values came from.
+type SheetCard = (Arc<SheetFetCard>, Arc<CardOrigins>);
 
 impl Design {
     /// The resolved card of a 2D-channel FET of the circuit (geometry, temperature and
     /// physics as the element was built), or `None` for any other element.
     pub fn sheet_card(&self, element: lamina_engine::ElementId) -> Option<&SheetFetCard> {
-        self.sheet_cards.get(&element.index()).map(|c| c.as_ref())
+        self.sheet_cards.get(&element.index()).map(|c| c.0.as_ref())
+    }
+
+    /// Who set each value of a 2D-channel FET's resolved card (card or instance) and the
+    /// material names it gave, for [`crate::catalog::resolved_values`].
+    pub fn sheet_card_origins(&self, element: lamina_engine::ElementId) -> Option<&CardOrigins> {
+        self.sheet_cards.get(&element.index()).map(|c| c.1.as_ref())
     }
 }
 
@@ -283,8 +293,8 @@ struct Elaborator<'s> {
     plausible: Vec<(lamina_devices::SheetFetCard, cards::Given, Span)>,
     /// Resolved 2D-FET cards by element position, and the card of each device card used
     /// unchanged (computed once per card).
-    sheet_cards: BTreeMap<usize, Arc<SheetFetCard>>,
-    card_cache: HashMap<String, Arc<SheetFetCard>>,
+    sheet_cards: BTreeMap<usize, SheetCard>,
+    card_cache: HashMap<String, SheetCard>,
     /// Largest voltage written in the design (sources, settings), for plausibility checks.
     max_voltage: f64,
 }
