@@ -12,6 +12,7 @@
 //!   analyses a file declares.
 //! * [`op`]: the operating point with source powers and each FET's currents, small-signal
 //!   figures and region.
+//! * [`extract`]: standard figures of measured transfer curves from a CSV data file.
 //! * [`delay`]: the delay job: propagation delays, polarity, rise and fall times of a path.
 //!
 //! Results are model estimates; check them against measurement and your process's rules
@@ -24,6 +25,7 @@ pub mod cli;
 pub mod delay;
 pub mod design;
 pub mod error;
+pub mod extract;
 pub mod iv;
 pub mod op;
 pub mod output;

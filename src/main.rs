@@ -40,6 +40,9 @@ enum Job {
     Sweep(cli::sweep::Args),
     /// Run every analysis a circuit file declares.
     Run(cli::run::Args),
+    /// Standard figures of measured transfer curves (CSV): thresholds, swing, mobility,
+    /// Y-function, transfer-length method.
+    Extract(cli::extract::Args),
 }
 
 fn main() -> ExitCode {
@@ -52,6 +55,7 @@ fn main() -> ExitCode {
         Job::Delay(a) => cli::delay::run(a),
         Job::Sweep(a) => cli::sweep::run(a),
         Job::Run(a) => cli::run::run(a),
+        Job::Extract(a) => cli::extract::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

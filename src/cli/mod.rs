@@ -6,6 +6,7 @@
 
 pub mod check;
 pub mod delay;
+pub mod extract;
 pub mod iv;
 pub mod ring;
 pub mod run;
