@@ -15,6 +15,7 @@
 //!   figures and region.
 //! * [`describe`]: resolved 2D-FET cards with the origin of every value, and figures derived
 //!   from the stack (EOT, flat-band and threshold voltages), for `check --verbose`.
+//! * [`extract`]: standard figures of measured transfer curves from a CSV data file.
 //! * [`delay`]: the delay job: propagation delays, polarity, rise and fall times of a path.
 //!
 //! Results are model estimates; check them against measurement and your process's rules
@@ -29,6 +30,7 @@ pub mod delay;
 pub mod describe;
 pub mod design;
 pub mod error;
+pub mod extract;
 pub mod iv;
 pub mod op;
 pub mod output;

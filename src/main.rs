@@ -44,6 +44,9 @@ enum Job {
     Run(cli::run::Args),
     /// The material library: channels, insulators and gates with values, units and sources.
     Materials(cli::materials::Args),
+    /// Standard figures of measured transfer curves (CSV): thresholds, swing, mobility,
+    /// Y-function, transfer-length method.
+    Extract(cli::extract::Args),
 }
 
 fn main() -> ExitCode {
@@ -58,6 +61,7 @@ fn main() -> ExitCode {
         Job::Sweep(a) => cli::sweep::run(a),
         Job::Run(a) => cli::run::run(a),
         Job::Materials(a) => cli::materials::run(a),
+        Job::Extract(a) => cli::extract::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -11,7 +11,18 @@
 //! * The smallest swing over chords whose currents stay above a floor ([`min_swing_above`]),
 //!   with the decade it came from and the error that relative current errors can put on it
 //!   ([`Swing::rounding`]), so a caller can hold it against the thermal limit
-//!   `ln(10) kT/q` (Sze and Ng 2007, ch. 6).
+//!   `ln(10) kT/q` (Sze and Ng 2007, ch. 6), and the swing of every such chord against its
+//!   current ([`swing_table`]).
+//! * Threshold by the second-derivative method: the `V_GS` of the largest `dg_m/dV_GS`
+//!   ([`threshold_second_derivative`]; Schroder 2006, ch. 4), with both derivatives smoothed
+//!   by least-squares lines over `2 half + 1` samples ([`smoothed_slopes`]).
+//! * Straight-line fits with standard errors ([`fit_line`]), and the Y-function method
+//!   ([`y_function`]; G. Ghibaudo, "New method for the extraction of MOSFET parameters",
+//!   Electron. Lett. 24, 543, 1988): in the linear region
+//!   `I_D = β V_DS (V_GS - V_T) / (1 + θ (V_GS - V_T))` with `β = μ_0 C W/L`, so
+//!   `g_m = β V_DS / (1 + θ (V_GS - V_T))²` and `Y = I_D / sqrt(g_m) = sqrt(β V_DS) (V_GS - V_T)`
+//!   is a straight line whatever `θ`: its slope gives `β`, its intercept `V_T`, and `θ` follows
+//!   from `β V_DS (V_GS - V_T) / I_D - 1 = θ (V_GS - V_T)`.
 
 /// How a threshold voltage was obtained.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -108,6 +119,25 @@ pub fn max_gm(vgs: &[f64], id: &[f64]) -> Option<MaxGm> {
     })
 }
 
+/// As [`max_gm`] with `g_m` by [`smoothed_slopes`] over `2 half + 1` samples (for measured,
+/// noisy curves); the tangent passes through the least-squares line's value at the sample.
+pub fn max_gm_smoothed(vgs: &[f64], id: &[f64], half: usize) -> Option<MaxGm> {
+    let g = smoothed_slopes(vgs, id, half);
+    let &(index, gm) = g.iter().max_by(|a, b| a.1.abs().total_cmp(&b.1.abs()))?;
+    if !(gm != 0.0 && gm.is_finite()) {
+        return None;
+    }
+    let h = half.max(1);
+    let fit = fit_line(&vgs[index - h..=index + h], &id[index - h..=index + h])?;
+    let at = fit.intercept + fit.slope * vgs[index];
+    Some(MaxGm {
+        index,
+        vgs: vgs[index],
+        gm,
+        intercept: vgs[index] - at / gm,
+    })
+}
+
 /// `V_GS` intercept of the tangent at the largest `|g_m|` (linear-region extrapolation); see
 /// [`max_gm`].
 pub fn threshold_max_gm(vgs: &[f64], id: &[f64]) -> Option<f64> {
@@ -177,6 +207,14 @@ impl Swing {
 /// its on end (`vgs` increasing for an n branch, decreasing for a p branch), taking only
 /// chords along which `|I_D|` rises and whose three samples all have `|I_D| >= floor`.
 pub fn min_swing_above(vgs: &[f64], id: &[f64], floor: f64) -> Option<Swing> {
+    swing_table(vgs, id, floor)
+        .into_iter()
+        .min_by(|a, b| a.mv_per_dec.total_cmp(&b.mv_per_dec))
+}
+
+/// The swing of every chord `(k - 1, k + 1)` that [`min_swing_above`] would consider, in curve
+/// order: the swing against the current (each at its middle sample).
+pub fn swing_table(vgs: &[f64], id: &[f64], floor: f64) -> Vec<Swing> {
     let n = vgs.len().min(id.len());
     let l = log_current(&id[..n]);
     let lf = floor.abs().log10();
@@ -192,7 +230,209 @@ pub fn min_swing_above(vgs: &[f64], id: &[f64], floor: f64) -> Option<Swing> {
                 decades,
             })
         })
-        .min_by(|a, b| a.mv_per_dec.total_cmp(&b.mv_per_dec))
+        .collect()
+}
+
+/// Slope of the least-squares line through samples `k - half ..= k + half` of `y(x)`, for every
+/// `k` with a full window, as `(k, slope)`. `half = 1` on evenly spaced samples is the central
+/// difference; a wider window smooths noise at the cost of resolution.
+pub fn smoothed_slopes(x: &[f64], y: &[f64], half: usize) -> Vec<(usize, f64)> {
+    let n = x.len().min(y.len());
+    let half = half.max(1);
+    (half..n.saturating_sub(half))
+        .filter_map(|k| {
+            let fit = fit_line(&x[k - half..=k + half], &y[k - half..=k + half])?;
+            Some((k, fit.slope))
+        })
+        .collect()
+}
+
+/// The threshold by the second-derivative method.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct SecondDerivative {
+    /// `V_GS` of the largest `dg_m/dV_GS` (V), refined by the vertex of the parabola through
+    /// the largest sample and its neighbours.
+    pub vth: f64,
+    /// The largest `dg_m/dV_GS` (S/V).
+    pub peak: f64,
+}
+
+/// `V_GS` of the largest `dg_m/dV_GS` of a curve with `vgs` increasing, both derivatives taken
+/// by [`smoothed_slopes`] over `2 half + 1` samples.
+pub fn threshold_second_derivative(
+    vgs: &[f64],
+    id: &[f64],
+    half: usize,
+) -> Option<SecondDerivative> {
+    let g = smoothed_slopes(vgs, id, half);
+    let gv: Vec<f64> = g.iter().map(|p| vgs[p.0]).collect();
+    let gm: Vec<f64> = g.iter().map(|p| p.1).collect();
+    let d = smoothed_slopes(&gv, &gm, half);
+    let (j, &(k, peak)) = d
+        .iter()
+        .enumerate()
+        .max_by(|a, b| a.1 .1.total_cmp(&b.1 .1))?;
+    if !(peak > 0.0 && peak.is_finite()) {
+        return None;
+    }
+    let x = gv[k];
+    let vth = match (j.checked_sub(1).and_then(|i| d.get(i)), d.get(j + 1)) {
+        (Some(&(ka, a)), Some(&(kb, b))) if kb == k + 1 && ka + 1 == k => {
+            // Vertex of the parabola through three samples, with the spacing of the window.
+            let (xa, xb) = (gv[ka], gv[kb]);
+            let curv = (b - peak) / (xb - x) - (peak - a) / (x - xa);
+            if curv < 0.0 {
+                let num = (x - xa).powi(2) * (peak - b) - (x - xb).powi(2) * (peak - a);
+                let den = (x - xa) * (peak - b) - (x - xb) * (peak - a);
+                if den != 0.0 {
+                    x - 0.5 * num / den
+                } else {
+                    x
+                }
+            } else {
+                x
+            }
+        }
+        _ => x,
+    };
+    Some(SecondDerivative { vth, peak })
+}
+
+/// A least-squares straight line `y = intercept + slope x`.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct LineFit {
+    /// Slope.
+    pub slope: f64,
+    /// Intercept at `x = 0`.
+    pub intercept: f64,
+    /// Standard error of the slope (`None` with two points: no residual to estimate it from).
+    pub slope_se: Option<f64>,
+    /// Standard error of the intercept.
+    pub intercept_se: Option<f64>,
+    /// Coefficient of determination.
+    pub r_squared: f64,
+    /// Number of points.
+    pub points: usize,
+}
+
+impl LineFit {
+    /// Where the line crosses `y = 0`.
+    pub fn x_intercept(&self) -> f64 {
+        -self.intercept / self.slope
+    }
+}
+
+/// Ordinary least squares through `(x, y)`; standard errors from the residual variance with
+/// `n - 2` degrees of freedom (any statistics text, e.g. N. R. Draper and H. Smith, Applied
+/// Regression Analysis, 3rd ed., 1998, ch. 1). `None` with fewer than two points or all `x`
+/// equal.
+pub fn fit_line(x: &[f64], y: &[f64]) -> Option<LineFit> {
+    let n = x.len().min(y.len());
+    if n < 2 {
+        return None;
+    }
+    let nf = n as f64;
+    let (mx, my) = (
+        x[..n].iter().sum::<f64>() / nf,
+        y[..n].iter().sum::<f64>() / nf,
+    );
+    let sxx: f64 = x[..n].iter().map(|v| (v - mx).powi(2)).sum();
+    let sxy: f64 = x[..n]
+        .iter()
+        .zip(&y[..n])
+        .map(|(a, b)| (a - mx) * (b - my))
+        .sum();
+    let syy: f64 = y[..n].iter().map(|v| (v - my).powi(2)).sum();
+    if sxx.is_nan() || sxx <= 0.0 {
+        return None;
+    }
+    let slope = sxy / sxx;
+    let intercept = my - slope * mx;
+    let ssr: f64 = x[..n]
+        .iter()
+        .zip(&y[..n])
+        .map(|(a, b)| (b - intercept - slope * a).powi(2))
+        .sum();
+    let (slope_se, intercept_se) = if n > 2 {
+        let s2 = ssr / (nf - 2.0);
+        (
+            Some((s2 / sxx).sqrt()),
+            Some((s2 * (1.0 / nf + mx * mx / sxx)).sqrt()),
+        )
+    } else {
+        (None, None)
+    };
+    Some(LineFit {
+        slope,
+        intercept,
+        slope_se,
+        intercept_se,
+        r_squared: if syy > 0.0 { 1.0 - ssr / syy } else { 1.0 },
+        points: n,
+    })
+}
+
+/// The Y-function extraction of one linear-region transfer curve (see the module doc).
+#[derive(Clone, Debug, PartialEq)]
+pub struct YFunction {
+    /// The line `Y(V_GS)` (Y in sqrt(A V)).
+    pub fit: LineFit,
+    /// Threshold: the line's `V_GS` intercept (V).
+    pub vth: f64,
+    /// `β V_DS = slope²` (A/V).
+    pub beta_vds: f64,
+    /// Mobility attenuation `θ` (1/V), by least squares through the origin of
+    /// `β V_DS (V_GS - V_T) / I_D - 1` against `V_GS - V_T`.
+    pub theta: f64,
+    /// The samples of the fit, `(V_GS, Y)`.
+    pub points: Vec<(f64, f64)>,
+}
+
+/// Strong inversion for the Y-function: from where `g_m` first reaches this fraction of its
+/// maximum (the maximum itself where `g_m` falls after it, as mobility attenuation makes it).
+pub const Y_STRONG_INVERSION_GM: f64 = 0.9;
+
+/// The Y-function method on a curve with `vgs` increasing and `id` positive above threshold:
+/// `g_m` by [`smoothed_slopes`] over `2 half + 1` samples, the line fitted over strong
+/// inversion, taken as the samples from `half` past where `g_m` first reaches
+/// [`Y_STRONG_INVERSION_GM`] of its maximum to the end (at least three).
+pub fn y_function(vgs: &[f64], id: &[f64], half: usize) -> Option<YFunction> {
+    let g = smoothed_slopes(vgs, id, half);
+    let max = g.iter().map(|p| p.1).fold(f64::NEG_INFINITY, f64::max);
+    let top = g.iter().find(|p| p.1 >= Y_STRONG_INVERSION_GM * max)?.0;
+    let used: Vec<(usize, f64)> = g
+        .iter()
+        .copied()
+        .filter(|&(k, gm)| k >= top + half.max(1) && gm > 0.0 && id[k] > 0.0)
+        .collect();
+    if used.len() < 3 {
+        return None;
+    }
+    let pts: Vec<(f64, f64)> = used
+        .iter()
+        .map(|&(k, gm)| (vgs[k], id[k] / gm.sqrt()))
+        .collect();
+    let xs: Vec<f64> = pts.iter().map(|p| p.0).collect();
+    let ys: Vec<f64> = pts.iter().map(|p| p.1).collect();
+    let fit = fit_line(&xs, &ys)?;
+    if fit.slope.is_nan() || fit.slope <= 0.0 {
+        return None;
+    }
+    let vth = fit.x_intercept();
+    let beta_vds = fit.slope * fit.slope;
+    let (mut num, mut den) = (0.0, 0.0);
+    for &(k, _) in &used {
+        let x = vgs[k] - vth;
+        num += x * (beta_vds * x / id[k] - 1.0);
+        den += x * x;
+    }
+    Some(YFunction {
+        fit,
+        vth,
+        beta_vds,
+        theta: if den > 0.0 { num / den } else { 0.0 },
+        points: pts,
+    })
 }
 
 /// Transconductance `dI_D/dV_GS` (or output conductance, given `I_D(V_DS)`) at `v`.
@@ -252,6 +492,8 @@ mod tests {
         let m = max_gm(&v, &line).unwrap();
         assert_eq!(m.index, 1);
         assert!((m.intercept - 0.1).abs() < 1e-12);
+        let m = max_gm_smoothed(&v, &line, 3).unwrap();
+        assert!((m.intercept - 0.1).abs() < 1e-12 && (m.gm - 1e-4).abs() < 1e-15);
     }
 
     #[test]
@@ -287,6 +529,67 @@ mod tests {
         assert!((p.mv_per_dec - 60.0).abs() < 1e-9);
         // Two 1e-3 relative errors over a third of a decade move the swing by 0.26 %.
         assert!((s.rounding(1e-3) - 2.0 * 1.001f64.log10() * 3.0).abs() < 1e-12);
+    }
+
+    /// Linear-region square law with mobility attenuation, zero below `vt`.
+    fn attenuated(vt: f64, beta_vds: f64, theta: f64) -> (Vec<f64>, Vec<f64>) {
+        let v: Vec<f64> = (0..=1000).map(|i| i as f64 * 1e-3).collect();
+        let i = v
+            .iter()
+            .map(|&x| {
+                let o = (x - vt).max(0.0);
+                beta_vds * o / (1.0 + theta * o)
+            })
+            .collect();
+        (v, i)
+    }
+
+    #[test]
+    fn y_function_recovers_beta_threshold_and_theta() {
+        // Ghibaudo, Electron. Lett. 24, 543 (1988): Y = sqrt(β V_DS) (V_GS - V_T) exactly.
+        let (v, i) = attenuated(0.3, 2e-5, 0.4);
+        let y = y_function(&v, &i, 2).unwrap();
+        assert!((y.vth - 0.3).abs() < 1e-5, "{y:?}");
+        assert!((y.beta_vds / 2e-5 - 1.0).abs() < 1e-4, "{}", y.beta_vds);
+        assert!((y.theta - 0.4).abs() < 1e-3, "{}", y.theta);
+        assert!(y.fit.r_squared > 1.0 - 1e-9);
+    }
+
+    #[test]
+    fn second_derivative_peaks_at_the_threshold_of_a_ramp() {
+        // I_D = β V_DS (V_GS - V_T) above V_T, 0 below: dg_m/dV_GS is a step's derivative at
+        // V_T, which a symmetric smoothing keeps centred (Schroder 2006, ch. 4).
+        let (v, i) = attenuated(0.437, 1e-5, 0.0);
+        for half in [1, 2, 4] {
+            let t = threshold_second_derivative(&v, &i, half).unwrap();
+            assert!((t.vth - 0.437).abs() < 1e-9, "{half}: {t:?}");
+        }
+        // Between samples: within half a step.
+        let (v, i) = attenuated(0.4375, 1e-5, 0.0);
+        let t = threshold_second_derivative(&v, &i, 2).unwrap();
+        assert!((t.vth - 0.4375).abs() < 5e-4, "{t:?}");
+    }
+
+    #[test]
+    fn line_fit_standard_errors() {
+        // About y = 1 + 2x with alternating residuals, against the textbook formulas (Draper
+        // and Smith 1998, ch. 1).
+        let x = [0.0, 1.0, 2.0, 3.0];
+        let y = [1.1, 2.9, 5.1, 6.9];
+        let f = fit_line(&x, &y).unwrap();
+        let sxx = 5.0;
+        let slope = (-1.5 * 1.1 - 0.5 * 2.9 + 0.5 * 5.1 + 1.5 * 6.9) / sxx;
+        assert!((f.slope - slope).abs() < 1e-12);
+        let ssr: f64 = x
+            .iter()
+            .zip(&y)
+            .map(|(a, b)| (b - f.intercept - f.slope * a).powi(2))
+            .sum();
+        let s2 = ssr / 2.0;
+        assert!((f.slope_se.unwrap() - (s2 / sxx).sqrt()).abs() < 1e-12);
+        assert!((f.intercept_se.unwrap() - (s2 * (0.25 + 2.25 / sxx)).sqrt()).abs() < 1e-12);
+        assert_eq!(fit_line(&x[..2], &y[..2]).unwrap().slope_se, None);
+        assert_eq!(fit_line(&[1.0, 1.0], &[1.0, 2.0]), None);
     }
 
     #[test]

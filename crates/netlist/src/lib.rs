@@ -31,6 +31,7 @@ pub mod elaborate;
 pub mod lexer;
 pub mod parser;
 pub mod source;
+pub mod table;
 pub mod units;
 pub mod values;
 

@@ -54,7 +54,7 @@ fn split_literal(part: &str) -> Result<Literal, String> {
 }
 
 /// The scale to SI and dimension of a unit text, read by the language's parser.
-fn unit_scale(unit: &str) -> Result<(f64, Dim), String> {
+pub(crate) fn unit_scale(unit: &str) -> Result<(f64, Dim), String> {
     if unit.is_empty() {
         return Ok((1.0, Dim::NONE));
     }
