@@ -45,7 +45,7 @@ pub const DEFINITIONS: [(&str, &str); 8] = [
     ("vth_constant_current", "constant current: V_GS where |I_D| = I_crit x W/L, interpolated in log current"),
     ("vth_linear_extrapolation", "linear extrapolation: V_GS intercept of the tangent at the largest g_m, minus V_DS/2 (Schroder 2006, ch. 4)"),
     ("vth_second_derivative", "second derivative: V_GS of the largest dg_m/dV_GS, both derivatives by least-squares lines over 2k+1 samples, peak refined by a parabola (Schroder 2006, ch. 4)"),
-    ("ss", "subthreshold swing dV_GS / dlog10|I_D| over chords of three samples above the floor along which |I_D| rises"),
+    ("ss", "subthreshold swing dV_GS / dlog10|I_D| over chords of three samples above the floor along which |I_D| rises; a minimum more than 2 % below the thermal limit ln(10) kT/q at the card's temperature (300 K without a card) is refused as noise"),
     ("mu_fe", "field-effect mobility L g_m,max / (W C V_DS) at the smallest |V_DS|; C the insulator capacitance, or in series with C_Q + C_it at u = V_GS - V_DS/2"),
     ("y_function", "Y = I_D / sqrt(g_m) fitted from the largest g_m on (Ghibaudo 1988): slope^2 = beta V_DS, intercept V_T, mu_0 = beta L / (W C_ins)"),
     ("r_sd", "series resistance R_sd = theta / beta, all of theta taken as series resistance (theta = theta_0 + beta R_sd with theta_0 = 0); a mobility that changes with gate voltage moves it either way"),
@@ -75,6 +75,10 @@ impl Default for ExtractConfig {
         }
     }
 }
+
+/// How far below the thermal limit a measured minimum swing may lie before it is refused as
+/// noise (relative).
+pub const SWING_NOISE: f64 = 0.02;
 
 /// What a device card tells the extraction.
 #[derive(Clone, Debug)]
@@ -404,6 +408,31 @@ fn curve_figures(
         })
         .ok_or_else(|| {
             "fewer than three neighbouring points above the floor with rising |I_D|".to_string()
+        })
+        .and_then(|s| {
+            // A chord clearly steeper than the thermal limit is noise near the floor, not
+            // physics (ln(10) kT/q: S. M. Sze and K. K. Ng, Physics of Semiconductor Devices,
+            // 3rd ed., 2007, ch. 6): more than 2 % below it is refused with the reason; within
+            // 2 % it is reported as measured (a two-point chord of data with 0.2 % noise on
+            // 20 mV steps scatters by about that much).
+            let (t, assumed) = match card {
+                Some(c) => (c.card.temperature, ""),
+                None => (
+                    300.0,
+                    " (300 K assumed: give --card for the device's temperature)",
+                ),
+            };
+            let limit = crate::iv::thermal_swing_mv_per_dec(t);
+            if s.mv_per_dec < limit * (1.0 - SWING_NOISE) {
+                Err(format!(
+                    "the steepest chord, {:.2} mV/dec at |I_D| = {:.3e} A, is below the thermal \
+                     limit ln(10) kT/q = {limit:.2} mV/dec at {t} K{assumed}: noise near the \
+                     floor; raise --floor or average repeated sweeps",
+                    s.mv_per_dec, s.current
+                ))
+            } else {
+                Ok(s)
+            }
         });
     let not_linear = || {
         format!(

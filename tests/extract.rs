@@ -151,6 +151,24 @@ fn swing_of_an_exponential_is_its_slope_and_the_floor_is_counted() {
     assert!(f.ss_table.iter().all(|w| w.current >= 1e-13));
     // No W and L: the constant-current threshold is not reported, with the reason.
     assert!(f.vth_cc.as_ref().unwrap_err().contains("W and L"));
+
+    // The same curve with n = 0.95 is steeper than the thermal limit (ln(10) kT/q, Sze and
+    // Ng 2007): noise, not physics, so the minimum is refused with the reason; n = 0.99 lies
+    // within the 2 % allowed for noise and is reported as measured.
+    for (n, refused) in [(0.95, true), (0.99, false)] {
+        let s = 10f64.ln() * kt_q * n;
+        let mut csv = String::from("V_GS (V), V_DS (V), I_D (pA)\n");
+        for k in 0..=60 {
+            let v = k as f64 * 0.01;
+            csv += &format!("{v}, 0.5, {:e}\n", 1e-2 * 10f64.powf(v / s));
+        }
+        let x = run(&csv, None, &cfg);
+        let ss = &x.figures[0][0].ss_min;
+        assert_eq!(ss.is_err(), refused, "n = {n}: {ss:?}");
+        if refused {
+            assert!(ss.as_ref().unwrap_err().contains("thermal limit"));
+        }
+    }
 }
 
 #[test]
