@@ -361,6 +361,22 @@ impl<'s> Elaborator<'s> {
                 _ => self.diags.extend(d),
             }
         }
+        // `card.key` overrides set a key of a device card; the rest set top-level parameters.
+        let mut card_sets: HashMap<String, Vec<Assign>> = HashMap::new();
+        let mut card_order: Vec<(String, Span)> = Vec::new();
+        for (name, _) in overrides {
+            if let (Some((card, key)), Some(e)) = (name.split_once('.'), parsed.remove(name)) {
+                let span = override_span[name];
+                card_sets.entry(card.to_string()).or_default().push(Assign {
+                    name: Ident {
+                        name: key.to_string(),
+                        span,
+                    },
+                    value: e,
+                });
+                card_order.push((card.to_string(), span));
+            }
+        }
         let top = Frame {
             vars: HashMap::new(),
             ports: HashMap::new(),
@@ -467,10 +483,43 @@ impl<'s> Elaborator<'s> {
                     name,
                     model,
                     params,
-                } => {
-                    self.device_card(name, model, params, &top);
-                }
+                } => match card_sets.remove(&name.name) {
+                    Some(sets) => {
+                        // Each `card.key` replaces the card's own value of `key`, or adds it.
+                        let mut merged: Vec<Assign> = params
+                            .iter()
+                            .filter(|a| !sets.iter().any(|b| b.name.name == a.name.name))
+                            .cloned()
+                            .collect();
+                        merged.extend(sets);
+                        self.device_card(name, model, &merged, &top);
+                    }
+                    None => self.device_card(name, model, params, &top),
+                },
                 _ => {}
+            }
+        }
+        for (card, span) in card_order {
+            if card_sets.contains_key(&card) {
+                card_sets.remove(&card);
+                let mut cards: Vec<&str> = self.devices.keys().map(String::as_str).collect();
+                cards.sort_unstable();
+                let help = match did_you_mean(&card, cards.iter().copied()) {
+                    Some(h) => h,
+                    None if cards.is_empty() => "the file defines no device card".to_string(),
+                    None => format!("its device cards are: {}", cards.join(", ")),
+                };
+                self.diags.push(
+                    Diagnostic::new(
+                        ErrorKind::Unknown,
+                        span,
+                        format!(
+                            "no device card `{card}`: a name with a dot sets a key of a device \
+                             card (`card.key=value`)"
+                        ),
+                    )
+                    .with_help(help),
+                );
             }
         }
         let mut frames = vec![top];
