@@ -11,6 +11,8 @@
 //! * [`design`]: jobs on circuit files: load with `--set` overrides, the check summary, and the
 //!   analyses a file declares.
 //! * [`delay`]: the delay job: propagation delays, polarity, rise and fall times of a path.
+//! * [`small_signal`]: transfer function, admittances and a FET's two-port parameters and
+//!   f_T at the operating point over frequency.
 //!
 //! Results are model estimates; check them against measurement and your process's rules
 //! before basing a design decision on them.
@@ -26,5 +28,6 @@ pub mod iv;
 pub mod output;
 pub mod plot;
 pub mod ring;
+pub mod small_signal;
 pub mod sweep;
 pub mod transient;

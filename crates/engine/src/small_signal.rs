@@ -128,11 +128,7 @@ pub struct SmallSignalSolver {
 
 impl SmallSignalSolver {
     /// Linearises `sys` at `x` and builds the block pattern and its symbolic analysis.
-    pub fn new(
-        sys: &System,
-        x: &[f64],
-        params: &SmallSignalParams,
-    ) -> Result<Self, EngineError> {
+    pub fn new(sys: &System, x: &[f64], params: &SmallSignalParams) -> Result<Self, EngineError> {
         let lin = sys.linearize(x)?;
         let n = sys.n;
         let col_ptr = sys.pattern.col_ptr();
@@ -147,7 +143,11 @@ impl SmallSignalSolver {
             for j in 0..n {
                 for s in col_ptr[j]..col_ptr[j + 1] {
                     // Left column half: G on top, ωC below; right half: -ωC on top, G below.
-                    let (top, tpart) = if half == 0 { (true, 0) } else { (c[s] != 0.0, 2) };
+                    let (top, tpart) = if half == 0 {
+                        (true, 0)
+                    } else {
+                        (c[s] != 0.0, 2)
+                    };
                     if top {
                         brow.push(row_idx[s]);
                         from_slot.push(s);
@@ -155,7 +155,11 @@ impl SmallSignalSolver {
                     }
                 }
                 for s in col_ptr[j]..col_ptr[j + 1] {
-                    let (bottom, bpart) = if half == 0 { (c[s] != 0.0, 1) } else { (true, 0) };
+                    let (bottom, bpart) = if half == 0 {
+                        (c[s] != 0.0, 1)
+                    } else {
+                        (true, 0)
+                    };
                     if bottom {
                         brow.push(n + row_idx[s]);
                         from_slot.push(s);
@@ -277,8 +281,12 @@ impl System {
                     el.kind()
                 )));
             }
-            let (mut f, mut q, mut df, mut dq) =
-                (vec![0.0; nl], vec![0.0; nl], vec![0.0; nl * nl], vec![0.0; nl * nl]);
+            let (mut f, mut q, mut df, mut dq) = (
+                vec![0.0; nl],
+                vec![0.0; nl],
+                vec![0.0; nl * nl],
+                vec![0.0; nl * nl],
+            );
             copy.evaluate(
                 &lin.x,
                 &EvalContext::dc(),
@@ -426,8 +434,12 @@ mod tests {
         let mut c = Circuit::new();
         let a = c.node("a");
         let inner = c.node("inner");
-        c.add("i1", CurrentSource::new(Waveform::Constant(0.0)), &[a, Circuit::GROUND])
-            .unwrap();
+        c.add(
+            "i1",
+            CurrentSource::new(Waveform::Constant(0.0)),
+            &[a, Circuit::GROUND],
+        )
+        .unwrap();
         c.add("r", Resistor::new(r), &[a, Circuit::GROUND]).unwrap();
         c.add("c", Capacitor::new(cap), &[a, Circuit::GROUND])
             .unwrap();
@@ -460,9 +472,14 @@ mod tests {
         let (a, b) = (c.node("a"), c.node("float"));
         c.add("v", VoltageSource::dc(1.0), &[a, Circuit::GROUND])
             .unwrap();
-        c.add("r", Resistor::new(1e3), &[a, Circuit::GROUND]).unwrap();
-        c.add("i", CurrentSource::new(Waveform::Constant(0.0)), &[b, Circuit::GROUND])
+        c.add("r", Resistor::new(1e3), &[a, Circuit::GROUND])
             .unwrap();
+        c.add(
+            "i",
+            CurrentSource::new(Waveform::Constant(0.0)),
+            &[b, Circuit::GROUND],
+        )
+        .unwrap();
         // The DC operating point holds `float` with gmin; the small-signal matrix has none.
         let (sys, x) = solved(c, LuStrategy::FixedPivot);
         let err = sys
@@ -494,7 +511,9 @@ mod tests {
             Err(EngineError::Invalid(_))
         ));
         let v = sys.find_element("drive").unwrap();
-        assert!(sys.small_signal(&x, v, Circuit::GROUND, &[1.0], &p).is_err());
+        assert!(sys
+            .small_signal(&x, v, Circuit::GROUND, &[1.0], &p)
+            .is_err());
         assert!(sys.small_signal(&x, v, out, &[0.0], &p).is_err());
     }
 }
