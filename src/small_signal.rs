@@ -13,8 +13,8 @@
 //! * the output admittance at the output node (S): the reciprocal of the voltage a unit current
 //!   injected there produces with the source at zero.
 //!
-//! An admittance is absent where its impedance is exactly zero (a node held by an ideal
-//! voltage source).
+//! An admittance is absent where its impedance is zero (a node held by an ideal voltage
+//! source) or so small that its reciprocal overflows.
 //!
 //! Figures of the transfer function ([`Figures`]), each interpolated linearly in dB against
 //! `log10 f` between the two listed frequencies around it:
@@ -125,10 +125,11 @@ impl SmallSignalReport {
 /// which closes the list (a last step shorter than the others is kept unless it is under a
 /// thousandth of one).
 pub fn frequency_list(from: f64, to: f64, per_decade: usize) -> Vec<f64> {
-    let steps = (to / from).log10() * per_decade as f64;
+    let steps = (to.log10() - from.log10()) * per_decade as f64;
     let whole = (steps - 1e-3).ceil().max(1.0) as usize;
-    let mut f: Vec<f64> = (0..whole)
-        .map(|k| from * 10f64.powf(k as f64 / per_decade as f64))
+    // The first is `from` exactly; the others through logarithms, which cannot overflow.
+    let mut f: Vec<f64> = std::iter::once(from)
+        .chain((1..whole).map(|k| 10f64.powf(from.log10() + k as f64 / per_decade as f64)))
         .collect();
     f.push(to);
     f
@@ -139,9 +140,10 @@ pub fn unwrapped_phase(h: &[c64]) -> Vec<f64> {
     let mut out: Vec<f64> = Vec::with_capacity(h.len());
     for z in h {
         let p = z.im.atan2(z.re).to_degrees();
+        // A step of exactly 180° (a lossless resonance) is ambiguous: it is kept as it is.
         let p = match out.last() {
-            Some(&prev) => p + 360.0 * ((prev - p) / 360.0).round(),
-            None => p,
+            Some(&prev) if (p - prev).abs() > 180.0 => p - 360.0 * ((p - prev) / 360.0).round(),
+            _ => p,
         };
         out.push(p);
     }
@@ -162,7 +164,8 @@ fn db(z: c64) -> f64 {
 }
 
 fn reciprocal(z: c64) -> Option<c64> {
-    (z.norm() > 0.0 && z.norm().is_finite()).then(|| c64::new(1.0, 0.0) / z)
+    let y = c64::new(1.0, 0.0) / z;
+    (y.re.is_finite() && y.im.is_finite()).then_some(y)
 }
 
 /// The figures of `h` over `f` for a transfer function whose unit is `unit`.
@@ -350,6 +353,13 @@ mod tests {
     }
 
     #[test]
+    fn the_list_spans_the_whole_range_of_doubles() {
+        let f = frequency_list(1e-300, 1e300, 1);
+        assert_eq!(f.len(), 601);
+        assert!(f.iter().all(|v| v.is_finite() && *v > 0.0));
+    }
+
+    #[test]
     fn phase_is_unwrapped_across_the_branch_cut() {
         let h: Vec<c64> = [170.0f64, 179.0, 181.0, 270.0, 359.0, 361.0]
             .iter()
@@ -359,6 +369,9 @@ mod tests {
         for (got, want) in p.iter().zip([170.0, 179.0, 181.0, 270.0, 359.0, 361.0]) {
             assert!((got - want).abs() < 1e-9, "{got} vs {want}");
         }
+        // A jump of exactly 180° stays where it is.
+        let h = [c64::new(0.0, 1.0), c64::new(0.0, -1.0)];
+        assert_eq!(unwrapped_phase(&h), vec![90.0, -90.0]);
     }
 
     /// A single pole `1 / (1 + j f / f_c)` sampled 20 per decade: the -3 dB point lands on

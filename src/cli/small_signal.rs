@@ -127,7 +127,7 @@ fn table_rows(f: &[f64]) -> Vec<usize> {
     if n == 0 {
         return Vec::new();
     }
-    let decades = (f[n - 1] / f[0]).log10().max(1.0);
+    let decades = (f[n - 1].log10() - f[0].log10()).max(1.0);
     let stride = (n as f64 / (3.0 * decades + 1.0)).ceil().max(1.0) as usize;
     let mut rows: Vec<usize> = (0..n).step_by(stride).collect();
     if rows.last() != Some(&(n - 1)) {
@@ -180,9 +180,8 @@ pub(crate) fn print_small_signal(r: &SmallSignalReport) {
         );
     }
     out!(
-        "  low-frequency gain {:.6e} {} ({:.3} dB)   |H| at {}",
-        r.figures.low_frequency_gain,
-        r.transfer_unit(),
+        "  low-frequency gain {} ({:.3} dB)   |H| at {}",
+        engineering(r.figures.low_frequency_gain, r.transfer_unit()),
         r.figures.low_frequency_gain_db,
         engineering(f[0], "Hz")
     );
@@ -240,7 +239,7 @@ pub(crate) fn write_small_signal(dir: &Path, r: &SmallSignalReport) -> Result<()
     let mut bode = Figure::new(
         &format!("transfer {} -> {}", r.source, r.output),
         Axis::log("frequency", "Hz"),
-        Axis::new(&format!("|H| in dB of {}", r.transfer_unit()), "dB"),
+        Axis::new(&format!("|H| re 1 {}", r.transfer_unit()), "dB"),
     );
     bode.y_right = Some(Axis::new("phase", "°"));
     let pts = |v: &[f64]| -> Vec<(f64, f64)> {

@@ -564,7 +564,7 @@ impl<'s> Elaborator<'s> {
             );
             return None;
         }
-        let points = (to / from).log10() * per;
+        let points = (to.log10() - from.log10()) * per;
         if points > MAX_SMALL_SIGNAL_POINTS {
             self.diags.push(
                 Diagnostic::new(
