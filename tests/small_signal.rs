@@ -364,3 +364,27 @@ fn setting_errors_are_located() {
         assert!(found.contains(&(*kind, *l, *c)), "{line}: {found:?}\n{f}");
     }
 }
+
+/// A node with no small-signal path (held only by gmin at the operating point) is a failed
+/// analysis (exit 1) whose message names the node.
+#[test]
+fn a_singular_small_signal_matrix_is_exit_1_naming_the_node() {
+    let dir = temp_dir("singular");
+    let file = dir.join("float.lam");
+    std::fs::write(
+        &file,
+        format!(
+            "{RC}current_source bias (pos = float, neg = ground) {{ dc = 0 A }}\n\
+             analysis small_signal {{ source = drive, output = out, from = 1 kHz, to = 1 GHz, per_decade = 3 }}\n"
+        ),
+    )
+    .unwrap();
+    let out = Command::new(env!("CARGO_BIN_EXE_lamina"))
+        .args(["run", file.to_str().unwrap()])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(1));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("node float"), "{err}");
+    let _ = std::fs::remove_dir_all(dir);
+}
