@@ -473,30 +473,62 @@ impl<'s> Elaborator<'s> {
                 }
             },
             None => {
-                let mut d = Diagnostic::new(
-                    ErrorKind::Unknown,
-                    span,
-                    format!("`source`: the circuit has no element `{source}`"),
+                self.unknown_element(
+                    ("source", source, span),
+                    |c, e| c.element_kind(e).ends_with(" source"),
+                    "sources",
+                    "add a voltage source, such as `voltage_source drive (pos = in, neg = ground)`",
                 );
-                let sources: Vec<String> = self
-                    .circuit
-                    .elements()
-                    .filter(|&e| self.circuit.element_kind(e).ends_with(" source"))
-                    .map(|e| self.circuit.element_name(e).to_string())
-                    .collect();
-                d = d.with_help(
-                    match did_you_mean(source, sources.iter().map(String::as_str)) {
-                        Some(h) => h,
-                        None if sources.is_empty() => {
-                            "add a voltage source, such as `voltage_source drive (pos = in, neg = ground)`".into()
-                        }
-                        None => format!("the sources are: {}", sources.join(", ")),
-                    },
-                );
-                self.diags.push(d);
                 None
             }
         }
+    }
+
+    /// Whether `from < to`; if not, an error at `to`.
+    fn ascending(&mut self, (from, to): (f64, f64), to_span: Span, unit: &str) -> bool {
+        if to > from {
+            return true;
+        }
+        self.bad(
+            to_span,
+            format!(
+                "`to` ({}) must be above `from` ({})",
+                engineering(to, unit),
+                engineering(from, unit)
+            ),
+            "go upwards: swap `from` and `to`".into(),
+        );
+        false
+    }
+
+    /// `key`: the circuit has no element `name`; the help names the closest element that
+    /// `fits`, or all of them (`plural`), or says `none` when there are none.
+    fn unknown_element(
+        &mut self,
+        (key, name, span): (&str, &str, Span),
+        fits: impl Fn(&Circuit, lamina_engine::ElementId) -> bool,
+        plural: &str,
+        none: &str,
+    ) {
+        let names: Vec<String> = self
+            .circuit
+            .elements()
+            .filter(|&e| fits(&self.circuit, e))
+            .map(|e| self.circuit.element_name(e).to_string())
+            .collect();
+        let help = match did_you_mean(name, names.iter().map(String::as_str)) {
+            Some(h) => h,
+            None if names.is_empty() => none.to_string(),
+            None => format!("the {plural} are: {}", names.join(", ")),
+        };
+        self.diags.push(
+            Diagnostic::new(
+                ErrorKind::Unknown,
+                span,
+                format!("`{key}`: the circuit has no element `{name}`"),
+            )
+            .with_help(help),
+        );
     }
 
     /// `analysis small_signal { source, output, from, to, per_decade, device }`.
@@ -542,16 +574,7 @@ impl<'s> Elaborator<'s> {
             );
             return None;
         }
-        if to <= from {
-            self.bad(
-                to_span,
-                format!(
-                    "`to` ({}) must be above `from` ({})",
-                    engineering(to, "Hz"),
-                    engineering(from, "Hz")
-                ),
-                "list upwards: swap `from` and `to`".into(),
-            );
+        if !self.ascending((from, to), to_span, "Hz") {
             return None;
         }
         if per.fract() != 0.0 || !(1.0..=MAX_PER_DECADE as f64).contains(&per) {
@@ -590,7 +613,7 @@ impl<'s> Elaborator<'s> {
 
     /// An element with `drain`, `gate` and `source` pins, or an error with the closest FETs.
     fn existing_fet(&mut self, name: &str, span: Span) -> bool {
-        let is_fet = |c: &Circuit, e| {
+        let is_fet = |c: &Circuit, e: lamina_engine::ElementId| {
             let t = c.element_terminals(e);
             ["drain", "gate", "source"].iter().all(|p| t.contains(p))
         };
@@ -606,23 +629,12 @@ impl<'s> Elaborator<'s> {
                 false
             }
             None => {
-                let fets: Vec<String> = self
-                    .circuit
-                    .elements()
-                    .filter(|&e| is_fet(&self.circuit, e))
-                    .map(|e| self.circuit.element_name(e).to_string())
-                    .collect();
-                let mut d = Diagnostic::new(
-                    ErrorKind::Unknown,
-                    span,
-                    format!("`device`: the circuit has no element `{name}`"),
+                self.unknown_element(
+                    ("device", name, span),
+                    is_fet,
+                    "FETs",
+                    "the circuit has no FET; leave `device` out",
                 );
-                d = d.with_help(match did_you_mean(name, fets.iter().map(String::as_str)) {
-                    Some(h) => h,
-                    None if fets.is_empty() => "the circuit has no FET; leave `device` out".into(),
-                    None => format!("the FETs are: {}", fets.join(", ")),
-                });
-                self.diags.push(d);
                 false
             }
         }
@@ -645,16 +657,7 @@ impl<'s> Elaborator<'s> {
         if !out_ok {
             return None;
         }
-        if to <= from {
-            self.bad(
-                to_span,
-                format!(
-                    "`to` ({}) must be above `from` ({})",
-                    engineering(to, &dim.unit()),
-                    engineering(from, &dim.unit())
-                ),
-                "sweep upwards: swap `from` and `to`".into(),
-            );
+        if !self.ascending((from, to), to_span, &dim.unit()) {
             return None;
         }
         if step <= 0.0 {
