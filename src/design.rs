@@ -239,6 +239,8 @@ pub enum Outcome {
     Delay(DelayReport),
     /// A general transient's record and figures.
     Transient(crate::transient::TransientReport),
+    /// A small-signal analysis at the operating point.
+    SmallSignal(Box<crate::small_signal::SmallSignalReport>),
 }
 
 /// Runs every analysis `design` declares, in order (or only those of kind `only`).
@@ -340,6 +342,10 @@ fn run_static(design: Design, a: &AnalysisDecl) -> Result<Outcome, String> {
             &crate::delay::DelayParams::default(),
         )?),
         "transient" => Outcome::Transient(crate::transient::run_transient(design, &a.analysis)?),
+        "small_signal" => Outcome::SmallSignal(Box::new(crate::small_signal::run_small_signal(
+            design,
+            &a.analysis,
+        )?)),
         other => {
             return Err(format!(
                 "analysis `{other}` is declared but cannot be run here"

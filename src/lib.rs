@@ -17,6 +17,8 @@
 //!   from the stack (EOT, flat-band and threshold voltages), for `check --verbose`.
 //! * [`extract`]: standard figures of measured transfer curves from a CSV data file.
 //! * [`delay`]: the delay job: propagation delays, polarity, rise and fall times of a path.
+//! * [`small_signal`]: transfer function, admittances and a FET's two-port parameters and
+//!   f_T at the operating point over frequency.
 //!
 //! Results are model estimates; check them against measurement and your process's rules
 //! before basing a design decision on them.
@@ -36,5 +38,6 @@ pub mod op;
 pub mod output;
 pub mod plot;
 pub mod ring;
+pub mod small_signal;
 pub mod sweep;
 pub mod transient;

@@ -310,6 +310,12 @@ fn figures(kind: &str, o: &Outcome) -> Vec<(String, f64)> {
                 );
             }
         }
+        Outcome::SmallSignal(r) => {
+            put("low_frequency_gain", Some(r.figures.low_frequency_gain));
+            put("bandwidth_3db_hz", r.figures.bandwidth_3db.clone().ok());
+            put("unity_gain_hz", r.figures.unity_gain.clone().ok());
+            put("f_t_hz", r.device.as_ref().and_then(|d| d.f_t.clone().ok()));
+        }
         Outcome::Ring(r, _) => {
             put("frequency_hz", Some(r.frequency));
             put("period_s", Some(r.period));

@@ -12,6 +12,7 @@ pub mod iv;
 pub mod materials;
 pub mod ring;
 pub mod run;
+pub mod small_signal;
 pub mod sweep;
 pub mod transient;
 pub mod vtc;
@@ -138,6 +139,7 @@ pub(crate) fn outcome_json(kind: &str, o: &Outcome) -> serde_json::Value {
             v
         }
         Outcome::Transient(r) => transient::transient_json(kind, r),
+        Outcome::SmallSignal(r) => small_signal::small_signal_json(kind, r),
     }
 }
 
@@ -170,6 +172,7 @@ pub(crate) fn print_outcome(o: &Outcome) {
         }
         Outcome::Ring(r, _) => print_ring(r),
         Outcome::Transient(r) => transient::print_transient(r),
+        Outcome::SmallSignal(r) => small_signal::print_small_signal(r),
         Outcome::Delay(d) => {
             let ps = |v: Option<f64>| v.map_or("-".to_string(), |x| format!("{:.3} ps", x * 1e12));
             let (lo, hi) = (100.0 * d.levels.0, 100.0 * d.levels.1);

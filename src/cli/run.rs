@@ -42,6 +42,10 @@ pub(crate) fn write_run(dir: &Path, results: &[(String, Outcome)]) -> Result<(),
         if let Some(m) = j.as_object_mut() {
             m.remove("vin");
             m.remove("vout");
+            m.remove("points");
+            if let Some(d) = m.get_mut("device").and_then(|d| d.as_object_mut()) {
+                d.remove("points");
+            }
         }
         items.push(j);
         match o {
@@ -60,6 +64,9 @@ pub(crate) fn write_run(dir: &Path, results: &[(String, Outcome)]) -> Result<(),
                 for (name, body) in crate::op::csv(op) {
                     write_file(&sub.join(name), body.as_bytes())?;
                 }
+            }
+            Outcome::SmallSignal(r) => {
+                super::small_signal::write_small_signal(&dir.join(format!("{kind}-{}", k + 1)), r)?
             }
             _ => {}
         }

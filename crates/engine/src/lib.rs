@@ -13,6 +13,9 @@
 //! * Analyses on a [`System`]: [`System::operating_point`] (with gmin stepping, source
 //!   stepping and pseudo-transient fallbacks), [`System::dc_sweep`] and
 //!   [`System::transient`] (backward Euler, trapezoidal or BDF2 with adaptive steps).
+//! * Linearised at a solution: [`System::linearize`] (`G`, `C`),
+//!   [`System::element_linearization`] (one element seen from its pins) and
+//!   [`System::small_signal`] (`(G + jωC) X = B` over a list of frequencies).
 //!
 //! Sign conventions: a terminal's current is the current flowing from the node into the
 //! element; a terminal's charge is the charge the element holds at that terminal. Units are SI
@@ -46,6 +49,7 @@ pub mod elements;
 mod error;
 mod linear;
 pub mod lu;
+mod small_signal;
 mod system;
 mod transient;
 
@@ -57,6 +61,9 @@ pub use element::{
 pub use error::{Culprit, EngineError};
 pub use faer::c64;
 pub use linear::{ElementLinearization, Linearization};
+pub use small_signal::{
+    SmallSignalInfo, SmallSignalParams, SmallSignalResult, SmallSignalSolver, SourceKind,
+};
 pub use system::{NewtonInfo, NewtonParams, System, Tolerances};
 pub use transient::{
     Control, Decimator, Integrator, Observer, Output, Start, Stepping, TransientParams,

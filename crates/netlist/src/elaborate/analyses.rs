@@ -64,6 +64,17 @@ pub const ANALYSES: &[(&str, &[(&str, SettingKind)])] = &[
             ("integrator", SettingKind::Name),
         ],
     ),
+    (
+        "small_signal",
+        &[
+            ("source", SettingKind::Name),
+            ("output", SettingKind::Name),
+            ("from", SettingKind::Number),
+            ("to", SettingKind::Number),
+            ("per_decade", SettingKind::Number),
+            ("device", SettingKind::Name),
+        ],
+    ),
 ];
 
 /// Settings that may be left out.
@@ -73,7 +84,14 @@ const OPTIONAL: &[(&str, &str)] = &[
     ("transient", "currents"),
     ("transient", "interval"),
     ("transient", "window"),
+    ("small_signal", "device"),
 ];
+
+/// Most frequencies of one decade of a small-signal analysis.
+pub const MAX_PER_DECADE: usize = 1000;
+
+/// Most frequencies of a small-signal analysis.
+pub const MAX_SMALL_SIGNAL_POINTS: f64 = 1e5;
 
 /// Most samples a transient keeps of each signal: the accepted steps are thinned to this many
 /// (the engine's decimation), and a fixed `interval` may not ask for more.
@@ -138,6 +156,22 @@ pub enum Analysis {
         supply_source: String,
         /// Integration formula, if the file chose one.
         integrator: Option<Integrator>,
+    },
+    /// A small-signal analysis at the operating point over a logarithmic frequency list.
+    SmallSignal {
+        /// The voltage or current source whose unit small-signal value drives the circuit.
+        source: String,
+        /// The output node (not ground).
+        output: String,
+        /// Lowest frequency (Hz, positive).
+        from: f64,
+        /// Highest frequency (Hz, above `from`).
+        to: f64,
+        /// Frequencies per decade (1 to [`MAX_PER_DECADE`]).
+        per_decade: usize,
+        /// A FET (pins `drain`, `gate`, `source`) whose common-source two-port parameters
+        /// are reported, if the file names one.
+        device: Option<String>,
     },
 }
 
@@ -333,6 +367,9 @@ impl<'s> Elaborator<'s> {
                 "transfer" => "source = drive, output = out, from = 0 V, to = 1 V, step = 5 mV",
                 "delay" => "from = in, to = out, stop = 2 ns",
                 "transient" => "stop = 5 ns, record = [in, out]",
+                "small_signal" => {
+                    "source = drive, output = out, from = 1 kHz, to = 100 GHz, per_decade = 10"
+                }
                 _ => "nodes = out, stages = 21, supply = vdd",
             };
             self.diags.push(
@@ -358,6 +395,7 @@ impl<'s> Elaborator<'s> {
             "transfer" => self.check_transfer(p),
             "delay" => self.check_delay(p),
             "transient" => self.check_transient(p),
+            "small_signal" => self.check_small_signal(p),
             _ => self.check_ring(p),
         }
     }
@@ -418,47 +456,198 @@ impl<'s> Elaborator<'s> {
             .push(Diagnostic::new(ErrorKind::BadValue, span, msg).with_help(help));
     }
 
-    fn check_transfer(&mut self, p: &Pending) -> Option<Analysis> {
-        let (source, src_span) = self.name_of(p, "source")?;
-        let (output, out_span) = self.name_of(p, "output")?;
-        let dim = match self.circuit.find_element(&source) {
+    /// The unit of an independent source's value (V or A), or an error at `span` naming the
+    /// circuit's sources.
+    fn source_dim(&mut self, source: &str, span: Span, what: &str) -> Option<Dim> {
+        match self.circuit.find_element(source) {
             Some(e) => match self.circuit.element_kind(e) {
                 "voltage source" => Some(Dim::VOLTAGE),
                 "current source" => Some(Dim::CURRENT),
                 other => {
                     self.bad(
-                        src_span,
+                        span,
                         format!("`source`: `{source}` is a {other}, not a source"),
-                        "name the voltage or current source to sweep".into(),
+                        what.into(),
                     );
                     None
                 }
             },
             None => {
-                let mut d = Diagnostic::new(
-                    ErrorKind::Unknown,
-                    src_span,
-                    format!("`source`: the circuit has no element `{source}`"),
+                self.unknown_element(
+                    ("source", source, span),
+                    |c, e| c.element_kind(e).ends_with(" source"),
+                    "sources",
+                    "add a voltage source, such as `voltage_source drive (pos = in, neg = ground)`",
                 );
-                let sources: Vec<String> = self
-                    .circuit
-                    .elements()
-                    .filter(|&e| self.circuit.element_kind(e).ends_with(" source"))
-                    .map(|e| self.circuit.element_name(e).to_string())
-                    .collect();
-                d = d.with_help(
-                    match did_you_mean(&source, sources.iter().map(String::as_str)) {
-                        Some(h) => h,
-                        None if sources.is_empty() => {
-                            "add a voltage source to sweep, such as `voltage_source drive (pos = in, neg = ground)`".into()
-                        }
-                        None => format!("the sources are: {}", sources.join(", ")),
-                    },
-                );
-                self.diags.push(d);
                 None
             }
+        }
+    }
+
+    /// Whether `from < to`; if not, an error at `to`.
+    fn ascending(&mut self, (from, to): (f64, f64), to_span: Span, unit: &str) -> bool {
+        if to > from {
+            return true;
+        }
+        self.bad(
+            to_span,
+            format!(
+                "`to` ({}) must be above `from` ({})",
+                engineering(to, unit),
+                engineering(from, unit)
+            ),
+            "go upwards: swap `from` and `to`".into(),
+        );
+        false
+    }
+
+    /// `key`: the circuit has no element `name`; the help names the closest element that
+    /// `fits`, or all of them (`plural`), or says `none` when there are none.
+    fn unknown_element(
+        &mut self,
+        (key, name, span): (&str, &str, Span),
+        fits: impl Fn(&Circuit, lamina_engine::ElementId) -> bool,
+        plural: &str,
+        none: &str,
+    ) {
+        let names: Vec<String> = self
+            .circuit
+            .elements()
+            .filter(|&e| fits(&self.circuit, e))
+            .map(|e| self.circuit.element_name(e).to_string())
+            .collect();
+        let help = match did_you_mean(name, names.iter().map(String::as_str)) {
+            Some(h) => h,
+            None if names.is_empty() => none.to_string(),
+            None => format!("the {plural} are: {}", names.join(", ")),
         };
+        self.diags.push(
+            Diagnostic::new(
+                ErrorKind::Unknown,
+                span,
+                format!("`{key}`: the circuit has no element `{name}`"),
+            )
+            .with_help(help),
+        );
+    }
+
+    /// `analysis small_signal { source, output, from, to, per_decade, device }`.
+    fn check_small_signal(&mut self, p: &Pending) -> Option<Analysis> {
+        let (source, src_span) = self.name_of(p, "source")?;
+        let (output, out_span) = self.name_of(p, "output")?;
+        let src_ok = self
+            .source_dim(
+                &source,
+                src_span,
+                "name the voltage or current source that drives the input",
+            )
+            .is_some();
+        let out_ok = self.existing_node(&output, out_span, "output");
+        let device = match self.name_of(p, "device") {
+            None => Some(None),
+            Some((name, span)) => self.existing_fet(&name, span).then_some(Some(name)),
+        };
+        let from = self.number_in(p, "from", Dim::FREQUENCY);
+        let to = self.number_in(p, "to", Dim::FREQUENCY);
+        let per = self.number_in(p, "per_decade", Dim::NONE);
+        let ((from, from_span), (to, to_span), (per, per_span)) = (from?, to?, per?);
+        let device = device?;
+        if !(src_ok && out_ok) {
+            return None;
+        }
+        if output == Circuit::GROUND_NAME {
+            self.bad(
+                out_span,
+                "`output` is ground, whose small-signal voltage is always zero".into(),
+                "name the node whose response you want, such as `output = out`".into(),
+            );
+            return None;
+        }
+        if from <= 0.0 {
+            self.bad(
+                from_span,
+                format!(
+                    "`from` must be a positive frequency, found {}",
+                    engineering(from, "Hz")
+                ),
+                "a logarithmic list starts above zero, such as `from = 1 kHz`".into(),
+            );
+            return None;
+        }
+        if !self.ascending((from, to), to_span, "Hz") {
+            return None;
+        }
+        if per.fract() != 0.0 || !(1.0..=MAX_PER_DECADE as f64).contains(&per) {
+            self.bad(
+                per_span,
+                format!(
+                    "`per_decade` must be a whole number from 1 to {MAX_PER_DECADE}, found {per}"
+                ),
+                "such as `per_decade = 10`".into(),
+            );
+            return None;
+        }
+        let points = (to.log10() - from.log10()) * per;
+        if points > MAX_SMALL_SIGNAL_POINTS {
+            self.diags.push(
+                Diagnostic::new(
+                    ErrorKind::Limit,
+                    per_span,
+                    format!(
+                        "{points:.3e} frequencies are more than the limit of {MAX_SMALL_SIGNAL_POINTS:e}"
+                    ),
+                )
+                .with_help("use fewer points per decade or a narrower range"),
+            );
+            return None;
+        }
+        Some(Analysis::SmallSignal {
+            source,
+            output,
+            from,
+            to,
+            per_decade: per as usize,
+            device,
+        })
+    }
+
+    /// An element with `drain`, `gate` and `source` pins, or an error with the closest FETs.
+    fn existing_fet(&mut self, name: &str, span: Span) -> bool {
+        let is_fet = |c: &Circuit, e: lamina_engine::ElementId| {
+            let t = c.element_terminals(e);
+            ["drain", "gate", "source"].iter().all(|p| t.contains(p))
+        };
+        match self.circuit.find_element(name) {
+            Some(e) if is_fet(&self.circuit, e) => true,
+            Some(e) => {
+                let kind = self.circuit.element_kind(e);
+                self.bad(
+                    span,
+                    format!("`device`: `{name}` is a {kind}, not a FET"),
+                    "name a FET (an element with drain, gate and source pins)".into(),
+                );
+                false
+            }
+            None => {
+                self.unknown_element(
+                    ("device", name, span),
+                    is_fet,
+                    "FETs",
+                    "the circuit has no FET; leave `device` out",
+                );
+                false
+            }
+        }
+    }
+
+    fn check_transfer(&mut self, p: &Pending) -> Option<Analysis> {
+        let (source, src_span) = self.name_of(p, "source")?;
+        let (output, out_span) = self.name_of(p, "output")?;
+        let dim = self.source_dim(
+            &source,
+            src_span,
+            "name the voltage or current source to sweep",
+        );
         let out_ok = self.existing_node(&output, out_span, "output");
         let dim = dim?;
         let from = self.number_in(p, "from", dim);
@@ -468,16 +657,7 @@ impl<'s> Elaborator<'s> {
         if !out_ok {
             return None;
         }
-        if to <= from {
-            self.bad(
-                to_span,
-                format!(
-                    "`to` ({}) must be above `from` ({})",
-                    engineering(to, &dim.unit()),
-                    engineering(from, &dim.unit())
-                ),
-                "sweep upwards: swap `from` and `to`".into(),
-            );
+        if !self.ascending((from, to), to_span, &dim.unit()) {
             return None;
         }
         if step <= 0.0 {
