@@ -4,7 +4,7 @@
 
 use lamina_netlist::{load_source, ErrorKind, LoadOptions};
 
-const FILE: &str = "device n2d : sheet_fet {\n    channel = MoS2, insulator = hBN, insulator_layers = 10\n    gate_work_function = 4.3 eV, width = 1 um, length = 100 nm\n    electron_mobility = 40 cm^2/(V s)\n}\nvoltage_source vg (pos = g, neg = ground) { dc = 1 V }\nn2d a (drain = g, gate = g, source = ground)\nn2d b (drain = g, gate = g, source = ground) { electron_mobility = 10 cm^2/(V s) }\n";
+const FILE: &str = "param vg = 1 V\ndevice n2d : sheet_fet {\n    channel = MoS2, insulator = hBN, insulator_layers = 10\n    gate_work_function = 4.3 eV, width = 1 um, length = 100 nm\n    electron_mobility = 40 cm^2/(V s)\n}\nvoltage_source vg (pos = g, neg = ground) { dc = vg }\nn2d a (drain = g, gate = g, source = ground)\nn2d b (drain = g, gate = g, source = ground) { electron_mobility = 10 cm^2/(V s) }\n";
 
 fn with(sets: &[(&str, &str)]) -> Result<lamina_netlist::Design, Vec<ErrorKind>> {
     let options = LoadOptions {
@@ -43,6 +43,15 @@ fn replaces_and_adds_card_keys_and_instances_still_win() {
     let card = d.sheet_card(d.circuit.find_element("a").unwrap()).unwrap();
     assert!((card.source_resistance - 300e-6).abs() < 1e-15);
     assert!((card.length - 100e-9).abs() < 1e-20);
+    // A top-level parameter set beside a card key still applies (a regression: card keys once
+    // swallowed every other override).
+    let both = with(&[("n2d.electron_mobility", "55 cm^2/(V s)"), ("vg", "0.25 V")]).unwrap();
+    assert_eq!(
+        both.parameters.iter().find(|p| p.0 == "vg").map(|p| p.1),
+        Some(0.25)
+    );
+    let e = errors(&[("n2d.electron_mobility", "55 cm^2/(V s)"), ("vg", "0.25")]);
+    assert_eq!(e, vec![ErrorKind::MissingUnit]);
     let plain = with(&[]).unwrap();
     assert!((mobility(&plain, "a") - 40e-4).abs() < 1e-12);
 }

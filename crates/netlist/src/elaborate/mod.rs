@@ -365,7 +365,10 @@ impl<'s> Elaborator<'s> {
         let mut card_sets: HashMap<String, Vec<Assign>> = HashMap::new();
         let mut card_order: Vec<(String, Span)> = Vec::new();
         for (name, _) in overrides {
-            if let (Some((card, key)), Some(e)) = (name.split_once('.'), parsed.remove(name)) {
+            let Some((card, key)) = name.split_once('.') else {
+                continue;
+            };
+            if let Some(e) = parsed.remove(name) {
                 let span = override_span[name];
                 card_sets.entry(card.to_string()).or_default().push(Assign {
                     name: Ident {
