@@ -18,8 +18,15 @@
 //!
 //! Figures of the transfer function ([`Figures`]), each interpolated linearly in dB against
 //! `log10 f` between the two listed frequencies around it:
-//! * low-frequency gain: `|H|` at the lowest frequency of the list;
-//! * -3 dB bandwidth: the first frequency where `|H|` falls through `|H(f_low)| / sqrt 2`;
+//! * low-frequency gain: `|H(0)|` from a solve with `ω = 0` (the conductances alone) where
+//!   that solve succeeds and gives a nonzero gain; otherwise (a capacitor blocks DC, or a node
+//!   floats in DC) `|H|` at the lowest frequency of the list, and the report says which;
+//! * -3 dB bandwidth: the first frequency where `|H|` falls through that gain over `sqrt 2`.
+//!   When `|H|` at the lowest listed frequency is already more than 0.1 dB away from the DC
+//!   gain, the list starts above the flat band: the bandwidth is still read against the DC
+//!   gain (so it is right when it lies in the list) and the report warns;
+//! * peak: the largest `|H|` over the list and its frequency (a resonance shows here even
+//!   when the printed table skips it);
 //! * unity-gain frequency: the first frequency where `|H|` falls through 1 (a voltage source
 //!   only, where `H` is a pure number).
 //!
@@ -39,7 +46,8 @@
 //! `g_m / (2π C_gg)` while `ω C_dg << g_m`.
 
 use lamina_engine::{
-    c64, ElementId, OpParams, SmallSignalInfo, SmallSignalParams, SourceKind, System,
+    c64, ElementId, OpParams, SmallSignalInfo, SmallSignalParams, SmallSignalSolver, SourceKind,
+    System,
 };
 use lamina_measure::{crossings, Direction};
 use lamina_netlist::{Analysis, Design};
@@ -51,8 +59,15 @@ pub type Figure = Result<f64, String>;
 /// Figures of the transfer function (see the module documentation for the definitions).
 #[derive(Clone, Debug, PartialEq)]
 pub struct Figures {
-    /// `|H|` at the lowest frequency (V/V or V/A).
+    /// `|H(0)|`, or `|H|` at the lowest frequency where the DC solve gives none (V/V or V/A).
     pub low_frequency_gain: f64,
+    /// Whether `low_frequency_gain` is the DC gain `|H(0)|`.
+    pub from_dc: bool,
+    /// A warning when the list starts above the flat band (`|H(f_low)|` more than 0.1 dB
+    /// from the DC gain).
+    pub flat_band_warning: Option<String>,
+    /// Largest `|H|` over the list and its frequency (Hz).
+    pub peak: (f64, f64),
     /// The same in dB.
     pub low_frequency_gain_db: f64,
     /// -3 dB bandwidth (Hz).
@@ -168,31 +183,61 @@ fn reciprocal(z: c64) -> Option<c64> {
     (y.re.is_finite() && y.im.is_finite()).then_some(y)
 }
 
-/// The figures of `h` over `f` for a transfer function whose unit is `unit`.
-pub fn transfer_figures(f: &[f64], h: &[c64], kind: SourceKind) -> Figures {
+/// The figures of `h` over `f`, with the DC transfer `dc` where the circuit has one.
+pub fn transfer_figures(f: &[f64], h: &[c64], kind: SourceKind, dc: Option<c64>) -> Figures {
     let mags: Vec<f64> = h.iter().map(|z| db(*z)).collect();
-    let g0 = h.first().map_or(0.0, |z| z.norm());
-    let g0_db = mags.first().copied().unwrap_or(f64::NEG_INFINITY);
+    let first = h.first().map_or(0.0, |z| z.norm());
+    let dc = dc.map(|z| z.norm()).filter(|g| *g > 0.0 && g.is_finite());
+    let (g0, from_dc) = match dc {
+        Some(g) => (g, true),
+        None => (first, false),
+    };
+    let g0_db = 20.0 * g0.log10();
+    let flat_band_warning = match dc {
+        Some(g) if first > 0.0 && (20.0 * (first / g).log10()).abs() > 0.1 => Some(format!(
+            "|H| at {} is {:.2} dB from the DC gain: the list starts above the flat band; start \
+             it lower for the whole response",
+            crate::plot::engineering(f[0], "Hz"),
+            20.0 * (first / g).log10()
+        )),
+        _ => None,
+    };
+    let peak = mags
+        .iter()
+        .zip(f)
+        .fold((f64::NEG_INFINITY, f64::NAN), |acc, (&m, &fr)| {
+            if m > acc.0 {
+                (m, fr)
+            } else {
+                acc
+            }
+        });
+    let peak = (10f64.powf(peak.0 / 20.0), peak.1);
     let top = f.last().copied().unwrap_or(0.0);
     let bandwidth_3db = if !(g0 > 0.0 && g0.is_finite()) {
-        Err("the transfer function is zero at the lowest frequency".into())
+        Err("the transfer function is zero at DC and at the lowest frequency".into())
     } else {
         let level = g0_db - 10.0 * 2f64.log10();
-        falling_through(f, &mags, level).ok_or_else(|| {
-            format!(
-                "the magnitude stays above its low-frequency value - 3 dB up to {}",
-                crate::plot::engineering(top, "Hz")
-            )
-        })
+        let start = mags.iter().position(|&m| m > level);
+        match start {
+            None => Err(format!(
+                "|H| is already more than 3 dB below the DC gain at {}",
+                crate::plot::engineering(f[0], "Hz")
+            )),
+            Some(k) => falling_through(&f[k..], &mags[k..], level).ok_or_else(|| {
+                format!(
+                    "the magnitude stays above its low-frequency value - 3 dB up to {}",
+                    crate::plot::engineering(top, "Hz")
+                )
+            }),
+        }
     };
     let unity_gain = match kind {
         SourceKind::Current => Err(
             "the transfer function is an impedance (V/A); unity gain applies to a voltage source"
                 .into(),
         ),
-        SourceKind::Voltage if g0 <= 1.0 => {
-            Err("the gain is at most 1 at the lowest frequency".into())
-        }
+        SourceKind::Voltage if g0 <= 1.0 => Err("the low-frequency gain is at most 1".into()),
         SourceKind::Voltage => falling_through(f, &mags, 0.0).ok_or_else(|| {
             format!(
                 "the gain stays above 1 up to {}",
@@ -202,10 +247,30 @@ pub fn transfer_figures(f: &[f64], h: &[c64], kind: SourceKind) -> Figures {
     };
     Figures {
         low_frequency_gain: g0,
+        from_dc,
+        flat_band_warning,
+        peak,
         low_frequency_gain_db: g0_db,
         bandwidth_3db,
         unity_gain,
     }
+}
+
+/// The transfer at `ω = 0` (the conductances alone), or `None` where that system is singular.
+fn dc_transfer(
+    sys: &System,
+    x: &[f64],
+    source: ElementId,
+    output: lamina_engine::NodeId,
+) -> Option<c64> {
+    let (b, _) = sys.source_excitation(x, source).ok()?;
+    let out = sys.node_unknown(output)?;
+    let mut solver = SmallSignalSolver::new(sys, x, &SmallSignalParams::default()).ok()?;
+    let mut xs = vec![c64::new(0.0, 0.0); sys.unknown_count()];
+    solver.factor(sys, 0.0).ok()?;
+    solver.solve(sys, 0.0, &b, &mut xs).ok()?;
+    let h = xs[out];
+    (h.re.is_finite() && h.im.is_finite()).then_some(h)
 }
 
 /// Common-source parameters of the FET `element` at the solution `x` over `f`.
@@ -313,6 +378,7 @@ pub fn run_small_signal(design: Design, a: &Analysis) -> Result<SmallSignalRepor
             SourceKind::Current => reciprocal(z),
         })
         .collect();
+    let dc = dc_transfer(&sys, &sol.x, src, out);
     let device = match dev {
         Some((n, e, t)) => Some(device_report(&sys, &sol.x, n, e, t, &f)?),
         None => None,
@@ -329,7 +395,7 @@ pub fn run_small_signal(design: Design, a: &Analysis) -> Result<SmallSignalRepor
             .iter()
             .map(|&z| reciprocal(z))
             .collect(),
-        figures: transfer_figures(&f, &res.transfer, res.source),
+        figures: transfer_figures(&f, &res.transfer, res.source, dc),
         device,
         info,
         transfer: res.transfer,
@@ -384,13 +450,13 @@ mod tests {
             .iter()
             .map(|v| c64::new(10.0, 0.0) / c64::new(1.0, v / fc))
             .collect();
-        let fig = transfer_figures(&f, &h, SourceKind::Voltage);
+        let fig = transfer_figures(&f, &h, SourceKind::Voltage, None);
         assert!((fig.bandwidth_3db.unwrap() / fc - 1.0).abs() < 2e-3);
         // |H| = 1 at f = fc sqrt(99).
         assert!((fig.unity_gain.unwrap() / (fc * 99f64.sqrt()) - 1.0).abs() < 2e-3);
         assert!((fig.low_frequency_gain_db - 20.0).abs() < 1e-6);
         let flat = vec![c64::new(0.5, 0.0); f.len()];
-        let fig = transfer_figures(&f, &flat, SourceKind::Voltage);
+        let fig = transfer_figures(&f, &flat, SourceKind::Voltage, None);
         assert!(fig.bandwidth_3db.is_err() && fig.unity_gain.is_err());
     }
 }

@@ -63,13 +63,22 @@ fn rc_low_pass_corner_and_phase() {
     assert!((r.frequencies[k] / fc - 1.0).abs() < 1e-12);
     assert!((r.phase_deg[k] + 45.0).abs() < 1e-9, "{}", r.phase_deg[k]);
     assert!((r.magnitude_db[k] + 10.0 * 2f64.log10()).abs() < 1e-9);
-    // The bandwidth is measured from the gain at the lowest frequency, x0 = f_low / f_c:
-    // |H|^2 halves at x^2 = 1 + 2 x0^2. The interpolation adds the curvature between two
-    // listed frequencies.
+    // The bandwidth is measured from the DC gain |H(0)| = 1: exactly the corner (the listed
+    // corner frequency is interpolated onto itself).
     let f3 = r.figures.bandwidth_3db.clone().unwrap();
-    let want = fc * (1.0 + 2.0 * 1e-4f64).sqrt();
-    assert!((f3 / want - 1.0).abs() < 1e-6, "{f3:e} vs {want:e}");
-    assert!((r.figures.low_frequency_gain - 1.0).abs() < 1e-4);
+    assert!((f3 / fc - 1.0).abs() < 1e-9, "{f3:e} vs {fc:e}");
+    assert!(r.figures.from_dc);
+    assert_eq!(r.figures.low_frequency_gain, 1.0);
+    assert!(r.figures.flat_band_warning.is_none());
+    // A list that starts above the flat band (at 0.7 f_c) still finds the corner against the
+    // DC gain, and warns.
+    let late = small_signal(&format!(
+        "{RC}analysis small_signal {{ source = drive, output = out, from = {} Hz, to = 100 GHz, per_decade = 40 }}",
+        0.7 * fc
+    ));
+    assert!(late.figures.flat_band_warning.is_some());
+    let f3 = late.figures.bandwidth_3db.clone().unwrap();
+    assert!((f3 / fc - 1.0).abs() < 2e-3, "{f3:e} vs {fc:e}");
     // A passive divider never gains: no unity-gain frequency, with the reason.
     assert!(r.figures.unity_gain.is_err());
     // Input admittance jwC / (1 + jwRC) at the corner: (1 + j) / (2 R); output admittance
@@ -254,7 +263,7 @@ fn the_demo_runs_from_the_command_line() {
     let out = Command::new(env!("CARGO_BIN_EXE_lamina"))
         .args([
             "run",
-            "netlists/demo/inverter-small-signal.lam",
+            "netlists/demo/amplifier-small-signal.lam",
             "--json",
             "--out",
         ])
@@ -273,22 +282,45 @@ fn the_demo_runs_from_the_command_line() {
         .iter()
         .find(|a| a["analysis"] == "small_signal")
         .unwrap();
-    // 1 MHz to 1 THz at 10 per decade.
+    // 1 kHz to 1 THz at 10 per decade.
     let points = a["points"].as_array().unwrap();
-    assert_eq!(points.len(), 61);
-    assert_eq!(points[0]["frequency_hz"].as_f64(), Some(1e6));
+    assert_eq!(points.len(), 91);
+    assert_eq!(points[0]["frequency_hz"].as_f64(), Some(1e3));
     assert_eq!(a["transfer_unit"], "V/V");
-    // An inverter: the low-frequency phase is near 180 degrees and the gain above 1.
-    assert!((points[0]["phase_deg"].as_f64().unwrap() - 180.0).abs() < 5.0);
-    assert!(a["low_frequency_gain"].as_f64().unwrap() > 1.0);
+    // A common-source stage (textbook small-signal model, e.g. A. S. Sedra and K. C. Smith,
+    // Microelectronic Circuits, 7th ed., 2015, ch. 7): gain -g_m (R || r_o) at DC, the phase
+    // 180 degrees, and one output pole 1 / (2 pi R C_out) with C_out the 2 fF load plus the
+    // device's C_dd, from the operating point's own g_m, g_ds and C_dd.
+    let op = v["analyses"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|a| a["analysis"] == "operating_point")
+        .unwrap();
+    let ss = &op["devices"][0]["small_signal"];
+    let (gm, gds, cdd) = (
+        ss["gm_s"].as_f64().unwrap(),
+        ss["gds_s"].as_f64().unwrap(),
+        ss["cdd_f"].as_f64().unwrap(),
+    );
+    let r = 100e3;
+    let gain = gm * r / (1.0 + gds * r);
+    assert_eq!(a["low_frequency_gain_from_dc"], true);
+    let g0 = a["low_frequency_gain"].as_f64().unwrap();
+    assert!((g0 / gain - 1.0).abs() < 1e-9, "{g0} vs {gain}");
+    assert!((points[0]["phase_deg"].as_f64().unwrap().abs() - 180.0).abs() < 0.01);
     let f3 = a["bandwidth_3db_hz"].as_f64().unwrap();
+    let pole = (1.0 + gds * r) / (2.0 * PI * r * (2e-15 + cdd));
+    // The feed-forward zero of C_gd at g_m / (2 pi C_gd), a hundred times higher, moves the
+    // corner by about 1e-4.
+    assert!((f3 / pole - 1.0).abs() < 1e-3, "{f3:e} vs {pole:e}");
     let fu = a["unity_gain_hz"].as_f64().unwrap();
     assert!(f3 < fu);
     let d = &a["device"];
     let ft = d["f_t_hz"].as_f64().unwrap();
     let qs = d["f_t_quasi_static_hz"].as_f64().unwrap();
     assert!(ft > 0.0 && qs > 0.0);
-    assert_eq!(d["points"].as_array().unwrap().len(), 61);
+    assert_eq!(d["points"].as_array().unwrap().len(), 91);
     let folder = out_dir.join("small_signal-2");
     for f in [
         "small_signal.csv",
@@ -301,7 +333,7 @@ fn the_demo_runs_from_the_command_line() {
         assert!(folder.join(f).is_file(), "{f}");
     }
     let csv = std::fs::read_to_string(folder.join("small_signal.csv")).unwrap();
-    assert_eq!(csv.lines().count(), 62);
+    assert_eq!(csv.lines().count(), 92);
     assert!(csv.starts_with("frequency_hz,"));
     // The summary keeps the figures, not the points.
     let summary: serde_json::Value =

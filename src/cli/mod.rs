@@ -163,7 +163,7 @@ pub(crate) fn print_outcome(o: &Outcome) {
                         Some(s) => out!("  SNM      {:>9.4} V   largest square in the butterfly (Seevinck 1987)", s.snm),
                         None => out!("  SNM          -       the curve and its mirror enclose no lobes"),
                     }
-                    out!("  gain     {:>9.2}     peak |dv_out/dv_in|", m.gain_max);
+                    out!("  gain     {:>9.2}     peak |dv_out/dv_in| on the sweep's points (step-limited where the devices have almost no output conductance)", m.gain_max);
                 }
                 None => {
                     out!("  the curve never crosses v_out = v_in or never reaches a slope of -1")

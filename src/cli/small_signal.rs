@@ -17,7 +17,7 @@ const DEFINITIONS: &[(&str, &str)] = &[
     ("phase_deg", "phase of the transfer function, unwrapped along the frequency list"),
     ("input_admittance_s", "small-signal current the source delivers per volt (a resistor to ground reads positive); for a current source, one over its voltage per ampere"),
     ("output_admittance_s", "one over the output voltage per ampere injected into the output node with the source at zero"),
-    ("low_frequency_gain", "|transfer| at the lowest listed frequency"),
+    ("low_frequency_gain", "|transfer| at DC (omega = 0) where the circuit has a DC path, else at the lowest listed frequency (low_frequency_gain_from_dc says which)"),
     ("bandwidth_3db_hz", "first frequency where |transfer| falls through the low-frequency gain / sqrt 2, interpolated linearly in dB against log frequency"),
     ("unity_gain_hz", "first frequency where |transfer| falls through 1 (voltage sources only), interpolated likewise"),
     ("y_s", "common-source two-port admittances of the device alone: port 1 gate-source, port 2 drain-source, currents into the pins"),
@@ -104,6 +104,10 @@ pub(crate) fn small_signal_json(kind: &str, r: &SmallSignalReport) -> serde_json
         "transfer_unit": r.transfer_unit(),
         "low_frequency_gain": r.figures.low_frequency_gain,
         "low_frequency_gain_db": r.figures.low_frequency_gain_db,
+        "low_frequency_gain_from_dc": r.figures.from_dc,
+        "flat_band_warning": r.figures.flat_band_warning,
+        "peak_gain": r.figures.peak.0,
+        "peak_gain_hz": r.figures.peak.1,
         "definitions": defs,
         "solver": {
             "block_unknowns": r.info.unknowns,
@@ -179,11 +183,33 @@ pub(crate) fn print_small_signal(r: &SmallSignalReport) {
             complex(r.output_admittance[k])
         );
     }
+    let shown = table_rows(f).len();
+    if shown < f.len() {
+        out!(
+            "  ({shown} of {} frequencies shown; --json or --out for every one)",
+            f.len()
+        );
+    }
     out!(
-        "  low-frequency gain {} ({:.3} dB)   |H| at {}",
+        "  low-frequency gain {} ({:.3} dB)   {}",
         engineering(r.figures.low_frequency_gain, r.transfer_unit()),
         r.figures.low_frequency_gain_db,
-        engineering(f[0], "Hz")
+        if r.figures.from_dc {
+            "|H(0)|, the DC gain".to_string()
+        } else {
+            format!(
+                "|H| at {} (no DC gain: the circuit blocks or floats in DC)",
+                engineering(f[0], "Hz")
+            )
+        }
+    );
+    if let Some(w) = &r.figures.flat_band_warning {
+        out!("  warning: {w}");
+    }
+    out!(
+        "  peak |H|           {} at {}",
+        engineering(r.figures.peak.0, r.transfer_unit()),
+        engineering(r.figures.peak.1, "Hz")
     );
     figure_line(
         "-3 dB bandwidth",

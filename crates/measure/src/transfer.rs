@@ -122,7 +122,7 @@ pub const DEFINITIONS: &[(&str, &str)] = &[
     ("nmh", "unity-gain noise margin V_OH - V_IH"),
     ("nml", "unity-gain noise margin V_IL - V_OL"),
     ("snm", "side of the largest square in the smaller lobe of the butterfly (Seevinck, List, Lohstroh 1987)"),
-    ("gain_max", "largest |dv_out/dv_in| by central differences"),
+    ("gain_max", "largest |dv_out/dv_in| by central differences on the sweep's own points: where the devices have almost no output conductance it is limited by the step and grows as the step shrinks, so read it as a lower bound of a very large gain"),
 ];
 
 /// The metrics of an inverting curve sampled at increasing `vin`, or `None` if it has no
