@@ -123,6 +123,7 @@ fn setter(s: Setter) -> &'static str {
     match s {
         Setter::Card => "card",
         Setter::Instance => "instance",
+        Setter::CommandLine => "command line",
         Setter::Unset => "default",
     }
 }
@@ -132,6 +133,7 @@ fn origin_text(o: &Origin) -> String {
     match o {
         Origin::Instance => "instance".into(),
         Origin::Card => "card".into(),
+        Origin::CommandLine => "--set on the command line".into(),
         Origin::Library {
             section,
             entry,
@@ -153,6 +155,7 @@ fn origin_json(o: &Origin) -> Value {
     match o {
         Origin::Instance => json!({ "from": "instance" }),
         Origin::Card => json!({ "from": "card" }),
+        Origin::CommandLine => json!({ "from": "command_line" }),
         Origin::Library {
             section,
             entry,

@@ -924,6 +924,8 @@ pub enum Setter {
     Card,
     /// The instance (or, for a `sheet_fet` placed without a device card, its own values).
     Instance,
+    /// The command line (`--set card.key=value`), in place of the card's own value.
+    CommandLine,
 }
 
 /// Which parameters of one 2D-FET element its device card and its instance set, and the
@@ -939,8 +941,14 @@ pub struct CardOrigins {
 
 impl CardOrigins {
     /// The origins of `v`, the values a `sheet_fet` element of device card (or kind) `device`
-    /// was built from; `by_instance` says whether the instance set a parameter.
-    pub fn new(device: &str, v: &Values, by_instance: impl Fn(&str) -> bool) -> Self {
+    /// was built from; `by_instance` says whether the instance set a parameter and
+    /// `by_command_line` whether `--set card.key` set it on the card.
+    pub fn new(
+        device: &str,
+        v: &Values,
+        by_instance: impl Fn(&str) -> bool,
+        by_command_line: impl Fn(&str) -> bool,
+    ) -> Self {
         let setters = SHEET_PARAMS
             .iter()
             .enumerate()
@@ -950,6 +958,7 @@ impl CardOrigins {
                 match (given, by_instance(spec.name)) {
                     (false, _) => Setter::Unset,
                     (true, true) => Setter::Instance,
+                    (true, false) if by_command_line(spec.name) => Setter::CommandLine,
                     (true, false) => Setter::Card,
                 }
             })
@@ -1002,6 +1011,8 @@ pub enum Origin {
     Instance,
     /// The device card set it.
     Card,
+    /// `--set card.key=value` on the command line set it.
+    CommandLine,
     /// The material library's entry `entry` in `section`, under `key`; `note` says how the
     /// library value was adjusted, if it was.
     Library {
@@ -1047,6 +1058,7 @@ pub fn resolved_values(card: &SheetFetCard, o: &CardOrigins) -> Vec<CardValue> {
     let by = |key: &str| match o.setter(key) {
         Setter::Card => Some(Origin::Card),
         Setter::Instance => Some(Origin::Instance),
+        Setter::CommandLine => Some(Origin::CommandLine),
         Setter::Unset => None,
     };
     let channel = o.text("channel");

@@ -96,7 +96,10 @@ pub fn did_you_mean<'a>(
     // catches longer ones with a shared start.
     let limit = (name.chars().count() / 4).max(1);
     let mut best: Option<(usize, f64, &str)> = None;
-    let candidates: Vec<&str> = candidates.into_iter().collect();
+    // Sorted, so that callers holding names in hash maps get the same answer on every run.
+    let mut candidates: Vec<&str> = candidates.into_iter().collect();
+    candidates.sort_unstable();
+    candidates.dedup();
     // The same name in another case is the likeliest mistake (`pf` for `pF`).
     if let Some(c) = candidates
         .iter()

@@ -38,8 +38,24 @@ fn replaces_and_adds_card_keys_and_instances_still_win() {
     ])
     .unwrap();
     assert!((mobility(&d, "a") - 55e-4).abs() < 1e-12);
-    // The instance's own value is not the card's.
+    // The instance's own value is not the card's, and the design warns at it.
     assert!((mobility(&d, "b") - 10e-4).abs() < 1e-12);
+    let shadowed: Vec<_> = d
+        .warnings
+        .iter()
+        .filter(|w| w.kind == ErrorKind::Duplicate && w.message.contains("does not reach"))
+        .collect();
+    assert_eq!(shadowed.len(), 1, "{:?}", d.warnings);
+    assert!(shadowed[0].message.contains("`b`"));
+    // check --verbose's origins name the command line.
+    let o = d
+        .sheet_card_origins(d.circuit.find_element("a").unwrap())
+        .unwrap();
+    assert_eq!(
+        o.setter("electron_mobility"),
+        lamina_netlist::catalog::Setter::CommandLine
+    );
+    assert_eq!(o.setter("length"), lamina_netlist::catalog::Setter::Card);
     let card = d.sheet_card(d.circuit.find_element("a").unwrap()).unwrap();
     assert!((card.source_resistance - 300e-6).abs() < 1e-15);
     assert!((card.length - 100e-9).abs() < 1e-20);

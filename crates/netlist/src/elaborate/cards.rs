@@ -50,6 +50,8 @@ pub(super) struct DeviceCard {
     error: Option<usize>,
     /// Whether an instance has been noted on the card's error.
     noted: bool,
+    /// Keys set from the command line (`--set card.key=value`).
+    command_line: Vec<String>,
 }
 
 impl<'s> Elaborator<'s> {
@@ -59,6 +61,7 @@ impl<'s> Elaborator<'s> {
         model: &Ident,
         params: &[Assign],
         top: &Frame,
+        command_line: Vec<String>,
     ) {
         if self.devices.contains_key(&name.name) || catalog::kind(&name.name).is_some() {
             self.err(
@@ -103,6 +106,7 @@ impl<'s> Elaborator<'s> {
                 name_span: name.span,
                 error,
                 noted: false,
+                command_line,
             },
         );
     }
@@ -193,7 +197,17 @@ impl<'s> Elaborator<'s> {
             Some(c) => c,
             None => match catalog::sheet_card(v) {
                 Ok(c) => {
-                    let origins = CardOrigins::new(card, v, |p| inst.span_of(p).is_some());
+                    let from_command_line = self
+                        .devices
+                        .get(card)
+                        .map(|c| c.command_line.clone())
+                        .unwrap_or_default();
+                    let origins = CardOrigins::new(
+                        card,
+                        v,
+                        |p| inst.span_of(p).is_some(),
+                        |p| from_command_line.iter().any(|k| k == p),
+                    );
                     let c = (std::sync::Arc::new(c), std::sync::Arc::new(origins));
                     if unchanged {
                         self.card_cache.insert(card.to_string(), c.clone());
@@ -351,6 +365,25 @@ impl<'s> Elaborator<'s> {
         };
         let pins = self.connect(k.terminals, k.name, connections, span, &refs);
         let inst = self.given(k, params, &refs);
+        // A card key set from the command line does not reach an instance that sets it itself:
+        // say so, or a sweep of it would silently stay flat for this instance.
+        if let Some(card) = self.devices.get(&kind.name) {
+            for key in &card.command_line {
+                if let Some(at) = inst.span_of(key) {
+                    self.warns.push(
+                        Diagnostic::new(
+                            ErrorKind::Duplicate,
+                            at,
+                            format!(
+                                "`{full}` sets `{key}` itself, so `--set/--param {}.{key}` does not reach it",
+                                kind.name
+                            ),
+                        )
+                        .with_help("remove the instance's value to let the command line set it"),
+                    );
+                }
+            }
+        }
         // A bad card was reported at its own line: note the first instance there, add nothing.
         if let Some(card) = self.devices.get_mut(&kind.name) {
             if let Some(i) = card.error {

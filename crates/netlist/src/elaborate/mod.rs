@@ -494,10 +494,11 @@ impl<'s> Elaborator<'s> {
                             .filter(|a| !sets.iter().any(|b| b.name.name == a.name.name))
                             .cloned()
                             .collect();
+                        let keys = sets.iter().map(|a| a.name.name.clone()).collect();
                         merged.extend(sets);
-                        self.device_card(name, model, &merged, &top);
+                        self.device_card(name, model, &merged, &top, keys);
                     }
-                    None => self.device_card(name, model, params, &top),
+                    None => self.device_card(name, model, params, &top, Vec::new()),
                 },
                 _ => {}
             }
