@@ -197,7 +197,7 @@ pub fn json(r: &OpReport) -> serde_json::Value {
                 })
                 .collect();
             let ss = d.small_signal.map(|s| {
-                json!({ "gm_s": s.gm, "gds_s": s.gds, "cgg_f": s.cgg, "cgd_f": s.cgd,
+                json!({ "gm_siemens": s.gm, "gds_siemens": s.gds, "cgg_f": s.cgg, "cgd_f": s.cgd,
                         "cgs_f": s.cgs, "cdd_f": s.cdd, "cdg_f": s.cdg, "ft_quasi_static_hz": s.f_t() })
             });
             json!({ "name": d.name, "kind": d.kind, "terminals": terminals,
@@ -213,7 +213,7 @@ pub fn json(r: &OpReport) -> serde_json::Value {
         "definitions": {
             "current": "terminal currents flow from the node into the element; a source's current is the current into its first terminal",
             "power_delivered_w": "power the source delivers to the circuit, -sum of V_t I_t over its terminals",
-            "small_signal": "derivatives at the pins with contact nodes eliminated: gm = dI_D/dV_G, gds = dI_D/dV_D, cgg = dQ_G/dV_G, cgd = -dQ_G/dV_D, cgs = -dQ_G/dV_S, cdd = dQ_D/dV_D, cdg = -dQ_D/dV_G; ft_quasi_static_hz = gm / (2 pi cgg)",
+            "small_signal": "derivatives at the pins with contact nodes eliminated: gm_siemens = dI_D/dV_G, gds_siemens = dI_D/dV_D, cgg = dQ_G/dV_G, cgd = -dQ_G/dV_D, cgs = -dQ_G/dV_S, cdd = dQ_D/dV_D, cdg = -dQ_D/dV_G; ft_quasi_static_hz = gm / (2 pi cgg)",
             "region": REGION_DEFINITION,
         },
     })
@@ -267,13 +267,20 @@ pub fn text(r: &OpReport) -> String {
         if let Some(ss) = &d.small_signal {
             let _ = writeln!(
                 s,
-                "    g_m {}   g_ds {}   C_gg {}   C_gd {}   C_gs {}   f_T {}",
+                "    g_m {}   g_ds {}   f_T {}",
                 eng(ss.gm, "S"),
                 eng(ss.gds, "S"),
+                ss.f_t()
+                    .map_or("- (no gate capacitance)".to_string(), |f| eng(f, "Hz"))
+            );
+            let _ = writeln!(
+                s,
+                "    C_gg {}   C_gd {}   C_gs {}   C_dd {}   C_dg {}",
                 eng(ss.cgg, "F"),
                 eng(ss.cgd, "F"),
                 eng(ss.cgs, "F"),
-                ss.f_t().map_or("-".to_string(), |f| eng(f, "Hz"))
+                eng(ss.cdd, "F"),
+                eng(ss.cdg, "F")
             );
         }
         for (k, v) in &d.details {
@@ -306,10 +313,26 @@ pub fn csv(r: &OpReport) -> Vec<(&'static str, String)> {
             s.name, s.kind, s.voltage, s.current, s.power
         );
     }
+    let mut detail_names: Vec<(&'static str, &'static str)> = Vec::new();
+    for d in &r.devices {
+        for (k, v) in &d.details {
+            let unit = match v {
+                DetailValue::Number(_, unit) => *unit,
+                DetailValue::Word(_) => "",
+            };
+            if !detail_names.iter().any(|(n, _)| n == k) {
+                detail_names.push((k, unit));
+            }
+        }
+    }
     let mut devices = String::from(
         "device,kind,v_drain_v,v_gate_v,v_source_v,i_drain_a,i_gate_a,i_source_a,\
-         gm_s,gds_s,cgg_f,cgd_f,cgs_f,cdd_f,cdg_f,ft_quasi_static_hz,region\n",
+         gm_siemens,gds_siemens,cgg_f,cgd_f,cgs_f,cdd_f,cdg_f,ft_quasi_static_hz",
     );
+    for (k, unit) in &detail_names {
+        let _ = write!(devices, ",{}", detail_key(k, unit));
+    }
+    devices.push('\n');
     for d in &r.devices {
         let mut row = format!("{},{}", d.name, d.kind);
         for (_, v, _) in &d.terminals {
@@ -331,11 +354,18 @@ pub fn csv(r: &OpReport) -> Vec<(&'static str, String)> {
             }
             None => row.push_str(",,,,,,,,"),
         }
-        let region = d.details.iter().find_map(|(k, v)| match (k, v) {
-            (&"region", DetailValue::Word(w)) => Some(*w),
-            _ => None,
-        });
-        let _ = writeln!(devices, "{row},{}", region.unwrap_or(""));
+        for (k, _) in &detail_names {
+            let cell = d
+                .details
+                .iter()
+                .find(|(n, _)| n == k)
+                .map(|(_, v)| match v {
+                    DetailValue::Number(x, _) => format!("{x:e}"),
+                    DetailValue::Word(w) => w.to_string(),
+                });
+            let _ = write!(row, ",{}", cell.unwrap_or_default());
+        }
+        let _ = writeln!(devices, "{row}");
     }
     vec![
         ("nodes.csv", nodes),

@@ -179,6 +179,8 @@ pub fn columns(rows: &[Row]) -> Vec<String> {
 pub fn label(key: &str) -> String {
     const UNITS: &[(&str, &str)] = &[
         ("_hz", " (Hz)"),
+        ("_siemens", " (S)"),
+        ("_f", " (F)"),
         ("_s", " (s)"),
         ("_v", " (V)"),
         ("_w", " (W)"),
@@ -190,8 +192,10 @@ pub fn label(key: &str) -> String {
         .iter()
         .find_map(|(s, u)| rest.strip_suffix(s).map(|n| (n.to_string(), u.to_string())))
         .unwrap_or((rest.to_string(), String::new()));
-    if kind == "operating_point" {
+    if kind == "operating_point" && rest.ends_with("_v") {
         format!("node {name}{unit}")
+    } else if kind == "operating_point" {
+        format!("{name}{unit}")
     } else if kind.is_empty() {
         format!("{name}{unit}")
     } else {
@@ -277,6 +281,22 @@ fn figures(kind: &str, o: &Outcome) -> Vec<(String, f64)> {
         Outcome::OperatingPoint(op) => {
             for (n, x) in &op.nodes {
                 put(&format!("{n}_v"), Some(*x));
+            }
+            for s in &op.sources {
+                put(&format!("{}.current_a", s.name), Some(s.current));
+                put(&format!("{}.power_w", s.name), Some(s.power));
+            }
+            for d in &op.devices {
+                put(
+                    &format!("{}.i_drain_a", d.name),
+                    d.terminals.first().map(|t| t.2),
+                );
+                if let Some(ss) = &d.small_signal {
+                    put(&format!("{}.gm_siemens", d.name), Some(ss.gm));
+                    put(&format!("{}.gds_siemens", d.name), Some(ss.gds));
+                    put(&format!("{}.cgg_f", d.name), Some(ss.cgg));
+                    put(&format!("{}.ft_hz", d.name), ss.f_t());
+                }
             }
         }
         Outcome::Transfer { metrics, snm, .. } => {

@@ -211,7 +211,7 @@ fn per_width_file_with_two_devices_through_the_cli() {
     let devs = v["devices"].as_array().unwrap();
     assert_eq!(devs.len(), 2);
     assert_eq!(devs[1]["width_m"].as_f64().unwrap(), 5e-6);
-    let gm = devs[1]["curves"][0]["vth_linear_extrapolation"]["gm_max_s"]
+    let gm = devs[1]["curves"][0]["vth_linear_extrapolation"]["gm_max_siemens"]
         .as_f64()
         .unwrap();
     // 0.5 uA/um per volt times 5 um.

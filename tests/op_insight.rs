@@ -206,6 +206,54 @@ fn cli_reports_devices_and_writes_csv() {
     );
     let devices = std::fs::read_to_string(dir.join("operating_point-1/devices.csv")).unwrap();
     assert_eq!(devices.lines().count(), 3);
-    assert!(devices.lines().nth(1).unwrap().ends_with(",saturation"));
+    let header: Vec<&str> = devices.lines().next().unwrap().split(',').collect();
+    let row: Vec<&str> = devices.lines().nth(1).unwrap().split(',').collect();
+    assert_eq!(header.len(), row.len());
+    let col = |name: &str| row[header.iter().position(|h| *h == name).unwrap()];
+    assert_eq!(col("region"), "saturation");
+    assert_eq!(col("carrier"), "electrons");
+    assert!(
+        col("electron_density_at_source_per_m2")
+            .parse::<f64>()
+            .unwrap()
+            > 1e15
+    );
     let _ = std::fs::remove_dir_all(&dir);
+}
+
+/// A sweep of an operating point reports each source's current and power and each FET's
+/// small-signal figures beside the node voltages, with their units in the headers.
+#[test]
+fn sweep_columns_of_an_operating_point() {
+    use lamina::sweep::label;
+    assert_eq!(label("operating_point.inv.x_v"), "node inv.x (V)");
+    assert_eq!(
+        label("operating_point.inv.pull_down.gm_siemens"),
+        "inv.pull_down.gm (S)"
+    );
+    assert_eq!(label("operating_point.m.cgg_f"), "m.cgg (F)");
+    assert_eq!(label("operating_point.supply.power_w"), "supply.power (W)");
+    let out = Command::new(env!("CARGO_BIN_EXE_lamina"))
+        .args([
+            "sweep",
+            "netlists/demo/inverter-op.lam",
+            "--param",
+            "n2d.electron_mobility=20,40cm^2/(V s)",
+            "--json",
+        ])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = String::from_utf8_lossy(&out.stdout);
+    for key in [
+        "operating_point.supply.power_w",
+        "operating_point.inv.pull_down.gm_siemens",
+        "operating_point.inv.pull_down.ft_hz",
+    ] {
+        assert!(text.contains(key), "{key} missing");
+    }
 }

@@ -299,8 +299,8 @@ fn the_demo_runs_from_the_command_line() {
         .unwrap();
     let ss = &op["devices"][0]["small_signal"];
     let (gm, gds, cdd) = (
-        ss["gm_s"].as_f64().unwrap(),
-        ss["gds_s"].as_f64().unwrap(),
+        ss["gm_siemens"].as_f64().unwrap(),
+        ss["gds_siemens"].as_f64().unwrap(),
         ss["cdd_f"].as_f64().unwrap(),
     );
     let r = 100e3;

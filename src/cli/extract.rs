@@ -171,7 +171,7 @@ fn curve_json(c: &crate::extract::Curve, f: &CurveFigures) -> Value {
         "below_floor": c.below_floor,
         "polarity": f.polarity.name(),
         "vth_constant_current": fig(&f.vth_cc, |t| json!({"vth_v": t.vth_v, "criterion_a": t.criterion_a})),
-        "vth_linear_extrapolation": fig(&f.vth_gm, |g| json!({"vth_v": g.vth_v, "gm_max_s": g.gm_s, "vgs_at_gm_max_v": g.vgs_v})),
+        "vth_linear_extrapolation": fig(&f.vth_gm, |g| json!({"vth_v": g.vth_v, "gm_max_siemens": g.gm_s, "vgs_at_gm_max_v": g.vgs_v})),
         "vth_second_derivative": fig(&f.vth_sd, |v| json!({"vth_v": v})),
         "ss_min": fig(&f.ss_min, |s| json!({"mv_per_dec": s.mv_per_dec, "vgs_v": s.vgs, "id_a": s.current})),
         "ss_vs_id": f.ss_table.iter().map(|s| json!({"id_a": s.current, "mv_per_dec": s.mv_per_dec})).collect::<Vec<_>>(),

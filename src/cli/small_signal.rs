@@ -59,7 +59,7 @@ fn device_json(d: &DeviceReport, f: &[f64]) -> serde_json::Value {
         .collect();
     let mut v = serde_json::json!({
         "name": d.name,
-        "g_m_s": d.g_m,
+        "g_m_siemens": d.g_m,
         "c_gg_f": d.c_gg,
         "f_t_extrapolated_hz": d.f_t_extrapolated,
         "points": points,
