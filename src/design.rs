@@ -51,20 +51,24 @@ pub fn load(path: &Path, sets: &[(String, String)]) -> Result<Design, JobError> 
     };
     let design = load_file(path, &options).map_err(|f| {
         let n = f.diagnostics.len();
+        let only_values = f
+            .diagnostics
+            .iter()
+            .all(|d| f.sources.name(d.span.file).starts_with("--set/--param "));
         let text = format!(
             "{}{} error{} in {}",
             render(&f.sources, &f.diagnostics),
             n,
             if n == 1 { "" } else { "s" },
-            path.display()
+            if only_values {
+                format!("--set/--param values for {}", path.display())
+            } else {
+                path.display().to_string()
+            }
         );
         if f.diagnostics.iter().any(|d| d.kind == ErrorKind::Io) {
             JobError::Io(text)
-        } else if f
-            .diagnostics
-            .iter()
-            .all(|d| f.sources.name(d.span.file).starts_with("--set/--param "))
-        {
+        } else if only_values {
             JobError::Usage(text)
         } else {
             JobError::Invalid(text)

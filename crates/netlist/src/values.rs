@@ -167,6 +167,9 @@ pub fn parse_values(
         .iter()
         .map(|p| split_literal(p))
         .collect::<Result<Vec<_>, _>>()?;
+    // A unit written on the step alone (`0:1:1mV`) applies to all three parts.
+    let unit_from_step =
+        range && parts[0].unit.is_empty() && parts[1].unit.is_empty() && !parts[2].unit.is_empty();
     share_unit(&mut parts);
     if let Some(u) = default_unit {
         for p in &mut parts {
@@ -211,6 +214,18 @@ pub fn parse_values(
              written once at the end applies to all three parts: write each part with its \
              unit, such as 0V:1V:10mV",
             step.text, start.text, stop.text
+        ));
+    }
+    // `0:1:1mV` is 0 to 1 mV, two points, although 0 to 1 V in 1 mV steps was surely meant:
+    // a prefixed unit written on the step alone that leaves three points or fewer is refused.
+    if unit_from_step && count <= 2.0 && unit_scale(&parts[2].unit).is_ok_and(|(k, _)| k != 1.0) {
+        return Err(format!(
+            "`{text}` reads as {} to {} in steps of {} ({} points: a unit written once at the end \
+             applies to all three parts); write each part with its unit, such as 0V:1V:1mV",
+            start.text,
+            stop.text,
+            step.text,
+            count as i64 + 1
         ));
     }
     if count.is_nan() || count >= max_points as f64 {
@@ -318,6 +333,12 @@ mod tests {
         assert!(parse_values("abc", None, 10).is_err());
         // A unit on the step alone would make the whole range 0 to 1 mV in 10 mV steps.
         assert!(parse_values("0:1:10mV", None, 10).is_err());
+        // ... and one that leaves two or three points (0 to 1 mV in 1 mV or 0.5 mV steps) is
+        // refused too; without a prefix (0 to 1 V in 0.5 V steps) it is what was meant.
+        assert!(parse_values("0:1:1mV", None, 10).is_err());
+        assert!(parse_values("0:1:0.5mV", None, 10).is_err());
+        assert_eq!(si("0:1:0.5V", None), vec![0.0, 0.5, 1.0]);
+        assert_eq!(si("0:1:0.25mV", None).len(), 5);
         assert_eq!(si("0V:1V:500mV", None), vec![0.0, 0.5, 1.0]);
         assert_eq!(si("0.6V:1200mV:0.2V", None).len(), 4);
     }
