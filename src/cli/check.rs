@@ -192,11 +192,18 @@ fn print_card(c: &Described) {
         out!("  {key:<36} {name:>16} {:<10} {}", "", setter(*s));
     }
     for v in &c.values {
+        // Zero means "none" for these keys (no velocity saturation, no contact resistance),
+        // not a zero velocity or a short.
+        let none = v.value == 0.0
+            && matches!(
+                v.key.as_str(),
+                "saturation_velocity" | "source_resistance" | "drain_resistance"
+            );
         out!(
             "  {:<36} {:>16} {:<10} {}",
             v.key,
-            num(v.value),
-            v.unit,
+            if none { "none".to_string() } else { num(v.value) },
+            if none { "" } else { v.unit },
             origin_text(&v.origin)
         );
     }
