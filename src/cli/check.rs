@@ -202,7 +202,11 @@ fn print_card(c: &Described) {
         out!(
             "  {:<36} {:>16} {:<10} {}",
             v.key,
-            if none { "none".to_string() } else { num(v.value) },
+            if none {
+                "none".to_string()
+            } else {
+                num(v.value)
+            },
             if none { "" } else { v.unit },
             origin_text(&v.origin)
         );

@@ -563,6 +563,30 @@ impl<'s> Elaborator<'s> {
             );
             return None;
         }
+        // A node an ideal voltage source holds against ground has no small-signal voltage of
+        // its own (unless that source is the one driving).
+        if let Some(node) = self.circuit.find_node(&output) {
+            let holder = self.circuit.elements().find(|&e| {
+                self.circuit.element_kind(e) == "voltage source"
+                    && self.circuit.element_name(e) != source
+                    && {
+                        let pins = self.circuit.element_pins(e);
+                        pins.contains(&node) && pins.iter().any(|n| n.is_ground())
+                    }
+            });
+            if let Some(e) = holder {
+                self.bad(
+                    out_span,
+                    format!(
+                        "`output` `{output}` is held by the voltage source `{}`, so its \
+                         small-signal voltage is always zero",
+                        self.circuit.element_name(e)
+                    ),
+                    "name a node the circuit is free to move, such as a drain behind a load".into(),
+                );
+                return None;
+            }
+        }
         if from <= 0.0 {
             self.bad(
                 from_span,
