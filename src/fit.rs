@@ -253,7 +253,7 @@ impl FitSpec {
         };
         let lo = key.check_dim(lo).map_err(|e| format!("`{text}`: {e}"))?;
         let hi = key.check_dim(hi).map_err(|e| format!("`{text}`: {e}"))?;
-        if !(lo < hi) {
+        if lo >= hi {
             return Err(format!(
                 "`{text}`: the lower bound must lie below the upper"
             ));
@@ -782,6 +782,15 @@ pub struct Outcome {
     pub wall_s: f64,
 }
 
+/// What [`inspect`] reads from the card file.
+#[derive(Clone, Debug, PartialEq)]
+pub struct CardFacts {
+    /// The FET's channel length and width (m), as resolved.
+    pub length_width_m: (f64, f64),
+    /// Each key's value as the file resolves it (SI), where the card has one.
+    pub values: Vec<Option<f64>>,
+}
+
 /// Checks the card file against the fit: one 2D-channel FET made from the fitted keys' card,
 /// whose instance sets none of the fitted or tied keys (nor `length`/`width` where the data
 /// gives them). Returns the card's `(L, W)` and each key's value as the file resolves it.
@@ -789,7 +798,7 @@ pub fn inspect(
     model: &Model,
     keys: &[Key],
     data_has_geometry: bool,
-) -> Result<((f64, f64), Vec<Option<f64>>), String> {
+) -> Result<CardFacts, String> {
     let design = model.load(Vec::new())?;
     let fet = crate::iv::find_fet(&design.circuit)?;
     let name = design.circuit.element_name(fet).to_string();
@@ -833,7 +842,10 @@ pub fn inspect(
             })
         })
         .collect();
-    Ok(((card.length, card.width), values))
+    Ok(CardFacts {
+        length_width_m: (card.length, card.width),
+        values,
+    })
 }
 
 /// The two-sided 95 % quantile of Student's t with `dof` degrees of freedom (Cornish-Fisher
@@ -954,6 +966,37 @@ pub fn run_fit(
         device_evaluations,
         wall_s: t0.elapsed().as_secs_f64(),
     })
+}
+
+/// Why [`fit_table`] gave no fit.
+#[derive(Clone, Debug, PartialEq)]
+pub enum FitFailure {
+    /// The card file does not suit the keys (another card, keys its instance sets): a usage
+    /// fault.
+    Setup(String),
+    /// The model or the solver failed.
+    Fit(String),
+}
+
+/// The whole fit of `cfg` to `table` with the card file at `card`: the file inspected
+/// ([`inspect`]), the data grouped, the starts chosen and the solver run.
+pub fn fit_table(card: &Path, table: &Table, cfg: &FitConfig) -> Result<Outcome, FitFailure> {
+    let keys: Vec<Key> = cfg.params.iter().map(|p| p.key.clone()).collect();
+    let all: Vec<Key> = keys
+        .iter()
+        .cloned()
+        .chain(cfg.ties.iter().map(|t| t.0.clone()))
+        .collect();
+    let mut model = Model::new(card, keys.clone(), cfg.ties.clone());
+    let geometry = table
+        .rows
+        .iter()
+        .any(|r| r.length_m.is_some() || r.width_m.is_some());
+    let facts = inspect(&model, &keys, geometry).map_err(FitFailure::Setup)?;
+    inspect(&model, &all, false).map_err(FitFailure::Setup)?;
+    let data = group(table, facts.length_width_m, cfg);
+    let start = starts(&cfg.params, &facts.values);
+    run_fit(&mut model, data, cfg, start).map_err(FitFailure::Fit)
 }
 
 /// The statements of what the data cannot determine (see [`lamina_measure::lsq`]): weak

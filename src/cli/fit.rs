@@ -5,7 +5,7 @@
 use crate::cli::extract::read_table;
 use crate::cli::CAUTION;
 use crate::error::JobError;
-use crate::fit::{self, FitConfig, FitSpec, Kind, Model, Outcome, Unit};
+use crate::fit::{self, FitConfig, FitSpec, Kind, Outcome, Unit};
 use crate::out;
 use crate::output::{csv, ensure_dir, write_whole, OutputSet};
 use crate::plot::{draw, Axis, Figure, Series, Style};
@@ -161,28 +161,17 @@ pub fn plan(a: &Args) -> Result<FitConfig, JobError> {
 pub fn run(a: Args) -> Result<(), JobError> {
     let set = OutputSet::begin_opt(a.out.as_deref())?;
     let cfg = plan(&a)?;
-    crate::design::load(&a.card, &[])?;
-    let keys: Vec<fit::Key> = cfg.params.iter().map(|p| p.key.clone()).collect();
-    let tied: Vec<fit::Key> = keys
-        .iter()
-        .cloned()
-        .chain(cfg.ties.iter().map(|t| t.0.clone()))
-        .collect();
-    let mut model = Model::new(&a.card, keys.clone(), cfg.ties.clone());
-    let (lw, card_values) = fit::inspect(&model, &keys, false).map_err(usage)?;
-    fit::inspect(&model, &tied, false).map_err(usage)?;
-    let table = read_table(&a.data, Some(lw.1))?;
-    if table
-        .rows
-        .iter()
-        .any(|r| r.length_m.is_some() || r.width_m.is_some())
-    {
-        fit::inspect(&model, &keys, true).map_err(usage)?;
-    }
-    let data = fit::group(&table, lw, &cfg);
-    let start = fit::starts(&cfg.params, &card_values);
-    let o = fit::run_fit(&mut model, data, &cfg, start)
-        .map_err(|e| JobError::Analysis(format!("the fit failed: {e}")))?;
+    let design = crate::design::load(&a.card, &[])?;
+    // The card's width turns a per-width current into a current where the data has no `W`.
+    let width = crate::iv::find_fet(&design.circuit)
+        .ok()
+        .and_then(|fet| design.sheet_card(fet))
+        .map(|c| c.width);
+    let table = read_table(&a.data, width)?;
+    let o = fit::fit_table(&a.card, &table, &cfg).map_err(|f| match f {
+        fit::FitFailure::Setup(e) => JobError::Usage(e),
+        fit::FitFailure::Fit(e) => JobError::Analysis(format!("the fit failed: {e}")),
+    })?;
     let summary = to_json(&o, &cfg, &a);
     if let Some(set) = set {
         write_files(set.dir(), &o, &summary, &a.card).map_err(JobError::Io)?;
