@@ -28,7 +28,9 @@
 //! * above threshold: `r_i = w_on (I_model - I_data) / |I_data|` (relative).
 //!
 //! Both weights default to 1, so a decade of error in subthreshold counts like a 100 %
-//! error in the on-current; `½ Σ r_i²` is minimised by [`lamina_measure::lsq::fit`]
+//! error in the on-current. With multiplicative measurement noise of relative size σ, a log10
+//! residual has spread σ / ln 10, so `w_sub = ln 10` gives both kinds one variance, which the
+//! standard errors assume (the tests fit that way). `½ Σ r_i²` is minimised by [`lamina_measure::lsq::fit`]
 //! (bounded Levenberg-Marquardt, log or linear parameters, deterministic starts), whose
 //! statistics (standard errors, correlations, singular values, undetermined combinations)
 //! are reported with 95 % intervals from Student's t with `m - n` degrees of freedom.
@@ -793,12 +795,8 @@ pub struct CardFacts {
 
 /// Checks the card file against the fit: one 2D-channel FET made from the fitted keys' card,
 /// whose instance sets none of the fitted or tied keys (nor `length`/`width` where the data
-/// gives them). Returns the card's `(L, W)` and each key's value as the file resolves it.
-pub fn inspect(
-    model: &Model,
-    keys: &[Key],
-    data_has_geometry: bool,
-) -> Result<CardFacts, String> {
+/// gives them), and what it reads of the card ([`CardFacts`]).
+pub fn inspect(model: &Model, keys: &[Key], data_has_geometry: bool) -> Result<CardFacts, String> {
     let design = model.load(Vec::new())?;
     let fet = crate::iv::find_fet(&design.circuit)?;
     let name = design.circuit.element_name(fet).to_string();

@@ -46,7 +46,8 @@ pub struct Args {
     pub out: Option<PathBuf>,
 }
 
-fn positive(
+/// A positive value of `dim` from a flag, in `unit` unless one is written (exit 2 otherwise).
+pub(crate) fn positive(
     flag: &str,
     text: &Option<String>,
     unit: &str,

@@ -2,7 +2,7 @@
 //! errors, correlations and what the data cannot determine (see [`crate::fit`] for the data
 //! grouping, the model evaluations and the objective).
 
-use crate::cli::extract::read_table;
+use crate::cli::extract::{positive, read_table};
 use crate::cli::CAUTION;
 use crate::error::JobError;
 use crate::fit::{self, FitConfig, FitSpec, Kind, Outcome, Unit};
@@ -22,8 +22,11 @@ use std::path::{Path, PathBuf};
     Levenberg-Marquardt method. Points below the floor (1 pA x W/L, at least 10 pA, unless \
     --floor) are left out and counted. Each device (L, W per row) is simulated at its own bias \
     points with the card file's one FET, the fitted keys set as by --set card.key=VALUE.\n\
-    Example: lamina fit curves.csv --card device.lam --fit n2d.electron_mobility=5:200cm^2/(V s):log \
-    --fit n2d.source_resistance=10:5000Ohm um:log --tie n2d.drain_resistance=n2d.source_resistance"
+    With multiplicative measurement noise, --weights sub=2.303 (ln 10) puts both kinds on one \
+    scale, as the standard errors assume. The fitted values are model estimates.\n\
+    Example: lamina fit curves.csv --card device.lam \
+    --fit \"n2d.electron_mobility=5:200cm^2/(V s):log\" --fit \"n2d.source_resistance=10:5000Ohm um:log\" \
+    --tie n2d.drain_resistance=n2d.source_resistance"
 )]
 pub struct Args {
     /// Measured curves: CSV with units in the headers, such as `V_GS (V), V_DS (V), I_D (A)`;
@@ -66,20 +69,6 @@ pub struct Args {
 
 fn usage(e: String) -> JobError {
     JobError::Usage(e)
-}
-
-fn positive(flag: &str, text: &Option<String>) -> Result<Option<f64>, JobError> {
-    text.as_deref()
-        .map(|t| {
-            let v = crate::iv::parse_one(flag, t, "A", Dim::CURRENT)?;
-            if v > 0.0 && v.is_finite() {
-                Ok(v)
-            } else {
-                Err(format!("{flag} {t}: give a positive current"))
-            }
-        })
-        .transpose()
-        .map_err(usage)
 }
 
 fn weights(text: &str) -> Result<(f64, f64), String> {
@@ -150,9 +139,9 @@ pub fn plan(a: &Args) -> Result<FitConfig, JobError> {
         ties,
         w_sub,
         w_on,
-        switch_per_square_a: positive("--switch-current", &a.switch_current)?
+        switch_per_square_a: positive("--switch-current", &a.switch_current, "A", Dim::CURRENT)?
             .unwrap_or(fit::SWITCH_PER_SQUARE),
-        floor_a: positive("--floor", &a.floor)?,
+        floor_a: positive("--floor", &a.floor, "A", Dim::CURRENT)?,
         starts: a.starts,
     })
 }
