@@ -182,6 +182,16 @@ pub(crate) fn drive(c: &mut Circuit, job: &str) -> Result<Driven, String> {
 
 /// Runs the grid: for each gate voltage, a DC sweep of the drain voltage.
 pub fn run_iv(design: Design, vgs: &[f64], vds: &[f64]) -> Result<Vec<IvPoint>, String> {
+    run_iv_with(design, vgs, vds, &sweep_params())
+}
+
+/// [`run_iv`] with the given solver parameters (a fit's tighter Newton tolerances, say).
+pub fn run_iv_with(
+    design: Design,
+    vgs: &[f64],
+    vds: &[f64],
+    params: &SweepParams,
+) -> Result<Vec<IvPoint>, String> {
     let mut c = design.circuit;
     let Driven {
         gate: vg_src,
@@ -191,13 +201,12 @@ pub fn run_iv(design: Design, vgs: &[f64], vds: &[f64]) -> Result<Vec<IvPoint>, 
     let mut sys = System::new(c).map_err(|e| e.to_string())?;
     let mut out = Vec::with_capacity(vgs.len() * vds.len());
     let probe = [Probe::Current(vd_src)];
-    let params = sweep_params();
     let gmin = params.op.gmin;
     for &vg in vgs {
         sys.set_source_value(vg_src, vg)
             .map_err(|e| e.to_string())?;
         let res = sys
-            .dc_sweep(vd_src, vds, &probe, &params)
+            .dc_sweep(vd_src, vds, &probe, params)
             .map_err(|e| e.to_string())?;
         for (k, &vd) in vds.iter().enumerate() {
             // The drain source's branch current flows from its positive pin through it, so the

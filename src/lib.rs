@@ -16,6 +16,7 @@
 //! * [`describe`]: resolved 2D-FET cards with the origin of every value, and figures derived
 //!   from the stack (EOT, flat-band and threshold voltages), for `check --verbose`.
 //! * [`extract`]: standard figures of measured transfer curves from a CSV data file.
+//! * [`fit`]: a device card's keys fitted to measured curves, with what the data determine.
 //! * [`delay`]: the delay job: propagation delays, polarity, rise and fall times of a path.
 //! * [`small_signal`]: transfer function, admittances and a FET's two-port parameters and
 //!   f_T at the operating point over frequency.
@@ -33,6 +34,7 @@ pub mod describe;
 pub mod design;
 pub mod error;
 pub mod extract;
+pub mod fit;
 pub mod iv;
 pub mod op;
 pub mod output;

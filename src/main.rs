@@ -47,6 +47,9 @@ enum Job {
     /// Standard figures of measured transfer curves (CSV): thresholds, swing, mobility,
     /// Y-function, transfer-length method.
     Extract(cli::extract::Args),
+    /// Fit keys of a device card to measured curves (CSV): values, errors, correlations and
+    /// what the data cannot determine.
+    Fit(cli::fit::Args),
 }
 
 fn main() -> ExitCode {
@@ -62,6 +65,7 @@ fn main() -> ExitCode {
         Job::Run(a) => cli::run::run(a),
         Job::Materials(a) => cli::materials::run(a),
         Job::Extract(a) => cli::extract::run(a),
+        Job::Fit(a) => cli::fit::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -111,6 +111,8 @@ pub struct Series {
     pub markers: bool,
     /// Drawn against the right axis.
     pub right: bool,
+    /// Palette index, so two series can share a colour (data and fit); default its position.
+    pub colour: Option<usize>,
 }
 
 impl Series {
@@ -122,6 +124,7 @@ impl Series {
             points,
             style: Style::Line,
             right: false,
+            colour: None,
         }
     }
 }
@@ -473,7 +476,7 @@ where
     let segments = k > 1;
     let mut any_legend = false;
     for (n, s) in fig.series.iter().enumerate() {
-        let colour = PALETTE[n % PALETTE.len()];
+        let colour = PALETTE[s.colour.unwrap_or(n) % PALETTE.len()];
         let scale_y = if s.right {
             sr.as_ref().unwrap_or(&sy)
         } else {

@@ -9,7 +9,7 @@ use crate::iv::show;
 use crate::out;
 use crate::output::{csv, ensure_dir, write_whole, OutputSet};
 use crate::plot::{draw, Axis, Figure, Mark, Series, Style};
-use lamina_netlist::table::{parse_table, TableOptions};
+use lamina_netlist::table::{parse_table, Table, TableOptions};
 use lamina_netlist::units::Dim;
 use serde_json::{json, Value};
 use std::path::{Path, PathBuf};
@@ -46,7 +46,8 @@ pub struct Args {
     pub out: Option<PathBuf>,
 }
 
-fn positive(
+/// A positive value of `dim` from a flag, in `unit` unless one is written (exit 2 otherwise).
+pub(crate) fn positive(
     flag: &str,
     text: &Option<String>,
     unit: &str,
@@ -84,30 +85,7 @@ pub fn run(a: Args) -> Result<(), JobError> {
             }
             None => None,
         };
-    let text = read_data(&a.data)?;
-    let table = parse_table(
-        &text,
-        &TableOptions {
-            width_m: card.as_ref().map(|c| c.width_m),
-        },
-    )
-    .map_err(|errors| {
-        JobError::Invalid(
-            errors
-                .iter()
-                .map(|e| {
-                    format!(
-                        "error: {}:{}:{}: {}\n  help: {}\n",
-                        a.data.display(),
-                        e.line,
-                        e.column,
-                        e.message,
-                        e.help
-                    )
-                })
-                .collect(),
-        )
-    })?;
+    let table = read_table(&a.data, card.as_ref().map(|c| c.width_m))?;
     let x = extract(&table, card.as_ref(), &cfg);
     let summary = to_json(&x, &cfg, &a.data);
     if let Some(set) = set {
@@ -122,6 +100,29 @@ pub fn run(a: Args) -> Result<(), JobError> {
         }
     }
     Ok(())
+}
+
+/// Reads and parses a data file; faults in it are located errors (exit 3). `width_m` turns a
+/// per-width current into a current where the file has no `W` column.
+pub(crate) fn read_table(path: &Path, width_m: Option<f64>) -> Result<Table, JobError> {
+    let text = read_data(path)?;
+    parse_table(&text, &TableOptions { width_m }).map_err(|errors| {
+        JobError::Invalid(
+            errors
+                .iter()
+                .map(|e| {
+                    format!(
+                        "error: {}:{}:{}: {}\n  help: {}\n",
+                        path.display(),
+                        e.line,
+                        e.column,
+                        e.message,
+                        e.help
+                    )
+                })
+                .collect(),
+        )
+    })
 }
 
 fn read_data(path: &Path) -> Result<String, JobError> {

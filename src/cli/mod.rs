@@ -8,6 +8,7 @@ pub mod check;
 pub mod cv;
 pub mod delay;
 pub mod extract;
+pub mod fit;
 pub mod iv;
 pub mod materials;
 pub mod ring;

@@ -30,6 +30,7 @@ pub mod diag;
 pub mod elaborate;
 pub mod lexer;
 pub mod parser;
+pub mod rewrite;
 pub mod source;
 pub mod table;
 pub mod units;
