@@ -194,9 +194,7 @@ pub fn label(key: &str) -> String {
         .unwrap_or((rest.to_string(), String::new()));
     if kind == "operating_point" && rest.ends_with("_v") {
         format!("node {name}{unit}")
-    } else if kind == "operating_point" {
-        format!("{name}{unit}")
-    } else if kind.is_empty() {
+    } else if kind == "operating_point" || kind.is_empty() {
         format!("{name}{unit}")
     } else {
         format!("{kind}.{name}{unit}")
