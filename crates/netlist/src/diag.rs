@@ -111,8 +111,10 @@ pub fn did_you_mean<'a>(
         if c == name {
             continue;
         }
-        let d = strsim::osa_distance(name, c);
-        let jw = strsim::jaro_winkler(name, c);
+        // Compared without case, so a misspelling in the wrong case (`Mos3`) still finds `MoS2`.
+        let (a, b) = (name.to_lowercase(), c.to_lowercase());
+        let d = strsim::osa_distance(&a, &b);
+        let jw = strsim::jaro_winkler(&a, &b);
         if d <= limit || jw > 0.88 {
             let better = match best {
                 None => true,
@@ -192,5 +194,14 @@ mod tests {
             Some("did you mean `mid`?")
         );
         assert_eq!(did_you_mean("zzz", ["mid", "vdd"]), None);
+        // Without regard to case, and the same answer whatever the candidates' order.
+        assert_eq!(
+            did_you_mean("Mos3", ["WS2", "MoS2", "MoSe2"]).as_deref(),
+            Some("did you mean `MoS2`?")
+        );
+        assert_eq!(
+            did_you_mean("x1", ["x2", "x0"]),
+            did_you_mean("x1", ["x0", "x2"])
+        );
     }
 }
