@@ -27,10 +27,11 @@
 //! * subthreshold, `|I_data| < I_sw`: `r_i = w_sub log10(|I_model| / |I_data|)` (decades);
 //! * above threshold: `r_i = w_on (I_model - I_data) / |I_data|` (relative).
 //!
-//! Both weights default to 1, so a decade of error in subthreshold counts like a 100 %
-//! error in the on-current. With multiplicative measurement noise of relative size σ, a log10
-//! residual has spread σ / ln 10, so `w_sub = ln 10` gives both kinds one variance, which the
-//! standard errors assume (the tests fit that way). `½ Σ r_i²` is minimised by [`lamina_measure::lsq::fit`]
+//! The weights default to `w_sub = ln 10` and `w_on = 1`: then both residuals are relative
+//! errors (`ln 10 log10(a/b) = ln(a/b)`, which equals `(a - b)/b` to first order), so with
+//! multiplicative measurement noise both kinds have one variance, which the standard errors
+//! assume. `--weights sub=1` counts a decade of subthreshold error like a 100 % error in the
+//! on-current instead. `½ Σ r_i²` is minimised by [`lamina_measure::lsq::fit`]
 //! (bounded Levenberg-Marquardt, log or linear parameters, deterministic starts), whose
 //! statistics (standard errors, correlations, singular values, undetermined combinations)
 //! are reported with 95 % intervals from Student's t with `m - n` degrees of freedom.
@@ -299,7 +300,7 @@ impl Default for FitConfig {
         FitConfig {
             params: Vec::new(),
             ties: Vec::new(),
-            w_sub: 1.0,
+            w_sub: std::f64::consts::LN_10,
             w_on: 1.0,
             switch_per_square_a: SWITCH_PER_SQUARE,
             floor_a: None,

@@ -22,8 +22,9 @@ use std::path::{Path, PathBuf};
     Levenberg-Marquardt method. Points below the floor (1 pA x W/L, at least 10 pA, unless \
     --floor) are left out and counted. Each device (L, W per row) is simulated at its own bias \
     points with the card file's one FET, the fitted keys set as by --set card.key=VALUE.\n\
-    With multiplicative measurement noise, --weights sub=2.303 (ln 10) puts both kinds on one \
-    scale, as the standard errors assume. The fitted values are model estimates.\n\
+    The default weights, sub = ln 10 = 2.303 and on = 1, make both residuals relative errors, so \
+    multiplicative measurement noise has one scale, as the standard errors assume; \
+    --weights sub=1 weighs a decade like 100 %. The fitted values are model estimates.\n\
     Example: lamina fit curves.csv --card device.lam \
     --fit \"n2d.electron_mobility=5:200cm^2/(V s):log\" --fit \"n2d.source_resistance=10:5000Ohm um:log\" \
     --tie n2d.drain_resistance=n2d.source_resistance"
@@ -46,7 +47,7 @@ pub struct Args {
     /// `n2d.drain_resistance=n2d.source_resistance`.
     #[arg(long, value_name = "KEY=FITTED_KEY")]
     pub tie: Vec<String>,
-    /// Weights of the log-current and relative-current residuals: `sub=1,on=1`.
+    /// Weights of the log-current and relative-current residuals (default `sub=2.303,on=1`).
     #[arg(long, value_name = "sub=W,on=W")]
     pub weights: Option<String>,
     /// Switch between log-current and relative residuals per square (x W/L); default 100nA.
@@ -72,7 +73,8 @@ fn usage(e: String) -> JobError {
 }
 
 fn weights(text: &str) -> Result<(f64, f64), String> {
-    let (mut sub, mut on) = (1.0, 1.0);
+    let d = FitConfig::default();
+    let (mut sub, mut on) = (d.w_sub, d.w_on);
     for part in text.split(',') {
         let bad = || format!("--weights {text}: expected sub=W,on=W with W a non-negative number");
         let (k, v) = part.split_once('=').ok_or_else(bad)?;
@@ -129,7 +131,10 @@ pub fn plan(a: &Args) -> Result<FitConfig, JobError> {
     let (w_sub, w_on) = a
         .weights
         .as_deref()
-        .map_or(Ok((1.0, 1.0)), weights)
+        .map_or(
+            Ok((FitConfig::default().w_sub, FitConfig::default().w_on)),
+            weights,
+        )
         .map_err(usage)?;
     if a.starts == 0 || a.starts > 1000 {
         return Err(usage("--starts: give 1 to 1000 starts".into()));
@@ -228,7 +233,7 @@ pub fn text_report(o: &Outcome, cfg: &FitConfig) -> Vec<String> {
             o.data.curves.len()
         ),
         format!(
-            "  residuals: {} log-current (w_sub = {}), {} relative (w_on = {}); {} points below the floor left out",
+            "  residuals: {} log-current (w_sub = {:.4}), {} relative (w_on = {:.4}); {} points below the floor left out",
             count(Kind::Sub),
             cfg.w_sub,
             count(Kind::On),
