@@ -25,7 +25,7 @@ impl Given {
         self.numbers.is_empty() && self.texts.is_empty() && self.waveform.is_none()
     }
 
-    fn span_of(&self, name: &str) -> Option<Span> {
+    pub(super) fn span_of(&self, name: &str) -> Option<Span> {
         self.numbers
             .iter()
             .find(|n| n.0 == name)
@@ -42,8 +42,8 @@ impl Given {
 
 /// A device card: its kind, its checked values, and whether it is bad.
 pub(super) struct DeviceCard {
-    kind: &'static Kind,
-    values: Given,
+    pub(super) kind: &'static Kind,
+    pub(super) values: Given,
     name_span: Span,
     /// The card's own error in `diags`, if it has one; instances of a bad card add nothing but
     /// a note on it.
@@ -184,8 +184,15 @@ impl<'s> Elaborator<'s> {
 
     /// Records the resolved card of a 2D-FET element; instances that change nothing share their
     /// device card's.
-    fn keep_sheet_card(&mut self, element: usize, card: &str, inst: &Given, v: &Values) {
-        let unchanged = inst.is_empty();
+    fn keep_sheet_card(
+        &mut self,
+        element: usize,
+        card: &str,
+        inst: &Given,
+        v: &Values,
+        perturbed: bool,
+    ) {
+        let unchanged = inst.is_empty() && !perturbed;
         let cached = unchanged
             .then(|| self.card_cache.get(card).cloned())
             .flatten();
@@ -373,7 +380,7 @@ impl<'s> Elaborator<'s> {
             .map(|c| (c.values.clone(), c.name_span));
         let empty = Given::default();
         let card_values = card.as_ref().map_or(&empty, |c| &c.0);
-        let Some(values) = assemble(k, card.as_ref().map(|c| &c.0), &inst) else {
+        let Some(mut values) = assemble(k, card.as_ref().map(|c| &c.0), &inst) else {
             let missing: Vec<&str> = k
                 .params
                 .iter()
@@ -401,6 +408,22 @@ impl<'s> Elaborator<'s> {
                 )),
             );
             return;
+        };
+        // A Monte Carlo sample puts its drawn values into the devices of varied cards.
+        let perturbed = match (&self.perturbation, &card) {
+            (Some(p), Some(_)) => {
+                let before = values.numbers.clone();
+                p.0.apply(&kind.name, self.created, &mut values.numbers);
+                let mut changed = false;
+                for (i, (new, old)) in values.numbers.iter().zip(&before).enumerate() {
+                    if new.to_bits() != old.to_bits() {
+                        values.given[i] = true;
+                        changed = true;
+                    }
+                }
+                changed
+            }
+            _ => false,
         };
         if self.created >= self.limits.max_elements {
             self.created += 1;
@@ -435,7 +458,7 @@ impl<'s> Elaborator<'s> {
         match self.circuit.add_boxed(&full, element, &pins) {
             Ok(id) => {
                 if k.name == "sheet_fet" {
-                    self.keep_sheet_card(id.index(), &kind.name, &inst, &values);
+                    self.keep_sheet_card(id.index(), &kind.name, &inst, &values, perturbed);
                 }
                 for &(n, at) in &self.last_pins {
                     if !n.is_ground() {
