@@ -34,6 +34,7 @@ pub mod design;
 pub mod error;
 pub mod extract;
 pub mod iv;
+pub mod montecarlo;
 pub mod op;
 pub mod output;
 pub mod plot;

@@ -266,7 +266,8 @@ pub fn axis_label(a: &Axis) -> String {
     }
 }
 
-fn figures(kind: &str, o: &Outcome) -> Vec<(String, f64)> {
+/// The figures of one analysis's outcome, keyed as in [`Row::figures`].
+pub(crate) fn figures(kind: &str, o: &Outcome) -> Vec<(String, f64)> {
     let mut f = Vec::new();
     let mut put = |k: &str, v: Option<f64>| {
         if let Some(v) = v {

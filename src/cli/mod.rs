@@ -10,6 +10,7 @@ pub mod delay;
 pub mod extract;
 pub mod iv;
 pub mod materials;
+pub mod montecarlo;
 pub mod ring;
 pub mod run;
 pub mod small_signal;
