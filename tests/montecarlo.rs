@@ -1,0 +1,371 @@
+//! Monte Carlo sampling of declared spreads against closed forms and its own guarantees.
+//!
+//! * A divider of two resistors with independent normal spreads: mean and standard deviation
+//!   of the output against first-order error propagation (J. R. Taylor, An Introduction to
+//!   Error Analysis, 2nd ed. (1997), ch. 3), within sampling error.
+//! * An RC delay with a log-normal resistor: the delay is `R C ln 2`, so its quantiles are the
+//!   log-normal's, `R_0 C ln 2 exp(sigma Φ⁻¹(p))`; the count of samples below each exact
+//!   quantile must be a plausible binomial count.
+//! * The counter-keyed normal and uniform draws pass Kolmogorov-Smirnov tests against statrs'
+//!   distribution functions.
+//! * Area scaling of a local spread (Pelgrom, Duinmaijer and Welbers, IEEE JSSC 24, 1433
+//!   (1989)): the spread halves when W L quadruples.
+//! * Rows are bit-identical on one and on two threads.
+//! * Yield intervals against a published table, and located errors in declarations.
+
+use lamina::montecarlo::{
+    column, run_samples, standard_normal, stats, transform, uniform, wilson, Applied, SampleRow,
+    Z95,
+};
+use lamina_netlist::{load_source, Distribution, LoadOptions};
+use statrs::distribution::{ContinuousCDF, Normal};
+use std::path::PathBuf;
+use std::sync::atomic::{AtomicUsize, Ordering};
+
+/// Writes `text` to a file of its own and runs `runs` samples on `threads` threads.
+fn sample(name: &str, text: &str, runs: usize, seed: u64, threads: usize) -> Vec<SampleRow> {
+    static N: AtomicUsize = AtomicUsize::new(0);
+    let n = N.fetch_add(1, Ordering::Relaxed);
+    let dir = std::env::temp_dir().join(format!("lamina-mc-{}-{n}-{name}", std::process::id()));
+    std::fs::create_dir_all(&dir).expect("temporary directory");
+    let file: PathBuf = dir.join(format!("{name}.lam"));
+    std::fs::write(&file, text).expect("temporary file");
+    let nominal = lamina::design::load(&file, &[]).expect("the file loads");
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .expect("a thread pool");
+    let rows = pool.install(|| run_samples(&file, &[], &nominal, runs, seed, false));
+    std::fs::remove_dir_all(&dir).expect("clean up");
+    rows
+}
+
+/// The values of `key` over the rows that have it.
+fn values(rows: &[SampleRow], key: &str) -> Vec<f64> {
+    column(rows, key).into_iter().flatten().collect()
+}
+
+const DIVIDER: &str = "\
+device r : resistor { resistance = 1 kOhm }
+voltage_source supply (pos = top, neg = ground) { dc = 1 V }
+r upper (a = top, b = mid)
+r lower (a = mid, b = ground)
+variation r.resistance { distribution = normal(sigma = 20 Ohm), scope = local }
+analysis operating_point
+";
+
+/// `v = V R_2 / (R_1 + R_2)` with `R_1 = R_2 = R`: `∂v/∂R_2 = -∂v/∂R_1 = V / (4 R)`, so to
+/// first order `σ_v = sqrt(2) V σ_R / (4 R)` = 7.07 mV and the mean is `V / 2` (the second-order
+/// bias is of relative size (σ_R/R)^2 = 4e-4, under a tenth of the mean's sampling error).
+/// At 400 samples the mean's standard error is σ_v / 20 and the standard deviation's relative
+/// standard error about 1 / sqrt(2 (N - 1)) = 3.5 %; both are checked at 4 standard errors
+/// (two-sided confidence 99.99 %).
+#[test]
+fn divider_with_normal_resistors_matches_linear_error_propagation() {
+    let rows = sample("divider", DIVIDER, 400, 11, 2);
+    assert!(rows.iter().all(|r| r.error.is_none()));
+    let s = stats(&column(&rows, "operating_point.mid_v")).expect("figures");
+    let sigma = 2f64.sqrt() * 1.0 * 20.0 / (4.0 * 1000.0);
+    assert!(
+        (s.mean - 0.5).abs() < 4.0 * sigma / 20.0,
+        "mean {} against 0.5 V",
+        s.mean
+    );
+    let rel = 1.0 / (2.0 * 399.0f64).sqrt();
+    assert!(
+        (s.std_dev / sigma - 1.0).abs() < 4.0 * rel,
+        "standard deviation {} against {sigma}",
+        s.std_dev
+    );
+    // Each resistor's own draw is listed and drives the output with opposite signs.
+    let up = values(&rows, "r.resistance.local_shift[upper]_ohm");
+    let down = values(&rows, "r.resistance.local_shift[lower]_ohm");
+    assert_eq!((up.len(), down.len()), (400, 400));
+    let mid = values(&rows, "operating_point.mid_v");
+    let rho_up = lamina::montecarlo::spearman(&up, &mid).expect("varies");
+    let rho_down = lamina::montecarlo::spearman(&down, &mid).expect("varies");
+    assert!(rho_up < -0.5 && rho_down > 0.5, "{rho_up} {rho_down}");
+}
+
+/// The delay of an RC driven by a 1 ps edge is `R C ln 2` to well under 0.1 % (the step
+/// response `1 - e^(-t/RC)`; see tests/delay.rs), and with `R` log-normal its quantiles are the
+/// log-normal's. For each p in {5, 50, 95} %, the number of samples at or below the exact
+/// quantile is Binomial(N, p) whatever the distribution (the order-statistic argument behind
+/// distribution-free quantile intervals, e.g. W. J. Conover, Practical Nonparametric
+/// Statistics, 3rd ed. (1999), sec. 3.2); it must lie within 3.9 binomial standard deviations
+/// (99.99 % two-sided, normal approximation) of N p.
+#[test]
+fn rc_delay_with_log_normal_resistor_has_log_normal_quantiles() {
+    let text = "\
+device r : resistor { resistance = 1 kOhm }
+voltage_source drive (pos = in, neg = ground) {
+    wave = pulse(low = 0 V, high = 1 V, delay = 1 ns, rise = 1 ps, fall = 1 ps, width = 30 ns, period = 60 ns)
+}
+r load (a = in, b = out)
+capacitor c (a = out, b = ground) { capacitance = 1 pF }
+variation r.resistance { distribution = log_normal(sigma = 0.25), scope = global }
+analysis delay { from = in, to = out, stop = 25 ns }
+";
+    let n = 200;
+    let rows = sample("rc", text, n, 5, 2);
+    assert!(
+        rows.iter().all(|r| r.error.is_none()),
+        "{:?}",
+        rows[0].error
+    );
+    let delays = values(&rows, "delay.t_plh_s");
+    assert_eq!(delays.len(), n);
+    let normal = Normal::standard();
+    for p in [0.05, 0.5, 0.95] {
+        let exact = 1e3 * 1e-12 * 2f64.ln() * (0.25 * normal.inverse_cdf(p)).exp();
+        let below = delays.iter().filter(|d| **d <= exact).count() as f64;
+        let (mean, sd) = (n as f64 * p, (n as f64 * p * (1.0 - p)).sqrt());
+        assert!(
+            (below - mean).abs() <= 3.9 * sd,
+            "p = {p}: {below} samples below {exact:e} s, expected {mean} ± {sd}"
+        );
+    }
+    // The recorded factor is the resistor's: delay / (R_0 C ln 2).
+    let factors = values(&rows, "r.resistance.global_factor");
+    for (f, d) in factors.iter().zip(&delays) {
+        assert!((d / (f * 1e-9 * 2f64.ln()) - 1.0).abs() < 2e-3, "{f} {d}");
+    }
+}
+
+/// The one-sample Kolmogorov-Smirnov statistic of `x` against the distribution function `cdf`.
+fn ks(mut x: Vec<f64>, cdf: impl Fn(f64) -> f64) -> f64 {
+    x.sort_by(f64::total_cmp);
+    let n = x.len() as f64;
+    x.iter()
+        .enumerate()
+        .map(|(i, v)| {
+            let f = cdf(*v);
+            (f - i as f64 / n).max((i + 1) as f64 / n - f)
+        })
+        .fold(0.0, f64::max)
+}
+
+/// Critical value at the 1 % level for large n: 1.628 / sqrt(n), the asymptotic Kolmogorov
+/// distribution (F. J. Massey, "The Kolmogorov-Smirnov test for goodness of fit",
+/// J. Am. Stat. Assoc. 46, 68 (1951), table 1). Draws over samples, over devices and over
+/// parameters, each sequence from its own part of the key.
+#[test]
+fn normal_and_uniform_draws_pass_kolmogorov_smirnov() {
+    let n = 5000;
+    let crit = 1.628 / (n as f64).sqrt();
+    let normal = Normal::standard();
+    let sequences: [Box<dyn Fn(u64) -> (u64, u64, u64)>; 3] = [
+        Box::new(|k| (k, u64::MAX, 0)),
+        Box::new(|k| (3, k, 1)),
+        Box::new(|k| (9, 4, k)),
+    ];
+    for (s, key) in sequences.iter().enumerate() {
+        let z: Vec<f64> = (0..n)
+            .map(|k| {
+                let (a, b, c) = key(k);
+                standard_normal(42, a, b, c)
+            })
+            .collect();
+        let d = ks(z, |x| normal.cdf(x));
+        assert!(d < crit, "normal, sequence {s}: D = {d}, critical {crit}");
+        let u: Vec<f64> = (0..n)
+            .map(|k| {
+                let (a, b, c) = key(k);
+                uniform(7, a, b, c)
+            })
+            .collect();
+        let d = ks(u, |x| x.clamp(0.0, 1.0));
+        assert!(d < crit, "uniform, sequence {s}: D = {d}, critical {crit}");
+        // A declared uniform spread of half-width 2 through the normal it is drawn from.
+        let w: Vec<f64> = (0..n)
+            .map(|k| {
+                let (a, b, c) = key(k);
+                match transform(
+                    Distribution::Uniform { half_width: 2.0 },
+                    standard_normal(5, a, b, c),
+                    1.0,
+                ) {
+                    Applied::Shift(v) | Applied::Factor(v) => v,
+                }
+            })
+            .collect();
+        let d = ks(w, |x| ((x + 2.0) / 4.0).clamp(0.0, 1.0));
+        assert!(d < crit, "declared uniform, sequence {s}: D = {d}");
+    }
+}
+
+/// Two 2D FETs of one card, the second with four times the gate area: with
+/// `sigma = sigma_ref sqrt(A_ref / (W L))` its mobility spread is half the first's. The ratio
+/// of two sample standard deviations of 300 samples each has a relative standard error of
+/// about 1 / sqrt(299) = 5.8 %; checked within 4 of them.
+#[test]
+fn local_spread_halves_when_the_area_quadruples() {
+    let text = "\
+device n : sheet_fet {
+    channel = MoS2, insulator = hBN, insulator_layers = 10
+    electron_mobility = 40 cm^2/(V s), width = 1 um, length = 1 um
+}
+n small (drain = ground, gate = ground, source = ground)
+n large (drain = ground, gate = ground, source = ground) { width = 2 um, length = 2 um }
+variation n.electron_mobility {
+    distribution = normal(sigma = 2 cm^2/(V s)), scope = local, reference_area = 1 um^2
+}
+analysis operating_point
+";
+    let rows = sample("area", text, 300, 3, 2);
+    let small = stats(&column(
+        &rows,
+        "n.electron_mobility.local_shift[small]_m_2_per_v_s",
+    ));
+    let large = stats(&column(
+        &rows,
+        "n.electron_mobility.local_shift[large]_m_2_per_v_s",
+    ));
+    let (Some(small), Some(large)) = (small, large) else {
+        let keys: Vec<&String> = rows[0].draws.iter().map(|d| &d.0).collect();
+        unreachable!("no mobility columns among {keys:?}");
+    };
+    let ratio = small.std_dev / large.std_dev;
+    assert!((ratio / 2.0 - 1.0).abs() < 4.0 * 0.058, "ratio {ratio}");
+    assert!(
+        (small.std_dev / 2e-4 - 1.0).abs() < 4.0 * 0.041,
+        "{}",
+        small.std_dev
+    );
+}
+
+/// Every row, figures, drawn values and errors alike, bit for bit on one and two threads, with
+/// global, local and correlated spreads of every shape.
+#[test]
+fn rows_are_identical_on_one_and_two_threads() {
+    let text = "\
+device r : resistor { resistance = 1 kOhm }
+voltage_source supply (pos = top, neg = ground) { dc = 1 V }
+r upper (a = top, b = mid)
+r lower (a = mid, b = ground)
+r tail (a = mid, b = ground)
+variation r.resistance { distribution = normal(sigma = 20 Ohm), scope = local }
+variation r.resistance { distribution = log_normal(sigma = 0.05), scope = global }
+device c : capacitor { capacitance = 1 pF }
+c hold (a = mid, b = ground)
+variation c.capacitance { distribution = uniform(half_width = 0.1 pF), scope = local }
+variation r.resistance { distribution = truncated_normal(sigma = 10 Ohm, bound = 15 Ohm), scope = global }
+";
+    // Two declarations of one key and scope are refused, so the last line makes this fail to
+    // load; the shared file below is the valid part.
+    assert!(load_source("dup.lam", text, &LoadOptions::default()).is_err());
+    let text = text.replace(
+        "variation r.resistance { distribution = truncated_normal(sigma = 10 Ohm, bound = 15 Ohm), scope = global }\n",
+        "correlation r { keys = [resistance, resistance], coefficient = 0.5 }\n",
+    );
+    assert!(load_source("self.lam", &text, &LoadOptions::default()).is_err());
+    let text = text.replace(
+        "correlation r { keys = [resistance, resistance], coefficient = 0.5 }\n",
+        "analysis operating_point\n",
+    );
+    let one = sample("threads1", &text, 64, 99, 1);
+    let two = sample("threads2", &text, 64, 99, 2);
+    assert_eq!(format!("{one:?}"), format!("{two:?}"));
+    assert!(one.iter().all(|r| r.draws.len() == 1 + 3 + 1));
+    // Another seed gives other draws.
+    let other = sample("seed", &text, 4, 100, 2);
+    assert_ne!(one[0].draws, other[0].draws);
+}
+
+/// Wilson score intervals of R. G. Newcombe, "Two-sided confidence intervals for the single
+/// proportion: comparison of seven methods", Statistics in Medicine 17, 857 (1998), table II
+/// (values recalled from memory, to the 4 decimals printed there).
+#[test]
+fn wilson_intervals_match_the_published_table() {
+    for (k, n, lo, hi) in [
+        (81, 263, 0.2553, 0.3662),
+        (15, 148, 0.0624, 0.1605),
+        (0, 20, 0.0, 0.1611),
+        (1, 29, 0.0061, 0.1718),
+    ] {
+        let (l, h) = wilson(k, n, Z95);
+        assert!(
+            (l - lo).abs() < 6e-5 && (h - hi).abs() < 6e-5,
+            "{k}/{n}: {l:.4} to {h:.4}, table {lo} to {hi}"
+        );
+    }
+}
+
+/// Each fault in a declaration is refused at its place (line, column) with its kind.
+#[test]
+fn declaration_errors_are_located() {
+    let base = "\
+device n : sheet_fet { channel = MoS2, insulator = hBN, insulator_layers = 10, gate_work_function = 4.4 eV, electron_mobility = 40 cm^2/(V s), width = 1 um }
+device r : resistor { resistance = 1 kOhm }
+";
+    let cases: &[(&str, lamina_netlist::ErrorKind, usize, usize)] = &[
+        (
+            "variation m.electron_mobility { distribution = normal(sigma = 1 cm^2/(V s)), scope = local }",
+            lamina_netlist::ErrorKind::Unknown,
+            3,
+            11,
+        ),
+        (
+            "variation n.electron_mobilty { distribution = normal(sigma = 1 cm^2/(V s)), scope = local }",
+            lamina_netlist::ErrorKind::Unknown,
+            3,
+            13,
+        ),
+        (
+            "variation n.gate_work_function { distribution = normal(sigma = 20 mV), scope = global }",
+            lamina_netlist::ErrorKind::UnitMismatch,
+            3,
+            64,
+        ),
+        (
+            "variation n.gate_work_function { distribution = normal(sigma = -20 meV), scope = global }",
+            lamina_netlist::ErrorKind::BadValue,
+            3,
+            64,
+        ),
+        (
+            "variation r.resistance { distribution = normal(sigma = 1 Ohm), scope = local, reference_area = 1 um^2 }",
+            lamina_netlist::ErrorKind::BadValue,
+            3,
+            79,
+        ),
+        (
+            "variation n.gate_work_function { distribution = normal(sigma = 20 meV), scope = local }\n\
+             variation n.electron_mobility { distribution = log_normal(sigma = 0.1), scope = local }\n\
+             variation n.width { distribution = normal(sigma = 1 nm), scope = local }\n\
+             correlation n { keys = [gate_work_function, electron_mobility], coefficient = 0.9 }\n\
+             correlation n { keys = [gate_work_function, width], coefficient = 0.9 }\n\
+             correlation n { keys = [electron_mobility, width], coefficient = -0.9 }",
+            lamina_netlist::ErrorKind::BadValue,
+            8,
+            1,
+        ),
+        (
+            "variation n.electron_mobility { distribution = log_normal(sigma = 0.1), scope = local }\n\
+             correlation n { keys = [electron_mobility, band_gap], coefficient = 0.5 }",
+            lamina_netlist::ErrorKind::Unknown,
+            4,
+            44,
+        ),
+        (
+            "variation n.band_gap { distribution = normal(sigma = 10 meV), scope = global }",
+            lamina_netlist::ErrorKind::BadValue,
+            3,
+            13,
+        ),
+    ];
+    for (extra, kind, line, col) in cases {
+        let text = format!("{base}{extra}\n");
+        let Err(f) = load_source("bad.lam", &text, &LoadOptions::default()) else {
+            unreachable!("accepted: {extra}");
+        };
+        let d = &f.diagnostics[0];
+        let (l, c) = f.sources.line_column(d.span.file, d.span.start);
+        assert_eq!(
+            (d.kind, l, c),
+            (*kind, *line, *col),
+            "{extra}: {}",
+            d.message
+        );
+    }
+}
