@@ -154,11 +154,9 @@ fn normal_and_uniform_draws_pass_kolmogorov_smirnov() {
     let n = 5000;
     let crit = 1.628 / (n as f64).sqrt();
     let normal = Normal::standard();
-    let sequences: [Box<dyn Fn(u64) -> (u64, u64, u64)>; 3] = [
-        Box::new(|k| (k, u64::MAX, 0)),
-        Box::new(|k| (3, k, 1)),
-        Box::new(|k| (9, 4, k)),
-    ];
+    // Which part of the key (sample, device, parameter) runs over k; the others are fixed.
+    type Key = fn(u64) -> (u64, u64, u64);
+    let sequences: [Key; 3] = [|k| (k, u64::MAX, 0), |k| (3, k, 1), |k| (9, 4, k)];
     for (s, key) in sequences.iter().enumerate() {
         let z: Vec<f64> = (0..n)
             .map(|k| {
