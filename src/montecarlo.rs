@@ -303,7 +303,7 @@ pub fn run_samples(
             let result = run_all_options(path, &options, &RingParams::default(), None);
             let (figures, error) = match result {
                 Ok(results) => (figures_of(&results), None),
-                Err(e) => (Vec::new(), Some(first_line(e.message()))),
+                Err(e) => (Vec::new(), Some(crate::sweep::first_line(e.message()))),
             };
             SampleRow {
                 sample,
@@ -321,14 +321,6 @@ pub fn figures_of(results: &[(String, Outcome)]) -> Vec<(String, f64)> {
         .iter()
         .flat_map(|(k, o)| crate::sweep::figures(k, o))
         .collect()
-}
-
-fn first_line(text: &str) -> String {
-    text.lines()
-        .map(str::trim)
-        .find(|l| !l.is_empty())
-        .unwrap_or("failed")
-        .to_string()
 }
 
 /// Statistics of one column over the samples that have it.

@@ -417,7 +417,7 @@ pub fn run_sweep(
 }
 
 /// The first line of a message that says something (rendered diagnostics start with it).
-fn first_line(text: &str) -> String {
+pub(crate) fn first_line(text: &str) -> String {
     text.lines()
         .map(str::trim)
         .find(|l| !l.is_empty())

@@ -1,6 +1,7 @@
 //! `lamina montecarlo`: a file's analyses over random samples of its declared spreads, with
 //! statistics, yield against limits and the drawn values that drive each figure.
 
+use super::sweep::csv_field;
 use super::Common;
 use crate::design;
 use crate::error::JobError;
@@ -283,15 +284,6 @@ fn print_report(r: &Report, specs: &[Spec], runs: usize, seed: u64) {
 fn number(v: f64) -> String {
     let v = if v == 0.0 { 0.0 } else { v };
     format!("{v:.5e}")
-}
-
-/// A CSV field, quoted when it holds a comma, a quote or a line break.
-fn csv_field(s: &str) -> String {
-    if s.contains([',', '"', '\n']) {
-        format!("\"{}\"", s.replace('"', "\"\""))
-    } else {
-        s.to_string()
-    }
 }
 
 /// `samples.csv`, `samples.json`, `summary.json`, and per figure a histogram with the limits
