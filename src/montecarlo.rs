@@ -264,13 +264,15 @@ pub struct SampleRow {
     pub error: Option<String>,
 }
 
-/// Runs samples `0..runs` of `path`'s analyses; `nominal` is the design loaded without
-/// draws (its declared spreads and element names). Rows come back in sample order.
+/// Runs samples `samples` (indices, usually `0..runs`; any sub-range gives exactly those rows
+/// of the whole run, which is what splitting a run into shards needs) of `path`'s analyses;
+/// `nominal` is the design loaded without draws (its declared spreads and element names).
+/// Rows come back in sample order.
 pub fn run_samples(
     path: &Path,
     sets: &[(String, String)],
     nominal: &Design,
-    runs: usize,
+    samples: std::ops::Range<usize>,
     seed: u64,
     progress: bool,
 ) -> Vec<SampleRow> {
@@ -281,7 +283,7 @@ pub fn run_samples(
         .map(|e| c.element_name(e).to_string())
         .collect();
     let bar = if progress {
-        ProgressBar::new(runs as u64)
+        ProgressBar::new(samples.len() as u64)
     } else {
         ProgressBar::hidden()
     };
@@ -290,7 +292,7 @@ pub fn run_samples(
     {
         bar.set_style(style);
     }
-    (0..runs)
+    samples
         .into_par_iter()
         .progress_with(bar)
         .map(|sample| {

@@ -22,8 +22,14 @@ use statrs::distribution::{ContinuousCDF, Normal};
 use std::path::PathBuf;
 use std::sync::atomic::{AtomicUsize, Ordering};
 
-/// Writes `text` to a file of its own and runs `runs` samples on `threads` threads.
-fn sample(name: &str, text: &str, runs: usize, seed: u64, threads: usize) -> Vec<SampleRow> {
+/// Writes `text` to a file of its own and runs `samples` on `threads` threads.
+fn sample(
+    name: &str,
+    text: &str,
+    samples: std::ops::Range<usize>,
+    seed: u64,
+    threads: usize,
+) -> Vec<SampleRow> {
     static N: AtomicUsize = AtomicUsize::new(0);
     let n = N.fetch_add(1, Ordering::Relaxed);
     let dir = std::env::temp_dir().join(format!("lamina-mc-{}-{n}-{name}", std::process::id()));
@@ -35,7 +41,7 @@ fn sample(name: &str, text: &str, runs: usize, seed: u64, threads: usize) -> Vec
         .num_threads(threads)
         .build()
         .expect("a thread pool");
-    let rows = pool.install(|| run_samples(&file, &[], &nominal, runs, seed, false));
+    let rows = pool.install(|| run_samples(&file, &[], &nominal, samples, seed, false));
     std::fs::remove_dir_all(&dir).expect("clean up");
     rows
 }
@@ -62,7 +68,7 @@ analysis operating_point
 /// (two-sided confidence 99.99 %).
 #[test]
 fn divider_with_normal_resistors_matches_linear_error_propagation() {
-    let rows = sample("divider", DIVIDER, 400, 11, 2);
+    let rows = sample("divider", DIVIDER, 0..400, 11, 2);
     assert!(rows.iter().all(|r| r.error.is_none()));
     let s = stats(&column(&rows, "operating_point.mid_v")).expect("figures");
     let sigma = 2f64.sqrt() * 1.0 * 20.0 / (4.0 * 1000.0);
@@ -107,7 +113,7 @@ variation r.resistance { distribution = log_normal(sigma = 0.25), scope = global
 analysis delay { from = in, to = out, stop = 25 ns }
 ";
     let n = 200;
-    let rows = sample("rc", text, n, 5, 2);
+    let rows = sample("rc", text, 0..n, 5, 2);
     assert!(
         rows.iter().all(|r| r.error.is_none()),
         "{:?}",
@@ -210,7 +216,7 @@ variation n.electron_mobility {
 }
 analysis operating_point
 ";
-    let rows = sample("area", text, 300, 3, 2);
+    let rows = sample("area", text, 0..300, 3, 2);
     let small = stats(&column(
         &rows,
         "n.electron_mobility.local_shift[small]_m_2_per_v_s",
@@ -232,8 +238,8 @@ analysis operating_point
     );
 }
 
-/// Every row, figures, drawn values and errors alike, bit for bit on one and two threads, with
-/// global, local and correlated spreads of every shape.
+/// Every row, figures, drawn values and errors alike, bit for bit on one and two threads and
+/// when only part of the samples is run, with global, local and correlated spreads.
 #[test]
 fn rows_are_identical_on_one_and_two_threads() {
     let text = "\
@@ -261,12 +267,15 @@ variation r.resistance { distribution = truncated_normal(sigma = 10 Ohm, bound =
         "correlation r { keys = [resistance, resistance], coefficient = 0.5 }\n",
         "analysis operating_point\n",
     );
-    let one = sample("threads1", &text, 64, 99, 1);
-    let two = sample("threads2", &text, 64, 99, 2);
+    let one = sample("threads1", &text, 0..64, 99, 1);
+    let two = sample("threads2", &text, 0..64, 99, 2);
     assert_eq!(format!("{one:?}"), format!("{two:?}"));
     assert!(one.iter().all(|r| r.draws.len() == 1 + 3 + 1));
+    // Any sub-range of samples gives exactly those rows of the whole run.
+    let part = sample("part", &text, 40..64, 99, 2);
+    assert_eq!(format!("{part:?}"), format!("{:?}", &one[40..]));
     // Another seed gives other draws.
-    let other = sample("seed", &text, 4, 100, 2);
+    let other = sample("seed", &text, 0..4, 100, 2);
     assert_ne!(one[0].draws, other[0].draws);
 }
 

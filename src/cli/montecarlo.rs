@@ -91,7 +91,7 @@ pub fn run(a: Args) -> Result<(), JobError> {
             )));
         }
     }
-    let work = || run_samples(&file, &sets, &nominal, runs, seed, true);
+    let work = || run_samples(&file, &sets, &nominal, 0..runs, seed, true);
     let rows = match threads {
         Some(t) => rayon::ThreadPoolBuilder::new()
             .num_threads(t)
@@ -287,7 +287,7 @@ fn number(v: f64) -> String {
 }
 
 /// `samples.csv`, `samples.json`, `summary.json`, and per figure a histogram with the limits
-/// marked and the empirical distribution function.
+/// marked, the empirical distribution function, and a scatter against its main driver.
 fn write_files(dir: &Path, rows: &[SampleRow], r: &Report, specs: &[Spec]) -> Result<(), String> {
     ensure_dir(dir)?;
     let draws = draw_keys(rows);
@@ -342,11 +342,30 @@ fn write_files(dir: &Path, rows: &[SampleRow], r: &Report, specs: &[Spec]) -> Re
             .collect();
         let what = pretty(k);
         let x = Axis::described(&what);
-        let marks: Vec<Mark> = specs
+        let limits: Vec<&Spec> = specs.iter().filter(|p| p.key == *k).collect();
+        let marks: Vec<Mark> = limits
             .iter()
-            .filter(|p| p.key == *k)
             .map(|p| Mark::Vertical(p.limit, format!("limit {}", p.text)))
             .collect();
+        // A limit outside the samples' range is reached by a baseline, so its mark is drawn
+        // where it is and not at the edge of the plot.
+        let (below, above): (Vec<f64>, Vec<f64>) = (
+            limits
+                .iter()
+                .map(|p| p.limit)
+                .filter(|l| *l < s.min)
+                .collect(),
+            limits
+                .iter()
+                .map(|p| p.limit)
+                .filter(|l| *l > s.max)
+                .collect(),
+        );
+        let reach = |pts: Vec<(f64, f64)>, low: f64, high: f64| -> Vec<(f64, f64)> {
+            let first = below.iter().copied().reduce(f64::min).map(|l| (l, low));
+            let last = above.iter().copied().reduce(f64::max).map(|l| (l, high));
+            first.into_iter().chain(pts).chain(last).collect()
+        };
         let mut hist = Figure::new(
             &format!(
                 "{} over {} samples",
@@ -356,7 +375,7 @@ fn write_files(dir: &Path, rows: &[SampleRow], r: &Report, specs: &[Spec]) -> Re
             x.clone(),
             Axis::new("samples per bin", ""),
         );
-        let mut outline = Series::line("", histogram(&values, s));
+        let mut outline = Series::line("", reach(histogram(&values, s), 0.0, 0.0));
         outline.markers = false;
         hist.series.push(outline);
         hist.marks = marks.clone();
@@ -377,11 +396,43 @@ fn write_files(dir: &Path, rows: &[SampleRow], r: &Report, specs: &[Spec]) -> Re
             pts.push((*v, i as f64 / n));
             pts.push((*v, (i + 1) as f64 / n));
         }
-        let mut steps = Series::line("", pts);
+        let mut steps = Series::line("", reach(pts, 0.0, 1.0));
         steps.markers = false;
         cdf.series.push(steps);
-        cdf.marks = marks;
+        cdf.marks = marks.clone();
         draw(&dir.join(format!("cdf_{stem}")), &cdf)?;
+        // The figure against the drawn value that ranks most strongly with it.
+        let top = r
+            .drivers
+            .iter()
+            .find(|(f, _)| f == k)
+            .and_then(|(_, list)| list.first());
+        if let Some((d, rho)) = top {
+            // Energies drawn for band and work-function keys read in eV (zeptojoules are
+            // below the plots' prefixes).
+            let (scale, x_axis) = match label(d).rsplit_once(" (J)") {
+                Some((q, _)) => (1.0 / lamina_devices::physics::Q, Axis::new(q, "eV")),
+                None => (1.0, Axis::described(&label(d))),
+            };
+            let pts: Vec<(f64, f64)> = column(rows, d)
+                .into_iter()
+                .zip(column(rows, k))
+                .filter_map(|(a, b)| Some((a? * scale, b?)))
+                .filter(|(a, b)| a.is_finite() && b.is_finite())
+                .collect();
+            let mut scatter = Figure::new(
+                &format!(
+                    "{} against its main driver (Spearman rho {rho:+.2})",
+                    what.split(" (").next().unwrap_or(&what)
+                ),
+                x_axis,
+                Axis::described(&what),
+            );
+            let mut dots = Series::line("", pts);
+            dots.style = crate::plot::Style::Points;
+            scatter.series.push(dots);
+            draw(&dir.join(format!("driver_{stem}")), &scatter)?;
+        }
     }
     Ok(())
 }
