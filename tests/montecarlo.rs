@@ -376,3 +376,95 @@ device r : resistor { resistance = 1 kOhm }
         );
     }
 }
+
+/// The command: exit codes (2 for a bad limit or a figure the file does not measure, 3 for a
+/// file without spreads), `--json` with statistics, yield and drivers, and `--out` with its
+/// files.
+#[test]
+fn the_command_reports_yield_and_writes_its_files() {
+    let dir = std::env::temp_dir().join(format!("lamina-mc-cli-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).expect("temporary directory");
+    let file = dir.join("divider.lam");
+    std::fs::write(&file, DIVIDER).expect("temporary file");
+    let plain = dir.join("plain.lam");
+    std::fs::write(
+        &plain,
+        DIVIDER.replace(
+            "variation r.resistance { distribution = normal(sigma = 20 Ohm), scope = local }\n",
+            "",
+        ),
+    )
+    .expect("temporary file");
+    let run = |args: &[&str]| {
+        std::process::Command::new(env!("CARGO_BIN_EXE_lamina"))
+            .arg("montecarlo")
+            .args(args)
+            .output()
+            .expect("the binary runs")
+    };
+    let f = file.to_str().expect("a UTF-8 path");
+    let code = |args: &[&str]| run(args).status.code();
+    assert_eq!(
+        code(&[f, "--runs", "4", "--spec", "operating_point.mid_v>1ns"]),
+        Some(2)
+    );
+    assert_eq!(
+        code(&[f, "--runs", "4", "--spec", "transfer.snm_v>0.1V"]),
+        Some(2)
+    );
+    assert_eq!(code(&[f, "--runs", "0"]), Some(2));
+    let p = plain.to_str().expect("a UTF-8 path");
+    assert_eq!(code(&[p, "--runs", "4"]), Some(3));
+    let out_dir = dir.join("out");
+    let o = out_dir.to_str().expect("a UTF-8 path");
+    let args = [
+        f,
+        "--runs",
+        "50",
+        "--seed",
+        "4",
+        "--spec",
+        "operating_point.mid_v>0.49V",
+        "--json",
+        "--out",
+        o,
+    ];
+    let out = run(&args);
+    assert_eq!(out.status.code(), Some(0));
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
+    let y = &v["yield"];
+    let (pass, total) = (y["pass"].as_u64(), y["total"].as_u64());
+    assert_eq!(total, Some(50));
+    let mids: Vec<f64> = v["samples"]
+        .as_array()
+        .expect("rows")
+        .iter()
+        .filter_map(|r| r["operating_point.mid_v"].as_f64())
+        .collect();
+    assert_eq!(
+        pass,
+        Some(mids.iter().filter(|m| **m > 0.49).count() as u64)
+    );
+    let (lo, hi) = wilson(pass.unwrap_or(0) as usize, 50, Z95);
+    assert_eq!(
+        (y["wilson_95_low"].as_f64(), y["wilson_95_high"].as_f64()),
+        (Some(lo), Some(hi))
+    );
+    assert!(v["figures"]["operating_point.mid_v"]["std_dev"].as_f64() > Some(0.0));
+    let drivers = &v["drivers_by_spearman_rank_correlation"]["operating_point.mid_v"];
+    assert_eq!(drivers.as_array().map(Vec::len), Some(2));
+    for name in [
+        "samples.csv",
+        "samples.json",
+        "summary.json",
+        "histogram_operating_point_mid_v.svg",
+        "cdf_operating_point_mid_v.png",
+        "driver_operating_point_mid_v.svg",
+    ] {
+        assert!(out_dir.join(name).is_file(), "{name} missing");
+    }
+    let csv = std::fs::read_to_string(out_dir.join("samples.csv")).expect("CSV");
+    assert_eq!(csv.lines().count(), 51);
+    assert!(csv.starts_with("sample,r.resistance.local_shift[upper]_ohm,"));
+    std::fs::remove_dir_all(&dir).expect("clean up");
+}

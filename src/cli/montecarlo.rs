@@ -102,7 +102,7 @@ pub fn run(a: Args) -> Result<(), JobError> {
     };
     let report = Report::new(&rows, &specs);
     if let Some(set) = set_out {
-        write_files(set.dir(), &rows, &report, &specs).map_err(JobError::Io)?;
+        write_files(set.dir(), &rows, &report, &specs, seed).map_err(JobError::Io)?;
         set.commit()?;
     }
     if json {
@@ -288,7 +288,13 @@ fn number(v: f64) -> String {
 
 /// `samples.csv`, `samples.json`, `summary.json`, and per figure a histogram with the limits
 /// marked, the empirical distribution function, and a scatter against its main driver.
-fn write_files(dir: &Path, rows: &[SampleRow], r: &Report, specs: &[Spec]) -> Result<(), String> {
+fn write_files(
+    dir: &Path,
+    rows: &[SampleRow],
+    r: &Report,
+    specs: &[Spec],
+    seed: u64,
+) -> Result<(), String> {
     ensure_dir(dir)?;
     let draws = draw_keys(rows);
     let figures = figure_keys(rows);
@@ -318,10 +324,9 @@ fn write_files(dir: &Path, rows: &[SampleRow], r: &Report, specs: &[Spec]) -> Re
     write_whole(&dir.join("samples.csv"), text.as_bytes())?;
     let json = |v: serde_json::Value| serde_json::to_string_pretty(&v).unwrap_or_default();
     write_whole(&dir.join("samples.json"), json(rows_json(rows)).as_bytes())?;
-    let mut summary = report_json(rows, r, specs, rows.len(), 0);
+    let mut summary = report_json(rows, r, specs, rows.len(), seed);
     if let Some(m) = summary.as_object_mut() {
         m.remove("samples");
-        m.remove("seed");
     }
     write_whole(&dir.join("summary.json"), json(summary).as_bytes())?;
     for (k, s) in &r.figures {
