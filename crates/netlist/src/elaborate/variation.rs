@@ -327,7 +327,7 @@ impl<'s> Elaborator<'s> {
         let mut distribution = None;
         let mut scope = None;
         let mut area = None;
-        let mut ok = true;
+        let mut ok = self.settings_once(params);
         for a in params {
             match a.name.name.as_str() {
                 "distribution" => distribution = self.distribution(&a.value, spec.dim, top),
@@ -402,27 +402,25 @@ impl<'s> Elaborator<'s> {
                 }
             }
         }
-        let (Some(distribution), Some(scope), true) = (distribution, scope, ok) else {
-            if ok && (scope.is_none() || params.iter().all(|a| a.name.name != "distribution")) {
-                let missing = if scope.is_none() && params.iter().any(|a| a.name.name == "scope") {
-                    return None;
-                } else if scope.is_none() {
-                    "scope = global"
-                } else {
-                    "distribution = normal(sigma = ...)"
-                };
+        // A setting that is absent (not one that was written and refused) is reported here.
+        let written = |n: &str| params.iter().any(|a| a.name.name == n);
+        for (name, example) in [
+            ("distribution", "distribution = normal(sigma = ...)"),
+            ("scope", "scope = global"),
+        ] {
+            if ok && !written(name) {
                 self.diags.push(
                     Diagnostic::new(
                         ErrorKind::Expected,
                         span,
-                        format!(
-                            "this variation needs `{}`",
-                            missing.split(' ').next().unwrap_or("")
-                        ),
+                        format!("this variation needs `{name}`"),
                     )
-                    .with_help(format!("add `{missing}` inside the braces")),
+                    .with_help(format!("add `{example}` inside the braces")),
                 );
+                ok = false;
             }
+        }
+        let (Some(distribution), Some(scope), true) = (distribution, scope, ok) else {
             return None;
         };
         if let (Some((_, at)), Scope::Global) = (area, scope) {
@@ -468,6 +466,26 @@ impl<'s> Elaborator<'s> {
             area: area.map(|a| a.0),
             span,
         })
+    }
+
+    /// Whether each setting is written once; a repeated one is reported at its second place.
+    fn settings_once(&mut self, params: &[Assign]) -> bool {
+        let mut ok = true;
+        for (i, a) in params.iter().enumerate() {
+            if let Some(first) = params[..i].iter().find(|b| b.name.name == a.name.name) {
+                self.diags.push(
+                    Diagnostic::new(
+                        ErrorKind::Duplicate,
+                        a.name.span,
+                        format!("`{}` is set twice", a.name.name),
+                    )
+                    .with_note(first.name.span, "first set here")
+                    .with_help("keep one of the two; neither silently wins"),
+                );
+                ok = false;
+            }
+        }
+        ok
     }
 
     /// `normal(sigma = ...)` and the others, each argument checked where it is written.
@@ -600,7 +618,7 @@ impl<'s> Elaborator<'s> {
         out: &mut Variations,
         placed: &mut [Vec<Span>],
     ) {
-        if self.varied_card(card).is_none() {
+        if self.varied_card(card).is_none() || !self.settings_once(params) {
             return;
         }
         let (mut keys, mut coefficient, mut scope) = (None, None, None);
@@ -665,6 +683,17 @@ impl<'s> Elaborator<'s> {
                     return;
                 }
             }
+        }
+        if let (None, Some(k)) = (keys, params.iter().find(|a| a.name.name == "keys")) {
+            self.diags.push(
+                Diagnostic::new(
+                    ErrorKind::BadValue,
+                    k.value.span(),
+                    "`keys` is a list of two varied keys of the card".to_string(),
+                )
+                .with_help("such as `keys = [gate_work_function, electron_mobility]`"),
+            );
+            return;
         }
         let (Some((a, b)), Some(c)) = (keys, coefficient) else {
             self.diags.push(
