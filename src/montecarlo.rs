@@ -15,8 +15,9 @@
 //! guarantees; it is not used because one hash per draw needs no further dependency, no seek
 //! and no state, and the draws pass the Kolmogorov-Smirnov checks in the tests.
 //!
-//! `device` is the element's position in the circuit (elaboration order), or `u64::MAX` for a
-//! global draw; `declaration` is the position of the `variation` statement in the file.
+//! `device` is a hash of the device's hierarchical name (the same mixing over its bytes), so
+//! adding or removing other devices leaves each device's draws as they were, or `u64::MAX`
+//! for a global draw; `declaration` is the position of the `variation` statement in the file.
 //! Correlated keys of one card and scope: `y = L z` with `L` the Cholesky factor of the
 //! declared correlation matrix, then each `y` through its distribution (a uniform takes
 //! `Φ(y)`, a truncated normal the inverse of its own distribution function at `Φ(y)`).
@@ -55,6 +56,12 @@ fn mix(mut z: u64) -> u64 {
     z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
     z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
     z ^ (z >> 31)
+}
+
+/// The device key of a device's hierarchical name.
+pub fn device_key(name: &str) -> u64 {
+    name.bytes()
+        .fold(mix(name.len() as u64), |h, b| mix(h ^ u64::from(b)))
 }
 
 /// A uniform number in (0, 1), never 0 or 1, from the key `(seed, sample, device, parameter)`.
@@ -129,8 +136,8 @@ struct SampleDraws {
     sample: u64,
     /// The global draw of each declaration (`None` for local ones).
     global: Vec<Option<Applied>>,
-    /// Local draws made so far, by (declaration, device).
-    local: Mutex<BTreeMap<(usize, usize), f64>>,
+    /// Local draws made so far, by (declaration, device name).
+    local: Mutex<BTreeMap<(usize, String), f64>>,
 }
 
 impl SampleDraws {
@@ -158,18 +165,18 @@ impl SampleDraws {
         }
     }
 
-    /// The sample's drawn-value columns (see the module documentation); `names` are the
-    /// circuit's element names by position.
-    fn columns(&self, names: &[String]) -> Vec<(String, f64)> {
+    /// The sample's drawn-value columns (see the module documentation): declarations in file
+    /// order, a local one's devices by name.
+    fn columns(&self) -> Vec<(String, f64)> {
         let local = self.local.lock().map(|m| m.clone()).unwrap_or_default();
         let mut out = Vec::new();
         for (i, v) in self.variations.list.iter().enumerate() {
             match self.global[i] {
                 Some(a) => out.push((draw_key(v, None), a.value())),
                 None => {
-                    for (&(_, device), x) in local.range((i, 0)..=(i, usize::MAX)) {
-                        let name = names.get(device).map_or("?", String::as_str);
-                        out.push((draw_key(v, Some(name)), *x));
+                    for ((_, device), x) in local.range((i, String::new())..(i + 1, String::new()))
+                    {
+                        out.push((draw_key(v, Some(device)), *x));
                     }
                 }
             }
@@ -197,7 +204,7 @@ fn correlated(
 }
 
 impl Perturbation for SampleDraws {
-    fn apply(&self, card: &str, device: usize, numbers: &mut [f64]) {
+    fn apply(&self, card: &str, device: &str, numbers: &mut [f64]) {
         let groups = || self.variations.groups.iter().filter(|g| g.card == card);
         for g in groups().filter(|g| g.scope == Scope::Global) {
             for &m in &g.members {
@@ -210,7 +217,7 @@ impl Perturbation for SampleDraws {
             }
         }
         for g in groups().filter(|g| g.scope == Scope::Local) {
-            let ys = correlated(g, self.seed, self.sample, device as u64);
+            let ys = correlated(g, self.seed, self.sample, device_key(device));
             for (&m, y) in g.members.iter().zip(ys) {
                 let v = &self.variations.list[m];
                 let scale = v.area.map_or(1.0, |a| {
@@ -223,7 +230,7 @@ impl Perturbation for SampleDraws {
                     applied.to(x);
                 }
                 if let Ok(mut map) = self.local.lock() {
-                    map.insert((m, device), applied.value());
+                    map.insert((m, device.to_string()), applied.value());
                 }
             }
         }
@@ -266,7 +273,7 @@ pub struct SampleRow {
 
 /// Runs samples `samples` (indices, usually `0..runs`; any sub-range gives exactly those rows
 /// of the whole run, which is what splitting a run into shards needs) of `path`'s analyses;
-/// `nominal` is the design loaded without draws (its declared spreads and element names).
+/// `nominal` is the design loaded without draws (its declared spreads).
 /// Rows come back in sample order.
 pub fn run_samples(
     path: &Path,
@@ -277,11 +284,6 @@ pub fn run_samples(
     progress: bool,
 ) -> Vec<SampleRow> {
     let variations = Arc::new(nominal.variations.clone());
-    let c = &nominal.circuit;
-    let names: Vec<String> = c
-        .elements()
-        .map(|e| c.element_name(e).to_string())
-        .collect();
     let bar = if progress {
         ProgressBar::new(samples.len() as u64)
     } else {
@@ -309,7 +311,7 @@ pub fn run_samples(
             };
             SampleRow {
                 sample,
-                draws: draws.columns(&names),
+                draws: draws.columns(),
                 figures,
                 error,
             }

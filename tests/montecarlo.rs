@@ -465,6 +465,30 @@ fn the_command_reports_yield_and_writes_its_files() {
     }
     let csv = std::fs::read_to_string(out_dir.join("samples.csv")).expect("CSV");
     assert_eq!(csv.lines().count(), 51);
-    assert!(csv.starts_with("sample,r.resistance.local_shift[upper]_ohm,"));
+    // Local draws are listed by device name.
+    assert!(csv.starts_with("sample,r.resistance.local_shift[lower]_ohm,"));
     std::fs::remove_dir_all(&dir).expect("clean up");
+}
+
+/// A normal spread can draw a resistance below zero: that sample fails with the device and
+/// the value named, and the others run. With sigma = R the chance per resistor is
+/// Φ(-1) = 15.9 %, so 40 samples of two resistors without a single failure would have
+/// probability 0.707^40 < 1e-6.
+#[test]
+fn a_draw_outside_the_keys_range_fails_only_its_sample() {
+    let text = DIVIDER.replace("sigma = 20 Ohm", "sigma = 1 kOhm");
+    let rows = sample("negative", &text, 0..40, 2, 2);
+    let failed: Vec<&SampleRow> = rows.iter().filter(|r| r.error.is_some()).collect();
+    assert!(!failed.is_empty() && failed.len() < 40);
+    for r in &failed {
+        let e = r.error.as_deref().unwrap_or("");
+        assert!(
+            e.contains("it must be positive") && e.contains("`resistance`"),
+            "{e}"
+        );
+        assert!(r.draws.iter().any(|(_, v)| *v < -1000.0), "{:?}", r.draws);
+    }
+    for r in rows.iter().filter(|r| r.error.is_none()) {
+        assert!(r.draws.iter().all(|(_, v)| *v > -1000.0));
+    }
 }

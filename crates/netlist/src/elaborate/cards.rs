@@ -410,21 +410,47 @@ impl<'s> Elaborator<'s> {
             return;
         };
         // A Monte Carlo sample puts its drawn values into the devices of varied cards.
-        let perturbed = match (&self.perturbation, &card) {
-            (Some(p), Some(_)) => {
-                let before = values.numbers.clone();
-                p.0.apply(&kind.name, self.created, &mut values.numbers);
-                let mut changed = false;
-                for (i, (new, old)) in values.numbers.iter().zip(&before).enumerate() {
-                    if new.to_bits() != old.to_bits() {
-                        values.given[i] = true;
-                        changed = true;
-                    }
+        let mut changed = Vec::new();
+        if let (Some(p), Some(_)) = (&self.perturbation, &card) {
+            let before = values.numbers.clone();
+            p.0.apply(&kind.name, &full, &mut values.numbers);
+            for (i, (new, old)) in values.numbers.iter().zip(&before).enumerate() {
+                if new.to_bits() != old.to_bits() {
+                    values.given[i] = true;
+                    changed.push(i);
                 }
-                changed
             }
-            _ => false,
-        };
+        }
+        let perturbed = !changed.is_empty();
+        // A drawn value must stay finite and keep the sign rule its key has where written.
+        let bad = changed
+            .iter()
+            .map(|&i| (&k.params[i], values.numbers[i]))
+            .find(|(p, v)| !v.is_finite() || p.positive && *v <= 0.0);
+        if let Some((p, v)) = bad {
+            self.diags.push(
+                Diagnostic::new(
+                    ErrorKind::BadValue,
+                    name.name.span,
+                    format!(
+                        "this sample's variation makes `{}` of `{full}` {v:e}, outside its \
+                         range{}",
+                        p.name,
+                        if p.positive {
+                            " (it must be positive)"
+                        } else {
+                            ""
+                        }
+                    ),
+                )
+                .with_help(
+                    "a normal spread reaches any value: use `log_normal` for a quantity \
+                     that must stay positive, or `truncated_normal` with a bound below the \
+                     nominal value",
+                ),
+            );
+            return;
+        }
         if self.created >= self.limits.max_elements {
             self.created += 1;
             self.err(

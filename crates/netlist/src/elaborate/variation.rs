@@ -149,9 +149,9 @@ impl Variations {
 /// given (it overrides the library and the kind's default).
 pub trait Perturbation: Send + Sync {
     /// Changes `numbers` (the kind's parameters in catalog order, SI, the card's and the
-    /// instance's values already merged) of device `device` (the position the element will
-    /// have in the circuit) of card `card`.
-    fn apply(&self, card: &str, device: usize, numbers: &mut [f64]);
+    /// instance's values already merged) of device `device` (its hierarchical name, such as
+    /// `inv[2].pull_down`) of card `card`.
+    fn apply(&self, card: &str, device: &str, numbers: &mut [f64]);
 }
 
 /// A shared [`Perturbation`] in [`super::LoadOptions`].
