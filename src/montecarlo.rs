@@ -269,12 +269,15 @@ pub struct SampleRow {
     pub figures: Vec<(String, f64)>,
     /// Why the sample failed, if it did.
     pub error: Option<String>,
+    /// Its transfer curves, ring and transient waveforms, if kept (see [`run_samples`]).
+    pub curves: Vec<crate::sweep::Curve>,
 }
 
 /// Runs samples `samples` (indices, usually `0..runs`; any sub-range gives exactly those rows
 /// of the whole run, which is what splitting a run into shards needs) of `path`'s analyses;
 /// `nominal` is the design loaded without draws (its declared spreads).
-/// Rows come back in sample order.
+/// Rows come back in sample order; samples with an index below `keep_curves` keep their
+/// curves (each thinned to the sweep's [`crate::sweep::CURVE_SAMPLES`]).
 pub fn run_samples(
     path: &Path,
     sets: &[(String, String)],
@@ -282,6 +285,7 @@ pub fn run_samples(
     samples: std::ops::Range<usize>,
     seed: u64,
     progress: bool,
+    keep_curves: usize,
 ) -> Vec<SampleRow> {
     let variations = Arc::new(nominal.variations.clone());
     let bar = if progress {
@@ -304,16 +308,35 @@ pub fn run_samples(
                 perturbation: Some(Perturb(draws.clone())),
                 ..LoadOptions::default()
             };
-            let result = run_all_options(path, &options, &RingParams::default(), None);
-            let (figures, error) = match result {
-                Ok(results) => (figures_of(&results), None),
-                Err(e) => (Vec::new(), Some(crate::sweep::first_line(e.message()))),
+            let ring = RingParams {
+                wave_samples: crate::sweep::CURVE_SAMPLES,
+                ..RingParams::default()
+            };
+            let result = run_all_options(path, &options, &ring, None);
+            let (figures, curves, error) = match result {
+                Ok(results) => {
+                    let curves = if sample < keep_curves {
+                        results
+                            .iter()
+                            .flat_map(|(_, o)| crate::sweep::curves_of(o))
+                            .collect()
+                    } else {
+                        Vec::new()
+                    };
+                    (figures_of(&results), curves, None)
+                }
+                Err(e) => (
+                    Vec::new(),
+                    Vec::new(),
+                    Some(crate::sweep::first_line(e.message())),
+                ),
             };
             SampleRow {
                 sample,
                 draws: draws.columns(),
                 figures,
                 error,
+                curves,
             }
         })
         .collect()

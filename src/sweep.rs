@@ -126,7 +126,7 @@ fn thinned(x: &[f64], y: &[f64]) -> Vec<(f64, f64)> {
 }
 
 /// The curves `o` contributes to the families.
-fn curves_of(o: &Outcome) -> Vec<Curve> {
+pub(crate) fn curves_of(o: &Outcome) -> Vec<Curve> {
     match o {
         Outcome::Transfer { vin, vout, .. } => vec![Curve {
             family: "transfer curves".into(),

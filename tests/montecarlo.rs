@@ -41,7 +41,7 @@ fn sample(
         .num_threads(threads)
         .build()
         .expect("a thread pool");
-    let rows = pool.install(|| run_samples(&file, &[], &nominal, samples, seed, false));
+    let rows = pool.install(|| run_samples(&file, &[], &nominal, samples, seed, false, 0));
     std::fs::remove_dir_all(&dir).expect("clean up");
     rows
 }

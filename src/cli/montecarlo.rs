@@ -15,6 +15,10 @@ use crate::plot::{draw, Axis, Figure, Mark, Series};
 use crate::sweep::{label, pretty};
 use std::path::{Path, PathBuf};
 
+/// Samples whose curves `--out` draws as a family (the first ones, so the figure is the same
+/// for any number of samples beyond).
+pub const FAMILY_CURVES: usize = 50;
+
 /// Flags of `lamina montecarlo`.
 #[derive(clap::Args, Debug)]
 pub struct Args {
@@ -91,7 +95,8 @@ pub fn run(a: Args) -> Result<(), JobError> {
             )));
         }
     }
-    let work = || run_samples(&file, &sets, &nominal, 0..runs, seed, true);
+    let keep = if set_out.is_some() { FAMILY_CURVES } else { 0 };
+    let work = || run_samples(&file, &sets, &nominal, 0..runs, seed, true, keep);
     let rows = match threads {
         Some(t) => rayon::ThreadPoolBuilder::new()
             .num_threads(t)
@@ -287,7 +292,8 @@ fn number(v: f64) -> String {
 }
 
 /// `samples.csv`, `samples.json`, `summary.json`, and per figure a histogram with the limits
-/// marked, the empirical distribution function, and a scatter against its main driver.
+/// marked, the empirical distribution function, and a scatter against its main driver; the
+/// families of curves (transfer curves, waveforms) of the first [`FAMILY_CURVES`] samples.
 fn write_files(
     dir: &Path,
     rows: &[SampleRow],
@@ -439,8 +445,44 @@ fn write_files(
             draw(&dir.join(format!("driver_{stem}")), &scatter)?;
         }
     }
+    // Families of curves, one figure and one CSV each, a curve per kept sample.
+    let mut families: Vec<(&crate::sweep::Curve, Vec<Member>)> = Vec::new();
+    for row in rows {
+        for c in &row.curves {
+            match families.iter_mut().find(|f| f.0.family == c.family) {
+                Some(f) => f.1.push((row.sample, &c.points)),
+                None => families.push((c, vec![(row.sample, &c.points)])),
+            }
+        }
+    }
+    for (first, members) in &families {
+        let stem: String = first
+            .family
+            .chars()
+            .map(|c| if c.is_ascii_alphanumeric() { c } else { '_' })
+            .collect();
+        let mut csv = String::from("sample,x,y\n");
+        let mut fig = Figure::new(
+            &format!("{} of {} samples", first.family, members.len()),
+            Axis::described(first.x_desc),
+            Axis::described(first.y_desc),
+        );
+        for (sample, pts) in members {
+            for (x, y) in pts.iter() {
+                csv.push_str(&format!("{sample},{x:e},{y:e}\n"));
+            }
+            let mut line = Series::line("", pts.to_vec());
+            line.markers = false;
+            fig.series.push(line);
+        }
+        write_whole(&dir.join(format!("family_{stem}.csv")), csv.as_bytes())?;
+        draw(&dir.join(format!("family_{stem}")), &fig)?;
+    }
     Ok(())
 }
+
+/// One sample's curve of a family: its index and points.
+type Member<'a> = (usize, &'a [(f64, f64)]);
 
 /// A histogram as a step outline: about `sqrt(n)` bins (5 to 50) between the extremes.
 fn histogram(values: &[f64], s: &Stats) -> Vec<(f64, f64)> {
