@@ -212,7 +212,7 @@ impl<'s> Elaborator<'s> {
                 }),
             }
         }
-        let mut placed: Vec<Vec<Span>> = Vec::new();
+        let mut placed: Vec<Vec<(Span, usize, usize)>> = Vec::new();
         for g in &mut out.groups {
             let n = g.members.len();
             g.correlation = (0..n)
@@ -227,7 +227,7 @@ impl<'s> Elaborator<'s> {
             match (cholesky(&g.correlation), spans.last()) {
                 (Some(l), _) => g.cholesky = l,
                 (None, None) => {}
-                (None, Some(&at)) => {
+                (None, Some(&(at, _, _))) => {
                     let mut d = Diagnostic::new(
                         ErrorKind::BadValue,
                         at,
@@ -244,7 +244,7 @@ impl<'s> Elaborator<'s> {
                          anticorrelated with the other; weaken one of them",
                     );
                     for s in &spans[..spans.len().saturating_sub(1)] {
-                        d = d.with_note(*s, "correlation of the same card and scope");
+                        d = d.with_note(s.0, "correlation of the same card and scope");
                     }
                     self.diags.push(d);
                 }
@@ -608,7 +608,7 @@ impl<'s> Elaborator<'s> {
     }
 
     /// One `correlation card { keys = [a, b], coefficient = c, scope = ... }` into its group's
-    /// matrix; `placed` collects each group's correlation statements for the final check.
+    /// matrix; `placed` collects each group's correlation statements and the pair each sets.
     fn correlation(
         &mut self,
         card: &Ident,
@@ -616,7 +616,7 @@ impl<'s> Elaborator<'s> {
         span: Span,
         top: &Frame,
         out: &mut Variations,
-        placed: &mut [Vec<Span>],
+        placed: &mut [Vec<(Span, usize, usize)>],
     ) {
         if self.varied_card(card).is_none() || !self.settings_once(params) {
             return;
@@ -781,9 +781,27 @@ impl<'s> Elaborator<'s> {
                 .unwrap_or(0)
         };
         let (i, j) = (pos(a), pos(b));
+        if let Some(&(first, _, _)) = placed[gi]
+            .iter()
+            .find(|p| (p.1, p.2) == (i, j) || (p.1, p.2) == (j, i))
+        {
+            self.diags.push(
+                Diagnostic::new(
+                    ErrorKind::Duplicate,
+                    span,
+                    format!(
+                        "`{}` and `{}` of card `{}` are already correlated",
+                        a.name, b.name, card.name
+                    ),
+                )
+                .with_note(first, "first correlated here")
+                .with_help("keep one of the two; neither silently wins"),
+            );
+            return;
+        }
         g.correlation[i][j] = c;
         g.correlation[j][i] = c;
-        placed[gi].push(span);
+        placed[gi].push((span, i, j));
     }
 }
 
