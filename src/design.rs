@@ -49,7 +49,12 @@ pub fn load(path: &Path, sets: &[(String, String)]) -> Result<Design, JobError> 
         overrides: sets.to_vec(),
         ..LoadOptions::default()
     };
-    let design = load_file(path, &options).map_err(|f| {
+    load_options(path, &options)
+}
+
+/// [`load`] with every load option (a Monte Carlo sample's perturbation, say).
+pub fn load_options(path: &Path, options: &LoadOptions) -> Result<Design, JobError> {
+    let design = load_file(path, options).map_err(|f| {
         let n = f.diagnostics.len();
         let only_values = f
             .diagnostics
@@ -254,7 +259,21 @@ pub fn run_all(
     base: &RingParams,
     only: Option<&str>,
 ) -> Result<Vec<(String, Outcome)>, JobError> {
-    let design = load(path, sets)?;
+    let options = LoadOptions {
+        overrides: sets.to_vec(),
+        ..LoadOptions::default()
+    };
+    run_all_options(path, &options, base, only)
+}
+
+/// [`run_all`] with every load option.
+pub fn run_all_options(
+    path: &Path,
+    options: &LoadOptions,
+    base: &RingParams,
+    only: Option<&str>,
+) -> Result<Vec<(String, Outcome)>, JobError> {
+    let design = load_options(path, options)?;
     if design.analyses.is_empty() {
         return Err(JobError::Invalid(format!(
             "{} declares no analysis; add one such as `analysis operating_point`",
@@ -277,7 +296,7 @@ pub fn run_all(
     let mut out = Vec::new();
     for a in &kinds {
         // Each analysis gets a fresh elaboration, so sweeps and runs cannot affect each other.
-        let design = load(path, sets)?;
+        let design = load_options(path, options)?;
         let outcome = match a.analysis {
             Analysis::Ring { .. } => {
                 let (mut sys, ring, params) = ring_from(design, base)?;

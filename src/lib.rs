@@ -8,6 +8,8 @@
 //! * [`iv`]: device curves of the one FET in a file.
 //! * [`cv`]: gate capacitances and the gate stack's parts of the one 2D-channel FET in a file.
 //! * [`sweep`]: a file's analyses over a grid of parameter values, in parallel.
+//! * [`montecarlo`]: a file's analyses over random samples of its declared spreads, with
+//!   statistics, yield and the spreads that drive each figure.
 //! * [`plot`] and [`output`]: pictures (SVG and PNG) and data files, each written whole.
 //! * [`design`]: jobs on circuit files: load with `--set` overrides, the check summary, and the
 //!   analyses a file declares.
@@ -36,6 +38,7 @@ pub mod error;
 pub mod extract;
 pub mod fit;
 pub mod iv;
+pub mod montecarlo;
 pub mod op;
 pub mod output;
 pub mod plot;

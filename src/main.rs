@@ -40,6 +40,9 @@ enum Job {
     Delay(cli::delay::Args),
     /// A file's analyses over a grid of parameter values, points in parallel.
     Sweep(cli::sweep::Args),
+    /// A file's analyses over random samples of its declared spreads: statistics, yield
+    /// against limits, and the spreads that drive each figure.
+    Montecarlo(cli::montecarlo::Args),
     /// Run every analysis a circuit file declares.
     Run(cli::run::Args),
     /// The material library: channels, insulators and gates with values, units and sources.
@@ -62,6 +65,7 @@ fn main() -> ExitCode {
         Job::Vtc(a) => cli::vtc::run(a),
         Job::Delay(a) => cli::delay::run(a),
         Job::Sweep(a) => cli::sweep::run(a),
+        Job::Montecarlo(a) => cli::montecarlo::run(a),
         Job::Run(a) => cli::run::run(a),
         Job::Materials(a) => cli::materials::run(a),
         Job::Extract(a) => cli::extract::run(a),

@@ -126,7 +126,7 @@ fn thinned(x: &[f64], y: &[f64]) -> Vec<(f64, f64)> {
 }
 
 /// The curves `o` contributes to the families.
-fn curves_of(o: &Outcome) -> Vec<Curve> {
+pub(crate) fn curves_of(o: &Outcome) -> Vec<Curve> {
     match o {
         Outcome::Transfer { vin, vout, .. } => vec![Curve {
             family: "transfer curves".into(),
@@ -268,7 +268,8 @@ pub fn axis_label(a: &Axis) -> String {
     }
 }
 
-fn figures(kind: &str, o: &Outcome) -> Vec<(String, f64)> {
+/// The figures of one analysis's outcome, keyed as in [`Row::figures`].
+pub(crate) fn figures(kind: &str, o: &Outcome) -> Vec<(String, f64)> {
     let mut f = Vec::new();
     let mut put = |k: &str, v: Option<f64>| {
         if let Some(v) = v {
@@ -434,7 +435,7 @@ pub fn run_sweep(
 }
 
 /// The first line of a message that says something (rendered diagnostics start with it).
-fn first_line(text: &str) -> String {
+pub(crate) fn first_line(text: &str) -> String {
     text.lines()
         .map(str::trim)
         .find(|l| !l.is_empty())

@@ -11,6 +11,7 @@ pub mod extract;
 pub mod fit;
 pub mod iv;
 pub mod materials;
+pub mod montecarlo;
 pub mod ring;
 pub mod run;
 pub mod small_signal;

@@ -249,7 +249,7 @@ pub(crate) fn write_sweep(dir: &Path, axes: &[Axis], rows: &[Row]) -> Result<(),
 type Named = (String, Vec<(f64, f64)>);
 
 /// A CSV field, quoted when it holds a comma, a quote or a line break.
-fn csv_field(s: &str) -> String {
+pub(crate) fn csv_field(s: &str) -> String {
     if s.contains([',', '"', '\n']) {
         format!("\"{}\"", s.replace('"', "\"\""))
     } else {

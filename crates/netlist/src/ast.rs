@@ -195,4 +195,26 @@ pub enum Stmt {
         /// The instance header.
         span: Span,
     },
+    /// `variation card.key { distribution = ..., scope = ..., ... }`: a spread of one
+    /// numeric key of a device card (see `elaborate::variation`).
+    Variation {
+        /// The device card.
+        card: Ident,
+        /// The key of the card that varies.
+        key: Ident,
+        /// Its settings.
+        params: Vec<Assign>,
+        /// The header.
+        span: Span,
+    },
+    /// `correlation card { keys = [a, b], coefficient = c }`: correlated draws of two varied
+    /// keys of one card.
+    Correlation {
+        /// The device card.
+        card: Ident,
+        /// Its settings.
+        params: Vec<Assign>,
+        /// The header.
+        span: Span,
+    },
 }

@@ -11,7 +11,15 @@ use crate::units::{all_symbols, run_together, unit_atom, Dim};
 pub const MAX_DEPTH: usize = 64;
 
 const KEYWORDS: &[&str] = &[
-    "param", "device", "cell", "for", "in", "include", "analysis",
+    "param",
+    "device",
+    "cell",
+    "for",
+    "in",
+    "include",
+    "analysis",
+    "variation",
+    "correlation",
 ];
 
 struct Parser<'a> {
@@ -237,7 +245,7 @@ impl<'a> Parser<'a> {
 
     fn statement(&mut self) -> PResult<Stmt> {
         let Tok::Ident(word) = self.peek().clone() else {
-            self.error_here("a statement (`param`, `device`, `cell`, `for`, `include`, `analysis` or an instance)");
+            self.error_here("a statement (`param`, `device`, `cell`, `for`, `include`, `analysis`, `variation`, `correlation` or an instance)");
             return Err(());
         };
         let start = self.span();
@@ -327,6 +335,27 @@ impl<'a> Parser<'a> {
                     Vec::new()
                 };
                 Ok(Stmt::Analysis { kind, params, span })
+            }
+            "variation" => {
+                self.bump();
+                let card = self.ident("a device card name")?;
+                self.expect_punct(".")?;
+                let key = self.ident("a key of the card, such as `gate_work_function`")?;
+                let span = start.to(key.span);
+                let params = self.assignments()?;
+                Ok(Stmt::Variation {
+                    card,
+                    key,
+                    params,
+                    span,
+                })
+            }
+            "correlation" => {
+                self.bump();
+                let card = self.ident("a device card name")?;
+                let span = start.to(card.span);
+                let params = self.assignments()?;
+                Ok(Stmt::Correlation { card, params, span })
             }
             _ => self.instance(),
         }

@@ -25,7 +25,7 @@ impl Given {
         self.numbers.is_empty() && self.texts.is_empty() && self.waveform.is_none()
     }
 
-    fn span_of(&self, name: &str) -> Option<Span> {
+    pub(super) fn span_of(&self, name: &str) -> Option<Span> {
         self.numbers
             .iter()
             .find(|n| n.0 == name)
@@ -42,8 +42,8 @@ impl Given {
 
 /// A device card: its kind, its checked values, and whether it is bad.
 pub(super) struct DeviceCard {
-    kind: &'static Kind,
-    values: Given,
+    pub(super) kind: &'static Kind,
+    pub(super) values: Given,
     name_span: Span,
     /// The card's own error in `diags`, if it has one; instances of a bad card add nothing but
     /// a note on it.
@@ -188,8 +188,15 @@ impl<'s> Elaborator<'s> {
 
     /// Records the resolved card of a 2D-FET element; instances that change nothing share their
     /// device card's.
-    fn keep_sheet_card(&mut self, element: usize, card: &str, inst: &Given, v: &Values) {
-        let unchanged = inst.is_empty();
+    fn keep_sheet_card(
+        &mut self,
+        element: usize,
+        card: &str,
+        inst: &Given,
+        v: &Values,
+        perturbed: bool,
+    ) {
+        let unchanged = inst.is_empty() && !perturbed;
         let cached = unchanged
             .then(|| self.card_cache.get(card).cloned())
             .flatten();
@@ -406,7 +413,7 @@ impl<'s> Elaborator<'s> {
             .map(|c| (c.values.clone(), c.name_span));
         let empty = Given::default();
         let card_values = card.as_ref().map_or(&empty, |c| &c.0);
-        let Some(values) = assemble(k, card.as_ref().map(|c| &c.0), &inst) else {
+        let Some(mut values) = assemble(k, card.as_ref().map(|c| &c.0), &inst) else {
             let missing: Vec<&str> = k
                 .params
                 .iter()
@@ -435,6 +442,48 @@ impl<'s> Elaborator<'s> {
             );
             return;
         };
+        // A Monte Carlo sample puts its drawn values into the devices of varied cards.
+        let mut changed = Vec::new();
+        if let (Some(p), Some(_)) = (&self.perturbation, &card) {
+            let before = values.numbers.clone();
+            p.0.apply(&kind.name, &full, &mut values.numbers);
+            for (i, (new, old)) in values.numbers.iter().zip(&before).enumerate() {
+                if new.to_bits() != old.to_bits() {
+                    values.given[i] = true;
+                    changed.push(i);
+                }
+            }
+        }
+        let perturbed = !changed.is_empty();
+        // A drawn value must stay finite and keep the sign rule its key has where written.
+        let bad = changed
+            .iter()
+            .map(|&i| (&k.params[i], values.numbers[i]))
+            .find(|(p, v)| !v.is_finite() || p.positive && *v <= 0.0);
+        if let Some((p, v)) = bad {
+            self.diags.push(
+                Diagnostic::new(
+                    ErrorKind::BadValue,
+                    name.name.span,
+                    format!(
+                        "this sample's variation makes `{}` of `{full}` {v:e}, outside its \
+                         range{}",
+                        p.name,
+                        if p.positive {
+                            " (it must be positive)"
+                        } else {
+                            ""
+                        }
+                    ),
+                )
+                .with_help(
+                    "a normal spread reaches any value: use `log_normal` for a quantity \
+                     that must stay positive, or `truncated_normal` with a bound below the \
+                     nominal value",
+                ),
+            );
+            return;
+        }
         if self.created >= self.limits.max_elements {
             self.created += 1;
             self.err(
@@ -468,7 +517,7 @@ impl<'s> Elaborator<'s> {
         match self.circuit.add_boxed(&full, element, &pins) {
             Ok(id) => {
                 if k.name == "sheet_fet" {
-                    self.keep_sheet_card(id.index(), &kind.name, &inst, &values);
+                    self.keep_sheet_card(id.index(), &kind.name, &inst, &values, perturbed);
                 }
                 for &(n, at) in &self.last_pins {
                     if !n.is_ground() {

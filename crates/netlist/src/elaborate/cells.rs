@@ -27,6 +27,11 @@ impl<'s> Elaborator<'s> {
                     *span,
                     "analyses belong at the top level, not inside a cell".into(),
                 ),
+                Stmt::Variation { span, .. } | Stmt::Correlation { span, .. } => self.err(
+                    ErrorKind::Expected,
+                    *span,
+                    "variations belong at the top level, not inside a cell".into(),
+                ),
                 Stmt::For { body, .. } => self.check_cell_body(body),
                 _ => {}
             }
@@ -114,6 +119,11 @@ impl<'s> Elaborator<'s> {
                 ErrorKind::Expected,
                 *span,
                 "analyses belong at the top level".into(),
+            ),
+            Stmt::Variation { span, .. } | Stmt::Correlation { span, .. } => self.err(
+                ErrorKind::Expected,
+                *span,
+                "variations belong at the top level, outside loops and cells".into(),
             ),
             Stmt::Cell { .. } | Stmt::Device { .. } | Stmt::Include { .. } => {}
         }

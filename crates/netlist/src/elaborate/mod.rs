@@ -14,11 +14,15 @@ mod cards;
 mod cells;
 mod expr;
 mod files;
+mod variation;
 
 pub use analyses::{
     Analysis, AnalysisDecl, SettingKind, ANALYSES, MAX_TRANSFER_POINTS, MAX_TRANSIENT_SAMPLES,
 };
 pub use files::{DiskReader, FileReader, ReadError};
+pub use variation::{
+    cholesky, AreaScaling, Distribution, Group, Perturb, Perturbation, Scope, Variation, Variations,
+};
 
 use crate::ast::*;
 use crate::catalog::CardOrigins;
@@ -73,6 +77,9 @@ pub struct LoadOptions {
     pub overrides: Vec<(String, String)>,
     /// Input limits.
     pub limits: Limits,
+    /// Values for the devices of varied cards (one Monte Carlo sample); `None` builds the
+    /// nominal design.
+    pub perturbation: Option<Perturb>,
 }
 
 /// What a check reports about an elaborated design.
@@ -104,6 +111,8 @@ pub struct Design {
     pub summary: Summary,
     /// Findings that do not stop the design (a node with a single connection, say).
     pub warnings: Vec<Diagnostic>,
+    /// Declared spreads of card keys (`variation` and `correlation` statements).
+    pub variations: Variations,
     /// The resolved card of each 2D-channel FET, by element position (shared between the
     /// instances of a card that change nothing).
     sheet_cards: BTreeMap<usize, SheetCard>,
@@ -193,6 +202,7 @@ pub fn load_with(
         });
     }
     let mut e = Elaborator::new(options.limits);
+    e.perturbation = options.perturbation.clone();
     e.run(&stmts, &overrides, &sources);
     // The same fault met again (in every iteration of a loop, say) is reported once.
     let mut seen = std::collections::HashSet::new();
@@ -249,6 +259,7 @@ pub fn load_with(
         parameters: e.parameter_list,
         summary,
         warnings,
+        variations: e.declared_variations,
         sheet_cards: e.sheet_cards,
     })
 }
@@ -297,6 +308,10 @@ struct Elaborator<'s> {
     card_cache: HashMap<String, SheetCard>,
     /// Largest voltage written in the design (sources, settings), for plausibility checks.
     max_voltage: f64,
+    /// Declared spreads, read after the circuit is complete.
+    declared_variations: Variations,
+    /// Values for the devices of varied cards, if this load is a sample.
+    perturbation: Option<Perturb>,
 }
 
 /// One level of the scope chain: a cell instance's parameters and ports, or a loop variable.
@@ -333,6 +348,8 @@ impl<'s> Elaborator<'s> {
             multiplier: 1.0,
             cell_costs: HashMap::new(),
             costing: Vec::new(),
+            declared_variations: Variations::default(),
+            perturbation: None,
         }
     }
 
@@ -532,6 +549,8 @@ impl<'s> Elaborator<'s> {
                 Stmt::Param { .. }
                 | Stmt::Cell { .. }
                 | Stmt::Device { .. }
+                | Stmt::Variation { .. }
+                | Stmt::Correlation { .. }
                 | Stmt::Include { .. } => {}
                 Stmt::Analysis { kind, params, span } => {
                     self.analysis(kind, params, *span, &frames)
@@ -542,6 +561,7 @@ impl<'s> Elaborator<'s> {
         // Names in analyses are checked against a complete circuit only: after other errors
         // they would mostly repeat them.
         if self.diags.is_empty() {
+            self.variations(stmts, &frames[0]);
             self.check_analyses();
             self.plausibility_warnings();
         }
