@@ -59,6 +59,8 @@ pub(super) struct Loader<'a> {
     pub(super) diags: Vec<Diagnostic>,
     pub(super) limits: Limits,
     pub(super) stack: Vec<(PathBuf, Option<Span>)>,
+    /// Every file read so far: a file is included once, however many files include it.
+    pub(super) included: Vec<PathBuf>,
 }
 
 impl Loader<'_> {
@@ -82,6 +84,11 @@ impl Loader<'_> {
             }
             self.diags.push(d);
             return None;
+        }
+        // A file already read (a process file included by two others, say) is not read again:
+        // its cards and cells are defined once.
+        if from.is_some() && self.included.contains(&key) {
+            return Some(Vec::new());
         }
         if self.stack.len() >= self.limits.max_include_depth {
             if let Some(span) = from {
@@ -133,6 +140,7 @@ impl Loader<'_> {
         let id: FileId = self.sources.add(path.display().to_string(), text);
         let stmts =
             crate::parser::SyntaxTree::parse(id, self.sources.text(id), &mut self.diags).statements;
+        self.included.push(key.clone());
         self.stack.push((key, from));
         let dir = path.parent().map(Path::to_path_buf).unwrap_or_default();
         let out = self.splice(stmts, &dir);

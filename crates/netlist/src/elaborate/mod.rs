@@ -172,6 +172,7 @@ pub fn load_with(
         diags: Vec::new(),
         limits: options.limits,
         stack: Vec::new(),
+        included: Vec::new(),
     };
     let stmts = l.load(path, None);
     let Loader {
