@@ -47,6 +47,45 @@ fn evaluate(bencher: divan::Bencher) {
     });
 }
 
+/// The small-V_DS branch alone: |V_DS| below 1 mV (a settled stage's conducting device),
+/// gate swept across off, subthreshold and strong inversion.
+#[divan::bench(sample_count = 200)]
+fn evaluate_small_vds(bencher: divan::Bencher) {
+    bench_points(bencher, |k| {
+        let vg = -0.5 + 1.5 * ((k * 37) % 64) as f64 / 63.0;
+        let vd = 1e-3 * (((k * 11) % 64) as f64 / 63.0 - 0.5);
+        [vd, vg, 0.0]
+    });
+}
+
+/// |V_DS| from 1 mV to 10 mV: the range the small-V_DS form once covered.
+#[divan::bench(sample_count = 200)]
+fn evaluate_few_millivolts(bencher: divan::Bencher) {
+    bench_points(bencher, |k| {
+        let vg = -0.5 + 1.5 * ((k * 37) % 64) as f64 / 63.0;
+        let vd = 1e-3 + 9e-3 * ((k * 11) % 64) as f64 / 63.0;
+        [vd, vg, 0.0]
+    });
+}
+
+fn bench_points(bencher: divan::Bencher, at: impl Fn(usize) -> [f64; 3]) {
+    let fet = SheetFet::new(&card()).unwrap();
+    let points: Vec<[f64; 3]> = (0..64).map(at).collect();
+    let (mut f, mut q, mut df, mut dq) = ([0.0; 3], [0.0; 3], [0.0; 9], [0.0; 9]);
+    let ctx = EvalContext::dc();
+    let mut k = 0;
+    bencher.bench_local(|| {
+        let x = &points[k % points.len()];
+        k += 1;
+        fet.evaluate(
+            divan::black_box(x),
+            &ctx,
+            &mut Stamp::new(&mut f, &mut q, &mut df, &mut dq),
+        );
+        divan::black_box(f[0])
+    });
+}
+
 /// Building the tables of a new stack (the shared cache is bypassed by changing the
 /// temperature every time).
 #[divan::bench(sample_count = 20)]
