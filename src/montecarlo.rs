@@ -30,6 +30,19 @@
 //! between two devices can show up as a driver. Then every figure of every analysis (the
 //! sweep's keys: `transfer.snm_v`, `ring.frequency_hz`...), and the error of a sample that
 //! failed.
+//!
+//! # Corners
+//! A corner is a run whose global values are set instead of drawn: each global spread at `+K`
+//! and at `-K` standard deviations with every other spread at nominal (`2 N + 1` runs with the
+//! nominal one, for `N` global spreads), or every combination of `±K` over them (`2^N + 1`,
+//! at most [`MAX_CORNER_COMBINATIONS`]). Local spreads (mismatch) stay at nominal: a corner is
+//! a process condition, not a device pairing. `K` standard deviations means, per distribution:
+//! normal, the offset `±K sigma`; log-normal, the factor `exp(±K sigma)`; uniform, the offset
+//! `±K h / sqrt(3)` (its standard deviation is `h / sqrt(3)`), clamped to the half-width `h`;
+//! truncated normal, `±min(K sigma, bound)`. Declared correlations are ignored: a corner
+//! moves one key along its own axis (or each key along its own, in a combination), so a corner
+//! can be one the correlated samples would rarely reach. The runs go through the same path as
+//! the samples, so a corner's row has the same columns as a sample's.
 
 use crate::design::{run_all_options, Outcome};
 use crate::error::JobError;
@@ -136,6 +149,8 @@ struct SampleDraws {
     sample: u64,
     /// The global draw of each declaration (`None` for local ones).
     global: Vec<Option<Applied>>,
+    /// Whether local spreads are drawn (false in a corner: they stay at nominal).
+    draw_local: bool,
     /// Local draws made so far, by (declaration, device name).
     local: Mutex<BTreeMap<(usize, String), f64>>,
 }
@@ -161,6 +176,19 @@ impl SampleDraws {
             seed,
             sample,
             global,
+            draw_local: true,
+            local: Mutex::new(BTreeMap::new()),
+        }
+    }
+
+    /// A corner: the global values given instead of drawn, local spreads at nominal.
+    fn fixed(variations: Arc<Variations>, global: Vec<Option<Applied>>) -> SampleDraws {
+        SampleDraws {
+            variations,
+            seed: 0,
+            sample: 0,
+            global,
+            draw_local: false,
             local: Mutex::new(BTreeMap::new()),
         }
     }
@@ -216,7 +244,7 @@ impl Perturbation for SampleDraws {
                 }
             }
         }
-        for g in groups().filter(|g| g.scope == Scope::Local) {
+        for g in groups().filter(|g| self.draw_local && g.scope == Scope::Local) {
             let ys = correlated(g, self.seed, self.sample, device_key(device));
             for (&m, y) in g.members.iter().zip(ys) {
                 let v = &self.variations.list[m];
@@ -302,44 +330,56 @@ pub fn run_samples(
         .into_par_iter()
         .progress_with(bar)
         .map(|sample| {
-            let draws = Arc::new(SampleDraws::new(variations.clone(), seed, sample as u64));
-            let options = LoadOptions {
-                overrides: sets.to_vec(),
-                perturbation: Some(Perturb(draws.clone())),
-                ..LoadOptions::default()
-            };
-            let ring = RingParams {
-                wave_samples: crate::sweep::CURVE_SAMPLES,
-                ..RingParams::default()
-            };
-            let result = run_all_options(path, &options, &ring, None);
-            let (figures, curves, error) = match result {
-                Ok(results) => {
-                    let curves = if sample < keep_curves {
-                        results
-                            .iter()
-                            .flat_map(|(_, o)| crate::sweep::curves_of(o))
-                            .collect()
-                    } else {
-                        Vec::new()
-                    };
-                    (figures_of(&results), curves, None)
-                }
-                Err(e) => (
-                    Vec::new(),
-                    Vec::new(),
-                    Some(crate::sweep::first_line(e.message())),
-                ),
-            };
-            SampleRow {
-                sample,
-                draws: draws.columns(),
-                figures,
-                error,
-                curves,
-            }
+            let draws = SampleDraws::new(variations.clone(), seed, sample as u64);
+            run_one(path, sets, draws, sample, sample < keep_curves)
         })
         .collect()
+}
+
+/// Runs the analyses of one sample or corner with `draws` put into its devices.
+fn run_one(
+    path: &Path,
+    sets: &[(String, String)],
+    draws: SampleDraws,
+    sample: usize,
+    keep_curves: bool,
+) -> SampleRow {
+    let draws = Arc::new(draws);
+    let options = LoadOptions {
+        overrides: sets.to_vec(),
+        perturbation: Some(Perturb(draws.clone())),
+        ..LoadOptions::default()
+    };
+    let ring = RingParams {
+        wave_samples: crate::sweep::CURVE_SAMPLES,
+        ..RingParams::default()
+    };
+    let result = run_all_options(path, &options, &ring, None);
+    let (figures, curves, error) = match result {
+        Ok(results) => {
+            let curves = if keep_curves {
+                results
+                    .iter()
+                    .flat_map(|(_, o)| crate::sweep::curves_of(o))
+                    .collect()
+            } else {
+                Vec::new()
+            };
+            (figures_of(&results), curves, None)
+        }
+        Err(e) => (
+            Vec::new(),
+            Vec::new(),
+            Some(crate::sweep::first_line(e.message())),
+        ),
+    };
+    SampleRow {
+        sample,
+        draws: draws.columns(),
+        figures,
+        error,
+        curves,
+    }
 }
 
 /// Every figure of a run's outcomes.
@@ -523,7 +563,7 @@ pub fn parse_spec(text: &str) -> Result<Spec, JobError> {
 }
 
 /// Whether `value` meets the spec.
-fn meets(s: &Spec, value: Option<f64>) -> bool {
+pub fn meets(s: &Spec, value: Option<f64>) -> bool {
     match value {
         Some(v) if v.is_finite() => {
             if s.above {
@@ -575,12 +615,7 @@ pub fn wilson(k: usize, n: usize, z: f64) -> (f64, f64) {
 pub fn yield_of(rows: &[SampleRow], specs: &[Spec]) -> Yield {
     let pass = rows
         .iter()
-        .filter(|r| {
-            r.error.is_none()
-                && specs
-                    .iter()
-                    .all(|s| meets(s, r.figures.iter().find(|(k, _)| *k == s.key).map(|x| x.1)))
-        })
+        .filter(|r| r.error.is_none() && spec_results(r, specs).into_iter().all(|b| b))
         .count();
     let (low, high) = wilson(pass, rows.len(), Z95);
     Yield {
@@ -590,6 +625,158 @@ pub fn yield_of(rows: &[SampleRow], specs: &[Spec]) -> Yield {
         low,
         high,
     }
+}
+
+/// Most combinations `--all-combinations` runs (`2^12`, twelve global spreads).
+pub const MAX_CORNER_COMBINATIONS: usize = 1 << 12;
+
+/// One deterministic corner: its label and the value of each global declaration (`None` for
+/// local declarations, which stay at nominal).
+#[derive(Clone, Debug, PartialEq)]
+pub struct Corner {
+    /// `nominal`, or each moved key with its direction, such as `r.resistance+3sigma`.
+    pub label: String,
+    /// Per declaration (indices of [`Variations::list`]), the value put in.
+    pub global: Vec<Option<Applied>>,
+}
+
+/// The value of distribution `d` at `k` standard deviations (negative `k` the other way);
+/// see the module documentation.
+pub fn corner_value(d: Distribution, k: f64) -> Applied {
+    match d {
+        Distribution::Normal { sigma } => Applied::Shift(k * sigma),
+        Distribution::LogNormal { sigma } => Applied::Factor((k * sigma).exp()),
+        Distribution::Uniform { half_width } => {
+            Applied::Shift((k * half_width / 3f64.sqrt()).clamp(-half_width, half_width))
+        }
+        Distribution::TruncatedNormal { sigma, bound } => {
+            Applied::Shift((k * sigma).clamp(-bound, bound))
+        }
+    }
+}
+
+/// The corners of the global spreads of `variations` at `k` standard deviations: the nominal
+/// run first, then each global declaration in file order at `+k` and `-k`, or with
+/// `all_combinations` every sign pattern (the first declaration's sign changing slowest).
+/// Refused for `k` not positive and finite, for a design without global spreads, and for more
+/// than [`MAX_CORNER_COMBINATIONS`] combinations.
+pub fn corners(
+    variations: &Variations,
+    k: f64,
+    all_combinations: bool,
+) -> Result<Vec<Corner>, JobError> {
+    if !(k.is_finite() && k > 0.0) {
+        return Err(JobError::Usage(format!(
+            "--corners {k}: give a positive number of standard deviations, such as --corners 3"
+        )));
+    }
+    let globals: Vec<usize> = (0..variations.list.len())
+        .filter(|&i| variations.list[i].scope == Scope::Global)
+        .collect();
+    if globals.is_empty() {
+        return Err(JobError::Invalid(
+            "the file declares no global spread, and corners move global spreads only (local \
+             ones stay at nominal); add `scope = global` to a variation, or sample with --runs"
+                .into(),
+        ));
+    }
+    let name = |i: usize, sign: f64| {
+        let v = &variations.list[i];
+        format!(
+            "{}.{}{}{k}sigma",
+            v.card,
+            v.key,
+            if sign > 0.0 { '+' } else { '-' }
+        )
+    };
+    let corner = |moved: &[(usize, f64)]| {
+        let mut global = vec![None; variations.list.len()];
+        for &i in &globals {
+            global[i] = Some(corner_value(variations.list[i].distribution, 0.0));
+        }
+        for &(i, sign) in moved {
+            global[i] = Some(corner_value(variations.list[i].distribution, sign * k));
+        }
+        let label = if moved.is_empty() {
+            "nominal".to_string()
+        } else {
+            moved
+                .iter()
+                .map(|&(i, s)| name(i, s))
+                .collect::<Vec<_>>()
+                .join(",")
+        };
+        Corner { label, global }
+    };
+    let mut out = vec![corner(&[])];
+    if all_combinations {
+        let n = globals.len();
+        if n > MAX_CORNER_COMBINATIONS.trailing_zeros() as usize {
+            return Err(JobError::Usage(format!(
+                "--all-combinations: {n} global spreads make 2^{n} corners, more than the \
+                 {MAX_CORNER_COMBINATIONS} allowed; run the one-at-a-time corners (drop \
+                 --all-combinations) or sample with --runs"
+            )));
+        }
+        for pattern in 0..1usize << n {
+            let moved: Vec<(usize, f64)> = globals
+                .iter()
+                .enumerate()
+                .map(|(j, &i)| {
+                    (
+                        i,
+                        if pattern >> (n - 1 - j) & 1 == 0 {
+                            1.0
+                        } else {
+                            -1.0
+                        },
+                    )
+                })
+                .collect();
+            out.push(corner(&moved));
+        }
+    } else {
+        for &i in &globals {
+            out.push(corner(&[(i, 1.0)]));
+            out.push(corner(&[(i, -1.0)]));
+        }
+    }
+    Ok(out)
+}
+
+/// Runs `path`'s analyses at each corner of `nominal`'s spreads, in parallel; rows come back
+/// in corner order, `sample` the corner's position. Corners with a position below
+/// `keep_curves` keep their curves.
+pub fn run_corners(
+    path: &Path,
+    sets: &[(String, String)],
+    nominal: &Design,
+    corners: &[Corner],
+    keep_curves: usize,
+) -> Vec<SampleRow> {
+    let variations = Arc::new(nominal.variations.clone());
+    corners
+        .par_iter()
+        .enumerate()
+        .map(|(i, c)| {
+            let draws = SampleDraws::fixed(variations.clone(), c.global.clone());
+            run_one(path, sets, draws, i, i < keep_curves)
+        })
+        .collect()
+}
+
+/// Whether a row meets each spec (a failed row meets none).
+pub fn spec_results(row: &SampleRow, specs: &[Spec]) -> Vec<bool> {
+    specs
+        .iter()
+        .map(|s| {
+            row.error.is_none()
+                && meets(
+                    s,
+                    row.figures.iter().find(|(k, _)| *k == s.key).map(|x| x.1),
+                )
+        })
+        .collect()
 }
 
 /// Ranks from 1, ties given their mean rank.

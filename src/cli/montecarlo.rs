@@ -1,13 +1,16 @@
 //! `lamina montecarlo`: a file's analyses over random samples of its declared spreads, with
-//! statistics, yield against limits and the drawn values that drive each figure.
+//! statistics, yield against limits and the drawn values that drive each figure; or, with
+//! `--corners K`, deterministic runs with the global spreads at `±K` standard deviations (a flag
+//! of this command rather than a command of its own, as corners share the file, its spreads,
+//! the limits, the threads and the run path with the samples).
 
 use super::sweep::csv_field;
 use super::Common;
 use crate::design;
 use crate::error::JobError;
 use crate::montecarlo::{
-    column, draw_keys, drivers, figure_keys, parse_spec, run_samples, stats, yield_of, SampleRow,
-    Spec, Stats, Yield, MAX_RUNS,
+    column, corners, draw_keys, drivers, figure_keys, parse_spec, run_corners, run_samples,
+    spec_results, stats, yield_of, Corner, SampleRow, Spec, Stats, Yield, MAX_RUNS,
 };
 use crate::out;
 use crate::output::{ensure_dir, write_whole, OutputSet};
@@ -25,8 +28,16 @@ pub struct Args {
     /// Circuit file (`.lam`) with its analyses and `variation` statements.
     pub file: PathBuf,
     /// Number of samples.
-    #[arg(long, value_name = "N")]
-    pub runs: usize,
+    #[arg(long, value_name = "N", required_unless_present = "corners")]
+    pub runs: Option<usize>,
+    /// Instead of samples, deterministic corners: the nominal run and each global spread at
+    /// +K and at -K standard deviations, the others at nominal; local spreads stay at nominal.
+    #[arg(long, value_name = "K", conflicts_with_all = ["runs", "seed"])]
+    pub corners: Option<f64>,
+    /// With `--corners`, every combination of +K and -K over the global spreads (at most
+    /// 2^12).
+    #[arg(long)]
+    pub all_combinations: bool,
     /// Seed of the random draws: the same seed gives the same samples, bit for bit, on any
     /// number of threads.
     #[arg(long, value_name = "S", default_value_t = 1)]
@@ -49,12 +60,20 @@ pub fn run(a: Args) -> Result<(), JobError> {
     let Args {
         file,
         runs,
+        corners: corner_k,
+        all_combinations,
         seed,
         threads,
         spec,
         common: Common { set, json, out },
     } = a;
-    if runs == 0 || runs > MAX_RUNS {
+    let runs = runs.unwrap_or(0);
+    if all_combinations && corner_k.is_none() {
+        return Err(JobError::Usage(
+            "--all-combinations combines corners: give it with --corners K".into(),
+        ));
+    }
+    if corner_k.is_none() && (runs == 0 || runs > MAX_RUNS) {
         return Err(JobError::Usage(format!(
             "--runs {runs}: give from 1 to {MAX_RUNS} samples"
         )));
@@ -96,15 +115,35 @@ pub fn run(a: Args) -> Result<(), JobError> {
         }
     }
     let keep = if set_out.is_some() { FAMILY_CURVES } else { 0 };
-    let work = || run_samples(&file, &sets, &nominal, 0..runs, seed, true, keep);
-    let rows = match threads {
-        Some(t) => rayon::ThreadPoolBuilder::new()
-            .num_threads(t)
-            .build()
-            .map_err(|e| JobError::Usage(format!("--threads {t}: {e}")))?
-            .install(work),
+    let pool = match threads {
+        Some(t) => Some(
+            rayon::ThreadPoolBuilder::new()
+                .num_threads(t)
+                .build()
+                .map_err(|e| JobError::Usage(format!("--threads {t}: {e}")))?,
+        ),
+        None => None,
+    };
+    let on_pool = |work: &(dyn Fn() -> Vec<SampleRow> + Sync)| match &pool {
+        Some(p) => p.install(work),
         None => work(),
     };
+    if let Some(k) = corner_k {
+        let list = corners(&nominal.variations, k, all_combinations)?;
+        let rows = on_pool(&|| run_corners(&file, &sets, &nominal, &list, 0));
+        let report = corners_json(&list, &rows, &specs, k, all_combinations);
+        if let Some(set) = set_out {
+            write_corner_files(set.dir(), &list, &rows, &specs, &report).map_err(JobError::Io)?;
+            set.commit()?;
+        }
+        if json {
+            out!("{report}");
+        } else {
+            print_corners(&list, &rows, &specs, k);
+        }
+        return Ok(());
+    }
+    let rows = on_pool(&|| run_samples(&file, &sets, &nominal, 0..runs, seed, true, keep));
     let report = Report::new(&rows, &specs);
     if let Some(set) = set_out {
         write_files(set.dir(), &rows, &report, &specs, seed).map_err(JobError::Io)?;
@@ -229,34 +268,7 @@ fn print_report(r: &Report, specs: &[Spec], runs: usize, seed: u64) {
             s.failures.to_string(),
         ]);
     }
-    let widths: Vec<usize> = (0..header.len())
-        .map(|j| {
-            cells
-                .iter()
-                .map(|c| c[j].len())
-                .chain([header[j].len()])
-                .max()
-                .unwrap_or(0)
-        })
-        .collect();
-    let line = |c: &[String]| {
-        c.iter()
-            .zip(&widths)
-            .enumerate()
-            .map(|(j, (s, w))| {
-                if j == 0 {
-                    format!("{s:<w$}")
-                } else {
-                    format!("{s:>w$}")
-                }
-            })
-            .collect::<Vec<_>>()
-            .join("  ")
-    };
-    out!("{}", line(&header.map(String::from)));
-    for c in &cells {
-        out!("{}", line(c));
-    }
+    print_table(&header.map(String::from), &cells);
     if let Some(y) = &r.yield_ {
         let names: Vec<&str> = specs.iter().map(|s| s.text.as_str()).collect();
         out!("");
@@ -284,6 +296,51 @@ fn print_report(r: &Report, specs: &[Spec], runs: usize, seed: u64) {
     }
     out!("");
     out!("({})", super::CAUTION);
+}
+
+/// A table with its columns aligned: the first to the left, the others to the right.
+fn print_table(header: &[String], cells: &[Vec<String>]) {
+    let widths: Vec<usize> = (0..header.len())
+        .map(|j| {
+            cells
+                .iter()
+                .map(|c| c[j].len())
+                .chain([header[j].len()])
+                .max()
+                .unwrap_or(0)
+        })
+        .collect();
+    let line = |c: &[String]| {
+        c.iter()
+            .zip(&widths)
+            .enumerate()
+            .map(|(j, (s, w))| {
+                if j == 0 {
+                    format!("{s:<w$}")
+                } else {
+                    format!("{s:>w$}")
+                }
+            })
+            .collect::<Vec<_>>()
+            .join("  ")
+    };
+    out!("{}", line(header));
+    for c in cells {
+        out!("{}", line(c));
+    }
+}
+
+/// A figure key as part of a file name: letters, digits and `_`, anything else `_`.
+fn file_stem(key: &str) -> String {
+    key.chars()
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || c == '_' {
+                c
+            } else {
+                '_'
+            }
+        })
+        .collect()
 }
 
 fn number(v: f64) -> String {
@@ -341,16 +398,7 @@ fn write_files(
             .flatten()
             .filter(|v| v.is_finite())
             .collect();
-        let stem: String = k
-            .chars()
-            .map(|c| {
-                if c.is_ascii_alphanumeric() || c == '_' {
-                    c
-                } else {
-                    '_'
-                }
-            })
-            .collect();
+        let stem = file_stem(k);
         let what = pretty(k);
         let x = Axis::described(&what);
         let limits: Vec<&Spec> = specs.iter().filter(|p| p.key == *k).collect();
@@ -477,6 +525,200 @@ fn write_files(
         }
         write_whole(&dir.join(format!("family_{stem}.csv")), csv.as_bytes())?;
         draw(&dir.join(format!("family_{stem}")), &fig)?;
+    }
+    Ok(())
+}
+
+/// The corner report: per corner its label, drawn values, figures, each limit met or not and
+/// its error; the corners that fail a limit.
+fn corners_json(
+    list: &[Corner],
+    rows: &[SampleRow],
+    specs: &[Spec],
+    k: f64,
+    all_combinations: bool,
+) -> serde_json::Value {
+    let items: Vec<serde_json::Value> = list
+        .iter()
+        .zip(rows)
+        .map(|(c, r)| {
+            let mut m = serde_json::Map::new();
+            m.insert("corner".into(), serde_json::json!(r.sample));
+            m.insert("label".into(), serde_json::json!(c.label));
+            for (k, v) in r.draws.iter().chain(&r.figures) {
+                m.insert(k.clone(), serde_json::json!(v));
+            }
+            let met = spec_results(r, specs);
+            let limits: serde_json::Map<String, serde_json::Value> = specs
+                .iter()
+                .zip(&met)
+                .map(|(s, ok)| (s.text.clone(), serde_json::json!(ok)))
+                .collect();
+            m.insert("meets".into(), serde_json::Value::Object(limits));
+            m.insert(
+                "meets_all".into(),
+                serde_json::json!(r.error.is_none() && met.iter().all(|b| *b)),
+            );
+            if let Some(e) = &r.error {
+                m.insert("error".into(), serde_json::json!(e));
+            }
+            serde_json::Value::Object(m)
+        })
+        .collect();
+    let failing: Vec<&str> = list
+        .iter()
+        .zip(rows)
+        .filter(|(_, r)| r.error.is_some() || !spec_results(r, specs).iter().all(|b| *b))
+        .map(|(c, _)| c.label.as_str())
+        .collect();
+    serde_json::json!({
+        "corners_sigma": k,
+        "all_combinations": all_combinations,
+        "local_spreads": "nominal",
+        "correlations": "ignored: each key moves along its own axis",
+        "specs": specs.iter().map(|s| s.text.clone()).collect::<Vec<_>>(),
+        "failing_corners": failing,
+        "corners": items,
+        "caution": super::CAUTION,
+    })
+}
+
+fn print_corners(list: &[Corner], rows: &[SampleRow], specs: &[Spec], k: f64) {
+    let failed = rows.iter().filter(|r| r.error.is_some()).count();
+    out!(
+        "{} corners at {k} standard deviations (local spreads at nominal, correlations \
+         ignored), {failed} failed",
+        list.len()
+    );
+    out!("");
+    let figures = figure_keys(rows);
+    let mut header: Vec<String> = std::iter::once("corner".to_string())
+        .chain(figures.iter().map(|f| label(f)))
+        .collect();
+    if !specs.is_empty() {
+        header.push("meets limits".into());
+    }
+    let cells: Vec<Vec<String>> = list
+        .iter()
+        .zip(rows)
+        .map(|(c, r)| {
+            let mut line = vec![c.label.clone()];
+            line.extend(column_values(r, &figures));
+            if !specs.is_empty() {
+                let fails: Vec<&str> = specs
+                    .iter()
+                    .zip(spec_results(r, specs))
+                    .filter(|(_, ok)| !ok)
+                    .map(|(s, _)| s.text.as_str())
+                    .collect();
+                line.push(match (&r.error, fails.is_empty()) {
+                    (Some(_), _) => "failed to run".into(),
+                    (None, true) => "yes".into(),
+                    (None, false) => format!("no: {}", fails.join(", ")),
+                });
+            }
+            line
+        })
+        .collect();
+    print_table(&header, &cells);
+    for (c, r) in list.iter().zip(rows) {
+        if let Some(e) = &r.error {
+            out!("{}: {e}", c.label);
+        }
+    }
+    out!("");
+    out!("({})", super::CAUTION);
+}
+
+/// A row's value of each key, formatted (empty where it has none).
+fn column_values(r: &SampleRow, keys: &[String]) -> Vec<String> {
+    keys.iter()
+        .map(|k| {
+            r.figures
+                .iter()
+                .find(|(f, _)| f == k)
+                .map_or(String::new(), |(_, v)| number(*v))
+        })
+        .collect()
+}
+
+/// `corners.csv` (a row per corner: position, label, drawn values, figures, each limit met,
+/// error), `corners.json`, and per figure a dot chart of its value at each corner, the corners
+/// that fail a limit apart and the limits drawn across.
+fn write_corner_files(
+    dir: &Path,
+    list: &[Corner],
+    rows: &[SampleRow],
+    specs: &[Spec],
+    report: &serde_json::Value,
+) -> Result<(), String> {
+    ensure_dir(dir)?;
+    let draws = draw_keys(rows);
+    let figures = figure_keys(rows);
+    let mut text = ["corner", "label"]
+        .into_iter()
+        .map(String::from)
+        .chain(draws.iter().chain(&figures).cloned())
+        .chain(specs.iter().map(|s| format!("meets {}", s.text)))
+        .chain(["error".to_string()])
+        .map(|h| csv_field(&h))
+        .collect::<Vec<_>>()
+        .join(",");
+    text.push('\n');
+    for (c, r) in list.iter().zip(rows) {
+        let mut cells = vec![r.sample.to_string(), csv_field(&c.label)];
+        for k in draws.iter().chain(&figures) {
+            let v = r.draws.iter().chain(&r.figures).find(|(d, _)| d == k);
+            cells.push(v.map_or(String::new(), |(_, v)| format!("{v:e}")));
+        }
+        cells.extend(spec_results(r, specs).iter().map(|b| b.to_string()));
+        cells.push(csv_field(r.error.as_deref().unwrap_or("")));
+        text.push_str(&cells.join(","));
+        text.push('\n');
+    }
+    write_whole(&dir.join("corners.csv"), text.as_bytes())?;
+    let json = serde_json::to_string_pretty(report).unwrap_or_default();
+    write_whole(&dir.join("corners.json"), json.as_bytes())?;
+    for k in &figures {
+        let what = pretty(k);
+        let mut fig = Figure::new(
+            &format!(
+                "{} at each corner (numbered as in corners.csv)",
+                what.split(" (").next().unwrap_or(&what)
+            ),
+            Axis::new("corner", ""),
+            Axis::described(&what),
+        );
+        let (mut pass, mut fail) = (Vec::new(), Vec::new());
+        for r in rows {
+            if let Some((_, v)) = r.figures.iter().find(|(f, _)| f == k) {
+                let ok = spec_results(r, specs).iter().all(|b| *b);
+                if ok { &mut pass } else { &mut fail }.push((r.sample as f64, *v));
+            }
+        }
+        let passing = if specs.is_empty() {
+            ""
+        } else {
+            "meets the limits"
+        };
+        for (name, pts) in [(passing, pass), ("fails a limit", fail)] {
+            if !pts.is_empty() {
+                let mut dots = Series::line(name, pts);
+                dots.style = crate::plot::Style::Points;
+                fig.series.push(dots);
+            }
+        }
+        let last = rows.len().saturating_sub(1) as f64;
+        for s in specs.iter().filter(|s| s.key == *k) {
+            let mut line = Series::line(
+                &format!("limit {}", s.text),
+                vec![(0.0, s.limit), (last, s.limit)],
+            );
+            line.markers = false;
+            fig.series.push(line);
+        }
+        let stem = file_stem(k);
+        draw(&dir.join(format!("corners_{stem}")), &fig)?;
     }
     Ok(())
 }
