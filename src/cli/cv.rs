@@ -300,8 +300,18 @@ fn series_of(r: &CvReport, f: impl Fn(&CvPoint) -> f64) -> Vec<(f64, f64)> {
 fn parts_figure(r: &CvReport) -> Figure {
     let d = &r.device;
     let vds = r.points.first().map_or(0.0, |p| p.vds_v);
+    // Far below threshold the channel's quantum capacitance falls through tens of decades; the
+    // figure keeps the four decades below C_ins that decide the series combination (the table
+    // and the CSV keep every value).
+    let floor = 1e-4 * d.insulator_f_per_m2;
+    let clip = |pts: Vec<(f64, f64)>| -> Vec<(f64, f64)> {
+        pts.into_iter().filter(|p| p.1 >= floor).collect()
+    };
     let mut f = Figure::new(
-        &format!("C-V at V_DS = {} V, parts at the source end", show(vds)),
+        &format!(
+            "C-V at V_DS = {} V, parts at the source end (down to 1e-4 C_ins)",
+            show(vds)
+        ),
         Axis::new("V_GS", "V"),
         Axis::log("capacitance per area", "F/m²"),
     );
@@ -311,7 +321,7 @@ fn parts_figure(r: &CvReport) -> Figure {
     ));
     f.series.push(Series::line(
         "C_gg intrinsic",
-        series_of(r, |p| p.intrinsic_gg_f_per_m2(d)),
+        clip(series_of(r, |p| p.intrinsic_gg_f_per_m2(d))),
     ));
     f.series.push(Series {
         style: Style::Dashed,
@@ -320,7 +330,7 @@ fn parts_figure(r: &CvReport) -> Figure {
     });
     f.series.push(Series::line(
         "C_Qch",
-        series_of(r, |p| p.channel_quantum_f_per_m2),
+        clip(series_of(r, |p| p.channel_quantum_f_per_m2)),
     ));
     if d.metal_gate {
         f.series.push(Series {
