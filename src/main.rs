@@ -43,6 +43,8 @@ enum Job {
     /// A file's analyses over random samples of its declared spreads: statistics, yield
     /// against limits, and the spreads that drive each figure.
     Montecarlo(cli::montecarlo::Args),
+    /// Put the shards of `montecarlo --shard K/N` together into the report of the whole run.
+    MontecarloMerge(cli::montecarlo_merge::Args),
     /// Run every analysis a circuit file declares.
     Run(cli::run::Args),
     /// The material library: channels, insulators and gates with values, units and sources.
@@ -66,6 +68,7 @@ fn main() -> ExitCode {
         Job::Delay(a) => cli::delay::run(a),
         Job::Sweep(a) => cli::sweep::run(a),
         Job::Montecarlo(a) => cli::montecarlo::run(a),
+        Job::MontecarloMerge(a) => cli::montecarlo_merge::run(a),
         Job::Run(a) => cli::run::run(a),
         Job::Materials(a) => cli::materials::run(a),
         Job::Extract(a) => cli::extract::run(a),

@@ -286,6 +286,53 @@ fn draw_key(v: &lamina_netlist::Variation, device: Option<&str>) -> String {
     })
 }
 
+/// Most shards a run may be split into.
+pub const MAX_SHARDS: usize = 10_000;
+
+/// The samples of shard `k` of `n` (counted from 1) of a run of `runs`:
+/// `[floor((k - 1) runs / n), floor(k runs / n))`. The shards cover `0..runs` once, in order,
+/// and differ in size by at most one sample; a shard may be empty when `n > runs`.
+pub fn shard_range(k: usize, n: usize, runs: usize) -> std::ops::Range<usize> {
+    let at = |i: usize| (i as u128 * runs as u128 / n.max(1) as u128) as usize;
+    at(k.saturating_sub(1))..at(k)
+}
+
+/// A 64-bit hash of byte strings that is the same on every machine and every Rust release
+/// (std's `DefaultHasher` promises neither): each string's length and then its bytes go
+/// through the SplitMix64 finaliser ([`mix`]) one at a time, so `["ab", "c"]` and
+/// `["a", "bc"]` differ. It identifies inputs against accidental mismatch; it is not meant
+/// to resist deliberate collisions.
+pub fn stable_hash<'a>(pieces: impl IntoIterator<Item = &'a [u8]>) -> u64 {
+    pieces.into_iter().fold(mix(0), |h, p| {
+        p.iter()
+            .fold(mix(h ^ p.len() as u64), |h, &b| mix(h ^ u64::from(b)))
+    })
+}
+
+/// The hash of what a run's rows depend on, as 16 hex digits: the text of every file the
+/// design read (in load order; paths left out, so the same files elsewhere hash the same), the
+/// `--set` values, the seed, the number of runs and the limits. Threads are left out: the rows
+/// do not depend on them.
+pub fn inputs_hash(
+    design: &Design,
+    sets: &[(String, String)],
+    seed: u64,
+    runs: usize,
+    specs: &[String],
+) -> String {
+    let sources = &design.sources;
+    let texts = (0..sources.len()).map(|i| sources.text(i).as_bytes());
+    let sets = sets.iter().flat_map(|(k, v)| [k.as_bytes(), v.as_bytes()]);
+    let (seed, runs) = (seed.to_le_bytes(), (runs as u64).to_le_bytes());
+    let tail = [b"seed".as_slice(), &seed, b"runs", &runs]
+        .into_iter()
+        .chain(specs.iter().map(|s| s.as_bytes()));
+    format!(
+        "{:016x}",
+        stable_hash(texts.chain([b"sets".as_slice()]).chain(sets).chain(tail))
+    )
+}
+
 /// One sample's drawn values, figures, or error.
 #[derive(Clone, Debug, PartialEq)]
 pub struct SampleRow {

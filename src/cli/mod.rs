@@ -12,6 +12,7 @@ pub mod fit;
 pub mod iv;
 pub mod materials;
 pub mod montecarlo;
+pub mod montecarlo_merge;
 pub mod ring;
 pub mod run;
 pub mod small_signal;

@@ -4,13 +4,15 @@
 //! of this command rather than a command of its own, as corners share the file, its spreads,
 //! the limits, the threads and the run path with the samples).
 
+use super::montecarlo_merge::{parse_shard, Part, PART_FILE};
 use super::sweep::csv_field;
 use super::Common;
 use crate::design;
 use crate::error::JobError;
 use crate::montecarlo::{
-    column, corners, draw_keys, drivers, figure_keys, parse_spec, run_corners, run_samples,
-    spec_results, stats, yield_of, Corner, SampleRow, Spec, Stats, Yield, MAX_RUNS,
+    column, corners, draw_keys, drivers, figure_keys, inputs_hash, parse_spec, run_corners,
+    run_samples, shard_range, spec_results, stats, yield_of, Corner, SampleRow, Spec, Stats, Yield,
+    MAX_RUNS,
 };
 use crate::out;
 use crate::output::{ensure_dir, write_whole, OutputSet};
@@ -42,6 +44,11 @@ pub struct Args {
     /// number of threads.
     #[arg(long, value_name = "S", default_value_t = 1)]
     pub seed: u64,
+    /// Run only shard K of N of the samples (`[floor((K-1) R / N), floor(K R / N))` of
+    /// `--runs R`) and write the partial result (`DIR/part.json` with `--out DIR`, else JSON
+    /// on stdout; JSON either way), for `lamina montecarlo-merge` to put together.
+    #[arg(long, value_name = "K/N", conflicts_with = "corners")]
+    pub shard: Option<String>,
     /// Threads to run samples on (default: one per core).
     #[arg(long, value_name = "T")]
     pub threads: Option<usize>,
@@ -63,11 +70,13 @@ pub fn run(a: Args) -> Result<(), JobError> {
         corners: corner_k,
         all_combinations,
         seed,
+        shard,
         threads,
         spec,
         common: Common { set, json, out },
     } = a;
     let runs = runs.unwrap_or(0);
+    let shard = shard.as_deref().map(parse_shard).transpose()?;
     if all_combinations && corner_k.is_none() {
         return Err(JobError::Usage(
             "--all-combinations combines corners: give it with --corners K".into(),
@@ -143,16 +152,77 @@ pub fn run(a: Args) -> Result<(), JobError> {
         }
         return Ok(());
     }
+    if let Some((k, n)) = shard {
+        // A shard keeps the family curves whatever its flags, so a merge can draw them.
+        let range = shard_range(k, n, runs);
+        let rows = on_pool(&|| {
+            run_samples(
+                &file,
+                &sets,
+                &nominal,
+                range.clone(),
+                seed,
+                true,
+                FAMILY_CURVES,
+            )
+        });
+        let part = Part {
+            lamina_version: env!("CARGO_PKG_VERSION").to_string(),
+            inputs_hash: inputs_hash(&nominal, &sets, seed, runs, &spec),
+            file: file.display().to_string(),
+            seed,
+            runs,
+            specs: spec,
+            shard: k,
+            shards: n,
+            rows,
+        };
+        let text = serde_json::to_string(&part.to_json()).unwrap_or_default();
+        return match set_out {
+            Some(set) => {
+                write_whole(&set.dir().join(PART_FILE), text.as_bytes()).map_err(JobError::Io)?;
+                set.commit()?;
+                out!(
+                    "shard {k}/{n}: samples {}..{} of {runs} in {}",
+                    range.start,
+                    range.end,
+                    out.as_deref()
+                        .unwrap_or(Path::new(""))
+                        .join(PART_FILE)
+                        .display()
+                );
+                Ok(())
+            }
+            None => {
+                out!("{text}");
+                Ok(())
+            }
+        };
+    }
     let rows = on_pool(&|| run_samples(&file, &sets, &nominal, 0..runs, seed, true, keep));
-    let report = Report::new(&rows, &specs);
+    report(&rows, &specs, runs, seed, json, set_out)
+}
+
+/// The report of a run's rows (in sample order): statistics, yield and drivers computed once
+/// from all rows, then the `--out` files and the table or JSON. The run on one machine and
+/// `lamina montecarlo-merge` both end here, so a merge gives the same output.
+pub(crate) fn report(
+    rows: &[SampleRow],
+    specs: &[Spec],
+    runs: usize,
+    seed: u64,
+    json: bool,
+    set_out: Option<OutputSet>,
+) -> Result<(), JobError> {
+    let report = Report::new(rows, specs);
     if let Some(set) = set_out {
-        write_files(set.dir(), &rows, &report, &specs, seed).map_err(JobError::Io)?;
+        write_files(set.dir(), rows, &report, specs, seed).map_err(JobError::Io)?;
         set.commit()?;
     }
     if json {
-        out!("{}", report_json(&rows, &report, &specs, runs, seed));
+        out!("{}", report_json(rows, &report, specs, runs, seed));
     } else {
-        print_report(&report, &specs, runs, seed);
+        print_report(&report, specs, runs, seed);
     }
     Ok(())
 }
