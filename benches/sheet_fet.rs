@@ -24,26 +24,10 @@ fn card() -> SheetFetCard {
 /// polarities of V_DS, including the small-V_DS branch.
 #[divan::bench(sample_count = 200)]
 fn evaluate(bencher: divan::Bencher) {
-    let fet = SheetFet::new(&card()).unwrap();
-    let points: Vec<[f64; 3]> = (0..64)
-        .map(|k| {
-            let vg = -0.5 + 1.5 * ((k * 37) % 64) as f64 / 63.0;
-            let vd = -0.2 + 1.2 * ((k * 11) % 64) as f64 / 63.0;
-            [vd, vg, 0.0]
-        })
-        .collect();
-    let (mut f, mut q, mut df, mut dq) = ([0.0; 3], [0.0; 3], [0.0; 9], [0.0; 9]);
-    let ctx = EvalContext::dc();
-    let mut k = 0;
-    bencher.bench_local(|| {
-        let x = &points[k % points.len()];
-        k += 1;
-        fet.evaluate(
-            divan::black_box(x),
-            &ctx,
-            &mut Stamp::new(&mut f, &mut q, &mut df, &mut dq),
-        );
-        divan::black_box(f[0])
+    bench_points(bencher, |k| {
+        let vg = -0.5 + 1.5 * ((k * 37) % 64) as f64 / 63.0;
+        let vd = -0.2 + 1.2 * ((k * 11) % 64) as f64 / 63.0;
+        [vd, vg, 0.0]
     });
 }
 

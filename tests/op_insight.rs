@@ -5,7 +5,8 @@
 use lamina::op::{operating_point, OpReport};
 use lamina_engine::{DetailValue, OpParams, System};
 use lamina_netlist::{load_source, LoadOptions};
-use std::process::Command;
+
+mod common;
 
 fn report(text: &str) -> OpReport {
     let d = load_source("t.lam", text, &LoadOptions::default()).unwrap_or_else(|e| panic!("{e}"));
@@ -173,16 +174,7 @@ fn sheet_fet_regions() {
 /// End to end: `lamina run --json` and `--out` on the demo file.
 #[test]
 fn cli_reports_devices_and_writes_csv() {
-    let bin = env!("CARGO_BIN_EXE_lamina");
-    let out = Command::new(bin)
-        .args(["run", "netlists/demo/inverter-op.lam", "--json"])
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    let out = common::lamina_ok(&["run", "netlists/demo/inverter-op.lam", "--json"]);
     let j: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     let op = &j["analyses"][0];
     assert_eq!(op["devices"].as_array().unwrap().len(), 2);
@@ -194,16 +186,12 @@ fn cli_reports_devices_and_writes_csv() {
     assert!(p > 0.0 && (p + i).abs() < 1e-18, "{p} {i}");
     let dir = std::env::temp_dir().join(format!("lamina-op-{}", std::process::id()));
     let _ = std::fs::remove_dir_all(&dir);
-    let st = Command::new(bin)
-        .args(["run", "netlists/demo/inverter-op.lam", "--out"])
-        .arg(&dir)
-        .output()
-        .unwrap();
-    assert!(
-        st.status.success(),
-        "{}",
-        String::from_utf8_lossy(&st.stderr)
-    );
+    common::lamina_ok(&[
+        "run",
+        "netlists/demo/inverter-op.lam",
+        "--out",
+        dir.to_str().unwrap(),
+    ]);
     let devices = std::fs::read_to_string(dir.join("operating_point-1/devices.csv")).unwrap();
     assert_eq!(devices.lines().count(), 3);
     let header: Vec<&str> = devices.lines().next().unwrap().split(',').collect();
@@ -233,21 +221,13 @@ fn sweep_columns_of_an_operating_point() {
     );
     assert_eq!(label("operating_point.m.cgg_f"), "m.cgg (F)");
     assert_eq!(label("operating_point.supply.power_w"), "supply.power (W)");
-    let out = Command::new(env!("CARGO_BIN_EXE_lamina"))
-        .args([
-            "sweep",
-            "netlists/demo/inverter-op.lam",
-            "--param",
-            "n2d.electron_mobility=20,40cm^2/(V s)",
-            "--json",
-        ])
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    let out = common::lamina_ok(&[
+        "sweep",
+        "netlists/demo/inverter-op.lam",
+        "--param",
+        "n2d.electron_mobility=20,40cm^2/(V s)",
+        "--json",
+    ]);
     let text = String::from_utf8_lossy(&out.stdout);
     for key in [
         "operating_point.supply.power_w",

@@ -9,7 +9,8 @@ use lamina_measure::{crossings, Direction};
 use lamina_netlist::{load_source, ErrorKind, LoadOptions};
 use std::f64::consts::PI;
 use std::path::PathBuf;
-use std::process::Command;
+
+mod common;
 
 /// Loads `text` and runs its one small-signal analysis.
 fn small_signal(text: &str) -> SmallSignalReport {
@@ -260,21 +261,13 @@ analysis small_signal { source = drive, output = out, from = 1 kHz, to = 10 GHz,
 fn the_demo_runs_from_the_command_line() {
     let dir = temp_dir("cli");
     let out_dir = dir.join("result");
-    let out = Command::new(env!("CARGO_BIN_EXE_lamina"))
-        .args([
-            "run",
-            "netlists/demo/amplifier-small-signal.lam",
-            "--json",
-            "--out",
-        ])
-        .arg(&out_dir)
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    let out = common::lamina_ok(&[
+        "run",
+        "netlists/demo/amplifier-small-signal.lam",
+        "--json",
+        "--out",
+        out_dir.to_str().unwrap(),
+    ]);
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     let a = v["analyses"]
         .as_array()
@@ -411,10 +404,7 @@ fn a_singular_small_signal_matrix_is_exit_1_naming_the_node() {
         ),
     )
     .unwrap();
-    let out = Command::new(env!("CARGO_BIN_EXE_lamina"))
-        .args(["run", file.to_str().unwrap()])
-        .output()
-        .unwrap();
+    let out = common::lamina(&["run", file.to_str().unwrap()]);
     assert_eq!(out.status.code(), Some(1));
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(err.contains("node float"), "{err}");

@@ -1,7 +1,7 @@
 //! The general transient analysis end to end: the energy a source delivers to charge a
 //! capacitor through a resistor, and the node's mid-level crossing, against closed forms.
 
-use std::process::Command;
+mod common;
 
 /// Charging C through R from 0 to V with a step: the source delivers C V^2, half stored and
 /// half dissipated in R whatever R is (any circuits text, e.g. A. S. Sedra, K. C. Smith,
@@ -21,16 +21,14 @@ analysis transient { stop = 21 ns, record = [in, out], currents = [drive] }
     std::fs::create_dir_all(&dir).unwrap();
     let file = dir.join("rc.lam");
     std::fs::write(&file, text).unwrap();
-    let out = Command::new(env!("CARGO_BIN_EXE_lamina"))
-        .args(["run", file.to_str().unwrap(), "--json", "--out"])
-        .arg(dir.join("result"))
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    let result = dir.join("result");
+    let out = common::lamina_ok(&[
+        "run",
+        file.to_str().unwrap(),
+        "--json",
+        "--out",
+        result.to_str().unwrap(),
+    ]);
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     let a = &v["analyses"][0];
     let s = &a["supplies"][0];
@@ -89,15 +87,7 @@ fn crossings_do_not_depend_on_the_output_interval() {
             ),
         )
         .unwrap();
-        let out = Command::new(env!("CARGO_BIN_EXE_lamina"))
-            .args(["run", file.to_str().unwrap(), "--json"])
-            .output()
-            .unwrap();
-        assert!(
-            out.status.success(),
-            "{}",
-            String::from_utf8_lossy(&out.stderr)
-        );
+        let out = common::lamina_ok(&["run", file.to_str().unwrap(), "--json"]);
         let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
         let input = &v["analyses"][0]["crossings"][0];
         assert_eq!(input["node"], "in");
