@@ -341,3 +341,29 @@ fn cli_exit_codes_and_output_files() {
     }
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// The transfer-length method on the demo data (made with 300 Ohm um at each contact by
+/// `netlists/demo/data/make-demo-data.py`) finds the contacts within two standard errors: its
+/// equal overdrive uses the Y-function's threshold, which the series resistance does not move
+/// (Ghibaudo 1988); the linear extrapolation's threshold gave 387 Ohm um here.
+#[test]
+fn transfer_length_method_on_the_demo_data_finds_its_contacts() {
+    let out = lamina(&[
+        "extract",
+        "netlists/demo/data/n-device-curves.csv",
+        "--card",
+        "netlists/demo/n-device.lam",
+        "--floor",
+        "2pA",
+        "--json",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let j: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let rc = j["tlm"]["rc_w_ohm_m"].as_f64().unwrap();
+    let se = j["tlm"]["rc_w_se_ohm_m"].as_f64().unwrap();
+    assert!((rc - 300e-6).abs() < 2.0 * se, "{rc:e} +- {se:e}");
+}
