@@ -553,20 +553,9 @@ pub struct Spec {
     pub text: String,
 }
 
-/// The dimension a figure key's unit suffix names.
+/// The dimension a figure key's unit suffix names ([`lamina_netlist::units::figure_dim`]).
 pub fn key_dim(key: &str) -> Dim {
-    const SUFFIXES: &[(&str, Dim)] = &[
-        ("_hz", Dim::FREQUENCY),
-        ("_s", Dim::TIME),
-        ("_v", Dim::VOLTAGE),
-        ("_w", Dim::POWER),
-        ("_j", Dim::ENERGY),
-        ("_a", Dim::CURRENT),
-    ];
-    SUFFIXES
-        .iter()
-        .find(|(s, _)| key.ends_with(s))
-        .map_or(Dim::NONE, |(_, d)| *d)
+    lamina_netlist::units::figure_dim(key)
 }
 
 /// Parses `FIGURE>VALUE` or `FIGURE<VALUE`, the value with its unit as in circuit files
@@ -607,6 +596,32 @@ pub fn parse_spec(text: &str) -> Result<Spec, JobError> {
         limit: v.si,
         text: text.to_string(),
     })
+}
+
+/// The specs a design's `limit` statements declare, each bound its own spec, in file order,
+/// written as `--spec` would take them.
+pub fn specs_of_limits(limits: &[lamina_netlist::Limit]) -> Vec<Spec> {
+    let mut out = Vec::new();
+    for l in limits {
+        for (above, v) in [(true, l.above), (false, l.below)] {
+            if let Some(v) = v {
+                out.push(Spec {
+                    key: l.figure.clone(),
+                    above,
+                    limit: v,
+                    // In the `--spec` form, the value in SI written to round-trip, so a shard's
+                    // part can carry it and a merge read it back exactly.
+                    text: format!(
+                        "{}{}{v:e}{}",
+                        l.figure,
+                        if above { '>' } else { '<' },
+                        key_dim(&l.figure).unit().split(',').next().unwrap_or("")
+                    ),
+                });
+            }
+        }
+    }
+    out
 }
 
 /// Whether `value` meets the spec.

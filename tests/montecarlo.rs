@@ -554,3 +554,84 @@ analysis operating_point
     );
     assert!(r.abs() < 4.0 / 20.0, "devices a and b: {r}");
 }
+
+/// `limit` statements in the file count like `--spec` limits: the same yield, and a run split
+/// into shards and merged reports them identically (the parts carry them).
+#[test]
+fn file_limits_count_like_command_line_limits_and_survive_a_merge() {
+    let dir = std::env::temp_dir().join(format!("lamina-mc-limits-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    let demo = std::fs::canonicalize("netlists/demo/inverter-mc.lam").unwrap();
+    let file = dir.join("limited.lam");
+    std::fs::write(
+        &file,
+        format!(
+            "include \"{}\"\nlimit transfer.snm_v {{ above = 0.25 V }}\n",
+            demo.display()
+        ),
+    )
+    .unwrap();
+    let run = |args: &[&str]| {
+        let out = std::process::Command::new(env!("CARGO_BIN_EXE_lamina"))
+            .args(args)
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        serde_json::from_slice::<serde_json::Value>(&out.stdout).unwrap()
+    };
+    let f = file.to_str().unwrap();
+    let base = [
+        "montecarlo",
+        "--runs",
+        "30",
+        "--seed",
+        "4",
+        "--set",
+        "vdd=0.6V",
+        "--json",
+    ];
+    let mut with_file = base.to_vec();
+    with_file.insert(1, f);
+    let mut with_flag = base.to_vec();
+    let d = demo.to_str().unwrap();
+    with_flag.insert(1, d);
+    with_flag.extend(["--spec", "transfer.snm_v>0.25V"]);
+    let (a, b) = (run(&with_file), run(&with_flag));
+    assert_eq!(a["yield"]["pass"], b["yield"]["pass"]);
+    assert!(
+        a["yield"]["pass"].as_u64().unwrap() < 30,
+        "the limit must bite: {}",
+        a["yield"]
+    );
+    // Two shards merged give the single run's report.
+    let mut parts = Vec::new();
+    for k in ["1/2", "2/2"] {
+        let part = dir.join(format!("part-{}", &k[..1]));
+        let mut args = with_file.clone();
+        args.pop();
+        args.extend(["--shard", k, "--out", part.to_str().unwrap()]);
+        let out = std::process::Command::new(env!("CARGO_BIN_EXE_lamina"))
+            .args(&args)
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        parts.push(part);
+    }
+    let merged = run(&[
+        "montecarlo-merge",
+        parts[0].to_str().unwrap(),
+        parts[1].to_str().unwrap(),
+        "--json",
+    ]);
+    assert_eq!(merged, a);
+    let _ = std::fs::remove_dir_all(dir);
+}

@@ -92,7 +92,7 @@ pub fn run(a: Args) -> Result<(), JobError> {
             "--threads 0: give at least one thread".into(),
         ));
     }
-    let specs: Vec<Spec> = spec
+    let mut specs: Vec<Spec> = spec
         .iter()
         .map(|s| parse_spec(s))
         .collect::<Result<_, _>>()?;
@@ -108,6 +108,10 @@ pub fn run(a: Args) -> Result<(), JobError> {
             file.display()
         )));
     }
+    // The file's own limits come first, then those of the command line.
+    let mut all = crate::montecarlo::specs_of_limits(&nominal.limits);
+    all.append(&mut specs);
+    let specs = all;
     let results = design::run_all(&file, &sets, &crate::ring::RingParams::default(), None)?;
     let known: Vec<String> = crate::montecarlo::figures_of(&results)
         .into_iter()
@@ -172,7 +176,8 @@ pub fn run(a: Args) -> Result<(), JobError> {
             file: file.display().to_string(),
             seed,
             runs,
-            specs: spec,
+            // Every limit, the file's included, so that a merge needs no circuit file.
+            specs: specs.iter().map(|s| s.text.clone()).collect(),
             shard: k,
             shards: n,
             rows,

@@ -207,6 +207,18 @@ pub enum Stmt {
         /// The header.
         span: Span,
     },
+    /// `limit analysis.figure { above = ..., below = ... }`: a specification limit on a figure
+    /// the analyses report (for yield in variability runs).
+    Limit {
+        /// The analysis kind (`transfer`, `ring`, ...).
+        analysis: Ident,
+        /// The figure's key with its unit suffix (`snm_v`, `frequency_hz`).
+        figure: Ident,
+        /// Its settings.
+        params: Vec<Assign>,
+        /// The header.
+        span: Span,
+    },
     /// `correlation card { keys = [a, b], coefficient = c }`: correlated draws of two varied
     /// keys of one card.
     Correlation {

@@ -20,6 +20,7 @@ const KEYWORDS: &[&str] = &[
     "analysis",
     "variation",
     "correlation",
+    "limit",
 ];
 
 struct Parser<'a> {
@@ -245,7 +246,7 @@ impl<'a> Parser<'a> {
 
     fn statement(&mut self) -> PResult<Stmt> {
         let Tok::Ident(word) = self.peek().clone() else {
-            self.error_here("a statement (`param`, `device`, `cell`, `for`, `include`, `analysis`, `variation`, `correlation` or an instance)");
+            self.error_here("a statement (`param`, `device`, `cell`, `for`, `include`, `analysis`, `variation`, `correlation`, `limit` or an instance)");
             return Err(());
         };
         let start = self.span();
@@ -346,6 +347,20 @@ impl<'a> Parser<'a> {
                 Ok(Stmt::Variation {
                     card,
                     key,
+                    params,
+                    span,
+                })
+            }
+            "limit" => {
+                self.bump();
+                let analysis = self.ident("an analysis kind, such as `transfer`")?;
+                self.expect_punct(".")?;
+                let figure = self.ident("a figure with its unit, such as `snm_v`")?;
+                let span = start.to(figure.span);
+                let params = self.assignments()?;
+                Ok(Stmt::Limit {
+                    analysis,
+                    figure,
                     params,
                     span,
                 })

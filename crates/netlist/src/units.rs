@@ -393,3 +393,23 @@ mod engineering_tests {
         assert_eq!(engineering(999.99996, "V"), "1 kV");
     }
 }
+
+/// The dimension a figure key's unit suffix names, by the convention of every report's keys:
+/// `_hz` frequency, `_s` time, `_v` voltage, `_w` power, `_j` energy, `_a` current, `_f`
+/// capacitance, `_siemens` conductance; a pure number otherwise (`gain_max`).
+pub fn figure_dim(key: &str) -> Dim {
+    const SUFFIXES: &[(&str, Dim)] = &[
+        ("_hz", Dim::FREQUENCY),
+        ("_siemens", Dim::CONDUCTANCE),
+        ("_s", Dim::TIME),
+        ("_v", Dim::VOLTAGE),
+        ("_w", Dim::POWER),
+        ("_j", Dim::ENERGY),
+        ("_a", Dim::CURRENT),
+        ("_f", Dim::CAPACITANCE),
+    ];
+    SUFFIXES
+        .iter()
+        .find(|(s, _)| key.ends_with(s))
+        .map_or(Dim::NONE, |(_, d)| *d)
+}

@@ -27,10 +27,12 @@ impl<'s> Elaborator<'s> {
                     *span,
                     "analyses belong at the top level, not inside a cell".into(),
                 ),
-                Stmt::Variation { span, .. } | Stmt::Correlation { span, .. } => self.err(
+                Stmt::Variation { span, .. }
+                | Stmt::Correlation { span, .. }
+                | Stmt::Limit { span, .. } => self.err(
                     ErrorKind::Expected,
                     *span,
-                    "variations belong at the top level, not inside a cell".into(),
+                    "variations and limits belong at the top level, not inside a cell".into(),
                 ),
                 Stmt::For { body, .. } => self.check_cell_body(body),
                 _ => {}
@@ -120,10 +122,12 @@ impl<'s> Elaborator<'s> {
                 *span,
                 "analyses belong at the top level".into(),
             ),
-            Stmt::Variation { span, .. } | Stmt::Correlation { span, .. } => self.err(
+            Stmt::Variation { span, .. }
+            | Stmt::Correlation { span, .. }
+            | Stmt::Limit { span, .. } => self.err(
                 ErrorKind::Expected,
                 *span,
-                "variations belong at the top level, outside loops and cells".into(),
+                "variations and limits belong at the top level, outside loops and cells".into(),
             ),
             Stmt::Cell { .. } | Stmt::Device { .. } | Stmt::Include { .. } => {}
         }

@@ -21,7 +21,8 @@ pub use analyses::{
 };
 pub use files::{DiskReader, FileReader, ReadError};
 pub use variation::{
-    cholesky, AreaScaling, Distribution, Group, Perturb, Perturbation, Scope, Variation, Variations,
+    cholesky, AreaScaling, Distribution, Group, Limit, Perturb, Perturbation, Scope, Variation,
+    Variations,
 };
 
 use crate::ast::*;
@@ -113,6 +114,9 @@ pub struct Design {
     pub warnings: Vec<Diagnostic>,
     /// Declared spreads of card keys (`variation` and `correlation` statements).
     pub variations: Variations,
+    /// Specification limits on figures (`limit transfer.snm_v { above = 0.1 V }`), in file
+    /// order.
+    pub limits: Vec<variation::Limit>,
     /// The resolved card of each 2D-channel FET, by element position (shared between the
     /// instances of a card that change nothing).
     sheet_cards: BTreeMap<usize, SheetCard>,
@@ -261,6 +265,7 @@ pub fn load_with(
         summary,
         warnings,
         variations: e.declared_variations,
+        limits: e.declared_limits,
         sheet_cards: e.sheet_cards,
     })
 }
@@ -311,6 +316,7 @@ struct Elaborator<'s> {
     max_voltage: f64,
     /// Declared spreads, read after the circuit is complete.
     declared_variations: Variations,
+    declared_limits: Vec<variation::Limit>,
     /// Values for the devices of varied cards, if this load is a sample.
     perturbation: Option<Perturb>,
 }
@@ -350,6 +356,7 @@ impl<'s> Elaborator<'s> {
             cell_costs: HashMap::new(),
             costing: Vec::new(),
             declared_variations: Variations::default(),
+            declared_limits: Vec::new(),
             perturbation: None,
         }
     }
@@ -552,6 +559,7 @@ impl<'s> Elaborator<'s> {
                 | Stmt::Device { .. }
                 | Stmt::Variation { .. }
                 | Stmt::Correlation { .. }
+                | Stmt::Limit { .. }
                 | Stmt::Include { .. } => {}
                 Stmt::Analysis { kind, params, span } => {
                     self.analysis(kind, params, *span, &frames)
@@ -563,6 +571,7 @@ impl<'s> Elaborator<'s> {
         // they would mostly repeat them.
         if self.diags.is_empty() {
             self.variations(stmts, &frames[0]);
+            self.limits(stmts, &frames[0]);
             self.check_analyses();
             self.plausibility_warnings();
         }

@@ -128,6 +128,20 @@ pub struct Group {
     pub cholesky: Vec<Vec<f64>>,
 }
 
+/// A specification limit a design declares: `limit transfer.snm_v { above = 0.1 V }`. The
+/// figure must be above `above` and below `below` (at least one is given), in SI units.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Limit {
+    /// The figure's key, `analysis.figure` as the reports name it (`transfer.snm_v`).
+    pub figure: String,
+    /// Lower limit (the figure must exceed it).
+    pub above: Option<f64>,
+    /// Upper limit (the figure must stay below it).
+    pub below: Option<f64>,
+    /// Where it is declared.
+    pub span: Span,
+}
+
 /// Every spread a design declares.
 #[derive(Clone, Debug, PartialEq, Default)]
 pub struct Variations {
@@ -173,6 +187,95 @@ const DISTRIBUTIONS: &[(&str, &[&str])] = &[
 ];
 
 impl<'s> Elaborator<'s> {
+    /// Reads every top-level `limit`: settings `above` and `below` (one at least), each of the
+    /// dimension the figure's unit suffix names (`_v` a voltage, `_hz` a frequency, none a pure
+    /// number), `above < below` when both are given.
+    pub(super) fn limits(&mut self, stmts: &[Stmt], top: &Frame) {
+        for s in stmts {
+            let Stmt::Limit {
+                analysis,
+                figure,
+                params,
+                span,
+            } = s
+            else {
+                continue;
+            };
+            let key = format!("{}.{}", analysis.name, figure.name);
+            let want = crate::units::figure_dim(&figure.name);
+            let mut limit = Limit {
+                figure: key.clone(),
+                above: None,
+                below: None,
+                span: *span,
+            };
+            let mut ok = self.settings_once(params);
+            for a in params {
+                let slot = match a.name.name.as_str() {
+                    "above" => &mut limit.above,
+                    "below" => &mut limit.below,
+                    other => {
+                        self.diags.push(
+                            Diagnostic::new(
+                                ErrorKind::Unknown,
+                                a.name.span,
+                                format!("a limit has no setting `{other}`"),
+                            )
+                            .with_help("its settings are `above` and `below`"),
+                        );
+                        ok = false;
+                        continue;
+                    }
+                };
+                let Some(q) = self.eval(&a.value, &[top]) else {
+                    ok = false;
+                    continue;
+                };
+                if q.dim != want && !(q.v == 0.0 && q.dim == Dim::NONE) {
+                    self.diags.push(
+                        Diagnostic::new(
+                            if q.dim == Dim::NONE {
+                                ErrorKind::MissingUnit
+                            } else {
+                                ErrorKind::UnitMismatch
+                            },
+                            a.value.span(),
+                            format!(
+                                "`{key}` is {} (its unit suffix says so), but this limit is {}",
+                                want.describe(),
+                                q.dim.describe()
+                            ),
+                        )
+                        .with_help(format!(
+                            "such as `{} = {}`",
+                            a.name.name,
+                            want.example()
+                        )),
+                    );
+                    ok = false;
+                    continue;
+                }
+                *slot = Some(q.v);
+            }
+            if !ok {
+                continue;
+            }
+            match (limit.above, limit.below) {
+                (None, None) => self.err(
+                    ErrorKind::BadValue,
+                    *span,
+                    format!("the limit on `{key}` needs `above`, `below` or both"),
+                ),
+                (Some(a), Some(b)) if a >= b => self.err(
+                    ErrorKind::BadValue,
+                    *span,
+                    format!("the limit on `{key}` is empty: `above` must be less than `below`"),
+                ),
+                _ => self.declared_limits.push(limit),
+            }
+        }
+    }
+
     /// Reads every top-level `variation` and `correlation` against the device cards.
     pub(super) fn variations(&mut self, stmts: &[Stmt], top: &Frame) {
         let mut out = Variations::default();
