@@ -884,14 +884,16 @@ pub fn spearman(x: &[f64], y: &[f64]) -> Option<f64> {
 /// first.
 pub fn drivers(rows: &[SampleRow]) -> Vec<(String, Vec<(String, f64)>)> {
     let draws = draw_keys(rows);
+    // Each drawn value's column once, not once per figure.
+    let dcols: Vec<Vec<Option<f64>>> = draws.iter().map(|d| column(rows, d)).collect();
     figure_keys(rows)
         .into_iter()
         .map(|f| {
             let fy = column(rows, &f);
             let mut list: Vec<(String, f64)> = draws
                 .iter()
-                .filter_map(|d| {
-                    let dx = column(rows, d);
+                .zip(&dcols)
+                .filter_map(|(d, dx)| {
                     let (x, y): (Vec<f64>, Vec<f64>) = dx
                         .iter()
                         .zip(&fy)

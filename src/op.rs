@@ -98,20 +98,9 @@ pub fn operating_point(sys: &mut System) -> Result<OpReport, String> {
 }
 
 fn report(sys: &System, x: &[f64], info: OpInfo) -> Result<OpReport, String> {
-    let circuit_nodes: Vec<String> = (0..sys.unknown_count())
-        .filter_map(|i| {
-            sys.unknown_name(i)
-                .strip_prefix("node ")
-                .map(str::to_string)
-        })
-        .collect();
-    let nodes = circuit_nodes
-        .into_iter()
-        .map(|n| {
-            let id = sys.find_node(&n).expect("named by the system");
-            let v = sys.node_unknown(id).map_or(0.0, |i| x[i]);
-            (n, v)
-        })
+    let nodes = sys
+        .node_voltages(x)
+        .map(|(n, v)| (n.to_string(), v))
         .collect();
     let mut sources = Vec::new();
     let mut devices = Vec::new();
@@ -142,8 +131,7 @@ fn report(sys: &System, x: &[f64], info: OpInfo) -> Result<OpReport, String> {
                 cdg: -c[1],
             });
             let details = sys
-                .element_details(x, e)
-                .map_err(|err| err.to_string())?
+                .element_details(e, &lin)
                 .into_iter()
                 .map(|d| (d.name, d.value))
                 .collect();

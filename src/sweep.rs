@@ -177,21 +177,14 @@ pub fn columns(rows: &[Row]) -> Vec<String> {
 /// A key's quantity and unit for a table header: `transfer.vm_v` -> `transfer.vm (V)`,
 /// `operating_point.out[3]_v` -> `node out[3] (V)`.
 pub fn label(key: &str) -> String {
-    const UNITS: &[(&str, &str)] = &[
-        ("_hz", " (Hz)"),
-        ("_siemens", " (S)"),
-        ("_f", " (F)"),
-        ("_s", " (s)"),
-        ("_v", " (V)"),
-        ("_w", " (W)"),
-        ("_j", " (J)"),
-        ("_a", " (A)"),
-    ];
     let (kind, rest) = key.split_once('.').unwrap_or(("", key));
-    let (name, unit) = UNITS
-        .iter()
-        .find_map(|(s, u)| rest.strip_suffix(s).map(|n| (n.to_string(), u.to_string())))
-        .unwrap_or((rest.to_string(), String::new()));
+    let (name, unit) = match lamina_netlist::units::figure_suffix(rest) {
+        Some((suffix, dim)) => (
+            rest[..rest.len() - suffix.len()].to_string(),
+            format!(" ({})", dim.unit().split(',').next().unwrap_or("")),
+        ),
+        None => (rest.to_string(), String::new()),
+    };
     if kind == "operating_point" && rest.ends_with("_v") {
         format!("node {name}{unit}")
     } else if kind == "operating_point" || kind.is_empty() {

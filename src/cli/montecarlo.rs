@@ -406,18 +406,6 @@ fn print_table(header: &[String], cells: &[Vec<String>]) {
 }
 
 /// A figure key as part of a file name: letters, digits and `_`, anything else `_`.
-fn file_stem(key: &str) -> String {
-    key.chars()
-        .map(|c| {
-            if c.is_ascii_alphanumeric() || c == '_' {
-                c
-            } else {
-                '_'
-            }
-        })
-        .collect()
-}
-
 fn number(v: f64) -> String {
     let v = if v == 0.0 { 0.0 } else { v };
     format!("{v:.5e}")
@@ -467,13 +455,14 @@ fn write_files(
         m.remove("samples");
     }
     write_whole(&dir.join("summary.json"), json(summary).as_bytes())?;
+    let mut stems = super::sweep::Stems::default();
     for (k, s) in &r.figures {
         let values: Vec<f64> = column(rows, k)
             .into_iter()
             .flatten()
             .filter(|v| v.is_finite())
             .collect();
-        let stem = file_stem(k);
+        let stem = stems.unique(k);
         let what = pretty(k);
         let x = Axis::described(&what);
         let limits: Vec<&Spec> = specs.iter().filter(|p| p.key == *k).collect();
@@ -754,6 +743,7 @@ fn write_corner_files(
     write_whole(&dir.join("corners.csv"), text.as_bytes())?;
     let json = serde_json::to_string_pretty(report).unwrap_or_default();
     write_whole(&dir.join("corners.json"), json.as_bytes())?;
+    let mut stems = super::sweep::Stems::default();
     for k in &figures {
         let what = pretty(k);
         let mut fig = Figure::new(
@@ -792,7 +782,7 @@ fn write_corner_files(
             line.markers = false;
             fig.series.push(line);
         }
-        let stem = file_stem(k);
+        let stem = stems.unique(k);
         draw(&dir.join(format!("corners_{stem}")), &fig)?;
     }
     Ok(())

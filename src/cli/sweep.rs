@@ -261,10 +261,10 @@ pub(crate) fn csv_field(s: &str) -> String {
 /// appended when two keys map to one stem (`out[3]_v` and `out_3__v` cannot overwrite each
 /// other's plots).
 #[derive(Default)]
-struct Stems(std::collections::HashSet<String>);
+pub(crate) struct Stems(std::collections::HashSet<String>);
 
 impl Stems {
-    fn unique(&mut self, key: &str) -> String {
+    pub(crate) fn unique(&mut self, key: &str) -> String {
         let base: String = key
             .chars()
             .map(|c| {

@@ -294,15 +294,19 @@ impl System {
         })
     }
 
-    /// The element's extra operating-point quantities at the solution `x`
-    /// ([`crate::Element::details`]).
+    /// The element's extra operating-point quantities ([`crate::Element::details`]) at the
+    /// local unknowns of its linearisation (no second evaluation).
     pub fn element_details(
         &self,
-        x: &[f64],
         element: ElementId,
-    ) -> Result<Vec<crate::element::Detail>, EngineError> {
-        let lin = self.element_linearization(x, element)?;
-        Ok(self.elements[element.index()].details(&lin.x))
+        lin: &ElementLinearization,
+    ) -> Vec<crate::element::Detail> {
+        self.elements[element.index()].details(&lin.x)
+    }
+
+    /// Every node but ground with its voltage in the solution `x`, in creation order.
+    pub fn node_voltages<'a>(&'a self, x: &'a [f64]) -> impl Iterator<Item = (&'a str, f64)> {
+        (0..self.n_nodes).map(move |i| (self.node_names[i + 1].as_str(), x[i]))
     }
 
     /// Every element, in circuit order.

@@ -227,7 +227,7 @@ pub struct System {
     pub(crate) elements: Vec<Box<dyn Element>>,
     element_names: Vec<String>,
     element_pins: Vec<Vec<NodeId>>,
-    node_names: Vec<String>,
+    pub(crate) node_names: Vec<String>,
     pub(crate) n: usize,
     pub(crate) n_nodes: usize,
     pub(crate) kinds: Vec<UnknownKind>,

@@ -107,14 +107,15 @@ pub fn did_you_mean<'a>(
     {
         return Some(format!("did you mean `{c}`?"));
     }
+    // Compared without case, so a misspelling in the wrong case (`Mos3`) still finds `MoS2`.
+    let lower = name.to_lowercase();
     for c in candidates {
         if c == name {
             continue;
         }
-        // Compared without case, so a misspelling in the wrong case (`Mos3`) still finds `MoS2`.
-        let (a, b) = (name.to_lowercase(), c.to_lowercase());
-        let d = strsim::osa_distance(&a, &b);
-        let jw = strsim::jaro_winkler(&a, &b);
+        let b = c.to_lowercase();
+        let d = strsim::osa_distance(&lower, &b);
+        let jw = strsim::jaro_winkler(&lower, &b);
         if d <= limit || jw > 0.88 {
             let better = match best {
                 None => true,

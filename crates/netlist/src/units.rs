@@ -398,6 +398,12 @@ mod engineering_tests {
 /// `_hz` frequency, `_s` time, `_v` voltage, `_w` power, `_j` energy, `_a` current, `_f`
 /// capacitance, `_siemens` conductance; a pure number otherwise (`gain_max`).
 pub fn figure_dim(key: &str) -> Dim {
+    figure_suffix(key).map_or(Dim::NONE, |(_, d)| d)
+}
+
+/// The unit suffix of a figure key and the dimension it names (see [`figure_dim`]), or `None`
+/// for a pure number.
+pub fn figure_suffix(key: &str) -> Option<(&'static str, Dim)> {
     const SUFFIXES: &[(&str, Dim)] = &[
         ("_hz", Dim::FREQUENCY),
         ("_siemens", Dim::CONDUCTANCE),
@@ -408,8 +414,5 @@ pub fn figure_dim(key: &str) -> Dim {
         ("_a", Dim::CURRENT),
         ("_f", Dim::CAPACITANCE),
     ];
-    SUFFIXES
-        .iter()
-        .find(|(s, _)| key.ends_with(s))
-        .map_or(Dim::NONE, |(_, d)| *d)
+    SUFFIXES.iter().find(|(s, _)| key.ends_with(s)).copied()
 }

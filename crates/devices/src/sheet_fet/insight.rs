@@ -24,8 +24,9 @@ impl SheetFet {
     /// Densities at both channel ends and the operating region at local unknowns `x`
     /// (terminals drain, gate, source, then the internal contact nodes).
     pub(crate) fn insight(&self, x: &[f64]) -> Vec<Detail> {
-        let (di, si) = self.layout();
-        let (vd, vg, vs) = (x[di.unwrap_or(0)], x[1], x[si.unwrap_or(2)]);
+        let (Some((vd, vs)), Some(&vg)) = (self.channel_voltages(x), x.get(1)) else {
+            return Vec::new();
+        };
         let model = &self.model;
         let at_s = model.local_state(vg - vs);
         let at_d = model.local_state(vg - vd);

@@ -529,8 +529,7 @@ impl<'s> Elaborator<'s> {
             }
         }
         for (card, span) in card_order {
-            if card_sets.contains_key(&card) {
-                card_sets.remove(&card);
+            if card_sets.remove(&card).is_some() {
                 let mut cards: Vec<&str> = self.devices.keys().map(String::as_str).collect();
                 cards.sort_unstable();
                 let help = match did_you_mean(&card, cards.iter().copied()) {
