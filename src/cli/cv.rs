@@ -1,11 +1,12 @@
 //! `lamina cv`: gate capacitances of a file's one 2D-channel FET over gate voltages at one
 //! drain voltage, and the parts of its gate stack (see [`crate::cv`] for the definitions).
 
+use super::iv::num;
 use super::{Common, CAUTION};
 use crate::cv::{run_cv, CvDevice, CvPoint, CvReport, CV_DEFINITIONS};
 use crate::design;
 use crate::error::JobError;
-use crate::iv::{show, unsigned_zero};
+use crate::iv::show;
 use crate::output::{csv, ensure_dir, write_whole, OutputSet};
 use crate::plot::{draw, Axis, Figure, Series, Style};
 use crate::{note, out};
@@ -81,10 +82,6 @@ pub fn run(a: Args) -> Result<(), JobError> {
         }
     }
     Ok(())
-}
-
-fn num(x: f64) -> Value {
-    json!(unsigned_zero(x))
 }
 
 /// The device, the stack's constants, the definitions and what is not reported, as JSON.
@@ -173,15 +170,11 @@ const FF_PER_UM: f64 = 1e9;
 const PER_CM2: f64 = 1e-4;
 
 fn sci(x: f64) -> String {
-    format!("{:.4e}", unsigned_zero(x))
+    super::iv::sci(x, 4)
 }
 
 fn fixed(x: f64) -> String {
-    let s = format!("{:.4}", unsigned_zero(x));
-    match s.strip_prefix('-') {
-        Some(rest) if rest.chars().all(|c| c == '0' || c == '.') => rest.to_string(),
-        _ => s,
-    }
+    super::iv::fixed(x, 4)
 }
 
 /// The text report: the device and the stack's constants, then one row per gate voltage.

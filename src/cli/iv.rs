@@ -150,7 +150,7 @@ pub fn run(a: Args) -> Result<(), JobError> {
 }
 
 /// `x` with `prec` decimals, never `-0.000`.
-fn fixed(x: f64, prec: usize) -> String {
+pub(crate) fn fixed(x: f64, prec: usize) -> String {
     let s = format!("{:.*}", prec, unsigned_zero(x));
     match s.strip_prefix('-') {
         Some(rest) if rest.chars().all(|c| c == '0' || c == '.') => rest.to_string(),
@@ -159,7 +159,7 @@ fn fixed(x: f64, prec: usize) -> String {
 }
 
 /// `x` in scientific notation with `prec` decimals, never `-0.000e0`.
-fn sci(x: f64, prec: usize) -> String {
+pub(crate) fn sci(x: f64, prec: usize) -> String {
     format!("{:.*e}", prec, unsigned_zero(x))
 }
 
@@ -260,7 +260,8 @@ pub fn metrics_text(m: &IvMetrics) -> Vec<String> {
     l
 }
 
-fn num(x: f64) -> Value {
+/// A number for JSON, never `-0.0`.
+pub(crate) fn num(x: f64) -> Value {
     json!(unsigned_zero(x))
 }
 
