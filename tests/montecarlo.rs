@@ -68,7 +68,25 @@ analysis operating_point
 /// (two-sided confidence 99.99 %).
 #[test]
 fn divider_with_normal_resistors_matches_linear_error_propagation() {
-    let rows = sample("divider", DIVIDER, 0..400, 11, 2);
+    check_divider(DIVIDER, "r");
+}
+
+/// The same divider with its resistors placed by kind and the spread declared on the kind:
+/// the same closed form, and the draws are named by the kind.
+#[test]
+fn a_spread_of_an_element_kind_reaches_its_instances() {
+    let text = "\
+voltage_source supply (pos = top, neg = ground) { dc = 1 V }
+resistor upper (a = top, b = mid) { resistance = 1 kOhm }
+resistor lower (a = mid, b = ground) { resistance = 1 kOhm }
+variation resistor.resistance { distribution = normal(sigma = 20 Ohm), scope = local }
+analysis operating_point
+";
+    check_divider(text, "resistor");
+}
+
+fn check_divider(text: &str, target: &str) {
+    let rows = sample("divider", text, 0..400, 11, 2);
     assert!(rows.iter().all(|r| r.error.is_none()));
     let s = stats(&column(&rows, "operating_point.mid_v")).expect("figures");
     let sigma = 2f64.sqrt() * 1.0 * 20.0 / (4.0 * 1000.0);
@@ -84,13 +102,104 @@ fn divider_with_normal_resistors_matches_linear_error_propagation() {
         s.std_dev
     );
     // Each resistor's own draw is listed and drives the output with opposite signs.
-    let up = values(&rows, "r.resistance.local_shift[upper]_ohm");
-    let down = values(&rows, "r.resistance.local_shift[lower]_ohm");
+    let up = values(
+        &rows,
+        &format!("{target}.resistance.local_shift[upper]_ohm"),
+    );
+    let down = values(
+        &rows,
+        &format!("{target}.resistance.local_shift[lower]_ohm"),
+    );
     assert_eq!((up.len(), down.len()), (400, 400));
     let mid = values(&rows, "operating_point.mid_v");
     let rho_up = lamina::montecarlo::spearman(&up, &mid).expect("varies");
     let rho_down = lamina::montecarlo::spearman(&down, &mid).expect("varies");
     assert!(rho_up < -0.5 && rho_down > 0.5, "{rho_up} {rho_down}");
+}
+
+/// A cell parameter varies per instance, and the cell's later defaults follow it: in `same`
+/// the lower resistor defaults to the upper one, so the divider stays at exactly half the
+/// supply whatever the draw; in `fixed` the instance sets the lower one, so the output is
+/// `1 / (1 + f)` V with `f` the drawn factor of the upper resistance (closed form of the
+/// divider, common practice). A global spread of the same parameter gives one draw shared by
+/// both instances.
+#[test]
+fn a_spread_of_a_cell_parameter_reaches_later_defaults() {
+    let cell = "\
+cell half(top, out) {
+    param upper = 1 kOhm
+    param lower = upper
+    resistor ru (a = top, b = out) { resistance = upper }
+    resistor rl (a = out, b = ground) { resistance = lower }
+}
+voltage_source supply (pos = vdd, neg = ground) { dc = 1 V }
+half same (top = vdd, out = a)
+half fixed (top = vdd, out = b) { lower = 1 kOhm }
+analysis operating_point
+";
+    let local = format!(
+        "{cell}variation half.upper {{ distribution = log_normal(sigma = 0.3), scope = local }}\n"
+    );
+    let rows = sample("cell", &local, 0..50, 5, 2);
+    assert!(rows.iter().all(|r| r.error.is_none()));
+    let a = values(&rows, "operating_point.a_v");
+    let b = values(&rows, "operating_point.b_v");
+    let f_same = values(&rows, "half.upper.local_factor[same]");
+    let f_fixed = values(&rows, "half.upper.local_factor[fixed]");
+    assert_eq!(
+        (a.len(), b.len(), f_same.len(), f_fixed.len()),
+        (50, 50, 50, 50)
+    );
+    // 1e-8 V: within the operating point's Newton tolerance, far below the draws' effect
+    // (a 30 % factor moves `b` by tens of millivolts).
+    for i in 0..50 {
+        assert!((a[i] - 0.5).abs() < 1e-8, "sample {i}: {}", a[i]);
+        let want = 1.0 / (1.0 + f_fixed[i]);
+        assert!(
+            (b[i] - want).abs() < 1e-8,
+            "sample {i}: {} against {want}",
+            b[i]
+        );
+    }
+    // Each instance has its own draw.
+    assert!(f_same.iter().zip(&f_fixed).all(|(x, y)| x != y));
+    let global = format!(
+        "{cell}variation half.upper {{ distribution = log_normal(sigma = 0.3), scope = global }}\n"
+    );
+    let rows = sample("cell-global", &global, 0..20, 5, 1);
+    let f = values(&rows, "half.upper.global_factor");
+    let b = values(&rows, "operating_point.b_v");
+    assert_eq!((f.len(), b.len()), (20, 20));
+    for (f, b) in f.iter().zip(&b) {
+        assert!((b - 1.0 / (1.0 + f)).abs() < 1e-8);
+    }
+    assert!(
+        f.iter().any(|x| (x - f[0]).abs() > 1e-3),
+        "draws vary by sample"
+    );
+}
+
+/// A spread that reaches nothing is said once per target, at its first declaration: an element
+/// kind whose instances are all made through a card, and a cell never placed.
+#[test]
+fn a_spread_that_reaches_nothing_is_warned_about() {
+    let text = "\
+device r : resistor { resistance = 1 kOhm }
+cell unused(x) {
+    param load = 1 fF
+    capacitor k (a = x, b = ground) { capacitance = load }
+}
+voltage_source supply (pos = top, neg = ground) { dc = 1 V }
+r upper (a = top, b = ground)
+variation resistor.resistance { distribution = normal(sigma = 20 Ohm), scope = local }
+variation resistor.resistance { distribution = normal(sigma = 20 Ohm), scope = global }
+variation unused.load { distribution = normal(sigma = 0.1 fF), scope = local }
+variation r.resistance { distribution = normal(sigma = 20 Ohm), scope = local }
+";
+    let design = load_source("w.lam", text, &LoadOptions::default()).expect("loads");
+    let messages: Vec<&str> = design.warnings.iter().map(|d| d.message.as_str()).collect();
+    assert_eq!(messages.len(), 2, "{messages:?}");
+    assert!(messages[0].contains("`resistor`") && messages[1].contains("`unused`"));
 }
 
 /// The delay of an RC driven by a 1 ps edge is `R C ln 2` to well under 0.1 % (the step
@@ -359,6 +468,35 @@ device r : resistor { resistance = 1 kOhm }
             lamina_netlist::ErrorKind::BadValue,
             3,
             13,
+        ),
+        // A cell parameter that does not exist, and one of the wrong dimension.
+        (
+            "cell c(x) {\n    param load = 1 fF\n    capacitor k (a = x, b = ground) { capacitance = load }\n}\n\
+             variation c.lod { distribution = normal(sigma = 0.1 fF), scope = local }",
+            lamina_netlist::ErrorKind::Unknown,
+            7,
+            13,
+        ),
+        (
+            "cell c(x) {\n    param load = 1 fF\n    capacitor k (a = x, b = ground) { capacitance = load }\n}\n\
+             variation c.load { distribution = normal(sigma = 0.1 V), scope = local }",
+            lamina_netlist::ErrorKind::UnitMismatch,
+            7,
+            50,
+        ),
+        // An optional key of a kind with no default has no centre on instances that omit it.
+        (
+            "variation sheet_fet.band_gap { distribution = normal(sigma = 10 meV), scope = global }",
+            lamina_netlist::ErrorKind::BadValue,
+            3,
+            21,
+        ),
+        // A cell may not take the name of a device card: instances would silently pick one.
+        (
+            "cell r(x) {\n    capacitor k (a = x, b = ground) { capacitance = 1 fF }\n}",
+            lamina_netlist::ErrorKind::Duplicate,
+            3,
+            6,
         ),
     ];
     for (extra, kind, line, col) in cases {

@@ -41,7 +41,9 @@ pub use elaborate::{
     load_file, load_with, Analysis, AnalysisDecl, Design, DiskReader, Failure, FileReader, Limits,
     LoadOptions, ReadError, SettingKind, Summary, ANALYSES, MAX_TRANSIENT_SAMPLES,
 };
-pub use elaborate::{Distribution, Limit, Perturb, Perturbation, Scope, Variation, Variations};
+pub use elaborate::{
+    Distribution, Limit, Perturb, Perturbation, Scope, Target, Variation, Variations,
+};
 pub use source::{Sources, Span};
 
 use std::path::Path;

@@ -396,7 +396,8 @@ mod engineering_tests {
 
 /// The dimension a figure key's unit suffix names, by the convention of every report's keys:
 /// `_hz` frequency, `_s` time, `_v` voltage, `_w` power, `_j` energy, `_a` current, `_f`
-/// capacitance, `_siemens` conductance; a pure number otherwise (`gain_max`).
+/// capacitance, `_siemens` conductance, `_ohm` resistance; a pure number otherwise
+/// (`gain_max`).
 pub fn figure_dim(key: &str) -> Dim {
     figure_suffix(key).map_or(Dim::NONE, |(_, d)| d)
 }
@@ -413,6 +414,7 @@ pub fn figure_suffix(key: &str) -> Option<(&'static str, Dim)> {
         ("_j", Dim::ENERGY),
         ("_a", Dim::CURRENT),
         ("_f", Dim::CAPACITANCE),
+        ("_ohm", Dim::RESISTANCE),
     ];
     SUFFIXES.iter().find(|(s, _)| key.ends_with(s)).copied()
 }

@@ -63,11 +63,26 @@ impl<'s> Elaborator<'s> {
         top: &Frame,
         command_line: Vec<String>,
     ) {
-        if self.devices.contains_key(&name.name) || catalog::kind(&name.name).is_some() {
-            self.err(
-                ErrorKind::Duplicate,
-                name.span,
-                format!("`{}` is already defined", name.name),
+        if self.devices.contains_key(&name.name)
+            || catalog::kind(&name.name).is_some()
+            || self.cells.contains_key(&name.name)
+        {
+            let what = if catalog::kind(&name.name).is_some() {
+                "an element kind"
+            } else if self.cells.contains_key(&name.name) {
+                "a cell"
+            } else {
+                "a device card"
+            };
+            self.diags.push(
+                Diagnostic::new(
+                    ErrorKind::Duplicate,
+                    name.span,
+                    format!("`{}` is already {what}", name.name),
+                )
+                .with_help(
+                    "device cards, cells and element kinds share one set of names: rename the card",
+                ),
             );
             return;
         }
@@ -334,6 +349,9 @@ impl<'s> Elaborator<'s> {
         };
         let prefix = frames.last().map(|f| f.prefix.clone()).unwrap_or_default();
         let full = format!("{prefix}{local}");
+        if !self.placed_by.contains(&kind.name) {
+            self.placed_by.insert(kind.name.clone());
+        }
         if let Some(&(ports, body, _)) = self.cells.get(&kind.name) {
             self.cell_instance(
                 &kind.name,
@@ -442,9 +460,10 @@ impl<'s> Elaborator<'s> {
             );
             return;
         };
-        // A Monte Carlo sample puts its drawn values into the devices of varied cards.
+        // A Monte Carlo sample puts its drawn values into the devices of varied cards and
+        // kinds (named by the card, or by the kind for an element placed without one).
         let mut changed = Vec::new();
-        if let (Some(p), Some(_)) = (&self.perturbation, &card) {
+        if let Some(p) = &self.perturbation {
             let before = values.numbers.clone();
             p.0.apply(&kind.name, &full, &mut values.numbers);
             for (i, (new, old)) in values.numbers.iter().zip(&before).enumerate() {

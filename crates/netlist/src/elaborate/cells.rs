@@ -311,6 +311,10 @@ impl<'s> Elaborator<'s> {
                 vars.insert(a.name.name.clone(), q);
             }
         }
+        let given: Vec<bool> = defaults
+            .iter()
+            .map(|(n, _)| vars.contains_key(&n.name))
+            .collect();
         let mut port_map = HashMap::new();
         for (p, n) in ports.iter().zip(nodes) {
             port_map.insert(p.name.clone(), n);
@@ -321,7 +325,7 @@ impl<'s> Elaborator<'s> {
             prefix: format!("{full}."),
         });
         // Defaults for parameters the instance did not set, in the cell's own scope.
-        for (n, value) in defaults {
+        for &(n, value) in &defaults {
             if frames.last().is_some_and(|f| f.vars.contains_key(&n.name)) {
                 continue;
             }
@@ -334,7 +338,7 @@ impl<'s> Elaborator<'s> {
                 }
             }
         }
-        let _ = name_span;
+        self.perturb_cell(cell, full, &defaults, &given, name_span, frames);
         self.depth += 1;
         // Inside the cell, only its own frame (plus globals) is visible.
         let mut inner = vec![frames.pop().expect("frame was pushed")];
@@ -342,6 +346,71 @@ impl<'s> Elaborator<'s> {
             self.body_stmt(s, &mut inner);
         }
         self.depth -= 1;
+    }
+
+    /// A Monte Carlo sample's drawn values of the parameters of cell instance `full` (in the
+    /// frame on top of `frames`): each changed value replaces the parameter, and a default
+    /// the instance did not set is evaluated again, in order, from the changed values, so
+    /// `param big = 2 * load` follows a varied `load`.
+    fn perturb_cell(
+        &mut self,
+        cell: &str,
+        full: &str,
+        defaults: &[(&Ident, &Expr)],
+        given: &[bool],
+        name_span: Span,
+        frames: &mut [Frame],
+    ) {
+        let (Some(p), Some(frame)) = (self.perturbation.clone(), frames.last()) else {
+            return;
+        };
+        let before: Vec<Option<Q>> = defaults
+            .iter()
+            .map(|(n, _)| frame.vars.get(&n.name).copied())
+            .collect();
+        let mut numbers: Vec<f64> = before.iter().map(|q| q.map_or(f64::NAN, |q| q.v)).collect();
+        p.0.apply(cell, full, &mut numbers);
+        let changed: Vec<bool> = numbers
+            .iter()
+            .zip(&before)
+            .map(|(new, old)| old.is_some_and(|q| q.v.to_bits() != new.to_bits()))
+            .collect();
+        if !changed.contains(&true) {
+            return;
+        }
+        if let Some((i, _)) = numbers
+            .iter()
+            .enumerate()
+            .find(|&(i, v)| changed[i] && !v.is_finite())
+        {
+            self.err(
+                ErrorKind::BadValue,
+                name_span,
+                format!(
+                    "this sample's variation makes `{}` of `{full}` {:e}",
+                    defaults[i].0.name, numbers[i]
+                ),
+            );
+            return;
+        }
+        for (i, (n, value)) in defaults.iter().enumerate() {
+            if changed[i] {
+                if let (Some(f), Some(q)) = (frames.last_mut(), before[i]) {
+                    f.vars.insert(
+                        n.name.clone(),
+                        Q {
+                            v: numbers[i],
+                            dim: q.dim,
+                        },
+                    );
+                }
+            } else if !given[i] {
+                let q = frames.last().and_then(|f| self.eval(value, &[f]));
+                if let (Some(q), Some(f)) = (q, frames.last_mut()) {
+                    f.vars.insert(n.name.clone(), q);
+                }
+            }
+        }
     }
 
     /// A lower bound on the elements `stmts` place: elements count one, cells their own cost,

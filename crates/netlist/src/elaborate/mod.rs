@@ -21,8 +21,8 @@ pub use analyses::{
 };
 pub use files::{DiskReader, FileReader, ReadError};
 pub use variation::{
-    cholesky, AreaScaling, Distribution, Group, Limit, Perturb, Perturbation, Scope, Variation,
-    Variations,
+    cholesky, AreaScaling, Distribution, Group, Limit, Perturb, Perturbation, Scope, Target,
+    Variation, Variations,
 };
 
 use crate::ast::*;
@@ -288,6 +288,9 @@ struct Elaborator<'s> {
     analyses: Vec<AnalysisDecl>,
     summary: Summary,
     element_spans: HashMap<String, Span>,
+    /// Names instances were placed by (device cards, cells, element kinds placed directly),
+    /// so a variation that reaches nothing is said.
+    placed_by: std::collections::HashSet<String>,
     depth: usize,
     created: usize,
     /// Nodes and the spans of the connections the last `connect` made.
@@ -341,6 +344,7 @@ impl<'s> Elaborator<'s> {
             analyses: Vec::new(),
             summary: Summary::default(),
             element_spans: HashMap::new(),
+            placed_by: Default::default(),
             depth: 0,
             created: 0,
             last_pins: Vec::new(),
@@ -499,6 +503,30 @@ impl<'s> Elaborator<'s> {
                                 format!("cell `{}` is defined twice", name.name),
                             )
                             .with_note(first, "first defined here"),
+                        );
+                        continue;
+                    }
+                    if self.devices.contains_key(&name.name)
+                        || crate::catalog::kind(&name.name).is_some()
+                    {
+                        self.diags.push(
+                            Diagnostic::new(
+                                ErrorKind::Duplicate,
+                                name.span,
+                                format!(
+                                    "`{}` is already {}",
+                                    name.name,
+                                    if self.devices.contains_key(&name.name) {
+                                        "a device card"
+                                    } else {
+                                        "an element kind"
+                                    }
+                                ),
+                            )
+                            .with_help(
+                                "device cards, cells and element kinds share one set of names: \
+                                 rename the cell",
+                            ),
                         );
                         continue;
                     }

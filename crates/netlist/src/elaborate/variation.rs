@@ -1,6 +1,7 @@
-//! Declared variation: spreads of numeric device-card keys, their scope (one draw per sample
-//! for every device of a card, or one per device), area scaling of per-device spreads, and
-//! correlations between the keys of one card. This module only reads and checks the
+//! Declared variation: spreads of numeric parameters of device cards, of cells and of element
+//! kinds placed directly, their scope (one draw per sample shared by every device of a card,
+//! instance of a cell or element of a kind, or one per device or instance), area scaling of
+//! per-device spreads, and correlations between the parameters of one target. This module only reads and checks the
 //! declarations into typed [`Variations`]; it draws no random numbers. A caller that samples
 //! them hands its values back through a [`Perturbation`] when it loads the design again.
 //!
@@ -25,10 +26,11 @@
 
 use super::{Elaborator, Frame};
 use crate::ast::*;
-use crate::catalog::Kind;
+use crate::catalog;
 use crate::diag::{did_you_mean, Diagnostic, ErrorKind};
 use crate::source::Span;
 use crate::units::Dim;
+use std::collections::HashMap;
 use std::sync::Arc;
 
 /// The shape of a spread.
@@ -89,15 +91,39 @@ pub struct AreaScaling {
     pub length: usize,
 }
 
-/// One declared spread of one key of one card.
+/// What the first name of `variation NAME.key` designates.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Target {
+    /// A device card: `key` of every device made from it.
+    Card,
+    /// A cell: its parameter `key` in each instance of the cell (the instance's value or the
+    /// default), before the cell's later defaults are evaluated from it.
+    Cell,
+    /// An element kind: `key` of its instances placed by kind, not through a device card.
+    Kind,
+}
+
+/// A parameter a target offers to vary.
+struct Offered {
+    name: String,
+    /// Its dimension; `None` for text, waveforms and a cell parameter whose default does
+    /// not evaluate.
+    dim: Option<Dim>,
+    /// Whether every device has a value to centre the spread on.
+    centre: bool,
+}
+
+/// One declared spread of one parameter of one target.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Variation {
-    /// The device card.
+    /// The device card, cell or element kind.
     pub card: String,
+    /// What `card` names.
+    pub target: Target,
     /// The key that varies.
     pub key: String,
-    /// Position of the key among the card kind's parameters (the index into
-    /// [`Perturbation::apply`]'s `numbers`).
+    /// Position of the key among the target's parameters (a kind's in catalog order, a
+    /// cell's in declaration order): the index into [`Perturbation::apply`]'s `numbers`.
     pub key_index: usize,
     /// The key's dimension.
     pub dim: Dim,
@@ -158,13 +184,16 @@ impl Variations {
     }
 }
 
-/// Values a caller puts into the devices of varied cards when a design is loaded: called for
-/// every element made from a device card, before it is built. A value it changes counts as
-/// given (it overrides the library and the kind's default).
+/// Values a caller puts into the design when it is loaded: called for every element before it
+/// is built (with its card's name, or its kind's when placed without a card) and for every
+/// cell instance once its parameters are known (with the cell's name). A value it changes
+/// counts as given (it overrides the library and the kind's default); a changed cell
+/// parameter is seen by the cell's later defaults.
 pub trait Perturbation: Send + Sync {
-    /// Changes `numbers` (the kind's parameters in catalog order, SI, the card's and the
-    /// instance's values already merged) of device `device` (its hierarchical name, such as
-    /// `inv[2].pull_down`) of card `card`.
+    /// Changes `numbers` (SI) of `device` (its hierarchical name, such as
+    /// `inv[2].pull_down`, or a cell instance's, such as `inv[2]`) made from `card` (a device
+    /// card, an element kind or a cell): an element's parameters in catalog order with the
+    /// card's and the instance's values merged, or a cell's parameters in declaration order.
     fn apply(&self, card: &str, device: &str, numbers: &mut [f64]);
 }
 
@@ -298,6 +327,31 @@ impl<'s> Elaborator<'s> {
                 _ => {}
             }
         }
+        // One warning per target that nothing is made from, at its first declaration.
+        for (i, v) in out.list.iter().enumerate() {
+            let first = out.list.iter().position(|w| w.card == v.card) == Some(i);
+            if first && !self.placed_by.contains(&v.card) {
+                let what = match v.target {
+                    Target::Card => "no device is made from card",
+                    Target::Cell => "no instance of cell",
+                    Target::Kind => "no element is placed directly as",
+                };
+                let mut d = Diagnostic::new(
+                    ErrorKind::Unknown,
+                    v.span,
+                    format!(
+                        "the variations of `{}` change nothing: {what} `{}`",
+                        v.card, v.card
+                    ),
+                );
+                if v.target == Target::Kind {
+                    d = d.with_help(
+                        "devices made from a device card vary through `variation card.key`",
+                    );
+                }
+                self.warns.push(d);
+            }
+        }
         for v in 0..out.list.len() {
             let (card, scope) = (&out.list[v].card, out.list[v].scope);
             match out
@@ -356,25 +410,82 @@ impl<'s> Elaborator<'s> {
         self.declared_variations = out;
     }
 
-    /// The card a `variation` or `correlation` names, or an error at it.
-    fn varied_card(&mut self, card: &Ident) -> Option<&'static Kind> {
-        if let Some(c) = self.devices.get(&card.name) {
-            return Some(c.kind);
+    /// What the first name of a `variation` or `correlation` designates and the parameters
+    /// it offers, or an error at the name. Cards, cells and element kinds share one namespace
+    /// (a cell or card named like another is refused where it is defined).
+    fn varied_target(&mut self, target: &Ident) -> Option<(Target, Vec<Offered>)> {
+        if let Some(c) = self.devices.get(&target.name) {
+            let values = &c.values;
+            let offered = c
+                .kind
+                .params
+                .iter()
+                .map(|p| Offered {
+                    name: p.name.to_string(),
+                    dim: (!p.text && !p.waveform).then_some(p.dim),
+                    centre: values.span_of(p.name).is_some()
+                        || p.default.is_some_and(f64::is_finite),
+                })
+                .collect();
+            return Some((Target::Card, offered));
         }
-        let mut cards: Vec<&str> = self.devices.keys().map(String::as_str).collect();
-        cards.sort_unstable();
-        let help = match did_you_mean(&card.name, cards.iter().copied()) {
-            Some(h) => h,
-            None if cards.is_empty() => {
-                "the file defines no device card; spreads belong to keys of device cards".into()
+        if let Some(&(_, body, _)) = self.cells.get(&target.name) {
+            // Each parameter's dimension, from its default evaluated as an instance would
+            // (top-level parameters and the cell's earlier ones); errors in a default are
+            // reported where an instance evaluates it, not here.
+            let before = self.diags.len();
+            let mut frame = Frame {
+                vars: HashMap::new(),
+                ports: HashMap::new(),
+                prefix: String::new(),
+            };
+            let mut offered = Vec::new();
+            for s in body {
+                if let Stmt::Param { name, value } = s {
+                    let q = self.eval(value, &[&frame]);
+                    if let Some(q) = q {
+                        frame.vars.insert(name.name.clone(), q);
+                    }
+                    offered.push(Offered {
+                        name: name.name.clone(),
+                        dim: q.map(|q| q.dim),
+                        centre: true,
+                    });
+                }
             }
-            None => format!("its device cards are: {}", cards.join(", ")),
+            self.diags.truncate(before);
+            return Some((Target::Cell, offered));
+        }
+        if let Some(k) = catalog::kind(&target.name) {
+            let offered = k
+                .params
+                .iter()
+                .map(|p| Offered {
+                    name: p.name.to_string(),
+                    dim: (!p.text && !p.waveform).then_some(p.dim),
+                    // A required key is set on every instance; an optional one without a
+                    // default may be absent, and a spread of it would have no centre.
+                    centre: p.default.is_none_or(f64::is_finite),
+                })
+                .collect();
+            return Some((Target::Kind, offered));
+        }
+        let mut names: Vec<&str> = self.devices.keys().map(String::as_str).collect();
+        names.extend(self.cells.keys().map(String::as_str));
+        names.sort_unstable();
+        let help = match did_you_mean(&target.name, names.iter().copied()) {
+            Some(h) => h,
+            None if names.is_empty() => "spreads belong to keys of device cards, parameters \
+                                         of cells and parameters of element kinds such as \
+                                         `capacitor.capacitance`"
+                .into(),
+            None => format!("its device cards and cells are: {}", names.join(", ")),
         };
         self.diags.push(
             Diagnostic::new(
                 ErrorKind::Unknown,
-                card.span,
-                format!("no device card `{}`", card.name),
+                target.span,
+                format!("no device card, cell or element kind `{}`", target.name),
             )
             .with_help(help),
         );
@@ -390,13 +501,31 @@ impl<'s> Elaborator<'s> {
         top: &Frame,
         so_far: &Variations,
     ) -> Option<Variation> {
-        let kind = self.varied_card(card)?;
-        let Some(key_index) = kind.params.iter().position(|p| p.name == key.name) else {
-            self.unknown_param(key, kind);
+        let (target, offered) = self.varied_target(card)?;
+        let Some(key_index) = offered.iter().position(|p| p.name == key.name) else {
+            let names: Vec<&str> = offered.iter().map(|p| p.name.as_str()).collect();
+            let what = match target {
+                Target::Cell => "cell",
+                Target::Card => "device card",
+                Target::Kind => "element kind",
+            };
+            let help = match did_you_mean(&key.name, names.iter().copied()) {
+                Some(h) => h,
+                None if names.is_empty() => format!("`{}` has no parameters", card.name),
+                None => format!("its parameters are: {}", names.join(", ")),
+            };
+            self.diags.push(
+                Diagnostic::new(
+                    ErrorKind::Unknown,
+                    key.span,
+                    format!("{what} `{}` has no parameter `{}`", card.name, key.name),
+                )
+                .with_help(help),
+            );
             return None;
         };
-        let spec = &kind.params[key_index];
-        if spec.text || spec.waveform {
+        let spec = &offered[key_index];
+        let Some(dim) = spec.dim else {
             self.err(
                 ErrorKind::BadValue,
                 key.span,
@@ -406,25 +535,34 @@ impl<'s> Elaborator<'s> {
                 ),
             );
             return None;
-        }
-        let nominal_set = self.devices[&card.name].values.span_of(spec.name).is_some()
-            || spec.default.is_some_and(f64::is_finite);
-        if !nominal_set {
-            self.diags.push(
-                Diagnostic::new(
-                    ErrorKind::BadValue,
-                    key.span,
+        };
+        if !spec.centre {
+            let (message, help) = match target {
+                Target::Card => (
                     format!(
                         "card `{}` does not set `{}`, so its spread has no centre",
                         card.name, key.name
                     ),
-                )
-                .with_help(format!(
-                    "write the nominal value on the card, such as `{} = {}`",
-                    key.name,
-                    spec.dim.example()
-                )),
-            );
+                    format!(
+                        "write the nominal value on the card, such as `{} = {}`",
+                        key.name,
+                        dim.example()
+                    ),
+                ),
+                _ => (
+                    format!(
+                        "`{}` has no default, so instances that leave it out give its spread \
+                         no centre",
+                        key.name
+                    ),
+                    format!(
+                        "set it on a device card and vary `card.{}` instead",
+                        key.name
+                    ),
+                ),
+            };
+            self.diags
+                .push(Diagnostic::new(ErrorKind::BadValue, key.span, message).with_help(help));
             return None;
         }
         let mut distribution = None;
@@ -433,7 +571,7 @@ impl<'s> Elaborator<'s> {
         let mut ok = self.settings_once(params);
         for a in params {
             match a.name.name.as_str() {
-                "distribution" => distribution = self.distribution(&a.value, spec.dim, top),
+                "distribution" => distribution = self.distribution(&a.value, dim, top),
                 "scope" => match &a.value {
                     Expr::Name(id) if id.name == "global" => scope = Some(Scope::Global),
                     Expr::Name(id) if id.name == "local" => scope = Some(Scope::Local),
@@ -462,7 +600,7 @@ impl<'s> Elaborator<'s> {
                         );
                         return None;
                     }
-                    let pos = |n: &str| kind.params.iter().position(|p| p.name == n);
+                    let pos = |n: &str| offered.iter().position(|p| p.name == n);
                     match (pos("width"), pos("length")) {
                         (Some(width), Some(length)) => {
                             area = Some((
@@ -481,7 +619,7 @@ impl<'s> Elaborator<'s> {
                                 format!(
                                     "`{}` has no `width` and `length`, so a spread cannot scale \
                                      with its area; remove `reference_area`",
-                                    kind.name
+                                    card.name
                                 ),
                             );
                             return None;
@@ -561,9 +699,10 @@ impl<'s> Elaborator<'s> {
         }
         Some(Variation {
             card: card.name.clone(),
+            target,
             key: key.name.clone(),
             key_index,
-            dim: spec.dim,
+            dim,
             distribution,
             scope,
             area: area.map(|a| a.0),
@@ -721,7 +860,7 @@ impl<'s> Elaborator<'s> {
         out: &mut Variations,
         placed: &mut [Vec<(Span, usize, usize)>],
     ) {
-        if self.varied_card(card).is_none() || !self.settings_once(params) {
+        if self.varied_target(card).is_none() || !self.settings_once(params) {
             return;
         }
         let (mut keys, mut coefficient, mut scope) = (None, None, None);
