@@ -120,8 +120,6 @@ class Ring:
             else:
                 self.off_slot[r] = s  # entry (r, r-1)
         self.indptr = np.arange(0, 2 * stages + 1, 2)
-        self.rhs_calls = 0
-        self.jac_calls = 0
 
     def currents(self, v):
         vin = v[self.prev]
@@ -131,12 +129,10 @@ class Ring:
         return i_n - i_pm, dn_d + dp_d, dn_g + dp_g
 
     def rhs(self, _t, v):
-        self.rhs_calls += 1
         i, _, _ = self.currents(v)
         return -i / LOAD
 
     def jac(self, _t, v):
-        self.jac_calls += 1
         _, d_d, d_g = self.currents(v)
         data = np.empty(2 * self.n)
         data[self.diag_slot] = -d_d / LOAD
