@@ -28,6 +28,7 @@
 
 #![deny(missing_docs)]
 
+pub mod contact;
 pub mod dual;
 pub mod materials;
 pub mod mobility;

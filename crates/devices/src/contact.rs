@@ -1,0 +1,354 @@
+//! Metal contacts to a 2D semiconductor: barrier heights from the metal's work function with
+//! Fermi-level pinning, and the current a reservoir injects over and through the barrier.
+//!
+//! # Barrier heights
+//! A pinning factor `S` (0 to 1) mixes the metal's work function `W_M` with the charge
+//! neutrality level `Φ_CNL` of the interface states into an effective work function
+//! `W_eff = S W_M + (1 - S) Φ_CNL`; the electron barrier is `Φ_n = W_eff - χ` and the hole
+//! barrier `Φ_p = χ + E_g - W_eff` (χ the electron affinity, `E_g` the transport gap). `S = 1`
+//! is the Schottky-Mott rule, `S = 0` full pinning at the neutrality level (A. M. Cowley and
+//! S. M. Sze, "Surface states and barrier height of metal-semiconductor systems", J. Appl. Phys.
+//! 36, 3212 (1965); S. M. Sze and K. K. Ng, *Physics of Semiconductor Devices*, 3rd ed., Wiley
+//! 2007, sec. 3.2; recalled from memory).
+//!
+//! # Injection
+//! Electrons of a 2D band with valley degeneracy `g_v` and mass `m` cross a barrier along `x`
+//! keeping their transverse momentum. Integrating the transverse momentum out gives the current
+//! per width from one reservoir with Fermi level `η kT` above the channel's band edge:
+//!
+//! `J = g_v q sqrt(2m) (kT)^{3/2} / (2 π² ħ²) · I(Δ, η)`,
+//! `I(Δ, η) = ∫_0^∞ T(ε) sqrt(π) F_{-1/2}(η - ε) dε`,
+//!
+//! with energies in units of kT measured from the channel's band edge, `ε` the longitudinal
+//! energy, `F_{-1/2}` the normalised Fermi-Dirac integral of order -1/2 and `T(ε)` the
+//! transmission of the barrier. The net current of a contact is the difference of the metal's
+//! and the channel's injection, `J(η_metal) - J(η_channel)`, so it vanishes in equilibrium.
+//! With `T = 1` above the barrier top `Δ` and no tunnelling, and in Boltzmann statistics, it is
+//! the 2D thermionic law `J = A₂ T^{3/2} exp(-Φ/kT)`, `A₂ = g_v q sqrt(8 π k³ m) / h²`
+//! (A. Anwar, B. Nabet, J. Culp and F. Castro, "Effects of electron confinement on thermionic
+//! emission current in a modulation doped heterostructure", J. Appl. Phys. 85, 2663 (1999);
+//! recalled from memory); [`richardson_2d`] is that constant.
+//!
+//! Below the top, `T(ε) = exp(-θ(ε))` with the WKB exponent `θ = 2 ∫ κ dx`,
+//! `κ = sqrt(2m (E_C(x) - E)) / ħ`. For the barrier the gate shapes at a contact, the band edge
+//! relaxes from the top to the channel's edge over a screening length `λ`:
+//! `E_C(x) = Δ e^{-x/λ}` (in kT, from the channel's edge). Then, with `L = λ sqrt(2 m kT) / ħ`,
+//!
+//! `θ(ε) = 4 L [sqrt(Δ - ε) - sqrt(ε) atan(sqrt((Δ - ε) / ε))]`, `0 < ε < Δ`,
+//!
+//! (substitute `u = Δ e^{-x/λ}` in the WKB integral), which is 1 at the top and continuous with
+//! its first derivative there. [`wkb_exponent`] integrates any profile numerically for checks.
+
+use crate::physics::{HBAR, K_B, Q};
+use std::f64::consts::PI;
+
+/// Electron and hole barrier heights of a metal contact (J).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Barriers {
+    /// From the metal's Fermi level up to the conduction-band edge.
+    pub electron: f64,
+    /// From the valence-band edge up to the metal's Fermi level.
+    pub hole: f64,
+}
+
+/// Barrier heights of a metal of work function `metal` on a channel of electron affinity
+/// `affinity` and gap `gap`, with pinning factor `pinning` (1: Schottky-Mott, 0: fully pinned at
+/// the neutrality level `neutral_level`, an energy below the vacuum level like a work
+/// function). Energies in joules.
+pub fn barriers(metal: f64, pinning: f64, neutral_level: f64, affinity: f64, gap: f64) -> Barriers {
+    let effective = pinning * metal + (1.0 - pinning) * neutral_level;
+    Barriers {
+        electron: effective - affinity,
+        hole: affinity + gap - effective,
+    }
+}
+
+/// The 2D Richardson constant `A₂ = g_v q sqrt(8 π k³ m) / h²` in A / (m K^{3/2}), for a band of
+/// mass `mass` (kg) and valley degeneracy `valleys` (spin included).
+pub fn richardson_2d(mass: f64, valleys: f64) -> f64 {
+    let h = 2.0 * PI * HBAR;
+    valleys * Q * (8.0 * PI * K_B.powi(3) * mass).sqrt() / (h * h)
+}
+
+/// The prefactor of [`injection`]: `g_v q sqrt(2m) (kT)^{3/2} / (2 π² ħ²)` in A/m.
+pub fn injection_scale(mass: f64, valleys: f64, kt: f64) -> f64 {
+    valleys * Q * (2.0 * mass).sqrt() * kt.powf(1.5) / (2.0 * PI * PI * HBAR * HBAR)
+}
+
+/// The WKB exponent `θ(ε)` of the exponential barrier of top `delta` (kT units, above the
+/// channel's band edge) and reduced length `length` (`λ sqrt(2 m kT) / ħ`) at longitudinal
+/// energy `eps` (kT units): 0 at and above the top, and for `eps <= 0` the exponent at the
+/// channel's band edge (no state lies below it; callers integrate from 0).
+pub fn exponential_barrier_exponent(delta: f64, length: f64, eps: f64) -> f64 {
+    if eps >= delta {
+        return 0.0;
+    }
+    if eps <= 0.0 {
+        return 4.0 * length * delta.sqrt();
+    }
+    let over = delta - eps;
+    4.0 * length * (over.sqrt() - eps.sqrt() * (over / eps).sqrt().atan())
+}
+
+/// The WKB exponent `2 ∫ κ dx` of any barrier `profile(x)` (energy in kT units at position
+/// `x`, in units of the reduced length) at energy `eps`, over `[0, x_max]`: the classically
+/// forbidden intervals (where `profile > eps`) are found on a grid of `panels` cells and their
+/// ends refined by bisection; each is integrated with the substitution
+/// `x = x₁ + (x₂ - x₁)(3s² - 2s³)`, which cancels the square-root behaviour at turning points,
+/// and composite four-point Gauss-Legendre in `s`. A check for closed forms, not a fast path.
+pub fn wkb_exponent(profile: impl Fn(f64) -> f64, eps: f64, x_max: f64, panels: usize) -> f64 {
+    let panels = panels.max(1);
+    let cell = x_max / panels as f64;
+    let inside = |x: f64| profile(x) > eps;
+    // The boundary between `a` (inside or not) and `b` (the other), by bisection.
+    let edge = |mut a: f64, mut b: f64| {
+        let from = inside(a);
+        for _ in 0..80 {
+            let m = 0.5 * (a + b);
+            if inside(m) == from {
+                a = m;
+            } else {
+                b = m;
+            }
+        }
+        0.5 * (a + b)
+    };
+    let mut total = 0.0;
+    let mut start = inside(0.0).then_some(0.0);
+    for i in 1..=panels {
+        let (a, b) = ((i - 1) as f64 * cell, i as f64 * cell);
+        match (
+            start,
+            inside(b) || (i == panels && start.is_some() && inside(b - 1e-12 * cell)),
+        ) {
+            (None, true) => start = Some(edge(a, b)),
+            (Some(x1), false) => {
+                total += forbidden(&profile, eps, x1, edge(a, b));
+                start = None;
+            }
+            _ => {}
+        }
+    }
+    if let Some(x1) = start {
+        total += forbidden(&profile, eps, x1, x_max);
+    }
+    2.0 * total
+}
+
+/// `∫ sqrt(profile - eps) dx` over one forbidden interval `[x1, x2]` (see [`wkb_exponent`]).
+fn forbidden(profile: &impl Fn(f64) -> f64, eps: f64, x1: f64, x2: f64) -> f64 {
+    const PANELS: usize = 64;
+    let span = x2 - x1;
+    let mut sum = 0.0;
+    for p in 0..PANELS {
+        let a = p as f64 / PANELS as f64;
+        for (t, w) in GL4 {
+            let s = a + t / PANELS as f64;
+            let x = x1 + span * s * s * (3.0 - 2.0 * s);
+            let dx = span * 6.0 * s * (1.0 - s);
+            sum += w / PANELS as f64 * dx * (profile(x) - eps).max(0.0).sqrt();
+        }
+    }
+    sum
+}
+
+/// Four-point Gauss-Legendre nodes and weights on [0, 1].
+const GL4: [(f64, f64); 4] = [
+    (0.069_431_844_202_973_71, 0.173_927_422_568_726_93),
+    (0.330_009_478_207_571_87, 0.326_072_577_431_273_07),
+    (0.669_990_521_792_428_1, 0.326_072_577_431_273_07),
+    (0.930_568_155_797_026_3, 0.173_927_422_568_726_93),
+];
+
+/// `sqrt(π) F_{-1/2}(a) = ∫ du / (1 + e^{u² - a})` over the real line, by the trapezoidal rule,
+/// which converges geometrically for this analytic integrand: the step keeps the error near
+/// `e^{-30}` of the value from the distance of the nearest pole, `u² = a ± iπ`, to the real
+/// axis (L. N. Trefethen and J. A. C. Weideman, "The exponentially convergent trapezoidal
+/// rule", SIAM Review 56, 385 (2014)).
+pub fn sqrt_pi_fermi_minus_half(a: f64) -> f64 {
+    trapezoid_fermi(a, |u2, a| logistic_neg(u2 - a))
+}
+
+/// `sqrt(π) F_{1/2}(a) = ∫_{-∞}^{a} sqrt(π) F_{-1/2}(b) db` (normalised integrals:
+/// `dF_j/dη = F_{j-1}`), computed as `∫ ln(1 + e^{a - u²}) du` over the real line.
+pub fn sqrt_pi_fermi_half(a: f64) -> f64 {
+    trapezoid_fermi(a, |u2, a| {
+        let x = a - u2;
+        if x > 0.0 {
+            x + (-x).exp().ln_1p()
+        } else {
+            x.exp().ln_1p()
+        }
+    })
+}
+
+/// `1 / (1 + e^x)` without overflow.
+fn logistic_neg(x: f64) -> f64 {
+    if x > 0.0 {
+        let e = (-x).exp();
+        e / (1.0 + e)
+    } else {
+        1.0 / (1.0 + x.exp())
+    }
+}
+
+/// `∫ g(u², a) du` over the real line for the Fermi-like integrands above.
+fn trapezoid_fermi(a: f64, g: impl Fn(f64, f64) -> f64) -> f64 {
+    let modulus = (a * a + PI * PI).sqrt();
+    let distance = ((modulus - a) / 2.0).sqrt();
+    let step = (2.0 * PI * distance / 32.0).min(0.25);
+    let reach = (a.max(0.0) + 40.0).sqrt();
+    let n = (reach / step).ceil() as usize;
+    let mut sum = 0.5 * g(0.0, a);
+    for i in 1..=n {
+        let u = i as f64 * step;
+        sum += g(u * u, a);
+    }
+    2.0 * sum * step
+}
+
+/// `I(Δ, η)` of the module documentation: the injection of a reservoir at `eta` (kT units above
+/// the channel's band edge) through the exponential barrier of top `delta` and reduced length
+/// `length`. A top at or below the channel's edge (`delta <= 0`) passes every state.
+pub fn injection(delta: f64, eta: f64, length: f64) -> f64 {
+    let top = delta.max(0.0);
+    let over = sqrt_pi_fermi_half(eta - top);
+    if top == 0.0 {
+        return over;
+    }
+    // Under the top: ε = s², ds-panels, which smooths the sqrt(ε) start of the exponent.
+    let panels = 16;
+    let s_top = top.sqrt();
+    let width = s_top / panels as f64;
+    let mut under = 0.0;
+    for p in 0..panels {
+        let a = p as f64 * width;
+        for (t, w) in GL4 {
+            let s = a + t * width;
+            let eps = s * s;
+            let theta = exponential_barrier_exponent(top, length, eps);
+            under += w * width * 2.0 * s * (-theta).exp() * sqrt_pi_fermi_minus_half(eta - eps);
+        }
+    }
+    over + under
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::physics::M0;
+    use quadrature::double_exponential::integrate;
+
+    /// The Fermi integrals against an independent double-exponential quadrature of their
+    /// defining integrals, from the nondegenerate to the degenerate range.
+    #[test]
+    fn fermi_integrals_match_quadrature() {
+        for a in [-30.0, -5.0, -1.0, 0.0, 0.7, 3.0, 12.0, 60.0] {
+            let reach = (f64::max(a, 0.0) + 40.0f64).sqrt();
+            // Absolute targets scaled to the values (e^a when nondegenerate).
+            let size = f64::min(a, 0.0).exp() * f64::max(a, 1.0);
+            // Split where the degenerate integrand steps down (u² = a).
+            let step = f64::max(a, 0.0).sqrt();
+            let both = |f: &dyn Fn(f64) -> f64| {
+                2.0 * (integrate(f, 0.0, step, 1e-15 * size).integral
+                    + integrate(f, step, reach, 1e-15 * size).integral)
+            };
+            let minus_half = both(&|u: f64| 1.0 / (1.0 + (u * u - a).exp()));
+            let half = both(&|u: f64| {
+                let x = a - u * u;
+                if x > 0.0 {
+                    x + (-x).exp().ln_1p()
+                } else {
+                    x.exp().ln_1p()
+                }
+            });
+            let rel = |x: f64, y: f64| ((x - y) / y).abs();
+            assert!(
+                rel(sqrt_pi_fermi_minus_half(a), minus_half) < 1e-10,
+                "a = {a}: {} {minus_half}",
+                sqrt_pi_fermi_minus_half(a)
+            );
+            assert!(
+                rel(sqrt_pi_fermi_half(a), half) < 1e-10,
+                "a = {a}: {} {half}",
+                sqrt_pi_fermi_half(a)
+            );
+        }
+    }
+
+    /// Pinning factor 1 is the Schottky-Mott rule and 0 pins the metal at the neutrality level
+    /// whatever its work function (Cowley and Sze 1965).
+    #[test]
+    fn pinning_limits() {
+        let ev = Q;
+        let (chi, gap, cnl) = (4.2 * ev, 2.4 * ev, 4.6 * ev);
+        let free = barriers(5.1 * ev, 1.0, cnl, chi, gap);
+        assert!((free.electron - 0.9 * ev).abs() < 1e-12 * ev);
+        assert!((free.hole - 1.5 * ev).abs() < 1e-12 * ev);
+        for metal in [4.0, 4.5, 5.6] {
+            let pinned = barriers(metal * ev, 0.0, cnl, chi, gap);
+            assert!((pinned.electron - 0.4 * ev).abs() < 1e-12 * ev);
+            assert!((pinned.electron + pinned.hole - gap).abs() < 1e-12 * ev);
+        }
+    }
+
+    /// The exponential barrier's closed-form exponent against a numerical WKB integral of the
+    /// same profile, and the numerical WKB integral against the closed forms of a rectangular
+    /// barrier (`2 κ d`) and a triangular one (`(4/3) sqrt(ε_b)^3 / f` for a barrier falling
+    /// from `ε_b` at slope `f`, the Fowler-Nordheim exponent; Sze and Ng 2007, recalled).
+    #[test]
+    fn wkb_exponents_match_closed_forms() {
+        let (delta, length) = (12.0, 0.8);
+        for eps in [0.05, 1.0, 5.0, 11.9] {
+            let closed = exponential_barrier_exponent(delta, length, eps);
+            let numeric = length * wkb_exponent(|x| delta * (-x).exp(), eps, 40.0, 4000);
+            assert!(
+                ((closed - numeric) / closed).abs() < 1e-6,
+                "{eps}: {closed} {numeric}"
+            );
+        }
+        let rect = wkb_exponent(|x| if x < 3.0 { 7.0 } else { 0.0 }, 2.0, 3.0, 10);
+        assert!((rect - 2.0 * 5f64.sqrt() * 3.0).abs() < 1e-12);
+        let (top, slope) = (9.0, 2.0);
+        let tri = wkb_exponent(|x| top - slope * x, 0.0, 2.0 * top / slope, 400);
+        let fowler = 4.0 / 3.0 * top.powf(1.5) / slope;
+        assert!(((tri - fowler) / fowler).abs() < 1e-9, "{tri} {fowler}");
+    }
+
+    /// With no tunnelling (a barrier so long that nothing passes under its top) and a
+    /// nondegenerate reservoir, the injected current is the 2D thermionic law of Anwar et al.
+    /// 1999; the Richardson constant itself against an independent integration of the flux of
+    /// a 2D Maxwell-Boltzmann gas over the half plane `v_x > 0`.
+    #[test]
+    fn thermionic_limit_is_the_2d_richardson_law() {
+        let (m, gv, t) = (0.5 * M0, 2.0, 300.0);
+        let kt = K_B * t;
+        let (phi, eta) = (8.0, -20.0);
+        let j = injection_scale(m, gv, kt) * injection(phi, eta, 1e6);
+        let law = richardson_2d(m, gv) * t.powf(1.5) * (eta - phi).exp();
+        assert!(((j - law) / law).abs() < 1e-9, "{j} {law}");
+        // Flux q g ∫∫ v_x f d²k / (2π)² with f = e^{η - E/kT}, E = ħ² k² / 2m, over k_x > 0.
+        let g = 2.0 * gv;
+        let kscale = (2.0 * m * kt).sqrt() / HBAR;
+        let inner = |kx: f64| {
+            integrate(|ky: f64| (-(kx * kx + ky * ky)).exp(), -10.0, 10.0, 1e-15).integral
+        };
+        let flux = eta.exp() * integrate(|kx: f64| kx * inner(kx), 0.0, 10.0, 1e-15).integral;
+        // v_x = ħ k_x / m with k = kscale · (dimensionless).
+        let direct = Q * g / (4.0 * PI * PI) * HBAR * kscale.powi(3) / m * flux;
+        let law = richardson_2d(m, gv) * t.powf(1.5) * eta.exp();
+        assert!(((direct - law) / law).abs() < 1e-9, "{direct} {law}");
+    }
+
+    /// Tunnelling adds to the thermionic current and the total falls as the barrier lengthens;
+    /// a top at the channel's edge passes everything.
+    #[test]
+    fn tunnelling_adds_current_under_the_top() {
+        let (delta, eta) = (10.0, 2.0);
+        let thin = injection(delta, eta, 0.3);
+        let thick = injection(delta, eta, 3.0);
+        let over = sqrt_pi_fermi_half(eta - delta);
+        assert!(thin > thick && thick > over, "{thin} {thick} {over}");
+        assert_eq!(injection(-1.0, eta, 0.3), sqrt_pi_fermi_half(eta));
+    }
+}
