@@ -34,6 +34,7 @@ pub mod materials;
 pub mod mobility;
 pub mod physics;
 pub mod sheet_fet;
+pub mod short_channel;
 mod square_law;
 pub mod warnings;
 
