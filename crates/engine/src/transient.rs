@@ -45,6 +45,7 @@ use crate::dc::{OpInfo, OpParams, Probe};
 use crate::element::{Analysis, EvalContext};
 use crate::error::EngineError;
 use crate::lu::LuStats;
+use crate::stepping::{extrapolation_weights, milne_fraction, Controller};
 use crate::system::{Load, NewtonFailure, NewtonParams, System, Tolerances};
 
 /// Integration formula.
@@ -209,19 +210,22 @@ pub struct TransientResult {
 }
 
 struct History {
-    /// Accepted times and charges, newest first: index 0 is t_n.
+    /// Accepted times, charges and unknowns, newest first: index 0 is t_n.
     t: [f64; 3],
     q: [Vec<f64>; 3],
+    x: [Vec<f64>; 3],
     /// Accepted points since the last restart (t_n counts).
     valid: usize,
 }
 
 impl History {
-    fn push(&mut self, t: f64, q_rows: &[f64]) {
+    fn push(&mut self, t: f64, q_rows: &[f64], x: &[f64]) {
         self.q.rotate_right(1);
+        self.x.rotate_right(1);
         self.t.rotate_right(1);
         self.t[0] = t;
         self.q[0].copy_from_slice(q_rows);
+        self.x[0].copy_from_slice(x);
         self.valid = (self.valid + 1).min(3);
     }
 }
@@ -346,6 +350,7 @@ impl System {
         let mut hist = History {
             t: [0.0; 3],
             q: [q0.clone(), q0.clone(), q0.clone()],
+            x: [x.clone(), x.clone(), x.clone()],
             valid: 1,
         };
         // The charge rates at t = 0 from KCL at the start state; they seed the trapezoidal
@@ -381,8 +386,6 @@ impl System {
             }),
         };
         let mut t = 0.0;
-        let mut x_prev = x.clone();
-        let mut h_prev = 0.0;
         let mut x_new = vec![0.0; n];
         let mut stats = TransientStats::default();
         let mut restart = true;
@@ -394,7 +397,7 @@ impl System {
         };
         let fixed = matches!(p.stepping, Stepping::Fixed(_));
         let mut last_failure: Option<NewtonFailure> = None;
-        let mut just_rejected = false;
+        let mut control = Controller::default();
         let mut last_fail_time = 0.0;
 
         while t < p.stop_time * (1.0 - 1e-12) {
@@ -442,14 +445,15 @@ impl System {
                     }
                 };
             }
-            // Predictor: linear extrapolation of the last two accepted points.
-            if h_prev > 0.0 && !restart {
-                let r = step / h_prev;
-                for i in 0..n {
-                    x_new[i] = x[i] + (x[i] - x_prev[i]) * r;
-                }
+            // Predictor: the polynomial of the formula's order through the accepted points.
+            let m_pred = hist.valid.min(if method == Integrator::BackwardEuler {
+                2
             } else {
-                x_new.copy_from_slice(&x);
+                3
+            });
+            let w = extrapolation_weights(t_new, &hist.t, m_pred);
+            for i in 0..n {
+                x_new[i] = (0..m_pred).map(|j| w[j] * hist.x[j][i]).sum();
             }
             let ctx = EvalContext {
                 time: t_new,
@@ -471,6 +475,7 @@ impl System {
                     stats.rejected_newton += 1;
                     last_failure = Some(failure);
                     last_fail_time = t_new;
+                    control.reset();
                     h = step * 0.25;
                     continue;
                 }
@@ -479,59 +484,72 @@ impl System {
                 q_new[k] = self.q[r];
             }
 
-            // Truncation-error test.
-            let mut order = 1.0;
+            // Truncation-error test: Milne's device on the charges (see `stepping`).
+            let mut k_exp = 2.0;
             let mut ratio: Option<f64> = None;
             if !fixed && !rows.is_empty() {
-                let (t0, t1, t2) = (hist.t[0], hist.t[1], hist.t[2]);
-                let use_third = method != Integrator::BackwardEuler && hist.valid >= 3;
-                let use_second = hist.valid >= 2;
+                // Points the estimate needs: the formula's order plus one, with the new point.
+                let m_err = if method == Integrator::BackwardEuler {
+                    2
+                } else {
+                    3
+                };
                 let use_rate = hist.valid == 1 && rate_known;
-                if use_third || use_second || use_rate {
+                let m = if hist.valid >= m_err {
+                    m_err
+                } else {
+                    hist.valid.min(2)
+                };
+                if m >= 2 || use_rate {
+                    // Error coefficient of the formula on the derivative of order m.
+                    let coef = if m == 3 && method == Integrator::Trapezoidal {
+                        step.powi(3) / 12.0
+                    } else if m == 3 {
+                        let hp = hist.t[0] - hist.t[1];
+                        step * step * (step + hp).powi(2) / (6.0 * (2.0 * step + hp))
+                    } else {
+                        // A first-order estimate: backward Euler's, also used by the
+                        // second-order formulas until they have three points.
+                        0.5 * step * step
+                    };
+                    let (wq, frac) = if use_rate && m < 2 {
+                        // One point and its consistent rate: q^P = q_n + h q'_n, and the
+                        // same h²/2 q'' on both sides.
+                        ([1.0, 0.0, 0.0], 0.5)
+                    } else {
+                        (
+                            extrapolation_weights(t_new, &hist.t, m),
+                            milne_fraction(t_new, &hist.t, m, coef),
+                        )
+                    };
                     let mut worst = 0.0f64;
                     for k in 0..nr {
-                        let (qa, q0k, q1k) = (q_new[k], hist.q[0][k], hist.q[1][k]);
-                        let d10 = (qa - q0k) / (t_new - t0);
-                        let d21 = (q0k - q1k) / (t0 - t1);
-                        let dd2 = (d10 - d21) / (t_new - t1);
-                        let lte = if use_third {
-                            let d32 = (q1k - hist.q[2][k]) / (t1 - t2);
-                            let dd2b = (d21 - d32) / (t0 - t2);
-                            let dd3 = (dd2 - dd2b) / (t_new - t2);
-                            match method {
-                                Integrator::Trapezoidal => 0.5 * step.powi(3) * dd3.abs(),
-                                _ => {
-                                    let hp = t0 - t1;
-                                    step * step * (step + hp).powi(2) / (2.0 * step + hp)
-                                        * dd3.abs()
-                                }
-                            }
-                        } else if use_second {
-                            step * step * dd2.abs()
-                        } else {
-                            // Two points and the consistent rate at the first: h²|q''|/2.
-                            0.5 * step * ((qa - q0k) / step - qdot[k]).abs()
-                        };
-                        let e = lte / tol_of(k, qa, q0k, &qref);
+                        let mut qp = 0.0;
+                        for j in 0..m.max(1) {
+                            qp += wq[j] * hist.q[j][k];
+                        }
+                        if use_rate && m < 2 {
+                            qp += step * qdot[k];
+                        }
+                        let lte = frac * (q_new[k] - qp).abs();
+                        let e = lte / tol_of(k, q_new[k], hist.q[0][k], &qref);
                         if e > worst {
                             worst = e;
                         }
                     }
-                    order = if use_third { 2.0 } else { 1.0 };
+                    k_exp = if m == 3 { 3.0 } else { 2.0 };
                     ratio = Some(worst);
                 }
             }
             if let Some(r) = ratio {
                 if r > 1.0 {
                     stats.rejected_lte += 1;
-                    just_rejected = true;
-                    h = step * (0.9 * r.powf(-1.0 / (order + 1.0))).clamp(0.1, 0.9);
+                    h = control.rejected(step, r, k_exp);
                     continue;
                 }
             }
 
             // Accept.
-            let was_rejected = std::mem::replace(&mut just_rejected, false);
             for k in 0..nr {
                 qdot[k] = match method {
                     Integrator::BackwardEuler => (q_new[k] - hist.q[0][k]) / step,
@@ -540,11 +558,9 @@ impl System {
                 };
                 qref[k] = qref[k].max(q_new[k].abs());
             }
-            hist.push(t_new, &q_new);
+            hist.push(t_new, &q_new, &x_new);
             rate_known = true;
-            x_prev.copy_from_slice(&x);
             x.copy_from_slice(&x_new);
-            h_prev = step;
             t = t_new;
             stats.accepted += 1;
             restart = false;
@@ -558,12 +574,7 @@ impl System {
             h = match p.stepping {
                 Stepping::Fixed(hf) => hf,
                 Stepping::Adaptive => match ratio {
-                    Some(r) => {
-                        // No growth right after a rejection: it keeps the controller from
-                        // alternating between a too-long step and its retry.
-                        let grow = if was_rejected { 1.0 } else { 2.0 };
-                        step * (0.9 * r.max(1e-12).powf(-1.0 / (order + 1.0))).clamp(0.25, grow)
-                    }
+                    Some(r) => control.accepted(step, r, k_exp),
                     None => step * 1.5,
                 },
             };
@@ -572,6 +583,7 @@ impl System {
                 restart = true;
                 hist.valid = 1;
                 rate_known = false;
+                control.reset();
                 next_bp = self.next_breakpoint(t);
                 if let Some(bp) = next_bp {
                     h = h.min(0.1 * (bp - t)).max(h_min * 10.0);
