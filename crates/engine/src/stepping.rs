@@ -139,6 +139,16 @@ pub(crate) fn extrapolation_weights(t_new: f64, t: &[f64; 3], m: usize) -> [f64;
     }
 }
 
+/// `out = Σ_{j < m} w_j points_j`: the prediction from the newest `m` points.
+pub(crate) fn predict_into(w: &[f64; 3], points: &[Vec<f64>; 3], m: usize, out: &mut [f64]) {
+    out.fill(0.0);
+    for (wj, pj) in w.iter().zip(points).take(m) {
+        for (o, v) in out.iter_mut().zip(pj) {
+            *o += wj * v;
+        }
+    }
+}
+
 /// The fraction of the predictor-corrector difference that is the local truncation error, for
 /// a step `h` whose predictor used the points `t[..m]` (newest first) and a corrector whose
 /// error is `coef · q^{(m)}` (see the module doc).
