@@ -50,6 +50,7 @@ mod error;
 mod linear;
 pub mod lu;
 mod small_signal;
+mod stepping;
 mod system;
 mod transient;
 

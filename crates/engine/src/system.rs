@@ -150,6 +150,11 @@ pub struct NewtonParams {
     pub max_iterations: usize,
     /// Largest change of any voltage unknown in one iteration, in volts (default 0.5 V).
     pub max_voltage_step: f64,
+    /// A measured quadratic-convergence constant `m` (default none): an update `Δ` is also
+    /// accepted when the error it leaves, estimated as `m ‖Δ‖²` in units of the update
+    /// tolerances, is within them, even if the residual before it was not (the transient sets
+    /// it from `NewtonInfo::quadratic` of earlier steps).
+    pub quadratic: Option<f64>,
 }
 
 impl Default for NewtonParams {
@@ -158,6 +163,7 @@ impl Default for NewtonParams {
             tol: Tolerances::default(),
             max_iterations: 100,
             max_voltage_step: 0.5,
+            quadratic: None,
         }
     }
 }
@@ -167,8 +173,12 @@ impl Default for NewtonParams {
 pub struct NewtonInfo {
     /// Assemblies done, the accepting one included.
     pub iterations: usize,
-    /// Largest residual-to-tolerance ratio at the accepted point (<= 1).
+    /// Largest residual-to-tolerance ratio before the last update (<= 1 unless the update was
+    /// accepted through `NewtonParams::quadratic`).
     pub residual_ratio: f64,
+    /// `‖Δ_k‖ / ‖Δ_{k-1}‖²` of the last two updates in units of their tolerances, when there
+    /// were two: the constant of quadratic convergence.
+    pub quadratic: Option<f64>,
 }
 
 /// How a Newton solve failed.
@@ -659,6 +669,7 @@ impl System {
         params: &NewtonParams,
     ) -> Result<NewtonInfo, NewtonFailure> {
         let tol = params.tol;
+        let mut prev_norm = f64::NAN;
         for it in 1..=params.max_iterations {
             self.assemble(x, &load.ctx, load.a0);
             let (ratio, _) = self.residual(x, load, &tol);
@@ -687,17 +698,21 @@ impl System {
             } else {
                 1.0
             };
-            let mut delta_ok = lambda == 1.0 && ratio <= 1.0;
-            if delta_ok {
+            let mut norm = 0.0f64;
+            if lambda == 1.0 {
                 for i in 0..self.n {
                     let bound = tol.reltol * x[i].abs().max((x[i] + delta[i]).abs())
                         + self.unknown_abstol(i, &tol);
-                    if delta[i].abs() > bound {
-                        delta_ok = false;
-                        break;
-                    }
+                    norm = norm.max(delta[i].abs() / bound);
                 }
             }
+            let quadratic = (it > 1)
+                .then(|| norm / (prev_norm * prev_norm))
+                .filter(|m| m.is_finite());
+            let delta_ok = lambda == 1.0
+                && ((ratio <= 1.0 && norm <= 1.0)
+                    || params.quadratic.is_some_and(|m| m * norm * norm <= 1.0));
+            prev_norm = if lambda == 1.0 { norm } else { f64::NAN };
             if delta_ok {
                 // Accepted: the residual here passed and the correction from here is within
                 // tolerance. The solution also takes that last correction, and the charges the
@@ -713,6 +728,7 @@ impl System {
                 return Ok(NewtonInfo {
                     iterations: it,
                     residual_ratio: ratio,
+                    quadratic,
                 });
             }
             for i in 0..self.n {
