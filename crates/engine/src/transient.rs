@@ -136,6 +136,9 @@ pub struct TransientParams {
     pub damp_breakpoints: bool,
     /// Which samples to record (default every accepted step).
     pub output: Output,
+    /// Device bypass tolerance as a multiple of the Newton update tolerance (default 1; 0
+    /// evaluates every device at every iteration; see [`NewtonParams::bypass`]).
+    pub bypass: f64,
 }
 
 impl TransientParams {
@@ -156,6 +159,7 @@ impl TransientParams {
             gmin: 0.0,
             damp_breakpoints: true,
             output: Output::EveryStep,
+            bypass: 1.0,
         }
     }
 
@@ -242,7 +246,7 @@ impl System {
                 "transient stop time must be positive".into(),
             ));
         }
-        if !(p.lte_reltol > 0.0 && p.chgtol >= 0.0 && p.tol.reltol > 0.0) {
+        if !(p.lte_reltol > 0.0 && p.chgtol >= 0.0 && p.tol.reltol > 0.0 && p.bypass >= 0.0) {
             return Err(EngineError::Invalid(
                 "transient tolerances must be positive".into(),
             ));
@@ -272,6 +276,7 @@ impl System {
         }
         let (idx, names) = self.probe_unknowns(probes)?;
         let n = self.n;
+        self.reset_bypass();
 
         // Initial state.
         let mut x = vec![0.0; n];
@@ -332,6 +337,7 @@ impl System {
                 tol: p.tol,
                 max_iterations: 50,
                 max_voltage_step: f64::INFINITY,
+                bypass: 0.0,
             };
             if self.newton(&mut xc, &load, &newton).is_ok() {
                 for (k, &r) in rows.iter().enumerate() {
@@ -391,6 +397,7 @@ impl System {
             tol: p.tol,
             max_iterations: p.max_newton_iterations,
             max_voltage_step: p.max_voltage_step,
+            bypass: p.bypass,
         };
         let fixed = matches!(p.stepping, Stepping::Fixed(_));
         let mut last_failure: Option<NewtonFailure> = None;
