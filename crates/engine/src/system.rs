@@ -53,7 +53,8 @@
 //! predicted change are within what the Newton test already accepts as converged, so the
 //! bypass error is a fraction `δ / (2 V_nl)` of the Newton tolerance at the device's own
 //! scale. Measured (default `β = 1`): the demo 21-stage 2D-FET ring's frequency moves by 1e-7
-//! (its truncation error is 1.4e-4) and under `TransientParams::reference` by 6e-13.
+//! (the defaults' own error against the reference setting is 6e-5) and under
+//! `TransientParams::reference` by 6e-13.
 //!
 //! *Charge.* The stored charges are a function of the stored stamp and `x`, so the accepted
 //! state carries the expansion's charges, and the final correction carries them along as for
