@@ -629,6 +629,7 @@ pub struct System {
     /// Factorises the Newton matrix without the pinned unknowns when there are any.
     pub(crate) lu: SparseLu,
     reduction: Option<Reduction>,
+    any_bypassable: bool,
     bypass: BypassCache,
     evaluations: DeviceEvaluations,
 }
@@ -796,6 +797,7 @@ impl System {
             }
         }
         let charge_rows = (0..n).filter(|&i| is_charge_row[i]).collect();
+        let any_bypassable = plan.iter().any(|p| p.bypass);
         Ok(System {
             elements,
             element_names,
@@ -834,6 +836,7 @@ impl System {
             dql: vec![0.0; max_local * max_local],
             lu,
             reduction,
+            any_bypassable,
             bypass: BypassCache::default(),
             evaluations: DeviceEvaluations::default(),
         })
@@ -1083,12 +1086,14 @@ impl System {
         params: &NewtonParams,
     ) -> Result<NewtonInfo, NewtonFailure> {
         let tol = params.tol;
-        let rule = (params.bypass > 0.0 && load.ctx.analysis == Analysis::Transient).then_some(
-            BypassRule {
+        // A circuit without bypassable elements never allocates the stored stamps.
+        let rule = (self.any_bypassable
+            && params.bypass > 0.0
+            && load.ctx.analysis == Analysis::Transient)
+            .then_some(BypassRule {
                 beta: params.bypass,
                 tol,
-            },
-        );
+            });
         for it in 1..=params.max_iterations {
             self.assemble_with(x, &load.ctx, load.a0, rule);
             let (ratio, _) = self.residual(x, load, &tol);
