@@ -1,6 +1,7 @@
 //! One DC Newton iteration (assembly, fixed-pivot refactorisation, solve) of an N-stage
 //! square-law ring at its single-edge start state. Time per iteration should grow linearly
-//! with N; divide by N for the per-stage figure.
+//! with N; divide by N for the per-stage figure. The supply node and its source's current are
+//! pinned out of the factorised matrix (see the engine's `system` module doc).
 
 use lamina::builtin::{square_ring, SquareStage};
 use lamina_engine::System;

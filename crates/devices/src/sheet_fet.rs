@@ -2051,6 +2051,10 @@ impl Element for SheetFet {
         true
     }
 
+    fn bypassable(&self) -> bool {
+        true
+    }
+
     fn evaluate(&self, x: &[f64], _ctx: &EvalContext, out: &mut Stamp<'_>) {
         let (di, si) = self.layout();
         let d = di.unwrap_or(0);

@@ -183,6 +183,17 @@ pub trait Element: Send + Sync + std::fmt::Debug {
         false
     }
 
+    /// Whether the engine may skip this element's evaluation while its local unknowns stay
+    /// within a tolerance of the point it was last evaluated at, using the first-order
+    /// expansion of that evaluation instead (device bypass; see the `system` module doc for
+    /// the rule and its accuracy). Only an element whose evaluation depends on its local
+    /// unknowns alone (not on the time or the source scale) may return true, and only one
+    /// whose evaluation costs more than that expansion: a nonlinear device model. Default
+    /// false.
+    fn bypassable(&self) -> bool {
+        false
+    }
+
     /// Evaluates currents, charges and their derivatives at the local unknowns `x`.
     fn evaluate(&self, x: &[f64], ctx: &EvalContext, out: &mut Stamp<'_>);
 
@@ -190,6 +201,14 @@ pub trait Element: Send + Sync + std::fmt::Debug {
     /// (a source waveform's vertex), so the integrator can step onto it.
     fn next_breakpoint(&self, _after: f64) -> Option<f64> {
         None
+    }
+
+    /// Whether this is an ideal voltage source in the standard form: terminals `pos`, `neg`,
+    /// one internal branch current `i`, no charge, and `f = [i, -i, x_pos - x_neg - V]` with
+    /// `V` independent of the unknowns. The engine then takes a grounded source's node and
+    /// current out of the matrix it factorises (see the `system` module doc). Default false.
+    fn is_ideal_voltage_source(&self) -> bool {
+        false
     }
 
     /// Whether this is an independent source (scaled during source stepping, sweepable).

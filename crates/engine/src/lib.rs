@@ -65,7 +65,7 @@ pub use linear::{ElementLinearization, Linearization};
 pub use small_signal::{
     SmallSignalInfo, SmallSignalParams, SmallSignalResult, SmallSignalSolver, SourceKind,
 };
-pub use system::{NewtonInfo, NewtonParams, System, Tolerances};
+pub use system::{DeviceEvaluations, NewtonInfo, NewtonParams, System, Tolerances};
 pub use transient::{
     Control, Decimator, Integrator, Observer, Output, Start, Stepping, TransientParams,
     TransientResult, TransientStats,

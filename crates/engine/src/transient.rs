@@ -143,6 +143,9 @@ pub struct TransientParams {
     pub damp_breakpoints: bool,
     /// Which samples to record (default every accepted step).
     pub output: Output,
+    /// Device bypass tolerance as a multiple of the Newton update tolerance (default 1; 0
+    /// evaluates every device at every iteration; see [`NewtonParams::bypass`]).
+    pub bypass: f64,
 }
 
 impl TransientParams {
@@ -163,6 +166,7 @@ impl TransientParams {
             gmin: 0.0,
             damp_breakpoints: true,
             output: Output::EveryStep,
+            bypass: 1.0,
         }
     }
 
@@ -252,7 +256,7 @@ impl System {
                 "transient stop time must be positive".into(),
             ));
         }
-        if !(p.lte_reltol > 0.0 && p.chgtol >= 0.0 && p.tol.reltol > 0.0) {
+        if !(p.lte_reltol > 0.0 && p.chgtol >= 0.0 && p.tol.reltol > 0.0 && p.bypass >= 0.0) {
             return Err(EngineError::Invalid(
                 "transient tolerances must be positive".into(),
             ));
@@ -282,6 +286,7 @@ impl System {
         }
         let (idx, names) = self.probe_unknowns(probes)?;
         let n = self.n;
+        self.reset_bypass();
 
         // Initial state.
         let mut x = vec![0.0; n];
@@ -343,6 +348,7 @@ impl System {
                 max_iterations: 50,
                 max_voltage_step: f64::INFINITY,
                 quadratic: None,
+                bypass: 0.0,
             };
             if self.newton(&mut xc, &load, &newton).is_ok() {
                 for (k, &r) in rows.iter().enumerate() {
@@ -403,6 +409,7 @@ impl System {
             max_iterations: p.max_newton_iterations,
             max_voltage_step: p.max_voltage_step,
             quadratic: None,
+            bypass: p.bypass,
         };
         let fixed = matches!(p.stepping, Stepping::Fixed(_));
         let mut last_failure: Option<NewtonFailure> = None;

@@ -54,6 +54,9 @@ impl Element for VoltageSource {
     fn next_breakpoint(&self, after: f64) -> Option<f64> {
         self.waveform.next_breakpoint(after)
     }
+    fn is_ideal_voltage_source(&self) -> bool {
+        true
+    }
     fn is_independent_source(&self) -> bool {
         true
     }

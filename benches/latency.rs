@@ -1,0 +1,40 @@
+//! Latency: transients over the same window with device bypass on (the default tolerance) and
+//! off. The demo 21-stage 2D-FET ring (4 ns, about three periods, from the single-edge start),
+//! where device evaluation dominates; the 101-stage square-law ring (16 ns, two periods), whose
+//! square-law devices do not opt into bypass (their evaluation is cheaper than the expansion)
+//! and so show what the pinned supply alone saves.
+
+use lamina::builtin::{square_ring, SquareStage};
+use lamina::design::{load, ring_from};
+use lamina::ring::{single_edge_start, RingParams};
+use lamina_engine::{Output, Probe, System, TransientParams};
+use std::path::Path;
+
+fn main() {
+    divan::main();
+}
+
+fn window(sys: &mut System, start: &lamina_engine::Start, probe: Probe, stop: f64, bypass: f64) {
+    let mut p = TransientParams::new(stop);
+    p.output = Output::Streaming;
+    p.bypass = bypass;
+    divan::black_box(sys.transient(&p, start, &[probe], None).unwrap());
+}
+
+#[divan::bench(args = [0.0, 1.0], sample_count = 5, sample_size = 1)]
+fn demo_ring_21_four_ns(bencher: divan::Bencher, bypass: f64) {
+    let design = load(Path::new("netlists/demo/ring-21.lam"), &[]).unwrap();
+    let (mut sys, ring, _) = ring_from(design, &RingParams::default()).unwrap();
+    let start = single_edge_start(&ring);
+    let probe = Probe::Voltage(ring.outputs[0]);
+    bencher.bench_local(|| window(&mut sys, &start, probe, 4e-9, bypass));
+}
+
+#[divan::bench(args = [0.0, 1.0], sample_count = 5, sample_size = 1)]
+fn square_ring_101_sixteen_ns(bencher: divan::Bencher, bypass: f64) {
+    let (circuit, ring) = square_ring(101, &SquareStage::default()).unwrap();
+    let mut sys = System::new(circuit).unwrap();
+    let start = single_edge_start(&ring);
+    let probe = Probe::Voltage(ring.outputs[0]);
+    bencher.bench_local(|| window(&mut sys, &start, probe, 16e-9, bypass));
+}
