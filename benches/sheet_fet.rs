@@ -22,7 +22,7 @@ fn card() -> SheetFetCard {
 
 /// Median over bias points spread across off, subthreshold, linear and saturation, both
 /// polarities of V_DS, including the small-V_DS branch.
-#[divan::bench(sample_count = 200)]
+#[divan::bench(sample_count = 200, sample_size = 64)]
 fn evaluate(bencher: divan::Bencher) {
     bench_points(bencher, |k| {
         let vg = -0.5 + 1.5 * ((k * 37) % 64) as f64 / 63.0;
@@ -33,7 +33,7 @@ fn evaluate(bencher: divan::Bencher) {
 
 /// The small-V_DS branch alone: |V_DS| below 1 mV (a settled stage's conducting device),
 /// gate swept across off, subthreshold and strong inversion.
-#[divan::bench(sample_count = 200)]
+#[divan::bench(sample_count = 200, sample_size = 64)]
 fn evaluate_small_vds(bencher: divan::Bencher) {
     bench_points(bencher, |k| {
         let vg = -0.5 + 1.5 * ((k * 37) % 64) as f64 / 63.0;
@@ -43,7 +43,7 @@ fn evaluate_small_vds(bencher: divan::Bencher) {
 }
 
 /// |V_DS| from 1 mV to 10 mV: the range the small-V_DS form once covered.
-#[divan::bench(sample_count = 200)]
+#[divan::bench(sample_count = 200, sample_size = 64)]
 fn evaluate_few_millivolts(bencher: divan::Bencher) {
     bench_points(bencher, |k| {
         let vg = -0.5 + 1.5 * ((k * 37) % 64) as f64 / 63.0;
