@@ -39,25 +39,59 @@
 //! ```
 //!
 //! so `Q_G + Q_D + Q_S = 0` by construction (the constant dopant and fixed charges carry no
-//! current and are left out of the terminal charges). For `|V_DS|` below `0.4 kT/q` (10.3 mV at 300 K) the
-//! same quantities are taken as means along the channel with a four-point Gauss-Legendre rule
-//! (within about 2e-13 of the exact means there, at any temperature), which
-//! has no `0/0` and is smooth through `V_DS = 0`. Source and drain enter symmetrically.
+//! current and are left out of the terminal charges). Source and drain enter symmetrically.
+//!
+//! # Evaluation branches
+//! The current is `(W/L) ΔS` from the tabulated `S` on every branch, so it is exact to the
+//! tables and continuous everywhere. The charges have two forms:
+//!
+//! * `|V_DS| >= 0.2 kT/q` (5.2 mV at 300 K): the formulas above from `S`, `A` and `B` at the
+//!   two ends (two table look-ups).
+//! * `|V_DS| < 0.2 kT/q`: `Q_D` divides a second-order difference by `ΔS²`, so there the
+//!   interpolation errors of the tables (A's and B's interpolants are not exactly the
+//!   integrals of the interpolated ρσ and Sρσ) grow like `1/V_DS`, and at `V_DS = 0` it is
+//!   `0/0`. Instead, with `m = (u_s + u_d)/2`, `δ = (u_s - u_d)/2` and the Taylor coefficients
+//!   `s_k`, `g_k` of σ and of `g = ρσ` at `m` (from the interval's Hermite cubics, one
+//!   look-up; `g_k` by Leibniz's rule), the exact means expand as
+//!
+//! ```text
+//! ΔS / 2δ        = s0 + s2 δ²/6                        (exact for the cubic σ)
+//! ΔA / 2δ        = g0 + g2 δ²/6 + g4 δ⁴/120
+//! Q_D ΔS² / W L (2δ)² = g0 s0/2 + (g0 s1 - g1 s0) δ/6 + (g0 s2 + g2 s0) δ²/12
+//!                + (g0 s3 - g1 s2 + g2 s1 - g3 s0) δ³/60 + (10 g2 s2 + 3 g4 s0) δ⁴/720
+//! ```
+//!
+//!   (`Q_ch = W L <ρσ>/<σ>`; the `Q_D` series is `∫ (S_s - S) ρσ du` integrated term by term).
+//!   The neglected terms are of relative order `(λ δ)⁵/5040`, with `λ` the fastest
+//!   logarithmic slope of σ and ρσ (at most about `3/V_T` in subthreshold), and the cubics'
+//!   third derivatives hold only within an interval (knots `V_T/10` apart are crossed);
+//!   measured against quadrature of the interpolated σ and ρ, the series is within 3.3e-6 at
+//!   the switch, falling about tenfold per halving of `V_DS` (300 K, relative to the charge or
+//!   to a thousandth of `C_ins V_T`, whichever is larger; smaller at 77 K and 4 K).
+//!   The `m`-derivative of each coefficient is the next coefficient, so the Jacobian is the
+//!   derivative of the returned charges.
+//!
+//! At the switch the two forms differ by the tables' own inconsistency there: at most 8e-5 of
+//! `Q_D` at 300 K (2.6e-4 at 4 K, where the capped grid is coarse), first derivatives within
+//! 5e-3 of the largest (tests in this module). The switch sits where the series' error and
+//! the tabulated form's `1/V_DS` error are of the same order; it scales with `kT/q` because
+//! both errors do.
 //!
 //! # Tables
 //! `S`, `A`, `B`, `σ` and `ρ` are tabulated once per gate stack on a uniform core grid
 //! (spacing `V_T / 10`, 8 V either side of the midgap point) and interpolated with Hermite
 //! polynomials that use the exact derivatives (cubics, except `S`: a quintic through `σ'` as
-//! well, whose derivative is then exactly the cubic of σ), so currents and charges are C¹ in
-//! the terminal voltages and the Jacobian (by forward-mode differentiation) is exactly the
-//! derivative of what is returned.
+//! well, whose derivative is then exactly the cubic of σ, and `B`: a quintic through
+//! `B'' = σ ρσ + S (ρσ)'`, which cuts the drain charge's error at small `V_DS` threefold), so
+//! currents and charges are C¹ in the terminal voltages on each branch and the Jacobian (by
+//! forward-mode differentiation in the two end potentials, or written out for the series) is
+//! exactly the derivative of what is returned.
 //!
 //! Beyond the core, extensions reach at least ±[`U_REACH`] = ±1000 V of `u` (a back gate on
 //! 285 nm of SiO2 swept to ±100 V sits well inside): their knots are placed adaptively, each
 //! step doubling while σ, ρ and their derivatives stay within 1e-8 of the direct solve at a
 //! quarter, half and three quarters of it and halving (down to the core spacing) otherwise,
-//! and no wider than 5 % of its distance from the midgap point; `B` takes a quintic through
-//! `B''` there. Each side holds at most [`MAX_EXTENSION_POINTS`] knots (a few
+//! and no wider than 5 % of its distance from the midgap point. Each side holds at most [`MAX_EXTENSION_POINTS`] knots (a few
 //! hundred in practice), and an extension ends early only where the local solve fails (a
 //! Dirac gate that cannot carry the charge within ±20 eV). Inside
 //! [`SheetModel::valid_u_range`] currents, charges and their derivatives agree with the direct
@@ -70,8 +104,8 @@
 //! a metal gate, but no longer the solved physics; a caller detects this by comparing
 //! `V_G - V_D` and `V_G - V_S` with the valid range.
 //!
-//! The core grid has at most [`MAX_TABLE_POINTS`] points (3.7 MB of tables per stack, and
-//! at most 0.5 MB more for the extensions). Below about
+//! The core grid has at most [`MAX_TABLE_POINTS`] points (4.2 MB of tables per stack, and
+//! at most 0.6 MB more for the extensions). Below about
 //! 28 K, where `V_T / 10` would need more, the spacing coarsens to 16 V / 65,536 = 0.244 mV and
 //! the interpolation error grows where σ turns on: for the default card the tabulated σ is
 //! within 3e-7 of the direct solve at 30 K and above, 1.1e-6 at 20 K, 7e-4 at 4 K and 0.22 at
@@ -1373,14 +1407,14 @@ const POINTS_PER_VT: f64 = 10.0;
 /// Half-width of the tabulated `u` range around the flat-band point (V).
 const U_HALF_RANGE: f64 = 8.0;
 /// The most grid points one model tabulates: 2^16 intervals over the 16 V range (0.244 mV
-/// spacing). Each point holds seven `f64` values, so one model's tables stay within
-/// 65,537 × 7 × 8 bytes = 3.7 MB. At `V_T / 10` spacing the cap is reached at about 28 K.
+/// spacing). Each point holds eight `f64` values, so one model's tables stay within
+/// 65,537 × 8 × 8 bytes = 4.2 MB. At `V_T / 10` spacing the cap is reached at about 28 K.
 pub const MAX_TABLE_POINTS: usize = 65_537;
 /// The tables reach at least this far (V) from zero gate drive on both sides: ten times the
 /// ±100 V of a back gate on a thick oxide, the largest sweep in common use (common practice).
 pub const U_REACH: f64 = 1000.0;
-/// The most knots of each extension beyond the core grid (eight `f64` values each, so both
-/// together stay within 0.5 MB).
+/// The most knots of each extension beyond the core grid (nine `f64` values each, so both
+/// together stay within 0.6 MB).
 pub const MAX_EXTENSION_POINTS: usize = 4096;
 /// How far (V) the flat-band point may lie from zero gate drive: beyond it the grid spacing
 /// would drown in the rounding of `u` itself.
@@ -2026,12 +2060,11 @@ const SOURCE_ONLY: &[Internal] = &[Internal {
     kind: UnknownKind::Voltage,
 }];
 
-/// Below this |V_DS|, in thermal voltages, the mean-value formulation is used: four-point
-/// Gauss-Legendre means are then within about `0.4^8 x 2.9e-10 = 2e-13` of the exact ones even
-/// where the conductance is exponential in `u` (the rule's error term). The switch scales with
-/// `kT/q` (10.3 mV at 300 K, close to the fixed 10 mV it replaces) so that this holds at any
-/// temperature: a fixed 10 mV was 29 thermal voltages at 4 K, where a four-point rule is far
-/// from the integral of a conductance that grows e^29-fold along the channel.
+/// Below this |V_DS|, in thermal voltages, the charges take the series about the mid-channel
+/// potential (module docs, "Evaluation branches"): there its error (3.3e-6 at the switch,
+/// falling about tenfold per halving of `V_DS`) is below that of the tabulated-integral form (8e-5 at the
+/// switch, growing as `1/V_DS` below it). Both errors scale with `kT/q`, so the switch does: a
+/// fixed voltage would be many thermal voltages at 4 K.
 const SMALL_VDS_VT: f64 = 0.2;
 
 impl SheetFet {
@@ -2359,9 +2392,8 @@ mod evaluation_branches {
         (x - reference).abs() / reference.abs().max(floor)
     }
 
-    /// Measured worst cases over V_G from -0.4 to 1.2 V (off to strong inversion) at 300 K:
-    /// 2.0e-6 (Q_ch) and 1.9e-6 (Q_D) at the switch, 1.5e-7 and 2.2e-7 at half of it;
-    /// smaller at 77 K and 4 K, where the table knots are wider in units of kT/q.
+    /// Measured worst case over V_G from -0.4 to 1.2 V (off to strong inversion) at 300 K:
+    /// 3.3e-6 at the switch (relative as in `rel`); smaller at 77 K and 4 K.
     #[test]
     fn small_vds_series_matches_the_mean_value_integrals() {
         for card in cards() {

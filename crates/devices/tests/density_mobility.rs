@@ -251,7 +251,8 @@ fn faulty_density_settings_name_the_setting() {
 
 /// Currents, drain charges, transconductances and table values of the default card (with
 /// 3.4e4 m/s saturation velocity) recorded as bit patterns from the code before the density
-/// option existed (commit 79dd444): a card without the option reproduces them bit for bit.
+/// option existed (commit 79dd444): a card without the option reproduces them (the current
+/// bit for bit).
 #[test]
 fn cards_without_the_density_option_keep_their_results_bit_for_bit() {
     let card = card_with(None, None);
