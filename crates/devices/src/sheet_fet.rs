@@ -1954,27 +1954,33 @@ fn small_vds_charges(t: &Tables, m: f64, d: f64) -> (Ends, Ends) {
     let g4 = 4.0 * (r3 * s1 + r1 * s3) + 6.0 * r2 * s2;
     let g5 = 10.0 * (r3 * s2 + r2 * s3);
     let d2 = d * d;
+    // Constant divisions are written as products with reciprocals, which fold at compile
+    // time (a division by 6.0 is not exactly a product, so the compiler keeps it otherwise).
     // <σ> = ΔS / (2δ) and <ρσ> = ΔA / (2δ), with their m- and δ-derivatives.
-    let msig = [s0 + s2 * d2 / 6.0, s1 + s3 * d2 / 6.0, s2 * d / 3.0];
+    let msig = [
+        s0 + s2 * d2 * (1.0 / 6.0),
+        s1 + s3 * d2 * (1.0 / 6.0),
+        s2 * d * (1.0 / 3.0),
+    ];
     let mg = [
-        g0 + (g2 + g4 * d2 / 20.0) * d2 / 6.0,
-        g1 + (g3 + g5 * d2 / 20.0) * d2 / 6.0,
-        (g2 + g4 * d2 / 10.0) * d / 3.0,
+        g0 + (g2 + g4 * d2 * (1.0 / 20.0)) * d2 * (1.0 / 6.0),
+        g1 + (g3 + g5 * d2 * (1.0 / 20.0)) * d2 * (1.0 / 6.0),
+        (g2 + g4 * d2 * (1.0 / 10.0)) * d * (1.0 / 3.0),
     ];
     // N / (2δ)² = Σ c_k δ^k, N = S_s ΔA - ΔB (the module docs), and the m-derivatives c_k'.
     let c = [
         0.5 * g0 * s0,
-        (g0 * s1 - g1 * s0) / 6.0,
-        (g0 * s2 + g2 * s0) / 12.0,
-        (g0 * s3 - g1 * s2 + g2 * s1 - g3 * s0) / 60.0,
-        (10.0 * g2 * s2 + 3.0 * g4 * s0) / 720.0,
+        (g0 * s1 - g1 * s0) * (1.0 / 6.0),
+        (g0 * s2 + g2 * s0) * (1.0 / 12.0),
+        (g0 * s3 - g1 * s2 + g2 * s1 - g3 * s0) * (1.0 / 60.0),
+        (10.0 * g2 * s2 + 3.0 * g4 * s0) * (1.0 / 720.0),
     ];
     let dc = [
         0.5 * (g1 * s0 + g0 * s1),
-        (g0 * s2 - g2 * s0) / 6.0,
-        (g1 * s2 + g0 * s3 + g3 * s0 + g2 * s1) / 12.0,
-        -g4 * s0 / 60.0,
-        (10.0 * (g3 * s2 + g2 * s3) + 3.0 * (g5 * s0 + g4 * s1)) / 720.0,
+        (g0 * s2 - g2 * s0) * (1.0 / 6.0),
+        (g1 * s2 + g0 * s3 + g3 * s0 + g2 * s1) * (1.0 / 12.0),
+        -g4 * s0 * (1.0 / 60.0),
+        (10.0 * (g3 * s2 + g2 * s3) + 3.0 * (g5 * s0 + g4 * s1)) * (1.0 / 720.0),
     ];
     let n = [
         c[0] + d * (c[1] + d * (c[2] + d * (c[3] + d * c[4]))),
