@@ -2185,29 +2185,26 @@ impl SheetFet {
     fn saturation_factor(&self, ss: Ends, sd: Ends, ds: Ends) -> Ends {
         let vt = self.model.stack.vt;
         // σ at the better-conducting end (the source side in normal operation, for either
-        // carrier), as the smooth 4-norm max(σ_s, σ_d) = big (1 + r⁴)^(1/4), r = small / big:
-        // symmetric in source and drain, smooth through V_DS = 0, and almost independent of
-        // the far end once it is off. With w = 1 + r⁴ and p = w^(1/4):
-        // dσ = (p / w) (d big + r³ d small), and 1/σ = p w^(1/2) / (w big).
+        // carrier), as the smooth 4-norm max(σ_s, σ_d) = big w^(1/4), w = 1 + r⁴,
+        // r = small / big: symmetric in source and drain, smooth through V_DS = 0, and almost
+        // independent of the far end once it is off. Only σ² = big² w^(1/2) is needed below,
+        // and d ln σ = (d big + r³ d small) / (w big).
         let (big, small) = if ss.v >= sd.v { (ss, sd) } else { (sd, ss) };
         let inv_big = 1.0 / big.v;
         let r = small.v * inv_big;
         let r3 = r * r * r;
         let w = 1.0 + r3 * r;
         let inv_w = 1.0 / w;
-        let sw = w.sqrt();
-        let p = sw.sqrt();
-        let p_w = p * inv_w;
-        let dsig = [0, 1].map(|k| p_w * (big.d[k] + r3 * small.d[k]));
-        let inv_sig = inv_big * p_w * sw;
-        // z = ΔS / σ and V_eff = sqrt(z² + V_T²) - V_T = z² / (sqrt(z² + V_T²) + V_T): the |ΔS|
-        // rounding over one thermal voltage keeps every derivative smooth on the scale of kT/q
-        // around V_DS = 0 and changes nothing at the fields where saturation acts.
-        let z = ds.v * inv_sig;
-        let dz = [0, 1].map(|k| (ds.d[k] - z * dsig[k]) * inv_sig);
-        let root = (z * z + vt * vt).sqrt();
+        let inv_sig2 = inv_big * inv_big * w.sqrt() * inv_w;
+        // a = z², z = ΔS / σ, and V_eff = sqrt(a + V_T²) - V_T = a / (sqrt(a + V_T²) + V_T):
+        // the |ΔS| rounding over one thermal voltage keeps every derivative smooth on the scale
+        // of kT/q around V_DS = 0 and changes nothing at the fields where saturation acts.
+        let a = ds.v * ds.v * inv_sig2;
+        let (two_ds, two_a) = (2.0 * ds.v * inv_sig2, 2.0 * a * inv_w * inv_big);
+        let da = [0, 1].map(|k| two_ds * ds.d[k] - two_a * (big.d[k] + r3 * small.d[k]));
+        let root = (a + vt * vt).sqrt();
         let inv = 1.0 / (root * (root + vt));
-        let veff = z * z * root * inv;
+        let veff = a * root * inv;
         if veff <= 0.0 {
             return Ends::c(1.0);
         }
@@ -2224,11 +2221,11 @@ impl SheetFet {
             let y = (1.0 + xb).powf(-1.0 / self.beta);
             (y, -xb / x * y / (1.0 + xb))
         };
-        // dy/dz = dy/dx (dx/dV_eff) dV_eff/dz, dV_eff/dz = z / root.
-        let dy_dz = dy * self.inv_saturation_voltage * z * (root + vt) * inv;
+        // dy/da = dy/dx (dx/dV_eff) dV_eff/da, dV_eff/da = 1 / (2 root).
+        let dy_da = dy * self.inv_saturation_voltage * 0.5 * (root + vt) * inv;
         Ends {
             v: y,
-            d: dz.map(|d| dy_dz * d),
+            d: da.map(|d| dy_da * d),
         }
     }
 

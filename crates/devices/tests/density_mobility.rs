@@ -261,7 +261,7 @@ fn cards_without_the_density_option_keep_their_results_bit_for_bit() {
         let r = fet.intrinsic(vd, vg, 0.0);
         assert_eq!(r.current.v.to_bits(), bits[0], "{vd} V, {vg} V");
         // Q_D and g_m to 1e-9: the drain-charge table's quintic and the velocity-saturation
-        // factor's rewriting (issue 14) moved them by rounding (at most 1e-10 and 1e-13).
+        // factor's rewriting (issue 14) moved them by rounding, far less than this.
         for (got, bits) in [r.q_drain.v, r.current.d[1]].iter().zip(&bits[1..]) {
             let want = f64::from_bits(*bits);
             assert!(
