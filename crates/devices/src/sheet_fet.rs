@@ -73,9 +73,10 @@
 //!
 //! At the switch the two forms differ by the tables' own inconsistency there: at most 8e-5 of
 //! `Q_D` at 300 K (2.6e-4 at 4 K, where the capped grid is coarse), first derivatives within
-//! 5e-3 of the largest (tests in this module). The switch sits where the series' error and
-//! the tabulated form's `1/V_DS` error are of the same order; it scales with `kT/q` because
-//! both errors do.
+//! 5e-3 of the largest (1.2e-2 at 4 K; tests in this module). The switch balances the series'
+//! error, which grows fast with `V_DS`, against the tabulated form's, which grows as `1/V_DS`
+//! below it: at 0.2 kT/q both stay below the 1.3e-4 by which the drain charge jumped at the
+//! former switch (0.4 kT/q, quadrature below it). It scales with `kT/q` because both errors do.
 //!
 //! # Tables
 //! `S`, `A`, `B`, `σ` and `ρ` are tabulated once per gate stack on a uniform core grid
