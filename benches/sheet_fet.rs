@@ -21,8 +21,8 @@ fn card() -> SheetFetCard {
 }
 
 /// Median over bias points spread across off, subthreshold, linear and saturation, both
-/// polarities of V_DS, including the small-V_DS branch.
-#[divan::bench(sample_count = 200)]
+/// polarities of V_DS (|V_DS| >= 9.5 mV: the tabulated-integral branch).
+#[divan::bench(sample_count = 200, sample_size = 64)]
 fn evaluate(bencher: divan::Bencher) {
     bench_points(bencher, |k| {
         let vg = -0.5 + 1.5 * ((k * 37) % 64) as f64 / 63.0;
@@ -31,9 +31,10 @@ fn evaluate(bencher: divan::Bencher) {
     });
 }
 
-/// The small-V_DS branch alone: |V_DS| below 1 mV (a settled stage's conducting device),
-/// gate swept across off, subthreshold and strong inversion.
-#[divan::bench(sample_count = 200)]
+/// The small-V_DS branch (the series about the mid-channel potential) alone: |V_DS| below
+/// 1 mV (a settled stage's conducting device), gate swept across off, subthreshold and strong
+/// inversion.
+#[divan::bench(sample_count = 200, sample_size = 64)]
 fn evaluate_small_vds(bencher: divan::Bencher) {
     bench_points(bencher, |k| {
         let vg = -0.5 + 1.5 * ((k * 37) % 64) as f64 / 63.0;
@@ -42,12 +43,23 @@ fn evaluate_small_vds(bencher: divan::Bencher) {
     });
 }
 
-/// |V_DS| from 1 mV to 10 mV: the range the small-V_DS form once covered.
-#[divan::bench(sample_count = 200)]
+/// |V_DS| from 1 mV to 10 mV: across the switch between the two forms (0.2 kT/q, 5.2 mV at
+/// 300 K); the range the quadrature form once covered.
+#[divan::bench(sample_count = 200, sample_size = 64)]
 fn evaluate_few_millivolts(bencher: divan::Bencher) {
     bench_points(bencher, |k| {
         let vg = -0.5 + 1.5 * ((k * 37) % 64) as f64 / 63.0;
         let vd = 1e-3 + 9e-3 * ((k * 11) % 64) as f64 / 63.0;
+        [vd, vg, 0.0]
+    });
+}
+
+/// Gate voltages beyond the tables' reach (1000 V): the linear continuation of σ and ρ.
+#[divan::bench(sample_count = 200, sample_size = 64)]
+fn evaluate_beyond_tables(bencher: divan::Bencher) {
+    bench_points(bencher, |k| {
+        let vg = 1200.0 + 300.0 * ((k * 37) % 64) as f64 / 63.0;
+        let vd = -0.2 + 1.2 * ((k * 11) % 64) as f64 / 63.0;
         [vd, vg, 0.0]
     });
 }

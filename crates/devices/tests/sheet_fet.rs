@@ -481,11 +481,11 @@ fn cards_without_a_second_extra_valley_keep_their_results_bit_for_bit() {
     }
 }
 
-/// The small-V_DS form (four-point Gauss-Legendre means below 0.4 kT/q) against the exact
-/// difference of the tabulated integral `S`, whose derivative is the tabulated σ (so the
-/// difference is the exact integral of what the rule samples), at 300 K and at 4 K, from off
-/// through threshold into strong inversion, just below the switch to the exact form and at a
-/// tenth of it; and the two forms meet at the switch. No velocity saturation, so
+/// Small drain voltages (below 0.4 kT/q, where a Gauss-Legendre mean-value form was once
+/// used; since issue 14 the current is the difference of `S` on every branch and only the
+/// charges change form, at 0.2 kT/q) against the exact difference of the tabulated integral
+/// `S`, whose derivative is the tabulated σ, at 300 K and at 4 K, from off through threshold
+/// into strong inversion, and continuity across 0.4 kT/q. No velocity saturation, so
 /// `I_D = (W/L) ∫ σ du` exactly.
 #[test]
 fn small_drain_voltages_agree_with_the_exact_integral_at_any_temperature() {
