@@ -2196,12 +2196,15 @@ impl SheetFet {
         let r3 = r * r * r;
         let w = 1.0 + r3 * r;
         let inv_w = 1.0 / w;
-        let inv_sig2 = inv_big * inv_big * w.sqrt() * inv_w;
+        // σ⁻² = big⁻² w^(-1/2), applied as (ΔS / big)² so that a deep-off σ (big below
+        // 1e-154, as at cryogenic temperatures) does not overflow its square.
+        let sw_w = w.sqrt() * inv_w;
+        let q = ds.v * inv_big;
         // a = z², z = ΔS / σ, and V_eff = sqrt(a + V_T²) - V_T = a / (sqrt(a + V_T²) + V_T):
         // the |ΔS| rounding over one thermal voltage keeps every derivative smooth on the scale
         // of kT/q around V_DS = 0 and changes nothing at the fields where saturation acts.
-        let a = ds.v * ds.v * inv_sig2;
-        let (two_ds, two_a) = (2.0 * ds.v * inv_sig2, 2.0 * a * inv_w * inv_big);
+        let a = q * q * sw_w;
+        let (two_ds, two_a) = (2.0 * q * sw_w * inv_big, 2.0 * a * inv_w * inv_big);
         let da = [0, 1].map(|k| two_ds * ds.d[k] - two_a * (big.d[k] + r3 * small.d[k]));
         let root = (a + vt * vt).sqrt();
         let inv = 1.0 / (root * (root + vt));

@@ -46,6 +46,14 @@ pub enum EngineError {
         /// The unknown whose column broke the elimination, with its elements.
         culprit: Culprit,
     },
+    /// An element returned a current or charge that is not a finite number (a device model
+    /// outside the range where its arithmetic holds).
+    NotANumber {
+        /// Which analysis and, in time, when.
+        context: String,
+        /// The unknown whose equation received it, with its elements.
+        culprit: Culprit,
+    },
     /// Newton iteration did not converge.
     NoConvergence {
         /// Which analysis and, in time, when.
@@ -90,6 +98,13 @@ impl fmt::Display for EngineError {
                 f,
                 "{context}: the circuit matrix is singular at {}; give this node a path to ground \
                  or check for loops of voltage sources",
+                culprit
+            ),
+            EngineError::NotANumber { context, culprit } => write!(
+                f,
+                "{context}: an element returned a value that is not a number in the equation of \
+                 {}; the device model has left the range where its arithmetic holds at this \
+                 bias: check its parameters and the bias, and report it if they are plausible",
                 culprit
             ),
             EngineError::NoConvergence {

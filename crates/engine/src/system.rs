@@ -554,8 +554,16 @@ pub struct NewtonInfo {
 /// How a Newton solve failed.
 #[derive(Clone, Debug, PartialEq)]
 pub(crate) enum NewtonFailure {
-    Singular { unknown: usize },
-    NoConvergence { worst: Vec<(usize, f64, f64)> },
+    Singular {
+        unknown: usize,
+    },
+    /// An element returned a current or charge that is not a finite number on this row.
+    NotANumber {
+        unknown: usize,
+    },
+    NoConvergence {
+        worst: Vec<(usize, f64, f64)>,
+    },
 }
 
 /// The extra terms one solve adds to the plain assembled system.
@@ -1109,6 +1117,11 @@ impl System {
             self.assemble_with(x, &load.ctx, load.a0, rule);
             let (ratio, _) = self.residual(x, load, &tol);
             let mut delta = std::mem::take(&mut self.rhs);
+            // A device that returns NaN or infinity is named as such, not as a singular matrix.
+            if let Some(unknown) = delta.iter().position(|r| !r.is_finite()) {
+                self.rhs = delta;
+                return Err(NewtonFailure::NotANumber { unknown });
+            }
             let solved = self.solve_update(&mut delta);
             let bad = delta.iter().position(|d| !d.is_finite());
             if let Err(s) = solved {
@@ -1254,6 +1267,10 @@ impl System {
     ) -> EngineError {
         match failure {
             NewtonFailure::Singular { unknown } => EngineError::Singular {
+                context,
+                culprit: self.culprit(unknown, f64::NAN, 0.0),
+            },
+            NewtonFailure::NotANumber { unknown } => EngineError::NotANumber {
                 context,
                 culprit: self.culprit(unknown, f64::NAN, 0.0),
             },
@@ -1418,6 +1435,49 @@ mod tests {
         fn boxed_clone(&self) -> Box<dyn Element> {
             Box::new(self.clone())
         }
+    }
+
+    /// A device whose current is not a number past 0.3 V.
+    #[derive(Clone, Debug)]
+    struct Broken;
+
+    impl Element for Broken {
+        fn kind(&self) -> &'static str {
+            "broken"
+        }
+        fn terminals(&self) -> &'static [&'static str] {
+            &["a", "b"]
+        }
+        fn evaluate(&self, x: &[f64], _ctx: &EvalContext, out: &mut Stamp<'_>) {
+            let v = x[0] - x[1];
+            let i = if v > 0.3 { f64::NAN } else { 1e-3 * v };
+            out.branch_current(0, 1, i, 1e-3);
+        }
+        fn boxed_clone(&self) -> Box<dyn Element> {
+            Box::new(self.clone())
+        }
+    }
+
+    /// A device returning NaN is named as such, with its node and elements, not reported as a
+    /// singular matrix.
+    #[test]
+    fn a_device_returning_nan_is_named() {
+        let mut c = Circuit::new();
+        let a = c.node("a");
+        let b = c.node("b");
+        c.add("v", VoltageSource::dc(1.0), &[a, Circuit::GROUND])
+            .unwrap();
+        c.add("r", Resistor::new(1e3), &[a, b]).unwrap();
+        c.add("bad", Broken, &[b, Circuit::GROUND]).unwrap();
+        let mut sys = System::new(c).unwrap();
+        let err = sys
+            .operating_point(&crate::dc::OpParams::default())
+            .unwrap_err();
+        let text = err.to_string();
+        assert!(
+            matches!(err, EngineError::NotANumber { .. }) && text.contains("bad"),
+            "{text}"
+        );
     }
 
     const PERIOD: f64 = 1e-6;

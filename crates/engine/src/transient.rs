@@ -654,6 +654,12 @@ impl System {
                     culprit: self.culprit(unknown, f64::NAN, 0.0),
                 }
             }
+            Some(NewtonFailure::NotANumber { unknown }) => {
+                return EngineError::NotANumber {
+                    context: format!("transient at t = {when:.6e} s"),
+                    culprit: self.culprit(unknown, f64::NAN, 0.0),
+                }
+            }
             None => Vec::new(),
         };
         EngineError::StepTooSmall {
