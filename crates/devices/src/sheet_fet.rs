@@ -1400,7 +1400,12 @@ fn grid(vt: f64) -> (f64, usize) {
 #[derive(Debug)]
 pub struct SheetModel {
     stack: Stack,
-    tables: Tables,
+    /// Tabulated in `u - shift`: a metal gate's work function only offsets `u`, so cards that
+    /// differ in it alone share one set of tables (see [`SheetModel::shared`]).
+    tables: Arc<Tables>,
+    /// The offset of this card's `u` from the tables' (V): the gate work function minus the
+    /// work function the tables were built for; 0 for tables of the card's own.
+    shift: f64,
 }
 
 /// Grid points per thermal voltage.
@@ -1414,6 +1419,25 @@ pub const MAX_TABLE_POINTS: usize = 65_537;
 /// The tables reach at least this far (V) from zero gate drive on both sides: ten times the
 /// ±100 V of a back gate on a thick oxide, the largest sweep in common use (common practice).
 pub const U_REACH: f64 = 1000.0;
+/// The largest gate work-function offset `W - χ` (eV, so V of `u`) for which a metal-gated card
+/// shares the tables built for `W = χ` (see [`SheetModel::shared`]); beyond it a card builds its
+/// own. Covers the metals and channels of the library with room to spare.
+pub const MAX_SHARED_SHIFT: f64 = 3.0;
+
+/// A cache's lock, recovered if a thread panicked while holding it.
+fn lock<T>(m: &Mutex<T>) -> std::sync::MutexGuard<'_, T> {
+    m.lock().unwrap_or_else(|p| p.into_inner())
+}
+
+/// The live entry of `cache` for `key`, dropping dead ones.
+fn find<T>(cache: &Mutex<Vec<(SheetFetCard, Weak<T>)>>, key: &SheetFetCard) -> Option<Arc<T>> {
+    let mut c = lock(cache);
+    c.retain(|(_, w)| w.strong_count() > 0);
+    c.iter()
+        .find(|(k, _)| k == key)
+        .and_then(|(_, w)| w.upgrade())
+}
+
 /// The most knots of each extension beyond the core grid (nine `f64` values each, so both
 /// together stay within 0.6 MB).
 pub const MAX_EXTENSION_POINTS: usize = 4096;
@@ -1637,6 +1661,11 @@ impl SheetModel {
     /// ±20 eV of its neutral point), a non-finite value, or more than 64 local evaluations per
     /// grid point on average. The tables never exceed [`MAX_TABLE_POINTS`] points.
     pub fn build(card: &SheetFetCard) -> Result<SheetModel, String> {
+        Self::build_reaching(card, U_REACH)
+    }
+
+    /// [`SheetModel::build`] with extensions reaching at least `reach` V of `u` each way.
+    fn build_reaching(card: &SheetFetCard, reach: f64) -> Result<SheetModel, String> {
         card.validate()?;
         let stack = Stack::new(card);
         let mut mu_guess = 0.0;
@@ -1701,7 +1730,7 @@ impl SheetModel {
             &core,
             n - 1,
             1.0,
-            U_REACH.max(u_end) - u_end,
+            reach.max(u_end) - u_end,
             h,
             last_guess,
             &scales,
@@ -1712,7 +1741,7 @@ impl SheetModel {
             &core,
             0,
             -1.0,
-            (u0 + U_REACH).max(0.0),
+            (u0 + reach).max(0.0),
             h,
             first_guess,
             &scales,
@@ -1810,7 +1839,8 @@ impl SheetModel {
         }
         Ok(SheetModel {
             stack,
-            tables: Tables {
+            shift: 0.0,
+            tables: Arc::new(Tables {
                 u0,
                 h,
                 inv_h: 1.0 / h,
@@ -1831,28 +1861,62 @@ impl SheetModel {
                         b2: sigma[k] * ra(k) + s[k] * dra(k),
                     })
                     .collect(),
-            },
+            }),
         })
     }
 
-    /// The model for `card`'s stack, built once and shared while any device uses it.
+    /// The model for `card`'s stack, built once and shared while any device uses it. Under a
+    /// metal gate the work function only offsets `u` (it enters the charge balance as
+    /// `u = ξ + (W - χ) + Q_g / C_ins`), so the tables are built once for `W = χ` and shared by
+    /// every card that differs from it in the work function alone, within
+    /// [`MAX_SHARED_SHIFT`] (a threshold spread in a Monte Carlo run then builds no tables per
+    /// device); those tables reach [`MAX_SHARED_SHIFT`] further, so every card keeps its
+    /// ±[`U_REACH`]. The grid sits at the same place relative to each card's midgap point, so
+    /// results agree with tables of the card's own to rounding.
     pub fn shared(card: &SheetFetCard) -> Result<Arc<SheetModel>, String> {
-        static CACHE: Mutex<Vec<(SheetFetCard, Weak<SheetModel>)>> = Mutex::new(Vec::new());
+        static MODELS: Mutex<Vec<(SheetFetCard, Weak<SheetModel>)>> = Mutex::new(Vec::new());
+        static TABLES: Mutex<Vec<(SheetFetCard, Weak<Tables>)>> = Mutex::new(Vec::new());
         let key = card.stack_key();
-        {
-            let mut cache = CACHE.lock().unwrap_or_else(|p| p.into_inner());
-            cache.retain(|(_, w)| w.strong_count() > 0);
-            if let Some(m) = cache
-                .iter()
-                .find(|(k, _)| *k == key)
-                .and_then(|(_, w)| w.upgrade())
-            {
-                return Ok(m);
-            }
+        if let Some(m) = find(&MODELS, &key) {
+            return Ok(m);
         }
-        let model = Arc::new(SheetModel::build(card)?);
-        let mut cache = CACHE.lock().unwrap_or_else(|p| p.into_inner());
-        cache.push((key, Arc::downgrade(&model)));
+        let model = match card.gate {
+            Gate::Metal { work_function }
+                if (work_function - card.electron_affinity).abs() <= MAX_SHARED_SHIFT =>
+            {
+                card.validate()?;
+                let base = SheetFetCard {
+                    gate: Gate::Metal {
+                        work_function: card.electron_affinity,
+                    },
+                    ..card.clone()
+                };
+                let base_key = base.stack_key();
+                let tables = match find(&TABLES, &base_key) {
+                    Some(t) => Some(t),
+                    None => SheetModel::build_reaching(&base, U_REACH + MAX_SHARED_SHIFT)
+                        .ok()
+                        .map(|m| {
+                            lock(&TABLES).push((base_key, Arc::downgrade(&m.tables)));
+                            m.tables
+                        }),
+                };
+                match tables {
+                    Some(tables) => SheetModel {
+                        stack: Stack::new(card),
+                        tables,
+                        shift: work_function - card.electron_affinity,
+                    },
+                    // Tables for `W = χ` that cannot be built (a stack that only the card's
+                    // own work function keeps inside the solvable range): the card's own,
+                    // with its own message if they fail too.
+                    None => SheetModel::build(card)?,
+                }
+            }
+            _ => SheetModel::build(card)?,
+        };
+        let model = Arc::new(model);
+        lock(&MODELS).push((key, Arc::downgrade(&model)));
         Ok(model)
     }
 
@@ -1872,6 +1936,7 @@ impl SheetModel {
 
     /// Tabulated `S(u) = ∫ σ du` (A) and `σ(u)`, for checks against direct computation.
     pub fn table_s_sigma(&self, u: f64) -> (f64, f64) {
+        let u = u - self.shift;
         let p = self.tables.point(u);
         (p.s, self.tables.sigma(u).0)
     }
@@ -1880,7 +1945,10 @@ impl SheetModel {
     /// module docs) over 16 V around the midgap point.
     pub fn table_range(&self) -> (f64, f64) {
         let t = &self.tables;
-        (t.u0, t.u0 + t.h * t.core_intervals)
+        (
+            t.u0 + self.shift,
+            t.u0 + t.h * t.core_intervals + self.shift,
+        )
     }
 
     /// The range of `u = V_G - V` (V) over which the tables hold the direct solve (currents,
@@ -1893,7 +1961,10 @@ impl SheetModel {
     /// to know compares its `V_G - V_D` and `V_G - V_S` with this range.
     pub fn valid_u_range(&self) -> (f64, f64) {
         let t = &self.tables;
-        (t.left_u[0], t.right_u[t.right_u.len() - 1])
+        (
+            t.left_u[0] + self.shift,
+            t.right_u[t.right_u.len() - 1] + self.shift,
+        )
     }
 
     /// The number of knots of the two extensions beyond the core grid together, at most
@@ -2133,8 +2204,10 @@ impl SheetFet {
     /// Intrinsic current and charges at internal drain, gate and source voltages.
     pub fn intrinsic(&self, vd: f64, vg: f64, vs: f64) -> Intrinsic {
         let t = &self.model.tables;
-        let us = Ends::end(vg - vs, 0);
-        let ud = Ends::end(vg - vd, 1);
+        // In the tables' u (the card's less its work-function offset from them).
+        let shift = self.model.shift;
+        let us = Ends::end(vg - vs - shift, 0);
+        let ud = Ends::end(vg - vd - shift, 1);
         let wl = self.area;
         // The current is the difference of the tabulated S on every branch; the branches
         // differ only in how the charges are formed (see the module docs).

@@ -535,3 +535,45 @@ fn small_drain_voltages_agree_with_the_exact_integral_at_any_temperature() {
         assert!(worst < bound, "{t} K: worst relative difference {worst:e}");
     }
 }
+
+/// Cards that differ only in a metal gate's work function share one set of tables, offset in
+/// `u` (the work function enters the charge balance only as `u = ξ + (W - χ) + Q_g / C_ins`):
+/// the shared tables give what tables built for the card alone give, to rounding, over the
+/// core grid and out to the extensions, and the valid range moves with the work function.
+#[test]
+fn work_function_variants_share_tables_without_changing_results() {
+    use lamina_devices::sheet_fet::SheetModel;
+    for w in [4.1, 4.37, 5.2] {
+        let card = SheetFetCard {
+            gate: Gate::Metal { work_function: w },
+            ..device_a()
+        };
+        let shared = SheetModel::shared(&card).unwrap();
+        let own = SheetModel::build(&card).unwrap();
+        let (lo, hi) = own.valid_u_range();
+        let (slo, shi) = shared.valid_u_range();
+        assert!(
+            slo <= lo + 1e-9 && shi >= hi - 1e-9,
+            "{w}: {slo} {shi} against {lo} {hi}"
+        );
+        for k in 0..=400 {
+            let u = -3.0 + 6.0 * k as f64 / 400.0 + 1.7e-4;
+            let (s1, g1) = shared.table_s_sigma(u);
+            let (s2, g2) = own.table_s_sigma(u);
+            // S is an integral from the table's left end, which differs: compare differences.
+            let (s1b, _) = shared.table_s_sigma(u + 0.05);
+            let (s2b, _) = own.table_s_sigma(u + 0.05);
+            let (ds1, ds2) = (s1b - s1, s2b - s2);
+            assert!(
+                (g1 - g2).abs() <= 1e-9 * g2.abs() + 1e-300,
+                "{w} {u}: {g1} {g2}"
+            );
+            assert!(
+                (ds1 - ds2).abs() <= 1e-9 * ds2.abs() + 1e-300,
+                "{w} {u}: {ds1} {ds2}"
+            );
+        }
+        let fet = SheetFet::new(&card).unwrap();
+        assert!(fet.intrinsic(0.5, 1.0, 0.0).current.v.is_finite());
+    }
+}
