@@ -89,11 +89,12 @@ pub fn parse_shard(text: &str) -> Result<(usize, usize), JobError> {
 
 /// A number as text that reads back to the same bits (a NaN to a NaN, its sign and payload,
 /// which no report reads, not kept).
-fn num(v: f64) -> Value {
+pub(crate) fn num(v: f64) -> Value {
     Value::String(format!("{v:?}"))
 }
 
-fn pairs(list: &[(String, f64)]) -> Value {
+/// `[key, value]` pairs, each value as [`num`] writes it.
+pub(crate) fn pairs(list: &[(String, f64)]) -> Value {
     Value::Array(list.iter().map(|(k, v)| json!([k, num(*v)])).collect())
 }
 
@@ -105,22 +106,9 @@ impl Part {
             .rows
             .iter()
             .map(|r| {
-                let curves: Vec<Value> = r
-                    .curves
-                    .iter()
-                    .map(|c| {
-                        let points: Vec<Value> = c
-                            .points
-                            .iter()
-                            .map(|(x, y)| json!([num(*x), num(*y)]))
-                            .collect();
-                        json!({ "family": c.family, "x_desc": c.x_desc, "y_desc": c.y_desc,
-                                "points": points })
-                    })
-                    .collect();
                 json!({
                     "sample": r.sample, "draws": pairs(&r.draws), "figures": pairs(&r.figures),
-                    "error": r.error, "curves": curves,
+                    "error": r.error, "curves": curves_json(&r.curves),
                 })
             })
             .collect();
@@ -208,7 +196,8 @@ fn number_of(x: &Value) -> Result<f64, String> {
         .ok_or_else(|| format!("`{x}` is not a number written as text"))
 }
 
-fn pairs_of(x: Option<&Value>, what: &str) -> Result<Vec<(String, f64)>, String> {
+/// Pairs written by [`pairs`] read back.
+pub(crate) fn pairs_of(x: Option<&Value>, what: &str) -> Result<Vec<(String, f64)>, String> {
     x.and_then(Value::as_array)
         .ok_or_else(|| format!("a row's `{what}` is not a list"))?
         .iter()
@@ -237,6 +226,54 @@ fn static_desc(s: &str) -> &'static str {
     d
 }
 
+/// Curves as JSON: `family`, `x_desc`, `y_desc` and `points` as `[x, y]` pairs of [`num`].
+pub(crate) fn curves_json(curves: &[Curve]) -> Value {
+    let list: Vec<Value> = curves
+        .iter()
+        .map(|c| {
+            let points: Vec<Value> = c
+                .points
+                .iter()
+                .map(|(x, y)| json!([num(*x), num(*y)]))
+                .collect();
+            json!({ "family": c.family, "x_desc": c.x_desc, "y_desc": c.y_desc,
+                    "points": points })
+        })
+        .collect();
+    Value::Array(list)
+}
+
+/// Curves written by [`curves_json`] read back; `row` names their row in messages.
+pub(crate) fn curves_of_json(x: Option<&Value>, row: &str) -> Result<Vec<Curve>, String> {
+    x.and_then(Value::as_array)
+        .ok_or_else(|| format!("{row}: `curves` is not a list"))?
+        .iter()
+        .map(|c| {
+            let desc = |k: &str| {
+                c.get(k)
+                    .and_then(Value::as_str)
+                    .ok_or_else(|| format!("{row}: a curve has no text `{k}`"))
+            };
+            let points = c
+                .get("points")
+                .and_then(Value::as_array)
+                .ok_or_else(|| format!("{row}: a curve has no `points` list"))?
+                .iter()
+                .map(|p| match p.as_array().map(Vec::as_slice) {
+                    Some([x, y]) => Ok((number_of(x)?, number_of(y)?)),
+                    _ => Err(format!("{row}: `{p}` is not an [x, y] point")),
+                })
+                .collect::<Result<Vec<_>, _>>()?;
+            Ok(Curve {
+                family: desc("family")?.to_string(),
+                x_desc: static_desc(desc("x_desc")?),
+                y_desc: static_desc(desc("y_desc")?),
+                points,
+            })
+        })
+        .collect()
+}
+
 fn row_from_json(v: &Value) -> Result<SampleRow, String> {
     let sample = v
         .get("sample")
@@ -248,35 +285,7 @@ fn row_from_json(v: &Value) -> Result<SampleRow, String> {
         Some(Value::Null) => None,
         _ => return Err(format!("row {sample}: `error` is neither text nor null")),
     };
-    let curves = v
-        .get("curves")
-        .and_then(Value::as_array)
-        .ok_or_else(|| format!("row {sample}: `curves` is not a list"))?
-        .iter()
-        .map(|c| {
-            let desc = |k: &str| {
-                c.get(k)
-                    .and_then(Value::as_str)
-                    .ok_or_else(|| format!("row {sample}: a curve has no text `{k}`"))
-            };
-            let points = c
-                .get("points")
-                .and_then(Value::as_array)
-                .ok_or_else(|| format!("row {sample}: a curve has no `points` list"))?
-                .iter()
-                .map(|p| match p.as_array().map(Vec::as_slice) {
-                    Some([x, y]) => Ok((number_of(x)?, number_of(y)?)),
-                    _ => Err(format!("row {sample}: `{p}` is not an [x, y] point")),
-                })
-                .collect::<Result<Vec<_>, _>>()?;
-            Ok(Curve {
-                family: desc("family")?.to_string(),
-                x_desc: static_desc(desc("x_desc")?),
-                y_desc: static_desc(desc("y_desc")?),
-                points,
-            })
-        })
-        .collect::<Result<Vec<_>, String>>()?;
+    let curves = curves_of_json(v.get("curves"), &format!("row {sample}"))?;
     Ok(SampleRow {
         sample,
         draws: pairs_of(v.get("draws"), "draws").map_err(|e| format!("row {sample}: {e}"))?,
