@@ -357,7 +357,7 @@ pub fn run_script(a: ScriptArgs) -> Result<(), JobError> {
         })?;
     if !done.status.success() {
         return Err(JobError::Io(format!(
-            "sbatch refused {}: {}",
+            "sbatch failed on {}: {}",
             script.display(),
             String::from_utf8_lossy(&done.stderr).trim()
         )));
