@@ -16,7 +16,7 @@
 
 mod common;
 
-use common::{lamina, lamina_ok};
+use common::{files, lamina, lamina_ok};
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 use std::sync::atomic::{AtomicUsize, Ordering};
@@ -70,20 +70,6 @@ fn lamina_in(dir: &Path, env: &[(&str, &str)], args: &[&str]) -> Output {
         .args(args)
         .output()
         .expect("the lamina binary runs")
-}
-
-/// Every file of a directory, by name, with its bytes.
-fn files(dir: &Path) -> Vec<(String, Vec<u8>)> {
-    let mut list: Vec<(String, Vec<u8>)> = std::fs::read_dir(dir)
-        .expect("the directory")
-        .map(|e| {
-            let e = e.expect("an entry");
-            let bytes = std::fs::read(e.path()).expect("the file");
-            (e.file_name().to_string_lossy().into_owned(), bytes)
-        })
-        .collect();
-    list.sort();
-    list
 }
 
 /// Shard `k` of 3 of the sweep (with `extra` flags) into `dir/name`.

@@ -66,15 +66,28 @@ fn sweep_part(shown: &str, v: &Value) -> Result<SweepPart, JobError> {
             "{shown}: not a part file of `lamina sweep --shard`: {why}"
         ))
     })?;
-    let ours = env!("CARGO_PKG_VERSION");
-    if part.lamina_version != ours {
-        return Err(JobError::Invalid(format!(
-            "error: {shown}: written by Lamina {}, but this is Lamina {ours}; merge with the \
-             version that ran the shards",
-            part.lamina_version
-        )));
-    }
+    super::montecarlo_merge::same_version(shown, &part.lamina_version)?;
     Ok(part)
+}
+
+/// Writes a shard's part (`text`): into `set_out` as [`PART_FILE`], saying which shard and
+/// `what` it holds and where, or on stdout without `--out`.
+pub(crate) fn emit_part(
+    set_out: Option<OutputSet>,
+    text: &str,
+    (k, n): (usize, usize),
+    what: &str,
+) -> Result<(), JobError> {
+    match set_out {
+        Some(set) => {
+            let file = set.target().join(PART_FILE);
+            write_whole(&set.dir().join(PART_FILE), text.as_bytes()).map_err(JobError::Io)?;
+            set.commit()?;
+            out!("shard {k}/{n}: {what} in {}", file.display());
+        }
+        None => out!("{text}"),
+    }
+    Ok(())
 }
 
 /// Runs `lamina merge`.

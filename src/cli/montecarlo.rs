@@ -4,7 +4,7 @@
 //! of this command rather than a command of its own, as corners share the file, its spreads,
 //! the limits, the threads and the run path with the samples).
 
-use super::montecarlo_merge::{Part, PART_FILE};
+use super::montecarlo_merge::Part;
 use super::sweep::csv_field;
 use super::Common;
 use crate::design;
@@ -188,26 +188,8 @@ pub fn run(a: Args) -> Result<(), JobError> {
             rows,
         };
         let text = serde_json::to_string(&part.to_json()).unwrap_or_default();
-        return match set_out {
-            Some(set) => {
-                write_whole(&set.dir().join(PART_FILE), text.as_bytes()).map_err(JobError::Io)?;
-                set.commit()?;
-                out!(
-                    "shard {k}/{n}: samples {}..{} of {runs} in {}",
-                    range.start,
-                    range.end,
-                    out.as_deref()
-                        .unwrap_or(Path::new(""))
-                        .join(PART_FILE)
-                        .display()
-                );
-                Ok(())
-            }
-            None => {
-                out!("{text}");
-                Ok(())
-            }
-        };
+        let what = format!("samples {}..{} of {runs}", range.start, range.end);
+        return super::cluster::emit_part(set_out, &text, (k, n), &what);
     }
     let rows = on_pool(&|| run_samples(&file, &sets, &nominal, 0..runs, seed, true, keep));
     report(&rows, &specs, runs, seed, json, set_out)

@@ -326,15 +326,20 @@ fn read_part(path: &Path) -> Result<Part, JobError> {
         )));
     }
     let part = Part::from_json(&v).map_err(not_part)?;
+    same_version(&shown.to_string(), &part.lamina_version)?;
+    Ok(part)
+}
+
+/// Refuses a part written by another Lamina version (`shown` names it).
+pub(crate) fn same_version(shown: &str, version: &str) -> Result<(), JobError> {
     let ours = env!("CARGO_PKG_VERSION");
-    if part.lamina_version != ours {
+    if version != ours {
         return Err(JobError::Invalid(format!(
-            "error: {shown}: written by Lamina {}, but this is Lamina {ours}; merge with the \
-             version that ran the shards",
-            part.lamina_version
+            "error: {shown}: written by Lamina {version}, but this is Lamina {ours}; merge with \
+             the version that ran the shards"
         )));
     }
-    Ok(part)
+    Ok(())
 }
 
 /// Checks that `parts` are the shards of one run, each once, and returns their rows in sample
@@ -373,38 +378,15 @@ pub fn combine(parts: Vec<Part>, names: &[String]) -> Result<Vec<SampleRow>, Job
             ));
         }
     }
-    let n = first.shards;
-    let mut by_shard: Vec<Option<usize>> = vec![None; n];
-    for (i, p) in parts.iter().enumerate() {
-        if let Some(j) = by_shard[p.shard - 1] {
-            return Err(inconsistent(format!(
-                "shard {}/{n} is given twice: {} and {}",
-                p.shard, names[j], names[i]
-            )));
-        }
-        by_shard[p.shard - 1] = Some(i);
-    }
-    let missing: Vec<String> = (1..=n)
-        .filter(|k| by_shard[k - 1].is_none())
-        .map(|k| {
-            let r = shard_range(k, n, first.runs);
-            format!("{k}/{n} (samples {}..{})", r.start, r.end)
-        })
-        .collect();
-    if !missing.is_empty() {
-        let one = missing.len() == 1;
-        return Err(inconsistent(format!(
-            "shard{} {} {} missing; run {} with `--shard K/{n}` and the flags of the others",
-            if one { "" } else { "s" },
-            missing.join(", "),
-            if one { "is" } else { "are" },
-            if one { "it" } else { "each" }
-        )));
-    }
+    let runs = first.runs;
+    let shards: Vec<(usize, usize)> = parts.iter().map(|p| (p.shard, p.shards)).collect();
+    let order = crate::cluster::shard_order(&shards, names, |k, n| {
+        let r = shard_range(k, n, runs);
+        format!("samples {}..{}", r.start, r.end)
+    })?;
     let mut parts: Vec<Option<Part>> = parts.into_iter().map(Some).collect();
-    Ok(by_shard
+    Ok(order
         .into_iter()
-        .flatten()
         .filter_map(|i| parts[i].take())
         .flat_map(|p| p.rows)
         .collect())

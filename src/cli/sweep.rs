@@ -79,23 +79,8 @@ pub fn run(a: Args) -> Result<(), JobError> {
             rows,
         };
         let text = serde_json::to_string(&part.to_json()).unwrap_or_default();
-        return match set_out {
-            Some(set) => {
-                let dir = set.target().display().to_string();
-                write_file(&set.dir().join(PART_FILE), text.as_bytes()).map_err(JobError::Io)?;
-                set.commit()?;
-                out!(
-                    "shard {k}/{n}: points {}..{} of {total} in {dir}/{PART_FILE}",
-                    range.start,
-                    range.end
-                );
-                Ok(())
-            }
-            None => {
-                out!("{text}");
-                Ok(())
-            }
-        };
+        let what = format!("points {}..{} of {total}", range.start, range.end);
+        return super::cluster::emit_part(set_out, &text, (k, n), &what);
     }
     let rows = crate::sweep::run_sweep(&file, &sets, &axes, 0..total, true, set_out.is_some());
     report(&axes, &rows, json, set_out)
