@@ -47,7 +47,7 @@ enum Job {
     MontecarloMerge(cli::montecarlo_merge::Args),
     /// Put the shards of `sweep --shard` or `montecarlo --shard` together into the output of
     /// the whole run, byte for byte.
-    Merge(cli::cluster::MergeArgs),
+    Merge(cli::montecarlo_merge::Args),
     /// Write (and optionally submit) a Slurm job-array script that runs a sweep or a Monte
     /// Carlo study as shards.
     ClusterScript(cli::cluster::ScriptArgs),

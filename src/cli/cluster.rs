@@ -17,22 +17,6 @@ use serde_json::Value;
 use std::path::{Path, PathBuf};
 use std::time::Instant;
 
-/// Flags of `lamina merge`.
-#[derive(clap::Args, Debug)]
-pub struct MergeArgs {
-    /// The shards' results: each a part file, or the `--out` directory of a shard holding one
-    /// (`part.json`); every shard K of N of one sweep or one Monte Carlo run exactly once, in
-    /// any order.
-    #[arg(required = true, value_name = "PART")]
-    pub parts: Vec<PathBuf>,
-    /// Print one JSON object on stdout instead of a table.
-    #[arg(long)]
-    pub json: bool,
-    /// Write the data (CSV), the summary (JSON) and plots (SVG, PNG) into this directory.
-    #[arg(long, value_name = "DIR")]
-    pub out: Option<PathBuf>,
-}
-
 /// The part file at `path` (a file, or a directory holding [`PART_FILE`]) read as JSON.
 fn read_json(path: &Path) -> Result<(String, Value), JobError> {
     let file = if path.is_dir() {
@@ -90,8 +74,8 @@ pub(crate) fn emit_part(
     Ok(())
 }
 
-/// Runs `lamina merge`.
-pub fn run_merge(a: MergeArgs) -> Result<(), JobError> {
+/// Runs `lamina merge` (its flags are those of `montecarlo-merge`, which it extends).
+pub fn run_merge(a: super::montecarlo_merge::Args) -> Result<(), JobError> {
     let read = a
         .parts
         .iter()
@@ -113,11 +97,7 @@ pub fn run_merge(a: MergeArgs) -> Result<(), JobError> {
         )));
     }
     match want.as_str() {
-        "montecarlo" => super::montecarlo_merge::run(super::montecarlo_merge::Args {
-            parts: a.parts,
-            json: a.json,
-            out: a.out,
-        }),
+        "montecarlo" => super::montecarlo_merge::run(a),
         "sweep" => {
             let set_out = OutputSet::begin_opt(a.out.as_deref())?;
             let parts = read
