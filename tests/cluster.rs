@@ -12,7 +12,9 @@
 //!   as shard ID + 1 of COUNT and refuses arrays of another shape (exit 2).
 //! * `cluster-script --dry-run` prints the job-array script and writes nothing; the written
 //!   script, run by the shell once per array index with the variables Slurm would set, gives
-//!   shards that merge into the single-machine sweep.
+//!   shards that merge into the single-machine sweep; `--submit` hands it to `sbatch` (a
+//!   stand-in here) and says how to watch and merge, or says where the script is when there is
+//!   no `sbatch`. Jobs the script cannot split are usage errors (exit 2).
 
 mod common;
 
@@ -451,4 +453,55 @@ fn the_script_refuses_jobs_it_cannot_split() {
         assert_eq!(o.status.code(), Some(2), "{args:?}: {}", stderr(&o));
         assert!(stderr(&o).contains(says), "{args:?}: {}", stderr(&o));
     }
+}
+
+#[test]
+fn submit_hands_the_script_to_sbatch_and_says_how_to_merge() {
+    let dir = scratch("submit");
+    let bin = dir.join("bin");
+    std::fs::create_dir_all(&bin).expect("directory");
+    let args = [
+        "cluster-script",
+        "--tasks",
+        "2",
+        "--submit",
+        "sweep",
+        "circuit.lam",
+        VDD,
+    ];
+    let run = |path: &Path| {
+        Command::new(env!("CARGO_BIN_EXE_lamina"))
+            .current_dir(&dir)
+            .env("PATH", path)
+            .args(args)
+            .output()
+            .expect("the lamina binary runs")
+    };
+    // No sbatch on the path: the script is written, and the error says where it is.
+    let none = run(&bin);
+    assert_eq!(none.status.code(), Some(4), "{}", stderr(&none));
+    assert!(
+        stderr(&none).contains("cannot run sbatch"),
+        "{}",
+        stderr(&none)
+    );
+    assert!(dir.join("lamina-results/job.sh").is_file());
+    // A stand-in that answers as `sbatch --parsable` does (job id; cluster).
+    let fake = bin.join("sbatch");
+    std::fs::write(
+        &fake,
+        "#!/bin/sh\n[ \"$1\" = --parsable ] && [ -f \"$2\" ] && echo '42;local'\n",
+    )
+    .expect("stand-in");
+    use std::os::unix::fs::PermissionsExt;
+    std::fs::set_permissions(&fake, std::fs::Permissions::from_mode(0o755)).expect("mode");
+    let done = run(&bin);
+    assert!(done.status.success(), "{}", stderr(&done));
+    let text = String::from_utf8_lossy(&done.stdout);
+    assert!(text.contains("submitted job array 42 (2 tasks)"), "{text}");
+    assert!(text.contains("squeue -j 42"), "{text}");
+    assert!(
+        text.contains("lamina merge lamina-results/shard-* --out lamina-results/merged"),
+        "{text}"
+    );
 }

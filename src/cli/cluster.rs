@@ -234,6 +234,12 @@ fn trial(job: &StudyJob) -> Result<(usize, Trial), JobError> {
             };
             let sets = crate::design::parse_sets(&a.common.set)?;
             let nominal = crate::design::load(&a.file, &sets)?;
+            if nominal.variations.is_empty() {
+                return Err(JobError::Invalid(format!(
+                    "{} declares no spread: a Monte Carlo run of it has nothing to sample",
+                    a.file.display()
+                )));
+            }
             let t = measure(&|| {
                 crate::montecarlo::run_samples(
                     &a.file,
@@ -275,6 +281,13 @@ pub fn run_script(a: ScriptArgs) -> Result<(), JobError> {
             "--cpus-per-task 0: give at least one core".into(),
         ));
     }
+    let results = a.results.display().to_string();
+    if results.is_empty() || crate::cluster::shell_word(&results) != results {
+        return Err(JobError::Usage(format!(
+            "--results {results}: give a directory name of letters, digits and `-_./`, which \
+             the script's #SBATCH lines can hold unquoted"
+        )));
+    }
     let (items, trial) = trial(&parsed.job)?;
     if a.tasks > items {
         return Err(JobError::Usage(format!(
@@ -307,7 +320,6 @@ pub fn run_script(a: ScriptArgs) -> Result<(), JobError> {
         .map_err(|e| JobError::Io(format!("cannot find the lamina program: {e}")))?;
     let workdir = std::env::current_dir()
         .map_err(|e| JobError::Io(format!("cannot read the current directory: {e}")))?;
-    let results = a.results.display().to_string();
     let text = script_text(&Script {
         name,
         lamina: &lamina.display().to_string(),
