@@ -44,7 +44,7 @@ pub fn shard_from_env(get: impl Fn(&str) -> Option<String>) -> Result<(usize, us
     };
     let missing = |name: &str| {
         JobError::Usage(format!(
-            "--shard-from-env: {name} is not set; run inside a job array (sbatch --array=0-N-1), \
+            "--shard-from-env: {name} is not set; run inside a job array (sbatch --array=0-(N-1)), \
              or give --shard K/N"
         ))
     };
