@@ -21,6 +21,7 @@ fn ring_sweep_threads(bencher: divan::Bencher, threads: usize) {
                 Path::new("netlists/demo/ring-21.lam"),
                 &[],
                 &axes,
+                0..4,
                 false,
                 false,
             ))

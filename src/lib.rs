@@ -10,6 +10,8 @@
 //! * [`sweep`]: a file's analyses over a grid of parameter values, in parallel.
 //! * [`montecarlo`]: a file's analyses over random samples of its declared spreads, with
 //!   statistics, yield and the spreads that drive each figure.
+//! * [`cluster`]: a study split over a batch scheduler's job array: the shard of an array
+//!   task, the check that shards are complete, and the job-array script with its requests.
 //! * [`plot`] and [`output`]: pictures (SVG and PNG) and data files, each written whole.
 //! * [`design`]: jobs on circuit files: load with `--set` overrides, the check summary, and the
 //!   analyses a file declares.
@@ -30,6 +32,7 @@
 
 pub mod builtin;
 pub mod cli;
+pub mod cluster;
 pub mod cv;
 pub mod delay;
 pub mod describe;

@@ -45,6 +45,12 @@ enum Job {
     Montecarlo(cli::montecarlo::Args),
     /// Put the shards of `montecarlo --shard K/N` together into the report of the whole run.
     MontecarloMerge(cli::montecarlo_merge::Args),
+    /// Put the shards of `sweep --shard` or `montecarlo --shard` together into the output of
+    /// the whole run, byte for byte.
+    Merge(cli::montecarlo_merge::Args),
+    /// Write (and optionally submit) a Slurm job-array script that runs a sweep or a Monte
+    /// Carlo study as shards.
+    ClusterScript(cli::cluster::ScriptArgs),
     /// Run every analysis a circuit file declares.
     Run(cli::run::Args),
     /// The material library: channels, insulators and gates with values, units and sources.
@@ -69,6 +75,8 @@ fn main() -> ExitCode {
         Job::Sweep(a) => cli::sweep::run(a),
         Job::Montecarlo(a) => cli::montecarlo::run(a),
         Job::MontecarloMerge(a) => cli::montecarlo_merge::run(a),
+        Job::Merge(a) => cli::cluster::run_merge(a),
+        Job::ClusterScript(a) => cli::cluster::run_script(a),
         Job::Run(a) => cli::run::run(a),
         Job::Materials(a) => cli::materials::run(a),
         Job::Extract(a) => cli::extract::run(a),

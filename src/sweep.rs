@@ -356,17 +356,26 @@ pub fn grid(axes: &[Axis]) -> Vec<Vec<usize>> {
     points
 }
 
-/// Runs the sweep. `progress` shows a bar on stderr (hidden when stderr is not a terminal);
-/// `keep_curves` keeps each point's transfer curves (within [`MAX_CURVE_SAMPLES`]).
+/// Runs the points `range` of the sweep's grid (`0..` the grid's size for the whole sweep; any
+/// sub-range gives exactly those rows of the whole sweep, which is what a shard needs).
+/// `progress` shows a bar on stderr (hidden when stderr is not a terminal); `keep_curves`
+/// keeps each point's transfer curves (within [`MAX_CURVE_SAMPLES`]).
 pub fn run_sweep(
     path: &Path,
     sets: &[(String, String)],
     axes: &[Axis],
+    range: std::ops::Range<usize>,
     progress: bool,
     keep_curves: bool,
 ) -> Vec<Row> {
     let points = grid(axes);
     let total = points.len();
+    let first = range.start.min(total);
+    let points: Vec<Vec<usize>> = points
+        .into_iter()
+        .skip(first)
+        .take(range.end.min(total).saturating_sub(first))
+        .collect();
     // Curves of every point while they fit; an evenly spread subset otherwise (decided per
     // point from its index, so the result does not depend on the thread count).
     let budget_per_point = MAX_CURVE_SAMPLES / total.max(1);
@@ -385,6 +394,8 @@ pub fn run_sweep(
         .enumerate()
         .progress_with(bar)
         .map(|(n, index)| {
+            // The index in the whole grid, so a shard keeps the curves the whole sweep keeps.
+            let n = n + first;
             let mut local = sets.to_vec();
             let mut point = Vec::with_capacity(axes.len());
             for (a, &k) in axes.iter().zip(&index) {
@@ -434,4 +445,28 @@ pub(crate) fn first_line(text: &str) -> String {
         .find(|l| !l.is_empty())
         .unwrap_or("failed")
         .to_string()
+}
+
+/// The hash of what a sweep's rows depend on, as 16 hex digits: the text of every file the
+/// design read (in load order; paths left out), the `--set` values and the `--param` flags as
+/// given. See [`crate::montecarlo::stable_hash`].
+pub fn inputs_hash(
+    design: &lamina_netlist::Design,
+    sets: &[(String, String)],
+    params: &[String],
+) -> String {
+    let sources = &design.sources;
+    let texts = (0..sources.len()).map(|i| sources.text(i).as_bytes());
+    let sets = sets.iter().flat_map(|(k, v)| [k.as_bytes(), v.as_bytes()]);
+    let params = params.iter().map(|p| p.as_bytes());
+    format!(
+        "{:016x}",
+        crate::montecarlo::stable_hash(
+            texts
+                .chain([b"sets".as_slice()])
+                .chain(sets)
+                .chain([b"params".as_slice()])
+                .chain(params)
+        )
+    )
 }

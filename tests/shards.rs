@@ -12,6 +12,9 @@
 //!   `--corners`, are usage errors (exit 2).
 //! * The shard ranges `[floor((K-1) R / N), floor(K R / N))` cover the run once, in order.
 
+mod common;
+
+use common::files;
 use lamina::montecarlo::{shard_range, stable_hash};
 use std::path::{Path, PathBuf};
 use std::process::Output;
@@ -64,20 +67,6 @@ fn ok(out: Output) -> Output {
 
 fn path(p: &Path) -> &str {
     p.to_str().expect("a UTF-8 path")
-}
-
-/// Every file of a directory, by name, with its bytes.
-fn files(dir: &Path) -> Vec<(String, Vec<u8>)> {
-    let mut list: Vec<(String, Vec<u8>)> = std::fs::read_dir(dir)
-        .expect("the directory")
-        .map(|e| {
-            let e = e.expect("an entry");
-            let bytes = std::fs::read(e.path()).expect("the file");
-            (e.file_name().to_string_lossy().into_owned(), bytes)
-        })
-        .collect();
-    list.sort();
-    list
 }
 
 /// Writes the circuit (with `from` replaced by `to`) and runs shard `k` of 4 of 37 samples

@@ -5,6 +5,7 @@
 //! kind, which `run`, `vtc`, `delay` and `ring` print the same way.
 
 pub mod check;
+pub mod cluster;
 pub mod cv;
 pub mod delay;
 pub mod extract;

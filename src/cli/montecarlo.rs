@@ -4,7 +4,7 @@
 //! of this command rather than a command of its own, as corners share the file, its spreads,
 //! the limits, the threads and the run path with the samples).
 
-use super::montecarlo_merge::{parse_shard, Part, PART_FILE};
+use super::montecarlo_merge::Part;
 use super::sweep::csv_field;
 use super::Common;
 use crate::design;
@@ -49,6 +49,10 @@ pub struct Args {
     /// on stdout; JSON either way), for `lamina montecarlo-merge` to put together.
     #[arg(long, value_name = "K/N", conflicts_with = "corners")]
     pub shard: Option<String>,
+    /// The shard of this task of a Slurm job array submitted as `--array=0-(N-1)`: K =
+    /// SLURM_ARRAY_TASK_ID + 1 (the index counts from 0), N = SLURM_ARRAY_TASK_COUNT.
+    #[arg(long, conflicts_with_all = ["corners", "shard"])]
+    pub shard_from_env: bool,
     /// Threads to run samples on (default: one per core).
     #[arg(long, value_name = "T")]
     pub threads: Option<usize>,
@@ -71,12 +75,13 @@ pub fn run(a: Args) -> Result<(), JobError> {
         all_combinations,
         seed,
         shard,
+        shard_from_env,
         threads,
         spec,
         common: Common { set, json, out },
     } = a;
     let runs = runs.unwrap_or(0);
-    let shard = shard.as_deref().map(parse_shard).transpose()?;
+    let shard = crate::cluster::resolve_shard(shard.as_deref(), shard_from_env)?;
     if all_combinations && corner_k.is_none() {
         return Err(JobError::Usage(
             "--all-combinations combines corners: give it with --corners K".into(),
@@ -183,26 +188,8 @@ pub fn run(a: Args) -> Result<(), JobError> {
             rows,
         };
         let text = serde_json::to_string(&part.to_json()).unwrap_or_default();
-        return match set_out {
-            Some(set) => {
-                write_whole(&set.dir().join(PART_FILE), text.as_bytes()).map_err(JobError::Io)?;
-                set.commit()?;
-                out!(
-                    "shard {k}/{n}: samples {}..{} of {runs} in {}",
-                    range.start,
-                    range.end,
-                    out.as_deref()
-                        .unwrap_or(Path::new(""))
-                        .join(PART_FILE)
-                        .display()
-                );
-                Ok(())
-            }
-            None => {
-                out!("{text}");
-                Ok(())
-            }
-        };
+        let what = format!("samples {}..{} of {runs}", range.start, range.end);
+        return super::cluster::emit_part(set_out, &text, (k, n), &what);
     }
     let rows = on_pool(&|| run_samples(&file, &sets, &nominal, 0..runs, seed, true, keep));
     report(&rows, &specs, runs, seed, json, set_out)

@@ -89,11 +89,12 @@ pub fn parse_shard(text: &str) -> Result<(usize, usize), JobError> {
 
 /// A number as text that reads back to the same bits (a NaN to a NaN, its sign and payload,
 /// which no report reads, not kept).
-fn num(v: f64) -> Value {
+pub(crate) fn num(v: f64) -> Value {
     Value::String(format!("{v:?}"))
 }
 
-fn pairs(list: &[(String, f64)]) -> Value {
+/// `[key, value]` pairs, each value as [`num`] writes it.
+pub(crate) fn pairs(list: &[(String, f64)]) -> Value {
     Value::Array(list.iter().map(|(k, v)| json!([k, num(*v)])).collect())
 }
 
@@ -105,22 +106,9 @@ impl Part {
             .rows
             .iter()
             .map(|r| {
-                let curves: Vec<Value> = r
-                    .curves
-                    .iter()
-                    .map(|c| {
-                        let points: Vec<Value> = c
-                            .points
-                            .iter()
-                            .map(|(x, y)| json!([num(*x), num(*y)]))
-                            .collect();
-                        json!({ "family": c.family, "x_desc": c.x_desc, "y_desc": c.y_desc,
-                                "points": points })
-                    })
-                    .collect();
                 json!({
                     "sample": r.sample, "draws": pairs(&r.draws), "figures": pairs(&r.figures),
-                    "error": r.error, "curves": curves,
+                    "error": r.error, "curves": curves_json(&r.curves),
                 })
             })
             .collect();
@@ -208,7 +196,8 @@ fn number_of(x: &Value) -> Result<f64, String> {
         .ok_or_else(|| format!("`{x}` is not a number written as text"))
 }
 
-fn pairs_of(x: Option<&Value>, what: &str) -> Result<Vec<(String, f64)>, String> {
+/// Pairs written by [`pairs`] read back.
+pub(crate) fn pairs_of(x: Option<&Value>, what: &str) -> Result<Vec<(String, f64)>, String> {
     x.and_then(Value::as_array)
         .ok_or_else(|| format!("a row's `{what}` is not a list"))?
         .iter()
@@ -237,6 +226,54 @@ fn static_desc(s: &str) -> &'static str {
     d
 }
 
+/// Curves as JSON: `family`, `x_desc`, `y_desc` and `points` as `[x, y]` pairs of [`num`].
+pub(crate) fn curves_json(curves: &[Curve]) -> Value {
+    let list: Vec<Value> = curves
+        .iter()
+        .map(|c| {
+            let points: Vec<Value> = c
+                .points
+                .iter()
+                .map(|(x, y)| json!([num(*x), num(*y)]))
+                .collect();
+            json!({ "family": c.family, "x_desc": c.x_desc, "y_desc": c.y_desc,
+                    "points": points })
+        })
+        .collect();
+    Value::Array(list)
+}
+
+/// Curves written by [`curves_json`] read back; `row` names their row in messages.
+pub(crate) fn curves_of_json(x: Option<&Value>, row: &str) -> Result<Vec<Curve>, String> {
+    x.and_then(Value::as_array)
+        .ok_or_else(|| format!("{row}: `curves` is not a list"))?
+        .iter()
+        .map(|c| {
+            let desc = |k: &str| {
+                c.get(k)
+                    .and_then(Value::as_str)
+                    .ok_or_else(|| format!("{row}: a curve has no text `{k}`"))
+            };
+            let points = c
+                .get("points")
+                .and_then(Value::as_array)
+                .ok_or_else(|| format!("{row}: a curve has no `points` list"))?
+                .iter()
+                .map(|p| match p.as_array().map(Vec::as_slice) {
+                    Some([x, y]) => Ok((number_of(x)?, number_of(y)?)),
+                    _ => Err(format!("{row}: `{p}` is not an [x, y] point")),
+                })
+                .collect::<Result<Vec<_>, _>>()?;
+            Ok(Curve {
+                family: desc("family")?.to_string(),
+                x_desc: static_desc(desc("x_desc")?),
+                y_desc: static_desc(desc("y_desc")?),
+                points,
+            })
+        })
+        .collect()
+}
+
 fn row_from_json(v: &Value) -> Result<SampleRow, String> {
     let sample = v
         .get("sample")
@@ -248,35 +285,7 @@ fn row_from_json(v: &Value) -> Result<SampleRow, String> {
         Some(Value::Null) => None,
         _ => return Err(format!("row {sample}: `error` is neither text nor null")),
     };
-    let curves = v
-        .get("curves")
-        .and_then(Value::as_array)
-        .ok_or_else(|| format!("row {sample}: `curves` is not a list"))?
-        .iter()
-        .map(|c| {
-            let desc = |k: &str| {
-                c.get(k)
-                    .and_then(Value::as_str)
-                    .ok_or_else(|| format!("row {sample}: a curve has no text `{k}`"))
-            };
-            let points = c
-                .get("points")
-                .and_then(Value::as_array)
-                .ok_or_else(|| format!("row {sample}: a curve has no `points` list"))?
-                .iter()
-                .map(|p| match p.as_array().map(Vec::as_slice) {
-                    Some([x, y]) => Ok((number_of(x)?, number_of(y)?)),
-                    _ => Err(format!("row {sample}: `{p}` is not an [x, y] point")),
-                })
-                .collect::<Result<Vec<_>, _>>()?;
-            Ok(Curve {
-                family: desc("family")?.to_string(),
-                x_desc: static_desc(desc("x_desc")?),
-                y_desc: static_desc(desc("y_desc")?),
-                points,
-            })
-        })
-        .collect::<Result<Vec<_>, String>>()?;
+    let curves = curves_of_json(v.get("curves"), &format!("row {sample}"))?;
     Ok(SampleRow {
         sample,
         draws: pairs_of(v.get("draws"), "draws").map_err(|e| format!("row {sample}: {e}"))?,
@@ -317,15 +326,20 @@ fn read_part(path: &Path) -> Result<Part, JobError> {
         )));
     }
     let part = Part::from_json(&v).map_err(not_part)?;
+    same_version(&shown.to_string(), &part.lamina_version)?;
+    Ok(part)
+}
+
+/// Refuses a part written by another Lamina version (`shown` names it).
+pub(crate) fn same_version(shown: &str, version: &str) -> Result<(), JobError> {
     let ours = env!("CARGO_PKG_VERSION");
-    if part.lamina_version != ours {
+    if version != ours {
         return Err(JobError::Invalid(format!(
-            "error: {shown}: written by Lamina {}, but this is Lamina {ours}; merge with the \
-             version that ran the shards",
-            part.lamina_version
+            "error: {shown}: written by Lamina {version}, but this is Lamina {ours}; merge with \
+             the version that ran the shards"
         )));
     }
-    Ok(part)
+    Ok(())
 }
 
 /// Checks that `parts` are the shards of one run, each once, and returns their rows in sample
@@ -364,38 +378,15 @@ pub fn combine(parts: Vec<Part>, names: &[String]) -> Result<Vec<SampleRow>, Job
             ));
         }
     }
-    let n = first.shards;
-    let mut by_shard: Vec<Option<usize>> = vec![None; n];
-    for (i, p) in parts.iter().enumerate() {
-        if let Some(j) = by_shard[p.shard - 1] {
-            return Err(inconsistent(format!(
-                "shard {}/{n} is given twice: {} and {}",
-                p.shard, names[j], names[i]
-            )));
-        }
-        by_shard[p.shard - 1] = Some(i);
-    }
-    let missing: Vec<String> = (1..=n)
-        .filter(|k| by_shard[k - 1].is_none())
-        .map(|k| {
-            let r = shard_range(k, n, first.runs);
-            format!("{k}/{n} (samples {}..{})", r.start, r.end)
-        })
-        .collect();
-    if !missing.is_empty() {
-        let one = missing.len() == 1;
-        return Err(inconsistent(format!(
-            "shard{} {} {} missing; run {} with `--shard K/{n}` and the flags of the others",
-            if one { "" } else { "s" },
-            missing.join(", "),
-            if one { "is" } else { "are" },
-            if one { "it" } else { "each" }
-        )));
-    }
+    let runs = first.runs;
+    let shards: Vec<(usize, usize)> = parts.iter().map(|p| (p.shard, p.shards)).collect();
+    let order = crate::cluster::shard_order(&shards, names, |k, n| {
+        let r = shard_range(k, n, runs);
+        format!("samples {}..{}", r.start, r.end)
+    })?;
     let mut parts: Vec<Option<Part>> = parts.into_iter().map(Some).collect();
-    Ok(by_shard
+    Ok(order
         .into_iter()
-        .flatten()
         .filter_map(|i| parts[i].take())
         .flat_map(|p| p.rows)
         .collect())

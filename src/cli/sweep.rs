@@ -18,6 +18,15 @@ pub struct Args {
     /// parameter slowest).
     #[arg(long = "param", value_name = "NAME=VALUES", required = true)]
     pub param: Vec<String>,
+    /// Run only shard K of N of the grid's points (`[floor((K-1) P / N), floor(K P / N))` of
+    /// P points, in grid order) and write the partial result (`DIR/part.json` with `--out
+    /// DIR`, else JSON on stdout), for `lamina merge` to put together.
+    #[arg(long, value_name = "K/N")]
+    pub shard: Option<String>,
+    /// The shard of this task of a Slurm job array submitted as `--array=0-(N-1)`: K =
+    /// SLURM_ARRAY_TASK_ID + 1 (the index counts from 0), N = SLURM_ARRAY_TASK_COUNT.
+    #[arg(long, conflicts_with = "shard")]
+    pub shard_from_env: bool,
     /// `--set`, `--json` and `--out`.
     #[command(flatten)]
     pub common: Common,
@@ -28,8 +37,11 @@ pub fn run(a: Args) -> Result<(), JobError> {
     let Args {
         file,
         param,
+        shard,
+        shard_from_env,
         common: Common { set, json, out },
     } = a;
+    let shard = crate::cluster::resolve_shard(shard.as_deref(), shard_from_env)?;
     let set_out = OutputSet::begin_opt(out.as_deref())?;
     let sets = design::parse_sets(&set)?;
     let axes: Vec<crate::sweep::Axis> = param
@@ -42,17 +54,52 @@ pub fn run(a: Args) -> Result<(), JobError> {
     // refused only for its own values (the file loads without them) is a failed row instead.
     let mut first = sets.clone();
     first.extend(axes.iter().map(|a| (a.name.clone(), a.texts[0].clone())));
-    if let Err(e) = design::load(&file, &first) {
-        if matches!(e, JobError::Usage(_)) || design::load(&file, &sets).is_err() {
-            return Err(e);
+    let design = match design::load(&file, &first) {
+        Ok(d) => d,
+        Err(e) => {
+            if matches!(e, JobError::Usage(_)) {
+                return Err(e);
+            }
+            design::load(&file, &sets).map_err(|_| e)?
         }
+    };
+    let total: usize = axes.iter().map(|a| a.values.len()).product();
+    if let Some((k, n)) = shard {
+        // A shard keeps the curves whatever its flags, so a merge can draw the families.
+        let range = crate::montecarlo::shard_range(k, n, total);
+        let rows = crate::sweep::run_sweep(&file, &sets, &axes, range.clone(), true, true);
+        let part = SweepPart {
+            lamina_version: env!("CARGO_PKG_VERSION").to_string(),
+            inputs_hash: crate::sweep::inputs_hash(&design, &sets, &param),
+            file: file.display().to_string(),
+            params: param,
+            points: total,
+            shard: k,
+            shards: n,
+            rows,
+        };
+        let text = serde_json::to_string(&part.to_json()).unwrap_or_default();
+        let what = format!("points {}..{} of {total}", range.start, range.end);
+        return super::cluster::emit_part(set_out, &text, (k, n), &what);
     }
-    let rows = crate::sweep::run_sweep(&file, &sets, &axes, true, set_out.is_some());
+    let rows = crate::sweep::run_sweep(&file, &sets, &axes, 0..total, true, set_out.is_some());
+    report(&axes, &rows, json, set_out)
+}
+
+/// The report of a sweep's rows (in grid order): the `--out` files, then the table or JSON,
+/// and an error when a point failed. The sweep on one machine and `lamina merge` both end
+/// here, so a merge gives the same output.
+pub(crate) fn report(
+    axes: &[Axis],
+    rows: &[Row],
+    json: bool,
+    set_out: Option<OutputSet>,
+) -> Result<(), JobError> {
     if let Some(set) = set_out {
-        write_sweep(set.dir(), &axes, &rows).map_err(JobError::Io)?;
+        write_sweep(set.dir(), axes, rows).map_err(JobError::Io)?;
         set.commit()?;
     }
-    let keys = columns(&rows);
+    let keys = columns(rows);
     if json {
         let items: Vec<serde_json::Value> = rows
             .iter()
@@ -78,7 +125,7 @@ pub fn run(a: Args) -> Result<(), JobError> {
             })
         );
     } else {
-        print_table(&axes, &keys, &rows);
+        print_table(axes, &keys, rows);
     }
     let failed: Vec<&crate::sweep::Row> = rows.iter().filter(|r| r.error.is_some()).collect();
     match failed.first() {
@@ -283,6 +330,211 @@ impl Stems {
         }
         stem
     }
+}
+
+/// The file a sweep shard's `--out` directory holds.
+pub const PART_FILE: &str = "part.json";
+
+/// The version of the sweep part format; a merge takes only parts of this one.
+pub const PART_FORMAT: u64 = 1;
+
+/// The partial result of one shard of a sweep.
+///
+/// As JSON (`part.json`, or a shard's stdout): `format` ([`PART_FORMAT`]), `kind` (`sweep`),
+/// `lamina_version`, `inputs_hash` ([`crate::sweep::inputs_hash`]), `file` (for people; not
+/// checked), `params` (the `--param` flags as given), `points` (of the whole grid), `shard`
+/// (K), `shards` (N), `range` (`[first, end)` of the grid's points) and `rows`, each with its
+/// `index` in the grid, `point` and `figures` as `[key, value]` pairs, `error` (or null) and
+/// `curves`; numbers as text that reads back to the same bits, as in the Monte Carlo parts
+/// ([`super::montecarlo_merge`]).
+#[derive(Clone, Debug, PartialEq)]
+pub struct SweepPart {
+    /// Lamina's version that ran it.
+    pub lamina_version: String,
+    /// [`crate::sweep::inputs_hash`] of its inputs.
+    pub inputs_hash: String,
+    /// The circuit file as given on the command line.
+    pub file: String,
+    /// The `--param` flags as given.
+    pub params: Vec<String>,
+    /// Points of the whole grid.
+    pub points: usize,
+    /// K, from 1.
+    pub shard: usize,
+    /// N.
+    pub shards: usize,
+    /// Its rows, in grid order.
+    pub rows: Vec<Row>,
+}
+
+impl SweepPart {
+    /// The part as JSON (see the type's documentation).
+    pub fn to_json(&self) -> serde_json::Value {
+        use super::montecarlo_merge::{curves_json, pairs};
+        let range = crate::montecarlo::shard_range(self.shard, self.shards, self.points);
+        let rows: Vec<serde_json::Value> = self
+            .rows
+            .iter()
+            .zip(range.clone())
+            .map(|(r, index)| {
+                serde_json::json!({
+                    "index": index, "point": pairs(&r.point), "figures": pairs(&r.figures),
+                    "error": r.error, "curves": curves_json(&r.curves),
+                })
+            })
+            .collect();
+        serde_json::json!({
+            "format": PART_FORMAT,
+            "kind": "sweep",
+            "lamina_version": self.lamina_version,
+            "inputs_hash": self.inputs_hash,
+            "file": self.file,
+            "params": self.params,
+            "points": self.points,
+            "shard": self.shard,
+            "shards": self.shards,
+            "range": [range.start, range.end],
+            "rows": rows,
+        })
+    }
+
+    /// Reads a part, checking its shape and that its rows are exactly its shard's points.
+    pub fn from_json(v: &serde_json::Value) -> Result<SweepPart, String> {
+        use super::montecarlo_merge::{curves_of_json, pairs_of};
+        use serde_json::Value;
+        let field = |k: &str| v.get(k).ok_or_else(|| format!("no `{k}`"));
+        let text = |k: &str| -> Result<String, String> {
+            field(k)?
+                .as_str()
+                .map(str::to_string)
+                .ok_or_else(|| format!("`{k}` is not text"))
+        };
+        let count = |x: &Value, k: &str| -> Result<usize, String> {
+            x.as_u64()
+                .and_then(|n| usize::try_from(n).ok())
+                .ok_or_else(|| format!("`{k}` is not a whole number"))
+        };
+        if v.get("kind").and_then(Value::as_str) != Some("sweep") {
+            return Err("its `kind` is not `sweep`".into());
+        }
+        let params = field("params")?
+            .as_array()
+            .ok_or("`params` is not a list")?
+            .iter()
+            .map(|p| {
+                p.as_str()
+                    .map(str::to_string)
+                    .ok_or("`params` holds a non-text value")
+            })
+            .collect::<Result<Vec<_>, _>>()?;
+        let mut indices = Vec::new();
+        let rows = field("rows")?
+            .as_array()
+            .ok_or("`rows` is not a list")?
+            .iter()
+            .map(|r| {
+                let index = count(r.get("index").unwrap_or(&Value::Null), "index")?;
+                indices.push(index);
+                let at = |e: String| format!("row {index}: {e}");
+                let error = match r.get("error") {
+                    Some(Value::String(e)) => Some(e.clone()),
+                    Some(Value::Null) => None,
+                    _ => return Err(at("`error` is neither text nor null".into())),
+                };
+                Ok(Row {
+                    point: pairs_of(r.get("point"), "point").map_err(at)?,
+                    figures: pairs_of(r.get("figures"), "figures").map_err(at)?,
+                    curves: curves_of_json(r.get("curves"), &format!("row {index}"))?,
+                    error,
+                })
+            })
+            .collect::<Result<Vec<_>, String>>()?;
+        let part = SweepPart {
+            lamina_version: text("lamina_version")?,
+            inputs_hash: text("inputs_hash")?,
+            file: text("file")?,
+            params,
+            points: count(field("points")?, "points")?,
+            shard: count(field("shard")?, "shard")?,
+            shards: count(field("shards")?, "shards")?,
+            rows,
+        };
+        if part.shards == 0 || part.shard == 0 || part.shard > part.shards {
+            return Err(format!(
+                "shard {}/{} does not exist",
+                part.shard, part.shards
+            ));
+        }
+        let want: Vec<usize> =
+            crate::montecarlo::shard_range(part.shard, part.shards, part.points).collect();
+        if indices != want {
+            return Err(format!(
+                "shard {}/{} of {} points must hold points {}..{} in order, but holds {} rows",
+                part.shard,
+                part.shards,
+                part.points,
+                want.first().copied().unwrap_or(0),
+                want.last().map_or(0, |l| l + 1),
+                indices.len()
+            ));
+        }
+        Ok(part)
+    }
+}
+
+/// Puts sweep parts (read from `names`) back together and reports as the whole sweep does:
+/// the parts must be of one Lamina version, one set of inputs (circuit files, `--set` and
+/// `--param` values) and one split, each shard once.
+pub(crate) fn merge(
+    parts: Vec<SweepPart>,
+    names: &[String],
+    json: bool,
+    set_out: Option<OutputSet>,
+) -> Result<(), JobError> {
+    let Some(first) = parts.first() else {
+        return Err(JobError::Usage("give at least one part".into()));
+    };
+    for (p, name) in parts.iter().zip(names).skip(1) {
+        let differs = |what: &str, a: &str, b: &str| {
+            JobError::Invalid(format!(
+                "error: {name} has {what} {b}, but {} has {what} {a}: the parts are not of one \
+                 sweep",
+                names[0]
+            ))
+        };
+        if p.params != first.params {
+            return Err(differs(
+                "--param",
+                &first.params.join(" "),
+                &p.params.join(" "),
+            ));
+        }
+        if p.inputs_hash != first.inputs_hash {
+            return Err(differs(
+                "inputs hash (circuit files and --set values)",
+                &first.inputs_hash,
+                &p.inputs_hash,
+            ));
+        }
+    }
+    let axes: Vec<Axis> = first
+        .params
+        .iter()
+        .map(|p| crate::sweep::parse_axis(p))
+        .collect::<Result<_, _>>()?;
+    let points = first.points;
+    let shards: Vec<(usize, usize)> = parts.iter().map(|p| (p.shard, p.shards)).collect();
+    let order = crate::cluster::shard_order(&shards, names, |k, n| {
+        let r = crate::montecarlo::shard_range(k, n, points);
+        format!("points {}..{}", r.start, r.end)
+    })?;
+    let mut parts: Vec<Option<SweepPart>> = parts.into_iter().map(Some).collect();
+    let rows: Vec<Row> = order
+        .into_iter()
+        .filter_map(|i| parts[i].take())
+        .flat_map(|p| p.rows)
+        .collect();
+    report(&axes, &rows, json, set_out)
 }
 
 #[cfg(test)]

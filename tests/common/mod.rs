@@ -2,6 +2,7 @@
 
 #![allow(dead_code)]
 
+use std::path::Path;
 use std::process::{Command, Output};
 
 /// Runs `lamina` with `args` from the package root and returns what it did.
@@ -23,4 +24,18 @@ pub fn lamina_ok(args: &[&str]) -> Output {
         String::from_utf8_lossy(&out.stderr)
     );
     out
+}
+
+/// Every file of a directory, by name, with its bytes.
+pub fn files(dir: &Path) -> Vec<(String, Vec<u8>)> {
+    let mut list: Vec<(String, Vec<u8>)> = std::fs::read_dir(dir)
+        .expect("the directory")
+        .map(|e| {
+            let e = e.expect("an entry");
+            let bytes = std::fs::read(e.path()).expect("the file");
+            (e.file_name().to_string_lossy().into_owned(), bytes)
+        })
+        .collect();
+    list.sort();
+    list
 }
