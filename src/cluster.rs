@@ -276,6 +276,12 @@ pub fn script_text(s: &Script) -> String {
     if let Some(p) = s.partition {
         t.push_str(&format!("#SBATCH --partition={p}\n"));
     }
+    // The log path is read before the script's `cd`, relative to where sbatch runs: start
+    // the task in the working directory so the relative path holds wherever it is submitted.
+    let plain = |p: &str| !p.is_empty() && !p.chars().any(|c| c.is_whitespace() || c == '"');
+    if plain(s.workdir) {
+        t.push_str(&format!("#SBATCH --chdir={}\n", s.workdir));
+    }
     t.push_str(&format!(
         "#SBATCH --output={}/logs/task-%a.out\n",
         s.results

@@ -167,10 +167,16 @@ impl Part {
             shards: count("shards")?,
             rows,
         };
-        if part.shards == 0 || part.shard == 0 || part.shard > part.shards {
+        if part.shards == 0
+            || part.shard == 0
+            || part.shard > part.shards
+            || part.shards > crate::montecarlo::MAX_SHARDS
+        {
             return Err(format!(
-                "shard {}/{} does not exist",
-                part.shard, part.shards
+                "shard {}/{} does not exist (a run splits into 1 to {} shards)",
+                part.shard,
+                part.shards,
+                crate::montecarlo::MAX_SHARDS
             ));
         }
         let want: Vec<usize> = shard_range(part.shard, part.shards, part.runs).collect();

@@ -2264,6 +2264,12 @@ impl SheetFet {
         // independent of the far end once it is off. Only σ² = big² w^(1/2) is needed below,
         // and d ln σ = (d big + r³ d small) / (w big).
         let (big, small) = if ss.v >= sd.v { (ss, sd) } else { (sd, ss) };
+        // A channel off at both ends (σ subnormal, zero or, from interpolation, slightly
+        // negative; at 4 K σ crosses the subnormal range over millivolts of gate drive)
+        // carries no current that could saturate: the factor is 1, where 1/σ would overflow.
+        if big.v.is_nan() || big.v <= 1e-300 {
+            return Ends::c(1.0);
+        }
         let inv_big = 1.0 / big.v;
         let r = small.v * inv_big;
         let r3 = r * r * r;

@@ -577,3 +577,33 @@ fn work_function_variants_share_tables_without_changing_results() {
         assert!(fet.intrinsic(0.5, 1.0, 0.0).current.v.is_finite());
     }
 }
+
+/// At 4 K the conductance passes through the subnormal range over millivolts of gate drive;
+/// with velocity saturation on, every evaluation over a fine gate scan must stay finite (a
+/// subnormal σ at the better-conducting end once made the saturation factor 0 × ∞).
+#[test]
+fn cold_evaluations_stay_finite_through_subnormal_conductance() {
+    for temperature in [4.0, 1.0] {
+        let card = SheetFetCard {
+            temperature,
+            saturation_velocity: 1e5,
+            ..device_a()
+        };
+        let fet = SheetFet::new(&card).unwrap();
+        for k in 0..40_000 {
+            let vg = -1.0 + 2.0 * k as f64 / 40_000.0;
+            for vd in [0.5, 1e-4] {
+                let i = fet.intrinsic(vd, vg, 0.0);
+                let ok = i.current.v.is_finite()
+                    && i.current.d.iter().all(|d| d.is_finite())
+                    && i.q_drain.v.is_finite()
+                    && i.q_gate.v.is_finite();
+                assert!(
+                    ok,
+                    "{temperature} K, V_G = {vg}, V_D = {vd}: {:?}",
+                    i.current
+                );
+            }
+        }
+    }
+}

@@ -50,10 +50,11 @@
 //! convergence), with `‖·‖` the largest ratio of update to Newton update tolerance. `m` is
 //! measured whenever a step takes two iterations (`‖Δ_2‖ / ‖Δ_1‖²`) and raised by 10 % for
 //! each step solved in one, so it is measured again within a few dozen steps. The transient
-//! accepts an update when `m ‖Δ‖² ≤ κ`, `κ = min(1, lte_reltol / reltol)`: the estimated
-//! Newton error of the accepted state is within the truncation-error tolerance's relative
-//! part, carried over to the unknowns. The ordinary test (residual and update both within the
-//! Newton tolerances) still accepts too. The charges stored are those of the accepted
+//! accepts an update that is within the Newton update tolerances when either the residual
+//! before it passed (the ordinary test) or `m ‖Δ‖² ≤ κ`, `κ = min(1, lte_reltol / reltol)`:
+//! the measured constant stands in for the residual test only, never for the update test, so
+//! every accepted state is within the Newton tolerances on every equation, including those
+//! with no charge for the truncation-error test to watch. The charges stored are those of the accepted
 //! unknowns, carried to first order along the last update as before.
 
 use crate::system::NewtonInfo;

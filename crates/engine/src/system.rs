@@ -1154,9 +1154,13 @@ impl System {
             let quadratic = (it > 1)
                 .then(|| norm / (prev_norm * prev_norm))
                 .filter(|m| m.is_finite());
+            // The update must be within the Newton tolerances; a measured quadratic-convergence
+            // constant may only stand in for the residual test (an update beyond tolerance is
+            // never accepted: on an equation without charge no truncation-error test would
+            // catch it).
             let delta_ok = lambda == 1.0
-                && ((ratio <= 1.0 && norm <= 1.0)
-                    || params.quadratic.is_some_and(|m| m * norm * norm <= 1.0));
+                && norm <= 1.0
+                && (ratio <= 1.0 || params.quadratic.is_some_and(|m| m * norm * norm <= 1.0));
             prev_norm = if lambda == 1.0 { norm } else { f64::NAN };
             if delta_ok {
                 // Accepted: the residual here passed and the correction from here is within

@@ -17,8 +17,9 @@
 //! including the new point, Brayton, Gustavson and Hachtel, Proc. IEEE 1972). A step is
 //! accepted when every row's estimate is within `lte_reltol · max(|q|, q_ref) + chgtol`, where
 //! `q_ref` is the largest `|q|` the row has had so far; a proportional-integral controller
-//! chooses the next step from the worst ratio of this step and the last. Newton accepts a
-//! state whose estimated error is within the truncation-error tolerance. The constants, the
+//! chooses the next step from the worst ratio of this step and the last. Newton accepts an
+//! update within its tolerances once the residual passed or, from a measured
+//! quadratic-convergence constant, would pass. The constants, the
 //! controller and their sources are in the `stepping` module.
 //!
 //! Source corners are breakpoints: the step is cut to land on each one, the history restarts
@@ -913,10 +914,11 @@ mod tests {
 
     /// An RC low-pass (τ = 1 ns) driven by a sine at ω τ = 1 from rest, against the closed form
     /// `v = A / (1 + (ωτ)²) (sin ωt - ωτ cos ωt + ωτ e^{-t/τ})` (first-order response, common
-    /// practice). The controller rejects almost nothing, and Newton solves almost every step
-    /// of the linear circuit in one iteration.
+    /// practice). The controller rejects almost nothing, and Newton takes at most two
+    /// iterations on the linear circuit (one solves it; a second confirms when the first update,
+    /// the predictor's error, exceeded the Newton tolerances: measured 1.48 per attempt).
     #[test]
-    fn a_driven_rc_is_accurate_with_few_rejections_and_one_newton_iteration() {
+    fn a_driven_rc_is_accurate_with_few_rejections_and_at_most_two_newton_iterations() {
         let (r, cap, amp) = (1e3, 1e-12, 1.0);
         let tau = r * cap;
         let omega = 1.0 / tau;
@@ -957,7 +959,7 @@ mod tests {
         let s = res.stats;
         let attempts = s.accepted + s.rejected_lte + s.rejected_newton;
         assert!(s.rejected_lte * 50 <= s.accepted, "{s:?}");
-        assert!(s.newton_iterations * 10 <= attempts * 11, "{s:?}");
+        assert!(s.newton_iterations <= attempts * 2, "{s:?}");
     }
 
     /// A capacitor discharging through a resistor for 20,000 time constants: its voltage passes
