@@ -444,7 +444,13 @@ impl Reduction {
         for (k, &i) in full.iter().enumerate() {
             kept[i] = k;
         }
-        let pin_of = |c: usize| pinned.iter().position(|p| p.node == c);
+        // The pinned entry of each node column, by index (a search per matrix entry would cost
+        // pinned sources times their fan-out).
+        let mut pin_index = vec![NONE; n];
+        for (k, p) in pinned.iter().enumerate() {
+            pin_index[p.node] = k;
+        }
+        let pin_of = |c: usize| Some(pin_index[c]).filter(|&k| k != NONE);
         let mut red_ptr = vec![0usize];
         let mut red_rows = Vec::new();
         let mut gather = Vec::new();
