@@ -302,9 +302,30 @@ pub fn script_text(s: &Script) -> String {
     t
 }
 
+/// Whether a part's `shard` of `shards` can exist: `1 <= shard <= shards <= MAX_SHARDS` (a
+/// part read from disk is not trusted to be small).
+pub fn check_shard(shard: usize, shards: usize) -> Result<(), String> {
+    if shards == 0 || shard == 0 || shard > shards || shards > crate::montecarlo::MAX_SHARDS {
+        return Err(format!(
+            "shard {shard}/{shards} does not exist (a run splits into 1 to {} shards)",
+            crate::montecarlo::MAX_SHARDS
+        ));
+    }
+    Ok(())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// A part read from disk may claim any shard count: more than the most a run splits into
+    /// is refused before anything is allocated for it.
+    #[test]
+    fn shard_counts_are_bounded() {
+        assert!(check_shard(1, 1).is_ok() && check_shard(3, 4).is_ok());
+        assert!(check_shard(0, 4).is_err() && check_shard(5, 4).is_err());
+        assert!(check_shard(1, 1_000_000_000_000).is_err());
+    }
 
     fn env<'a>(vars: &'a [(&'a str, &'a str)]) -> impl Fn(&str) -> Option<String> + 'a {
         move |k| {

@@ -167,18 +167,7 @@ impl Part {
             shards: count("shards")?,
             rows,
         };
-        if part.shards == 0
-            || part.shard == 0
-            || part.shard > part.shards
-            || part.shards > crate::montecarlo::MAX_SHARDS
-        {
-            return Err(format!(
-                "shard {}/{} does not exist (a run splits into 1 to {} shards)",
-                part.shard,
-                part.shards,
-                crate::montecarlo::MAX_SHARDS
-            ));
-        }
+        crate::cluster::check_shard(part.shard, part.shards)?;
         let want: Vec<usize> = shard_range(part.shard, part.shards, part.runs).collect();
         let have: Vec<usize> = part.rows.iter().map(|r| r.sample).collect();
         if have != want {

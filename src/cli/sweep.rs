@@ -459,18 +459,7 @@ impl SweepPart {
             shards: count(field("shards")?, "shards")?,
             rows,
         };
-        if part.shards == 0
-            || part.shard == 0
-            || part.shard > part.shards
-            || part.shards > crate::montecarlo::MAX_SHARDS
-        {
-            return Err(format!(
-                "shard {}/{} does not exist (a run splits into 1 to {} shards)",
-                part.shard,
-                part.shards,
-                crate::montecarlo::MAX_SHARDS
-            ));
-        }
+        crate::cluster::check_shard(part.shard, part.shards)?;
         let want: Vec<usize> =
             crate::montecarlo::shard_range(part.shard, part.shards, part.points).collect();
         if indices != want {
