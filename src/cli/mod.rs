@@ -208,3 +208,17 @@ pub(crate) fn print_outcome(o: &Outcome) {
         }
     }
 }
+
+/// The width of each column of a text table: the longest of its header and cells.
+pub(crate) fn column_widths(header: &[String], cells: &[Vec<String>]) -> Vec<usize> {
+    (0..header.len())
+        .map(|j| {
+            cells
+                .iter()
+                .map(|c| c[j].len())
+                .chain([header[j].len()])
+                .max()
+                .unwrap_or(0)
+        })
+        .collect()
+}

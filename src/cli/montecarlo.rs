@@ -362,16 +362,7 @@ fn print_report(r: &Report, specs: &[Spec], runs: usize, seed: u64) {
 
 /// A table with its columns aligned: the first to the left, the others to the right.
 fn print_table(header: &[String], cells: &[Vec<String>]) {
-    let widths: Vec<usize> = (0..header.len())
-        .map(|j| {
-            cells
-                .iter()
-                .map(|c| c[j].len())
-                .chain([header[j].len()])
-                .max()
-                .unwrap_or(0)
-        })
-        .collect();
+    let widths = super::column_widths(header, cells);
     let line = |c: &[String]| {
         c.iter()
             .zip(&widths)

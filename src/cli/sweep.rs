@@ -160,16 +160,7 @@ fn print_table(axes: &[Axis], keys: &[String], rows: &[Row]) {
             c
         })
         .collect();
-    let widths: Vec<usize> = (0..header.len())
-        .map(|j| {
-            cells
-                .iter()
-                .map(|c| c[j].len())
-                .chain([header[j].len()])
-                .max()
-                .unwrap_or(0)
-        })
-        .collect();
+    let widths = super::column_widths(&header, &cells);
     let line = |c: &[String]| -> String {
         c.iter()
             .zip(&widths)

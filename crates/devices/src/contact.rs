@@ -39,7 +39,7 @@
 //! (substitute `u = Δ e^{-x/λ}` in the WKB integral), which is 1 at the top and continuous with
 //! its first derivative there. [`wkb_exponent`] integrates any profile numerically for checks.
 
-use crate::physics::{HBAR, K_B, Q};
+use crate::physics::{f0, logistic, HBAR, K_B, Q};
 use std::f64::consts::PI;
 
 /// Electron and hole barrier heights of a metal contact (J).
@@ -166,39 +166,29 @@ const GL4: [(f64, f64); 4] = [
 /// axis (L. N. Trefethen and J. A. C. Weideman, "The exponentially convergent trapezoidal
 /// rule", SIAM Review 56, 385 (2014)).
 pub fn sqrt_pi_fermi_minus_half(a: f64) -> f64 {
-    trapezoid_fermi(a, |u2, a| logistic_neg(u2 - a))
+    trapezoid_fermi(a, |u2, a| logistic(a - u2))
 }
 
 /// `sqrt(π) F_{1/2}(a) = ∫_{-∞}^{a} sqrt(π) F_{-1/2}(b) db` (normalised integrals:
 /// `dF_j/dη = F_{j-1}`), computed as `∫ ln(1 + e^{a - u²}) du` over the real line.
 pub fn sqrt_pi_fermi_half(a: f64) -> f64 {
-    trapezoid_fermi(a, |u2, a| {
-        let x = a - u2;
-        if x > 0.0 {
-            x + (-x).exp().ln_1p()
-        } else {
-            x.exp().ln_1p()
-        }
-    })
+    trapezoid_fermi(a, |u2, a| f0(a - u2))
 }
 
-/// `1 / (1 + e^x)` without overflow.
-fn logistic_neg(x: f64) -> f64 {
-    if x > 0.0 {
-        let e = (-x).exp();
-        e / (1.0 + e)
-    } else {
-        1.0 / (1.0 + x.exp())
-    }
-}
-
-/// `∫ g(u², a) du` over the real line for the Fermi-like integrands above.
-fn trapezoid_fermi(a: f64, g: impl Fn(f64, f64) -> f64) -> f64 {
+/// The trapezoidal rule's step and last node (`u = n step`) for the Fermi integrands at `a`:
+/// the step keeps the error near `e^{-30}` from the distance of the nearest pole
+/// (`u² = a ± iπ`) to the real axis, and the nodes reach where `u² - a` exceeds 40.
+fn trapezoid_grid(a: f64) -> (f64, usize) {
     let modulus = (a * a + PI * PI).sqrt();
     let distance = ((modulus - a) / 2.0).sqrt();
     let step = (2.0 * PI * distance / 32.0).min(0.25);
     let reach = (a.max(0.0) + 40.0).sqrt();
-    let n = (reach / step).ceil() as usize;
+    (step, (reach / step).ceil() as usize)
+}
+
+/// `∫ g(u², a) du` over the real line for the Fermi-like integrands above.
+fn trapezoid_fermi(a: f64, g: impl Fn(f64, f64) -> f64) -> f64 {
+    let (step, n) = trapezoid_grid(a);
     let mut sum = 0.5 * g(0.0, a);
     for i in 1..=n {
         let u = i as f64 * step;
@@ -228,21 +218,12 @@ pub fn injection(delta: f64, eta: f64, length: f64) -> f64 {
 /// `[√π F_{1/2}, √π F_{-1/2}, its derivative, its second derivative]` at `a`, in one
 /// trapezoidal pass (`d/da` of `1 / (1 + e^{u² - a})` is `f (1 - f)`, and so on).
 fn kernels_direct(a: f64) -> [f64; 4] {
-    let modulus = (a * a + PI * PI).sqrt();
-    let distance = ((modulus - a) / 2.0).sqrt();
-    let step = (2.0 * PI * distance / 32.0).min(0.25);
-    let reach = (a.max(0.0) + 40.0).sqrt();
-    let n = (reach / step).ceil() as usize;
+    let (step, n) = trapezoid_grid(a);
     let mut sum = [0.0; 4];
     for i in 0..=n {
         let u = i as f64 * step;
         let x = u * u - a;
-        let f = logistic_neg(x);
-        let half = if x < 0.0 {
-            -x + x.exp().ln_1p()
-        } else {
-            (-x).exp().ln_1p()
-        };
+        let (f, half) = (logistic(-x), f0(-x));
         let w = if i == 0 { 0.5 } else { 1.0 };
         let g = f * (1.0 - f);
         sum[0] += w * half;

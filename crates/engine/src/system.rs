@@ -1121,13 +1121,13 @@ impl System {
             });
         for it in 1..=params.max_iterations {
             self.assemble_with(x, &load.ctx, load.a0, rule);
-            let (ratio, _) = self.residual(x, load, &tol);
-            let mut delta = std::mem::take(&mut self.rhs);
-            // A device that returns NaN or infinity is named as such, not as a singular matrix.
-            if let Some(unknown) = delta.iter().position(|r| !r.is_finite()) {
-                self.rhs = delta;
-                return Err(NewtonFailure::NotANumber { unknown });
+            let (ratio, worst_row) = self.residual(x, load, &tol);
+            // A device that returns NaN or infinity is named as such, not as a singular matrix
+            // (the residual reports a non-finite row as its worst: no extra pass).
+            if !ratio.is_finite() {
+                return Err(NewtonFailure::NotANumber { unknown: worst_row });
             }
+            let mut delta = std::mem::take(&mut self.rhs);
             let solved = self.solve_update(&mut delta);
             let bad = delta.iter().position(|d| !d.is_finite());
             if let Err(s) = solved {
