@@ -217,6 +217,7 @@ fn detail_key(name: &str, unit: &str) -> String {
         "" => base,
         "1/m^2" => format!("{base}_per_m2"),
         "V" => format!("{base}_v"),
+        "Ohm m" => format!("{base}_ohm_m"),
         other => format!("{base}_{}", other.replace(['/', '^'], "")),
     }
 }

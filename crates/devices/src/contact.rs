@@ -206,7 +206,7 @@ pub fn injection(delta: f64, eta: f64, length: f64) -> f64 {
     if top == 0.0 {
         return over;
     }
-    let under: f64 = under_nodes(top)
+    let under: f64 = under_nodes(top, length)
         .map(|(eps, w)| {
             let theta = exponential_barrier_exponent(top, length, eps);
             w * (-theta).exp() * sqrt_pi_fermi_minus_half(eta - eps)
@@ -318,20 +318,42 @@ fn panels_under(top: f64) -> usize {
     (2.0 * top).ceil().max(16.0) as usize
 }
 
-/// The nodes of the sum under a top `top`: `(ε, weight)` with `ε = top sin² φ`, which removes
-/// the square roots at both ends (`sqrt(ε) = sqrt(top) sin φ`, `sqrt(top - ε) = sqrt(top)
-/// cos φ`), and weights including `dε/dφ = top sin 2φ`.
-fn under_nodes(top: f64) -> impl Iterator<Item = (f64, f64)> {
+/// The nodes of the sum under a top `top` for reduced length `length`: `(ε, weight)` with
+/// `ε = top sin² φ`, which removes the square roots at both ends (`sqrt(ε) = sqrt(top) sin φ`,
+/// `sqrt(top - ε) = sqrt(top) cos φ`), and weights including `dε/dφ = top sin 2φ`. Under the
+/// top, `θ ≈ 4 L x^{3/2} / (3 Δ)` with `x = Δ - ε`, so for a long barrier the transmission
+/// rises from nothing to 1 within `x ~ (3 Δ / 4 L)^{2/3}` of the top, a sliver the panels
+/// over the whole range would step over (the slope in `Δ` there is of order one whatever
+/// `L`): the last `x0 = 8 (3 Δ / 4 L)^{2/3}` below the top gets [`TOP_PANELS`] panels of its
+/// own when it is under a quarter of the top.
+fn under_nodes(top: f64, length: f64) -> impl Iterator<Item = (f64, f64)> {
+    let half_pi = 0.5 * PI;
+    let x0 = 8.0 * (0.75 * top / length.max(1e-300)).powf(2.0 / 3.0);
+    // φ where top cos² φ = x0.
+    let split = if x0 < 0.25 * top {
+        (x0 / top).sqrt().acos()
+    } else {
+        half_pi
+    };
     let panels = panels_under(top);
-    let width = 0.5 * PI / panels as f64;
-    (0..panels).flat_map(move |p| {
-        GL4.iter().map(move |&(t, w)| {
-            let phi = (p as f64 + t) * width;
-            let (sin, cos) = phi.sin_cos();
-            (top * sin * sin, w * width * top * 2.0 * sin * cos)
+    let ranges = [
+        (0.0, split, panels),
+        (split, half_pi, if split < half_pi { TOP_PANELS } else { 0 }),
+    ];
+    ranges.into_iter().flat_map(move |(from, to, panels)| {
+        let width = (to - from) / panels.max(1) as f64;
+        (0..panels).flat_map(move |p| {
+            GL4.iter().map(move |&(t, w)| {
+                let phi = from + (p as f64 + t) * width;
+                let (sin, cos) = phi.sin_cos();
+                (top * sin * sin, w * width * top * 2.0 * sin * cos)
+            })
         })
     })
 }
+
+/// Panels of [`under_nodes`] in the sliver below a long barrier's top.
+const TOP_PANELS: usize = 16;
 
 /// `[I, ∂I/∂Δ, ∂I/∂η, ∂²I/∂Δ∂η]` of [`injection`] from the kernel tables: the part over the
 /// top is `√π F_{1/2}(η - Δ)`, the part under it a Gauss-Legendre sum over `ε = Δ sin² φ`
@@ -345,7 +367,7 @@ pub fn injection_with_slopes(delta: f64, eta: f64, length: f64) -> [f64; 4] {
     if top == 0.0 {
         return out;
     }
-    for (eps, w) in under_nodes(top) {
+    for (eps, w) in under_nodes(top, length) {
         let trans = (-exponential_barrier_exponent(top, length, eps)).exp();
         let dtheta = 2.0 * length * (top - eps).max(0.0).sqrt() / top;
         let kk = k.at(eta - eps);
@@ -368,6 +390,7 @@ pub fn injection_with_slopes(delta: f64, eta: f64, length: f64) -> [f64; 4] {
 /// reservoir is nondegenerate and `I` scales as `e^η` exactly enough (relative `e^{η_min}`);
 /// a top below the channel's edge passes every state (`I` stops depending on `Δ`); beyond the
 /// grid the direct sum is used.
+#[derive(Debug)]
 pub struct InjectionTable {
     length: f64,
     nodes: Vec<[f64; 4]>,

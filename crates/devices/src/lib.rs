@@ -38,5 +38,5 @@ pub mod short_channel;
 mod square_law;
 pub mod warnings;
 
-pub use sheet_fet::{ExtraValley, Gate, Layer, SheetFet, SheetFetCard, SheetModel};
+pub use sheet_fet::{ContactCard, ExtraValley, Gate, Layer, SheetFet, SheetFetCard, SheetModel};
 pub use square_law::{Polarity, SquareLawFet};

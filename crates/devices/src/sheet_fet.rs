@@ -146,8 +146,12 @@ use crate::physics::{
 use lamina_engine::{Element, EvalContext, Internal, Stamp, UnknownKind};
 use std::sync::{Arc, Mutex, Weak};
 
+mod contacts;
 mod ends;
 mod insight;
+
+pub use contacts::{ContactCard, LONG_CHANNEL};
+use contacts::{Contacts, ShortChannel};
 
 use ends::Ends;
 
@@ -269,6 +273,12 @@ pub struct SheetFetCard {
     /// How the mobilities are obtained ([`crate::mobility`]); the default uses
     /// `electron_mobility` and `hole_mobility` as given.
     pub mobility: MobilityOptions,
+    /// Schottky contacts in place of ideal ones (`contacts` module docs); `None` for ideal
+    /// contacts (with the optional linear resistances above).
+    pub contacts: Option<ContactCard>,
+    /// The stack's natural length `λ` (m) for short-channel electrostatics
+    /// ([`crate::short_channel`]); 0 for a long channel.
+    pub natural_length: f64,
 }
 
 impl Default for SheetFetCard {
@@ -306,6 +316,8 @@ impl Default for SheetFetCard {
             drain_resistance: 0.0,
             overlap_capacitance: 0.0,
             mobility: MobilityOptions::default(),
+            contacts: None,
+            natural_length: 0.0,
         }
     }
 }
@@ -419,6 +431,9 @@ impl SheetFetCard {
     /// | saturation exponent | [1, 10] |
     /// | contact resistances | 0, or [1e-12, 1e6] Ω m |
     /// | overlap capacitance | [0, 1] F/m |
+    /// | contact barriers (electron, hole) | [-5, 20] eV |
+    /// | contact screening length | 0 (the natural length), or [1e-12, 1e-6] m |
+    /// | natural length | 0 (long channel), or [1e-12, 1e-3] m |
     /// | gate Fermi velocity | [1e3, 3e8] m/s |
     /// | gate gap shift | [-1, 1] |
     /// | mobility options | see [`crate::mobility::resolve`] |
@@ -567,6 +582,7 @@ impl SheetFetCard {
                 )?;
             }
         }
+        self.validate_contacts()?;
         crate::mobility::resolve(self)?;
         Ok(())
     }
@@ -590,6 +606,8 @@ impl SheetFetCard {
             source_resistance: 0.0,
             drain_resistance: 0.0,
             overlap_capacitance: 0.0,
+            contacts: None,
+            natural_length: 0.0,
             insulator: self
                 .insulator
                 .iter()
@@ -2104,9 +2122,10 @@ pub struct Intrinsic {
 #[derive(Clone, Debug)]
 pub struct SheetFet {
     model: Arc<SheetModel>,
-    /// `W L` (m²) and `W / L`.
+    /// `W L` (m²), `W / L` and `W` (m).
     area: f64,
     aspect: f64,
+    width: f64,
     /// `1 / (E_c L)` (1/V): 0 without velocity saturation.
     inv_saturation_voltage: f64,
     beta: f64,
@@ -2116,6 +2135,10 @@ pub struct SheetFet {
     /// The `|V_DS|` (V) below which the charges take the small-V_DS form.
     small_vds: f64,
     mobility: MobilityReport,
+    /// Schottky contacts at both ends (in place of the linear resistances), if any.
+    contacts: Option<Arc<Contacts>>,
+    /// The short-channel barrier shift, if the channel is short enough to have one.
+    short: Option<ShortChannel>,
 }
 
 const PINS: &[&str] = &["drain", "gate", "source"];
@@ -2161,10 +2184,15 @@ impl SheetFet {
         };
         let g = |r: f64| if r > 0.0 { card.width / r } else { 0.0 };
         let small_vds = SMALL_VDS_VT * model.stack.vt;
+        let contacts = card
+            .contacts
+            .as_ref()
+            .map(|c| Arc::new(Contacts::new(card, c)));
         Ok(SheetFet {
             model,
             area: card.width * card.length,
             aspect: card.width / card.length,
+            width: card.width,
             inv_saturation_voltage,
             beta: card.saturation_exponent,
             g_drain: g(card.drain_resistance),
@@ -2172,12 +2200,19 @@ impl SheetFet {
             overlap: card.overlap_capacitance * card.width,
             small_vds,
             mobility,
+            contacts,
+            short: ShortChannel::of(card),
         })
     }
 
     /// The electron and hole mobilities the device uses, and how they were obtained.
     pub fn mobility_report(&self) -> &MobilityReport {
         &self.mobility
+    }
+
+    /// Channel length (m).
+    pub fn length(&self) -> f64 {
+        self.width / self.aspect
     }
 
     /// The shared stack model.
@@ -2205,9 +2240,7 @@ impl SheetFet {
     pub fn intrinsic(&self, vd: f64, vg: f64, vs: f64) -> Intrinsic {
         let t = &self.model.tables;
         // In the tables' u (the card's less its work-function offset from them).
-        let shift = self.model.shift;
-        let us = Ends::end(vg - vs - shift, 0);
-        let ud = Ends::end(vg - vd - shift, 1);
+        let (us, ud) = self.channel_ends(vg - vs, vg - vd);
         let wl = self.area;
         // The current is the difference of the tabulated S on every branch; the branches
         // differ only in how the charges are formed (see the module docs).
@@ -2250,6 +2283,33 @@ impl SheetFet {
             q_drain: qd.terminals(),
             q_source: (qch - qd).terminals(),
         }
+    }
+
+    /// The channel's end potentials in the tables' `u` (the card's `V_G - V_S'` and `V_G -
+    /// V_D'` less the work-function offset), moved by the short-channel barrier shift where
+    /// the card has one (`contacts` module docs).
+    #[inline]
+    fn channel_ends(&self, us: f64, ud: f64) -> (Ends, Ends) {
+        let shift = self.model.shift;
+        let (s, d) = (Ends::end(us - shift, 0), Ends::end(ud - shift, 1));
+        match self.short_channel_shift(us, ud) {
+            Some(delta) => (s + delta, d + delta),
+            None => (s, d),
+        }
+    }
+
+    /// The short-channel shift `δ` with its derivatives in the two ends, `None` for a long
+    /// channel.
+    #[inline]
+    fn short_channel_shift(&self, us: f64, ud: f64) -> Option<Ends> {
+        let short = self.short.as_ref()?;
+        let (xs, dxs) = self.model.degeneracy(us)?;
+        let (xd, dxd) = self.model.degeneracy(ud)?;
+        let (v, ds, dd) = short.shift(xs, xd);
+        Some(Ends {
+            v,
+            d: [ds * dxs, dd * dxd],
+        })
     }
 
     /// Caughey-Thomas factor of the mean field `V_eff / L` (see the module docs), from the
@@ -2313,7 +2373,11 @@ impl SheetFet {
     }
 
     fn layout(&self) -> (Option<usize>, Option<usize>) {
-        match (self.g_drain > 0.0, self.g_source > 0.0) {
+        let schottky = self.contacts.is_some();
+        match (
+            schottky || self.g_drain > 0.0,
+            schottky || self.g_source > 0.0,
+        ) {
             (true, true) => (Some(3), Some(4)),
             (true, false) => (Some(3), None),
             (false, true) => (None, Some(3)),
@@ -2367,8 +2431,30 @@ impl Element for SheetFet {
             }
         }
         if self.overlap > 0.0 {
-            out.branch_charge(1, d, self.overlap * (x[1] - x[d]), self.overlap);
-            out.branch_charge(1, s, self.overlap * (x[1] - x[s]), self.overlap);
+            // The overlap couples the gate to the contact metal: behind a Schottky contact
+            // (which all but opens where the channel's end is empty) that is the terminal;
+            // behind a linear resistance, the channel's end as it always was.
+            let (od, os) = if self.contacts.is_some() {
+                (0, 2)
+            } else {
+                (d, s)
+            };
+            out.branch_charge(1, od, self.overlap * (x[1] - x[od]), self.overlap);
+            out.branch_charge(1, os, self.overlap * (x[1] - x[os]), self.overlap);
+        }
+        if let Some(c) = &self.contacts {
+            for (t, i) in [(0, d), (2, s)] {
+                let ce = contacts::EDGE_CAPACITANCE * self.width;
+                out.branch_charge(t, i, ce * (x[t] - x[i]), ce);
+                let k = self.contact_current(c, x[t], x[i], x[1]);
+                out.add_f(t, k.i);
+                out.add_f(i, -k.i);
+                for (col, g) in [(t, k.d_terminal), (i, k.d_internal), (1, k.d_gate)] {
+                    out.add_df(t, col, g);
+                    out.add_df(i, col, -g);
+                }
+            }
+            return;
         }
         if let Some(di) = di {
             out.branch_current(0, di, self.g_drain * (x[0] - x[di]), self.g_drain);
@@ -2379,7 +2465,9 @@ impl Element for SheetFet {
     }
 
     fn details(&self, x: &[f64]) -> Vec<lamina_engine::Detail> {
-        self.insight(x)
+        let mut d = self.insight(x);
+        d.extend(self.contact_details(x));
+        d
     }
 
     fn boxed_clone(&self) -> Box<dyn Element> {

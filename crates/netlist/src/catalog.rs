@@ -5,7 +5,8 @@ use crate::units::Dim;
 use lamina_devices::mobility::{DensityDependence, LatticeModel};
 use lamina_devices::sheet_fet::valley_key;
 use lamina_devices::{
-    materials, ExtraValley, Gate, Layer, Polarity, SheetFet, SheetFetCard, SquareLawFet,
+    materials, ContactCard, ExtraValley, Gate, Layer, Polarity, SheetFet, SheetFetCard,
+    SquareLawFet,
 };
 use lamina_engine::elements::{
     Capacitor, CurrentSource, Inductor, Resistor, Vccs, Vcvs, VoltageSource, Waveform,
@@ -107,6 +108,11 @@ impl Values {
     fn text(&self, specs: &[ParamSpec], name: &str) -> Option<&str> {
         let i = specs.iter().position(|p| p.name == name)?;
         self.texts[i].as_deref()
+    }
+
+    /// Whether a number or a name was given for `name`.
+    fn has(&self, specs: &[ParamSpec], name: &str) -> bool {
+        self.get(specs, name).is_some() || self.text(specs, name).is_some()
     }
 }
 
@@ -361,6 +367,16 @@ static SHEET_PARAMS: &[ParamSpec] = &[
     maybe("hole_mobility_density_reference", PER_AREA),
     maybe("electron_mobility_density_exponent", Dim::NONE),
     maybe("hole_mobility_density_exponent", Dim::NONE),
+    named("contact_metal"),
+    maybe("contact_work_function", ENERGY),
+    maybe("contact_pinning", Dim::NONE),
+    maybe("contact_neutral_level", ENERGY),
+    maybe("contact_electron_barrier", ENERGY),
+    maybe("contact_hole_barrier", ENERGY),
+    maybe("contact_screening_length", Dim::LENGTH),
+    maybe("channel_thickness", Dim::LENGTH),
+    maybe("channel_permittivity", Dim::NONE),
+    maybe("natural_length", Dim::LENGTH),
 ];
 
 /// The values `mobility_model` takes.
@@ -900,8 +916,182 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, BuildError> {
         });
     }
     card.insulator = layers;
+    contact_options(v, &mut card)?;
     card.validate()?;
     Ok(card)
+}
+
+/// Schottky contacts and the natural length: the barriers from a metal (library name or
+/// work function) with a pinning factor, or given directly; the natural length from the
+/// channel's thickness and permittivity and the card's insulator, or given directly. Every
+/// combination that would leave a value undetermined or let one key silently win is refused.
+fn contact_options(v: &Values, card: &mut SheetFetCard) -> Result<(), BuildError> {
+    let p = SHEET_PARAMS;
+    let q = lamina_devices::physics::Q;
+    let ev = |name: &str| v.get(p, name).map(|x| x / q);
+    let both = |a: &str, b: &str, help: &str| {
+        if v.has(p, a) && v.has(p, b) {
+            Err(BuildError::at(
+                b,
+                format!("`{a}` and `{b}` are both given; one would silently win"),
+                help.to_string(),
+            ))
+        } else {
+            Ok(())
+        }
+    };
+    // The natural length.
+    both(
+        "natural_length",
+        "channel_thickness",
+        "give the natural length, or the channel's thickness and permittivity to compute it",
+    )?;
+    both(
+        "natural_length",
+        "channel_permittivity",
+        "give the natural length, or the channel's thickness and permittivity to compute it",
+    )?;
+    match (
+        v.get(p, "channel_thickness"),
+        v.get(p, "channel_permittivity"),
+    ) {
+        (Some(t), Some(eps)) => {
+            if !(t > 0.0 && eps >= 1.0) {
+                return Err(BuildError::at(
+                    "channel_thickness",
+                    "the channel's thickness must be positive and its permittivity at least 1",
+                    "give the monolayer's thickness (e.g. `channel_thickness = 0.65 nm`) and its relative permittivity",
+                ));
+            }
+            card.natural_length = lamina_devices::short_channel::natural_length(
+                eps,
+                t,
+                card.insulator.iter().map(|l| (l.thickness, l.permittivity)),
+            );
+        }
+        (Some(_), None) | (None, Some(_)) => {
+            let (given, missing) = if v.has(p, "channel_thickness") {
+                ("channel_thickness", "channel_permittivity")
+            } else {
+                ("channel_permittivity", "channel_thickness")
+            };
+            return Err(BuildError::at(
+                given,
+                format!(
+                    "`{given}` is given without `{missing}`, so the natural length is undetermined"
+                ),
+                format!("add `{missing}`, or give `natural_length` itself"),
+            ));
+        }
+        (None, None) => {
+            if let Some(l) = v.get(p, "natural_length") {
+                card.natural_length = l;
+            }
+        }
+    }
+    // The barriers.
+    let metal_keys = ["contact_metal", "contact_work_function"];
+    let direct_keys = ["contact_electron_barrier", "contact_hole_barrier"];
+    let metal_given = metal_keys.iter().find(|k| v.has(p, k));
+    let direct_given = direct_keys.iter().find(|k| v.has(p, k));
+    both(
+        "contact_metal",
+        "contact_work_function",
+        "name the metal (its library work function) or give the work function",
+    )?;
+    if let (Some(m), Some(d)) = (metal_given, direct_given) {
+        return Err(BuildError::at(
+            d,
+            format!("`{m}` and `{d}` both set the contact barrier; one would silently win"),
+            "give the contact metal (with `contact_pinning`), or the barriers directly",
+        ));
+    }
+    let gap = card.band_gap;
+    let barriers = if metal_given.is_some() {
+        let work_function = match v.text(p, "contact_metal") {
+            Some(name) => match materials::gate(name).map_err(|m| BuildError {
+                param: Some("contact_metal".into()),
+                message: m,
+                help: None,
+            })? {
+                Gate::Metal { work_function } => work_function,
+                Gate::Dirac { .. } => {
+                    return Err(BuildError::at(
+                        "contact_metal",
+                        format!("`{name}` is a 2D semimetal, not a metal with a fixed work function"),
+                        "name a metal of the library (`lamina materials` lists them), or give `contact_work_function`",
+                    ))
+                }
+            },
+            None => ev("contact_work_function").unwrap_or(0.0),
+        };
+        let pinning = v.get(p, "contact_pinning").unwrap_or(1.0);
+        if !(0.0..=1.0).contains(&pinning) {
+            return Err(BuildError::at(
+                "contact_pinning",
+                format!("`contact_pinning` must lie in [0, 1], found {pinning}"),
+                "1 is the Schottky-Mott rule (no pinning), 0 pins the metal's level at the neutrality level",
+            ));
+        }
+        let neutral = match ev("contact_neutral_level") {
+            Some(n) => n,
+            None if pinning == 1.0 => 0.0,
+            None => {
+                return Err(BuildError::at(
+                    "contact_pinning",
+                    "a pinning factor below 1 needs the neutrality level the interface pins to",
+                    "add `contact_neutral_level` (an energy below the vacuum level, like a work function)",
+                ))
+            }
+        };
+        let b = lamina_devices::contact::barriers(
+            work_function,
+            pinning,
+            neutral,
+            card.electron_affinity,
+            gap,
+        );
+        Some((b.electron, b.hole))
+    } else if direct_given.is_some() {
+        match (ev("contact_electron_barrier"), ev("contact_hole_barrier")) {
+            (Some(n), Some(h)) => Some((n, h)),
+            (Some(n), None) => Some((n, gap - n)),
+            (None, Some(h)) => Some((gap - h, h)),
+            (None, None) => None,
+        }
+    } else {
+        for k in [
+            "contact_pinning",
+            "contact_neutral_level",
+            "contact_screening_length",
+        ] {
+            if v.has(p, k) {
+                return Err(BuildError::at(
+                    k,
+                    format!("`{k}` is given, but the card has no Schottky contacts"),
+                    "add `contact_metal` (or `contact_work_function`, or `contact_electron_barrier`), or remove it",
+                ));
+            }
+        }
+        None
+    };
+    if direct_given.is_some() {
+        for k in ["contact_pinning", "contact_neutral_level"] {
+            if v.has(p, k) {
+                return Err(BuildError::at(
+                    k,
+                    format!("`{k}` has no effect on barriers given directly"),
+                    "remove it, or give the contact metal instead of the barriers",
+                ));
+            }
+        }
+    }
+    card.contacts = barriers.map(|(electron_barrier, hole_barrier)| ContactCard {
+        electron_barrier,
+        hole_barrier,
+        screening_length: v.get(p, "contact_screening_length").unwrap_or(0.0),
+    });
+    Ok(())
 }
 
 fn square(p: Polarity, v: &Values) -> SquareLawFet {
