@@ -435,6 +435,30 @@ pub struct BiasCurrent {
     pub a_per_um: Option<f64>,
 }
 
+/// Drain-induced barrier lowering: the constant-current threshold at two drain biases.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Dibl {
+    /// `-(V_th,high - V_th,low) / (V_DS,high - V_DS,low)` (mV/V).
+    pub mv_per_v: f64,
+    /// The smaller and larger `V_DS` (V).
+    pub vds_v: (f64, f64),
+    /// The thresholds there (V).
+    pub vth_v: (f64, f64),
+    /// The constant current of both thresholds (A).
+    pub criterion_a: f64,
+}
+
+/// The output conductance `∂I_D/∂V_DS` at the on bias and the figures' `V_DS`.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct OutputConductance {
+    /// `g_ds` (S).
+    pub siemens: f64,
+    /// `V_GS` (V) where it was taken.
+    pub vgs_v: f64,
+    /// `V_DS` (V) where it was taken.
+    pub vds_v: f64,
+}
+
 /// Device figures of a grid: each a value or the reason it is not reported.
 #[derive(Clone, Debug, PartialEq)]
 pub struct IvMetrics {
@@ -458,6 +482,12 @@ pub struct IvMetrics {
     pub ion: Result<BiasCurrent, String>,
     /// I_off.
     pub ioff: Result<BiasCurrent, String>,
+    /// Drain-induced barrier lowering between the smallest nonzero and the largest `V_DS` of
+    /// the figures' sign.
+    pub dibl: Result<Dibl, String>,
+    /// Output conductance at the on bias ([`output_conductance`]; the grid alone cannot give
+    /// it, so [`iv_metrics`] leaves the reason and the `iv` job fills it in).
+    pub gds: Result<OutputConductance, String>,
 }
 
 /// What each figure means, keyed as in the JSON report.
@@ -539,6 +569,20 @@ pub const METRIC_DEFINITIONS: &[(&str, &str)] = &[
     (
         "ioff_vgs_v",
         "--off-bias, default the V_GS of the branch's smallest |I_D| at vds_v",
+    ),
+    (
+        "dibl_mv_per_v",
+        "drain-induced barrier lowering: -(V_th,high - V_th,low) / (V_DS,high - V_DS,low), V_th the V_GS where |I_D| reaches dibl_criterion_a, at the smallest nonzero V_DS of vds_v's sign (dibl_vds_low_v) and at vds_v (common practice); the criterion is the current at ss_min_vgs_v on the vds_v curve, in subthreshold, so the shift measures the barrier, not the current's own V_DS dependence above threshold (a long channel still shows the few mV/V of its subthreshold current's factor 1 - exp(-V_DS/V_T) where dibl_vds_low_v is a few kT/q)",
+    ),
+    (
+        "dibl_criterion_a",
+        "the constant current of the DIBL thresholds",
+    ),
+    ("dibl_vds_low_v", "the smaller V_DS of the DIBL figure"),
+    ("dibl_vth_low_v", "the constant-current threshold at dibl_vds_low_v"),
+    (
+        "gds_siemens",
+        "output conductance dI_D/dV_DS at V_GS = ion_vgs_v and V_DS = vds_v: backward difference over 1 % of vds_v from two extra operating points",
     ),
 ];
 
@@ -784,6 +828,37 @@ pub fn iv_metrics(points: &[IvPoint], device: &Device, config: &IvConfig) -> IvM
     let off_default = need(&branch).map(|p| branch_of(&vg, &id, p).0[0]);
     let ion = at_bias("--on-bias", config.on_bias_v, on_default);
     let ioff = at_bias("--off-bias", config.off_bias_v, off_default);
+    let dibl = ss_min.clone().and_then(|ss| {
+        let p = need(&branch)?;
+        // The criterion: the current where the swing is steepest at vds_v, in subthreshold,
+        // so the shift measures the barrier rather than the current's own V_DS dependence
+        // above threshold.
+        let criterion_a = measure::current_at_log(&vg, &id, ss.vgs_v)
+            .ok_or("the steepest swing's V_GS lies outside the sweep")?
+            .abs();
+        let (hv, hi) = branch_of(&vg, &id, p);
+        let vth_high = measure::threshold_constant_current(&hv, &hi, criterion_a)
+            .ok_or("the steepest swing's current is not reached on the branch")?;
+        let low = points
+            .iter()
+            .map(|q| q.vds)
+            .filter(|v| *v != 0.0 && v.signum() == vds_v.signum())
+            .reduce(|m, v| if narrower(v, m) { v } else { m })
+            .filter(|v| *v != vds_v)
+            .ok_or("the sweep has one drain bias of the figures' sign; DIBL needs two")?;
+        let (lv, li) = transfer(points, low);
+        let (bv, bi) = branch_of(&lv, &li, p);
+        let vth_low = measure::threshold_constant_current(&bv, &bi, criterion_a).ok_or(format!(
+            "|I_D| does not reach {criterion_a:.3e} A at V_DS = {} V",
+            show(low)
+        ))?;
+        Ok(Dibl {
+            mv_per_v: unsigned_zero(-1e3 * (vth_high - vth_low) / (vds_v - low)),
+            vds_v: (low, vds_v),
+            vth_v: (unsigned_zero(vth_low), unsigned_zero(vth_high)),
+            criterion_a,
+        })
+    });
     IvMetrics {
         device: device.clone(),
         vds_v,
@@ -795,7 +870,24 @@ pub fn iv_metrics(points: &[IvPoint], device: &Device, config: &IvConfig) -> IvM
         current_floor_a,
         ion,
         ioff,
+        dibl,
+        gds: Err("taken by the iv job from two extra operating points".into()),
     }
+}
+
+/// The output conductance of the design's device at `V_GS = vgs` and `V_DS = vds`: a backward
+/// difference over 1 % of `vds` from two operating points.
+pub fn output_conductance(design: Design, vgs: f64, vds: f64) -> Result<OutputConductance, String> {
+    if vds == 0.0 {
+        return Err("the figures' V_DS is 0".into());
+    }
+    let h = 0.01 * vds;
+    let p = run_iv(design, &[vgs], &[vds - h, vds])?;
+    Ok(OutputConductance {
+        siemens: unsigned_zero((p[1].id - p[0].id) / h),
+        vgs_v: unsigned_zero(vgs),
+        vds_v: unsigned_zero(vds),
+    })
 }
 
 /// A dense drain grid for output characteristics: `n` points from `min(0, lowest)` to

@@ -111,7 +111,12 @@ pub fn run(a: Args) -> Result<(), JobError> {
         .map_err(|why| JobError::Invalid(format!("error: {}: {why}", file.display())))?;
     let device = read_device(&d).map_err(JobError::Analysis)?;
     let points = crate::iv::run_iv(d, &vg, &vd).map_err(JobError::Analysis)?;
-    let m = iv_metrics(&points, &device, &config);
+    let mut m = iv_metrics(&points, &device, &config);
+    if let Ok(on) = &m.ion {
+        m.gds = design::load(&file, &sets)
+            .map_err(|e| e.message().to_string())
+            .and_then(|d| crate::iv::output_conductance(d, on.vgs_v, m.vds_v));
+    }
     if let Err(why) = &m.ss_min {
         if why.starts_with("refused") {
             note!("warning: minimum swing {why}");
@@ -257,6 +262,35 @@ pub fn metrics_text(m: &IvMetrics) -> Vec<String> {
             }),
         ));
     }
+    l.push(row(
+        "DIBL (mV/V)",
+        m.dibl.clone().map(|d| {
+            (
+                format!("{:.1}", d.mv_per_v),
+                format!(
+                    "V_GS at |I_D| = {:.3e} A: {} V at V_DS = {} V, {} V at {} V",
+                    d.criterion_a,
+                    fixed(d.vth_v.0, 4),
+                    show(d.vds_v.0),
+                    fixed(d.vth_v.1, 4),
+                    show(d.vds_v.1)
+                ),
+            )
+        }),
+    ));
+    l.push(row(
+        "g_ds (S)",
+        m.gds.clone().map(|g| {
+            (
+                sci(g.siemens, 3),
+                format!(
+                    "dI_D/dV_DS at V_GS = {} V, V_DS = {} V",
+                    show(g.vgs_v),
+                    show(g.vds_v)
+                ),
+            )
+        }),
+    ));
     l
 }
 
@@ -354,6 +388,27 @@ pub fn metrics_json(m: &IvMetrics) -> Value {
         "current_floor_a",
         m.current_floor_a.clone().map(num),
     );
+    put(
+        &mut o,
+        "dibl_mv_per_v",
+        m.dibl.clone().map(|d| num(d.mv_per_v)),
+    );
+    put(
+        &mut o,
+        "dibl_vds_low_v",
+        m.dibl.clone().map(|d| num(d.vds_v.0)),
+    );
+    put(
+        &mut o,
+        "dibl_vth_low_v",
+        m.dibl.clone().map(|d| num(d.vth_v.0)),
+    );
+    put(
+        &mut o,
+        "dibl_criterion_a",
+        m.dibl.clone().map(|d| num(d.criterion_a)),
+    );
+    put(&mut o, "gds_siemens", m.gds.clone().map(|g| num(g.siemens)));
     for (key, r) in [("ion", &m.ion), ("ioff", &m.ioff)] {
         put(&mut o, &format!("{key}_a"), r.clone().map(|c| num(c.a)));
         put(

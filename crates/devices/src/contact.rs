@@ -41,6 +41,7 @@
 
 use crate::physics::{f0, logistic, HBAR, K_B, Q};
 use std::f64::consts::PI;
+use std::sync::OnceLock;
 
 /// Electron and hole barrier heights of a metal contact (J).
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -393,7 +394,7 @@ pub fn injection_with_slopes(delta: f64, eta: f64, length: f64) -> [f64; 4] {
 #[derive(Debug)]
 pub struct InjectionTable {
     length: f64,
-    nodes: Vec<[f64; 4]>,
+    nodes: Vec<OnceLock<Box<[[f64; 4]]>>>,
     rows: usize,
     columns: usize,
 }
@@ -407,32 +408,40 @@ const ETA_FROM: f64 = -25.0;
 const ETA_TO: f64 = 60.0;
 
 impl InjectionTable {
-    /// Builds the table for reduced length `length` (`λ sqrt(2 m kT) / ħ`).
+    /// The table for reduced length `length` (`λ sqrt(2 m kT) / ħ`). Rows (one `σ` each) are
+    /// built when first needed, so a device pays only for the barrier heights it meets (a row
+    /// takes a few milliseconds); a row is a function of its grid points alone, so the table's
+    /// values do not depend on the order or the thread that builds them.
     pub fn new(length: f64) -> InjectionTable {
         let rows = (SIGMA_TO / SIGMA_STEP).round() as usize + 1;
         let columns = ((ETA_TO - ETA_FROM) / GRID_STEP).round() as usize + 1;
-        let mut nodes = Vec::with_capacity(rows * columns);
-        for r in 0..rows {
-            let sigma = r as f64 * SIGMA_STEP;
-            for c in 0..columns {
-                let e = ETA_FROM + c as f64 * GRID_STEP;
-                let [i, i_d, i_e, i_de] = injection_with_slopes(sigma * sigma, e, length);
-                // Slopes in σ: ∂/∂σ = 2σ ∂/∂Δ.
-                let (g_d, g_e) = (i_d / i, i_e / i);
-                nodes.push([
-                    i.ln(),
-                    2.0 * sigma * g_d,
-                    g_e,
-                    2.0 * sigma * (i_de / i - g_d * g_e),
-                ]);
-            }
-        }
         InjectionTable {
             length,
-            nodes,
+            nodes: (0..rows).map(|_| OnceLock::new()).collect(),
             rows,
             columns,
         }
+    }
+
+    /// Row `r`: `[ln I, ∂/∂σ, ∂/∂η, ∂²/∂σ∂η]` at every `η` of the grid.
+    fn row(&self, r: usize) -> &[[f64; 4]] {
+        self.nodes[r].get_or_init(|| {
+            let sigma = r as f64 * SIGMA_STEP;
+            (0..self.columns)
+                .map(|c| {
+                    let e = ETA_FROM + c as f64 * GRID_STEP;
+                    let [i, i_d, i_e, i_de] = injection_with_slopes(sigma * sigma, e, self.length);
+                    // Slopes in σ: ∂/∂σ = 2σ ∂/∂Δ.
+                    let (g_d, g_e) = (i_d / i, i_e / i);
+                    [
+                        i.ln(),
+                        2.0 * sigma * g_d,
+                        g_e,
+                        2.0 * sigma * (i_de / i - g_d * g_e),
+                    ]
+                })
+                .collect()
+        })
     }
 
     /// `[I, ∂I/∂Δ, ∂I/∂η]` at barrier top `delta` and reservoir level `eta` (kT units).
@@ -461,7 +470,8 @@ impl InjectionTable {
         let (da0, db0, da1, db1) = hermite_slope(tx);
         let (c0, e0, c1, e1) = hermite(ty);
         let (dc0, de0, dc1, de1) = hermite_slope(ty);
-        let node = |i: usize, j: usize| &self.nodes[(r + i) * self.columns + c + j];
+        let near = [self.row(r), self.row(r + 1)];
+        let node = |i: usize, j: usize| &near[i][c + j];
         // Basis in σ (value, slope) per end, then in η.
         let ax = [[a0, b0 * hs], [a1, b1 * hs]];
         let dax = [[da0 / hs, db0], [da1 / hs, db1]];

@@ -2236,11 +2236,21 @@ impl SheetFet {
         Some((*x.get(di.unwrap_or(0))?, *x.get(si.unwrap_or(2))?))
     }
 
-    /// Intrinsic current and charges at internal drain, gate and source voltages.
+    /// Intrinsic current and charges at internal drain, gate and source voltages, without a
+    /// short-channel barrier shift ([`SheetFet::channel_at`] applies it).
     pub fn intrinsic(&self, vd: f64, vg: f64, vs: f64) -> Intrinsic {
+        self.intrinsic_shifted(vd, vg, vs, 0.0)
+    }
+
+    /// [`SheetFet::intrinsic`] with both channel ends' gate drives moved by `delta` (V), held
+    /// constant: the derivatives are those at fixed `delta` (the caller chains `delta`'s own,
+    /// using `∂/∂δ = ∂/∂V_G` at fixed `δ`).
+    pub(crate) fn intrinsic_shifted(&self, vd: f64, vg: f64, vs: f64, delta: f64) -> Intrinsic {
         let t = &self.model.tables;
         // In the tables' u (the card's less its work-function offset from them).
-        let (us, ud) = self.channel_ends(vg - vs, vg - vd);
+        let shift = self.model.shift - delta;
+        let us = Ends::end(vg - vs - shift, 0);
+        let ud = Ends::end(vg - vd - shift, 1);
         let wl = self.area;
         // The current is the difference of the tabulated S on every branch; the branches
         // differ only in how the charges are formed (see the module docs).
@@ -2283,33 +2293,6 @@ impl SheetFet {
             q_drain: qd.terminals(),
             q_source: (qch - qd).terminals(),
         }
-    }
-
-    /// The channel's end potentials in the tables' `u` (the card's `V_G - V_S'` and `V_G -
-    /// V_D'` less the work-function offset), moved by the short-channel barrier shift where
-    /// the card has one (`contacts` module docs).
-    #[inline]
-    fn channel_ends(&self, us: f64, ud: f64) -> (Ends, Ends) {
-        let shift = self.model.shift;
-        let (s, d) = (Ends::end(us - shift, 0), Ends::end(ud - shift, 1));
-        match self.short_channel_shift(us, ud) {
-            Some(delta) => (s + delta, d + delta),
-            None => (s, d),
-        }
-    }
-
-    /// The short-channel shift `δ` with its derivatives in the two ends, `None` for a long
-    /// channel.
-    #[inline]
-    fn short_channel_shift(&self, us: f64, ud: f64) -> Option<Ends> {
-        let short = self.short.as_ref()?;
-        let (xs, dxs) = self.model.degeneracy(us)?;
-        let (xd, dxd) = self.model.degeneracy(ud)?;
-        let (v, ds, dd) = short.shift(xs, xd);
-        Some(Ends {
-            v,
-            d: [ds * dxs, dd * dxd],
-        })
     }
 
     /// Caughey-Thomas factor of the mean field `V_eff / L` (see the module docs), from the
@@ -2416,7 +2399,9 @@ impl Element for SheetFet {
         let (di, si) = self.layout();
         let d = di.unwrap_or(0);
         let s = si.unwrap_or(2);
-        let ch = self.intrinsic(x[d], x[1], x[s]);
+        let shift = self.short_channel_shift(x);
+        let (delta, dd) = shift.unwrap_or((0.0, [0.0; 5]));
+        let ch = self.intrinsic_shifted(x[d], x[1], x[s], delta);
         let cols = [d, 1, s];
         out.add_f(d, ch.current.v);
         out.add_f(s, -ch.current.v);
@@ -2428,6 +2413,16 @@ impl Element for SheetFet {
             out.add_q(row, q.v);
             for (k, &c) in cols.iter().enumerate() {
                 out.add_dq(row, c, q.d[k]);
+            }
+        }
+        if shift.is_some() {
+            // δ's own dependence on the local unknowns: ∂/∂δ is ∂/∂V_G at fixed δ.
+            for (c, &g) in dd.iter().enumerate() {
+                out.add_df(d, c, ch.current.d[1] * g);
+                out.add_df(s, c, -ch.current.d[1] * g);
+                for (row, q) in [(1, ch.q_gate), (d, ch.q_drain), (s, ch.q_source)] {
+                    out.add_dq(row, c, q.d[1] * g);
+                }
             }
         }
         if self.overlap > 0.0 {
@@ -2446,12 +2441,19 @@ impl Element for SheetFet {
             for (t, i) in [(0, d), (2, s)] {
                 let ce = contacts::EDGE_CAPACITANCE * self.width;
                 out.branch_charge(t, i, ce * (x[t] - x[i]), ce);
-                let k = self.contact_current(c, x[t], x[i], x[1]);
+                let k = self.contact_current(c, x[t], x[i], x[1], delta);
                 out.add_f(t, k.i);
                 out.add_f(i, -k.i);
                 for (col, g) in [(t, k.d_terminal), (i, k.d_internal), (1, k.d_gate)] {
                     out.add_df(t, col, g);
                     out.add_df(i, col, -g);
+                }
+                // Through δ (∂/∂δ is the gate's slope at fixed δ).
+                if shift.is_some() {
+                    for (col, &g) in dd.iter().enumerate() {
+                        out.add_df(t, col, k.d_gate * g);
+                        out.add_df(i, col, -k.d_gate * g);
+                    }
                 }
             }
             return;

@@ -41,27 +41,32 @@
 //! With a natural length `λ` ([`crate::short_channel`]) the potential between the contacts
 //! follows the quasi-2D scale-length equation, and the barrier carriers must cross moves from
 //! the long-channel value by `δ(a, b, L/λ)` ([`crate::short_channel::barrier_shift`]), where
-//! `a` and `b` are the contacts' band edges relative to the long-channel one at each end:
-//! `a = -(φ_n + ξ(u_s))`, `b = -(φ_n + ξ(u_d))` (volts; the metal pins the band edge `φ_n`
-//! above its Fermi level). Both channel ends' gate drives move by `δ`
-//! (`u → u + δ`): a shift that grows with `V_DS` (drain-induced barrier lowering), grows as
-//! `L` shrinks (threshold roll-off), and falls as the gate raises the long-channel potential
-//! (`∂δ/∂u < 0`, the loss of gate control behind the swing's degradation). Electrons see the
-//! minimum of the potential (`a, b > 0`), holes its maximum (`a, b < 0`); the two branches are
+//! `a` and `b` are the contacts' band edges relative to the long channel's at each end. The
+//! metal pins its band edge `φ_n` above its own Fermi level and the channel's lies `ξ` below
+//! its quasi-Fermi level at that end, so (in volts)
+//! `a = (V_S - V_S') - ξ(V_G - V_S') - φ_n` and `b = (V_D - V_D') - ξ(V_G - V_D') - φ_n`,
+//! primes marking the channel's ends behind the contacts: a drop across a contact moves its
+//! band edge with its metal. Both channel ends' gate drives move by `δ` (`u → u + δ`): a shift
+//! that grows with `V_DS` (drain-induced barrier lowering), grows as `L` shrinks (threshold
+//! roll-off), and falls as the gate raises the long-channel potential (`∂δ/∂V_G < 0`, the loss
+//! of gate control behind the swing's degradation). Electrons see the minimum of the potential
+//! (`a, b > 0`), holes its maximum (`a, b < 0`); the two branches are
 //! `δ = δ(a⁺, b⁺) - δ(a⁻, b⁻)` with `x⁺ = w ln(1 + e^{x/w})`, `x⁻ = (-x)⁺` and `w = V_t / 4`,
 //! which keeps the derivatives continuous where an end crosses the long-channel potential (the
 //! barrier then moves onto the contact, where the Schottky injection describes it); the
 //! rounding changes `δ` by at most `w ln 2 · 2 e^{-L/2λ}`. The same `δ` at both ends keeps the
-//! current zero at `V_DS = 0`, and the charges stay state functions of the terminal voltages,
-//! so charge is conserved. Channels longer than [`LONG_CHANNEL`] natural lengths take no shift
+//! current zero at `V_DS = 0`, and the charges stay state functions of the node voltages, so
+//! charge is conserved. Channels longer than [`LONG_CHANNEL`] natural lengths take no shift
 //! at all: `2 e^{-L/2λ}` is below 1e-17 there, under the rounding of the long-channel device,
-//! which they reproduce bit for bit.
+//! which they reproduce bit for bit. In subthreshold a contact's drop can be most of `V_DS`
+//! (the drain contact extracts carriers at a finite, ballistic velocity), and the terms above
+//! keep that drop in the electrostatics.
 //!
 //! Both options need a metal gate: the channel's degeneracy at an end is then the tables' own
 //! charge balance, `ξ = u - (W - χ) + (ρ + q N_fixed) / C_ins`; a Dirac gate's level would take
 //! a solve per evaluation, and such cards are refused with that reason.
 
-use super::{Gate, SheetFet, SheetFetCard, SheetModel};
+use super::{Gate, Intrinsic, SheetFet, SheetFetCard, SheetModel};
 use crate::contact::{injection_scale, InjectionTable};
 use crate::physics::{logistic, EPS0, HBAR, K_B, M0, Q};
 use crate::short_channel::barrier_shift;
@@ -302,19 +307,60 @@ impl Contacts {
 
 impl SheetFet {
     /// The current from the terminal at `v_term` into the channel end at `v_int` through a
-    /// Schottky contact, with the gate at `v_gate`. The channel's level at the end is the
-    /// long-channel one at `u = V_G - V_C` (the short-channel shift moves the barrier inside
-    /// the channel, not the band edge at its ends).
+    /// Schottky contact, with the gate at `v_gate` and the short-channel shift `delta` (V,
+    /// held fixed: `∂/∂δ` is `d_gate`). The channel's level at the end is the one the channel
+    /// itself uses there, at `u = V_G - V_C + δ`, so contact and channel agree on the
+    /// carriers at the end.
     pub(crate) fn contact_current(
         &self,
         c: &Contacts,
         v_term: f64,
         v_int: f64,
         v_gate: f64,
+        delta: f64,
     ) -> ContactCurrent {
         // Both options are refused for a Dirac gate (validate), so the level exists.
-        let (xi, dxi) = self.model.degeneracy(v_gate - v_int).unwrap_or((0.0, 0.0));
+        let (xi, dxi) = self
+            .model
+            .degeneracy(v_gate - v_int + delta)
+            .unwrap_or((0.0, 0.0));
         c.current(v_term, v_int, xi, dxi, self.width)
+    }
+
+    /// The short-channel shift `δ` (V) at local unknowns `x` (terminals drain, gate, source,
+    /// then the channel's drain and source ends) with its derivatives with respect to all
+    /// five; `None` for a long channel. The contacts' band edges relative to the long
+    /// channel's at each end: `a = (V_S - V_S') - ξ(V_G - V_S') - φ_n`, `b = (V_D - V_D') -
+    /// ξ(V_G - V_D') - φ_n` (the metal pins its band edge `φ_n` above its own Fermi level; the
+    /// channel's is `ξ` below its quasi-Fermi level at that end).
+    pub(crate) fn short_channel_shift(&self, x: &[f64]) -> Option<(f64, [f64; 5])> {
+        let short = self.short.as_ref()?;
+        let (td, g, ts, cd, cs) = (x[0], x[1], x[2], *x.get(3)?, *x.get(4)?);
+        let (xs, dxs) = self.model.degeneracy(g - cs)?;
+        let (xd, dxd) = self.model.degeneracy(g - cd)?;
+        let a = (ts - cs) - xs - short.phi_n;
+        let b = (td - cd) - xd - short.phi_n;
+        let (v, da, db) = short.shift(a, b);
+        // ∂a: source terminal 1, source end -1 + ξ'_s, gate -ξ'_s; likewise b at the drain.
+        Some((
+            v,
+            [
+                db,
+                -da * dxs - db * dxd,
+                da,
+                db * (dxd - 1.0),
+                da * (dxs - 1.0),
+            ],
+        ))
+    }
+
+    /// The channel's current and charges at local unknowns `x` (terminals, then internal
+    /// nodes), the short-channel shift included at its value; with the shift's derivatives
+    /// (zero for a long channel).
+    pub fn channel_at(&self, x: &[f64]) -> Option<(Intrinsic, [f64; 5])> {
+        let (vd, vs) = self.channel_voltages(x)?;
+        let (delta, dd) = self.short_channel_shift(x).unwrap_or((0.0, [0.0; 5]));
+        Some((self.intrinsic_shifted(vd, *x.get(1)?, vs, delta), dd))
     }
 
     /// The device's Schottky contacts, if any.
@@ -342,7 +388,8 @@ impl SheetFet {
                 ("source contact resistance", "source contact drop", ts, vs),
                 ("drain contact resistance", "drain contact drop", td, vd),
             ] {
-                let k = self.contact_current(c, t, i, vg);
+                let delta = self.short_channel_shift(x).map_or(0.0, |s| s.0);
+                let k = self.contact_current(c, t, i, vg, delta);
                 // dI/dV across the contact, per width: R W = W / (dI/dV_T).
                 let g = k.d_terminal;
                 let rw = if g > 0.0 {
@@ -356,9 +403,9 @@ impl SheetFet {
         }
         if let Some(sc) = &self.short {
             out.push(num("natural length", self.length() / sc.lengths, "m"));
-            if let Some(d) = self.short_channel_shift(vg - vs, vg - vd) {
-                out.push(num("short-channel barrier shift", d.v, "V"));
-                out.push(num("gate control factor", 1.0 + d.d[0] + d.d[1], ""));
+            if let Some((d, dd)) = self.short_channel_shift(x) {
+                out.push(num("short-channel barrier shift", d, "V"));
+                out.push(num("gate control factor", 1.0 + dd[1], ""));
             }
         }
         out
@@ -405,10 +452,9 @@ impl ShortChannel {
         })
     }
 
-    /// `δ` (V) and its derivatives with respect to the channel's degeneracies `ξ_s`, `ξ_d`
-    /// at the two ends (module docs).
-    pub(crate) fn shift(&self, xi_s: f64, xi_d: f64) -> (f64, f64, f64) {
-        let (a, b) = (-(self.phi_n + xi_s), -(self.phi_n + xi_d));
+    /// `δ` (V) and its derivatives with respect to `a` and `b`, the contacts' band edges
+    /// relative to the long channel's (module docs).
+    pub(crate) fn shift(&self, a: f64, b: f64) -> (f64, f64, f64) {
         let w = self.smoothing;
         // x⁺ and its slope.
         let plus = |x: f64| {
@@ -428,8 +474,7 @@ impl ShortChannel {
         let (dh, dh_a, dh_b) = barrier_shift(am, bm, self.lengths);
         let d_a = de_a * sap + dh_a * sam;
         let d_b = de_b * sbp + dh_b * sbm;
-        // da/dξ_s = -1, db/dξ_d = -1.
-        (de - dh, -d_a, -d_b)
+        (de - dh, d_a, d_b)
     }
 }
 
@@ -459,7 +504,7 @@ mod tests {
         let c = fet.schottky().unwrap();
         for vg in [-2.0, -0.5, 0.0, 0.4, 1.0, 3.0] {
             for v in [-0.3, 0.0, 0.7] {
-                let k = fet.contact_current(c, v, v, vg);
+                let k = fet.contact_current(c, v, v, vg, 0.0);
                 assert!(k.i.abs() < 1e-25, "{vg} {v}: {}", k.i);
             }
         }
@@ -482,7 +527,7 @@ mod tests {
         // The top must stay above the channel's own band edge (`φ > -ξ + V`): below it, the
         // channel's edge is the barrier.
         for (vg, v) in [(-0.3, 0.05), (0.0, -0.08), (-0.2, 0.12)] {
-            let k = fet.contact_current(&thick, v, 0.0, vg);
+            let k = fet.contact_current(&thick, v, 0.0, vg, 0.0);
             let closed =
                 d.width * a2 * d.temperature.powf(1.5) * (-phi / vt).exp() * ((v / vt).exp() - 1.0);
             // Holes see a barrier of 1.4 eV: nothing.
@@ -509,7 +554,7 @@ mod tests {
         for vg in [0.5, 1.0, 2.0] {
             let (xi, _) = fet.model.degeneracy(vg).unwrap();
             // Current from the metal into the channel per volt of the metal above it.
-            let g = fet.contact_current(c, 0.0, 0.0, vg).d_terminal;
+            let g = fet.contact_current(c, 0.0, 0.0, vg, 0.0).d_terminal;
             let ballistic = d.width * s * sqrt_pi_fermi_minus_half(xi / vt) / vt;
             assert!(
                 ((g - ballistic) / ballistic).abs() < 1e-5,
@@ -531,9 +576,9 @@ mod tests {
             (0.0, 0.3, -1.0),
             (0.05, 0.02, 0.1),
         ] {
-            let k = fet.contact_current(c, t, i, g);
+            let k = fet.contact_current(c, t, i, g, 0.0);
             let h = 1e-6;
-            let f = |t: f64, i: f64, g: f64| fet.contact_current(c, t, i, g).i;
+            let f = |t: f64, i: f64, g: f64| fet.contact_current(c, t, i, g, 0.0).i;
             let num = [
                 (f(t + h, i, g) - f(t - h, i, g)) / (2.0 * h),
                 (f(t, i + h, g) - f(t, i - h, g)) / (2.0 * h),
@@ -574,7 +619,11 @@ mod tests {
         let long = SheetFet::new(&card(PHI, 2e-9)).unwrap();
         let far = SheetFet::new(&short(LONG_CHANNEL * 1.01)).unwrap();
         for (vd, vg, vs) in [(0.05, -0.3, 0.0), (0.8, 0.6, 0.0), (0.3, 1.2, 0.1)] {
-            let (a, b) = (long.intrinsic(vd, vg, vs), far.intrinsic(vd, vg, vs));
+            let x = [vd, vg, vs, vd, vs];
+            let (a, b) = (
+                long.channel_at(&x).unwrap().0,
+                far.channel_at(&x).unwrap().0,
+            );
             for (x, y) in [
                 (a.current, b.current),
                 (a.q_gate, b.q_gate),
@@ -588,7 +637,9 @@ mod tests {
         for lengths in [3.0, 5.0, 8.0, 12.0, 20.0, 40.0, 79.0] {
             let i = SheetFet::new(&short(lengths))
                 .unwrap()
-                .intrinsic(0.5, -0.4, 0.0)
+                .channel_at(&[0.5, -0.4, 0.0, 0.5, 0.0])
+                .unwrap()
+                .0
                 .current
                 .v;
             assert!(i < last, "{lengths}: {i:e} not below {last:e}");
@@ -617,7 +668,9 @@ mod tests {
         let (xi, _) = fet.model.degeneracy(vg).unwrap();
         let a = -(PHI + xi);
         assert!(a > 0.3, "deep subthreshold: a = {a}");
-        let current = |vd: f64| fet.intrinsic(vd, vg, 0.0).current.v;
+        // The channel alone, its ends at the terminals' voltages (no contact drop).
+        let at = |f: &SheetFet, vd: f64, vg: f64| f.channel_at(&[vd, vg, 0.0, vd, 0.0]).unwrap();
+        let current = |vd: f64| at(&fet, vd, vg).0.current.v;
         let (v1, v2) = (0.1, 0.6);
         // In subthreshold I ∝ e^{δ/V_t} (1 - e^{-V_DS/V_t}), up to the mobile charge's own
         // small feedback (checked by the long-channel device's ratio).
@@ -632,9 +685,10 @@ mod tests {
         );
         // Swing at small V_DS: d ln I / dV_G against the long channel's.
         let v = 1e-3;
+        // d ln I / dV_G with δ's own dependence on the gate (∂I/∂δ = ∂I/∂V_G at fixed δ).
         let slope = |f: &SheetFet| {
-            let c = f.intrinsic(v, vg, 0.0).current;
-            c.d[1] / c.v
+            let (ch, dd) = at(f, v, vg);
+            ch.current.d[1] * (1.0 + dd[1]) / ch.current.v
         };
         let factor = slope(&long) / slope(&fet);
         let closed = 1.0 / (1.0 - e * (2.0 * a + v) / (a * (a + v)).sqrt());
