@@ -742,7 +742,18 @@ pub fn curves(
     y_desc: &str,
     series: &[(String, Vec<(f64, f64)>)],
 ) -> DrawResult {
-    let mut f = Figure::new(title, Axis::described(x_desc), Axis::described(y_desc));
+    curves_on(stem, title, Axis::described(x_desc), y_desc, series)
+}
+
+/// [`curves`] on a given x axis (a logarithmic one, say).
+pub fn curves_on(
+    stem: &Path,
+    title: &str,
+    x: Axis,
+    y_desc: &str,
+    series: &[(String, Vec<(f64, f64)>)],
+) -> DrawResult {
+    let mut f = Figure::new(title, x, Axis::described(y_desc));
     for (name, pts) in series {
         f.series.push(Series::line(name, pts.clone()));
     }

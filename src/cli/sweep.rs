@@ -237,14 +237,20 @@ pub(crate) fn write_sweep(dir: &Path, axes: &[Axis], rows: &[Row]) -> Result<(),
             }
         }
         let what = pretty(k);
-        crate::plot::curves(
+        // A positive axis spanning a factor of 20 or more (a length from 10 nm to 1 µm, say)
+        // reads better on a logarithmic scale.
+        let xs = rows.iter().map(|r| r.point[0].1);
+        let (lo, hi) = xs.fold((f64::INFINITY, 0.0f64), |(l, h), v| (l.min(v), h.max(v)));
+        let mut x_axis = crate::plot::Axis::described(&axis_label(first));
+        x_axis.log = lo > 0.0 && hi >= 20.0 * lo;
+        crate::plot::curves_on(
             &dir.join(stems.unique(k)),
             &format!(
                 "{} against {}",
                 what.split(" (").next().unwrap_or(&what),
                 first.name
             ),
-            &axis_label(first),
+            x_axis,
             &what,
             &series,
         )?;

@@ -404,7 +404,7 @@ impl SheetFet {
         if let Some(sc) = &self.short {
             out.push(num("natural length", self.length() / sc.lengths, "m"));
             if let Some((d, dd)) = self.short_channel_shift(x) {
-                out.push(num("short-channel barrier shift", d, "V"));
+                out.push(num("short channel barrier shift", d, "V"));
                 out.push(num("gate control factor", 1.0 + dd[1], ""));
             }
         }
