@@ -185,7 +185,8 @@ impl Part {
     }
 }
 
-fn number_of(x: &Value) -> Result<f64, String> {
+/// A number written by [`num`] read back.
+pub(crate) fn number_of(x: &Value) -> Result<f64, String> {
     x.as_str()
         .and_then(|s| s.parse::<f64>().ok())
         .ok_or_else(|| format!("`{x}` is not a number written as text"))
