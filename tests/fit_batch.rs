@@ -133,7 +133,12 @@ fn same_tree(a: &Path, b: &Path) {
         y.iter().map(|f| &f.0).collect::<Vec<_>>()
     );
     for ((name, p), (_, q)) in x.iter().zip(&y) {
-        assert!(p == q, "{name} differs between {} and {}", a.display(), b.display());
+        assert!(
+            p == q,
+            "{name} differs between {} and {}",
+            a.display(),
+            b.display()
+        );
     }
 }
 
@@ -221,17 +226,13 @@ fn a_directory_of_files_is_a_batch_named_by_file() {
     std::fs::copy(dies.join("die01.csv"), other.join("die01.csv")).expect("copy");
     let a = dies.join("die01.csv");
     let b = other.join("die01.csv");
-    let o = lamina(&[
-        "fit",
-        path(&a),
-        path(&b),
-        "--card",
-        CARD,
-        "--fit",
-        MOBILITY,
-    ]);
+    let o = lamina(&["fit", path(&a), path(&b), "--card", CARD, "--fit", MOBILITY]);
     assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
-    assert!(stderr(&o).contains("two devices are named `die01`"), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("two devices are named `die01`"),
+        "{}",
+        stderr(&o)
+    );
 }
 
 /// Runs shard `k` of `n` of the wafer into `dir/shard-k` and returns that directory.
@@ -318,7 +319,11 @@ fn merge_refuses_missing_repeated_and_foreign_parts_naming_them() {
     );
     let twice = merge(&[&p1, &p2, &p2, &p3]);
     assert_eq!(twice.status.code(), Some(3));
-    assert!(stderr(&twice).contains("shard 2/3 is given twice"), "{}", stderr(&twice));
+    assert!(
+        stderr(&twice).contains("shard 2/3 is given twice"),
+        "{}",
+        stderr(&twice)
+    );
 
     // A shard of other data: one current changed in a copy of the wafer.
     let text = std::fs::read_to_string(WAFER).expect("the demo data");
@@ -398,7 +403,10 @@ fn cluster_script_writes_a_job_array_for_a_batch_fit() {
     assert!(script.contains("#SBATCH --array=0-3"), "{script}");
     assert!(script.contains("#SBATCH --job-name=lamina-fit"), "{script}");
     assert!(script.contains("8 devices in 4 tasks"), "{script}");
-    assert!(script.contains("--shard-from-env --out lamina-results/shard-"), "{script}");
+    assert!(
+        script.contains("--shard-from-env --out lamina-results/shard-"),
+        "{script}"
+    );
     let dir = scratch("script");
     let single = dir.join("die.csv");
     std::fs::write(

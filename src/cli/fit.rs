@@ -425,7 +425,13 @@ pub fn text_report(o: &Outcome, cfg: &FitConfig) -> Vec<String> {
 /// The summary object (`--json` and `summary.json`) of the fit of the data at `data` with
 /// the card file at `card`; `wall_s`, the fit's time, where it is reported (a batch leaves
 /// it out, so its files do not depend on the machine).
-pub fn to_json(o: &Outcome, cfg: &FitConfig, data: &Path, card: &Path, wall_s: Option<f64>) -> Value {
+pub fn to_json(
+    o: &Outcome,
+    cfg: &FitConfig,
+    data: &Path,
+    card: &Path,
+    wall_s: Option<f64>,
+) -> Value {
     let f = &o.fit;
     let params: Vec<Value> = o
         .params

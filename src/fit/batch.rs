@@ -106,11 +106,7 @@ pub fn members(files: &[(String, Table)]) -> Result<Vec<Member>, String> {
 
 /// Checks the card file at `card` once for every device of the batch ([`super::prepare`]).
 pub fn prepare(card: &Path, members: &[Member], cfg: &FitConfig) -> Result<CardFacts, FitFailure> {
-    super::prepare(
-        card,
-        cfg,
-        members.iter().any(|m| has_geometry(&m.table)),
-    )
+    super::prepare(card, cfg, members.iter().any(|m| has_geometry(&m.table)))
 }
 
 /// Fits the devices `range` of `members` with the card file at `card` (checked by [`prepare`],

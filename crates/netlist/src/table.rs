@@ -598,6 +598,9 @@ mod tests {
         let which: Vec<Option<usize>> = t.rows.iter().map(|r| r.device).collect();
         assert_eq!(which, [Some(0), Some(1), Some(0)]);
         assert_eq!(first("device (V), V_GS (V), V_DS (V), I_D (A)\n"), (1, 1));
-        assert_eq!(first("device, V_GS (V), V_DS (V), I_D (A)\n , 1, 0.1, 1\n"), (2, 2));
+        assert_eq!(
+            first("device, V_GS (V), V_DS (V), I_D (A)\n , 1, 0.1, 1\n"),
+            (2, 2)
+        );
     }
 }

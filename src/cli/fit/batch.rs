@@ -386,7 +386,16 @@ fn text_report(b: &Batch, fits: &[DeviceFit]) -> Vec<String> {
         "statistics across the {fitted} fitted device(s) (5 % and 95 %: quantiles):"
     ));
     let head: Vec<String> = [
-        "key", "devices", "mean", "std. dev.", "min", "5 %", "median", "95 %", "max", "unit",
+        "key",
+        "devices",
+        "mean",
+        "std. dev.",
+        "min",
+        "5 %",
+        "median",
+        "95 %",
+        "max",
+        "unit",
     ]
     .map(String::from)
     .to_vec();
@@ -426,7 +435,10 @@ fn text_report(b: &Batch, fits: &[DeviceFit]) -> Vec<String> {
             .join("  ")
     };
     l.push(format!("  {}", line(&head)).trim_end().to_string());
-    l.extend(rows.iter().map(|c| format!("  {}", line(c)).trim_end().to_string()));
+    l.extend(
+        rows.iter()
+            .map(|c| format!("  {}", line(c)).trim_end().to_string()),
+    );
     let notes: Vec<String> = fits
         .iter()
         .flat_map(|f| match &f.result {
@@ -555,7 +567,11 @@ fn write_batch(dir: &Path, b: &Batch, fits: &[DeviceFit], summary: &Value) -> Re
     );
     let field = crate::cli::sweep::csv_field;
     let e = |x: Option<f64>| x.map_or(String::new(), |v| format!("{v:e}"));
-    let mut text = header.iter().map(|h| field(h)).collect::<Vec<_>>().join(",");
+    let mut text = header
+        .iter()
+        .map(|h| field(h))
+        .collect::<Vec<_>>()
+        .join(",");
     text.push('\n');
     for (i, f) in fits.iter().enumerate() {
         let mut c = vec![
@@ -623,10 +639,7 @@ fn draw_across(dir: &Path, b: &Batch, fits: &[DeviceFit]) -> Result<(), String> 
     for (k, p) in params.iter().enumerate() {
         let u = Unit::of(p.key.dim);
         let mut fig = Figure::new(
-            &format!(
-                "{} of each device: fit with 95 % interval",
-                p.key.name()
-            ),
+            &format!("{} of each device: fit with 95 % interval", p.key.name()),
             Axis::new("device (batch order)", ""),
             Axis::new(&p.key.key, &u.text),
         );
@@ -661,11 +674,11 @@ fn draw_across(dir: &Path, b: &Batch, fits: &[DeviceFit]) -> Result<(), String> 
             mean.markers = false;
             mean.colour = Some(1);
             fig.series.push(mean);
-            for (n, y) in [s.mean - s.std_dev, s.mean + s.std_dev].into_iter().enumerate() {
-                let mut band = Series::line(
-                    if n == 0 { "mean +- std. dev." } else { "" },
-                    flat(y),
-                );
+            for (n, y) in [s.mean - s.std_dev, s.mean + s.std_dev]
+                .into_iter()
+                .enumerate()
+            {
+                let mut band = Series::line(if n == 0 { "mean +- std. dev." } else { "" }, flat(y));
                 band.style = Style::Dashed;
                 band.markers = false;
                 band.colour = Some(1);
@@ -855,7 +868,10 @@ impl Part {
                 )?,
             },
         };
-        let (shard, shards) = (count(field("shard")?, "shard")?, count(field("shards")?, "shards")?);
+        let (shard, shards) = (
+            count(field("shard")?, "shard")?,
+            count(field("shards")?, "shards")?,
+        );
         crate::cluster::check_shard(shard, shards)?;
         let want = crate::montecarlo::shard_range(shard, shards, batch.labels.len());
         let list = field("rows")?.as_array().ok_or("`rows` is not a list")?;
@@ -957,7 +973,10 @@ fn fit_of(v: &Value) -> Result<Fit, String> {
             .collect::<Result<_, _>>()?,
         at_bound: list("at_bound")?
             .iter()
-            .map(|b| b.as_bool().ok_or("`fit.at_bound` holds a value that is not true or false"))
+            .map(|b| {
+                b.as_bool()
+                    .ok_or("`fit.at_bound` holds a value that is not true or false")
+            })
             .collect::<Result<_, _>>()?,
         correlation: nums_of(v.get("correlation"), "fit.correlation")?,
         singular_values: nums_of(v.get("singular_values"), "fit.singular_values")?,
@@ -1005,7 +1024,9 @@ fn device_of(r: &Value, index: usize, b: &Batch) -> Result<DeviceFit, String> {
         .and_then(Value::as_str)
         .ok_or_else(|| at("`device` is not text".into()))?;
     if b.labels.get(index).map(String::as_str) != Some(label) {
-        return Err(at(format!("`{label}` is not the device the part's labels list there")));
+        return Err(at(format!(
+            "`{label}` is not the device the part's labels list there"
+        )));
     }
     let rows = r
         .get("rows")
@@ -1047,12 +1068,16 @@ fn device_of(r: &Value, index: usize, b: &Batch) -> Result<DeviceFit, String> {
                 || fit.std_errors.len() != n
                 || fit.at_bound.len() != n
                 || fit.residuals.len() != used
-                || fit.weak.iter().flat_map(|w| &w.parameters).any(|p| p.0 >= n)
+                || fit
+                    .weak
+                    .iter()
+                    .flat_map(|w| &w.parameters)
+                    .any(|p| p.0 >= n)
                 || fit.correlated.iter().any(|c| c.0 >= n || c.1 >= n)
                 || !(fit.correlation.is_empty() || fit.correlation.len() == n * n)
             {
                 return Err(at(
-                    "its result does not match its rows and the fitted keys".into(),
+                    "its result does not match its rows and the fitted keys".into()
                 ));
             }
             Ok(Outcome::assemble(
