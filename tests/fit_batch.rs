@@ -235,6 +235,17 @@ fn a_directory_of_files_is_a_batch_named_by_file() {
     );
 }
 
+/// A data file of one device (two points) in `dir`: a single fit, not a batch.
+fn one_small_file(dir: &Path) -> PathBuf {
+    let single = dir.join("die.csv");
+    std::fs::write(
+        &single,
+        "V_GS (V), V_DS (V), I_D (A)\n0.5, 0.05, 1e-7\n1, 0.05, 1e-6\n",
+    )
+    .expect("file");
+    single
+}
+
 /// Runs shard `k` of `n` of the wafer into `dir/shard-k` and returns that directory.
 fn shard(dir: &Path, k: usize, n: usize, extra: &[&str]) -> PathBuf {
     let out = dir.join(format!("shard-{k}"));
@@ -370,12 +381,7 @@ fn merge_refuses_missing_repeated_and_foreign_parts_naming_them() {
     );
 
     // --shard on a single fit has nothing to split.
-    let single = dir.join("die.csv");
-    std::fs::write(
-        &single,
-        "V_GS (V), V_DS (V), I_D (A)\n0.5, 0.05, 1e-7\n1, 0.05, 1e-6\n",
-    )
-    .expect("file");
+    let single = one_small_file(&dir);
     let o = lamina(&[
         "fit",
         path(&single),
@@ -408,12 +414,7 @@ fn cluster_script_writes_a_job_array_for_a_batch_fit() {
         "{script}"
     );
     let dir = scratch("script");
-    let single = dir.join("die.csv");
-    std::fs::write(
-        &single,
-        "V_GS (V), V_DS (V), I_D (A)\n0.5, 0.05, 1e-7\n1, 0.05, 1e-6\n",
-    )
-    .expect("file");
+    let single = one_small_file(&dir);
     let o = lamina(&[
         "cluster-script",
         "--tasks",
@@ -428,4 +429,63 @@ fn cluster_script_writes_a_job_array_for_a_batch_fit() {
     ]);
     assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
     assert!(stderr(&o).contains("cannot be split"), "{}", stderr(&o));
+}
+
+/// A device whose fit fails (every current below the floor: nothing to fit) is a row saying
+/// why; the others are fitted and summarised, the files are written, the job exits 1, and the
+/// merge of two shards does all of this alike.
+#[test]
+fn a_failed_device_is_a_row_saying_why_in_the_whole_batch_and_in_the_merge() {
+    let dir = scratch("failed");
+    let text = std::fs::read_to_string(WAFER).expect("the demo data");
+    let mut csv: String = text
+        .lines()
+        .filter(|l| l.starts_with("device,") || l.starts_with("die01,") || l.starts_with("die02,"))
+        .map(|l| format!("{l}\n"))
+        .collect();
+    csv.push_str("dead, 0.5, 0.05, 1e-15\ndead, 1, 0.05, 2e-15\n");
+    let data = dir.join("wafer.csv");
+    std::fs::write(&data, csv).expect("data file");
+    let single = dir.join("single");
+    let whole = lamina(&fit_args(path(&data), &["--out", path(&single)]));
+    assert_eq!(whole.status.code(), Some(1), "{}", stderr(&whole));
+    assert!(
+        stderr(&whole).contains("1 of 3 device fits failed") && stderr(&whole).contains("dead"),
+        "{}",
+        stderr(&whole)
+    );
+    let batch = std::fs::read_to_string(single.join("batch.csv")).expect("batch.csv");
+    let columns = |l: &str| l.split(',').count();
+    let lines: Vec<&str> = batch.lines().collect();
+    assert_eq!(lines.len(), 4);
+    assert!(
+        lines.iter().all(|l| columns(l) == columns(lines[0])),
+        "{batch}"
+    );
+    assert!(
+        lines[3].starts_with("3,dead,") && lines[3].ends_with("fit fewer"),
+        "{batch}"
+    );
+    assert!(!single.join("devices/dead").exists());
+    let mut parts = Vec::new();
+    for k in 1..=2 {
+        let out = dir.join(format!("shard-{k}"));
+        let spec = format!("{k}/2");
+        ok(lamina(&fit_args(
+            path(&data),
+            &["--shard", &spec, "--out", path(&out)],
+        )));
+        parts.push(out);
+    }
+    let merged = dir.join("merged");
+    let m = lamina(&[
+        "merge",
+        path(&parts[1]),
+        path(&parts[0]),
+        "--out",
+        path(&merged),
+    ]);
+    assert_eq!(m.status.code(), Some(1), "{}", stderr(&m));
+    assert_eq!(m.stdout, whole.stdout);
+    same_tree(&single, &merged);
 }

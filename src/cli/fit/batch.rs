@@ -307,6 +307,34 @@ fn key_heading(p: &fit::FitSpec) -> String {
     }
 }
 
+/// A table's lines, indented by two spaces, its columns two spaces apart: column `k` of `n`
+/// aligned to the left where `left(k, n)`, else to the right.
+fn aligned(
+    header: &[String],
+    cells: &[Vec<String>],
+    left: impl Fn(usize, usize) -> bool,
+) -> Vec<String> {
+    let widths = crate::cli::column_widths(header, cells);
+    std::iter::once(header)
+        .chain(cells.iter().map(Vec::as_slice))
+        .map(|c| {
+            let text: Vec<String> = c
+                .iter()
+                .zip(&widths)
+                .enumerate()
+                .map(|(k, (s, w))| {
+                    if left(k, c.len()) {
+                        format!("{s:<w$}")
+                    } else {
+                        format!("{s:>w$}")
+                    }
+                })
+                .collect();
+            format!("  {}", text.join("  ")).trim_end().to_string()
+        })
+        .collect()
+}
+
 /// The batch report as lines of text.
 fn text_report(b: &Batch, fits: &[DeviceFit]) -> Vec<String> {
     let params = &b.cfg.params;
@@ -363,23 +391,7 @@ fn text_report(b: &Batch, fits: &[DeviceFit]) -> Vec<String> {
             c
         })
         .collect();
-    let widths = crate::cli::column_widths(&header, &cells);
-    let line = |c: &[String]| -> String {
-        c.iter()
-            .zip(&widths)
-            .enumerate()
-            .map(|(k, (s, w))| {
-                if k == 1 {
-                    format!("{s:<w$}")
-                } else {
-                    format!("{s:>w$}")
-                }
-            })
-            .collect::<Vec<_>>()
-            .join("  ")
-    };
-    l.push(format!("  {}", line(&header)));
-    l.extend(cells.iter().map(|c| format!("  {}", line(c))));
+    l.extend(aligned(&header, &cells, |k, _| k == 1));
     l.push(String::new());
     let fitted = fits.iter().filter(|f| f.result.is_ok()).count();
     l.push(format!(
@@ -419,26 +431,7 @@ fn text_report(b: &Batch, fits: &[DeviceFit]) -> Vec<String> {
             c
         })
         .collect();
-    let widths = crate::cli::column_widths(&head, &rows);
-    let line = |c: &[String]| -> String {
-        c.iter()
-            .zip(&widths)
-            .enumerate()
-            .map(|(k, (s, w))| {
-                if k == 0 || k + 1 == c.len() {
-                    format!("{s:<w$}")
-                } else {
-                    format!("{s:>w$}")
-                }
-            })
-            .collect::<Vec<_>>()
-            .join("  ")
-    };
-    l.push(format!("  {}", line(&head)).trim_end().to_string());
-    l.extend(
-        rows.iter()
-            .map(|c| format!("  {}", line(c)).trim_end().to_string()),
-    );
+    l.extend(aligned(&head, &rows, |k, n| k == 0 || k + 1 == n));
     let notes: Vec<String> = fits
         .iter()
         .flat_map(|f| match &f.result {
