@@ -29,7 +29,10 @@ pub mod batch;
     --weights sub=1 weighs a decade like 100 %. The fitted values are model estimates.\n\
     Example: lamina fit curves.csv --card device.lam \
     --fit \"n2d.electron_mobility=5:200cm^2/(V s):log\" --fit \"n2d.source_resistance=10:5000Ohm um:log\" \
-    --tie n2d.drain_resistance=n2d.source_resistance"
+    --tie n2d.drain_resistance=n2d.source_resistance\n\
+    A batch (one fit per device, statistics across the devices): lamina fit wafer.csv --card \
+    device.lam --fit ... where wafer.csv has a `device` column, or lamina fit dies/ ... for a \
+    directory of one file per device; --shard K/N splits it for lamina merge."
 )]
 pub struct Args {
     /// Measured curves: CSV with units in the headers, such as `V_GS (V), V_DS (V), I_D (A)`;

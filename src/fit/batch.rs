@@ -19,7 +19,7 @@
 
 use super::{fit_prepared, has_geometry, CardFacts, FitConfig, FitFailure, Outcome};
 use crate::montecarlo::{stable_hash, stats, Stats};
-use indicatif::{ParallelProgressIterator, ProgressBar, ProgressStyle};
+use indicatif::ParallelProgressIterator;
 use lamina_netlist::table::{Direction, Table};
 use lamina_netlist::Design;
 use rayon::prelude::*;
@@ -121,16 +121,7 @@ pub fn run_batch(
     progress: bool,
 ) -> Vec<DeviceFit> {
     let chosen = &members[range.start.min(members.len())..range.end.min(members.len())];
-    let bar = if progress {
-        ProgressBar::new(chosen.len() as u64)
-    } else {
-        ProgressBar::hidden()
-    };
-    if let Ok(style) =
-        ProgressStyle::with_template("{bar:40} {pos}/{len} devices, {elapsed} elapsed, {eta} left")
-    {
-        bar.set_style(style);
-    }
+    let bar = crate::sweep::progress_bar(chosen.len(), "devices", progress);
     chosen
         .par_iter()
         .progress_with(bar)
@@ -189,4 +180,37 @@ pub fn across(fits: &[DeviceFit], k: usize) -> Option<Stats> {
         .map(|f| f.result.as_ref().ok().map(|o| o.fit.values[k]))
         .collect();
     stats(&values)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use lamina_netlist::table::{parse_table, TableOptions};
+
+    fn table(text: &str) -> Table {
+        parse_table(text, &TableOptions::default()).unwrap()
+    }
+
+    #[test]
+    fn devices_are_named_by_file_or_by_column_and_names_must_differ() {
+        let plain = table("V_GS (V), V_DS (V), I_D (A)\n1, 0.1, 1e-6\n");
+        let named =
+            table("device, V_GS (V), V_DS (V), I_D (A)\nb, 1, 0.1, 1e-6\na, 1, 0.1, 1e-6\n");
+        let one = members(&[("lot/w1.csv".into(), named.clone())]).unwrap();
+        let labels: Vec<&str> = one.iter().map(|m| m.label.as_str()).collect();
+        assert_eq!(labels, ["b", "a"]);
+        assert!(one.iter().all(|m| m.table.rows.len() == 1));
+        let two = members(&[
+            ("x/d7.csv".into(), plain.clone()),
+            ("lot/w1.csv".into(), named.clone()),
+        ])
+        .unwrap();
+        let labels: Vec<&str> = two.iter().map(|m| m.label.as_str()).collect();
+        assert_eq!(labels, ["d7", "w1/b", "w1/a"]);
+        let twice = members(&[
+            ("x/d7.csv".into(), plain.clone()),
+            ("y/d7.csv".into(), plain),
+        ]);
+        assert!(twice.unwrap_err().contains("`d7`"));
+    }
 }

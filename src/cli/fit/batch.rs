@@ -21,7 +21,7 @@
 //! are those of the whole batch on one machine, byte for byte.
 
 use super::{failure, num as short, plan, to_error, to_json, write_files, FitFlags};
-use crate::cli::montecarlo_merge::{num, number_of, same_version};
+use crate::cli::montecarlo_merge::{num, number_of, same_version, Fields};
 use crate::cli::CAUTION;
 use crate::error::JobError;
 use crate::fit::batch::{self as lib, DeviceFit, Member};
@@ -815,25 +815,10 @@ impl Part {
     /// Reads a part, checking its shape and that its rows are exactly its shard's devices.
     /// `Err` is why it is not a part, or (as a usage fault) settings this Lamina refuses.
     pub fn from_json(v: &Value) -> Result<Part, String> {
-        let field = |k: &str| v.get(k).ok_or_else(|| format!("no `{k}`"));
-        let text = |x: &Value, k: &str| {
-            x.as_str()
-                .map(str::to_string)
-                .ok_or_else(|| format!("`{k}` is not text"))
-        };
-        let texts = |k: &str| -> Result<Vec<String>, String> {
-            field(k)?
-                .as_array()
-                .ok_or_else(|| format!("`{k}` is not a list"))?
-                .iter()
-                .map(|x| text(x, k))
-                .collect()
-        };
-        let count = |x: &Value, k: &str| -> Result<usize, String> {
-            x.as_u64()
-                .and_then(|n| usize::try_from(n).ok())
-                .ok_or_else(|| format!("`{k}` is not a whole number"))
-        };
+        let f = Fields(v);
+        let field = |k: &str| f.get(k);
+        let text = Fields::text_of;
+        let count = Fields::count_of;
         if v.get("kind").and_then(Value::as_str) != Some("fit") {
             return Err("its `kind` is not `fit`".into());
         }
@@ -843,9 +828,9 @@ impl Part {
         let batch = Batch {
             cfg: cfg.clone(),
             flags,
-            card_file: text(field("card_file")?, "card_file")?,
-            data: texts("data")?,
-            labels: texts("labels")?,
+            card_file: f.text("card_file")?,
+            data: f.texts("data")?,
+            labels: f.texts("labels")?,
             card_lw: (
                 number_of(field("card_length_m")?)?,
                 number_of(field("card_width_m")?)?,
@@ -861,10 +846,7 @@ impl Part {
                 )?,
             },
         };
-        let (shard, shards) = (
-            count(field("shard")?, "shard")?,
-            count(field("shards")?, "shards")?,
-        );
+        let (shard, shards) = (f.count("shard")?, f.count("shards")?);
         crate::cluster::check_shard(shard, shards)?;
         let want = crate::montecarlo::shard_range(shard, shards, batch.labels.len());
         let list = field("rows")?.as_array().ok_or("`rows` is not a list")?;
@@ -888,8 +870,8 @@ impl Part {
             .map(|(r, index)| device_of(r, index, &batch))
             .collect::<Result<Vec<_>, _>>()?;
         Ok(Part {
-            lamina_version: text(field("lamina_version")?, "lamina_version")?,
-            inputs_hash: text(field("inputs_hash")?, "inputs_hash")?,
+            lamina_version: f.text("lamina_version")?,
+            inputs_hash: f.text("inputs_hash")?,
             batch,
             shard,
             shards,
