@@ -35,6 +35,9 @@
 //! (bounded Levenberg-Marquardt, log or linear parameters, deterministic starts), whose
 //! statistics (standard errors, correlations, singular values, undetermined combinations)
 //! are reported with 95 % intervals from Student's t with `m - n` degrees of freedom.
+//!
+//! # Batches
+//! [`batch`] fits the same keys to each device of a wafer or a lot on its own.
 
 use crate::iv::{drive, unsigned_zero, Driven};
 use lamina_engine::{NewtonParams, OpParams, Probe, SweepParams, System, Tolerances};
@@ -47,6 +50,8 @@ use std::cell::RefCell;
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 use std::time::Instant;
+
+pub mod batch;
 
 /// The subthreshold/above-threshold switch per square (A): 100 nA x W/L, the
 /// constant-current threshold criterion (common practice).
@@ -903,68 +908,94 @@ pub fn run_fit(
     };
     let cur = model.currents(&data, &fit.values)?;
     let device_evaluations = model.evaluations - first;
-    let t = t95(used.saturating_sub(params.len()));
-    let intervals = fit
-        .std_errors
-        .iter()
-        .zip(&fit.values)
-        .zip(&cfg.params)
-        .map(|((se, &v), p)| {
-            se.map(|se| {
-                if p.log {
-                    let f = (t * se / v).exp();
-                    (v / f, v * f)
-                } else {
-                    (v - t * se, v + t * se)
-                }
-            })
-        })
-        .collect();
-    let stats = data
-        .curves
-        .iter()
-        .map(|c| {
-            let mut s = CurveStats {
-                sub: 0,
-                rms_sub: None,
-                on: 0,
-                rms_on: None,
-                below_floor: 0,
-            };
-            let (mut ss, mut so) = (0.0, 0.0);
-            for &k in &c.points {
-                let p = &data.points[k];
-                match (p.kind, residual(p.kind, cur[k], p.id, cfg)) {
-                    (Kind::Sub, Some(r)) => {
-                        s.sub += 1;
-                        ss += r * r;
-                    }
-                    (Kind::On, Some(r)) => {
-                        s.on += 1;
-                        so += r * r;
-                    }
-                    _ => s.below_floor += 1,
-                }
-            }
-            s.rms_sub = (s.sub > 0).then(|| (ss / s.sub as f64).sqrt());
-            s.rms_on = (s.on > 0).then(|| (so / s.on as f64).sqrt());
-            s
-        })
-        .collect();
-    let findings = findings(&fit, &cfg.params);
-    Ok(Outcome {
-        params: cfg.params.clone(),
-        start,
-        ties: cfg.ties.clone(),
-        fit,
-        intervals,
+    Ok(Outcome::assemble(
+        cfg,
         data,
-        model: cur,
-        stats,
-        findings,
+        start,
+        fit,
+        cur,
         device_evaluations,
-        wall_s: t0.elapsed().as_secs_f64(),
-    })
+        t0.elapsed().as_secs_f64(),
+    ))
+}
+
+impl Outcome {
+    /// The outcome of a solver's result `fit` on `data` with the model currents `model` at
+    /// its optimum: the 95 % intervals, the residual statistics per curve and the findings
+    /// derived here, so a fit run here and one read back from a shard's part report alike.
+    pub fn assemble(
+        cfg: &FitConfig,
+        data: Dataset,
+        start: Vec<f64>,
+        fit: Fit,
+        model: Vec<f64>,
+        device_evaluations: usize,
+        wall_s: f64,
+    ) -> Outcome {
+        let used = data.points.iter().filter(|p| p.kind != Kind::Floor).count();
+        let t = t95(used.saturating_sub(cfg.params.len()));
+        let intervals = fit
+            .std_errors
+            .iter()
+            .zip(&fit.values)
+            .zip(&cfg.params)
+            .map(|((se, &v), p)| {
+                se.map(|se| {
+                    if p.log {
+                        let f = (t * se / v).exp();
+                        (v / f, v * f)
+                    } else {
+                        (v - t * se, v + t * se)
+                    }
+                })
+            })
+            .collect();
+        let stats = data
+            .curves
+            .iter()
+            .map(|c| {
+                let mut s = CurveStats {
+                    sub: 0,
+                    rms_sub: None,
+                    on: 0,
+                    rms_on: None,
+                    below_floor: 0,
+                };
+                let (mut ss, mut so) = (0.0, 0.0);
+                for &k in &c.points {
+                    let p = &data.points[k];
+                    match (p.kind, residual(p.kind, model[k], p.id, cfg)) {
+                        (Kind::Sub, Some(r)) => {
+                            s.sub += 1;
+                            ss += r * r;
+                        }
+                        (Kind::On, Some(r)) => {
+                            s.on += 1;
+                            so += r * r;
+                        }
+                        _ => s.below_floor += 1,
+                    }
+                }
+                s.rms_sub = (s.sub > 0).then(|| (ss / s.sub as f64).sqrt());
+                s.rms_on = (s.on > 0).then(|| (so / s.on as f64).sqrt());
+                s
+            })
+            .collect();
+        let findings = findings(&fit, &cfg.params);
+        Outcome {
+            params: cfg.params.clone(),
+            start,
+            ties: cfg.ties.clone(),
+            fit,
+            intervals,
+            data,
+            model,
+            stats,
+            findings,
+            device_evaluations,
+            wall_s,
+        }
+    }
 }
 
 /// Why [`fit_table`] gave no fit.
@@ -978,24 +1009,48 @@ pub enum FitFailure {
 }
 
 /// The whole fit of `cfg` to `table` with the card file at `card`: the file inspected
-/// ([`inspect`]), the data grouped, the starts chosen and the solver run.
+/// ([`prepare`]), the data grouped, the starts chosen and the solver run.
 pub fn fit_table(card: &Path, table: &Table, cfg: &FitConfig) -> Result<Outcome, FitFailure> {
+    let facts = prepare(card, cfg, has_geometry(table))?;
+    fit_prepared(card, table, cfg, &facts).map_err(FitFailure::Fit)
+}
+
+/// Whether any row of `table` gives the channel's length or width.
+pub fn has_geometry(table: &Table) -> bool {
+    table
+        .rows
+        .iter()
+        .any(|r| r.length_m.is_some() || r.width_m.is_some())
+}
+
+/// Checks the card file at `card` against the fitted and tied keys of `cfg` ([`inspect`];
+/// `geometry`: whether the data give lengths or widths) and reads what the fits need of it.
+pub fn prepare(card: &Path, cfg: &FitConfig, geometry: bool) -> Result<CardFacts, FitFailure> {
     let keys: Vec<Key> = cfg.params.iter().map(|p| p.key.clone()).collect();
     let all: Vec<Key> = keys
         .iter()
         .cloned()
         .chain(cfg.ties.iter().map(|t| t.0.clone()))
         .collect();
-    let mut model = Model::new(card, keys.clone(), cfg.ties.clone());
-    let geometry = table
-        .rows
-        .iter()
-        .any(|r| r.length_m.is_some() || r.width_m.is_some());
+    let model = Model::new(card, keys.clone(), cfg.ties.clone());
     let facts = inspect(&model, &keys, geometry).map_err(FitFailure::Setup)?;
     inspect(&model, &all, false).map_err(FitFailure::Setup)?;
+    Ok(facts)
+}
+
+/// The fit of `cfg` to `table` with the card file at `card`, already checked by [`prepare`],
+/// which read `facts`.
+pub fn fit_prepared(
+    card: &Path,
+    table: &Table,
+    cfg: &FitConfig,
+    facts: &CardFacts,
+) -> Result<Outcome, String> {
+    let keys: Vec<Key> = cfg.params.iter().map(|p| p.key.clone()).collect();
+    let mut model = Model::new(card, keys, cfg.ties.clone());
     let data = group(table, facts.length_width_m, cfg);
     let start = starts(&cfg.params, &facts.values);
-    run_fit(&mut model, data, cfg, start).map_err(FitFailure::Fit)
+    run_fit(&mut model, data, cfg, start)
 }
 
 /// The statements of what the data cannot determine (see [`lamina_measure::lsq`]): weak
@@ -1085,10 +1140,17 @@ pub fn starts(params: &[FitSpec], card_values: &[Option<f64>]) -> Vec<f64> {
         .collect()
 }
 
-/// The fitted card: the text of the file that defines the card with the fitted and tied keys
-/// set, and that file's path.
-pub fn fitted_card(design_path: &Path, o: &Outcome) -> Result<(PathBuf, String), String> {
-    let card = &o.params[0].key.card;
+/// The file of a design that defines a card: its name as the design loaded it and its text.
+#[derive(Clone, Debug, PartialEq)]
+pub struct CardSource {
+    /// The file's name.
+    pub name: PathBuf,
+    /// Its text.
+    pub text: String,
+}
+
+/// The file of the design at `design_path` that defines the card `card`.
+pub fn card_source(design_path: &Path, card: &str) -> Result<CardSource, String> {
     let design = lamina_netlist::load_file(design_path, &LoadOptions::default())
         .map_err(|f| render(&f.sources, &f.diagnostics))?;
     let s = &design.sources;
@@ -1100,6 +1162,16 @@ pub fn fitted_card(design_path: &Path, o: &Outcome) -> Result<(PathBuf, String),
                 design_path.display()
             )
         })?;
+    Ok(CardSource {
+        name: PathBuf::from(s.name(file)),
+        text: s.text(file).to_string(),
+    })
+}
+
+/// The fitted card: the text of `source` (the file that defines the card, [`card_source`])
+/// with the fitted and tied keys set.
+pub fn fitted_card(source: &CardSource, o: &Outcome) -> Result<String, String> {
+    let card = &o.params[0].key.card;
     let mut values: Vec<(String, String)> = o
         .params
         .iter()
@@ -1109,8 +1181,7 @@ pub fn fitted_card(design_path: &Path, o: &Outcome) -> Result<(PathBuf, String),
     for (k, to) in &o.ties {
         values.push((k.key.clone(), Unit::of(k.dim).write(o.fit.values[*to])));
     }
-    let text = lamina_netlist::rewrite::set_card_keys(s.text(file), card, &values)?;
-    Ok((PathBuf::from(s.name(file)), text))
+    lamina_netlist::rewrite::set_card_keys(&source.text, card, &values)
 }
 
 /// The `--set` flags that put the fitted values into any file using the card.

@@ -45,11 +45,11 @@ enum Job {
     Montecarlo(cli::montecarlo::Args),
     /// Put the shards of `montecarlo --shard K/N` together into the report of the whole run.
     MontecarloMerge(cli::montecarlo_merge::Args),
-    /// Put the shards of `sweep --shard` or `montecarlo --shard` together into the output of
-    /// the whole run, byte for byte.
+    /// Put the shards of `sweep --shard`, `montecarlo --shard` or `fit --shard` together into
+    /// the output of the whole run, byte for byte.
     Merge(cli::montecarlo_merge::Args),
-    /// Write (and optionally submit) a Slurm job-array script that runs a sweep or a Monte
-    /// Carlo study as shards.
+    /// Write (and optionally submit) a Slurm job-array script that runs a sweep, a Monte Carlo
+    /// study or a batch fit as shards.
     ClusterScript(cli::cluster::ScriptArgs),
     /// Run every analysis a circuit file declares.
     Run(cli::run::Args),
@@ -59,7 +59,7 @@ enum Job {
     /// Y-function, transfer-length method.
     Extract(cli::extract::Args),
     /// Fit keys of a device card to measured curves (CSV): values, errors, correlations and
-    /// what the data cannot determine.
+    /// what the data cannot determine; one fit per device for a batch of devices.
     Fit(cli::fit::Args),
 }
 

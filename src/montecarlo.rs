@@ -47,7 +47,7 @@
 use crate::design::{run_all_options, Outcome};
 use crate::error::JobError;
 use crate::ring::RingParams;
-use indicatif::{ParallelProgressIterator, ProgressBar, ProgressStyle};
+use indicatif::ParallelProgressIterator;
 use lamina_netlist::units::Dim;
 use lamina_netlist::{Design, Distribution, LoadOptions, Perturb, Perturbation, Scope, Variations};
 use rayon::prelude::*;
@@ -363,16 +363,7 @@ pub fn run_samples(
     keep_curves: usize,
 ) -> Vec<SampleRow> {
     let variations = Arc::new(nominal.variations.clone());
-    let bar = if progress {
-        ProgressBar::new(samples.len() as u64)
-    } else {
-        ProgressBar::hidden()
-    };
-    if let Ok(style) =
-        ProgressStyle::with_template("{bar:40} {pos}/{len} samples, {elapsed} elapsed, {eta} left")
-    {
-        bar.set_style(style);
-    }
+    let bar = crate::sweep::progress_bar(samples.len(), "samples", progress);
     samples
         .into_par_iter()
         .progress_with(bar)

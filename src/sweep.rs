@@ -339,6 +339,21 @@ pub(crate) fn figures(kind: &str, o: &Outcome) -> Vec<(String, f64)> {
     f
 }
 
+/// A progress bar on stderr over `len` items named `what` (`points`), drawn when `show` and
+/// stderr is a terminal.
+pub fn progress_bar(len: usize, what: &str, show: bool) -> ProgressBar {
+    let bar = if show {
+        ProgressBar::new(len as u64)
+    } else {
+        ProgressBar::hidden()
+    };
+    let template = format!("{{bar:40}} {{pos}}/{{len}} {what}, {{elapsed}} elapsed, {{eta}} left");
+    if let Ok(style) = ProgressStyle::with_template(&template) {
+        bar.set_style(style);
+    }
+    bar
+}
+
 /// Every combination of the axes' values (index into each axis), first axis slowest.
 pub fn grid(axes: &[Axis]) -> Vec<Vec<usize>> {
     let mut points = vec![Vec::new()];
@@ -379,16 +394,7 @@ pub fn run_sweep(
     // Curves of every point while they fit; an evenly spread subset otherwise (decided per
     // point from its index, so the result does not depend on the thread count).
     let budget_per_point = MAX_CURVE_SAMPLES / total.max(1);
-    let bar = if progress {
-        ProgressBar::new(points.len() as u64)
-    } else {
-        ProgressBar::hidden()
-    };
-    if let Ok(style) =
-        ProgressStyle::with_template("{bar:40} {pos}/{len} points, {elapsed} elapsed, {eta} left")
-    {
-        bar.set_style(style);
-    }
+    let bar = progress_bar(points.len(), "points", progress);
     points
         .into_par_iter()
         .enumerate()

@@ -442,7 +442,7 @@ fn the_script_refuses_jobs_it_cannot_split() {
         ),
         (
             vec!["--tasks", "2", "transient", "circuit.lam"],
-            "`sweep ...` or `montecarlo ...`",
+            "`sweep ...`, `montecarlo ...` or `fit ...`",
         ),
         (
             vec!["--tasks", "0", "sweep", "circuit.lam", VDD],

@@ -1,9 +1,9 @@
 //! `lamina merge` and `lamina cluster-script`: a study split into shards over a batch
 //! scheduler's job array, and its parts put back together.
 //!
-//! `merge` reads the parts of `sweep --shard` and of `montecarlo --shard` (it tells them apart
-//! by the part's `kind`: `sweep`, or none for a Monte Carlo part) and hands them to the merge of
-//! their job, which reproduces the run on one machine byte for byte. `cluster-script` runs one
+//! `merge` reads the parts of `sweep --shard`, `montecarlo --shard` and `fit --shard` (it
+//! tells them apart by the part's `kind`: `sweep`, `fit`, or none for a Monte Carlo part) and
+//! hands them to the merge of their job, which reproduces the run on one machine byte for byte. `cluster-script` runs one
 //! trial item of the study here, estimates each task's requests from it
 //! ([`crate::cluster::Resources`]) and writes a plain Slurm job-array script.
 
@@ -28,8 +28,8 @@ fn read_json(path: &Path) -> Result<(String, Value), JobError> {
     let bytes = std::fs::read(&file).map_err(|e| JobError::Io(format!("{shown}: {e}")))?;
     let v = serde_json::from_slice(&bytes).map_err(|e| {
         JobError::Io(format!(
-            "{shown}: not a part file of `lamina sweep --shard` or `lamina montecarlo --shard` \
-             ({e})"
+            "{shown}: not a part file of `lamina sweep --shard`, `lamina montecarlo --shard` or \
+             `lamina fit --shard` ({e})"
         ))
     })?;
     Ok((shown, v))
@@ -107,6 +107,10 @@ pub fn run_merge(a: super::montecarlo_merge::Args) -> Result<(), JobError> {
             let names: Vec<String> = read.into_iter().map(|(n, _)| n).collect();
             super::sweep::merge(parts, &names, a.json, set_out)
         }
+        "fit" => {
+            let set_out = OutputSet::begin_opt(a.out.as_deref())?;
+            super::fit::batch::merge(read, a.json, set_out)
+        }
         other => Err(JobError::Io(format!(
             "{first_name}: a part of kind `{other}`, which this Lamina cannot merge"
         ))),
@@ -141,8 +145,9 @@ pub struct ScriptArgs {
     /// Submit the written script with `sbatch`.
     #[arg(long, conflicts_with = "dry_run")]
     pub submit: bool,
-    /// The study, as after `lamina`: `sweep FILE --param ...` or `montecarlo FILE --runs R
-    /// ...`, without `--shard`, `--out` or `--json`.
+    /// The study, as after `lamina`: `sweep FILE --param ...`, `montecarlo FILE --runs R
+    /// ...` or a batch fit `fit DATA... --card FILE --fit ...`, without `--shard`, `--out` or
+    /// `--json`.
     #[arg(
         required = true,
         trailing_var_arg = true,
@@ -157,6 +162,7 @@ pub struct ScriptArgs {
 enum StudyJob {
     Sweep(super::sweep::Args),
     Montecarlo(super::montecarlo::Args),
+    Fit(super::fit::Args),
 }
 
 #[derive(clap::Parser, Debug)]
@@ -166,8 +172,9 @@ struct JobLine {
     job: StudyJob,
 }
 
-/// Runs one item of the study (the grid's first point, or sample 0) and returns the number of
-/// items and what the trial cost; the study's inputs are checked on the way.
+/// Runs one item of the study (the grid's first point, sample 0, or a batch's first device)
+/// and returns the number of items and what the trial cost; the study's inputs are checked on
+/// the way.
 fn trial(job: &StudyJob) -> Result<(usize, Trial), JobError> {
     let refuse = |flag: &str| {
         Err(JobError::Usage(format!(
@@ -253,6 +260,19 @@ fn trial(job: &StudyJob) -> Result<(usize, Trial), JobError> {
             });
             Ok((runs, t))
         }
+        StudyJob::Fit(a) => {
+            if a.shard.is_some() || a.shard_from_env {
+                return refuse("--shard");
+            }
+            if a.out.is_some() || a.json {
+                return refuse("--out and --json");
+            }
+            let (card, members, cfg, facts) = super::fit::batch::trial_setup(a)?;
+            let t = measure(&|| {
+                crate::fit::batch::run_batch(&card, &members, 0..1, &cfg, &facts, false);
+            });
+            Ok((members.len(), t))
+        }
     }
 }
 
@@ -261,13 +281,15 @@ pub fn run_script(a: ScriptArgs) -> Result<(), JobError> {
     let line = std::iter::once("lamina".to_string()).chain(a.job.iter().cloned());
     let parsed = <JobLine as clap::Parser>::try_parse_from(line).map_err(|e| {
         JobError::Usage(format!(
-            "cluster-script: the job after the flags must be `sweep ...` or `montecarlo ...`:\n{}",
+            "cluster-script: the job after the flags must be `sweep ...`, `montecarlo ...` or \
+             `fit ...`:\n{}",
             e.render()
         ))
     })?;
     let (name, noun) = match &parsed.job {
         StudyJob::Sweep(_) => ("lamina-sweep", "points"),
         StudyJob::Montecarlo(_) => ("lamina-montecarlo", "samples"),
+        StudyJob::Fit(_) => ("lamina-fit", "devices"),
     };
     if a.tasks == 0 || a.tasks > crate::montecarlo::MAX_SHARDS {
         return Err(JobError::Usage(format!(

@@ -13,6 +13,8 @@ use lamina_netlist::units::{engineering, Dim};
 use serde_json::{json, Value};
 use std::path::{Path, PathBuf};
 
+pub mod batch;
+
 /// Flags of `lamina fit`.
 #[derive(clap::Args, Debug)]
 #[command(
@@ -27,15 +29,47 @@ use std::path::{Path, PathBuf};
     --weights sub=1 weighs a decade like 100 %. The fitted values are model estimates.\n\
     Example: lamina fit curves.csv --card device.lam \
     --fit \"n2d.electron_mobility=5:200cm^2/(V s):log\" --fit \"n2d.source_resistance=10:5000Ohm um:log\" \
-    --tie n2d.drain_resistance=n2d.source_resistance"
+    --tie n2d.drain_resistance=n2d.source_resistance\n\
+    A batch (one fit per device, statistics across the devices): lamina fit wafer.csv --card \
+    device.lam --fit ... where wafer.csv has a `device` column, or lamina fit dies/ ... for a \
+    directory of one file per device; --shard K/N splits it for lamina merge."
 )]
 pub struct Args {
     /// Measured curves: CSV with units in the headers, such as `V_GS (V), V_DS (V), I_D (A)`;
     /// optional `direction`, `L (nm)` and `W (um)` columns (one fit spans several devices).
-    pub data: PathBuf,
+    /// Several files, a directory (its `.csv` files in name order) or a `device` column make
+    /// a batch: one fit per file, or per name in the `device` column.
+    #[arg(required = true, value_name = "DATA")]
+    pub data: Vec<PathBuf>,
     /// Circuit file with one 2D-channel FET (source at ground) made from the card to fit.
     #[arg(long, value_name = "FILE")]
     pub card: PathBuf,
+    /// What is fitted and how.
+    #[command(flatten)]
+    pub flags: FitFlags,
+    /// Print one JSON object on stdout instead of a table.
+    #[arg(long)]
+    pub json: bool,
+    /// Write fitted.lam, fit.csv, summary.json and figures into this directory (a batch:
+    /// batch.csv, batch.json and figures across the devices, and each device's files in
+    /// devices/NAME/).
+    #[arg(long, value_name = "DIR")]
+    pub out: Option<PathBuf>,
+    /// A batch only: fit only shard K of N of its devices (`[floor((K-1) D / N), floor(K D /
+    /// N))` of D devices, in device order) and write the partial result (`DIR/part.json` with
+    /// `--out DIR`, else JSON on stdout), for `lamina merge` to put together.
+    #[arg(long, value_name = "K/N")]
+    pub shard: Option<String>,
+    /// The shard of this task of a Slurm job array submitted as `--array=0-(N-1)`: K =
+    /// SLURM_ARRAY_TASK_ID + 1 (the index counts from 0), N = SLURM_ARRAY_TASK_COUNT.
+    #[arg(long, conflicts_with = "shard")]
+    pub shard_from_env: bool,
+}
+
+/// The flags that define a fit, the same for every device of a batch (a batch's parts record
+/// them, and a merge takes only parts with the same).
+#[derive(clap::Args, Clone, Debug, PartialEq)]
+pub struct FitFlags {
     /// A key to fit with its bounds: `card.key=LO:HI`, `:log` to fit its logarithm, such as
     /// `n2d.electron_mobility=5:200cm^2/(V s):log` or `n2d.gate_work_function=4.0:4.8eV`.
     #[arg(long = "fit", value_name = "KEY=LO:HI[:log]", required = true)]
@@ -60,12 +94,6 @@ pub struct Args {
     /// Solver starts: the given start, then points spread over the bounds (default 1).
     #[arg(long, value_name = "N", default_value_t = 1)]
     pub starts: usize,
-    /// Print one JSON object on stdout instead of a table.
-    #[arg(long)]
-    pub json: bool,
-    /// Write fitted.lam, fit.csv, summary.json and figures into this directory.
-    #[arg(long, value_name = "DIR")]
-    pub out: Option<PathBuf>,
 }
 
 fn usage(e: String) -> JobError {
@@ -95,7 +123,7 @@ fn weights(text: &str) -> Result<(f64, f64), String> {
 }
 
 /// Turns the flags into a fit configuration (exit 2 on any fault).
-pub fn plan(a: &Args) -> Result<FitConfig, JobError> {
+pub fn plan(a: &FitFlags) -> Result<FitConfig, JobError> {
     let mut params = a
         .fit
         .iter()
@@ -151,24 +179,66 @@ pub fn plan(a: &Args) -> Result<FitConfig, JobError> {
     })
 }
 
-/// Runs the job.
-pub fn run(a: Args) -> Result<(), JobError> {
-    let set = OutputSet::begin_opt(a.out.as_deref())?;
-    let cfg = plan(&a)?;
+/// What a fit's flags name, read and checked.
+pub(crate) struct Inputs {
+    /// The fit's configuration.
+    pub cfg: FitConfig,
+    /// The card file's design.
+    pub design: lamina_netlist::Design,
+    /// Each data file as given (a directory's files in name order) with its table.
+    pub tables: Vec<(String, lamina_netlist::table::Table)>,
+    /// Whether they make a batch: several files, a directory or a `device` column.
+    pub batch: bool,
+}
+
+/// Reads and checks what the flags name.
+pub(crate) fn inputs(a: &Args) -> Result<Inputs, JobError> {
+    let cfg = plan(&a.flags)?;
     let design = crate::design::load(&a.card, &[])?;
     // The card's width turns a per-width current into a current where the data has no `W`.
     let width = crate::iv::find_fet(&design.circuit)
         .ok()
         .and_then(|fet| design.sheet_card(fet))
         .map(|c| c.width);
-    let table = read_table(&a.data, width)?;
-    let o = fit::fit_table(&a.card, &table, &cfg).map_err(|f| match f {
-        fit::FitFailure::Setup(e) => JobError::Usage(e),
-        fit::FitFailure::Fit(e) => JobError::Analysis(format!("the fit failed: {e}")),
-    })?;
-    let summary = to_json(&o, &cfg, &a);
+    let files = batch::data_files(&a.data)?;
+    let tables = files
+        .iter()
+        .map(|f| read_table(f, width).map(|t| (f.display().to_string(), t)))
+        .collect::<Result<Vec<_>, _>>()?;
+    let one = a.data.len() == 1 && !a.data[0].is_dir() && tables[0].1.devices.is_empty();
+    Ok(Inputs {
+        cfg,
+        design,
+        tables,
+        batch: !one,
+    })
+}
+
+/// Runs the job: one fit, or a batch ([`batch`]).
+pub fn run(a: Args) -> Result<(), JobError> {
+    let shard = crate::cluster::resolve_shard(a.shard.as_deref(), a.shard_from_env)?;
+    let set = OutputSet::begin_opt(a.out.as_deref())?;
+    let Inputs {
+        cfg,
+        design,
+        tables,
+        batch,
+    } = inputs(&a)?;
+    if batch {
+        return batch::run(&a, cfg, &design, &tables, shard, set);
+    }
+    if shard.is_some() {
+        return Err(JobError::Usage(
+            "--shard splits a batch of fits over machines, but this is one fit: give several \
+             data files, a directory of them, or a `device` column"
+                .into(),
+        ));
+    }
+    let o = fit::fit_table(&a.card, &tables[0].1, &cfg).map_err(failure)?;
+    let summary = to_json(&o, &cfg, &a.data[0], &a.card, Some(o.wall_s));
     if let Some(set) = set {
-        write_files(set.dir(), &o, &summary, &a.card).map_err(JobError::Io)?;
+        let source = fit::card_source(&a.card, &o.params[0].key.card).map_err(JobError::Io)?;
+        write_files(set.dir(), &o, &summary, &source).map_err(JobError::Io)?;
         set.commit()?;
     }
     if a.json {
@@ -179,6 +249,14 @@ pub fn run(a: Args) -> Result<(), JobError> {
         }
     }
     Ok(())
+}
+
+/// A failed fit as the job's error: a card file that does not suit the keys is bad usage.
+fn failure(f: fit::FitFailure) -> JobError {
+    match f {
+        fit::FitFailure::Setup(e) => JobError::Usage(e),
+        fit::FitFailure::Fit(e) => JobError::Analysis(format!("the fit failed: {e}")),
+    }
 }
 
 /// Five significant digits in the shortest form.
@@ -347,8 +425,16 @@ pub fn text_report(o: &Outcome, cfg: &FitConfig) -> Vec<String> {
     l
 }
 
-/// The summary object (`--json` and `summary.json`).
-pub fn to_json(o: &Outcome, cfg: &FitConfig, a: &Args) -> Value {
+/// The summary object (`--json` and `summary.json`) of the fit of the data at `data` with
+/// the card file at `card`; `wall_s`, the fit's time, where it is reported (a batch leaves
+/// it out, so its files do not depend on the machine).
+pub fn to_json(
+    o: &Outcome,
+    cfg: &FitConfig,
+    data: &Path,
+    card: &Path,
+    wall_s: Option<f64>,
+) -> Value {
     let f = &o.fit;
     let params: Vec<Value> = o
         .params
@@ -393,9 +479,9 @@ pub fn to_json(o: &Outcome, cfg: &FitConfig, a: &Args) -> Value {
             })
         })
         .collect();
-    json!({
-        "data": a.data.display().to_string(),
-        "card_file": a.card.display().to_string(),
+    let mut v = json!({
+        "data": data.display().to_string(),
+        "card_file": card.display().to_string(),
         "caution": CAUTION,
         "objective": "w_sub log10(|I_model|/|I_data|) where |I_data| < switch current x W/L, else w_on (I_model - I_data)/|I_data|; points below the floor left out",
         "weights": {"sub": cfg.w_sub, "on": cfg.w_on},
@@ -422,18 +508,28 @@ pub fn to_json(o: &Outcome, cfg: &FitConfig, a: &Args) -> Value {
         "starts": cfg.starts,
         "best_start": f.best_start,
         "termination": f.termination,
-        "wall_s": o.wall_s,
         "set_flags": fit::set_flags(o),
-    })
+    });
+    if let (Some(w), Some(m)) = (wall_s, v.as_object_mut()) {
+        m.insert("wall_s".into(), json!(w));
+    }
+    v
 }
 
-fn write_files(dir: &Path, o: &Outcome, summary: &Value, card: &Path) -> Result<(), String> {
+/// `summary.json`, `fitted.lam` (the card's file `source` with the fitted keys set),
+/// `fit.csv` and the figures of data against fit of one fit, into `dir`.
+fn write_files(
+    dir: &Path,
+    o: &Outcome,
+    summary: &Value,
+    source: &fit::CardSource,
+) -> Result<(), String> {
     ensure_dir(dir)?;
     write_whole(&dir.join("summary.json"), format!("{summary}\n").as_bytes())?;
-    let (from, text) = fit::fitted_card(card, o)?;
+    let text = fit::fitted_card(source, o)?;
     let header = format!(
         "# Fitted by `lamina fit` from {} (keys: {}); model estimates.\n",
-        from.display(),
+        source.name.display(),
         fit::set_flags(o).join(", ")
     );
     write_whole(

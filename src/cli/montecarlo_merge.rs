@@ -130,41 +130,26 @@ impl Part {
     /// Reads a part, checking its shape and that its rows are exactly its shard's samples.
     /// `Err` is why it is not a part (the format version is checked by the caller).
     pub fn from_json(v: &Value) -> Result<Part, String> {
-        let field = |k: &str| v.get(k).ok_or_else(|| format!("no `{k}`"));
-        let text = |x: &Value, k: &str| {
-            x.as_str()
-                .map(str::to_string)
-                .ok_or_else(|| format!("`{k}` is not text"))
-        };
-        let count = |k: &str| -> Result<usize, String> {
-            field(k)?
-                .as_u64()
-                .and_then(|n| usize::try_from(n).ok())
-                .ok_or_else(|| format!("`{k}` is not a whole number"))
-        };
-        let specs = field("specs")?
-            .as_array()
-            .ok_or("`specs` is not a list")?
-            .iter()
-            .map(|s| text(s, "specs"))
-            .collect::<Result<Vec<_>, _>>()?;
-        let rows = field("rows")?
+        let f = Fields(v);
+        let rows = f
+            .get("rows")?
             .as_array()
             .ok_or("`rows` is not a list")?
             .iter()
             .map(row_from_json)
             .collect::<Result<Vec<_>, _>>()?;
         let part = Part {
-            lamina_version: text(field("lamina_version")?, "lamina_version")?,
-            inputs_hash: text(field("inputs_hash")?, "inputs_hash")?,
-            file: text(field("file")?, "file")?,
-            seed: field("seed")?
+            lamina_version: f.text("lamina_version")?,
+            inputs_hash: f.text("inputs_hash")?,
+            file: f.text("file")?,
+            seed: f
+                .get("seed")?
                 .as_u64()
                 .ok_or("`seed` is not a whole number")?,
-            runs: count("runs")?,
-            specs,
-            shard: count("shard")?,
-            shards: count("shards")?,
+            runs: f.count("runs")?,
+            specs: f.texts("specs")?,
+            shard: f.count("shard")?,
+            shards: f.count("shards")?,
             rows,
         };
         crate::cluster::check_shard(part.shard, part.shards)?;
@@ -185,7 +170,52 @@ impl Part {
     }
 }
 
-fn number_of(x: &Value) -> Result<f64, String> {
+/// The fields of a part's JSON object, read with messages that name the field.
+pub(crate) struct Fields<'a>(pub &'a Value);
+
+impl Fields<'_> {
+    /// The field `k`.
+    pub fn get(&self, k: &str) -> Result<&Value, String> {
+        self.0.get(k).ok_or_else(|| format!("no `{k}`"))
+    }
+
+    /// `x`, the field `k`, as text.
+    pub fn text_of(x: &Value, k: &str) -> Result<String, String> {
+        x.as_str()
+            .map(str::to_string)
+            .ok_or_else(|| format!("`{k}` is not text"))
+    }
+
+    /// The field `k` as text.
+    pub fn text(&self, k: &str) -> Result<String, String> {
+        Fields::text_of(self.get(k)?, k)
+    }
+
+    /// The field `k` as a list of texts.
+    pub fn texts(&self, k: &str) -> Result<Vec<String>, String> {
+        self.get(k)?
+            .as_array()
+            .ok_or_else(|| format!("`{k}` is not a list"))?
+            .iter()
+            .map(|x| Fields::text_of(x, k))
+            .collect()
+    }
+
+    /// `x`, the field `k`, as a whole number.
+    pub fn count_of(x: &Value, k: &str) -> Result<usize, String> {
+        x.as_u64()
+            .and_then(|n| usize::try_from(n).ok())
+            .ok_or_else(|| format!("`{k}` is not a whole number"))
+    }
+
+    /// The field `k` as a whole number.
+    pub fn count(&self, k: &str) -> Result<usize, String> {
+        Fields::count_of(self.get(k)?, k)
+    }
+}
+
+/// A number written by [`num`] read back.
+pub(crate) fn number_of(x: &Value) -> Result<f64, String> {
     x.as_str()
         .and_then(|s| s.parse::<f64>().ok())
         .ok_or_else(|| format!("`{x}` is not a number written as text"))

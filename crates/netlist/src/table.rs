@@ -8,10 +8,12 @@
 //!
 //! * Columns, in any order, each named once: `V_GS`, `V_DS` and `I_D` (required), `direction`
 //!   (`up` or `down`, the sweep direction), `L` and `W` (the device's channel length and width
-//!   on that row, so one file can hold several devices).
+//!   on that row, so one file can hold several devices), `device` (a name for the row's
+//!   device, for one fit per device; the names in order of first appearance are
+//!   [`Table::devices`]).
 //! * Units are read by the circuit language's own unit parser (`mV`, `uA`, `A/um`, `nm`), and
 //!   checked: a voltage column in a voltage, `I_D` in a current or a current per width, `L` and
-//!   `W` in a length. `direction` takes no unit; every other column must name one.
+//!   `W` in a length. `direction` and `device` take no unit; every other column must name one.
 //! * `I_D` per width (`A/um`) is multiplied by the row's `W`, or by
 //!   [`TableOptions::width_m`] where the file has no `W` column, so every current is in A.
 //! * Cells hold plain numbers (the unit is the header's); `nan` and `inf` are refused.
@@ -43,16 +45,19 @@ pub enum Quantity {
     Length,
     /// Channel width.
     Width,
+    /// The device's name.
+    Device,
 }
 
 /// Each column's header name and what it holds.
-const NAMES: [(&str, Quantity); 6] = [
+const NAMES: [(&str, Quantity); 7] = [
     ("V_GS", Quantity::Vgs),
     ("V_DS", Quantity::Vds),
     ("I_D", Quantity::Id),
     ("direction", Quantity::Direction),
     ("L", Quantity::Length),
     ("W", Quantity::Width),
+    ("device", Quantity::Device),
 ];
 
 /// The direction of a sweep.
@@ -91,6 +96,8 @@ pub struct Row {
     pub length_m: Option<f64>,
     /// Channel width (m), if the file has the column.
     pub width_m: Option<f64>,
+    /// The row's device (index into [`Table::devices`]), if the file has the column.
+    pub device: Option<usize>,
 }
 
 /// A file's points.
@@ -102,6 +109,8 @@ pub struct Table {
     pub per_width: bool,
     /// The headers as written, in file order.
     pub headers: Vec<String>,
+    /// The `device` column's names in order of first appearance (empty without the column).
+    pub devices: Vec<String>,
 }
 
 /// How a file is read.
@@ -179,7 +188,7 @@ fn expected_unit(q: Quantity) -> &'static str {
         Quantity::Vgs | Quantity::Vds => "V",
         Quantity::Id => "A (or A/um per width)",
         Quantity::Length | Quantity::Width => "m (such as nm or um)",
-        Quantity::Direction => "no unit",
+        Quantity::Direction | Quantity::Device => "no unit",
     }
 }
 
@@ -208,7 +217,7 @@ fn header_cell(line: usize, col: usize, cell: &str) -> Result<(Column, bool), Ta
         ));
     };
     let unit = match (quantity, unit) {
-        (Quantity::Direction, None) => {
+        (Quantity::Direction | Quantity::Device, None) => {
             return Ok((
                 Column {
                     quantity,
@@ -217,12 +226,12 @@ fn header_cell(line: usize, col: usize, cell: &str) -> Result<(Column, bool), Ta
                 false,
             ))
         }
-        (Quantity::Direction, Some(u)) => {
+        (Quantity::Direction | Quantity::Device, Some(u)) => {
             return Err(err(
                 line,
                 col,
-                format!("the column `direction` takes no unit, but `({u})` is written"),
-                "write the header as `direction`",
+                format!("the column `{canonical}` takes no unit, but `({u})` is written"),
+                format!("write the header as `{canonical}`"),
             ))
         }
         (_, None) | (_, Some("")) => {
@@ -256,7 +265,7 @@ fn header_cell(line: usize, col: usize, cell: &str) -> Result<(Column, bool), Ta
         Quantity::Vgs | Quantity::Vds => (dim == Dim::VOLTAGE, false),
         Quantity::Id => (dim == Dim::CURRENT || dim == per_width, dim == per_width),
         Quantity::Length | Quantity::Width => (dim == Dim::LENGTH, false),
-        Quantity::Direction => (false, false),
+        Quantity::Direction | Quantity::Device => (false, false),
     };
     if !ok {
         return Err(err(
@@ -357,6 +366,7 @@ pub fn parse_table(text: &str, options: &TableOptions) -> Result<Table, Vec<Tabl
         return Err(errors);
     }
     let mut rows = Vec::new();
+    let mut devices: Vec<String> = Vec::new();
     for (ln, line) in lines {
         if errors.len() >= MAX_ERRORS {
             break;
@@ -398,6 +408,7 @@ pub fn parse_table(text: &str, options: &TableOptions) -> Result<Table, Vec<Tabl
             direction: None,
             length_m: None,
             width_m: None,
+            device: None,
         };
         let mut ok = true;
         for ((col, cell), c) in cs.iter().zip(&columns) {
@@ -417,6 +428,23 @@ pub fn parse_table(text: &str, options: &TableOptions) -> Result<Table, Vec<Tabl
                         continue;
                     }
                 };
+                continue;
+            }
+            if c.quantity == Quantity::Device {
+                if cell.is_empty() {
+                    errors.push(err(
+                        ln,
+                        *col,
+                        "the row names no device".into(),
+                        "write the device's name, such as `die07`",
+                    ));
+                    ok = false;
+                } else if let Some(k) = devices.iter().position(|d| d == cell) {
+                    row.device = Some(k);
+                } else {
+                    devices.push(cell.to_string());
+                    row.device = Some(devices.len() - 1);
+                }
                 continue;
             }
             let v = match cell.parse::<f64>() {
@@ -450,7 +478,7 @@ pub fn parse_table(text: &str, options: &TableOptions) -> Result<Table, Vec<Tabl
                 }
                 Quantity::Length => row.length_m = Some(v),
                 Quantity::Width => row.width_m = Some(v),
-                Quantity::Direction => {}
+                Quantity::Direction | Quantity::Device => {}
             }
         }
         if ok {
@@ -473,6 +501,7 @@ pub fn parse_table(text: &str, options: &TableOptions) -> Result<Table, Vec<Tabl
             rows,
             per_width,
             headers,
+            devices,
         })
     } else {
         Err(errors)
@@ -556,5 +585,22 @@ mod tests {
         )
         .unwrap_err();
         assert_eq!(e.len(), 2);
+    }
+
+    #[test]
+    fn device_names_are_kept_in_order_of_first_appearance() {
+        let t = parse_table(
+            "device, V_GS (V), V_DS (V), I_D (A)\nb7, 1, 0.1, 1e-6\na2, 1, 0.1, 2e-6\nb7, 2, 0.1, 3e-6\n",
+            &TableOptions::default(),
+        )
+        .unwrap();
+        assert_eq!(t.devices, ["b7", "a2"]);
+        let which: Vec<Option<usize>> = t.rows.iter().map(|r| r.device).collect();
+        assert_eq!(which, [Some(0), Some(1), Some(0)]);
+        assert_eq!(first("device (V), V_GS (V), V_DS (V), I_D (A)\n"), (1, 1));
+        assert_eq!(
+            first("device, V_GS (V), V_DS (V), I_D (A)\n , 1, 0.1, 1\n"),
+            (2, 2)
+        );
     }
 }
