@@ -1347,8 +1347,10 @@ impl Tables {
         self.s_inside(site)
     }
 
-    /// `[S, σ, dσ/du]` at a site inside the tables.
-    #[inline]
+    /// `[S, σ, dσ/du]` at a site inside the tables. Always inlined: left to itself the
+    /// compiler kept it out of line, and inlining it into [`Tables::point`] took the mixed
+    /// evaluation bench from about 90 ns to 86 ns.
+    #[inline(always)]
     fn s_inside(&self, Site { k, t, h, inv_h, .. }: Site) -> [f64; 3] {
         let (p, q) = (&self.at[k], &self.at[k + 1]);
         // S by the quintic through σ' as well: S's knot values are exact integrals of the
