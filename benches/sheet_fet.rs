@@ -118,3 +118,22 @@ fn build_tables_dirac_gate(bencher: divan::Bencher) {
         divan::black_box(lamina_devices::SheetModel::build(&c).unwrap())
     });
 }
+
+/// A device whose mobilities no other device has, while another device of the stack keeps its
+/// solution alive (a Monte Carlo sample's mobility spread): the tables are formed from the
+/// shared solution in one pass over the knots, without a local solve.
+#[divan::bench(sample_count = 50)]
+fn new_device_own_mobilities(bencher: divan::Bencher) {
+    let keep = SheetFet::new(&card()).unwrap();
+    let mut factor = 1.0;
+    bencher.bench_local(|| {
+        factor *= 1.0 + 1e-9;
+        let c = SheetFetCard {
+            electron_mobility: card().electron_mobility * factor,
+            hole_mobility: card().hole_mobility / factor,
+            ..card()
+        };
+        divan::black_box(SheetFet::new(&c).unwrap())
+    });
+    divan::black_box(keep);
+}

@@ -79,8 +79,9 @@
 //! former switch (0.4 kT/q, quadrature below it). It scales with `kT/q` because both errors do.
 //!
 //! # Tables
-//! `S`, `A`, `B`, `σ` and `ρ` are tabulated once per gate stack on a uniform core grid
-//! (spacing `V_T / 10`, 8 V either side of the midgap point) and interpolated with Hermite
+//! `S`, `A`, `B`, `σ` and `ρ` are tabulated once per gate stack and pair of mobilities on a
+//! uniform core grid (spacing `V_T / 10`, 8 V either side of the midgap point) and
+//! interpolated with Hermite
 //! polynomials that use the exact derivatives (cubics, except `S`: a quintic through `σ'` as
 //! well, whose derivative is then exactly the cubic of σ, and `B`: a quintic through
 //! `B'' = σ ρσ + S (ρσ)'`, which cuts the drain charge's error at small `V_DS` threefold), so
@@ -88,10 +89,20 @@
 //! forward-mode differentiation in the two end potentials, or written out for the series) is
 //! exactly the derivative of what is returned.
 //!
+//! The mobilities enter the stack only as the weights of the two carriers' conductances,
+//! `σ = q (μ_n n_σ + μ_p p_σ)` (`n_σ = n μ(n)/μ_0` under a density-dependent mobility, whose
+//! `n_ref` and `α` belong to the stack), so the local solves are done once per stack at the
+//! knots, for `n_σ`, `p_σ`, ρ and their derivatives, and each pair of mobilities forms its
+//! tables from them in one pass over the knots (σ, then the integrals): 80 µs for the default
+//! card's 6,400 knots against 1.5 ms for the solve, and the same tables bit for bit as a solve
+//! of the card alone ([`SheetModel::shared`]).
+//!
 //! Beyond the core, extensions reach at least ±[`U_REACH`] = ±1000 V of `u` (a back gate on
 //! 285 nm of SiO2 swept to ±100 V sits well inside): their knots are placed adaptively, each
 //! step doubling while σ, ρ and their derivatives stay within 1e-8 of the direct solve at a
-//! quarter, half and three quarters of it and halving (down to the core spacing) otherwise,
+//! quarter, half and three quarters of it (σ as each carrier's share, so that the knots do not
+//! depend on the mobilities, and within 2e-8 for any mobilities within a ratio of 1e3 of
+//! each other) and halving (down to the core spacing) otherwise,
 //! and no wider than 5 % of its distance from the midgap point. Each side holds at most [`MAX_EXTENSION_POINTS`] knots (a few
 //! hundred in practice), and an extension ends early only where the local solve fails (a
 //! Dirac gate that cannot carry the charge within ±20 eV). Inside
@@ -105,8 +116,8 @@
 //! a metal gate, but no longer the solved physics; a caller detects this by comparing
 //! `V_G - V_D` and `V_G - V_S` with the valid range.
 //!
-//! The core grid has at most [`MAX_TABLE_POINTS`] points (4.2 MB of tables per stack, and
-//! at most 0.6 MB more for the extensions). Below about
+//! The core grid has at most [`MAX_TABLE_POINTS`] points (4.2 MB of tables per pair of
+//! mobilities and 4.2 MB of solution per stack, and at most 1.1 MB more for the extensions). Below about
 //! 28 K, where `V_T / 10` would need more, the spacing coarsens to 16 V / 65,536 = 0.244 mV and
 //! the interpolation error grows where σ turns on: for the default card the tabulated σ is
 //! within 3e-7 of the direct solve at 30 K and above, 1.1e-6 at 20 K, 7e-4 at 4 K and 0.22 at
@@ -725,10 +736,11 @@ impl Stack {
         }
     }
 
-    /// Everything at degeneracy `xi`, and whether the gate's charge balance was met (always
-    /// for a metal gate; a Dirac gate may be unable to hold the charge within its bracket).
-    /// `mu_guess` warm-starts the Dirac gate's solve; `work` counts the evaluations.
-    fn at_xi(&self, xi: f64, mu_guess: &mut f64, work: &mut usize) -> (LocalState, bool) {
+    /// Everything at degeneracy `xi`, each carrier's conductance per unit of its mobility, and
+    /// whether the gate's charge balance was met (always for a metal gate; a Dirac gate may be
+    /// unable to hold the charge within its bracket). `mu_guess` warm-starts the Dirac gate's
+    /// solve; `work` counts the evaluations.
+    fn at_xi(&self, xi: f64, mu_guess: &mut f64, work: &mut usize) -> (LocalState, Carriers, bool) {
         *work += 1;
         let e = Q * xi;
         let (mut n, mut dn) = parabolic_density(self.dos_e, self.kt, e);
@@ -780,8 +792,13 @@ impl Stack {
         };
         let (gn, dgn) = weigh(self.density_n, n);
         let (gp, dgp) = weigh(self.density_p, p);
-        let sigma = Q * (self.mu_n * gn + self.mu_p * gp);
-        let dsigma_dxi = Q * (self.mu_n * (dgn * dn_dxi) + self.mu_p * (dgp * dp_dxi));
+        let carriers = Carriers {
+            n: gn,
+            dn: dgn * dn_dxi,
+            p: gp,
+            dp: dgp * dp_dxi,
+        };
+        let (sigma, dsigma_du) = carriers.conductance(self.mu_n, self.mu_p, du);
         let state = LocalState {
             u,
             xi,
@@ -794,10 +811,10 @@ impl Stack {
             gate_charge: qg,
             gate_level,
             du_dxi: du,
-            dsigma_du: dsigma_dxi / du,
+            dsigma_du,
             drho_du: drho / du,
         };
-        (state, gate_ok)
+        (state, carriers, gate_ok)
     }
 
     /// The state at `u`, solving `u(ξ) = u` by safeguarded Newton, and whether the solve
@@ -807,27 +824,27 @@ impl Stack {
     /// by bisection. Converged when `|f| <= 1e-13 (1 + |u|)` or the bracket is down to a few
     /// rounding units of `ξ`; at most [`MAX_ITERATIONS`] steps, and a non-finite state ends
     /// the solve unconverged. `xi_guess` and `mu_guess` warm-start the solve; `work` counts
-    /// evaluations.
+    /// evaluations. The carriers' conductances per mobility come with the state.
     fn at_u(
         &self,
         u: f64,
         xi_guess: &mut f64,
         mu_guess: &mut f64,
         work: &mut usize,
-    ) -> (LocalState, bool) {
+    ) -> (LocalState, Carriers, bool) {
         let (mut lo, mut hi) = (f64::NEG_INFINITY, f64::INFINITY);
         let mut xi = if xi_guess.is_finite() { *xi_guess } else { 0.0 };
         let mut last_f = f64::INFINITY;
         let mut iterations = 0;
         loop {
-            let (s, gate_ok) = self.at_xi(xi, mu_guess, work);
+            let (s, c, gate_ok) = self.at_xi(xi, mu_guess, work);
             *xi_guess = xi;
             let f = s.u - u;
             if !(f.is_finite() && s.du_dxi.is_finite()) {
-                return (s, false);
+                return (s, c, false);
             }
             if f.abs() <= 1e-13 * (1.0 + u.abs()) {
-                return (s, gate_ok);
+                return (s, c, gate_ok);
             }
             if f > 0.0 {
                 hi = hi.min(xi);
@@ -838,11 +855,11 @@ impl Stack {
             }
             // Both ends are finite here, because f is.
             if hi - lo <= 4.0 * f64::EPSILON * (1.0 + xi.abs()) {
-                return (s, gate_ok);
+                return (s, c, gate_ok);
             }
             iterations += 1;
             if iterations >= MAX_ITERATIONS {
-                return (s, false);
+                return (s, c, false);
             }
             let newton = xi - f / s.du_dxi;
             let next = if f.abs() <= 0.5 * last_f && newton >= lo && newton <= hi && newton != xi {
@@ -852,10 +869,40 @@ impl Stack {
             };
             last_f = f.abs();
             if next == xi {
-                return (s, gate_ok);
+                return (s, c, gate_ok);
             }
             xi = next;
         }
+    }
+}
+
+/// Each carrier's share of the sheet conductance per unit of its mobility at one point:
+/// `σ = q (μ_n n_σ + μ_p p_σ)`, where `n_σ` is the electron density (or `n μ(n) / μ_0` under a
+/// density-dependent mobility, whose `n_ref` and `α` belong to the stack) and `p_σ` the hole
+/// one. The mobilities `μ_n`, `μ_p` enter nowhere else in the stack's solution, so one solve
+/// serves every pair of mobilities ([`SheetModel::shared`]).
+#[derive(Clone, Copy, Debug)]
+struct Carriers {
+    /// `n_σ` (1/m²).
+    n: f64,
+    /// `dn_σ/dξ` (1/(V m²)).
+    dn: f64,
+    /// `p_σ` (1/m²).
+    p: f64,
+    /// `dp_σ/dξ` (1/(V m²)).
+    dp: f64,
+}
+
+impl Carriers {
+    /// `(σ, dσ/du)` for mobilities `mu_n`, `mu_p` (m²/(V s)) and `du_dxi = du/dξ`, in one
+    /// order of operations wherever it is formed, so tables and direct solves agree bit for
+    /// bit.
+    #[inline]
+    fn conductance(&self, mu_n: f64, mu_p: f64, du_dxi: f64) -> (f64, f64) {
+        (
+            Q * (mu_n * self.n + mu_p * self.p),
+            Q * (mu_n * self.dn + mu_p * self.dp) / du_dxi,
+        )
     }
 }
 
@@ -1007,12 +1054,11 @@ pub fn caughey_thomas_velocity(
     v0 / (1.0 + (v0 / saturation_velocity).abs().powf(beta)).powf(1.0 / beta)
 }
 
-/// Per-stack tables: a uniform core grid around the midgap point and non-uniform extensions
-/// on either side, all interpolated with cubic Hermite polynomials.
+/// Per-stack tables for one pair of mobilities: a uniform core grid around the midgap point
+/// and non-uniform extensions on either side, all interpolated with Hermite polynomials.
 ///
-/// Knot `i` of the value arrays sits at `left_u[i]` for `i <= core_lo`, at
-/// `u0 + (i - core_lo) h` inside the core, and at `right_u[i - core_hi]` for `i >= core_hi`
-/// (`left_u` ends with the core's first knot, `right_u` starts with its last).
+/// Knot `i` of the value arrays sits at the solution's `u[i]`: `u0 + (i - core_lo) h` inside
+/// the core (`core_lo <= i <= core_hi`), the extensions' knots below and above it.
 #[derive(Debug)]
 struct Tables {
     u0: f64,
@@ -1022,8 +1068,9 @@ struct Tables {
     core_intervals: f64,
     core_lo: usize,
     core_hi: usize,
-    left_u: Vec<f64>,
-    right_u: Vec<f64>,
+    /// The stack's solution at the knots, which the values were formed from (shared by
+    /// every pair of mobilities).
+    solution: Arc<Solution>,
     /// The values at every knot, side by side so that one look-up touches two adjacent
     /// records.
     at: Vec<KnotValues>,
@@ -1150,11 +1197,14 @@ impl Tables {
     #[cold]
     #[inline(never)]
     fn locate_outside_core(&self, u: f64, x: f64) -> Site {
+        // `left_u` ends with the core's first knot, `right_u` starts with its last.
+        let left_u = &self.solution.u[..=self.core_lo];
+        let right_u = &self.solution.u[self.core_hi..];
         if x < 0.0 {
-            let first = self.left_u[0];
+            let first = left_u[0];
             if u <= first {
                 let h = if self.core_lo > 0 {
-                    self.left_u[1] - first
+                    left_u[1] - first
                 } else {
                     self.h
                 };
@@ -1167,23 +1217,23 @@ impl Tables {
                 };
             }
             // first < u < u0, so 1 <= pp <= core_lo.
-            let k = self.left_u.partition_point(|&v| v <= u).max(1) - 1;
-            let h = self.left_u[k + 1] - self.left_u[k];
+            let k = left_u.partition_point(|&v| v <= u).max(1) - 1;
+            let h = left_u[k + 1] - left_u[k];
             return Site {
                 k,
-                t: (u - self.left_u[k]) / h,
+                t: (u - left_u[k]) / h,
                 h,
                 inv_h: 1.0 / h,
                 out: 0.0,
             };
         }
         if x >= self.core_intervals {
-            let last = self.right_u.len() - 1;
-            let end = self.right_u[last];
+            let last = right_u.len() - 1;
+            let end = right_u[last];
             if u >= end || last == 0 {
                 // Without an extension, `u` can sit a rounding unit below the core's end.
                 let h = if last > 0 {
-                    end - self.right_u[last - 1]
+                    end - right_u[last - 1]
                 } else {
                     self.h
                 };
@@ -1195,11 +1245,11 @@ impl Tables {
                     out: (u - end).max(0.0),
                 };
             }
-            let j = (self.right_u.partition_point(|&v| v <= u).max(1) - 1).min(last - 1);
-            let h = self.right_u[j + 1] - self.right_u[j];
+            let j = (right_u.partition_point(|&v| v <= u).max(1) - 1).min(last - 1);
+            let h = right_u[j + 1] - right_u[j];
             return Site {
                 k: self.core_hi + j,
-                t: (u - self.right_u[j]) / h,
+                t: (u - right_u[j]) / h,
                 h,
                 inv_h: 1.0 / h,
                 out: 0.0,
@@ -1315,8 +1365,10 @@ impl Tables {
         self.s_inside(site)
     }
 
-    /// `[S, σ, dσ/du]` at a site inside the tables.
-    #[inline]
+    /// `[S, σ, dσ/du]` at a site inside the tables. Always inlined: left to itself the
+    /// compiler kept it out of line, and inlining it into [`Tables::point`] took the mixed
+    /// evaluation bench from about 90 ns to 86 ns.
+    #[inline(always)]
     fn s_inside(&self, Site { k, t, h, inv_h, .. }: Site) -> [f64; 3] {
         let (p, q) = (&self.at[k], &self.at[k + 1]);
         // S by the quintic through σ' as well: S's knot values are exact integrals of the
@@ -1431,8 +1483,8 @@ const POINTS_PER_VT: f64 = 10.0;
 /// Half-width of the tabulated `u` range around the flat-band point (V).
 const U_HALF_RANGE: f64 = 8.0;
 /// The most grid points one model tabulates: 2^16 intervals over the 16 V range (0.244 mV
-/// spacing). Each point holds eight `f64` values, so one model's tables stay within
-/// 65,537 × 8 × 8 bytes = 4.2 MB. At `V_T / 10` spacing the cap is reached at about 28 K.
+/// spacing). Each point holds eight `f64` values in the tables of each pair of mobilities and
+/// eight in the stack's solution, so each stays within 65,537 × 8 × 8 bytes = 4.2 MB. At `V_T / 10` spacing the cap is reached at about 28 K.
 pub const MAX_TABLE_POINTS: usize = 65_537;
 /// The tables reach at least this far (V) from zero gate drive on both sides: ten times the
 /// ±100 V of a back gate on a thick oxide, the largest sweep in common use (common practice).
@@ -1448,7 +1500,7 @@ fn lock<T>(m: &Mutex<T>) -> std::sync::MutexGuard<'_, T> {
 }
 
 /// The live entry of `cache` for `key`, dropping dead ones.
-fn find<T>(cache: &Mutex<Vec<(SheetFetCard, Weak<T>)>>, key: &SheetFetCard) -> Option<Arc<T>> {
+fn find<K: PartialEq, T>(cache: &Mutex<Vec<(K, Weak<T>)>>, key: &K) -> Option<Arc<T>> {
     let mut c = lock(cache);
     c.retain(|(_, w)| w.strong_count() > 0);
     c.iter()
@@ -1456,8 +1508,8 @@ fn find<T>(cache: &Mutex<Vec<(SheetFetCard, Weak<T>)>>, key: &SheetFetCard) -> O
         .and_then(|(_, w)| w.upgrade())
 }
 
-/// The most knots of each extension beyond the core grid (nine `f64` values each, so both
-/// together stay within 0.6 MB).
+/// The most knots of each extension beyond the core grid (eight `f64` values each in the
+/// solution and eight in the tables, so both extensions together stay within 1.1 MB).
 pub const MAX_EXTENSION_POINTS: usize = 4096;
 /// How far (V) the flat-band point may lie from zero gate drive: beyond it the grid spacing
 /// would drown in the rounding of `u` itself.
@@ -1466,41 +1518,56 @@ const MAX_CENTRE: f64 = 1e6;
 /// the build time whatever the card). A warm-started solve takes a handful.
 const WORK_PER_POINT: usize = 64;
 
-/// The tabulated values at a run of knots, in the order they were solved.
+/// The stack's solution at one knot: everything the tables are formed from, free of the
+/// mobilities ([`Carriers`]).
+#[derive(Clone, Copy, Debug)]
+struct Solved {
+    carriers: Carriers,
+    /// `du/dξ`.
+    du_dxi: f64,
+    /// ρ (C/m²).
+    rho: f64,
+    /// `dρ/du` (F/m²).
+    drho: f64,
+}
+
+impl Solved {
+    fn of(st: &LocalState, carriers: Carriers) -> Self {
+        Solved {
+            carriers,
+            du_dxi: st.du_dxi,
+            rho: st.rho,
+            drho: st.drho_du,
+        }
+    }
+
+    /// What the extensions check and the solves must keep finite: each carrier's conductance
+    /// per unit of its mobility and its `u`-derivative, then ρ and `dρ/du`.
+    fn values(&self) -> [f64; 6] {
+        let (sn, dsn) = self.carriers.conductance(1.0, 0.0, self.du_dxi);
+        let (sp, dsp) = self.carriers.conductance(0.0, 1.0, self.du_dxi);
+        [sn, dsn, sp, dsp, self.rho, self.drho]
+    }
+}
+
+/// The solution at a run of knots, in the order they were solved.
 #[derive(Debug, Default)]
 struct Knots {
     u: Vec<f64>,
-    sigma: Vec<f64>,
-    dsigma: Vec<f64>,
-    rho: Vec<f64>,
-    drho: Vec<f64>,
+    at: Vec<Solved>,
 }
 
 impl Knots {
     fn with_capacity(n: usize) -> Self {
         Knots {
             u: Vec::with_capacity(n),
-            sigma: Vec::with_capacity(n),
-            dsigma: Vec::with_capacity(n),
-            rho: Vec::with_capacity(n),
-            drho: Vec::with_capacity(n),
+            at: Vec::with_capacity(n),
         }
     }
 
-    fn push(&mut self, u: f64, st: &LocalState) {
-        self.push_values(u, [st.sigma, st.dsigma_du, st.rho, st.drho_du]);
-    }
-
-    fn push_values(&mut self, u: f64, [g, dg, r, dr]: [f64; 4]) {
+    fn push(&mut self, u: f64, at: Solved) {
         self.u.push(u);
-        self.sigma.push(g);
-        self.dsigma.push(dg);
-        self.rho.push(r);
-        self.drho.push(dr);
-    }
-
-    fn values(&self, k: usize) -> [f64; 4] {
-        [self.sigma[k], self.dsigma[k], self.rho[k], self.drho[k]]
+        self.at.push(at);
     }
 
     fn len(&self) -> usize {
@@ -1508,28 +1575,32 @@ impl Knots {
     }
 
     fn reverse(&mut self) {
-        for v in [
-            &mut self.u,
-            &mut self.sigma,
-            &mut self.dsigma,
-            &mut self.rho,
-            &mut self.drho,
-        ] {
-            v.reverse();
-        }
+        self.u.reverse();
+        self.at.reverse();
     }
 
     /// Appends `other`'s knots from index `skip` on.
     fn append_from(&mut self, other: &Knots, skip: usize) {
-        for k in skip..other.len() {
-            self.push_values(other.u[k], other.values(k));
-        }
+        self.u.extend_from_slice(&other.u[skip..]);
+        self.at.extend_from_slice(&other.at[skip..]);
     }
 }
 
 /// Relative accuracy the extensions hold σ, ρ and their derivatives to at the check points
 /// of every interval (a hundred times tighter than the 1e-6 promised for the results).
 const EXTENSION_TOLERANCE: f64 = 1e-8;
+
+/// The ratio of the two mobilities up to which the extensions hold σ within twice
+/// [`EXTENSION_TOLERANCE`] ([`Scales::misfit`]); beyond it the bound grows in proportion
+/// (1e-6 at a ratio of 1e5, still the accuracy promised for the results). 1e3 is well beyond
+/// the electron-to-hole mobility ratios reported for 2D channels (within about 100, recalled,
+/// not checked). Measured on ten stacks with four mobility pairs each, against knots placed
+/// by each card's own σ: the same knots wherever they did not depend on the mobilities,
+/// results bit for bit the same there; a 0.3 eV gap with mobility ratios of 1.8 and 4.3
+/// moved knots beyond the core (results within 8e-6 there, a drain-charge derivative at
+/// 1000 V). Holding that card's carriers to 1e4 would add 64 knots, each to its own size
+/// alone over 3,000.
+const MOBILITY_RATIO: f64 = 1e3;
 
 /// The widest extension step as a fraction of its distance from the midgap point. The σ and
 /// ρ checks alone would let the steps grow without bound where both are nearly linear; the
@@ -1540,7 +1611,8 @@ const EXTENSION_TOLERANCE: f64 = 1e-8;
 const EXTENSION_STEP: f64 = 0.05;
 
 /// Magnitudes below which σ and ρ count as zero when the extensions judge their accuracy:
-/// 1e-12 of an 'on' channel's (carriers at the 2D effective density `D kT`).
+/// 1e-12 of an 'on' channel's (carriers at the 2D effective density `D kT`; σ per unit of
+/// mobility, so that the knots do not depend on the mobilities).
 #[derive(Clone, Copy, Debug)]
 struct Scales {
     sigma: f64,
@@ -1552,25 +1624,41 @@ impl Scales {
     fn of(stack: &Stack) -> Self {
         let n = (stack.dos_e + stack.dos_h) * stack.kt;
         Scales {
-            sigma: 1e-12 * Q * n * stack.mu_n.max(stack.mu_p),
+            sigma: 1e-12 * Q * n,
             rho: 1e-12 * Q * n,
             vt: stack.vt,
         }
     }
 
     /// The largest error, in units of [`EXTENSION_TOLERANCE`], of the Hermite interpolants of
-    /// σ, ρ and their derivatives between knots with values `a` and `b` (`b` at `w` volts from
-    /// `a`, `w` of either sign) against the solved values `m` at fraction `t` of the way.
-    fn misfit(&self, a: [f64; 4], b: [f64; 4], m: [f64; 4], t: f64, w: f64) -> f64 {
+    /// each carrier's σ per mobility, of ρ and of their derivatives between knots with values
+    /// `a` and `b` ([`Solved::values`]; `b` at `w` volts from `a`, `w` of either sign) against
+    /// the solved values `m` at fraction `t` of the way.
+    ///
+    /// Each carrier's error counts against the larger of its own size and the other
+    /// carrier's over [`MOBILITY_RATIO`], so that for mobilities within that ratio of each
+    /// other the combined σ is held within twice the tolerance, whatever the pair: with
+    /// `|e_n| <= tol max(σ_n, σ_p / R)`, `μ_n |e_n| <= tol max(μ_n σ_n, μ_p σ_p) <= tol σ`, and
+    /// likewise for holes. A carrier that is negligible at every such ratio (the minority one
+    /// of a wide-gap channel, beyond the core grid) then costs no knots.
+    fn misfit(&self, a: [f64; 6], b: [f64; 6], m: [f64; 6], t: f64, w: f64) -> f64 {
+        let size = |i: usize| a[i].abs().max(b[i].abs()).max(m[i].abs());
+        // The floors of a carrier's σ and dσ/du, given the other carrier's index.
+        let sigma_floors = |other: usize| {
+            (
+                self.sigma.max(size(other) / MOBILITY_RATIO),
+                (self.sigma / self.vt).max(size(other + 1) / MOBILITY_RATIO),
+            )
+        };
         let mut worst: f64 = 0.0;
-        for (i, floor) in [(0, self.sigma), (2, self.rho)] {
+        for (i, (floor, dfloor)) in [
+            (0, sigma_floors(2)),
+            (2, sigma_floors(0)),
+            (4, (self.rho, self.rho / self.vt)),
+        ] {
             let (v, d) = hermite(t, w, 1.0 / w, a[i], a[i + 1], b[i], b[i + 1]);
-            let scale = a[i].abs().max(b[i].abs()).max(m[i].abs()).max(floor);
-            let dscale = a[i + 1]
-                .abs()
-                .max(b[i + 1].abs())
-                .max(m[i + 1].abs())
-                .max(floor / self.vt);
+            let scale = size(i).max(floor);
+            let dscale = size(i + 1).max(dfloor);
             worst = worst
                 .max((v - m[i]).abs() / scale)
                 .max((d - m[i + 1]).abs() / dscale);
@@ -1603,7 +1691,7 @@ fn extend(
     centre: f64,
 ) -> Knots {
     let mut out = Knots::with_capacity(64);
-    out.push_values(from.u[k], from.values(k));
+    out.push(from.u[k], from.at[k]);
     if distance.is_nan() || distance <= 0.0 {
         return out;
     }
@@ -1612,15 +1700,11 @@ fn extend(
     let mut h = 4.0 * h_min;
     let mut work = 0;
     let budget = WORK_PER_POINT * 4 * MAX_EXTENSION_POINTS;
-    let finite = |s: &LocalState| {
-        [s.sigma, s.dsigma_du, s.rho, s.drho_du]
-            .iter()
-            .all(|v| v.is_finite())
-    };
+    let finite = |v: &[f64; 6]| v.iter().all(|v| v.is_finite());
     while out.len() < MAX_EXTENSION_POINTS && work < budget {
         let last = out.len() - 1;
         let ua = out.u[last];
-        let va = out.values(last);
+        let va = out.at[last].values();
         let remaining = (end - ua) * dir;
         if remaining.is_nan() || remaining <= 0.0 {
             break;
@@ -1638,22 +1722,23 @@ fn extend(
         };
         let w = ub - ua;
         let (mut xb, mut mb) = (xi, mu);
-        let (sb, ok) = stack.at_u(ub, &mut xb, &mut mb, &mut work);
-        if ok && finite(&sb) {
-            let vb = [sb.sigma, sb.dsigma_du, sb.rho, sb.drho_du];
+        let (sb, cb, ok) = stack.at_u(ub, &mut xb, &mut mb, &mut work);
+        let b = Solved::of(&sb, cb);
+        let vb = b.values();
+        if ok && finite(&vb) {
             let mut misfit: f64 = 0.0;
             for t in [0.25, 0.5, 0.75] {
                 let (mut xm, mut mm) = (xi, mu);
-                let (sm, ok) = stack.at_u(ua + t * w, &mut xm, &mut mm, &mut work);
-                if !(ok && finite(&sm)) {
+                let (sm, cm, ok) = stack.at_u(ua + t * w, &mut xm, &mut mm, &mut work);
+                let vm = Solved::of(&sm, cm).values();
+                if !(ok && finite(&vm)) {
                     misfit = f64::INFINITY;
                     break;
                 }
-                let vm = [sm.sigma, sm.dsigma_du, sm.rho, sm.drho_du];
                 misfit = misfit.max(scales.misfit(va, vb, vm, t, w));
             }
             if misfit <= 1.0 || (misfit.is_finite() && step <= h_min) {
-                out.push(ub, &sb);
+                out.push(ub, b);
                 (xi, mu) = (xb, mb);
                 if misfit < 1.0 / 16.0 {
                     h = 2.0 * step;
@@ -1670,26 +1755,34 @@ fn extend(
     out
 }
 
-impl SheetModel {
-    /// Solves the stack on its grid and integrates the tables.
-    ///
-    /// Fails, with a message, for a card that [`SheetFetCard::validate`] refuses and for a
-    /// valid card whose stack the tables cannot hold: a flat-band point beyond ±1e6 V, a local
-    /// solve that does not converge (a Dirac gate that cannot carry the gate charge within
-    /// ±20 eV of its neutral point), a non-finite value, or more than 64 local evaluations per
-    /// grid point on average. The tables never exceed [`MAX_TABLE_POINTS`] points.
-    pub fn build(card: &SheetFetCard) -> Result<SheetModel, String> {
-        Self::build_reaching(card, U_REACH)
-    }
+/// A gate stack solved at the knots of its tables: the uniform core grid and the adaptive
+/// extensions. Nothing in it depends on the mobilities (the knots are placed by each
+/// carrier's conductance per mobility, [`Scales::misfit`]), so one solution serves every pair
+/// of mobilities, and [`Tables::integrate`] forms a pair's tables from it in one pass over the
+/// knots, without a local solve.
+#[derive(Debug)]
+struct Solution {
+    u0: f64,
+    h: f64,
+    /// The core grid's first and last knot.
+    core_lo: usize,
+    core_hi: usize,
+    /// Every knot's `u`, ascending: the core's `u0 + (i - core_lo) h`, the extensions' below
+    /// and above.
+    u: Vec<f64>,
+    at: Vec<Solved>,
+}
 
-    /// [`SheetModel::build`] with extensions reaching at least `reach` V of `u` each way.
-    fn build_reaching(card: &SheetFetCard, reach: f64) -> Result<SheetModel, String> {
+impl Solution {
+    /// Solves `stack` (of `card`) on its core grid and extensions reaching at least `reach`
+    /// V of `u` each way; fails as [`SheetModel::build`] documents.
+    fn solve(card: &SheetFetCard, reach: f64) -> Result<Solution, String> {
         card.validate()?;
-        let stack = Stack::new(card);
+        let stack = &Stack::new(card);
         let mut mu_guess = 0.0;
         let mut work = 0;
         // Centre the grid on the state with the channel Fermi level at midgap.
-        let (mid, gate_ok) = stack.at_xi(-0.5 * card.band_gap, &mut mu_guess, &mut work);
+        let (mid, _, gate_ok) = stack.at_xi(-0.5 * card.band_gap, &mut mu_guess, &mut work);
         let centre = mid.u;
         if !gate_ok || !centre.is_finite() || centre.abs() > MAX_CENTRE {
             return Err(format!(
@@ -1713,11 +1806,9 @@ impl SheetModel {
         let budget = WORK_PER_POINT * n;
         for k in 0..n {
             let u = u0 + k as f64 * h;
-            let (st, ok) = stack.at_u(u, &mut xi, &mut mu_guess, &mut work);
-            let finite = [st.sigma, st.dsigma_du, st.rho, st.drho_du]
-                .iter()
-                .all(|v| v.is_finite());
-            if !ok || !finite {
+            let (st, c, ok) = stack.at_u(u, &mut xi, &mut mu_guess, &mut work);
+            let at = Solved::of(&st, c);
+            if !ok || !at.values().iter().all(|v| v.is_finite()) {
                 return Err(format!(
                     "the gate stack has no solution the tables can hold at {} V from \
                      flat band{}: check the insulator, masses, densities and the gate",
@@ -1738,13 +1829,13 @@ impl SheetModel {
             if k == 0 {
                 first_guess = (xi, mu_guess);
             }
-            core.push(u, &st);
+            core.push(u, at);
         }
         let last_guess = (xi, mu_guess);
         let u_end = u0 + (n - 1) as f64 * h;
-        let scales = Scales::of(&stack);
+        let scales = Scales::of(stack);
         let right = extend(
-            &stack,
+            stack,
             &core,
             n - 1,
             1.0,
@@ -1755,7 +1846,7 @@ impl SheetModel {
             centre,
         );
         let mut left = extend(
-            &stack,
+            stack,
             &core,
             0,
             -1.0,
@@ -1770,116 +1861,216 @@ impl SheetModel {
         left.reverse();
         let core_lo = left.len() - 1;
         let core_hi = core_lo + n - 1;
-        let left_u = left.u.clone();
-        let mut right_u = vec![u_end];
-        right_u.extend_from_slice(&right.u[1..]);
         let mut all = left;
         all.append_from(&core, 1);
         all.append_from(&right, 1);
-        let Knots {
-            u: knot_u,
-            sigma,
-            dsigma,
-            rho,
-            drho,
-        } = all;
-        let m = knot_u.len();
+        Ok(Solution {
+            u0,
+            h,
+            core_lo,
+            core_hi,
+            u: all.u,
+            at: all.at,
+        })
+    }
+}
+
+/// Exact integral of the Hermite cubic through `(f, f')` at both ends of an interval of width
+/// `h`.
+#[inline]
+fn hermite_integral(h: f64, f0: f64, d0: f64, f1: f64, d1: f64) -> f64 {
+    0.5 * h * (f0 + f1) + h * h / 12.0 * (d0 - d1)
+}
+
+impl Tables {
+    /// The tables of `solution` for mobilities `mu_n` and `mu_p` (m²/(V s)): σ at every knot,
+    /// then `S`, `A` and `B` integrated from the conductance minimum, without a local solve.
+    /// Fails where the integrals overflow.
+    ///
+    /// Each interval's increments are formed apart from the running sums (the sums need only
+    /// an addition per knot), in the same operations as one running loop would, so the
+    /// tables are the same bit for bit.
+    fn integrate(solution: Arc<Solution>, mu_n: f64, mu_p: f64) -> Result<Tables, String> {
+        let (h, core_lo, core_hi) = (solution.h, solution.core_lo, solution.core_hi);
+        let u = &solution.u;
+        let mut at: Vec<KnotValues> = solution
+            .at
+            .iter()
+            .map(|k| {
+                let (sigma, dsigma) = k.carriers.conductance(mu_n, mu_p, k.du_dxi);
+                KnotValues {
+                    sigma,
+                    dsigma,
+                    rho: k.rho,
+                    drho: k.drho,
+                    s: 0.0,
+                    a: 0.0,
+                    b: 0.0,
+                    b2: 0.0,
+                }
+            })
+            .collect();
+        let m = at.len();
+        // ρσ and (ρσ)' at every knot.
+        let rs: Vec<[f64; 2]> = at
+            .iter()
+            .map(|v| [v.rho * v.sigma, v.drho * v.sigma + v.rho * v.dsigma])
+            .collect();
+        // Interval widths: the core's exactly h, as before the extensions existed.
+        let core = |k: usize| (core_lo..core_hi).contains(&k);
+        let width = |k: usize| if core(k) { h } else { u[k + 1] - u[k] };
+        // Each interval's ∫ σ du and ∫ ρσ du.
+        let steps: Vec<[f64; 2]> = (0..m - 1)
+            .map(|k| {
+                let (p, q, w) = (&at[k], &at[k + 1], width(k));
+                let ([r0, dr0], [r1, dr1]) = (rs[k], rs[k + 1]);
+                [
+                    hermite_integral(w, p.sigma, p.dsigma, q.sigma, q.dsigma),
+                    hermite_integral(w, r0, dr0, r1, dr1),
+                ]
+            })
+            .collect();
         // Integrals from the conductance minimum, where the device is off, so that off-state
         // differences are between small numbers.
         let kmin = (0..m)
-            .min_by(|&i, &j| sigma[i].total_cmp(&sigma[j]))
+            .min_by(|&i, &j| at[i].sigma.total_cmp(&at[j].sigma))
             .unwrap_or(0);
-        let mut s = vec![0.0; m];
-        let mut a = vec![0.0; m];
-        let mut b = vec![0.0; m];
-        // Exact integral of the Hermite cubic through (f, f') at both ends of an interval of
-        // width h.
-        let step = |h: f64, f0: f64, d0: f64, f1: f64, d1: f64| {
-            0.5 * h * (f0 + f1) + h * h / 12.0 * (d0 - d1)
-        };
-        // Interval widths: the core's exactly h, as before the extensions existed.
-        let width = |k: usize| {
-            if (core_lo..core_hi).contains(&k) {
-                h
-            } else {
-                knot_u[k + 1] - knot_u[k]
-            }
-        };
-        let ra = |k: usize| rho[k] * sigma[k];
-        let dra = |k: usize| drho[k] * sigma[k] + rho[k] * dsigma[k];
-        // ∫ S ρσ du over interval k, given S at its ends. In the core: the Hermite cubic
-        // through S ρσ and its derivative. In the extensions, whose wide steps need more: the
-        // integral of the product of the interpolants of S (quintic) and of ρσ (cubic), by
-        // four-point Gauss-Legendre.
-        let b_step = |k: usize, s0: f64, s1: f64| {
-            let w = width(k);
-            if (core_lo..core_hi).contains(&k) {
-                let (f0, f1) = (s0 * ra(k), s1 * ra(k + 1));
-                let (d0, d1) = (
-                    sigma[k] * ra(k) + s0 * dra(k),
-                    sigma[k + 1] * ra(k + 1) + s1 * dra(k + 1),
-                );
-                step(w, f0, d0, f1, d1)
-            } else {
-                let mut sum = 0.0;
-                for (t, g) in GL_T.iter().zip(GL_W) {
-                    let (sv, _) = hermite5(
-                        *t,
-                        w,
-                        1.0 / w,
-                        [s0, sigma[k], dsigma[k]],
-                        [s1, sigma[k + 1], dsigma[k + 1]],
-                    );
-                    let (pv, _) = hermite(*t, w, 1.0 / w, ra(k), dra(k), ra(k + 1), dra(k + 1));
-                    sum += g * sv * pv;
+        // The running sums stay in registers (a sum read back from the record just written
+        // would wait for the store on every knot).
+        let (mut s, mut a) = (0.0, 0.0);
+        for (v, [ds, da]) in at[kmin + 1..].iter_mut().zip(&steps[kmin..]) {
+            s += ds;
+            a += da;
+            (v.s, v.a) = (s, a);
+        }
+        let (mut s, mut a) = (0.0, 0.0);
+        for (v, [ds, da]) in at[..kmin].iter_mut().zip(&steps[..kmin]).rev() {
+            s -= ds;
+            a -= da;
+            (v.s, v.a) = (s, a);
+        }
+        // Each interval's ∫ S ρσ du. In the core: the Hermite cubic through S ρσ and its
+        // derivative. In the extensions, whose wide steps need more: the integral of the
+        // product of the interpolants of S (quintic) and of ρσ (cubic), by four-point
+        // Gauss-Legendre.
+        let b_steps: Vec<f64> = (0..m - 1)
+            .map(|k| {
+                let (p, q, w) = (&at[k], &at[k + 1], width(k));
+                let ([r0, dr0], [r1, dr1]) = (rs[k], rs[k + 1]);
+                if core(k) {
+                    let (f0, f1) = (p.s * r0, q.s * r1);
+                    let (d0, d1) = (p.sigma * r0 + p.s * dr0, q.sigma * r1 + q.s * dr1);
+                    hermite_integral(w, f0, d0, f1, d1)
+                } else {
+                    let mut sum = 0.0;
+                    for (t, g) in GL_T.iter().zip(GL_W) {
+                        let (sv, _) = hermite5(
+                            *t,
+                            w,
+                            1.0 / w,
+                            [p.s, p.sigma, p.dsigma],
+                            [q.s, q.sigma, q.dsigma],
+                        );
+                        let (pv, _) = hermite(*t, w, 1.0 / w, r0, dr0, r1, dr1);
+                        sum += g * sv * pv;
+                    }
+                    sum * w
                 }
-                sum * w
-            }
-        };
-        for k in kmin..m - 1 {
-            let w = width(k);
-            s[k + 1] = s[k] + step(w, sigma[k], dsigma[k], sigma[k + 1], dsigma[k + 1]);
-            a[k + 1] = a[k] + step(w, ra(k), dra(k), ra(k + 1), dra(k + 1));
-            b[k + 1] = b[k] + b_step(k, s[k], s[k + 1]);
+            })
+            .collect();
+        let mut b = 0.0;
+        for (v, db) in at[kmin + 1..].iter_mut().zip(&b_steps[kmin..]) {
+            b += db;
+            v.b = b;
         }
-        for k in (1..=kmin).rev() {
-            let w = width(k - 1);
-            s[k - 1] = s[k] - step(w, sigma[k - 1], dsigma[k - 1], sigma[k], dsigma[k]);
-            a[k - 1] = a[k] - step(w, ra(k - 1), dra(k - 1), ra(k), dra(k));
-            b[k - 1] = b[k] - b_step(k - 1, s[k - 1], s[k]);
+        let mut b = 0.0;
+        for (v, db) in at[..kmin].iter_mut().zip(&b_steps[..kmin]).rev() {
+            b -= db;
+            v.b = b;
         }
-        if !s.iter().chain(&a).chain(&b).all(|v| v.is_finite()) {
+        for (v, [r, dr]) in at.iter_mut().zip(&rs) {
+            // B'' = σ ρσ + S (ρσ)'.
+            v.b2 = v.sigma * r + v.s * dr;
+        }
+        if !at
+            .iter()
+            .all(|v| [v.s, v.a, v.b].iter().all(|x| x.is_finite()))
+        {
             return Err(
                 "the tabulated integrals of the channel conductance and charge overflow: check \
                  the mobilities, masses and degeneracies"
                     .into(),
             );
         }
+        Ok(Tables {
+            u0: solution.u0,
+            h,
+            inv_h: 1.0 / h,
+            core_intervals: (core_hi - core_lo) as f64,
+            core_lo,
+            core_hi,
+            solution,
+            at,
+        })
+    }
+}
+
+/// The tables of `card`'s stack and mobilities with extensions reaching at least `reach` V,
+/// built once and shared while any model uses them; their solution ([`Solution`]) is shared
+/// by every card that differs from `card` in its mobilities alone, and kept while any of
+/// their tables is.
+fn shared_tables(card: &SheetFetCard, reach: f64) -> Result<Arc<Tables>, String> {
+    type Cache<T> = Mutex<Vec<((SheetFetCard, f64), Weak<T>)>>;
+    static TABLES: Cache<Tables> = Mutex::new(Vec::new());
+    static SOLUTIONS: Cache<Solution> = Mutex::new(Vec::new());
+    let key = (card.stack_key(), reach);
+    if let Some(t) = find(&TABLES, &key) {
+        return Ok(t);
+    }
+    let free = (
+        SheetFetCard {
+            electron_mobility: 0.0,
+            hole_mobility: 0.0,
+            ..key.0.clone()
+        },
+        reach,
+    );
+    let solution = match find(&SOLUTIONS, &free) {
+        Some(s) => s,
+        None => {
+            let s = Arc::new(Solution::solve(card, reach)?);
+            lock(&SOLUTIONS).push((free, Arc::downgrade(&s)));
+            s
+        }
+    };
+    let tables = Arc::new(Tables::integrate(
+        solution,
+        card.electron_mobility,
+        card.hole_mobility,
+    )?);
+    lock(&TABLES).push((key, Arc::downgrade(&tables)));
+    Ok(tables)
+}
+
+impl SheetModel {
+    /// Solves the stack on its grid and integrates the tables.
+    ///
+    /// Fails, with a message, for a card that [`SheetFetCard::validate`] refuses and for a
+    /// valid card whose stack the tables cannot hold: a flat-band point beyond ±1e6 V, a local
+    /// solve that does not converge (a Dirac gate that cannot carry the gate charge within
+    /// ±20 eV of its neutral point), a non-finite value, or more than 64 local evaluations per
+    /// grid point on average. The tables never exceed [`MAX_TABLE_POINTS`] points.
+    pub fn build(card: &SheetFetCard) -> Result<SheetModel, String> {
+        let solution = Solution::solve(card, U_REACH)?;
+        let tables = Tables::integrate(
+            Arc::new(solution),
+            card.electron_mobility,
+            card.hole_mobility,
+        )?;
         Ok(SheetModel {
-            stack,
+            stack: Stack::new(card),
+            tables: Arc::new(tables),
             shift: 0.0,
-            tables: Arc::new(Tables {
-                u0,
-                h,
-                inv_h: 1.0 / h,
-                core_intervals: (n - 1) as f64,
-                core_lo,
-                core_hi,
-                left_u,
-                right_u,
-                at: (0..m)
-                    .map(|k| KnotValues {
-                        sigma: sigma[k],
-                        dsigma: dsigma[k],
-                        rho: rho[k],
-                        drho: drho[k],
-                        s: s[k],
-                        a: a[k],
-                        b: b[k],
-                        b2: sigma[k] * ra(k) + s[k] * dra(k),
-                    })
-                    .collect(),
-            }),
         })
     }
 
@@ -1891,49 +2082,48 @@ impl SheetModel {
     /// device); those tables reach [`MAX_SHARED_SHIFT`] further, so every card keeps its
     /// ±[`U_REACH`]. The grid sits at the same place relative to each card's midgap point, so
     /// results agree with tables of the card's own to rounding.
+    ///
+    /// The mobilities enter only as the weights of the two carriers' conductances
+    /// ([`Carriers`]), so the stack's solution at the knots is shared by cards that differ in
+    /// their mobilities too, and each pair of mobilities costs one pass over the knots
+    /// (`Tables::integrate`) instead of a solve: a mobility spread builds no solution per
+    /// device either. The tables are then the ones a solve for the card alone gives, bit for
+    /// bit.
     pub fn shared(card: &SheetFetCard) -> Result<Arc<SheetModel>, String> {
         static MODELS: Mutex<Vec<(SheetFetCard, Weak<SheetModel>)>> = Mutex::new(Vec::new());
-        static TABLES: Mutex<Vec<(SheetFetCard, Weak<Tables>)>> = Mutex::new(Vec::new());
         let key = card.stack_key();
         if let Some(m) = find(&MODELS, &key) {
             return Ok(m);
         }
-        let model = match card.gate {
+        card.validate()?;
+        let base = match card.gate {
             Gate::Metal { work_function }
                 if (work_function - card.electron_affinity).abs() <= MAX_SHARED_SHIFT =>
             {
-                card.validate()?;
                 let base = SheetFetCard {
                     gate: Gate::Metal {
                         work_function: card.electron_affinity,
                     },
                     ..card.clone()
                 };
-                let base_key = base.stack_key();
-                let tables = match find(&TABLES, &base_key) {
-                    Some(t) => Some(t),
-                    None => SheetModel::build_reaching(&base, U_REACH + MAX_SHARED_SHIFT)
-                        .ok()
-                        .map(|m| {
-                            lock(&TABLES).push((base_key, Arc::downgrade(&m.tables)));
-                            m.tables
-                        }),
-                };
-                match tables {
-                    Some(tables) => SheetModel {
-                        stack: Stack::new(card),
-                        tables,
-                        shift: work_function - card.electron_affinity,
-                    },
-                    // Tables for `W = χ` that cannot be built (a stack that only the card's
-                    // own work function keeps inside the solvable range): the card's own,
-                    // with its own message if they fail too.
-                    None => SheetModel::build(card)?,
-                }
+                shared_tables(&base, U_REACH + MAX_SHARED_SHIFT)
+                    .ok()
+                    .map(|t| (t, work_function - card.electron_affinity))
             }
-            _ => SheetModel::build(card)?,
+            _ => None,
         };
-        let model = Arc::new(model);
+        let (tables, shift) = match base {
+            Some(shared) => shared,
+            // A card that cannot share tables for `W = χ`, or one whose tables for `W = χ`
+            // cannot be built (a stack that only the card's own work function keeps inside
+            // the solvable range): tables of its own, with its own message if they fail too.
+            None => (shared_tables(card, U_REACH)?, 0.0),
+        };
+        let model = Arc::new(SheetModel {
+            stack: Stack::new(card),
+            tables,
+            shift,
+        });
         lock(&MODELS).push((key, Arc::downgrade(&model)));
         Ok(model)
     }
@@ -1978,17 +2168,14 @@ impl SheetModel {
     /// degenerate channel under a metal gate, but not the solved physics. A caller that needs
     /// to know compares its `V_G - V_D` and `V_G - V_S` with this range.
     pub fn valid_u_range(&self) -> (f64, f64) {
-        let t = &self.tables;
-        (
-            t.left_u[0] + self.shift,
-            t.right_u[t.right_u.len() - 1] + self.shift,
-        )
+        let u = &self.tables.solution.u;
+        (u[0] + self.shift, u[u.len() - 1] + self.shift)
     }
 
     /// The number of knots of the two extensions beyond the core grid together, at most
     /// 2 ([`MAX_EXTENSION_POINTS`] - 1).
     pub fn extension_points(&self) -> usize {
-        self.tables.left_u.len() + self.tables.right_u.len() - 2
+        self.tables.at.len() - self.table_points()
     }
 
     /// Thermal voltage kT/q (V).
@@ -2690,6 +2877,180 @@ mod evaluation_branches {
                         a.d[j]
                     );
                 }
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod mobility_sharing {
+    use super::*;
+    use crate::mobility::DensityDependence;
+
+    /// Stacks of different kinds: the default, traps and dopants, both density-dependent
+    /// mobilities, a 0.3 eV gap (both carriers matter far from midgap), a Dirac gate, a metal
+    /// gate too far from the channel's affinity to share tables across work functions.
+    fn stacks() -> Vec<SheetFetCard> {
+        let base = SheetFetCard::default();
+        let mut density = base.clone();
+        density.mobility.electron.density = Some(DensityDependence {
+            reference_density: 3e16,
+            exponent: 1.2,
+        });
+        density.mobility.hole.density = Some(DensityDependence {
+            reference_density: 1e16,
+            exponent: 0.8,
+        });
+        vec![
+            base.clone(),
+            SheetFetCard {
+                trap_density: 1e16,
+                donor_density: 1e15,
+                fixed_charge_density: -3e15,
+                ..base.clone()
+            },
+            density,
+            SheetFetCard {
+                band_gap: 0.3,
+                ..base.clone()
+            },
+            SheetFetCard {
+                gate: Gate::Dirac {
+                    fermi_velocity: 1e6,
+                    half_gap: 0.015,
+                    gap_shift: 0.0,
+                    degeneracy: 4.0,
+                    neutral_work_function: 4.5,
+                    residual_density: 1e15,
+                },
+                ..base.clone()
+            },
+            SheetFetCard {
+                gate: Gate::Metal { work_function: 7.5 },
+                ..base
+            },
+        ]
+    }
+
+    /// Mobility pairs (m²/(V s)) up to the ratio the extensions are held at, both ways.
+    const PAIRS: [(f64, f64); 4] = [(100e-4, 100e-4), (40e-4, 5e-4), (1e-4, 1e-1), (1e-1, 1e-4)];
+
+    fn with(card: &SheetFetCard, (mu_n, mu_p): (f64, f64)) -> SheetFetCard {
+        SheetFetCard {
+            electron_mobility: mu_n,
+            hole_mobility: mu_p,
+            ..card.clone()
+        }
+    }
+
+    fn bits(s: &Solution) -> Vec<u64> {
+        s.at.iter()
+            .flat_map(|k| {
+                let c = k.carriers;
+                [c.n, c.dn, c.p, c.dp, k.du_dxi, k.rho, k.drho]
+            })
+            .chain(s.u.iter().copied())
+            .map(f64::to_bits)
+            .collect()
+    }
+
+    /// The knots and everything solved at them are the same, bit for bit, whatever the
+    /// mobilities: the solution a stack shares between mobility pairs is the one each pair
+    /// would have solved alone.
+    #[test]
+    fn the_solution_does_not_depend_on_the_mobilities() {
+        for card in stacks() {
+            let first = bits(&Solution::solve(&with(&card, PAIRS[0]), U_REACH).unwrap());
+            for pair in &PAIRS[1..] {
+                let other = bits(&Solution::solve(&with(&card, *pair), U_REACH).unwrap());
+                assert!(first == other, "{:?} with {pair:?}", card.gate);
+            }
+        }
+    }
+
+    /// Cards that differ in their mobilities (and, under a metal gate near the channel's
+    /// affinity, in their work function) share one solution, and each gets the tables a
+    /// solve of its own gives, bit for bit.
+    #[test]
+    fn mobility_variants_share_one_solution_and_keep_their_tables() {
+        for card in stacks() {
+            let models: Vec<_> = PAIRS
+                .iter()
+                .map(|&pair| SheetModel::shared(&with(&card, pair)).unwrap())
+                .collect();
+            let solution = &models[0].tables.solution;
+            // What `shared` solves: the card at `W = χ` with a wider reach where a metal gate
+            // lets cards share tables across work functions, else the card itself.
+            let (base, reach) = match card.gate {
+                Gate::Metal { work_function }
+                    if (work_function - card.electron_affinity).abs() <= MAX_SHARED_SHIFT =>
+                {
+                    let gate = Gate::Metal {
+                        work_function: card.electron_affinity,
+                    };
+                    (
+                        SheetFetCard {
+                            gate,
+                            ..card.clone()
+                        },
+                        U_REACH + MAX_SHARED_SHIFT,
+                    )
+                }
+                _ => (card.clone(), U_REACH),
+            };
+            for (model, &pair) in models.iter().zip(&PAIRS) {
+                assert!(Arc::ptr_eq(solution, &model.tables.solution));
+                let alone = Solution::solve(&with(&base, pair), reach).unwrap();
+                let own = Tables::integrate(Arc::new(alone), pair.0, pair.1).unwrap();
+                let flat = |t: &Tables| -> Vec<u64> {
+                    t.at.iter()
+                        .flat_map(|v| [v.sigma, v.dsigma, v.rho, v.drho, v.s, v.a, v.b, v.b2])
+                        .map(f64::to_bits)
+                        .collect()
+                };
+                assert!(
+                    flat(&own) == flat(&model.tables),
+                    "{:?} with {pair:?}",
+                    card.gate
+                );
+            }
+        }
+    }
+
+    /// Beyond the core grid the knots are placed without the mobilities, each carrier's σ
+    /// judged against the larger carrier's over `MOBILITY_RATIO`: for pairs within that ratio
+    /// either way, the tabulated σ and dσ/du at the points each interval was checked at stay
+    /// within twice the extensions' tolerance of the direct solve (`Scales::misfit`). The
+    /// 0.3 eV gap keeps both carriers in play far from midgap. (For these stacks ρ's check
+    /// and the step cap place most knots, so σ would pass even without its own check; the
+    /// test guards the result whatever places the knots.)
+    #[test]
+    fn extensions_hold_sigma_for_any_mobilities_within_the_ratio() {
+        for card in &stacks()[..4] {
+            for pair in PAIRS {
+                let model = SheetModel::build(&with(card, pair)).unwrap();
+                let t = &model.tables;
+                let u = &t.solution.u;
+                let outside = (0..t.core_lo).chain(t.core_hi..u.len() - 1);
+                let mut worst: f64 = 0.0;
+                for k in outside {
+                    for frac in [0.25, 0.5, 0.75] {
+                        let x = u[k] + frac * (u[k + 1] - u[k]);
+                        let direct = model.local_state(x);
+                        let (g, dg) = t.sigma(x);
+                        let scale = direct.sigma.abs().max(1e-300);
+                        let dscale = direct.dsigma_du.abs().max(1e-300);
+                        worst = worst
+                            .max((g - direct.sigma).abs() / scale)
+                            .max((dg - direct.dsigma_du).abs() / dscale);
+                    }
+                }
+                // Measured: at most 6.5e-9 (the 0.3 eV gap at a ratio of 1e3).
+                assert!(
+                    worst <= 2.0 * EXTENSION_TOLERANCE,
+                    "band gap {} eV, {pair:?}: {worst:e}",
+                    card.band_gap
+                );
             }
         }
     }
