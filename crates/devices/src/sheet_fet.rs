@@ -148,8 +148,10 @@ use std::sync::{Arc, Mutex, Weak};
 
 mod ends;
 mod insight;
+pub mod traps;
 
 use ends::Ends;
+pub use traps::{TrapGroup, TrapKind};
 
 /// The gate electrode.
 #[derive(Clone, Debug, PartialEq)]
@@ -269,6 +271,8 @@ pub struct SheetFetCard {
     /// How the mobilities are obtained ([`crate::mobility`]); the default uses
     /// `electron_mobility` and `hole_mobility` as given.
     pub mobility: MobilityOptions,
+    /// Slow traps with their own kinetics ([`traps`]); empty for none.
+    pub slow_traps: Vec<TrapGroup>,
 }
 
 impl Default for SheetFetCard {
@@ -306,6 +310,7 @@ impl Default for SheetFetCard {
             drain_resistance: 0.0,
             overlap_capacitance: 0.0,
             mobility: MobilityOptions::default(),
+            slow_traps: Vec::new(),
         }
     }
 }
@@ -568,6 +573,7 @@ impl SheetFetCard {
             }
         }
         crate::mobility::resolve(self)?;
+        traps::validate(self)?;
         Ok(())
     }
 
@@ -590,6 +596,7 @@ impl SheetFetCard {
             source_resistance: 0.0,
             drain_resistance: 0.0,
             overlap_capacitance: 0.0,
+            slow_traps: Vec::new(),
             insulator: self
                 .insulator
                 .iter()
@@ -2116,6 +2123,7 @@ pub struct SheetFet {
     /// The `|V_DS|` (V) below which the charges take the small-V_DS form.
     small_vds: f64,
     mobility: MobilityReport,
+    traps: traps::Traps,
 }
 
 const PINS: &[&str] = &["drain", "gate", "source"];
@@ -2161,6 +2169,10 @@ impl SheetFet {
         };
         let g = |r: f64| if r > 0.0 { card.width / r } else { 0.0 };
         let small_vds = SMALL_VDS_VT * model.stack.vt;
+        let first_trap = 3
+            + usize::from(card.drain_resistance > 0.0)
+            + usize::from(card.source_resistance > 0.0);
+        let traps = traps::Traps::new(card, &model, card.width * card.length, first_trap);
         Ok(SheetFet {
             model,
             area: card.width * card.length,
@@ -2172,6 +2184,7 @@ impl SheetFet {
             overlap: card.overlap_capacitance * card.width,
             small_vds,
             mobility,
+            traps,
         })
     }
 
@@ -2332,12 +2345,12 @@ impl Element for SheetFet {
     }
 
     fn internals(&self) -> &'static [Internal] {
-        match self.layout() {
+        self.traps.internals(match self.layout() {
             (Some(_), Some(_)) => BOTH,
             (Some(_), None) => DRAIN_ONLY,
             (None, Some(_)) => SOURCE_ONLY,
             (None, None) => &[],
-        }
+        })
     }
 
     fn has_charge(&self) -> bool {
@@ -2352,7 +2365,9 @@ impl Element for SheetFet {
         let (di, si) = self.layout();
         let d = di.unwrap_or(0);
         let s = si.unwrap_or(2);
-        let ch = self.intrinsic(x[d], x[1], x[s]);
+        // Slow traps shift the channel's gate drive by their charge ([`traps`]).
+        let vg = x[1] + self.traps.shift(x);
+        let ch = self.intrinsic(x[d], vg, x[s]);
         let cols = [d, 1, s];
         out.add_f(d, ch.current.v);
         out.add_f(s, -ch.current.v);
@@ -2376,6 +2391,7 @@ impl Element for SheetFet {
         if let Some(si) = si {
             out.branch_current(2, si, self.g_source * (x[2] - x[si]), self.g_source);
         }
+        self.traps.stamp(&self.model, x, vg, &ch, cols, out);
     }
 
     fn details(&self, x: &[f64]) -> Vec<lamina_engine::Detail> {
