@@ -335,3 +335,64 @@ fn island_charge_is_conserved_with_slow_traps() {
     }
     assert!(swing > 0.3, "the gate must move: swing {swing} V");
 }
+
+/// The hysteresis width of `lamina iv --sweep-rate RATE` (both ways) on a device with one
+/// trap level of τ = 1 ms, at 0.1 V drain bias.
+fn width_at(rate: &str) -> f64 {
+    let out = common::lamina_ok(&[
+        "iv",
+        "tests/corpus/good/slow-traps.lam",
+        "--vgs",
+        "-0.5:1:0.05",
+        "--vds",
+        "0.1",
+        "--sweep-rate",
+        rate,
+        "--json",
+    ]);
+    let j: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    j["sweep"]["hysteresis"][0]["width_v"]
+        .as_f64()
+        .unwrap_or_else(|| panic!("no width at {rate}: {}", j["sweep"]))
+}
+
+/// The width vanishes for sweeps much slower than the traps (they follow in equilibrium) and
+/// much faster (they stay as they were at rest), and peaks where the sweep takes about a time
+/// constant (the usual picture of trap-induced hysteresis; e.g. Y. Y. Illarionov et al., 2D
+/// Mater. 3, 035004 (2016), recalled, not checked). The 1.5 V sweep takes 150 s, 1.5 ms and
+/// 1.5 µs at these rates.
+#[test]
+fn hysteresis_vanishes_for_slow_and_fast_sweeps_and_peaks_between() {
+    let slow = width_at("10 mV/s");
+    let middle = width_at("1 kV/s");
+    let fast = width_at("1 MV/s");
+    assert!(middle > 0.05, "width {middle} V at 1 kV/s");
+    assert!(slow.abs() < 0.01 * middle, "width {slow} V at 10 mV/s");
+    assert!(fast.abs() < 0.05 * middle, "width {fast} V at 1 MV/s");
+    // Traps that fill on the way up hold the threshold higher on the way down (n branch).
+    assert!(middle > 0.0);
+}
+
+/// A direction or hysteresis current without a sweep rate is a usage error (exit 2), and a
+/// rate that is not a voltage per time says so.
+#[test]
+fn sweep_flags_are_checked() {
+    let base = [
+        "iv",
+        "tests/corpus/good/slow-traps.lam",
+        "--vgs",
+        "0:1:0.1",
+        "--vds",
+        "0.1",
+    ];
+    for extra in [
+        &["--direction", "both"][..],
+        &["--hysteresis-current", "1uA"][..],
+        &["--sweep-rate", "1 V"][..],
+        &["--sweep-rate", "-1 V/s"][..],
+    ] {
+        let args: Vec<&str> = base.iter().chain(extra).copied().collect();
+        let out = common::lamina(&args);
+        assert_eq!(out.status.code(), Some(2), "{extra:?}: {:?}", out);
+    }
+}

@@ -5,10 +5,12 @@ use super::Common;
 use crate::design;
 use crate::error::JobError;
 use crate::iv::{
-    dense_vds, iv_metrics, read_device, show, unsigned_zero, Device, IvConfig, IvMetrics, IvPoint,
-    Polarity, METRIC_DEFINITIONS,
+    dense_vds, hysteresis, iv_metrics, read_device, run_swept, show, unsigned_zero, Device,
+    Direction, Hysteresis, IvConfig, IvMetrics, IvPoint, Leg, Polarity, SweptPoint,
+    METRIC_DEFINITIONS,
 };
 use crate::output::{csv, ensure_dir, write_whole as write_file, OutputSet};
+use crate::plot::{draw, Axis, Figure, Mark};
 use crate::{note, out};
 use lamina_netlist::units::Dim;
 use serde_json::{json, Map, Value};
@@ -21,6 +23,17 @@ pub enum PolarityFlag {
     N,
     /// Holes: the branch at negative gate voltage.
     P,
+}
+
+/// Direction of a rate-aware sweep.
+#[derive(clap::ValueEnum, Clone, Copy, Debug, PartialEq, Eq)]
+pub enum DirectionFlag {
+    /// From the lowest V_GS to the highest.
+    Up,
+    /// From the highest V_GS to the lowest.
+    Down,
+    /// Up, then down again: the hysteresis width is reported.
+    Both,
 }
 
 /// Flags of `lamina iv`.
@@ -50,6 +63,18 @@ pub struct Args {
     /// V_GS of I_off. Default: the V_GS of the branch's smallest |I_D|.
     #[arg(long, value_name = "VGS", allow_hyphen_values = true)]
     pub off_bias: Option<String>,
+    /// Ramp the gate at this rate, a voltage per time (`10 V/s`, `2 kV/s`), in a transient
+    /// starting at rest at the first V_GS, instead of taking each point at rest (DC): charge
+    /// that lags the gate (a 2D-channel FET's slow traps) then shows.
+    #[arg(long, value_name = "RATE")]
+    pub sweep_rate: Option<String>,
+    /// Direction of the ramped sweep (default both: up, then down, with the hysteresis width).
+    #[arg(long, value_enum, requires = "sweep_rate")]
+    pub direction: Option<DirectionFlag>,
+    /// |I_D| at which the hysteresis width of a both-way sweep is read, in amperes unless a
+    /// unit is written. Default 100 nA x W/L (the threshold criterion).
+    #[arg(long, value_name = "CURRENT", requires = "sweep_rate")]
+    pub hysteresis_current: Option<String>,
     /// `--set`, `--json` and `--out`.
     #[command(flatten)]
     pub common: Common,
@@ -72,6 +97,9 @@ pub fn run(a: Args) -> Result<(), JobError> {
         current_floor,
         on_bias,
         off_bias,
+        sweep_rate,
+        direction,
+        hysteresis_current,
         common: Common { set, json, out },
     } = a;
     let set_out = OutputSet::begin_opt(out.as_deref())?;
@@ -84,18 +112,34 @@ pub fn run(a: Args) -> Result<(), JobError> {
             .transpose()
             .map_err(JobError::Usage)
     };
-    let current_floor_a = current_floor
-        .as_deref()
-        .map(|t| {
-            let f = crate::iv::parse_one("--current-floor", t, "A", Dim::CURRENT)?;
-            if f > 0.0 && f.is_finite() {
-                Ok(f)
-            } else {
-                Err(format!("--current-floor {t}: give a positive current"))
-            }
-        })
-        .transpose()
-        .map_err(JobError::Usage)?;
+    let positive = |flag: &str, t: &Option<String>, unit: &str, dim: Dim, what: &str| {
+        t.as_deref()
+            .map(|t| {
+                let f = crate::iv::parse_one(flag, t, unit, dim)?;
+                if f > 0.0 && f.is_finite() {
+                    Ok(f)
+                } else {
+                    Err(format!("{flag} {t}: give a positive {what}"))
+                }
+            })
+            .transpose()
+            .map_err(JobError::Usage)
+    };
+    let current_floor_a = positive(
+        "--current-floor",
+        &current_floor,
+        "A",
+        Dim::CURRENT,
+        "current",
+    )?;
+    let rate = positive("--sweep-rate", &sweep_rate, "V/s", VOLTS_PER_SECOND, "rate")?;
+    let hysteresis_a = positive(
+        "--hysteresis-current",
+        &hysteresis_current,
+        "A",
+        Dim::CURRENT,
+        "current",
+    )?;
     let config = IvConfig {
         polarity: polarity.map(|p| match p {
             PolarityFlag::N => Polarity::N,
@@ -110,6 +154,29 @@ pub fn run(a: Args) -> Result<(), JobError> {
     crate::iv::check_device(&d)
         .map_err(|why| JobError::Invalid(format!("error: {}: {why}", file.display())))?;
     let device = read_device(&d).map_err(JobError::Analysis)?;
+    if let Some(rate) = rate {
+        let direction = match direction.unwrap_or(DirectionFlag::Both) {
+            DirectionFlag::Up => Direction::Up,
+            DirectionFlag::Down => Direction::Down,
+            DirectionFlag::Both => Direction::Both,
+        };
+        let swept = Swept::run(
+            &d,
+            &vg,
+            &vd,
+            direction,
+            rate,
+            &device,
+            &config,
+            hysteresis_a,
+        )?;
+        if let Some(set) = set_out {
+            swept.write(set.dir()).map_err(JobError::Io)?;
+            set.commit()?;
+        }
+        swept.print(json);
+        return Ok(());
+    }
     let points = crate::iv::run_iv(d, &vg, &vd).map_err(JobError::Analysis)?;
     let m = iv_metrics(&points, &device, &config);
     if let Err(why) = &m.ss_min {
@@ -515,4 +582,249 @@ fn output_curves(
         })
         .collect();
     Ok((series, own))
+}
+
+/// A voltage per time (V/s).
+const VOLTS_PER_SECOND: Dim = Dim([0, -1, 1, 0, 0]);
+
+/// A rate-aware sweep and its figures.
+struct Swept {
+    points: Vec<SweptPoint>,
+    direction: Direction,
+    rate_v_per_s: f64,
+    /// The figures of the first leg, as a DC sweep's.
+    metrics: IvMetrics,
+    /// The current the hysteresis is read at (A), and the widths per `V_DS` (both ways only).
+    hysteresis: Option<Result<(f64, Vec<(f64, Result<Hysteresis, String>)>), String>>,
+}
+
+impl Swept {
+    #[allow(clippy::too_many_arguments)]
+    fn run(
+        d: &lamina_netlist::Design,
+        vg: &[f64],
+        vd: &[f64],
+        direction: Direction,
+        rate_v_per_s: f64,
+        device: &Device,
+        config: &IvConfig,
+        current_a: Option<f64>,
+    ) -> Result<Swept, JobError> {
+        let points = run_swept(d, vg, vd, direction, rate_v_per_s).map_err(JobError::Analysis)?;
+        let first = points[0].leg;
+        let leg: Vec<IvPoint> = points
+            .iter()
+            .filter(|s| s.leg == first)
+            .map(|s| s.point)
+            .collect();
+        let metrics = iv_metrics(&leg, device, config);
+        let hysteresis = (direction == Direction::Both).then(|| {
+            let polarity = metrics.branch.as_ref().map_err(Clone::clone)?.polarity;
+            let current = match current_a {
+                Some(c) => c,
+                None => crate::iv::threshold_current(device)?,
+            };
+            Ok((current, hysteresis(&points, polarity, current)))
+        });
+        Ok(Swept {
+            points,
+            direction,
+            rate_v_per_s,
+            metrics,
+            hysteresis,
+        })
+    }
+
+    fn direction_name(&self) -> &'static str {
+        match self.direction {
+            Direction::Up => "up",
+            Direction::Down => "down",
+            Direction::Both => "both",
+        }
+    }
+
+    /// The sweep's own lines: how it ran and the hysteresis.
+    fn text(&self) -> Vec<String> {
+        let mut l = vec![format!(
+            "Ramped sweep: {} at {} V/s, from rest at the first V_GS; the figures above are the {} leg's",
+            self.direction_name(),
+            show(self.rate_v_per_s),
+            self.points[0].leg.name()
+        )];
+        match &self.hysteresis {
+            None => {}
+            Some(Err(why)) => l.push(format!("Hysteresis: not reported: {why}")),
+            Some(Ok((current, rows))) => {
+                l.push(format!(
+                    "Hysteresis at |I_D| = {current:.3e} A (V_GS down leg minus up leg):"
+                ));
+                for (vds, r) in rows {
+                    l.push(match r {
+                        Ok(h) => format!(
+                            "  V_DS = {} V: up {} V, down {} V, width {} V",
+                            show(*vds),
+                            fixed(h.vgs_up_v, 4),
+                            fixed(h.vgs_down_v, 4),
+                            fixed(h.width_v, 4)
+                        ),
+                        Err(why) => format!("  V_DS = {} V: not reported: {why}", show(*vds)),
+                    });
+                }
+            }
+        }
+        l
+    }
+
+    fn json(&self) -> Value {
+        let mut sweep = json!({
+            "sweep_rate_v_per_s": num(self.rate_v_per_s),
+            "direction": self.direction_name(),
+            "figures_leg": self.points[0].leg.name(),
+        });
+        match &self.hysteresis {
+            None => {}
+            Some(Err(why)) => {
+                sweep["hysteresis"] = Value::Null;
+                sweep["not_reported"] = json!({ "hysteresis": why });
+            }
+            Some(Ok((current, rows))) => {
+                sweep["hysteresis_current_a"] = num(*current);
+                sweep["hysteresis"] = rows
+                    .iter()
+                    .map(|(vds, r)| match r {
+                        Ok(h) => json!({
+                            "vds_v": num(*vds),
+                            "vgs_up_v": num(h.vgs_up_v),
+                            "vgs_down_v": num(h.vgs_down_v),
+                            "width_v": num(h.width_v),
+                        }),
+                        Err(why) => {
+                            json!({ "vds_v": num(*vds), "width_v": null, "not_reported": why })
+                        }
+                    })
+                    .collect();
+            }
+        }
+        sweep["definitions"] = json!({
+            "sweep_rate_v_per_s": "the gate ramps at this rate through the V_GS grid in a transient that starts at rest (the operating point) at the first V_GS",
+            "hysteresis_current_a": "the |I_D| the hysteresis is read at: --hysteresis-current, default 100 nA x W/L",
+            "width_v": "V_GS where the down leg's |I_D| reaches hysteresis_current_a minus where the up leg's does, each going out along the branch from its smallest current and interpolated in log |I_D|",
+            "id": "the current the drain source supplies: channel current plus the displacement current of the drain's charge at the sweep rate",
+        });
+        sweep
+    }
+
+    fn print(&self, as_json: bool) {
+        if as_json {
+            let pts: Vec<Value> = self
+                .points
+                .iter()
+                .map(|s| {
+                    json!({
+                        "sweep": s.leg.name(),
+                        "time_s": s.time_s,
+                        "vgs": s.point.vgs,
+                        "vds": s.point.vds,
+                        "id": s.point.id,
+                    })
+                })
+                .collect();
+            out!(
+                "{}",
+                json!({ "points": pts, "metrics": metrics_json(&self.metrics), "sweep": self.json() })
+            );
+            return;
+        }
+        out!(
+            "{:>10} {:>10} {:>6} {:>13} {:>16}   (model estimate)",
+            "V_GS (V)",
+            "V_DS (V)",
+            "sweep",
+            "time (s)",
+            "I_D (A)"
+        );
+        for s in &self.points {
+            out!(
+                "{:>10} {:>10} {:>6} {:>13} {:>16}",
+                fixed(s.point.vgs, 4),
+                fixed(s.point.vds, 4),
+                s.leg.name(),
+                sci(s.time_s, 5),
+                sci(s.point.id, 6)
+            );
+        }
+        for line in metrics_text(&self.metrics).into_iter().chain(self.text()) {
+            out!("{line}");
+        }
+    }
+
+    /// `iv-up.csv` and `iv-down.csv` (the legs run), `summary.json` and the `hysteresis`
+    /// figure: |I_D| against V_GS, one series per leg and V_DS, the width's ends marked.
+    fn write(&self, dir: &Path) -> Result<(), String> {
+        ensure_dir(dir)?;
+        for leg in [Leg::Up, Leg::Down] {
+            let mine: Vec<&SweptPoint> = self.points.iter().filter(|s| s.leg == leg).collect();
+            if mine.is_empty() {
+                continue;
+            }
+            let rows = mine
+                .iter()
+                .map(|s| vec![s.time_s, s.point.vgs, s.point.vds, s.point.id]);
+            write_file(
+                &dir.join(format!("iv-{}.csv", leg.name())),
+                csv(&["time_s", "vgs_v", "vds_v", "id_a"], rows).as_bytes(),
+            )?;
+        }
+        let mut j = json!({ "metrics": metrics_json(&self.metrics), "sweep": self.json() });
+        j["caution"] = json!(super::CAUTION);
+        write_file(&dir.join("summary.json"), format!("{j}\n").as_bytes())?;
+        let title = match &self.hysteresis {
+            Some(Ok((_, rows))) => match rows.iter().find_map(|(_, r)| r.as_ref().ok()) {
+                Some(h) => format!(
+                    "hysteresis {} at {}/s (model estimate)",
+                    crate::plot::engineering(h.width_v, "V"),
+                    crate::plot::engineering(self.rate_v_per_s, "V")
+                ),
+                None => "ramped sweep (model estimate)".to_string(),
+            },
+            _ => format!(
+                "ramped sweep at {}/s (model estimate)",
+                crate::plot::engineering(self.rate_v_per_s, "V")
+            ),
+        };
+        let mut f = Figure::new(&title, Axis::new("V_GS", "V"), Axis::log("|I_D|", "A"));
+        let mut vds: Vec<f64> = self.points.iter().map(|s| s.point.vds).collect();
+        vds.sort_by(f64::total_cmp);
+        vds.dedup();
+        for &v in &vds {
+            for leg in [Leg::Up, Leg::Down] {
+                let pts: Vec<(f64, f64)> = self
+                    .points
+                    .iter()
+                    .filter(|s| s.leg == leg && s.point.vds == v)
+                    .map(|s| (s.point.vgs, s.point.id.abs()))
+                    .collect();
+                if !pts.is_empty() {
+                    f.series.push(crate::plot::Series::line(
+                        &format!(
+                            "{}, V_DS = {}",
+                            leg.name(),
+                            crate::plot::engineering(v, "V")
+                        ),
+                        pts,
+                    ));
+                }
+            }
+        }
+        if let Some(Ok((current, rows))) = &self.hysteresis {
+            for h in rows.iter().filter_map(|(_, r)| r.as_ref().ok()) {
+                let at = crate::plot::engineering(h.vds_v, "V");
+                for (leg, v) in [("up", h.vgs_up_v), ("down", h.vgs_down_v)] {
+                    f.marks
+                        .push(Mark::Point((v, *current), format!("{leg} {at}")));
+                }
+            }
+        }
+        draw(&dir.join("hysteresis"), &f)
+    }
 }
