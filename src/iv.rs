@@ -26,6 +26,11 @@
 //! `ln(10) kT/q` at the card's temperature (S. M. Sze and K. K. Ng, Physics of Semiconductor
 //! Devices, 3rd ed., 2007, ch. 6): below it by no more than the solver's rounding it is
 //! reported as the limit, below it by more it is refused.
+//!
+//! # Rate-aware sweeps
+//! [`run_swept`] ramps the gate at a stated rate through the grid in a transient (up, down or
+//! both ways) instead of solving each point at rest, so charge that lags the gate (slow traps)
+//! shows; [`hysteresis`] reads the width of a both-way sweep at a stated current.
 
 use lamina_devices::physics::{K_B, Q};
 use lamina_devices::SheetFet;

@@ -112,33 +112,14 @@ pub fn run(a: Args) -> Result<(), JobError> {
             .transpose()
             .map_err(JobError::Usage)
     };
-    let positive = |flag: &str, t: &Option<String>, unit: &str, dim: Dim, what: &str| {
-        t.as_deref()
-            .map(|t| {
-                let f = crate::iv::parse_one(flag, t, unit, dim)?;
-                if f > 0.0 && f.is_finite() {
-                    Ok(f)
-                } else {
-                    Err(format!("{flag} {t}: give a positive {what}"))
-                }
-            })
-            .transpose()
-            .map_err(JobError::Usage)
-    };
-    let current_floor_a = positive(
-        "--current-floor",
-        &current_floor,
-        "A",
-        Dim::CURRENT,
-        "current",
-    )?;
-    let rate = positive("--sweep-rate", &sweep_rate, "V/s", VOLTS_PER_SECOND, "rate")?;
+    let positive = super::extract::positive;
+    let current_floor_a = positive("--current-floor", &current_floor, "A", Dim::CURRENT)?;
+    let rate = positive("--sweep-rate", &sweep_rate, "V/s", VOLTS_PER_SECOND)?;
     let hysteresis_a = positive(
         "--hysteresis-current",
         &hysteresis_current,
         "A",
         Dim::CURRENT,
-        "current",
     )?;
     let config = IvConfig {
         polarity: polarity.map(|p| match p {
@@ -595,8 +576,11 @@ struct Swept {
     /// The figures of the first leg, as a DC sweep's.
     metrics: IvMetrics,
     /// The current the hysteresis is read at (A), and the widths per `V_DS` (both ways only).
-    hysteresis: Option<Result<(f64, Vec<(f64, Result<Hysteresis, String>)>), String>>,
+    hysteresis: Option<Result<(f64, Widths), String>>,
 }
+
+/// The hysteresis width at each `V_DS`, or why it is not reported there.
+type Widths = Vec<(f64, Result<Hysteresis, String>)>;
 
 impl Swept {
     #[allow(clippy::too_many_arguments)]
