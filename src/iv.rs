@@ -938,16 +938,24 @@ fn ramped_circuit(
 /// at the first `V_GS` (the device at rest there). Charge that lags the gate (a 2D-channel FET's
 /// slow traps) then shows as a difference between the legs; a device without it gives the DC
 /// curve on both, apart from the displacement current of the drain's charge, which the drain
-/// current includes as a measurement's would (`C dV_GS/dt`, small at slow rates).
+/// current includes as a measurement's would (`C dV_GS/dt`, small at slow rates). With a
+/// `stress` the gate first ramps from there to the stress voltage, holds it and ramps back
+/// before the sweep; the samples' times count from the start of the run.
 pub fn run_swept(
     design: &Design,
     vgs: &[f64],
     vds: &[f64],
     direction: Direction,
     rate_v_per_s: f64,
+    stress: Option<Stress>,
 ) -> Result<Vec<SweptPoint>, String> {
     if !(rate_v_per_s > 0.0 && rate_v_per_s.is_finite()) {
         return Err("the sweep rate must be a positive, finite voltage per time".into());
+    }
+    if let Some(st) = stress {
+        if !(st.time_s > 0.0 && st.time_s.is_finite() && st.vgs_v.is_finite()) {
+            return Err("a bias stress needs a finite gate voltage and a positive time".into());
+        }
     }
     let legs = legs(vgs, direction);
     if legs[0].1.len() < 2 {
@@ -959,8 +967,18 @@ pub fn run_swept(
         let skip = usize::from(!path.is_empty());
         path.extend(values.iter().skip(skip).map(|&v| (*leg, v)));
     }
-    let mut times = Vec::with_capacity(path.len());
+    // A stress first: from rest at the sweep's start, ramped to the stress, held, and ramped
+    // back.
+    let mut preamble = Vec::new();
     let mut t = 0.0;
+    if let Some(st) = stress {
+        let ramp = (path[0].1 - st.vgs_v).abs() / rate_v_per_s;
+        preamble.push((0.0, path[0].1));
+        preamble.push((ramp, st.vgs_v));
+        preamble.push((ramp + st.time_s, st.vgs_v));
+        t = 2.0 * ramp + st.time_s;
+    }
+    let mut times = Vec::with_capacity(path.len());
     for (k, &(_, v)) in path.iter().enumerate() {
         if k > 0 {
             t += (v - path[k - 1].1).abs() / rate_v_per_s;
@@ -970,16 +988,17 @@ pub fn run_swept(
     let stop = t;
     let mut out = Vec::with_capacity(vds.len() * (path.len() + 1));
     for &vd in vds {
-        let vertices: Vec<(f64, f64)> = times
-            .iter()
-            .zip(&path)
-            .map(|(&t, &(_, v))| (t, v))
-            .collect();
+        let mut vertices = preamble.clone();
+        for (&t, &(_, v)) in times.iter().zip(&path) {
+            // A stress at the sweep's first V_GS runs straight into it.
+            if vertices.last().is_none_or(|&(tl, _)| t > tl) {
+                vertices.push((t, v));
+            }
+        }
         let (mut sys, vd_src) = ramped_circuit(design, vertices, vd)?;
+        // The integrator steps onto every vertex (a breakpoint), so the samples are exact.
         let mut p = TransientParams::new(stop);
         p.output = Output::Streaming;
-        // No step longer than one grid interval, so no vertex is ever stepped over.
-        p.max_step = Some(stop / (path.len() - 1) as f64);
         let mut samples: Vec<(f64, f64)> = Vec::new();
         let mut record = |t: f64, v: &[f64]| {
             samples.push((t, -v[0]));
@@ -1020,6 +1039,16 @@ pub fn run_swept(
         }
     }
     Ok(out)
+}
+
+/// A bias-stress step before a rate-aware sweep: the device at rest at the sweep's first
+/// `V_GS`, ramped at the sweep rate to `vgs_v`, held there for `time_s` and ramped back.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Stress {
+    /// Stress gate voltage (V).
+    pub vgs_v: f64,
+    /// How long it is held (s).
+    pub time_s: f64,
 }
 
 /// The recorded value at time `t`: the sample there (the integrator steps onto every vertex),

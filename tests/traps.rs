@@ -336,21 +336,25 @@ fn island_charge_is_conserved_with_slow_traps() {
     assert!(swing > 0.3, "the gate must move: swing {swing} V");
 }
 
-/// The hysteresis width of `lamina iv --sweep-rate RATE` (both ways) on a device with one
-/// trap level of τ = 1 ms, at 0.1 V drain bias.
-fn width_at(rate: &str) -> f64 {
-    let out = common::lamina_ok(&[
+/// `lamina iv --json` on the one-level device (τ = 1 ms) over V_GS from -0.5 to 1 V at 0.1 V
+/// drain bias, with `extra` flags.
+fn iv_json(extra: &[&str]) -> serde_json::Value {
+    let mut args = vec![
         "iv",
         "tests/corpus/good/slow-traps.lam",
         "--vgs",
         "-0.5:1:0.05",
         "--vds",
         "0.1",
-        "--sweep-rate",
-        rate,
         "--json",
-    ]);
-    let j: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    ];
+    args.extend_from_slice(extra);
+    serde_json::from_slice(&common::lamina_ok(&args).stdout).unwrap()
+}
+
+/// The hysteresis width of a both-way sweep at `rate`.
+fn width_at(rate: &str) -> f64 {
+    let j = iv_json(&["--sweep-rate", rate]);
     j["sweep"]["hysteresis"][0]["width_v"]
         .as_f64()
         .unwrap_or_else(|| panic!("no width at {rate}: {}", j["sweep"]))
@@ -373,8 +377,9 @@ fn hysteresis_vanishes_for_slow_and_fast_sweeps_and_peaks_between() {
     assert!(middle > 0.0);
 }
 
-/// A direction or hysteresis current without a sweep rate is a usage error (exit 2), and a
-/// rate that is not a voltage per time says so.
+/// A direction or hysteresis current without a sweep rate, a stress without its time, a time
+/// that is not positive and a rate that is not a positive voltage per time are usage errors
+/// (exit 2).
 #[test]
 fn sweep_flags_are_checked() {
     let base = [
@@ -390,9 +395,54 @@ fn sweep_flags_are_checked() {
         &["--hysteresis-current", "1uA"][..],
         &["--sweep-rate", "1 V"][..],
         &["--sweep-rate", "-1 V/s"][..],
+        &["--sweep-rate", "1 V/s", "--stress", "1"][..],
+        &[
+            "--sweep-rate",
+            "1 V/s",
+            "--stress",
+            "1",
+            "--stress-time",
+            "0 s",
+        ][..],
     ] {
         let args: Vec<&str> = base.iter().chain(extra).copied().collect();
         let out = common::lamina(&args);
         assert_eq!(out.status.code(), Some(2), "{extra:?}: {:?}", out);
     }
+}
+
+/// The up leg's V_GS at 100 nA after a gate stress of 1.5 V held for `time`, and without it,
+/// swept at 1 MV/s (1.5 µs, far shorter than τ = 1 ms, so the traps stay as the stress left
+/// them).
+fn drift_after(time: &str) -> f64 {
+    let j = iv_json(&[
+        "--sweep-rate",
+        "1 MV/s",
+        "--direction",
+        "up",
+        "--stress",
+        "1.5",
+        "--stress-time",
+        time,
+    ]);
+    j["sweep"]["stress"]["drift"][0]["drift_v"]
+        .as_f64()
+        .unwrap_or_else(|| panic!("no drift after {time}: {}", j["sweep"]))
+}
+
+/// A gate stress fills the traps as first-order kinetics say: the threshold drift after a
+/// stress of one time constant is `1 - 1/e` of the drift after ten (the traps, filled from
+/// empty towards an occupancy of 1 deep in accumulation, shift the curve by their charge over
+/// `C_ins`; the closed form of first-order kinetics).
+#[test]
+fn stress_drift_follows_first_order_filling() {
+    let one = drift_after("1 ms");
+    let ten = drift_after("10 ms");
+    assert!(ten > 0.1, "drift {ten} V after 10 ms");
+    let ratio = one / ten;
+    let expected = 1.0 - (-1.0f64).exp();
+    assert!(
+        (ratio - expected).abs() < 0.01,
+        "drift ratio {ratio}, first-order filling {expected}"
+    );
 }

@@ -5,8 +5,8 @@ use super::Common;
 use crate::design;
 use crate::error::JobError;
 use crate::iv::{
-    dense_vds, hysteresis, iv_metrics, read_device, run_swept, show, unsigned_zero, Device,
-    Direction, Hysteresis, IvConfig, IvMetrics, IvPoint, Leg, Polarity, SweptPoint,
+    dense_vds, hysteresis, iv_metrics, leg_crossing, read_device, run_swept, show, unsigned_zero,
+    Device, Direction, Hysteresis, IvConfig, IvMetrics, IvPoint, Leg, Polarity, Stress, SweptPoint,
     METRIC_DEFINITIONS,
 };
 use crate::output::{csv, ensure_dir, write_whole as write_file, OutputSet};
@@ -75,6 +75,14 @@ pub struct Args {
     /// unit is written. Default 100 nA x W/L (the threshold criterion).
     #[arg(long, value_name = "CURRENT", requires = "sweep_rate")]
     pub hysteresis_current: Option<String>,
+    /// Bias stress before a ramped sweep: from rest at the first V_GS, ramp to this V_GS, hold
+    /// it for `--stress-time` and ramp back, then sweep; the drift of V_GS at the reading current
+    /// against the same sweep without stress is reported.
+    #[arg(long, value_name = "VGS", allow_hyphen_values = true, requires_all = ["sweep_rate", "stress_time"])]
+    pub stress: Option<String>,
+    /// How long the stress is held, in seconds unless a unit is written (`100 s`, `10 ms`).
+    #[arg(long, value_name = "TIME", requires = "stress")]
+    pub stress_time: Option<String>,
     /// `--set`, `--json` and `--out`.
     #[command(flatten)]
     pub common: Common,
@@ -100,6 +108,8 @@ pub fn run(a: Args) -> Result<(), JobError> {
         sweep_rate,
         direction,
         hysteresis_current,
+        stress,
+        stress_time,
         common: Common { set, json, out },
     } = a;
     let set_out = OutputSet::begin_opt(out.as_deref())?;
@@ -121,6 +131,13 @@ pub fn run(a: Args) -> Result<(), JobError> {
         "A",
         Dim::CURRENT,
     )?;
+    let stress = match bias("--stress", &stress)? {
+        Some(vgs_v) => Some(Stress {
+            vgs_v,
+            time_s: positive("--stress-time", &stress_time, "s", Dim::TIME)?.unwrap_or(0.0),
+        }),
+        None => None,
+    };
     let config = IvConfig {
         polarity: polarity.map(|p| match p {
             PolarityFlag::N => Polarity::N,
@@ -141,16 +158,13 @@ pub fn run(a: Args) -> Result<(), JobError> {
             DirectionFlag::Down => Direction::Down,
             DirectionFlag::Both => Direction::Both,
         };
-        let swept = Swept::run(
-            &d,
-            &vg,
-            &vd,
+        let run = SweepPlan {
             direction,
-            rate,
-            &device,
-            &config,
-            hysteresis_a,
-        )?;
+            rate_v_per_s: rate,
+            stress,
+            current_a: hysteresis_a,
+        };
+        let swept = Swept::run(&d, &vg, &vd, &run, &device, &config)?;
         if let Some(set) = set_out {
             swept.write(set.dir()).map_err(JobError::Io)?;
             set.commit()?;
@@ -568,11 +582,29 @@ fn output_curves(
 /// A voltage per time (V/s).
 const VOLTS_PER_SECOND: Dim = Dim([0, -1, 1, 0, 0]);
 
+/// How a rate-aware sweep runs.
+struct SweepPlan {
+    direction: Direction,
+    rate_v_per_s: f64,
+    stress: Option<Stress>,
+    /// The current the hysteresis and the drift are read at (A); default the threshold
+    /// criterion.
+    current_a: Option<f64>,
+}
+
+/// The drift of each leg's V_GS at the reading current after a stress, per V_DS: (after the
+/// stress, from rest at the first V_GS).
+type DriftRows = Vec<(f64, Leg, Result<(f64, f64), String>)>;
+
+/// The reading current (A) and the drifts, or why they are not reported.
+type Drifts = Result<(f64, DriftRows), String>;
+
 /// A rate-aware sweep and its figures.
 struct Swept {
     points: Vec<SweptPoint>,
     direction: Direction,
     rate_v_per_s: f64,
+    stress: Option<(Stress, Drifts)>,
     /// The figures of the first leg, as a DC sweep's.
     metrics: IvMetrics,
     /// The current the hysteresis is read at (A), and the widths per `V_DS` (both ways only).
@@ -583,18 +615,24 @@ struct Swept {
 type Widths = Vec<(f64, Result<Hysteresis, String>)>;
 
 impl Swept {
-    #[allow(clippy::too_many_arguments)]
     fn run(
         d: &lamina_netlist::Design,
         vg: &[f64],
         vd: &[f64],
-        direction: Direction,
-        rate_v_per_s: f64,
+        plan: &SweepPlan,
         device: &Device,
         config: &IvConfig,
-        current_a: Option<f64>,
     ) -> Result<Swept, JobError> {
-        let points = run_swept(d, vg, vd, direction, rate_v_per_s).map_err(JobError::Analysis)?;
+        let &SweepPlan {
+            direction,
+            rate_v_per_s,
+            stress,
+            current_a,
+        } = plan;
+        let sweep = |stress| {
+            run_swept(d, vg, vd, direction, rate_v_per_s, stress).map_err(JobError::Analysis)
+        };
+        let points = sweep(stress)?;
         let first = points[0].leg;
         let leg: Vec<IvPoint> = points
             .iter()
@@ -602,18 +640,48 @@ impl Swept {
             .map(|s| s.point)
             .collect();
         let metrics = iv_metrics(&leg, device, config);
-        let hysteresis = (direction == Direction::Both).then(|| {
+        let reading = || -> Result<(Polarity, f64), String> {
             let polarity = metrics.branch.as_ref().map_err(Clone::clone)?.polarity;
             let current = match current_a {
                 Some(c) => c,
                 None => crate::iv::threshold_current(device)?,
             };
+            Ok((polarity, current))
+        };
+        let hysteresis = (direction == Direction::Both).then(|| {
+            let (polarity, current) = reading()?;
             Ok((current, hysteresis(&points, polarity, current)))
         });
+        let stress = match stress {
+            None => None,
+            Some(st) => {
+                let rest = sweep(None)?;
+                let drifts = reading().map(|(polarity, current)| {
+                    let mut rows = DriftRows::new();
+                    for &v in vd {
+                        for leg in [Leg::Up, Leg::Down] {
+                            if !points.iter().any(|s| s.leg == leg) {
+                                continue;
+                            }
+                            let at = |pts: &[SweptPoint]| {
+                                leg_crossing(pts, leg, v, polarity, current).ok_or(format!(
+                                    "|I_D| does not reach {current:.3e} A on the {} leg",
+                                    leg.name()
+                                ))
+                            };
+                            rows.push((v, leg, at(&points).and_then(|a| Ok((a, at(&rest)?)))));
+                        }
+                    }
+                    (current, rows)
+                });
+                Some((st, drifts))
+            }
+        };
         Ok(Swept {
             points,
             direction,
             rate_v_per_s,
+            stress,
             metrics,
             hysteresis,
         })
@@ -635,6 +703,35 @@ impl Swept {
             show(self.rate_v_per_s),
             self.points[0].leg.name()
         )];
+        if let Some((st, drifts)) = &self.stress {
+            l.push(format!(
+                "Bias stress: V_GS = {} V held {} s, then the sweep; drift of V_GS at the reading current against the same sweep without stress:",
+                show(st.vgs_v),
+                show(st.time_s)
+            ));
+            match drifts {
+                Err(why) => l.push(format!("  not reported: {why}")),
+                Ok((current, rows)) => {
+                    for (vds, leg, r) in rows {
+                        l.push(match r {
+                            Ok((a, b)) => format!(
+                                "  V_DS = {} V, {} leg, |I_D| = {current:.3e} A: {} V after stress, {} V without, drift {} V",
+                                show(*vds),
+                                leg.name(),
+                                fixed(*a, 4),
+                                fixed(*b, 4),
+                                fixed(a - b, 4)
+                            ),
+                            Err(why) => format!(
+                                "  V_DS = {} V, {} leg: not reported: {why}",
+                                show(*vds),
+                                leg.name()
+                            ),
+                        });
+                    }
+                }
+            }
+        }
         match &self.hysteresis {
             None => {}
             Some(Err(why)) => l.push(format!("Hysteresis: not reported: {why}")),
@@ -689,7 +786,36 @@ impl Swept {
                     .collect();
             }
         }
+        if let Some((st, drifts)) = &self.stress {
+            let mut o = json!({ "vgs_v": num(st.vgs_v), "time_s": num(st.time_s) });
+            match drifts {
+                Err(why) => o["not_reported"] = json!(why),
+                Ok((current, rows)) => {
+                    o["reading_current_a"] = num(*current);
+                    o["drift"] = rows
+                        .iter()
+                        .map(|(vds, leg, r)| match r {
+                            Ok((a, b)) => json!({
+                                "vds_v": num(*vds),
+                                "leg": leg.name(),
+                                "vgs_after_stress_v": num(*a),
+                                "vgs_without_stress_v": num(*b),
+                                "drift_v": num(a - b),
+                            }),
+                            Err(why) => json!({
+                                "vds_v": num(*vds),
+                                "leg": leg.name(),
+                                "drift_v": null,
+                                "not_reported": why,
+                            }),
+                        })
+                        .collect();
+                }
+            }
+            sweep["stress"] = o;
+        }
         sweep["definitions"] = json!({
+            "stress": "a bias stress before the sweep: from rest at the first V_GS the gate ramps at the sweep rate to vgs_v, holds it for time_s and ramps back; drift_v is the V_GS where the leg's |I_D| reaches reading_current_a after the stress minus the same without it",
             "sweep_rate_v_per_s": "the gate ramps at this rate through the V_GS grid in a transient that starts at rest (the operating point) at the first V_GS",
             "hysteresis_current_a": "the |I_D| the hysteresis is read at: --hysteresis-current, default 100 nA x W/L",
             "width_v": "V_GS where the down leg's |I_D| reaches hysteresis_current_a minus where the up leg's does, each going out along the branch from its smallest current and interpolated in log |I_D|",
