@@ -446,3 +446,91 @@ fn stress_drift_follows_first_order_filling() {
         "drift ratio {ratio}, first-order filling {expected}"
     );
 }
+
+/// A group at a depth acts on the channel by the fraction of the insulator's `1/C` between it
+/// and the gate (Gauss's law across series layers; any electrostatics text): in a two-layer
+/// stack, traps at the layers' boundary are, in DC, the same as traps at the interface with
+/// that fraction of their density.
+#[test]
+fn depth_scales_the_charge_by_the_gate_side_fraction() {
+    use lamina_devices::Layer;
+    let layer = |permittivity, thickness| Layer {
+        permittivity,
+        thickness,
+        breakdown_field: None,
+    };
+    let stack = vec![layer(3.4, 5e-9), layer(20.0, 3e-9)];
+    let phi = (3e-9 / 20.0) / (5e-9 / 3.4 + 3e-9 / 20.0);
+    let with = |g: TrapGroup| SheetFetCard {
+        insulator: stack.clone(),
+        slow_traps: vec![g],
+        ..SheetFetCard::default()
+    };
+    let deep = SheetFet::new(&with(TrapGroup {
+        depth: 5e-9,
+        ..group(2e16, 1e-3)
+    }))
+    .unwrap();
+    let shallow = SheetFet::new(&with(group(2e16 * phi, 1e-3))).unwrap();
+    for vg in [-0.5, -0.3, -0.1, 0.2] {
+        let current = |fet: &SheetFet| {
+            let f = fet.slow_trap_equilibrium(0.05, vg, 0.0)[0];
+            eval(fet, &[0.05, vg, 0.0, f]).0[0]
+        };
+        let (a, b) = (current(&deep), current(&shallow));
+        assert!(
+            (a - b).abs() <= 1e-9 * a.abs().max(b.abs()),
+            "V_G = {vg}: {a:e} at the boundary, {b:e} at the interface"
+        );
+    }
+}
+
+/// What a card with slow traps may not hold is refused with the key named.
+#[test]
+fn slow_trap_cards_out_of_range_are_refused() {
+    // The device's Debug form holds its tables: only the message is shown.
+    let why = |c: &SheetFetCard| match SheetFet::new(c) {
+        Ok(_) => panic!("accepted: {:?}", c.slow_traps),
+        Err(why) => why,
+    };
+    let refused = |g: TrapGroup, key: &str| {
+        let why = why(&card(vec![g]));
+        assert!(why.contains(key), "{why}");
+    };
+    refused(
+        TrapGroup {
+            depth: 6e-9,
+            ..group(1e16, 1e-3)
+        },
+        "`trap1_depth`",
+    );
+    refused(
+        TrapGroup {
+            decades: 24.0,
+            states: 8,
+            ..group(1e16, 1.0)
+        },
+        "`trap1_time`",
+    );
+    refused(
+        TrapGroup {
+            states: 17,
+            ..group(1e16, 1e-3)
+        },
+        "at most 16",
+    );
+    refused(group(0.0, 1e-3), "`trap1_density`");
+    let dirac = SheetFetCard {
+        gate: lamina_devices::Gate::Dirac {
+            fermi_velocity: 1e6,
+            half_gap: 0.0,
+            gap_shift: 0.0,
+            degeneracy: 4.0,
+            neutral_work_function: 4.0,
+            residual_density: 0.0,
+        },
+        ..card(vec![group(1e16, 1e-3)])
+    };
+    let why = why(&dirac);
+    assert!(why.contains("metal gate"), "{why}");
+}
