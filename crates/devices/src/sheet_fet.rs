@@ -2395,7 +2395,7 @@ impl Element for SheetFet {
     }
 
     fn details(&self, x: &[f64]) -> Vec<lamina_engine::Detail> {
-        self.insight(x)
+        self.traps.details(x, |x| self.insight(x))
     }
 
     fn boxed_clone(&self) -> Box<dyn Element> {

@@ -216,6 +216,8 @@ struct State {
     shift: f64,
     /// `1/τ_j` (1/s).
     rate: f64,
+    /// 1 for a donor-like state (charged when empty), 0 for an acceptor-like one.
+    donor: f64,
 }
 
 /// A device's slow traps: empty for a card without them, which then costs nothing.
@@ -226,6 +228,8 @@ pub(super) struct Traps {
     shift0: f64,
     /// Local index of the first occupancy unknown.
     first: usize,
+    /// `W L` (m²).
+    area: f64,
 }
 
 /// Occupancy unknowns by name, for [`Traps::internals`].
@@ -295,6 +299,7 @@ impl Traps {
                     charge: Q * per_state * area,
                     shift: -phi * Q * per_state * inv_c,
                     rate: 1.0 / tau,
+                    donor: f64::from(u8::from(g.kind == TrapKind::Donor)),
                 });
                 if g.kind == TrapKind::Donor {
                     shift0 += phi * Q * per_state * inv_c;
@@ -305,6 +310,7 @@ impl Traps {
             states,
             shift0,
             first,
+            area,
         }
     }
 
@@ -330,6 +336,34 @@ impl Traps {
             s += st.shift * x[self.first + j];
         }
         s
+    }
+
+    /// The device's operating-point details (`insight`) at the gate drive the trapped charge
+    /// shifts, and the trapped charge: the net charge of the slow traps in units of q per area
+    /// (negative for electrons held).
+    pub(super) fn details(
+        &self,
+        x: &[f64],
+        insight: impl Fn(&[f64]) -> Vec<lamina_engine::Detail>,
+    ) -> Vec<lamina_engine::Detail> {
+        if self.states.is_empty() || x.len() < self.first + self.states.len() {
+            return insight(x);
+        }
+        let mut shifted = x.to_vec();
+        shifted[1] += self.shift(x);
+        let mut out = insight(&shifted);
+        let net: f64 = self
+            .states
+            .iter()
+            .enumerate()
+            .map(|(j, st)| st.charge * (st.donor - x[self.first + j]))
+            .sum::<f64>()
+            / (Q * self.area);
+        out.push(lamina_engine::Detail {
+            name: "slow-trap charge density",
+            value: lamina_engine::DetailValue::Number(net, "1/m^2"),
+        });
+        out
     }
 
     /// Stamps what the slow traps add to an evaluation whose channel `ch` was taken at the
