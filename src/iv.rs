@@ -26,10 +26,19 @@
 //! `ln(10) kT/q` at the card's temperature (S. M. Sze and K. K. Ng, Physics of Semiconductor
 //! Devices, 3rd ed., 2007, ch. 6): below it by no more than the solver's rounding it is
 //! reported as the limit, below it by more it is refused.
+//!
+//! # Rate-aware sweeps
+//! [`run_swept`] ramps the gate at a stated rate through the grid in a transient (up, down or
+//! both ways) instead of solving each point at rest, so charge that lags the gate (slow traps)
+//! shows; [`hysteresis`] reads the width of a both-way sweep at a stated current.
 
 use lamina_devices::physics::{K_B, Q};
-use lamina_engine::elements::VoltageSource;
-use lamina_engine::{Circuit, ElementId, NodeId, OpParams, Probe, SweepParams, System};
+use lamina_devices::SheetFet;
+use lamina_engine::elements::{VoltageSource, Waveform};
+use lamina_engine::{
+    Circuit, Control, ElementId, NodeId, OpParams, Output, Probe, Start, SweepParams, System,
+    TransientParams,
+};
 use lamina_measure::device as measure;
 use lamina_netlist::units::Dim;
 use lamina_netlist::Design;
@@ -368,6 +377,11 @@ pub const MIN_FLOOR_A: f64 = 1e-11;
 /// How many times the current at one end of the gate sweep must exceed that at the other to
 /// decide the branch from the currents.
 pub const POLARITY_RATIO: f64 = 10.0;
+
+/// The threshold criterion's current for `device` (A): [`THRESHOLD_CURRENT_PER_SQUARE`] x W/L.
+pub fn threshold_current(device: &Device) -> Result<f64, String> {
+    Ok(THRESHOLD_CURRENT_PER_SQUARE * device.criteria_w_over_l()?)
+}
 
 /// The default swing floor for a device of the given `W/L` (A).
 pub fn default_floor(w_over_l: f64) -> f64 {
@@ -900,4 +914,310 @@ pub fn dense_vds(vds: &[f64], n: usize) -> Option<Vec<f64>> {
             .map(|k| unsigned_zero(lo + (hi - lo) * k as f64 / (n - 1) as f64))
             .collect()
     })
+}
+
+/// Which way a rate-aware gate sweep runs ([`run_swept`]).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Direction {
+    /// From the lowest `V_GS` to the highest.
+    Up,
+    /// From the highest to the lowest.
+    Down,
+    /// Up, then down again.
+    Both,
+}
+
+/// One leg of a rate-aware sweep.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Leg {
+    /// `V_GS` rising.
+    Up,
+    /// `V_GS` falling.
+    Down,
+}
+
+impl Leg {
+    /// `up` or `down`.
+    pub fn name(self) -> &'static str {
+        match self {
+            Leg::Up => "up",
+            Leg::Down => "down",
+        }
+    }
+}
+
+/// One sample of a rate-aware sweep.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct SweptPoint {
+    /// The leg it belongs to (the turning point belongs to both and is listed with each).
+    pub leg: Leg,
+    /// Time since the sweep began (s).
+    pub time_s: f64,
+    /// The bias and the drain current the drain source supplies (channel and displacement
+    /// current of the drain's charge).
+    pub point: IvPoint,
+}
+
+/// The gate voltages of each leg, in sweep order, from the grid's distinct values.
+fn legs(vgs: &[f64], direction: Direction) -> Vec<(Leg, Vec<f64>)> {
+    let mut up = vgs.to_vec();
+    up.sort_by(f64::total_cmp);
+    up.dedup();
+    let down: Vec<f64> = up.iter().rev().copied().collect();
+    match direction {
+        Direction::Up => vec![(Leg::Up, up)],
+        Direction::Down => vec![(Leg::Down, down)],
+        Direction::Both => vec![(Leg::Up, up), (Leg::Down, down)],
+    }
+}
+
+/// Rebuilds the file's device circuit for a ramped gate: the FET from its resolved card, a
+/// piecewise-linear gate source through `vertices` and a constant drain source at `vd`.
+/// Returns the system and the drain source.
+fn ramped_circuit(
+    design: &Design,
+    vertices: Vec<(f64, f64)>,
+    vd: f64,
+) -> Result<(System, ElementId), String> {
+    let c = &design.circuit;
+    let fet = find_fet(c)?;
+    check_pins(c, fet)?;
+    let pins = c.element_pins(fet);
+    let (drain, gate) = (pins[0], pins[1]);
+    if let Some(e) = c.elements().find(|&e| {
+        let p = c.element_pins(e);
+        e != fet
+            && !(c.element_kind(e) == "voltage source"
+                && p[1].is_ground()
+                && (p[0] == drain || p[0] == gate))
+    }) {
+        return Err(format!(
+            "a rate-aware sweep drives the FET alone: the file may hold only the FET and the \
+             voltage sources on its gate and drain, not `{}` (a {})",
+            c.element_name(e),
+            c.element_kind(e)
+        ));
+    }
+    let card = design.sheet_card(fet).ok_or_else(|| {
+        format!(
+            "a rate-aware sweep needs a 2D-channel FET (`sheet_fet`); a {} holds no charge that \
+             lags the gate",
+            c.element_kind(fet)
+        )
+    })?;
+    let device = SheetFet::new(card)?;
+    let mut n = Circuit::new();
+    let (d, g) = (n.node("drain"), n.node("gate"));
+    let ramp = Waveform::piecewise_linear(vertices).map_err(|e| e.to_string())?;
+    let err = |e: lamina_engine::CircuitError| e.to_string();
+    n.add(
+        "sweep.gate",
+        VoltageSource::new(ramp),
+        &[g, Circuit::GROUND],
+    )
+    .map_err(err)?;
+    let vd_src = n
+        .add("sweep.drain", VoltageSource::dc(vd), &[d, Circuit::GROUND])
+        .map_err(err)?;
+    n.add(c.element_name(fet), device, &[d, g, Circuit::GROUND])
+        .map_err(err)?;
+    Ok((System::new(n).map_err(|e| e.to_string())?, vd_src))
+}
+
+/// A rate-aware transfer sweep: for each `V_DS`, the gate ramps at `rate_v_per_s` through the
+/// distinct `V_GS` values in `direction` (a transient with a piecewise-linear gate source whose
+/// vertices are the grid, so the integrator steps onto each), starting from the operating point
+/// at the first `V_GS` (the device at rest there). Charge that lags the gate (a 2D-channel FET's
+/// slow traps) then shows as a difference between the legs; a device without it gives the DC
+/// curve on both, apart from the displacement current of the drain's charge, which the drain
+/// current includes as a measurement's would (`C dV_GS/dt`, small at slow rates). With a
+/// `stress` the gate first ramps from there to the stress voltage, holds it and ramps back
+/// before the sweep; the samples' times count from the start of the run.
+pub fn run_swept(
+    design: &Design,
+    vgs: &[f64],
+    vds: &[f64],
+    direction: Direction,
+    rate_v_per_s: f64,
+    stress: Option<Stress>,
+) -> Result<Vec<SweptPoint>, String> {
+    if !(rate_v_per_s > 0.0 && rate_v_per_s.is_finite()) {
+        return Err("the sweep rate must be a positive, finite voltage per time".into());
+    }
+    if let Some(st) = stress {
+        if !(st.time_s > 0.0 && st.time_s.is_finite() && st.vgs_v.is_finite()) {
+            return Err("a bias stress needs a finite gate voltage and a positive time".into());
+        }
+    }
+    let legs = legs(vgs, direction);
+    if legs[0].1.len() < 2 {
+        return Err("a rate-aware sweep needs at least two distinct gate voltages".into());
+    }
+    // The gate's path: each leg's values, the turning point once.
+    let mut path: Vec<(Leg, f64)> = Vec::new();
+    for (leg, values) in &legs {
+        let skip = usize::from(!path.is_empty());
+        path.extend(values.iter().skip(skip).map(|&v| (*leg, v)));
+    }
+    // A stress first: from rest at the sweep's start, ramped to the stress, held, and ramped
+    // back.
+    let mut preamble = Vec::new();
+    let mut t = 0.0;
+    if let Some(st) = stress {
+        let ramp = (path[0].1 - st.vgs_v).abs() / rate_v_per_s;
+        preamble.push((0.0, path[0].1));
+        preamble.push((ramp, st.vgs_v));
+        preamble.push((ramp + st.time_s, st.vgs_v));
+        t = 2.0 * ramp + st.time_s;
+    }
+    let mut times = Vec::with_capacity(path.len());
+    for (k, &(_, v)) in path.iter().enumerate() {
+        if k > 0 {
+            t += (v - path[k - 1].1).abs() / rate_v_per_s;
+        }
+        times.push(t);
+    }
+    let stop = t;
+    let mut out = Vec::with_capacity(vds.len() * (path.len() + 1));
+    for &vd in vds {
+        let mut vertices = preamble.clone();
+        for (&t, &(_, v)) in times.iter().zip(&path) {
+            // A stress at the sweep's first V_GS runs straight into it.
+            if vertices.last().is_none_or(|&(tl, _)| t > tl) {
+                vertices.push((t, v));
+            }
+        }
+        let (mut sys, vd_src) = ramped_circuit(design, vertices, vd)?;
+        // The integrator steps onto every vertex (a breakpoint), so the samples are exact.
+        let mut p = TransientParams::new(stop);
+        p.output = Output::Streaming;
+        let mut samples: Vec<(f64, f64)> = Vec::new();
+        let mut record = |t: f64, v: &[f64]| {
+            samples.push((t, -v[0]));
+            Control::Continue
+        };
+        sys.transient(
+            &p,
+            &Start::OperatingPoint(OpParams::default()),
+            &[Probe::Current(vd_src)],
+            Some(&mut record),
+        )
+        .map_err(|e| e.to_string())?;
+        let mut leg_before = None;
+        for (k, (&t, &(leg, vg))) in times.iter().zip(&path).enumerate() {
+            let id = sample_at(&samples, t);
+            let point = IvPoint {
+                vgs: unsigned_zero(vg),
+                vds: unsigned_zero(vd),
+                id: unsigned_zero(id),
+            };
+            // The turning point ends the up leg and starts the down leg.
+            if leg_before == Some(Leg::Up) && leg == Leg::Down {
+                let (tp, pp) = (times[k - 1], out.last().map(|s: &SweptPoint| s.point));
+                if let Some(pp) = pp {
+                    out.push(SweptPoint {
+                        leg: Leg::Down,
+                        time_s: tp,
+                        point: pp,
+                    });
+                }
+            }
+            leg_before = Some(leg);
+            out.push(SweptPoint {
+                leg,
+                time_s: t,
+                point,
+            });
+        }
+    }
+    Ok(out)
+}
+
+/// A bias-stress step before a rate-aware sweep: the device at rest at the sweep's first
+/// `V_GS`, ramped at the sweep rate to `vgs_v`, held there for `time_s` and ramped back.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Stress {
+    /// Stress gate voltage (V).
+    pub vgs_v: f64,
+    /// How long it is held (s).
+    pub time_s: f64,
+}
+
+/// The recorded value at time `t`: the sample there (the integrator steps onto every vertex),
+/// else the straight line between its neighbours.
+fn sample_at(samples: &[(f64, f64)], t: f64) -> f64 {
+    let k = samples.partition_point(|s| s.0 < t);
+    match (samples.get(k.wrapping_sub(1)), samples.get(k)) {
+        (_, Some(&(tb, b))) if tb == t => b,
+        (Some(&(ta, a)), Some(&(tb, b))) => a + (b - a) * (t - ta) / (tb - ta),
+        (Some(&(_, a)), None) => a,
+        (None, Some(&(_, b))) => b,
+        (None, None) => f64::NAN,
+    }
+}
+
+/// The width of the hysteresis at one `V_DS`: the `V_GS` at which each leg's `|I_D|` first
+/// reaches the stated current going out along the branch, and their difference.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Hysteresis {
+    /// `V_DS` (V).
+    pub vds_v: f64,
+    /// `V_GS` of the current on the up leg (V).
+    pub vgs_up_v: f64,
+    /// `V_GS` of the current on the down leg (V).
+    pub vgs_down_v: f64,
+    /// `vgs_down_v - vgs_up_v` (V): positive where the down leg needs more gate voltage for the
+    /// same current (a threshold raised by charge trapped on the way up, for an n branch).
+    pub width_v: f64,
+}
+
+/// The `V_GS` (V) at which one leg's curve at `vds` reaches `|I_D| = current_a`, going out
+/// along the `polarity` branch from its smallest current.
+pub fn leg_crossing(
+    points: &[SweptPoint],
+    leg: Leg,
+    vds: f64,
+    polarity: Polarity,
+    current_a: f64,
+) -> Option<f64> {
+    let mine: Vec<IvPoint> = points
+        .iter()
+        .filter(|s| s.leg == leg)
+        .map(|s| s.point)
+        .collect();
+    let (vg, id) = transfer(&mine, vds);
+    let (bv, bi) = branch_of(&vg, &id, polarity);
+    measure::threshold_constant_current(&bv, &bi, current_a)
+}
+
+/// The hysteresis width at each `V_DS` of a both-way sweep, or why it cannot be read there.
+pub fn hysteresis(
+    points: &[SweptPoint],
+    polarity: Polarity,
+    current_a: f64,
+) -> Vec<(f64, Result<Hysteresis, String>)> {
+    let mut vds: Vec<f64> = points.iter().map(|s| s.point.vds).collect();
+    vds.sort_by(f64::total_cmp);
+    vds.dedup();
+    vds.into_iter()
+        .map(|v| {
+            let at = |leg: Leg| {
+                leg_crossing(points, leg, v, polarity, current_a).ok_or(format!(
+                    "|I_D| does not reach {current_a:.3e} A on the {} leg's {} branch",
+                    leg.name(),
+                    polarity.name()
+                ))
+            };
+            let r = at(Leg::Up).and_then(|up| {
+                let down = at(Leg::Down)?;
+                Ok(Hysteresis {
+                    vds_v: v,
+                    vgs_up_v: unsigned_zero(up),
+                    vgs_down_v: unsigned_zero(down),
+                    width_v: unsigned_zero(down - up),
+                })
+            });
+            (v, r)
+        })
+        .collect()
 }

@@ -5,10 +5,12 @@ use super::Common;
 use crate::design;
 use crate::error::JobError;
 use crate::iv::{
-    dense_vds, iv_metrics, read_device, show, unsigned_zero, Device, IvConfig, IvMetrics, IvPoint,
-    Polarity, METRIC_DEFINITIONS,
+    dense_vds, hysteresis, iv_metrics, leg_crossing, read_device, run_swept, show, unsigned_zero,
+    Device, Direction, Hysteresis, IvConfig, IvMetrics, IvPoint, Leg, Polarity, Stress, SweptPoint,
+    METRIC_DEFINITIONS,
 };
 use crate::output::{csv, ensure_dir, write_whole as write_file, OutputSet};
+use crate::plot::{draw, Axis, Figure, Mark};
 use crate::{note, out};
 use lamina_netlist::units::Dim;
 use serde_json::{json, Map, Value};
@@ -21,6 +23,17 @@ pub enum PolarityFlag {
     N,
     /// Holes: the branch at negative gate voltage.
     P,
+}
+
+/// Direction of a rate-aware sweep.
+#[derive(clap::ValueEnum, Clone, Copy, Debug, PartialEq, Eq)]
+pub enum DirectionFlag {
+    /// From the lowest V_GS to the highest.
+    Up,
+    /// From the highest V_GS to the lowest.
+    Down,
+    /// Up, then down again: the hysteresis width is reported.
+    Both,
 }
 
 /// Flags of `lamina iv`.
@@ -50,6 +63,26 @@ pub struct Args {
     /// V_GS of I_off. Default: the V_GS of the branch's smallest |I_D|.
     #[arg(long, value_name = "VGS", allow_hyphen_values = true)]
     pub off_bias: Option<String>,
+    /// Ramp the gate at this rate, a voltage per time (`10 V/s`, `2 kV/s`), in a transient
+    /// starting at rest at the first V_GS, instead of taking each point at rest (DC): charge
+    /// that lags the gate (a 2D-channel FET's slow traps) then shows.
+    #[arg(long, value_name = "RATE")]
+    pub sweep_rate: Option<String>,
+    /// Direction of the ramped sweep (default both: up, then down, with the hysteresis width).
+    #[arg(long, value_enum, requires = "sweep_rate")]
+    pub direction: Option<DirectionFlag>,
+    /// |I_D| at which the hysteresis width of a both-way sweep is read, in amperes unless a
+    /// unit is written. Default 100 nA x W/L (the threshold criterion).
+    #[arg(long, value_name = "CURRENT", requires = "sweep_rate")]
+    pub hysteresis_current: Option<String>,
+    /// Bias stress before a ramped sweep: from rest at the first V_GS, ramp to this V_GS, hold
+    /// it for `--stress-time` and ramp back, then sweep; the drift of V_GS at the reading current
+    /// against the same sweep without stress is reported.
+    #[arg(long, value_name = "VGS", allow_hyphen_values = true, requires_all = ["sweep_rate", "stress_time"])]
+    pub stress: Option<String>,
+    /// How long the stress is held, in seconds unless a unit is written (`100 s`, `10 ms`).
+    #[arg(long, value_name = "TIME", requires = "stress")]
+    pub stress_time: Option<String>,
     /// `--set`, `--json` and `--out`.
     #[command(flatten)]
     pub common: Common,
@@ -72,6 +105,11 @@ pub fn run(a: Args) -> Result<(), JobError> {
         current_floor,
         on_bias,
         off_bias,
+        sweep_rate,
+        direction,
+        hysteresis_current,
+        stress,
+        stress_time,
         common: Common { set, json, out },
     } = a;
     let set_out = OutputSet::begin_opt(out.as_deref())?;
@@ -84,18 +122,22 @@ pub fn run(a: Args) -> Result<(), JobError> {
             .transpose()
             .map_err(JobError::Usage)
     };
-    let current_floor_a = current_floor
-        .as_deref()
-        .map(|t| {
-            let f = crate::iv::parse_one("--current-floor", t, "A", Dim::CURRENT)?;
-            if f > 0.0 && f.is_finite() {
-                Ok(f)
-            } else {
-                Err(format!("--current-floor {t}: give a positive current"))
-            }
-        })
-        .transpose()
-        .map_err(JobError::Usage)?;
+    let positive = super::extract::positive;
+    let current_floor_a = positive("--current-floor", &current_floor, "A", Dim::CURRENT)?;
+    let rate = positive("--sweep-rate", &sweep_rate, "V/s", VOLTS_PER_SECOND)?;
+    let hysteresis_a = positive(
+        "--hysteresis-current",
+        &hysteresis_current,
+        "A",
+        Dim::CURRENT,
+    )?;
+    let stress = match bias("--stress", &stress)? {
+        Some(vgs_v) => Some(Stress {
+            vgs_v,
+            time_s: positive("--stress-time", &stress_time, "s", Dim::TIME)?.unwrap_or(0.0),
+        }),
+        None => None,
+    };
     let config = IvConfig {
         polarity: polarity.map(|p| match p {
             PolarityFlag::N => Polarity::N,
@@ -110,6 +152,26 @@ pub fn run(a: Args) -> Result<(), JobError> {
     crate::iv::check_device(&d)
         .map_err(|why| JobError::Invalid(format!("error: {}: {why}", file.display())))?;
     let device = read_device(&d).map_err(JobError::Analysis)?;
+    if let Some(rate) = rate {
+        let direction = match direction.unwrap_or(DirectionFlag::Both) {
+            DirectionFlag::Up => Direction::Up,
+            DirectionFlag::Down => Direction::Down,
+            DirectionFlag::Both => Direction::Both,
+        };
+        let run = SweepPlan {
+            direction,
+            rate_v_per_s: rate,
+            stress,
+            current_a: hysteresis_a,
+        };
+        let swept = Swept::run(&d, &vg, &vd, &run, &device, &config)?;
+        if let Some(set) = set_out {
+            swept.write(set.dir()).map_err(JobError::Io)?;
+            set.commit()?;
+        }
+        swept.print(json);
+        return Ok(());
+    }
     let points = crate::iv::run_iv(d, &vg, &vd).map_err(JobError::Analysis)?;
     let mut m = iv_metrics(&points, &device, &config);
     if let Ok(on) = &m.ion {
@@ -570,4 +632,364 @@ fn output_curves(
         })
         .collect();
     Ok((series, own))
+}
+
+/// A voltage per time (V/s).
+const VOLTS_PER_SECOND: Dim = Dim([0, -1, 1, 0, 0]);
+
+/// How a rate-aware sweep runs.
+struct SweepPlan {
+    direction: Direction,
+    rate_v_per_s: f64,
+    stress: Option<Stress>,
+    /// The current the hysteresis and the drift are read at (A); default the threshold
+    /// criterion.
+    current_a: Option<f64>,
+}
+
+/// The drift of each leg's V_GS at the reading current after a stress, per V_DS: (after the
+/// stress, from rest at the first V_GS).
+type DriftRows = Vec<(f64, Leg, Result<(f64, f64), String>)>;
+
+/// The reading current (A) and the drifts, or why they are not reported.
+type Drifts = Result<(f64, DriftRows), String>;
+
+/// A rate-aware sweep and its figures.
+struct Swept {
+    points: Vec<SweptPoint>,
+    direction: Direction,
+    rate_v_per_s: f64,
+    stress: Option<(Stress, Drifts)>,
+    /// The figures of the first leg, as a DC sweep's.
+    metrics: IvMetrics,
+    /// The current the hysteresis is read at (A), and the widths per `V_DS` (both ways only).
+    hysteresis: Option<Result<(f64, Widths), String>>,
+}
+
+/// The hysteresis width at each `V_DS`, or why it is not reported there.
+type Widths = Vec<(f64, Result<Hysteresis, String>)>;
+
+impl Swept {
+    fn run(
+        d: &lamina_netlist::Design,
+        vg: &[f64],
+        vd: &[f64],
+        plan: &SweepPlan,
+        device: &Device,
+        config: &IvConfig,
+    ) -> Result<Swept, JobError> {
+        let &SweepPlan {
+            direction,
+            rate_v_per_s,
+            stress,
+            current_a,
+        } = plan;
+        let sweep = |stress| {
+            run_swept(d, vg, vd, direction, rate_v_per_s, stress).map_err(JobError::Analysis)
+        };
+        let points = sweep(stress)?;
+        let first = points[0].leg;
+        let leg: Vec<IvPoint> = points
+            .iter()
+            .filter(|s| s.leg == first)
+            .map(|s| s.point)
+            .collect();
+        let metrics = iv_metrics(&leg, device, config);
+        let reading = || -> Result<(Polarity, f64), String> {
+            let polarity = metrics.branch.as_ref().map_err(Clone::clone)?.polarity;
+            let current = match current_a {
+                Some(c) => c,
+                None => crate::iv::threshold_current(device)?,
+            };
+            Ok((polarity, current))
+        };
+        let hysteresis = (direction == Direction::Both).then(|| {
+            let (polarity, current) = reading()?;
+            Ok((current, hysteresis(&points, polarity, current)))
+        });
+        let stress = match stress {
+            None => None,
+            Some(st) => {
+                let rest = sweep(None)?;
+                let drifts = reading().map(|(polarity, current)| {
+                    let mut rows = DriftRows::new();
+                    for &v in vd {
+                        for leg in [Leg::Up, Leg::Down] {
+                            if !points.iter().any(|s| s.leg == leg) {
+                                continue;
+                            }
+                            let at = |pts: &[SweptPoint]| {
+                                leg_crossing(pts, leg, v, polarity, current).ok_or(format!(
+                                    "|I_D| does not reach {current:.3e} A on the {} leg",
+                                    leg.name()
+                                ))
+                            };
+                            rows.push((v, leg, at(&points).and_then(|a| Ok((a, at(&rest)?)))));
+                        }
+                    }
+                    (current, rows)
+                });
+                Some((st, drifts))
+            }
+        };
+        Ok(Swept {
+            points,
+            direction,
+            rate_v_per_s,
+            stress,
+            metrics,
+            hysteresis,
+        })
+    }
+
+    fn direction_name(&self) -> &'static str {
+        match self.direction {
+            Direction::Up => "up",
+            Direction::Down => "down",
+            Direction::Both => "both",
+        }
+    }
+
+    /// The sweep's own lines: how it ran and the hysteresis.
+    fn text(&self) -> Vec<String> {
+        let mut l = vec![format!(
+            "Ramped sweep: {} at {} V/s, from rest at the first V_GS; the figures above are the {} leg's",
+            self.direction_name(),
+            show(self.rate_v_per_s),
+            self.points[0].leg.name()
+        )];
+        if let Some((st, drifts)) = &self.stress {
+            l.push(format!(
+                "Bias stress: V_GS = {} V held {} s, then the sweep; drift of V_GS at the reading current against the same sweep without stress:",
+                show(st.vgs_v),
+                show(st.time_s)
+            ));
+            match drifts {
+                Err(why) => l.push(format!("  not reported: {why}")),
+                Ok((current, rows)) => {
+                    for (vds, leg, r) in rows {
+                        l.push(match r {
+                            Ok((a, b)) => format!(
+                                "  V_DS = {} V, {} leg, |I_D| = {current:.3e} A: {} V after stress, {} V without, drift {} V",
+                                show(*vds),
+                                leg.name(),
+                                fixed(*a, 4),
+                                fixed(*b, 4),
+                                fixed(a - b, 4)
+                            ),
+                            Err(why) => format!(
+                                "  V_DS = {} V, {} leg: not reported: {why}",
+                                show(*vds),
+                                leg.name()
+                            ),
+                        });
+                    }
+                }
+            }
+        }
+        match &self.hysteresis {
+            None => {}
+            Some(Err(why)) => l.push(format!("Hysteresis: not reported: {why}")),
+            Some(Ok((current, rows))) => {
+                l.push(format!(
+                    "Hysteresis at |I_D| = {current:.3e} A (V_GS down leg minus up leg):"
+                ));
+                for (vds, r) in rows {
+                    l.push(match r {
+                        Ok(h) => format!(
+                            "  V_DS = {} V: up {} V, down {} V, width {} V",
+                            show(*vds),
+                            fixed(h.vgs_up_v, 4),
+                            fixed(h.vgs_down_v, 4),
+                            fixed(h.width_v, 4)
+                        ),
+                        Err(why) => format!("  V_DS = {} V: not reported: {why}", show(*vds)),
+                    });
+                }
+            }
+        }
+        l
+    }
+
+    fn json(&self) -> Value {
+        let mut sweep = json!({
+            "sweep_rate_v_per_s": num(self.rate_v_per_s),
+            "direction": self.direction_name(),
+            "figures_leg": self.points[0].leg.name(),
+        });
+        match &self.hysteresis {
+            None => {}
+            Some(Err(why)) => {
+                sweep["hysteresis"] = Value::Null;
+                sweep["not_reported"] = json!({ "hysteresis": why });
+            }
+            Some(Ok((current, rows))) => {
+                sweep["hysteresis_current_a"] = num(*current);
+                sweep["hysteresis"] = rows
+                    .iter()
+                    .map(|(vds, r)| match r {
+                        Ok(h) => json!({
+                            "vds_v": num(*vds),
+                            "vgs_up_v": num(h.vgs_up_v),
+                            "vgs_down_v": num(h.vgs_down_v),
+                            "width_v": num(h.width_v),
+                        }),
+                        Err(why) => {
+                            json!({ "vds_v": num(*vds), "width_v": null, "not_reported": why })
+                        }
+                    })
+                    .collect();
+            }
+        }
+        if let Some((st, drifts)) = &self.stress {
+            let mut o = json!({ "vgs_v": num(st.vgs_v), "time_s": num(st.time_s) });
+            match drifts {
+                Err(why) => o["not_reported"] = json!(why),
+                Ok((current, rows)) => {
+                    o["reading_current_a"] = num(*current);
+                    o["drift"] = rows
+                        .iter()
+                        .map(|(vds, leg, r)| match r {
+                            Ok((a, b)) => json!({
+                                "vds_v": num(*vds),
+                                "leg": leg.name(),
+                                "vgs_after_stress_v": num(*a),
+                                "vgs_without_stress_v": num(*b),
+                                "drift_v": num(a - b),
+                            }),
+                            Err(why) => json!({
+                                "vds_v": num(*vds),
+                                "leg": leg.name(),
+                                "drift_v": null,
+                                "not_reported": why,
+                            }),
+                        })
+                        .collect();
+                }
+            }
+            sweep["stress"] = o;
+        }
+        sweep["definitions"] = json!({
+            "stress": "a bias stress before the sweep: from rest at the first V_GS the gate ramps at the sweep rate to vgs_v, holds it for time_s and ramps back; drift_v is the V_GS where the leg's |I_D| reaches reading_current_a after the stress minus the same without it",
+            "sweep_rate_v_per_s": "the gate ramps at this rate through the V_GS grid in a transient that starts at rest (the operating point) at the first V_GS",
+            "hysteresis_current_a": "the |I_D| the hysteresis is read at: --hysteresis-current, default 100 nA x W/L",
+            "width_v": "V_GS where the down leg's |I_D| reaches hysteresis_current_a minus where the up leg's does, each going out along the branch from its smallest current and interpolated in log |I_D|",
+            "id": "the current the drain source supplies: channel current plus the displacement current of the drain's charge at the sweep rate",
+        });
+        sweep
+    }
+
+    fn print(&self, as_json: bool) {
+        if as_json {
+            let pts: Vec<Value> = self
+                .points
+                .iter()
+                .map(|s| {
+                    json!({
+                        "sweep": s.leg.name(),
+                        "time_s": s.time_s,
+                        "vgs": s.point.vgs,
+                        "vds": s.point.vds,
+                        "id": s.point.id,
+                    })
+                })
+                .collect();
+            out!(
+                "{}",
+                json!({ "points": pts, "metrics": metrics_json(&self.metrics), "sweep": self.json() })
+            );
+            return;
+        }
+        out!(
+            "{:>10} {:>10} {:>6} {:>13} {:>16}   (model estimate)",
+            "V_GS (V)",
+            "V_DS (V)",
+            "sweep",
+            "time (s)",
+            "I_D (A)"
+        );
+        for s in &self.points {
+            out!(
+                "{:>10} {:>10} {:>6} {:>13} {:>16}",
+                fixed(s.point.vgs, 4),
+                fixed(s.point.vds, 4),
+                s.leg.name(),
+                sci(s.time_s, 5),
+                sci(s.point.id, 6)
+            );
+        }
+        for line in metrics_text(&self.metrics).into_iter().chain(self.text()) {
+            out!("{line}");
+        }
+    }
+
+    /// `iv-up.csv` and `iv-down.csv` (the legs run), `summary.json` and the `hysteresis`
+    /// figure: |I_D| against V_GS, one series per leg and V_DS, the width's ends marked.
+    fn write(&self, dir: &Path) -> Result<(), String> {
+        ensure_dir(dir)?;
+        for leg in [Leg::Up, Leg::Down] {
+            let mine: Vec<&SweptPoint> = self.points.iter().filter(|s| s.leg == leg).collect();
+            if mine.is_empty() {
+                continue;
+            }
+            let rows = mine
+                .iter()
+                .map(|s| vec![s.time_s, s.point.vgs, s.point.vds, s.point.id]);
+            write_file(
+                &dir.join(format!("iv-{}.csv", leg.name())),
+                csv(&["time_s", "vgs_v", "vds_v", "id_a"], rows).as_bytes(),
+            )?;
+        }
+        let mut j = json!({ "metrics": metrics_json(&self.metrics), "sweep": self.json() });
+        j["caution"] = json!(super::CAUTION);
+        write_file(&dir.join("summary.json"), format!("{j}\n").as_bytes())?;
+        let title = match &self.hysteresis {
+            Some(Ok((_, rows))) => match rows.iter().find_map(|(_, r)| r.as_ref().ok()) {
+                Some(h) => format!(
+                    "hysteresis {} at {}/s (model estimate)",
+                    crate::plot::engineering(h.width_v, "V"),
+                    crate::plot::engineering(self.rate_v_per_s, "V")
+                ),
+                None => "ramped sweep (model estimate)".to_string(),
+            },
+            _ => format!(
+                "ramped sweep at {}/s (model estimate)",
+                crate::plot::engineering(self.rate_v_per_s, "V")
+            ),
+        };
+        let mut f = Figure::new(&title, Axis::new("V_GS", "V"), Axis::log("|I_D|", "A"));
+        let mut vds: Vec<f64> = self.points.iter().map(|s| s.point.vds).collect();
+        vds.sort_by(f64::total_cmp);
+        vds.dedup();
+        for &v in &vds {
+            for leg in [Leg::Up, Leg::Down] {
+                let pts: Vec<(f64, f64)> = self
+                    .points
+                    .iter()
+                    .filter(|s| s.leg == leg && s.point.vds == v)
+                    .map(|s| (s.point.vgs, s.point.id.abs()))
+                    .collect();
+                if !pts.is_empty() {
+                    f.series.push(crate::plot::Series::line(
+                        &format!(
+                            "{}, V_DS = {}",
+                            leg.name(),
+                            crate::plot::engineering(v, "V")
+                        ),
+                        pts,
+                    ));
+                }
+            }
+        }
+        if let Some(Ok((current, rows))) = &self.hysteresis {
+            for h in rows.iter().filter_map(|(_, r)| r.as_ref().ok()) {
+                let at = crate::plot::engineering(h.vds_v, "V");
+                for (leg, v) in [("up", h.vgs_up_v), ("down", h.vgs_down_v)] {
+                    f.marks
+                        .push(Mark::Point((v, *current), format!("{leg} {at}")));
+                }
+            }
+        }
+        draw(&dir.join("hysteresis"), &f)
+    }
 }

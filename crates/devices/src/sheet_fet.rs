@@ -160,11 +160,13 @@ use std::sync::{Arc, Mutex, Weak};
 mod contacts;
 mod ends;
 mod insight;
+pub mod traps;
 
 pub use contacts::{ContactCard, LONG_CHANNEL};
 use contacts::{Contacts, ShortChannel};
 
 use ends::Ends;
+pub use traps::{TrapGroup, TrapKind};
 
 /// The gate electrode.
 #[derive(Clone, Debug, PartialEq)]
@@ -290,6 +292,8 @@ pub struct SheetFetCard {
     /// The stack's natural length `λ` (m) for short-channel electrostatics
     /// ([`crate::short_channel`]); 0 for a long channel.
     pub natural_length: f64,
+    /// Slow traps with their own kinetics ([`traps`]); empty for none.
+    pub slow_traps: Vec<TrapGroup>,
 }
 
 impl Default for SheetFetCard {
@@ -329,6 +333,7 @@ impl Default for SheetFetCard {
             mobility: MobilityOptions::default(),
             contacts: None,
             natural_length: 0.0,
+            slow_traps: Vec::new(),
         }
     }
 }
@@ -595,6 +600,7 @@ impl SheetFetCard {
         }
         self.validate_contacts()?;
         crate::mobility::resolve(self)?;
+        traps::validate(self)?;
         Ok(())
     }
 
@@ -619,6 +625,7 @@ impl SheetFetCard {
             overlap_capacitance: 0.0,
             contacts: None,
             natural_length: 0.0,
+            slow_traps: Vec::new(),
             insulator: self
                 .insulator
                 .iter()
@@ -2326,6 +2333,7 @@ pub struct SheetFet {
     contacts: Option<Arc<Contacts>>,
     /// The short-channel barrier shift, if the channel is short enough to have one.
     short: Option<ShortChannel>,
+    traps: traps::Traps,
 }
 
 const PINS: &[&str] = &["drain", "gate", "source"];
@@ -2375,6 +2383,11 @@ impl SheetFet {
             .contacts
             .as_ref()
             .map(|c| Arc::new(Contacts::new(card, c)));
+        let schottky = card.contacts.is_some();
+        let first_trap = 3
+            + usize::from(schottky || card.drain_resistance > 0.0)
+            + usize::from(schottky || card.source_resistance > 0.0);
+        let traps = traps::Traps::new(card, &model, card.width * card.length, first_trap);
         Ok(SheetFet {
             model,
             area: card.width * card.length,
@@ -2389,6 +2402,7 @@ impl SheetFet {
             mobility,
             contacts,
             short: ShortChannel::of(card),
+            traps,
         })
     }
 
@@ -2566,12 +2580,12 @@ impl Element for SheetFet {
     }
 
     fn internals(&self) -> &'static [Internal] {
-        match self.layout() {
+        self.traps.internals(match self.layout() {
             (Some(_), Some(_)) => BOTH,
             (Some(_), None) => DRAIN_ONLY,
             (None, Some(_)) => SOURCE_ONLY,
             (None, None) => &[],
-        }
+        })
     }
 
     fn has_charge(&self) -> bool {
@@ -2588,7 +2602,9 @@ impl Element for SheetFet {
         let s = si.unwrap_or(2);
         let shift = self.short_channel_shift(x);
         let (delta, dd) = shift.unwrap_or((0.0, [0.0; 5]));
-        let ch = self.intrinsic_shifted(x[d], x[1], x[s], delta);
+        // Slow traps shift the channel's gate drive by their charge ([`traps`]).
+        let vg = x[1] + self.traps.shift(x);
+        let ch = self.intrinsic_shifted(x[d], vg, x[s], delta);
         let cols = [d, 1, s];
         out.add_f(d, ch.current.v);
         out.add_f(s, -ch.current.v);
@@ -2643,18 +2659,19 @@ impl Element for SheetFet {
                     }
                 }
             }
-            return;
+        } else {
+            if let Some(di) = di {
+                out.branch_current(0, di, self.g_drain * (x[0] - x[di]), self.g_drain);
+            }
+            if let Some(si) = si {
+                out.branch_current(2, si, self.g_source * (x[2] - x[si]), self.g_source);
+            }
         }
-        if let Some(di) = di {
-            out.branch_current(0, di, self.g_drain * (x[0] - x[di]), self.g_drain);
-        }
-        if let Some(si) = si {
-            out.branch_current(2, si, self.g_source * (x[2] - x[si]), self.g_source);
-        }
+        self.traps.stamp(&self.model, x, vg, &ch, cols, out);
     }
 
     fn details(&self, x: &[f64]) -> Vec<lamina_engine::Detail> {
-        let mut d = self.insight(x);
+        let mut d = self.traps.details(x, |x| self.insight(x));
         d.extend(self.contact_details(x));
         d
     }

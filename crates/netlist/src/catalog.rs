@@ -3,7 +3,9 @@
 
 use crate::units::Dim;
 use lamina_devices::mobility::{DensityDependence, LatticeModel};
+use lamina_devices::sheet_fet::traps::{trap_key, MAX_TRAP_GROUPS};
 use lamina_devices::sheet_fet::valley_key;
+use lamina_devices::sheet_fet::{TrapGroup, TrapKind};
 use lamina_devices::{
     materials, ContactCard, ExtraValley, Gate, Layer, Polarity, SheetFet, SheetFetCard,
     SquareLawFet,
@@ -340,6 +342,30 @@ static SHEET_PARAMS: &[ParamSpec] = &[
     maybe("valley2_degeneracy", Dim::NONE),
     maybe("trap_density", PER_ENERGY_AREA),
     maybe("trap_neutral_level", ENERGY),
+    maybe("trap1_density", PER_AREA),
+    maybe("trap1_level", ENERGY),
+    named("trap1_type"),
+    maybe("trap1_time", Dim::TIME),
+    maybe("trap1_decades", Dim::NONE),
+    maybe("trap1_states", Dim::NONE),
+    maybe("trap1_depth", Dim::LENGTH),
+    maybe("trap1_decay_length", Dim::LENGTH),
+    maybe("trap2_density", PER_AREA),
+    maybe("trap2_level", ENERGY),
+    named("trap2_type"),
+    maybe("trap2_time", Dim::TIME),
+    maybe("trap2_decades", Dim::NONE),
+    maybe("trap2_states", Dim::NONE),
+    maybe("trap2_depth", Dim::LENGTH),
+    maybe("trap2_decay_length", Dim::LENGTH),
+    maybe("trap3_density", PER_AREA),
+    maybe("trap3_level", ENERGY),
+    named("trap3_type"),
+    maybe("trap3_time", Dim::TIME),
+    maybe("trap3_decades", Dim::NONE),
+    maybe("trap3_states", Dim::NONE),
+    maybe("trap3_depth", Dim::LENGTH),
+    maybe("trap3_decay_length", Dim::LENGTH),
     maybe("fixed_charge_density", PER_AREA),
     maybe("temperature", Dim::TEMPERATURE),
     maybe("width", Dim::LENGTH),
@@ -632,6 +658,105 @@ fn sheet_consistency(v: &Values) -> Result<(), BuildError> {
     Ok(())
 }
 
+/// What a slow-trap group's keys other than its density say.
+const TRAP_SETTINGS: &[&str] = &[
+    "level",
+    "type",
+    "time",
+    "decades",
+    "states",
+    "depth",
+    "decay_length",
+];
+
+/// The card's slow-trap groups (`trap1_` to `trap3_` keys), each from its density on; energies
+/// arrive in joules and are stored in eV.
+fn slow_traps(v: &Values) -> Result<Vec<TrapGroup>, BuildError> {
+    let p = SHEET_PARAMS;
+    let q = lamina_devices::physics::Q;
+    let mut groups = Vec::new();
+    for i in 0..MAX_TRAP_GROUPS {
+        let key = |what: &str| trap_key(i, what);
+        let density_key = key("density");
+        let Some(density) = v.get(p, &density_key) else {
+            let given = TRAP_SETTINGS
+                .iter()
+                .map(|w| key(w))
+                .find(|k| v.get(p, k).is_some() || v.text(p, k).is_some());
+            if let Some(k) = given {
+                return Err(BuildError::at(
+                    &k,
+                    format!("`{k}` is given without `{density_key}`, so there is no slow-trap group {}", i + 1),
+                    format!("add `{density_key}` (the group's density per area, e.g. `1e11 /cm^2`) or remove it"),
+                ));
+            }
+            continue;
+        };
+        if groups.len() < i {
+            return Err(BuildError::at(
+                &density_key,
+                format!(
+                    "`{density_key}` is given, but there is no `{}`",
+                    trap_key(i - 1, "density")
+                ),
+                "number the slow-trap groups from `trap1_` on",
+            ));
+        }
+        let needed = |what: &str, help: &str| {
+            let k = key(what);
+            v.get(p, &k).ok_or_else(|| {
+                BuildError::at(
+                    &density_key,
+                    format!("a slow-trap group needs `{k}`"),
+                    format!("add `{k}` ({help})"),
+                )
+            })
+        };
+        let level = needed(
+            "level",
+            "its energy below the conduction band edge, e.g. `0.3 eV`",
+        )? / q;
+        let time = needed("time", "its relaxation time, e.g. `1 ms`")?;
+        let kind = match v.text(p, &key("type")) {
+            None | Some("acceptor") => TrapKind::Acceptor,
+            Some("donor") => TrapKind::Donor,
+            Some(other) => {
+                return Err(BuildError::at(
+                    &key("type"),
+                    format!("no slow-trap type called `{other}`"),
+                    format!("write `{} = acceptor` (neutral when empty, the default) or `donor` (positive when empty)", key("type")),
+                ))
+            }
+        };
+        let decades = v.get(p, &key("decades")).unwrap_or(0.0);
+        let states = match v.get(p, &key("states")) {
+            None => decades.ceil().max(1.0) as usize,
+            Some(n) if n.fract() == 0.0 && (1.0..=16.0).contains(&n) => n as usize,
+            Some(n) => {
+                return Err(BuildError::at(
+                    &key("states"),
+                    format!(
+                        "`{}` must be a whole number from 1 to 16, found {n}",
+                        key("states")
+                    ),
+                    "write a whole count such as `4`: each state is one unknown of the device",
+                ))
+            }
+        };
+        groups.push(TrapGroup {
+            density,
+            level,
+            kind,
+            time,
+            decades,
+            states,
+            depth: v.get(p, &key("depth")).unwrap_or(0.0),
+            decay_length: v.get(p, &key("decay_length")).unwrap_or(0.0),
+        });
+    }
+    Ok(groups)
+}
+
 /// Builds a 2D-channel FET card from library names and numbers (energies arrive in joules
 /// and are stored in eV; trap densities arrive per joule and are stored per eV).
 pub fn sheet_card(v: &Values) -> Result<SheetFetCard, BuildError> {
@@ -748,6 +873,7 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, BuildError> {
         v.get(p, "trap_density").map(|d| d * q),
     );
     set(&mut card.trap_neutral_level, ev("trap_neutral_level"));
+    card.slow_traps = slow_traps(v)?;
     set(
         &mut card.fixed_charge_density,
         v.get(p, "fixed_charge_density"),
@@ -1375,6 +1501,21 @@ pub fn resolved_values(card: &SheetFetCard, o: &CardOrigins) -> Vec<CardValue> {
         ("fixed_charge_density", card.fixed_charge_density, "1/m²"),
     ] {
         push(key, value, unit, by(key).unwrap_or(Origin::Default));
+    }
+    for (i, g) in card.slow_traps.iter().enumerate() {
+        for (what, value, unit) in [
+            ("density", g.density, "1/m²"),
+            ("level", g.level, "eV"),
+            ("time", g.time, "s"),
+            ("decades", g.decades, "1"),
+            ("states", g.states as f64, "1"),
+            ("depth", g.depth, "m"),
+            ("decay_length", g.decay_length, "m"),
+        ] {
+            let key = trap_key(i, what);
+            let origin = by(&key).unwrap_or(Origin::Default);
+            push(&key, value, unit, origin);
+        }
     }
     // Gate.
     let gate = o.text("gate");
