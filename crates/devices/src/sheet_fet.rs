@@ -147,7 +147,8 @@ use lamina_engine::{Element, EvalContext, Internal, Stamp, UnknownKind};
 use std::sync::{Arc, Mutex, Weak};
 
 mod ends;
-mod insight;
+pub mod insight;
+pub mod leakage;
 
 use ends::Ends;
 
@@ -269,6 +270,9 @@ pub struct SheetFetCard {
     /// How the mobilities are obtained ([`crate::mobility`]); the default uses
     /// `electron_mobility` and `hole_mobility` as given.
     pub mobility: MobilityOptions,
+    /// Each insulator layer's bands and tunnelling masses, in the order of `insulator`, for
+    /// the gate leakage ([`leakage`]); empty for a stack without leakage.
+    pub tunnelling: Vec<leakage::Barrier>,
 }
 
 impl Default for SheetFetCard {
@@ -306,6 +310,7 @@ impl Default for SheetFetCard {
             drain_resistance: 0.0,
             overlap_capacitance: 0.0,
             mobility: MobilityOptions::default(),
+            tunnelling: Vec::new(),
         }
     }
 }
@@ -568,6 +573,7 @@ impl SheetFetCard {
             }
         }
         crate::mobility::resolve(self)?;
+        leakage::validate(self)?;
         Ok(())
     }
 
@@ -581,7 +587,7 @@ impl SheetFetCard {
     }
 
     /// The card with geometry and contact fields cleared: what the tables depend on.
-    fn stack_key(&self) -> SheetFetCard {
+    pub(crate) fn stack_key(&self) -> SheetFetCard {
         SheetFetCard {
             width: 0.0,
             length: 0.0,
@@ -2116,6 +2122,10 @@ pub struct SheetFet {
     /// The `|V_DS|` (V) below which the charges take the small-V_DS form.
     small_vds: f64,
     mobility: MobilityReport,
+    /// The gate leakage table and `W L / 2` (m²), where the card has tunnelling data.
+    leakage: Option<(Arc<leakage::LeakageTable>, f64)>,
+    /// The card's insulator layers (for the field each carries, [`insight`]).
+    layers: Vec<Layer>,
 }
 
 const PINS: &[&str] = &["drain", "gate", "source"];
@@ -2161,6 +2171,8 @@ impl SheetFet {
         };
         let g = |r: f64| if r > 0.0 { card.width / r } else { 0.0 };
         let small_vds = SMALL_VDS_VT * model.stack.vt;
+        let leakage = leakage::LeakageTable::shared(card, &model)
+            .map(|t| (t, 0.5 * card.width * card.length));
         Ok(SheetFet {
             model,
             area: card.width * card.length,
@@ -2172,6 +2184,8 @@ impl SheetFet {
             overlap: card.overlap_capacitance * card.width,
             small_vds,
             mobility,
+            leakage,
+            layers: card.insulator.clone(),
         })
     }
 
@@ -2375,6 +2389,12 @@ impl Element for SheetFet {
         }
         if let Some(si) = si {
             out.branch_current(2, si, self.g_source * (x[2] - x[si]), self.g_source);
+        }
+        for (end, (i, g)) in [d, s]
+            .into_iter()
+            .zip(self.gate_leakage(x[1] - x[d], x[1] - x[s]))
+        {
+            out.branch_current(1, end, i, g);
         }
     }
 

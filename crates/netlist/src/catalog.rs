@@ -842,6 +842,8 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, BuildError> {
     // Insulator layers: a library material with a layer count or thickness, or a
     // permittivity and thickness.
     let mut layers = Vec::new();
+    // Each layer's tunnelling data, where it is a library insulator that has them.
+    let mut barriers = Vec::new();
     for (mat, count, thick, eps) in [
         (
             "insulator",
@@ -865,14 +867,18 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, BuildError> {
                         help: None,
                     })?;
                 set(&mut l.permittivity, v.get(p, eps));
+                barriers.push(materials::insulator_barrier(name).ok());
                 Some(l)
             }
             None => match (v.get(p, eps), v.get(p, thick)) {
-                (Some(permittivity), Some(thickness)) => Some(Layer {
-                    permittivity,
-                    thickness,
-                    breakdown_field: None,
-                }),
+                (Some(permittivity), Some(thickness)) => {
+                    barriers.push(None);
+                    Some(Layer {
+                        permittivity,
+                        thickness,
+                        breakdown_field: None,
+                    })
+                }
                 (None, None) if v.get(p, count).is_none() => None,
                 _ => {
                     let at = [count, eps, thick]
@@ -900,6 +906,11 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, BuildError> {
         });
     }
     card.insulator = layers;
+    // Gate leakage where every layer has tunnelling data (lamina_devices::sheet_fet::leakage).
+    card.tunnelling = barriers
+        .into_iter()
+        .collect::<Option<Vec<_>>>()
+        .unwrap_or_default();
     card.validate()?;
     Ok(card)
 }
