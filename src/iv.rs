@@ -94,6 +94,9 @@ pub struct IvPoint {
     pub vds: f64,
     /// Current into the drain (A).
     pub id: f64,
+    /// Current into the gate (A): the gate leakage of a 2D FET whose card has tunnelling data
+    /// (`lamina_devices::sheet_fet::leakage`), zero otherwise.
+    pub ig: f64,
 }
 
 /// `x` with a negative zero made positive, so no report shows `-0`.
@@ -200,7 +203,7 @@ pub fn run_iv_with(
     } = drive(&mut c, "iv")?;
     let mut sys = System::new(c).map_err(|e| e.to_string())?;
     let mut out = Vec::with_capacity(vgs.len() * vds.len());
-    let probe = [Probe::Current(vd_src)];
+    let probe = [Probe::Current(vd_src), Probe::Current(vg_src)];
     let gmin = params.op.gmin;
     for &vg in vgs {
         sys.set_source_value(vg_src, vg)
@@ -217,6 +220,7 @@ pub fn run_iv_with(
                 vgs: unsigned_zero(vg),
                 vds: unsigned_zero(vd),
                 id: unsigned_zero(-res.signals[0][k] - gmin * vd),
+                ig: unsigned_zero(-res.signals[1][k] - gmin * vg),
             });
         }
     }

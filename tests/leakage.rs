@@ -224,3 +224,26 @@ fn gate_current_is_continuous_and_reported() {
         }
     }
 }
+
+/// The `iv` job's gate-current column is the gate current of the operating point at the same
+/// bias.
+#[test]
+fn iv_reports_the_gate_current() {
+    let text = THIN.replace("VG", "0 V").replace("LAYERS", "2");
+    let d = load_source("t.lam", &text, &LoadOptions::default()).unwrap();
+    let points = lamina::iv::run_iv(d, &[1.5, -0.5], &[0.5]).unwrap();
+    for p in &points {
+        let r = report(
+            &THIN
+                .replace("VG", &format!("{} V", p.vgs))
+                .replace("LAYERS", "2"),
+        );
+        let gate = r.devices[0].terminals[1].2;
+        assert!(
+            (p.ig - gate).abs() <= 1e-6 * gate.abs(),
+            "V_GS = {}: {:e} vs {gate:e}",
+            p.vgs,
+            p.ig
+        );
+    }
+}
