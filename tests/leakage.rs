@@ -247,3 +247,44 @@ fn iv_reports_the_gate_current() {
         );
     }
 }
+
+/// A layer's tunnelling keys replace the library insulator's values (a lighter electron
+/// tunnels more easily), and a layer given by permittivity and thickness leaks only with all
+/// four keys; without them the report says the leakage is not modelled.
+#[test]
+fn card_keys_set_the_tunnelling_data() {
+    let card = |layer: &str| {
+        format!(
+            "device c : sheet_fet {{ channel = MoS2, gate = Au, {layer}, width = 1 um, length = 1 um }}
+voltage_source vg (pos = g, neg = ground) {{ dc = 1.5 V }}
+voltage_source vd (pos = d, neg = ground) {{ dc = 0.1 V }}
+c m (drain = d, gate = g, source = ground)
+"
+        )
+    };
+    let gate = |layer: &str| report(&card(layer)).devices[0].terminals[1].2;
+    let library = gate("insulator = SiO2, insulator_thickness = 1.5 nm");
+    let lighter = gate(
+        "insulator = SiO2, insulator_thickness = 1.5 nm, insulator_electron_tunnelling_mass = 0.3",
+    );
+    assert!(
+        library > 0.0 && lighter > 2.0 * library,
+        "{library:e}, {lighter:e}"
+    );
+    let by_keys = gate(
+        "insulator_permittivity = 3.9, insulator_thickness = 1.5 nm, \
+         insulator_electron_affinity = 0.95 eV, insulator_band_gap = 9 eV, \
+         insulator_electron_tunnelling_mass = 0.42, insulator_hole_tunnelling_mass = 0.32",
+    );
+    assert!(
+        (by_keys / library - 1.0).abs() < 1e-9,
+        "{by_keys:e} vs {library:e}"
+    );
+    let r = report(&card(
+        "insulator_permittivity = 3.9, insulator_thickness = 1.5 nm",
+    ));
+    assert_eq!(r.devices[0].terminals[1].2, 0.0);
+    assert!(r.devices[0]
+        .details
+        .contains(&("gate leakage", DetailValue::Word("not modelled"))));
+}
