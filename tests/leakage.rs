@@ -185,7 +185,7 @@ thin m (drain = d, gate = g, source = ground)
 
 /// Current continuity (Kirchhoff's current law): what leaves the gate enters source and drain,
 /// and the gate current in the solution is the one the device reports; at 1.5 V on two hBN
-/// layers the leakage is significant (a fifth of the drain current), under thirty (10 nm) it
+/// layers the leakage is significant (0.23 times the drain current), under thirty (10 nm) it
 /// is negligible, and at 4 V the field
 /// across them, beyond the library's breakdown field, draws a warning naming the device, the
 /// layer, the field and the limit.

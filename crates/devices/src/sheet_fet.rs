@@ -134,6 +134,11 @@
 //! gate-drain and gate-source charges. The intrinsic charges follow the conductance profile
 //! (with a density-dependent mobility too, since `A` and `B` are integrals of `σ`).
 //!
+//! # Gate leakage
+//! Where the card has tunnelling data for every insulator layer ([`SheetFetCard::tunnelling`]),
+//! carriers tunnelling through the stack add currents from the gate to the channel's two ends
+//! ([`leakage`]: WKB through the layered barrier, Tsu-Esaki supply, tabulated per stack).
+//!
 //! This is a model estimate: check it against measurement and your process before basing a
 //! design decision on it.
 

@@ -976,7 +976,7 @@ fn layer_barrier(v: &Values, mat: &str) -> Result<Option<Barrier>, BuildError> {
                 format!("`{given}` needs the layer's other tunnelling keys, or `{mat}` set to a library insulator"),
                 format!(
                     "give all of `{}`, or remove `{given}`",
-                    TUNNELLING_KEYS.map(|w| key(w)).join("`, `")
+                    TUNNELLING_KEYS.map(key).join("`, `")
                 ),
             ))
         }
