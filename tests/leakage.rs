@@ -4,7 +4,7 @@
 //! continuity at an operating point, and the breakdown warning.
 
 use lamina::op::{operating_point, OpReport};
-use lamina_devices::physics::{HBAR, M0, Q};
+use lamina_devices::physics::{HBAR, K_B, M0, Q};
 use lamina_devices::sheet_fet::leakage::{Barrier, Carrier, TunnelStack};
 use lamina_devices::{materials, SheetFet, SheetFetCard};
 use lamina_engine::{DetailValue, System};
@@ -103,29 +103,34 @@ fn thin_card() -> SheetFetCard {
 }
 
 /// The table (cubic in the knot index, knots solved on first use) agrees with the direct
-/// quadrature between knots, over the core and the widening knots beyond it.
+/// quadrature between knots, from 4 K to 400 K, over the core and the widening knots beyond
+/// it. Measured: within two thermal voltages of `u = 0`, where `J` is linear in `u` and
+/// smallest, 9.8e-3 at 300 K and 400 K (0 and 3e-41 at 4 K and 77 K, where it underflows);
+/// elsewhere 1.2e-4 at 300 K and 400 K, 1.9e-5 at 77 K, 4.7e-6 at 4 K.
 #[test]
 fn table_matches_direct_quadrature() {
+    for t in [4.0, 77.0, 300.0, 400.0] {
+        let mut card = thin_card();
+        card.temperature = t;
+        let vt = K_B * t / Q;
+        let fet = SheetFet::new(&card).unwrap();
+        let table = fet.leakage_table().unwrap();
+        let mut worst = [(0.0f64, 0.0); 2];
+        for k in 0..2000 {
+            let u = -4.0 + 8.0 * (k as f64 + 0.37) / 2000.0;
+            let (j, _) = table.density(u);
+            let direct = table.direct(u);
+            let rel = (j - direct).abs() / direct.abs().max(1e-25);
+            let w = &mut worst[usize::from(u.abs() > 2.0 * vt)];
+            if rel > w.0 {
+                *w = (rel, u);
+            }
+        }
+        assert!(worst[0].0 < 2e-2, "{t} K near u = 0: {:?}", worst[0]);
+        assert!(worst[1].0 < 5e-4, "{t} K: {:?}", worst[1]);
+    }
     let fet = SheetFet::new(&thin_card()).unwrap();
     let table = fet.leakage_table().unwrap();
-    let mut worst = (0.0f64, 0.0);
-    for k in 0..400 {
-        let u = -6.0 + 12.0 * (k as f64 + 0.37) / 400.0;
-        let (j, _) = table.density(u);
-        let direct = table.direct(u);
-        let rel = (j - direct).abs() / direct.abs().max(1e-25);
-        if rel > worst.0 {
-            worst = (rel, u);
-        }
-    }
-    // Measured: 3.6e-3 at worst, where J turns from the channel's electrons to the gate's
-    // between the knots; 1e-7 to 1e-5 elsewhere.
-    assert!(
-        worst.0 < 1e-2,
-        "worst relative error {:e} at u = {}",
-        worst.0,
-        worst.1
-    );
     for u in [-40.0, -15.0, 12.0, 150.0] {
         let (j, _) = table.density(u);
         let direct = table.direct(u);
