@@ -81,8 +81,8 @@
 //! [`super::insight::SIGNIFICANT_LEAKAGE`] of the drain current). A stack with a layer
 //! without data has none, and the operating point says `not modelled`. The cost is the knots
 //! a run visits: the demo ring's Monte Carlo (`netlists/demo/ring-21-mc.lam`, 20 samples, 42
-//! devices each with its own work function, so its own table) took 7.2 s instead of 5.3 s
-//! on the shared two-core machine, its figures unchanged (the demo's 3.3 nm of hBN and 3 nm
+//! devices each with its own work function, so its own table) took 3.8 to 4.5 s instead of
+//! 2.6 to 2.8 s on the shared two-core machine, its figures unchanged (the demo's 3.3 nm of hBN and 3 nm
 //! of HfO2 leak far below the drain current).
 //!
 //! The device's gate current takes each end's density over half the gate: `I_GS = (W L / 2)
