@@ -103,6 +103,9 @@ pub struct IvPoint {
     pub vds: f64,
     /// Current into the drain (A).
     pub id: f64,
+    /// Current into the gate (A): the gate leakage of a 2D FET whose card has tunnelling data
+    /// (`lamina_devices::sheet_fet::leakage`), zero otherwise.
+    pub ig: f64,
 }
 
 /// `x` with a negative zero made positive, so no report shows `-0`.
@@ -209,7 +212,7 @@ pub fn run_iv_with(
     } = drive(&mut c, "iv")?;
     let mut sys = System::new(c).map_err(|e| e.to_string())?;
     let mut out = Vec::with_capacity(vgs.len() * vds.len());
-    let probe = [Probe::Current(vd_src)];
+    let probe = [Probe::Current(vd_src), Probe::Current(vg_src)];
     let gmin = params.op.gmin;
     for &vg in vgs {
         sys.set_source_value(vg_src, vg)
@@ -226,6 +229,7 @@ pub fn run_iv_with(
                 vgs: unsigned_zero(vg),
                 vds: unsigned_zero(vd),
                 id: unsigned_zero(-res.signals[0][k] - gmin * vd),
+                ig: unsigned_zero(-res.signals[1][k] - gmin * vg),
             });
         }
     }
@@ -973,12 +977,12 @@ fn legs(vgs: &[f64], direction: Direction) -> Vec<(Leg, Vec<f64>)> {
 
 /// Rebuilds the file's device circuit for a ramped gate: the FET from its resolved card, a
 /// piecewise-linear gate source through `vertices` and a constant drain source at `vd`.
-/// Returns the system and the drain source.
+/// Returns the system, the drain source and the gate source.
 fn ramped_circuit(
     design: &Design,
     vertices: Vec<(f64, f64)>,
     vd: f64,
-) -> Result<(System, ElementId), String> {
+) -> Result<(System, ElementId, ElementId), String> {
     let c = &design.circuit;
     let fet = find_fet(c)?;
     check_pins(c, fet)?;
@@ -1010,18 +1014,19 @@ fn ramped_circuit(
     let (d, g) = (n.node("drain"), n.node("gate"));
     let ramp = Waveform::piecewise_linear(vertices).map_err(|e| e.to_string())?;
     let err = |e: lamina_engine::CircuitError| e.to_string();
-    n.add(
-        "sweep.gate",
-        VoltageSource::new(ramp),
-        &[g, Circuit::GROUND],
-    )
-    .map_err(err)?;
+    let vg_src = n
+        .add(
+            "sweep.gate",
+            VoltageSource::new(ramp),
+            &[g, Circuit::GROUND],
+        )
+        .map_err(err)?;
     let vd_src = n
         .add("sweep.drain", VoltageSource::dc(vd), &[d, Circuit::GROUND])
         .map_err(err)?;
     n.add(c.element_name(fet), device, &[d, g, Circuit::GROUND])
         .map_err(err)?;
-    Ok((System::new(n).map_err(|e| e.to_string())?, vd_src))
+    Ok((System::new(n).map_err(|e| e.to_string())?, vd_src, vg_src))
 }
 
 /// A rate-aware transfer sweep: for each `V_DS`, the gate ramps at `rate_v_per_s` through the
@@ -1087,19 +1092,21 @@ pub fn run_swept(
                 vertices.push((t, v));
             }
         }
-        let (mut sys, vd_src) = ramped_circuit(design, vertices, vd)?;
+        let (mut sys, vd_src, vg_src) = ramped_circuit(design, vertices, vd)?;
         // The integrator steps onto every vertex (a breakpoint), so the samples are exact.
         let mut p = TransientParams::new(stop);
         p.output = Output::Streaming;
         let mut samples: Vec<(f64, f64)> = Vec::new();
+        let mut gate: Vec<(f64, f64)> = Vec::new();
         let mut record = |t: f64, v: &[f64]| {
             samples.push((t, -v[0]));
+            gate.push((t, -v[1]));
             Control::Continue
         };
         sys.transient(
             &p,
             &Start::OperatingPoint(OpParams::default()),
-            &[Probe::Current(vd_src)],
+            &[Probe::Current(vd_src), Probe::Current(vg_src)],
             Some(&mut record),
         )
         .map_err(|e| e.to_string())?;
@@ -1110,6 +1117,8 @@ pub fn run_swept(
                 vgs: unsigned_zero(vg),
                 vds: unsigned_zero(vd),
                 id: unsigned_zero(id),
+                // Displacement current of the ramped gate included, as a measurement's.
+                ig: unsigned_zero(sample_at(&gate, t)),
             };
             // The turning point ends the up leg and starts the down leg.
             if leg_before == Some(Leg::Up) && leg == Leg::Down {

@@ -188,8 +188,9 @@ pub fn json(r: &OpReport) -> serde_json::Value {
                 json!({ "gm_siemens": s.gm, "gds_siemens": s.gds, "cgg_f": s.cgg, "cgd_f": s.cgd,
                         "cgs_f": s.cgs, "cdd_f": s.cdd, "cdg_f": s.cdg, "ft_quasi_static_hz": s.f_t() })
             });
+            let warnings = lamina_devices::warnings::breakdown(&d.name, &d.details);
             json!({ "name": d.name, "kind": d.kind, "terminals": terminals,
-                    "small_signal": ss, "details": details })
+                    "small_signal": ss, "details": details, "warnings": warnings })
         })
         .collect();
     json!({
@@ -214,10 +215,12 @@ pub const REGION_DEFINITION: &str = "2D-channel FET: threshold charge Q_th = C_i
 fn detail_key(name: &str, unit: &str) -> String {
     let base = name.replace(' ', "_");
     match unit {
-        "" => base,
+        "" | "1" => base,
         "1/m^2" => format!("{base}_per_m2"),
         "V" => format!("{base}_v"),
         "Ohm m" => format!("{base}_ohm_m"),
+        "A" => format!("{base}_a"),
+        "V/m" => format!("{base}_v_per_m"),
         other => format!("{base}_{}", other.replace(['/', '^'], "")),
     }
 }
@@ -275,10 +278,14 @@ pub fn text(r: &OpReport) -> String {
         for (k, v) in &d.details {
             let shown = match v {
                 DetailValue::Number(x, "1/m^2") => format!("{x:.4e} /m^2 ({:.4e} /cm^2)", x * 1e-4),
+                DetailValue::Number(x, "1") => format!("{x:.4e}"),
                 DetailValue::Number(x, unit) => eng(*x, unit),
                 DetailValue::Word(w) => w.to_string(),
             };
             let _ = writeln!(s, "    {k:<28} {shown}");
+        }
+        for w in lamina_devices::warnings::breakdown(&d.name, &d.details) {
+            let _ = writeln!(s, "    warning: {w}");
         }
     }
     if !r.devices.is_empty() {

@@ -327,6 +327,7 @@ fn swing_rule_on_synthetic_curves() {
                     vgs,
                     vds: 1.0,
                     id: 1e-12 * 10f64.powf(vgs * 1e3 / ss),
+                    ig: 0.0,
                 }
             })
             .collect();

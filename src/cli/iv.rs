@@ -191,22 +191,24 @@ pub fn run(a: Args) -> Result<(), JobError> {
     if json {
         let pts: Vec<Value> = points
             .iter()
-            .map(|p| json!({ "vgs": p.vgs, "vds": p.vds, "id": p.id }))
+            .map(|p| json!({ "vgs": p.vgs, "vds": p.vds, "id": p.id, "ig_a": p.ig }))
             .collect();
         out!("{}", json!({ "points": pts, "metrics": metrics_json(&m) }));
     } else {
         out!(
-            "{:>10} {:>10} {:>16}   (model estimate)",
+            "{:>10} {:>10} {:>16} {:>16}   (model estimate)",
             "V_GS (V)",
             "V_DS (V)",
-            "I_D (A)"
+            "I_D (A)",
+            "I_G (A)"
         );
         for p in &points {
             out!(
-                "{:>10} {:>10} {:>16}",
+                "{:>10} {:>10} {:>16} {:>16}",
                 fixed(p.vgs, 4),
                 fixed(p.vds, 4),
-                sci(p.id, 6)
+                sci(p.id, 6),
+                sci(p.ig, 6)
             );
         }
         for line in metrics_text(&m) {
@@ -507,10 +509,10 @@ pub(crate) fn write_iv(
     reload: impl FnOnce() -> Result<lamina_netlist::Design, JobError>,
 ) -> Result<(), String> {
     ensure_dir(dir)?;
-    let rows = points.iter().map(|p| vec![p.vgs, p.vds, p.id]);
+    let rows = points.iter().map(|p| vec![p.vgs, p.vds, p.id, p.ig]);
     write_file(
         &dir.join("iv.csv"),
-        csv(&["vgs_v", "vds_v", "id_a"], rows).as_bytes(),
+        csv(&["vgs_v", "vds_v", "id_a", "ig_a"], rows).as_bytes(),
     )?;
     write_file(
         &dir.join("summary.json"),
@@ -561,10 +563,10 @@ pub(crate) fn write_iv(
                 &series,
             )?;
             if let Some(own) = own {
-                let rows = own.iter().map(|p| vec![p.vgs, p.vds, p.id]);
+                let rows = own.iter().map(|p| vec![p.vgs, p.vds, p.id, p.ig]);
                 write_file(
                     &dir.join("output.csv"),
-                    csv(&["vgs_v", "vds_v", "id_a"], rows).as_bytes(),
+                    csv(&["vgs_v", "vds_v", "id_a", "ig_a"], rows).as_bytes(),
                 )?;
                 note!(
                     "output.csv holds the output characteristics' own run ({DENSE_OUTPUT_POINTS} V_DS points)"

@@ -2,6 +2,7 @@
 //! values, read from `data/materials.json` (compiled into the binary). Every value carries its
 //! source in the file; any value can be overridden in a device card.
 
+use crate::sheet_fet::leakage::Barrier;
 use crate::sheet_fet::{valley_key, ExtraValley, Gate, Layer, SheetFetCard, MAX_EXTRA_VALLEYS};
 use serde_json::Value;
 use std::sync::OnceLock;
@@ -384,6 +385,18 @@ pub fn insulator_layer(
     })
 }
 
+/// The bands and tunnelling masses of the library insulator `name`, for the gate leakage
+/// ([`crate::sheet_fet::leakage`]).
+pub fn insulator_barrier(name: &str) -> Result<Barrier, String> {
+    let e = entry("insulators", name)?;
+    Ok(Barrier {
+        electron_affinity: number(e, "electron_affinity", name)?,
+        band_gap: number(e, "band_gap", name)?,
+        electron_mass: number(e, "tunnelling_electron_mass", name)?,
+        hole_mass: number(e, "tunnelling_hole_mass", name)?,
+    })
+}
+
 /// The library gate electrode `name`.
 pub fn gate(name: &str) -> Result<Gate, String> {
     let e = entry("gates", name)?;
@@ -469,6 +482,8 @@ mod tests {
         );
         assert!(insulator_layer("HfO2", Some(3.0), None).is_err());
         for name in insulators() {
+            let b = insulator_barrier(&name).unwrap();
+            assert!(b.band_gap > 4.0 && b.electron_mass > 0.0, "{name}: {b:?}");
             let field = insulator_layer(&name, None, Some(1e-9))
                 .unwrap()
                 .breakdown_field;

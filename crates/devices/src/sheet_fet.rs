@@ -145,6 +145,11 @@
 //! gate-drain and gate-source charges. The intrinsic charges follow the conductance profile
 //! (with a density-dependent mobility too, since `A` and `B` are integrals of `σ`).
 //!
+//! # Gate leakage
+//! Where the card has tunnelling data for every insulator layer ([`SheetFetCard::tunnelling`]),
+//! carriers tunnelling through the stack add currents from the gate to the channel's two ends
+//! ([`leakage`]: WKB through the layered barrier, Tsu-Esaki supply, tabulated per stack).
+//!
 //! This is a model estimate: check it against measurement and your process before basing a
 //! design decision on it.
 
@@ -159,7 +164,8 @@ use std::sync::{Arc, Mutex, Weak};
 
 mod contacts;
 mod ends;
-mod insight;
+pub mod insight;
+pub mod leakage;
 pub mod traps;
 
 pub use contacts::{ContactCard, LONG_CHANNEL};
@@ -294,6 +300,9 @@ pub struct SheetFetCard {
     pub natural_length: f64,
     /// Slow traps with their own kinetics ([`traps`]); empty for none.
     pub slow_traps: Vec<TrapGroup>,
+    /// Each insulator layer's bands and tunnelling masses, in the order of `insulator`, for
+    /// the gate leakage ([`leakage`]); empty for a stack without leakage.
+    pub tunnelling: Vec<leakage::Barrier>,
 }
 
 impl Default for SheetFetCard {
@@ -334,6 +343,7 @@ impl Default for SheetFetCard {
             contacts: None,
             natural_length: 0.0,
             slow_traps: Vec::new(),
+            tunnelling: Vec::new(),
         }
     }
 }
@@ -601,6 +611,7 @@ impl SheetFetCard {
         self.validate_contacts()?;
         crate::mobility::resolve(self)?;
         traps::validate(self)?;
+        leakage::validate(self)?;
         Ok(())
     }
 
@@ -614,7 +625,7 @@ impl SheetFetCard {
     }
 
     /// The card with geometry and contact fields cleared: what the tables depend on.
-    fn stack_key(&self) -> SheetFetCard {
+    pub(crate) fn stack_key(&self) -> SheetFetCard {
         SheetFetCard {
             width: 0.0,
             length: 0.0,
@@ -2334,6 +2345,10 @@ pub struct SheetFet {
     /// The short-channel barrier shift, if the channel is short enough to have one.
     short: Option<ShortChannel>,
     traps: traps::Traps,
+    /// The gate leakage table and `W L / 2` (m²), where the card has tunnelling data.
+    leakage: Option<(Arc<leakage::LeakageTable>, f64)>,
+    /// The card's insulator layers (for the field each carries, [`insight`]).
+    layers: Vec<Layer>,
 }
 
 const PINS: &[&str] = &["drain", "gate", "source"];
@@ -2388,6 +2403,8 @@ impl SheetFet {
             + usize::from(schottky || card.drain_resistance > 0.0)
             + usize::from(schottky || card.source_resistance > 0.0);
         let traps = traps::Traps::new(card, &model, card.width * card.length, first_trap);
+        let leakage = leakage::LeakageTable::shared(card, &model)
+            .map(|t| (t, 0.5 * card.width * card.length));
         Ok(SheetFet {
             model,
             area: card.width * card.length,
@@ -2403,6 +2420,8 @@ impl SheetFet {
             contacts,
             short: ShortChannel::of(card),
             traps,
+            leakage,
+            layers: card.insulator.clone(),
         })
     }
 
@@ -2668,6 +2687,12 @@ impl Element for SheetFet {
             }
         }
         self.traps.stamp(&self.model, x, vg, &ch, cols, out);
+        for (end, (i, g)) in [d, s]
+            .into_iter()
+            .zip(self.gate_leakage(x[1] - x[d], x[1] - x[s]))
+        {
+            out.branch_current(1, end, i, g);
+        }
     }
 
     fn details(&self, x: &[f64]) -> Vec<lamina_engine::Detail> {

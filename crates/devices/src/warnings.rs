@@ -298,3 +298,35 @@ pub fn plausibility(card: &SheetFetCard, max_gate_voltage: Option<f64>) -> Vec<I
     }
     r.0
 }
+
+/// The operating-point check of each insulator layer's field against its breakdown field:
+/// one message per layer of `device` whose field (from its `Element::details`, names in
+/// [`crate::sheet_fet::insight::FIELD_DETAILS`]) exceeds the layer's breakdown field, naming
+/// the device, the layer, the field and the limit in MV/cm. The fields come from the solved
+/// gate charge (Gauss's law), so unlike [`plausibility`]'s estimate they include the
+/// channel's own potential drop and the flat-band offset.
+pub fn breakdown(device: &str, details: &[(&str, lamina_engine::DetailValue)]) -> Vec<String> {
+    use lamina_engine::DetailValue::Number;
+    let value = |name: &str| {
+        details.iter().find_map(|(k, v)| match v {
+            Number(x, _) if *k == name => Some(*x),
+            _ => None,
+        })
+    };
+    crate::sheet_fet::insight::FIELD_DETAILS
+        .iter()
+        .filter_map(|(field, limit)| {
+            let (f, b) = (value(field)?, value(limit)?);
+            let layer = field.trim_end_matches(" field");
+            (f > b).then(|| {
+                format!(
+                    "device `{device}`: the field across `{layer}` is {} MV/cm, above its \
+                     breakdown field of {} MV/cm (material library); the gate stack would \
+                     break down here",
+                    short(f * 1e-8),
+                    short(b * 1e-8)
+                )
+            })
+        })
+        .collect()
+}

@@ -4,6 +4,7 @@
 use crate::units::Dim;
 use lamina_devices::mobility::{DensityDependence, LatticeModel};
 use lamina_devices::sheet_fet::traps::{trap_key, MAX_TRAP_GROUPS};
+use lamina_devices::sheet_fet::leakage::Barrier;
 use lamina_devices::sheet_fet::valley_key;
 use lamina_devices::sheet_fet::{TrapGroup, TrapKind};
 use lamina_devices::{
@@ -320,6 +321,14 @@ static SHEET_PARAMS: &[ParamSpec] = &[
     maybe("insulator2_layers", Dim::NONE),
     maybe("insulator2_thickness", Dim::LENGTH),
     maybe("insulator2_permittivity", Dim::NONE),
+    maybe("insulator_electron_affinity", ENERGY),
+    maybe("insulator_band_gap", ENERGY),
+    maybe("insulator_electron_tunnelling_mass", Dim::NONE),
+    maybe("insulator_hole_tunnelling_mass", Dim::NONE),
+    maybe("insulator2_electron_affinity", ENERGY),
+    maybe("insulator2_band_gap", ENERGY),
+    maybe("insulator2_electron_tunnelling_mass", Dim::NONE),
+    maybe("insulator2_hole_tunnelling_mass", Dim::NONE),
     maybe("gate_work_function", ENERGY),
     maybe("gate_fermi_velocity", VELOCITY),
     maybe("gate_half_gap", ENERGY),
@@ -984,6 +993,8 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, BuildError> {
     // Insulator layers: a library material with a layer count or thickness, or a
     // permittivity and thickness.
     let mut layers = Vec::new();
+    // Each layer's tunnelling data, where it is a library insulator that has them.
+    let mut barriers = Vec::new();
     for (mat, count, thick, eps) in [
         (
             "insulator",
@@ -1029,6 +1040,9 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, BuildError> {
                 }
             },
         };
+        if layer.is_some() {
+            barriers.push(layer_barrier(v, mat)?);
+        }
         layers.extend(layer);
     }
     if layers.is_empty() {
@@ -1043,6 +1057,11 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, BuildError> {
     }
     card.insulator = layers;
     contact_options(v, &mut card)?;
+    // Gate leakage where every layer has tunnelling data (lamina_devices::sheet_fet::leakage).
+    card.tunnelling = barriers
+        .into_iter()
+        .collect::<Option<Vec<_>>>()
+        .unwrap_or_default();
     card.validate()?;
     Ok(card)
 }
@@ -1218,6 +1237,66 @@ fn contact_options(v: &Values, card: &mut SheetFetCard) -> Result<(), BuildError
         screening_length: v.get(p, "contact_screening_length").unwrap_or(0.0),
     });
     Ok(())
+}
+
+/// The card keys of a layer's tunnelling data (`mat` is `insulator` or `insulator2`).
+const TUNNELLING_KEYS: [&str; 4] = [
+    "electron_affinity",
+    "band_gap",
+    "electron_tunnelling_mass",
+    "hole_tunnelling_mass",
+];
+
+/// The tunnelling data of the layer `mat`: the library insulator's, with any of the four keys
+/// replacing its value; for a layer without a library material, all four keys or none (then
+/// the layer, and so the stack, has no gate leakage).
+fn layer_barrier(v: &Values, mat: &str) -> Result<Option<Barrier>, BuildError> {
+    let p = SHEET_PARAMS;
+    let key = |what: &str| format!("{mat}_{what}");
+    let [chi, gap, me, mh] = TUNNELLING_KEYS.map(|what| {
+        v.get(p, &key(what)).map(|x| {
+            if what.ends_with("mass") {
+                x
+            } else {
+                x / lamina_devices::physics::Q
+            }
+        })
+    });
+    let library = v
+        .text(p, mat)
+        .and_then(|n| materials::insulator_barrier(n).ok());
+    match (library, chi, gap, me, mh) {
+        (Some(b), ..) => Ok(Some(Barrier {
+            electron_affinity: chi.unwrap_or(b.electron_affinity),
+            band_gap: gap.unwrap_or(b.band_gap),
+            electron_mass: me.unwrap_or(b.electron_mass),
+            hole_mass: mh.unwrap_or(b.hole_mass),
+        })),
+        (None, Some(electron_affinity), Some(band_gap), Some(electron_mass), Some(hole_mass)) => {
+            Ok(Some(Barrier {
+                electron_affinity,
+                band_gap,
+                electron_mass,
+                hole_mass,
+            }))
+        }
+        (None, None, None, None, None) => Ok(None),
+        _ => {
+            let given = TUNNELLING_KEYS
+                .iter()
+                .map(|w| key(w))
+                .find(|k| v.get(p, k).is_some())
+                .unwrap_or_else(|| mat.to_string());
+            Err(BuildError::at(
+                &given,
+                format!("`{given}` needs the layer's other tunnelling keys, or `{mat}` set to a library insulator"),
+                format!(
+                    "give all of `{}`, or remove `{given}`",
+                    TUNNELLING_KEYS.map(key).join("`, `")
+                ),
+            ))
+        }
+    }
 }
 
 fn square(p: Polarity, v: &Values) -> SquareLawFet {
@@ -1571,7 +1650,7 @@ pub fn resolved_values(card: &SheetFetCard, o: &CardOrigins) -> Vec<CardValue> {
             || o.setter(&format!("{m}_permittivity")) != Setter::Unset
             || o.setter(&format!("{m}_thickness")) != Setter::Unset
     });
-    for (mat, layer) in present.zip(&card.insulator) {
+    for (k, (mat, layer)) in present.zip(&card.insulator).enumerate() {
         let name = o.text(mat);
         let (eps, thick, count) = (
             format!("{mat}_permittivity"),
@@ -1599,6 +1678,28 @@ pub fn resolved_values(card: &SheetFetCard, o: &CardOrigins) -> Vec<CardValue> {
             let key = format!("{mat}_breakdown_field");
             let origin = library("insulators", name, "breakdown_field").unwrap_or(Origin::Default);
             push(&key, field, "V/m", origin);
+        }
+        if let Some(b) = card.tunnelling.get(k) {
+            let values = [
+                b.electron_affinity,
+                b.band_gap,
+                b.electron_mass,
+                b.hole_mass,
+            ];
+            let library_keys = [
+                "electron_affinity",
+                "band_gap",
+                "tunnelling_electron_mass",
+                "tunnelling_hole_mass",
+            ];
+            for ((what, lib), value) in TUNNELLING_KEYS.iter().zip(library_keys).zip(values) {
+                let key = format!("{mat}_{what}");
+                let origin = by(&key)
+                    .or_else(|| library("insulators", name, lib))
+                    .unwrap_or(Origin::Default);
+                let unit = if what.ends_with("mass") { "m0" } else { "eV" };
+                push(&key, value, unit, origin);
+            }
         }
     }
     // Geometry, temperature, transport and contacts.

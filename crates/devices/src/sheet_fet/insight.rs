@@ -13,12 +13,38 @@
 //! * `saturation`: `Q_s >= Q_th` and either the far end is pinched off (`Q_d < Q_th`) or the
 //!   output conductance has fallen below a tenth of the transconductance (velocity saturation);
 //! * `linear`: otherwise.
+//!
+//! Gate leakage ([`super::leakage`]): the gate current (A, into the gate), the part of it that
+//! leaves through the drain, and its ratio to the drain current's magnitude, with a word: `significant` where the gate current is at least
+//! [`SIGNIFICANT_LEAKAGE`] of the drain current, `negligible` below, `not modelled` for a card
+//! without tunnelling data (a layer given by permittivity and thickness instead of a library
+//! insulator). The leakage is always in the solution where modelled; the word only says
+//! whether it matters next to the drain current.
+//!
+//! Insulator fields: each layer carries `E_i = |Q_g| / (ε_i ε0)` (Gauss's law; the larger gate
+//! charge of the two channel ends), reported beside the layer's breakdown field where the
+//! card has one ([`crate::warnings::breakdown`] turns them into warnings).
 
 use super::SheetFet;
+use crate::physics::EPS0;
 use lamina_engine::{Detail, DetailValue};
 
 /// The mobile charge, relative to the threshold charge, below which a device counts as off.
 const OFF_FRACTION: f64 = 1e-4;
+
+/// The gate current, as a fraction of the drain current, from which the gate leakage counts as
+/// significant: 1e-3, the Newton solve's relative current tolerance, so a smaller leakage
+/// could not be told apart from the drain current's own rounding (common practice for the
+/// tolerance).
+pub const SIGNIFICANT_LEAKAGE: f64 = 1e-3;
+
+/// Detail names of each layer's field and breakdown field, layer by layer (the card keys'
+/// names for the first two; further layers exist only through the API and share the third).
+pub const FIELD_DETAILS: [(&str, &str); 3] = [
+    ("insulator field", "insulator breakdown field"),
+    ("insulator2 field", "insulator2 breakdown field"),
+    ("further layer field", "further layer breakdown field"),
+];
 
 impl SheetFet {
     /// Densities at both channel ends and the operating region at local unknowns `x`
@@ -58,7 +84,22 @@ impl SheetFet {
             name,
             value: DetailValue::Number(v, "1/m^2"),
         };
-        vec![
+        let mut leak = self.leakage_details(vd, vg, vs, ch.current.v);
+        let gate_charge = at_s.gate_charge.abs().max(at_d.gate_charge.abs());
+        for (k, l) in self.layers.iter().enumerate() {
+            let (field, breakdown) = FIELD_DETAILS[k.min(2)];
+            leak.push(Detail {
+                name: field,
+                value: DetailValue::Number(gate_charge / (l.permittivity * EPS0), "V/m"),
+            });
+            if let Some(b) = l.breakdown_field {
+                leak.push(Detail {
+                    name: breakdown,
+                    value: DetailValue::Number(b, "V/m"),
+                });
+            }
+        }
+        let mut all = vec![
             Detail {
                 name: "region",
                 value: DetailValue::Word(region),
@@ -74,6 +115,43 @@ impl SheetFet {
             Detail {
                 name: "threshold charge density",
                 value: DetailValue::Number(q_th / q, "1/m^2"),
+            },
+        ];
+        all.append(&mut leak);
+        all
+    }
+
+    /// The gate current, its ratio to `|I_D|` and whether it matters.
+    fn leakage_details(&self, vd: f64, vg: f64, vs: f64, drain: f64) -> Vec<Detail> {
+        if self.leakage.is_none() {
+            return vec![Detail {
+                name: "gate leakage",
+                value: DetailValue::Word("not modelled"),
+            }];
+        }
+        let [(to_drain, _), (to_source, _)] = self.gate_leakage(vg - vd, vg - vs);
+        let gate = to_drain + to_source;
+        let ratio = gate.abs() / drain.abs();
+        vec![
+            Detail {
+                name: "gate leakage",
+                value: DetailValue::Word(if ratio >= SIGNIFICANT_LEAKAGE {
+                    "significant"
+                } else {
+                    "negligible"
+                }),
+            },
+            Detail {
+                name: "gate leakage current",
+                value: DetailValue::Number(gate, "A"),
+            },
+            Detail {
+                name: "gate leakage to drain",
+                value: DetailValue::Number(to_drain, "A"),
+            },
+            Detail {
+                name: "gate leakage ratio",
+                value: DetailValue::Number(ratio, "1"),
             },
         ]
     }
