@@ -27,6 +27,8 @@ pub enum Method {
     Euler,
     /// Variable-step BDF2 (second order).
     Bdf2,
+    /// Variable-order BDF (orders 1 to 5, chosen from error estimates).
+    VariableBdf,
 }
 
 /// Flags of `lamina ring`.
@@ -198,6 +200,7 @@ pub(crate) fn method(m: Method) -> Integrator {
         Method::Trapezoidal => Integrator::Trapezoidal,
         Method::Euler => Integrator::BackwardEuler,
         Method::Bdf2 => Integrator::Bdf2,
+        Method::VariableBdf => Integrator::VariableBdf,
     }
 }
 
