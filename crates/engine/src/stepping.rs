@@ -4,7 +4,9 @@
 //! # Predictor and error estimate (Milne's device)
 //! Newton starts each step from the polynomial through the last accepted points, extrapolated
 //! to the new time: as many points as the formula's order plus one (linear for backward Euler,
-//! quadratic for the trapezoidal rule and BDF2), fewer just after a restart. The same
+//! quadratic for the trapezoidal rule and BDF2, `k + 1` points for the variable-order formula
+//! at order `k`), fewer just after a restart. The variable-order formula's estimates are in the
+//! `bdf` module (the same device, from divided differences, at three orders). The same
 //! polynomial, applied to the charges, predicts `q^P`; the corrector's answer `q^C` differs from
 //! it by (with `p` the order, `t_j` the points used, `C` the formula's error constant in
 //! `q^C - q(t_{n+1}) ≈ C h^{p+1} q^{(p+1)}`)

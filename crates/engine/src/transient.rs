@@ -8,10 +8,22 @@
 //! * trapezoidal (TR): `2 (q_{n+1} - q_n) / h - q'_n`, second order, A-stable, no damping;
 //! * BDF2 with variable step (ratio `ω = h / h_{n-1}`):
 //!   `α₀ q_{n+1} + α₁ q_n + α₂ q_{n-1}` with `α₀ = (1 + 2ω) / (h (1 + ω))`,
-//!   `α₁ = -(1 + ω) / h`, `α₂ = ω² / (h (1 + ω))`; second order, L-stable.
+//!   `α₁ = -(1 + ω) / h`, `α₂ = ω² / (h (1 + ω))`; second order, L-stable;
+//! * variable-order BDF (`Integrator::VariableBdf`): the derivative at `t_{n+1}` of the
+//!   polynomial through the new and the last `k` charges, `k` from 1 to 5 chosen as the run
+//!   goes from error estimates at `k - 1`, `k` and `k + 1` (coefficients, estimates, order
+//!   rule and sources in the `bdf` module). Its own controller set point (0.11) and a history
+//!   of six points.
+//!
+//! When to choose which: the trapezoidal rule (the default) is second order without damping,
+//! so it keeps the energy of a lossless resonance; the variable-order formula takes fewer and
+//! longer steps on smooth waveforms and damped circuits (logic, rings: measured in
+//! DEVELOPERS.md, "Stepping"), but orders 3 to 5 damp, and may lose stability for, weakly
+//! damped oscillations resolved with few steps per period; backward Euler and BDF2 damp
+//! strongly and suit stiff start-ups.
 //!
 //! Newton starts each step from the polynomial through the last accepted points (linear for
-//! backward Euler, quadratic for the second-order formulas). The local truncation error is
+//! backward Euler, quadratic for the second-order formulas, of degree `k` for order `k`). The local truncation error is
 //! estimated per charge row from the difference between the charges Newton finds and the same
 //! polynomial's prediction (Milne's device; equal to the divided difference of the charges
 //! including the new point, Brayton, Gustavson and Hachtel, Proc. IEEE 1972). A step is
@@ -561,7 +573,9 @@ impl System {
             // Truncation-error test: Milne's device on the charges (see `stepping`).
             let mut k_exp = 2.0;
             let mut ratio: Option<f64> = None;
-            if !fixed && !rows.is_empty() && method == Integrator::VariableBdf {
+            // The variable-order estimates also choose the order at fixed steps (they then
+            // reject nothing).
+            if !rows.is_empty() && method == Integrator::VariableBdf {
                 let est = Estimator::new(t_new, &hist.t, hist.valid, order);
                 let mut r = Ratios {
                     lower: est.has_lower().then_some(0.0),
@@ -581,7 +595,7 @@ impl System {
                 }
                 bdf_ratios = r;
                 k_exp = (order + 1) as f64;
-                ratio = Some(r.same);
+                ratio = (!fixed).then_some(r.same);
             } else if !fixed && !rows.is_empty() {
                 // Points the estimate needs: the formula's order plus one, with the new point.
                 let m_err = if method == Integrator::BackwardEuler {
@@ -681,23 +695,17 @@ impl System {
             if method == Integrator::VariableBdf {
                 stats.orders[order - 1] += 1;
             }
-            h = match p.stepping {
-                Stepping::Fixed(hf) => hf,
-                Stepping::Adaptive => match ratio {
-                    Some(r) => {
-                        let changed = (method == Integrator::VariableBdf)
-                            .then(|| orders.accepted(order, &bdf_ratios))
-                            .flatten();
-                        match changed {
-                            Some(f) => {
-                                control.reset();
-                                step * f
-                            }
-                            None => control.accepted(step, r, k_exp),
-                        }
-                    }
-                    None => step * 1.5,
-                },
+            let changed = (method == Integrator::VariableBdf && !rows.is_empty())
+                .then(|| orders.accepted(order, &bdf_ratios))
+                .flatten();
+            h = match (p.stepping, changed, ratio) {
+                (Stepping::Fixed(hf), _, _) => hf,
+                (Stepping::Adaptive, Some(f), _) => {
+                    control.reset();
+                    step * f
+                }
+                (Stepping::Adaptive, None, Some(r)) => control.accepted(step, r, k_exp),
+                (Stepping::Adaptive, None, None) => step * 1.5,
             };
             if lands_on_bp {
                 stats.breakpoints += 1;
