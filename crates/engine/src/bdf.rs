@@ -294,9 +294,8 @@ impl OrderControl {
 mod tests {
     use super::*;
     use crate::dc::Probe;
-    use crate::elements::{Capacitor, Resistor, Sine, VoltageSource, Waveform};
+    use crate::transient::tests::driven_rc;
     use crate::transient::{Integrator, Start, TransientParams};
-    use crate::{Circuit, System};
 
     /// Equal steps give the classical coefficients times `h` (E. Hairer, G. Wanner, Solving
     /// Ordinary Differential Equations II, 1996, sect. III.1; recalled from memory).
@@ -416,28 +415,6 @@ mod tests {
                 "order {k}: measured {order:.3} ({coarse:e}, {fine:e})"
             );
         }
-    }
-
-    fn driven_rc() -> (System, crate::circuit::NodeId, f64) {
-        let (r, cap) = (1e3, 1e-12);
-        let tau = r * cap;
-        let mut c = Circuit::new();
-        let input = c.node("in");
-        let out = c.node("out");
-        let sine = Waveform::sine(Sine {
-            offset: 0.0,
-            amplitude: 1.0,
-            frequency: 1.0 / (2.0 * std::f64::consts::PI * tau),
-            delay: 0.0,
-            phase: 0.0,
-        })
-        .unwrap();
-        c.add("drive", VoltageSource::new(sine), &[input, Circuit::GROUND])
-            .unwrap();
-        c.add("r", Resistor::new(r), &[input, out]).unwrap();
-        c.add("c", Capacitor::new(cap), &[out, Circuit::GROUND])
-            .unwrap();
-        (System::new(c).unwrap(), out, tau)
     }
 
     /// On a smooth problem (the RC low-pass driven at ωτ = 1 from rest, closed form as above)
