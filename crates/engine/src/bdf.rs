@@ -297,10 +297,8 @@ impl OrderControl {
 mod tests {
     use super::*;
     use crate::dc::Probe;
-    use crate::elements::{Capacitor, Inductor};
     use crate::transient::tests::driven_rc;
     use crate::transient::{Integrator, Start, TransientParams};
-    use crate::{Circuit, System};
 
     /// Equal steps give the classical coefficients times `h` (E. Hairer, G. Wanner, Solving
     /// Ordinary Differential Equations II, 1996, sect. III.1; recalled from memory).
