@@ -71,6 +71,9 @@ pub struct RingParams {
     /// Most samples kept of the waveforms [`run_ring_recorded`] returns (default 32768; at
     /// least 2 are kept, the first and the last).
     pub wave_samples: usize,
+    /// Device bypass tolerance as a multiple of the Newton update tolerance
+    /// (`TransientParams::bypass`, default 1; 0 evaluates every device at every iteration).
+    pub bypass: f64,
 }
 
 impl Default for RingParams {
@@ -84,6 +87,7 @@ impl Default for RingParams {
             time_limit: 1e-3,
             stall_delays: 200.0,
             wave_samples: 1 << 15,
+            bypass: 1.0,
         }
     }
 }
@@ -295,6 +299,7 @@ fn transient_params(params: &RingParams) -> TransientParams {
         TransientParams::new(params.time_limit)
     };
     tp.integrator = params.integrator;
+    tp.bypass = params.bypass;
     tp.min_step = Some(params.time_limit * 1e-15);
     tp.output = Output::Streaming;
     tp

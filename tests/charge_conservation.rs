@@ -41,7 +41,11 @@ fn floating_loop(strategy: LuStrategy) -> System {
 #[test]
 fn floating_node_returns_to_zero_after_100_periods() {
     for strategy in [LuStrategy::FixedPivot, LuStrategy::FaerOnly] {
-        for integrator in [Integrator::Trapezoidal, Integrator::BackwardEuler] {
+        for integrator in [
+            Integrator::Trapezoidal,
+            Integrator::BackwardEuler,
+            Integrator::VariableBdf,
+        ] {
             for stepping in [Stepping::Adaptive, Stepping::Fixed(PERIOD / 100.0)] {
                 let mut sys = floating_loop(strategy);
                 let (a, x) = (sys.find_node("a").unwrap(), sys.find_node("x").unwrap());

@@ -5,6 +5,7 @@ use lamina_engine::elements::{Capacitor, Inductor, Resistor, VoltageSource};
 use lamina_engine::lu::LuStrategy;
 use lamina_engine::{
     Circuit, Integrator, NodeId, Output, Probe, Start, Stepping, System, TransientParams,
+    TransientStats,
 };
 
 const STRATEGIES: [LuStrategy; 2] = [LuStrategy::FixedPivot, LuStrategy::FaerOnly];
@@ -178,6 +179,36 @@ fn series_rlc_step_follows_the_underdamped_response() {
     }
 }
 
+/// An LC tank run with `p` from v_C(0) = 1 V, i_L(0) = 0: the energy ½Cv² + ½Li² at every
+/// sample, and the run's counters.
+fn lc_tank_run(
+    l: f64,
+    cap: f64,
+    strategy: LuStrategy,
+    p: &TransientParams,
+) -> (Vec<f64>, TransientStats) {
+    let mut c = Circuit::new();
+    let top = c.node("top");
+    c.add("c", Capacitor::new(cap), &[top, Circuit::GROUND])
+        .unwrap();
+    let ind = c
+        .add("l", Inductor::new(l), &[top, Circuit::GROUND])
+        .unwrap();
+    let mut sys = System::with_strategy(c, strategy).unwrap();
+    let res = sys
+        .transient(
+            p,
+            &Start::Given(vec![(top, 1.0)]),
+            &[Probe::Voltage(top), Probe::Current(ind)],
+            None,
+        )
+        .unwrap();
+    let energy = (0..res.time.len())
+        .map(|k| 0.5 * cap * res.signals[0][k].powi(2) + 0.5 * l * res.signals[1][k].powi(2))
+        .collect();
+    (energy, res.stats)
+}
+
 /// LC tank from v_C(0) = 1 V, i_L(0) = 0: the trapezoidal rule conserves ½Cv² + ½Li² exactly
 /// (|R(iθ)| = 1), backward Euler multiplies it by exactly 1/(1 + (ωh)²) per step
 /// (E. Hairer, C. Lubich, G. Wanner, Geometric Numerical Integration, 2nd ed., 2006).
@@ -189,15 +220,6 @@ fn lc_tank_energy() {
     let h = period / 100.0;
     for strategy in STRATEGIES {
         for integrator in [Integrator::Trapezoidal, Integrator::BackwardEuler] {
-            let mut c = Circuit::new();
-            let top = c.node("top");
-            c.add("c", Capacitor::new(cap), &[top, Circuit::GROUND])
-                .unwrap();
-            let ind = c
-                .add("l", Inductor::new(l), &[top, Circuit::GROUND])
-                .unwrap();
-            let mut sys = System::with_strategy(c, strategy).unwrap();
-            let top = sys.find_node("top").unwrap();
             let mut p = TransientParams::new(if integrator == Integrator::Trapezoidal {
                 100.0 * period
             } else {
@@ -209,19 +231,10 @@ fn lc_tank_energy() {
             p.tol.reltol = 1e-12;
             p.tol.vntol = 1e-15;
             p.tol.abstol = 1e-18;
-            let res = sys
-                .transient(
-                    &p,
-                    &Start::Given(vec![(top, 1.0)]),
-                    &[Probe::Voltage(top), Probe::Current(ind)],
-                    None,
-                )
-                .unwrap();
-            let energy = |k: usize| {
-                0.5 * cap * res.signals[0][k].powi(2) + 0.5 * l * res.signals[1][k].powi(2)
-            };
+            let (energies, _) = lc_tank_run(l, cap, strategy, &p);
+            let energy = |k: usize| energies[k];
             let e0 = energy(0);
-            let last = res.time.len() - 1;
+            let last = energies.len() - 1;
             let steps = last as i32;
             match integrator {
                 Integrator::Trapezoidal => {
@@ -242,5 +255,36 @@ fn lc_tank_energy() {
                 }
             }
         }
+    }
+}
+
+/// The same tank over 50 periods with the variable-order formula at the default adaptive
+/// tolerances: its orders 3 to 5 are not A-stable, so the error test must keep the steps where
+/// the formula damps; the energy never grows. The formulas damp a resonance instead (a known
+/// behaviour, E. Hairer, G. Wanner, Solving Ordinary Differential Equations II, 1996, sect.
+/// V.2): measured 2.7 % lost over the 50 periods, where the trapezoidal rule keeps it;
+/// asserted under 5 %.
+#[test]
+fn variable_order_never_amplifies_a_lossless_tank() {
+    let (l, cap): (f64, f64) = (1e-6, 1e-9);
+    let period = 2.0 * std::f64::consts::PI * (l * cap).sqrt();
+    for strategy in STRATEGIES {
+        let mut p = TransientParams::new(50.0 * period);
+        p.integrator = Integrator::VariableBdf;
+        let (energy, stats) = lc_tank_run(l, cap, strategy, &p);
+        let e0 = energy[0];
+        let most = energy.iter().fold(0.0f64, |a, &b| a.max(b));
+        let last = *energy.last().unwrap();
+        assert!(
+            most <= e0 * (1.0 + 1e-3),
+            "energy rose to {} of the start",
+            most / e0
+        );
+        assert!(
+            last >= 0.95 * e0,
+            "energy fell to {} of the start",
+            last / e0
+        );
+        assert!(stats.orders[2..].iter().sum::<usize>() > 0, "{stats:?}");
     }
 }

@@ -27,6 +27,8 @@ pub enum Method {
     Euler,
     /// Variable-step BDF2 (second order).
     Bdf2,
+    /// Variable-order BDF (orders 1 to 5, chosen from error estimates).
+    VariableBdf,
 }
 
 /// Flags of `lamina ring`.
@@ -52,6 +54,12 @@ pub struct Args {
     /// Use the tighter reference tolerances.
     #[arg(long)]
     pub reference: bool,
+    /// Device bypass: a device whose terminal voltages and predicted currents and charges
+    /// moved by less than this multiple of the Newton tolerances since its last evaluation
+    /// reuses that evaluation, expanded to first order (default 1; 0 evaluates every device
+    /// at every Newton iteration). Only the 2D-channel FET is ever bypassed.
+    #[arg(long, value_name = "FACTOR", default_value_t = 1.0)]
+    pub bypass_factor: f64,
     /// Estimate by edge travel (the time the single edge takes between two nodes) instead of
     /// whole periods: for long rings, where a period is costly.
     #[arg(long)]
@@ -78,11 +86,19 @@ pub fn run(a: Args) -> Result<(), JobError> {
             "--show chooses the waveforms --out writes; add --out DIR".into(),
         ));
     }
+    if !(a.bypass_factor.is_finite() && a.bypass_factor >= 0.0) {
+        return Err(JobError::Usage(format!(
+            "--bypass-factor {}: give a finite factor of 0 or more (0 turns the bypass off, 1 is \
+             the default)",
+            a.bypass_factor
+        )));
+    }
     let set_out = OutputSet::begin_opt(a.out.as_deref())?;
     let params = RingParams {
         integrator: method(a.integrator),
         reference: a.reference,
         edge: a.edge,
+        bypass: a.bypass_factor,
         ..RingParams::default()
     };
     let (mut system, ring, params) = match (&a.file, a.builtin) {
@@ -198,6 +214,7 @@ pub(crate) fn method(m: Method) -> Integrator {
         Method::Trapezoidal => Integrator::Trapezoidal,
         Method::Euler => Integrator::BackwardEuler,
         Method::Bdf2 => Integrator::Bdf2,
+        Method::VariableBdf => Integrator::VariableBdf,
     }
 }
 

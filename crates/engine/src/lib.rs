@@ -12,7 +12,8 @@
 //!   the whole run, buffers, and the sparse LU's symbolic analysis ([`lu`]).
 //! * Analyses on a [`System`]: [`System::operating_point`] (with gmin stepping, source
 //!   stepping and pseudo-transient fallbacks), [`System::dc_sweep`] and
-//!   [`System::transient`] (backward Euler, trapezoidal or BDF2 with adaptive steps).
+//!   [`System::transient`] (backward Euler, trapezoidal, BDF2 or variable-order BDF 1-5, with
+//!   adaptive steps).
 //! * Linearised at a solution: [`System::linearize`] (`G`, `C`),
 //!   [`System::element_linearization`] (one element seen from its pins) and
 //!   [`System::small_signal`] (`(G + jωC) X = B` over a list of frequencies).
@@ -42,6 +43,7 @@
 
 #![deny(missing_docs)]
 
+mod bdf;
 mod circuit;
 mod dc;
 pub mod element;

@@ -4,7 +4,9 @@
 //! # Predictor and error estimate (Milne's device)
 //! Newton starts each step from the polynomial through the last accepted points, extrapolated
 //! to the new time: as many points as the formula's order plus one (linear for backward Euler,
-//! quadratic for the trapezoidal rule and BDF2), fewer just after a restart. The same
+//! quadratic for the trapezoidal rule and BDF2, `k + 1` points for the variable-order formula
+//! at order `k`), fewer just after a restart. The variable-order formula's estimates are in the
+//! `bdf` module (the same device, from divided differences, at three orders). The same
 //! polynomial, applied to the charges, predicts `q^P`; the corrector's answer `q^C` differs from
 //! it by (with `p` the order, `t_j` the points used, `C` the formula's error constant in
 //! `q^C - q(t_{n+1}) ≈ C h^{p+1} q^{(p+1)}`)
@@ -57,6 +59,7 @@
 //! with no charge for the truncation-error test to watch. The charges stored are those of the accepted
 //! unknowns, carried to first order along the last update as before.
 
+use crate::bdf::HISTORY;
 use crate::system::NewtonInfo;
 
 /// Growth of the quadratic-convergence constant per step solved in one iteration.
@@ -71,27 +74,41 @@ const KI: f64 = 0.6;
 const KP: f64 = 0.3;
 /// Largest growth and shrink per accepted step.
 const MAX_GROWTH: f64 = 2.0;
-const MIN_CHANGE: f64 = 0.25;
+pub(crate) const MIN_CHANGE: f64 = 0.25;
 /// Safety factor and bounds of the retry after a rejection.
 const REJECT_SAFETY: f64 = 0.9;
 const REJECT_MIN: f64 = 0.1;
 const REJECT_MAX: f64 = 0.9;
 
 /// The proportional-integral step controller (see the module doc).
-#[derive(Clone, Copy, Debug, Default)]
+#[derive(Clone, Copy, Debug)]
 pub(crate) struct Controller {
     /// The error ratio of the previous accepted step, when it counts.
     prev: Option<f64>,
+    /// The set point θ.
+    target: f64,
+}
+
+impl Default for Controller {
+    fn default() -> Self {
+        Controller::with_target(TARGET)
+    }
 }
 
 impl Controller {
+    /// A controller aiming at the error ratio `target` (the variable-order formula uses its
+    /// own, `bdf::TARGET`).
+    pub(crate) fn with_target(target: f64) -> Self {
+        Controller { prev: None, target }
+    }
+
     /// The step after an accepted step of length `step` with error ratio `ratio` and
     /// estimate exponent `k`.
     pub(crate) fn accepted(&mut self, step: f64, ratio: f64, k: f64) -> f64 {
         let r = ratio.max(1e-10);
         let factor = match self.prev {
-            Some(prev) => (TARGET / r).powf(KI / k) * (prev / r).powf(KP / k),
-            None => (TARGET / r).powf(1.0 / k),
+            Some(prev) => (self.target / r).powf(KI / k) * (prev / r).powf(KP / k),
+            None => (self.target / r).powf(1.0 / k),
         };
         self.prev = Some(r);
         step * factor.clamp(MIN_CHANGE, MAX_GROWTH)
@@ -120,28 +137,24 @@ pub(crate) fn next_quadratic(prev: Option<f64>, info: &NewtonInfo) -> Option<f64
     }
 }
 
-/// Weights `w_j` of the polynomial through the points `t[j]` (newest first, `m` of them,
-/// 1 to 3), evaluated at `t_new`: the prediction is `Σ w_j y_j`.
-pub(crate) fn extrapolation_weights(t_new: f64, t: &[f64; 3], m: usize) -> [f64; 3] {
-    match m {
-        0 | 1 => [1.0, 0.0, 0.0],
-        2 => {
-            let r = (t_new - t[0]) / (t[0] - t[1]);
-            [1.0 + r, -r, 0.0]
+/// Weights `w_j` of the polynomial through the points `t[j]` (newest first, `m` of them, 1 to
+/// [`HISTORY`]), evaluated at `t_new`: the prediction is `Σ w_j y_j` (Lagrange's form).
+pub(crate) fn extrapolation_weights(t_new: f64, t: &[f64], m: usize) -> [f64; HISTORY] {
+    let mut w = [0.0; HISTORY];
+    for (j, wj) in w.iter_mut().enumerate().take(m.max(1)) {
+        let mut v = 1.0;
+        for (i, ti) in t.iter().enumerate().take(m) {
+            if i != j {
+                v *= (t_new - ti) / (t[j] - ti);
+            }
         }
-        _ => {
-            let (a, b, c) = (t[0], t[1], t[2]);
-            [
-                (t_new - b) * (t_new - c) / ((a - b) * (a - c)),
-                (t_new - a) * (t_new - c) / ((b - a) * (b - c)),
-                (t_new - a) * (t_new - b) / ((c - a) * (c - b)),
-            ]
-        }
+        *wj = v;
     }
+    w
 }
 
 /// `out = Σ_{j < m} w_j points_j`: the prediction from the newest `m` points.
-pub(crate) fn predict_into(w: &[f64; 3], points: &[Vec<f64>; 3], m: usize, out: &mut [f64]) {
+pub(crate) fn predict_into(w: &[f64], points: &[Vec<f64>], m: usize, out: &mut [f64]) {
     out.fill(0.0);
     for (wj, pj) in w.iter().zip(points).take(m) {
         for (o, v) in out.iter_mut().zip(pj) {
@@ -153,7 +166,7 @@ pub(crate) fn predict_into(w: &[f64; 3], points: &[Vec<f64>; 3], m: usize, out: 
 /// The fraction of the predictor-corrector difference that is the local truncation error, for
 /// a step `h` whose predictor used the points `t[..m]` (newest first) and a corrector whose
 /// error is `coef · q^{(m)}` (see the module doc).
-pub(crate) fn milne_fraction(t_new: f64, t: &[f64; 3], m: usize, coef: f64) -> f64 {
+pub(crate) fn milne_fraction(t_new: f64, t: &[f64], m: usize, coef: f64) -> f64 {
     let mut prod = 1.0;
     let mut fact = 1.0;
     for (j, tj) in t.iter().take(m).enumerate() {
@@ -178,7 +191,7 @@ mod tests {
         let w = extrapolation_weights(4.0, &t, 2);
         let p: f64 = (0..2).map(|j| w[j] * g(t[j])).sum();
         assert!((p - g(4.0)).abs() < 1e-12);
-        assert_eq!(extrapolation_weights(4.0, &t, 1), [1.0, 0.0, 0.0]);
+        assert_eq!(extrapolation_weights(4.0, &t, 1)[..3], [1.0, 0.0, 0.0]);
     }
 
     /// Equal steps: the trapezoidal rule's estimate is 1/13 of the difference from the

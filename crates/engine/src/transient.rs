@@ -8,10 +8,22 @@
 //! * trapezoidal (TR): `2 (q_{n+1} - q_n) / h - q'_n`, second order, A-stable, no damping;
 //! * BDF2 with variable step (ratio `ω = h / h_{n-1}`):
 //!   `α₀ q_{n+1} + α₁ q_n + α₂ q_{n-1}` with `α₀ = (1 + 2ω) / (h (1 + ω))`,
-//!   `α₁ = -(1 + ω) / h`, `α₂ = ω² / (h (1 + ω))`; second order, L-stable.
+//!   `α₁ = -(1 + ω) / h`, `α₂ = ω² / (h (1 + ω))`; second order, L-stable;
+//! * variable-order BDF (`Integrator::VariableBdf`): the derivative at `t_{n+1}` of the
+//!   polynomial through the new and the last `k` charges, `k` from 1 to 5 chosen as the run
+//!   goes from error estimates at `k - 1`, `k` and `k + 1` (coefficients, estimates, order
+//!   rule and sources in the `bdf` module). Its own controller set point (0.11) and a history
+//!   of six points.
+//!
+//! When to choose which: the trapezoidal rule (the default) is second order without damping,
+//! so it keeps the energy of a lossless resonance; the variable-order formula takes fewer and
+//! longer steps on smooth waveforms and damped circuits (logic, rings: measured in
+//! DEVELOPERS.md, "Stepping"), but orders 3 to 5 damp, and may lose stability for, weakly
+//! damped oscillations resolved with few steps per period; backward Euler and BDF2 damp
+//! strongly and suit stiff start-ups.
 //!
 //! Newton starts each step from the polynomial through the last accepted points (linear for
-//! backward Euler, quadratic for the second-order formulas). The local truncation error is
+//! backward Euler, quadratic for the second-order formulas, of degree `k` for order `k`). The local truncation error is
 //! estimated per charge row from the difference between the charges Newton finds and the same
 //! polynomial's prediction (Milne's device; equal to the divided difference of the charges
 //! including the new point, Brayton, Gustavson and Hachtel, Proc. IEEE 1972). A step is
@@ -45,6 +57,9 @@
 //!   result's `time` and signals are empty. Jobs that measure while the run goes (crossings,
 //!   integrals) use it.
 
+use crate::bdf::{
+    coefficients, Accept, Differences, Estimator, OrderControl, Ratios, HISTORY, MAX_ORDER,
+};
 use crate::circuit::NodeId;
 use crate::dc::{OpInfo, OpParams, Probe};
 use crate::element::{Analysis, EvalContext};
@@ -65,6 +80,9 @@ pub enum Integrator {
     Trapezoidal,
     /// Variable-step second-order backward differentiation.
     Bdf2,
+    /// Variable-order (1 to 5), variable-step backward differentiation, the order chosen
+    /// from error estimates at the neighbouring orders (see the `bdf` module).
+    VariableBdf,
 }
 
 /// How the step is chosen.
@@ -199,6 +217,9 @@ pub struct TransientStats {
     pub newton_iterations: usize,
     /// Breakpoints landed on.
     pub breakpoints: usize,
+    /// Accepted steps of the variable-order formula at each order 1 to 5 (zero for the
+    /// fixed-order formulas).
+    pub orders: [usize; MAX_ORDER],
     /// Time reached.
     pub end_time: f64,
     /// LU solver counters at the end of the run.
@@ -221,23 +242,34 @@ pub struct TransientResult {
 }
 
 struct History {
-    /// Accepted times, charges and unknowns, newest first: index 0 is t_n.
-    t: [f64; 3],
-    q: [Vec<f64>; 3],
-    x: [Vec<f64>; 3],
+    /// Accepted times, charges and unknowns, newest first: index 0 is t_n. The fixed-order
+    /// formulas keep 3 points, the variable-order one [`HISTORY`].
+    t: [f64; HISTORY],
+    q: Vec<Vec<f64>>,
+    x: Vec<Vec<f64>>,
     /// Accepted points since the last restart (t_n counts).
     valid: usize,
 }
 
 impl History {
+    fn new(points: usize, q0: &[f64], x0: &[f64]) -> Self {
+        History {
+            t: [0.0; HISTORY],
+            q: vec![q0.to_vec(); points],
+            x: vec![x0.to_vec(); points],
+            valid: 1,
+        }
+    }
+
     fn push(&mut self, t: f64, q_rows: &[f64], x: &[f64]) {
+        let cap = self.q.len();
         self.q.rotate_right(1);
         self.x.rotate_right(1);
-        self.t.rotate_right(1);
+        self.t[..cap].rotate_right(1);
         self.t[0] = t;
         self.q[0].copy_from_slice(q_rows);
         self.x[0].copy_from_slice(x);
-        self.valid = (self.valid + 1).min(3);
+        self.valid = (self.valid + 1).min(cap);
     }
 }
 
@@ -361,12 +393,23 @@ impl System {
         // first step after it can be error-checked (true at t = 0, false after a breakpoint).
         let mut rate_known = true;
         let mut qref: Vec<f64> = q0.iter().map(|v| v.abs()).collect();
-        let mut hist = History {
-            t: [0.0; 3],
-            q: [q0.clone(), q0.clone(), q0.clone()],
-            x: [x.clone(), x.clone(), x.clone()],
-            valid: 1,
+        let variable = p.integrator == Integrator::VariableBdf;
+        let mut hist = History::new(if variable { HISTORY } else { 3 }, &q0, &x);
+        let mut orders = OrderControl::default();
+        // Per charge row, its divided differences over the accepted points (variable order).
+        let mut phi: Vec<Differences> = if variable {
+            q0.iter()
+                .map(|&q| {
+                    let mut d = [0.0; HISTORY];
+                    d[0] = q;
+                    d
+                })
+                .collect()
+        } else {
+            Vec::new()
         };
+        // The order of the step being taken (variable-order runs), and its error ratios.
+        let mut bdf_ratios = Ratios::default();
         // The charge rates at t = 0 from KCL at the start state; they seed the trapezoidal
         // rule only when the first step is not damped (the start must then be consistent).
         let mut qdot = rate0.clone();
@@ -414,7 +457,11 @@ impl System {
         };
         let fixed = matches!(p.stepping, Stepping::Fixed(_));
         let mut last_failure: Option<NewtonFailure> = None;
-        let mut control = Controller::default();
+        let mut control = if variable {
+            Controller::with_target(crate::bdf::TARGET)
+        } else {
+            Controller::default()
+        };
         // Newton's quadratic-convergence constant, and the share of the Newton tolerance its
         // estimated error may take: the ratio of the truncation-error to the Newton relative
         // tolerance, so the accepted state is as close to the formula's solution as the
@@ -440,13 +487,22 @@ impl System {
                 return Err(self.step_error(t, step, last_failure.take(), last_fail_time));
             }
             let method = if (restart && p.damp_breakpoints)
-                || (p.integrator == Integrator::Bdf2 && hist.valid < 2)
+                || (matches!(p.integrator, Integrator::Bdf2 | Integrator::VariableBdf)
+                    && hist.valid < 2)
             {
                 Integrator::BackwardEuler
             } else {
                 p.integrator
             };
             let t_new = t + step;
+            // Variable order: as high as asked and the history allows (the estimate needs one
+            // old point more than the formula).
+            let order = orders.order().min(hist.valid - 1).max(1);
+            let alpha = if method == Integrator::VariableBdf {
+                coefficients(t_new, &hist.t, order)
+            } else {
+                [0.0; MAX_ORDER + 1]
+            };
             let a0 = match method {
                 Integrator::BackwardEuler => 1.0 / step,
                 Integrator::Trapezoidal => 2.0 / step,
@@ -454,6 +510,7 @@ impl System {
                     let w = step / (hist.t[0] - hist.t[1]);
                     (1.0 + 2.0 * w) / (step * (1.0 + w))
                 }
+                Integrator::VariableBdf => alpha[0],
             };
             hist_vec.fill(0.0);
             for (k, &r) in rows.iter().enumerate() {
@@ -466,13 +523,16 @@ impl System {
                         let a2 = w * w / (step * (1.0 + w));
                         a1 * hist.q[0][k] + a2 * hist.q[1][k]
                     }
+                    Integrator::VariableBdf => {
+                        (1..=order).map(|j| alpha[j] * hist.q[j - 1][k]).sum()
+                    }
                 };
             }
             // Predictor: the polynomial of the formula's order through the accepted points.
-            let m_pred = hist.valid.min(if method == Integrator::BackwardEuler {
-                2
-            } else {
-                3
+            let m_pred = hist.valid.min(match method {
+                Integrator::BackwardEuler => 2,
+                Integrator::VariableBdf => order + 1,
+                _ => 3,
             });
             let w = extrapolation_weights(t_new, &hist.t, m_pred);
             predict_into(&w, &hist.x, m_pred, &mut x_new);
@@ -513,7 +573,30 @@ impl System {
             // Truncation-error test: Milne's device on the charges (see `stepping`).
             let mut k_exp = 2.0;
             let mut ratio: Option<f64> = None;
-            if !fixed && !rows.is_empty() {
+            // The variable-order estimates also choose the order at fixed steps (they then
+            // reject nothing).
+            if !rows.is_empty() && method == Integrator::VariableBdf {
+                let est = Estimator::new(t_new, &hist.t, hist.valid, order);
+                let mut r = Ratios {
+                    lower: est.has_lower().then_some(0.0),
+                    same: 0.0,
+                    higher: est.has_higher().then_some(0.0),
+                };
+                for k in 0..nr {
+                    let (e, lower, higher) = est.row(q_new[k], &phi[k]);
+                    let inv_tol = 1.0 / tol_of(k, q_new[k], hist.q[0][k], &qref);
+                    r.same = r.same.max(e.abs() * inv_tol);
+                    if let Some(v) = r.lower.as_mut() {
+                        *v = v.max(lower * inv_tol);
+                    }
+                    if let Some(v) = r.higher.as_mut() {
+                        *v = v.max(higher * inv_tol);
+                    }
+                }
+                bdf_ratios = r;
+                k_exp = (order + 1) as f64;
+                ratio = (!fixed).then_some(r.same);
+            } else if !fixed && !rows.is_empty() {
                 // Points the estimate needs: the formula's order plus one, with the new point.
                 let m_err = if method == Integrator::BackwardEuler {
                     2
@@ -541,7 +624,7 @@ impl System {
                     let (wq, frac) = if use_rate && m < 2 {
                         // One point and its consistent rate: q^P = q_n + h q'_n, and the
                         // same h²/2 q'' on both sides.
-                        ([1.0, 0.0, 0.0], 0.5)
+                        (extrapolation_weights(t_new, &hist.t, 1), 0.5)
                     } else {
                         (
                             extrapolation_weights(t_new, &hist.t, m),
@@ -569,6 +652,12 @@ impl System {
                 if r > 1.0 {
                     stats.rejected_lte += 1;
                     h = control.rejected(step, r, k_exp);
+                    if method == Integrator::VariableBdf {
+                        orders.rejected(order, &bdf_ratios);
+                        if let (true, Some(lower)) = (orders.order() < order, bdf_ratios.lower) {
+                            h = control.rejected(step, lower, order as f64);
+                        }
+                    }
                     continue;
                 }
             }
@@ -579,11 +668,17 @@ impl System {
                 qdot[k] = match method {
                     Integrator::BackwardEuler => (q_new[k] - hist.q[0][k]) / step,
                     Integrator::Trapezoidal => 2.0 * (q_new[k] - hist.q[0][k]) / step - qdot[k],
-                    Integrator::Bdf2 => a0 * q_new[k] + (hist_vec[rows[k]]),
+                    Integrator::Bdf2 | Integrator::VariableBdf => a0 * q_new[k] + hist_vec[rows[k]],
                 };
                 qref[k] = qref[k].max(q_new[k].abs());
             }
             flush_tiny(&mut qdot);
+            if variable {
+                let acc = Accept::new(t_new, &hist.t, hist.valid);
+                for (d, &qn) in phi.iter_mut().zip(&q_new) {
+                    acc.row(qn, d);
+                }
+            }
             hist.push(t_new, &q_new, &x_new);
             rate_known = true;
             x.copy_from_slice(&x_new);
@@ -597,12 +692,20 @@ impl System {
                     break;
                 }
             }
-            h = match p.stepping {
-                Stepping::Fixed(hf) => hf,
-                Stepping::Adaptive => match ratio {
-                    Some(r) => control.accepted(step, r, k_exp),
-                    None => step * 1.5,
-                },
+            if method == Integrator::VariableBdf {
+                stats.orders[order - 1] += 1;
+            }
+            let changed = (method == Integrator::VariableBdf && !rows.is_empty())
+                .then(|| orders.accepted(order, &bdf_ratios))
+                .flatten();
+            h = match (p.stepping, changed, ratio) {
+                (Stepping::Fixed(hf), _, _) => hf,
+                (Stepping::Adaptive, Some(f), _) => {
+                    control.reset();
+                    step * f
+                }
+                (Stepping::Adaptive, None, Some(r)) => control.accepted(step, r, k_exp),
+                (Stepping::Adaptive, None, None) => step * 1.5,
             };
             if lands_on_bp {
                 stats.breakpoints += 1;
@@ -610,6 +713,7 @@ impl System {
                 hist.valid = 1;
                 rate_known = false;
                 control.reset();
+                orders.reset();
                 quadratic = None;
                 next_bp = self.next_breakpoint(t);
                 if let Some(bp) = next_bp {
@@ -907,28 +1011,23 @@ impl Decimator {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use crate::elements::{Capacitor, Resistor, Sine, VoltageSource, Waveform};
     use crate::Circuit;
 
-    /// An RC low-pass (τ = 1 ns) driven by a sine at ω τ = 1 from rest, against the closed form
-    /// `v = A / (1 + (ωτ)²) (sin ωt - ωτ cos ωt + ωτ e^{-t/τ})` (first-order response, common
-    /// practice). The controller rejects almost nothing, and Newton takes at most two
-    /// iterations on the linear circuit (one solves it; a second confirms when the first update,
-    /// the predictor's error, exceeded the Newton tolerances: measured 1.48 per attempt).
-    #[test]
-    fn a_driven_rc_is_accurate_with_few_rejections_and_at_most_two_newton_iterations() {
-        let (r, cap, amp) = (1e3, 1e-12, 1.0);
+    /// An RC low-pass, R = 1 kΩ, C = 1 pF (τ = 1 ns), driven by a 1 V sine at ωτ = 1: the
+    /// system, the output node and τ.
+    pub(crate) fn driven_rc() -> (System, NodeId, f64) {
+        let (r, cap) = (1e3, 1e-12);
         let tau = r * cap;
-        let omega = 1.0 / tau;
         let mut c = Circuit::new();
         let input = c.node("in");
         let out = c.node("out");
         let sine = Waveform::sine(Sine {
             offset: 0.0,
-            amplitude: amp,
-            frequency: omega / (2.0 * std::f64::consts::PI),
+            amplitude: 1.0,
+            frequency: 1.0 / (2.0 * std::f64::consts::PI * tau),
             delay: 0.0,
             phase: 0.0,
         })
@@ -938,7 +1037,18 @@ mod tests {
         c.add("r", Resistor::new(r), &[input, out]).unwrap();
         c.add("c", Capacitor::new(cap), &[out, Circuit::GROUND])
             .unwrap();
-        let mut sys = System::new(c).unwrap();
+        (System::new(c).unwrap(), out, tau)
+    }
+
+    /// An RC low-pass (τ = 1 ns) driven by a sine at ω τ = 1 from rest, against the closed form
+    /// `v = A / (1 + (ωτ)²) (sin ωt - ωτ cos ωt + ωτ e^{-t/τ})` (first-order response, common
+    /// practice). The controller rejects almost nothing, and Newton takes at most two
+    /// iterations on the linear circuit (one solves it; a second confirms when the first update,
+    /// the predictor's error, exceeded the Newton tolerances: measured 1.48 per attempt).
+    #[test]
+    fn a_driven_rc_is_accurate_with_few_rejections_and_at_most_two_newton_iterations() {
+        let (mut sys, out, tau) = driven_rc();
+        let (amp, omega) = (1.0, 1.0 / tau);
         let stop = 10.0 * 2.0 * std::f64::consts::PI * tau;
         let res = sys
             .transient(
