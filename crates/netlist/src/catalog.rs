@@ -3,8 +3,8 @@
 
 use crate::units::Dim;
 use lamina_devices::mobility::{DensityDependence, LatticeModel};
-use lamina_devices::sheet_fet::traps::{trap_key, MAX_TRAP_GROUPS};
 use lamina_devices::sheet_fet::leakage::Barrier;
+use lamina_devices::sheet_fet::traps::{trap_key, MAX_TRAP_GROUPS};
 use lamina_devices::sheet_fet::valley_key;
 use lamina_devices::sheet_fet::{TrapGroup, TrapKind};
 use lamina_devices::{

@@ -195,10 +195,12 @@ impl SheetFetCard {
             }
         }
         if !self.slow_traps.is_empty() && (self.contacts.is_some() || self.natural_length > 0.0) {
-            return Err("slow traps cannot be combined with Schottky contacts or short-channel \
+            return Err(
+                "slow traps cannot be combined with Schottky contacts or short-channel \
                  electrostatics yet (the contacts and the barrier would have to see the \
                  trapped charge's shift of the channel): leave one of them out"
-                .into());
+                    .into(),
+            );
         }
         if self.natural_length > 0.0 {
             needs_metal("short-channel electrostatics")?;
