@@ -600,7 +600,7 @@ pub const METRIC_DEFINITIONS: &[(&str, &str)] = &[
     ("dibl_vth_low_v", "the constant-current threshold at dibl_vds_low_v"),
     (
         "gds_siemens",
-        "output conductance dI_D/dV_DS at V_GS = ion_vgs_v and V_DS = vds_v: backward difference over 1 % of vds_v from two extra operating points",
+        "output conductance dI_D/dV_DS at V_GS = ion_vgs_v and V_DS = vds_v: central difference over +-1 % of vds_v from two extra operating points solved to a relative tolerance of 1e-9",
     ),
 ];
 
@@ -893,16 +893,23 @@ pub fn iv_metrics(points: &[IvPoint], device: &Device, config: &IvConfig) -> IvM
     }
 }
 
-/// The output conductance of the design's device at `V_GS = vgs` and `V_DS = vds`: a backward
-/// difference over 1 % of `vds` from two operating points.
+/// The output conductance of the design's device at `V_GS = vgs` and `V_DS = vds`: a central
+/// difference over ±1 % of `vds` from two operating points solved to a relative tolerance of
+/// 1e-9 (a fit's settings), so that the solver's tolerance stays far below the current's change
+/// over the step even in saturation.
 pub fn output_conductance(design: Design, vgs: f64, vds: f64) -> Result<OutputConductance, String> {
     if vds == 0.0 {
         return Err("the figures' V_DS is 0".into());
     }
     let h = 0.01 * vds;
-    let p = run_iv(design, &[vgs], &[vds - h, vds])?;
+    let p = run_iv_with(
+        design,
+        &[vgs],
+        &[vds - h, vds + h],
+        &crate::fit::fit_sweep_params(),
+    )?;
     Ok(OutputConductance {
-        siemens: unsigned_zero((p[1].id - p[0].id) / h),
+        siemens: unsigned_zero((p[1].id - p[0].id) / (2.0 * h)),
         vgs_v: unsigned_zero(vgs),
         vds_v: unsigned_zero(vds),
     })
@@ -1070,7 +1077,11 @@ pub fn run_swept(
     let mut t = 0.0;
     if let Some(st) = stress {
         let ramp = (path[0].1 - st.vgs_v).abs() / rate_v_per_s;
-        preamble.push((0.0, path[0].1));
+        // A stress at the sweep's first V_GS needs no ramp (and a repeated vertex time would
+        // not be a waveform).
+        if ramp > 0.0 {
+            preamble.push((0.0, path[0].1));
+        }
         preamble.push((ramp, st.vgs_v));
         preamble.push((ramp + st.time_s, st.vgs_v));
         t = 2.0 * ramp + st.time_s;

@@ -55,7 +55,7 @@ pub struct Barriers {
 /// Barrier heights of a metal of work function `metal` on a channel of electron affinity
 /// `affinity` and gap `gap`, with pinning factor `pinning` (1: Schottky-Mott, 0: fully pinned at
 /// the neutrality level `neutral_level`, an energy below the vacuum level like a work
-/// function). Energies in joules.
+/// function). Energies in any one unit (the card passes eV); the barriers come out in it.
 pub fn barriers(metal: f64, pinning: f64, neutral_level: f64, affinity: f64, gap: f64) -> Barriers {
     let effective = pinning * metal + (1.0 - pinning) * neutral_level;
     Barriers {

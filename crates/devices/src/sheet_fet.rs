@@ -141,8 +141,12 @@
 //! over one thermal voltage, so the current stays smooth and odd through `V_DS = 0`): it equals
 //! `|V_DS|` at low bias and saturates with the current, so the output conductance stays
 //! positive, for n and p channels alike. Contact resistances (Ω·m, divided by the width) are real resistors to
-//! internal drain and source nodes. Overlap or fringe capacitance per width adds linear
-//! gate-drain and gate-source charges. The intrinsic charges follow the conductance profile
+//! internal drain and source nodes. Schottky contacts ([`ContactCard`]) replace them by the
+//! injection over and through a metal's barrier between each terminal and the channel's end,
+//! and a natural length adds the short-channel barrier shift (the `contacts` module's docs);
+//! slow traps ([`traps`]) add occupancy unknowns whose charge shifts the gate drive. Overlap
+//! or fringe capacitance per width adds linear gate-drain and gate-source charges (to the
+//! terminals behind Schottky contacts, to the channel's ends behind resistors). The intrinsic charges follow the conductance profile
 //! (with a density-dependent mobility too, since `A` and `B` are integrals of `σ`).
 //!
 //! # Gate leakage
@@ -2696,7 +2700,7 @@ impl Element for SheetFet {
     }
 
     fn details(&self, x: &[f64]) -> Vec<lamina_engine::Detail> {
-        let mut d = self.traps.details(x, |x| self.insight(x));
+        let mut d = self.traps.details(x, |xs| self.insight(xs, x[1]));
         d.extend(self.contact_details(x));
         d
     }

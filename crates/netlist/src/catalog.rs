@@ -1179,6 +1179,13 @@ fn contact_options(v: &Values, card: &mut SheetFetCard) -> Result<(), BuildError
             ));
         }
         let neutral = match ev("contact_neutral_level") {
+            Some(_) if pinning == 1.0 => {
+                return Err(BuildError::at(
+                    "contact_neutral_level",
+                    "`contact_neutral_level` has no effect with `contact_pinning` 1 (the Schottky-Mott rule, the default)",
+                    "give `contact_pinning` below 1 for the interface to pin toward it, or remove it",
+                ))
+            }
             Some(n) => n,
             None if pinning == 1.0 => 0.0,
             None => {

@@ -48,14 +48,18 @@ pub const FIELD_DETAILS: [(&str, &str); 3] = [
 
 impl SheetFet {
     /// Densities at both channel ends and the operating region at local unknowns `x`
-    /// (terminals drain, gate, source, then the internal contact nodes).
-    pub(crate) fn insight(&self, x: &[f64]) -> Vec<Detail> {
+    /// (terminals drain, gate, source, then the internal contact nodes; the gate entry is the
+    /// channel's gate drive, moved by slow traps where the card has them), and the gate
+    /// leakage as the solution carries it, at the terminal gate voltage `leak_gate`. The
+    /// short-channel shift is included as the solution has it.
+    pub(crate) fn insight(&self, x: &[f64], leak_gate: f64) -> Vec<Detail> {
         let (Some((vd, vs)), Some(&vg)) = (self.channel_voltages(x), x.get(1)) else {
             return Vec::new();
         };
         let model = &self.model;
-        let at_s = model.local_state(vg - vs);
-        let at_d = model.local_state(vg - vd);
+        let delta = self.short_channel_shift(x).map_or(0.0, |s| s.0);
+        let at_s = model.local_state(vg - vs + delta);
+        let at_d = model.local_state(vg - vd + delta);
         let q = crate::physics::Q;
         let q_th = model.insulator_capacitance() * model.thermal_voltage();
         let electrons = at_s.n + at_d.n >= at_s.p + at_d.p;
@@ -68,7 +72,7 @@ impl SheetFet {
                 (b, a)
             }
         };
-        let ch = self.intrinsic(vd, vg, vs);
+        let ch = self.intrinsic_shifted(vd, vg, vs, delta);
         let gm = ch.current.d[1].abs();
         let gds = ch.current.d[0].abs();
         let region = if qs < OFF_FRACTION * q_th {
@@ -84,7 +88,7 @@ impl SheetFet {
             name,
             value: DetailValue::Number(v, "1/m^2"),
         };
-        let mut leak = self.leakage_details(vd, vg, vs, ch.current.v);
+        let mut leak = self.leakage_details(vd, leak_gate, vs, ch.current.v);
         let gate_charge = at_s.gate_charge.abs().max(at_d.gate_charge.abs());
         for (k, l) in self.layers.iter().enumerate() {
             let (field, breakdown) = FIELD_DETAILS[k.min(2)];
