@@ -637,7 +637,7 @@ fn output_curves(
 }
 
 /// A voltage per time (V/s).
-const VOLTS_PER_SECOND: Dim = Dim([0, -1, 1, 0, 0]);
+pub(crate) const VOLTS_PER_SECOND: Dim = Dim([0, -1, 1, 0, 0]);
 
 /// How a rate-aware sweep runs.
 struct SweepPlan {
