@@ -96,7 +96,11 @@ pub fn run_swept_transfer(
         }
         times.push(t);
     }
-    let vertices: Vec<(f64, f64)> = times.iter().zip(&path).map(|(&t, &(_, v))| (t, v)).collect();
+    let vertices: Vec<(f64, f64)> = times
+        .iter()
+        .zip(&path)
+        .map(|(&t, &(_, v))| (t, v))
+        .collect();
     let ramp = Waveform::piecewise_linear(vertices).map_err(|e| e.to_string())?;
     let mut sys = System::new(design.circuit).map_err(|e| e.to_string())?;
     sys.set_waveform(src, &ramp).map_err(|e| e.to_string())?;

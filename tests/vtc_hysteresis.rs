@@ -46,7 +46,11 @@ fn trap_free_inverter_gives_the_dc_threshold_on_both_legs() {
     let s = swept(file, 1.0);
     for leg in [Leg::Up, Leg::Down] {
         let v = vm(&s, leg);
-        assert!((v - dc_vm).abs() < 1e-3, "{} leg V_M {v} V, DC {dc_vm} V", leg.name());
+        assert!(
+            (v - dc_vm).abs() < 1e-3,
+            "{} leg V_M {v} V, DC {dc_vm} V",
+            leg.name()
+        );
     }
     assert!(s.vm_shift_v().unwrap().abs() < 1e-3);
 }

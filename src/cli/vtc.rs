@@ -2,6 +2,7 @@
 //! `--sweep-rate`, the input ramped through the curve one or both ways (see
 //! [`crate::vtc_sweep`]).
 
+use super::iv::DirectionFlag;
 use super::{outcome_json, print_single, Common, FileArgs};
 use crate::design::Outcome;
 use crate::error::JobError;
@@ -12,17 +13,6 @@ use crate::vtc_sweep::{LegCurve, SweptTransfer};
 use crate::{note, out};
 use serde_json::{json, Value};
 use std::path::Path;
-
-/// Which way a ramped transfer sweep runs.
-#[derive(clap::ValueEnum, Clone, Copy, Debug, PartialEq, Eq)]
-pub enum DirectionFlag {
-    /// From the lowest input to the highest.
-    Up,
-    /// From the highest input to the lowest.
-    Down,
-    /// Up, then down again: the shift of V_M between the legs is reported.
-    Both,
-}
 
 /// Flags of `lamina vtc`.
 #[derive(clap::Args, Debug)]
@@ -55,11 +45,7 @@ pub fn run(a: Args) -> Result<(), JobError> {
         super::iv::VOLTS_PER_SECOND,
     )?;
     if let Some(rate) = rate {
-        let direction = match direction.unwrap_or(DirectionFlag::Both) {
-            DirectionFlag::Up => Direction::Up,
-            DirectionFlag::Down => Direction::Down,
-            DirectionFlag::Both => Direction::Both,
-        };
+        let direction = DirectionFlag::or_both(direction);
         let FileArgs {
             file,
             common: Common { set, json, out },

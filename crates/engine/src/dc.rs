@@ -431,7 +431,9 @@ impl System {
             ));
         }
         // The transient asks only the elements listed here for their corners.
-        let has_corners = self.elements[e].next_breakpoint(f64::NEG_INFINITY).is_some();
+        let has_corners = self.elements[e]
+            .next_breakpoint(f64::NEG_INFINITY)
+            .is_some();
         self.breakpoint_elements.retain(|&k| k != e);
         if has_corners {
             self.breakpoint_elements.push(e);

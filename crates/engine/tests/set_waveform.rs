@@ -2,7 +2,9 @@
 //! operating point and the transient then follow; elements without a waveform refuse it.
 
 use lamina_engine::elements::{Resistor, VoltageSource, Waveform};
-use lamina_engine::{Circuit, ElementId, NodeId, OpParams, Output, Probe, Start, System, TransientParams};
+use lamina_engine::{
+    Circuit, ElementId, NodeId, OpParams, Output, Probe, Start, System, TransientParams,
+};
 
 /// A divider of two equal resistors driven by a constant source.
 fn divider() -> (System, ElementId, ElementId, NodeId) {
