@@ -311,6 +311,35 @@ pub fn run_all_options(
     Ok(out)
 }
 
+/// A transfer analysis's input source, output node and input values (from..to at its step).
+pub(crate) fn transfer_setup(
+    design: &Design,
+    a: &AnalysisDecl,
+) -> Result<(lamina_engine::ElementId, lamina_engine::NodeId, Vec<f64>), String> {
+    let Analysis::Transfer {
+        source,
+        output,
+        from,
+        to,
+        steps,
+    } = &a.analysis
+    else {
+        return Err("analysis `transfer` has no transfer settings".into());
+    };
+    let src = design
+        .circuit
+        .find_element(source)
+        .ok_or_else(|| format!("analysis `transfer`: no element `{source}`"))?;
+    let out_node = design
+        .circuit
+        .find_node(output)
+        .ok_or_else(|| format!("analysis `transfer`: no node `{output}`"))?;
+    let vin: Vec<f64> = (0..=*steps)
+        .map(|i| from + (to - from) * i as f64 / *steps as f64)
+        .collect();
+    Ok((src, out_node, vin))
+}
+
 /// Runs one operating-point, transfer or delay analysis.
 fn run_static(design: Design, a: &AnalysisDecl) -> Result<Outcome, String> {
     Ok(match a.kind.as_str() {
@@ -319,27 +348,7 @@ fn run_static(design: Design, a: &AnalysisDecl) -> Result<Outcome, String> {
             Outcome::OperatingPoint(crate::op::operating_point(&mut sys)?)
         }
         "transfer" => {
-            let Analysis::Transfer {
-                source,
-                output,
-                from,
-                to,
-                steps,
-            } = &a.analysis
-            else {
-                return Err("analysis `transfer` has no transfer settings".into());
-            };
-            let src = design
-                .circuit
-                .find_element(source)
-                .ok_or_else(|| format!("analysis `transfer`: no element `{source}`"))?;
-            let out_node = design
-                .circuit
-                .find_node(output)
-                .ok_or_else(|| format!("analysis `transfer`: no node `{output}`"))?;
-            let vin: Vec<f64> = (0..=*steps)
-                .map(|i| from + (to - from) * i as f64 / *steps as f64)
-                .collect();
+            let (src, out_node, vin) = transfer_setup(&design, a)?;
             let mut sys = System::new(design.circuit).map_err(|e| e.to_string())?;
             let res = sys
                 .dc_sweep(

@@ -970,7 +970,7 @@ pub struct SweptPoint {
 }
 
 /// The gate voltages of each leg, in sweep order, from the grid's distinct values.
-fn legs(vgs: &[f64], direction: Direction) -> Vec<(Leg, Vec<f64>)> {
+pub(crate) fn legs(vgs: &[f64], direction: Direction) -> Vec<(Leg, Vec<f64>)> {
     let mut up = vgs.to_vec();
     up.sort_by(f64::total_cmp);
     up.dedup();
@@ -980,6 +980,16 @@ fn legs(vgs: &[f64], direction: Direction) -> Vec<(Leg, Vec<f64>)> {
         Direction::Down => vec![(Leg::Down, down)],
         Direction::Both => vec![(Leg::Up, up), (Leg::Down, down)],
     }
+}
+
+/// The path through the legs, each leg's values in order, the turning point once.
+pub(crate) fn leg_path(legs: &[(Leg, Vec<f64>)]) -> Vec<(Leg, f64)> {
+    let mut path: Vec<(Leg, f64)> = Vec::new();
+    for (leg, values) in legs {
+        let skip = usize::from(!path.is_empty());
+        path.extend(values.iter().skip(skip).map(|&v| (*leg, v)));
+    }
+    path
 }
 
 /// Rebuilds the file's device circuit for a ramped gate: the FET from its resolved card, a
@@ -1065,12 +1075,7 @@ pub fn run_swept(
     if legs[0].1.len() < 2 {
         return Err("a rate-aware sweep needs at least two distinct gate voltages".into());
     }
-    // The gate's path: each leg's values, the turning point once.
-    let mut path: Vec<(Leg, f64)> = Vec::new();
-    for (leg, values) in &legs {
-        let skip = usize::from(!path.is_empty());
-        path.extend(values.iter().skip(skip).map(|&v| (*leg, v)));
-    }
+    let path = leg_path(&legs);
     // A stress first: from rest at the sweep's start, ramped to the stress, held, and ramped
     // back.
     let mut preamble = Vec::new();
@@ -1165,7 +1170,7 @@ pub struct Stress {
 
 /// The recorded value at time `t`: the sample there (the integrator steps onto every vertex),
 /// else the straight line between its neighbours.
-fn sample_at(samples: &[(f64, f64)], t: f64) -> f64 {
+pub(crate) fn sample_at(samples: &[(f64, f64)], t: f64) -> f64 {
     let k = samples.partition_point(|s| s.0 < t);
     match (samples.get(k.wrapping_sub(1)), samples.get(k)) {
         (_, Some(&(tb, b))) if tb == t => b,

@@ -49,3 +49,4 @@ pub mod ring;
 pub mod small_signal;
 pub mod sweep;
 pub mod transient;
+pub mod vtc_sweep;

@@ -25,15 +25,26 @@ pub enum PolarityFlag {
     P,
 }
 
-/// Direction of a rate-aware sweep.
+/// Direction of a rate-aware sweep (`iv` and `vtc`).
 #[derive(clap::ValueEnum, Clone, Copy, Debug, PartialEq, Eq)]
 pub enum DirectionFlag {
-    /// From the lowest V_GS to the highest.
+    /// From the lowest swept voltage (V_GS, input) to the highest.
     Up,
-    /// From the highest V_GS to the lowest.
+    /// From the highest swept voltage to the lowest.
     Down,
-    /// Up, then down again: the hysteresis width is reported.
+    /// Up, then down again: the difference between the legs is reported.
     Both,
+}
+
+impl DirectionFlag {
+    /// The flag, or both ways when it is not given.
+    pub(crate) fn or_both(flag: Option<DirectionFlag>) -> Direction {
+        match flag.unwrap_or(DirectionFlag::Both) {
+            DirectionFlag::Up => Direction::Up,
+            DirectionFlag::Down => Direction::Down,
+            DirectionFlag::Both => Direction::Both,
+        }
+    }
 }
 
 /// Flags of `lamina iv`.
@@ -153,11 +164,7 @@ pub fn run(a: Args) -> Result<(), JobError> {
         .map_err(|why| JobError::Invalid(format!("error: {}: {why}", file.display())))?;
     let device = read_device(&d).map_err(JobError::Analysis)?;
     if let Some(rate) = rate {
-        let direction = match direction.unwrap_or(DirectionFlag::Both) {
-            DirectionFlag::Up => Direction::Up,
-            DirectionFlag::Down => Direction::Down,
-            DirectionFlag::Both => Direction::Both,
-        };
+        let direction = DirectionFlag::or_both(direction);
         let run = SweepPlan {
             direction,
             rate_v_per_s: rate,
@@ -637,7 +644,7 @@ fn output_curves(
 }
 
 /// A voltage per time (V/s).
-const VOLTS_PER_SECOND: Dim = Dim([0, -1, 1, 0, 0]);
+pub(crate) const VOLTS_PER_SECOND: Dim = Dim([0, -1, 1, 0, 0]);
 
 /// How a rate-aware sweep runs.
 struct SweepPlan {

@@ -417,6 +417,31 @@ impl System {
         Ok(())
     }
 
+    /// Gives the independent source `source` the waveform `waveform` (for the following
+    /// analyses; a transient steps onto its breakpoints).
+    pub fn set_waveform(
+        &mut self,
+        source: ElementId,
+        waveform: &crate::elements::Waveform,
+    ) -> Result<(), EngineError> {
+        let e = source.0;
+        if e >= self.elements.len() || !self.elements[e].set_waveform(waveform) {
+            return Err(EngineError::Invalid(
+                "only an independent source can be given a waveform".into(),
+            ));
+        }
+        // The transient asks only the elements listed here for their corners.
+        let has_corners = self.elements[e]
+            .next_breakpoint(f64::NEG_INFINITY)
+            .is_some();
+        self.breakpoint_elements.retain(|&k| k != e);
+        if has_corners {
+            self.breakpoint_elements.push(e);
+            self.breakpoint_elements.sort_unstable();
+        }
+        Ok(())
+    }
+
     /// Sweeps the constant value of the independent source `source` through `values`,
     /// recording `probes` at each point. The source is restored afterwards.
     pub fn dc_sweep(

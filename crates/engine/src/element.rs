@@ -222,6 +222,12 @@ pub trait Element: Send + Sync + std::fmt::Debug {
         false
     }
 
+    /// For independent sources: replace the source's waveform by `waveform` (a ramped sweep
+    /// through an existing circuit). Returns false for elements that have no waveform.
+    fn set_waveform(&mut self, _waveform: &crate::elements::Waveform) -> bool {
+        false
+    }
+
     /// Extra quantities at the local unknowns `x` for operating-point reports: carrier
     /// densities, an operating region, ... (none by default). Currents, conductances and
     /// capacitances are not listed here: the engine derives them from [`Element::evaluate`].

@@ -64,6 +64,10 @@ impl Element for VoltageSource {
         self.waveform = Waveform::Constant(value);
         true
     }
+    fn set_waveform(&mut self, waveform: &Waveform) -> bool {
+        self.waveform = waveform.clone();
+        true
+    }
     fn boxed_clone(&self) -> Box<dyn Element> {
         Box::new(self.clone())
     }
@@ -103,6 +107,10 @@ impl Element for CurrentSource {
     }
     fn set_constant_value(&mut self, value: f64) -> bool {
         self.waveform = Waveform::Constant(value);
+        true
+    }
+    fn set_waveform(&mut self, waveform: &Waveform) -> bool {
+        self.waveform = waveform.clone();
         true
     }
     fn boxed_clone(&self) -> Box<dyn Element> {
