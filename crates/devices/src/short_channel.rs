@@ -67,6 +67,11 @@ pub fn barrier_shift(a: f64, b: f64, s: f64) -> (f64, f64, f64) {
     if a >= b * ch {
         return (b, 0.0, 1.0);
     }
+    // δ is homogeneous of degree one in (a, b) and its slopes of degree zero: work with the
+    // ends scaled to the larger one, so that ends far below a volt (a deep-off branch at
+    // cryogenic temperatures, 1e-130 V) neither underflow `p r` nor divide by a zero root.
+    let scale = a.max(b);
+    let (a, b) = (a / scale, b / scale);
     let (e_minus, e_plus) = ((-s).exp(), s.exp());
     let p = b - a * e_minus;
     let r = a * e_plus - b;
@@ -76,7 +81,7 @@ pub fn barrier_shift(a: f64, b: f64, s: f64) -> (f64, f64, f64) {
     // ∂(p r)/∂a = -e^{-s} r + p e^{s}; ∂(p r)/∂b = r - p.
     let da = (-e_minus * r + p * e_plus) / (2.0 * root * sh);
     let db = (r - p) / (2.0 * root * sh);
-    (d, da, db)
+    (d * scale, da, db)
 }
 
 #[cfg(test)]

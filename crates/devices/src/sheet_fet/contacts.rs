@@ -79,6 +79,11 @@ use std::sync::{Arc, Mutex, Weak};
 /// transient where both the channel and the contact are off (module docs).
 pub const EDGE_CAPACITANCE: f64 = EPS0;
 
+/// The lowest temperature (K) at which Schottky contacts are accepted: 77 K, the
+/// liquid-nitrogen point, where the demo's contact device was checked to solve (at 40 K its
+/// operating points no longer converge).
+pub const MIN_CONTACT_TEMPERATURE_K: f64 = 77.0;
+
 /// Channels longer than this many natural lengths take no short-channel shift (module docs).
 pub const LONG_CHANNEL: f64 = 80.0;
 
@@ -163,6 +168,16 @@ impl SheetFetCard {
         };
         if let Some(c) = &self.contacts {
             needs_metal("Schottky contacts")?;
+            if self.temperature < MIN_CONTACT_TEMPERATURE_K {
+                return Err(format!(
+                    "Schottky contacts are checked down to {MIN_CONTACT_TEMPERATURE_K} K, and \
+                     this card is at {} K: below that the contact current spans more decades \
+                     than the solve resolves (at 40 K the demo device's operating points no \
+                     longer converge); leave the contact keys out (ideal contacts, or the \
+                     linear `source_resistance` / `drain_resistance`) for a colder device",
+                    self.temperature
+                ));
+            }
             for (n, v) in [
                 ("contact_electron_barrier", c.electron_barrier),
                 ("contact_hole_barrier", c.hole_barrier),
@@ -704,6 +719,28 @@ mod tests {
             ((factor - closed) / closed).abs() < 1e-3,
             "swing factor {factor} vs {closed}"
         );
+    }
+
+    /// Ends that lie far below a volt from the long-channel potential (the other branch deep
+    /// off at 77 K puts them near 1e-130 V) give a finite shift and finite slopes: the
+    /// extremum's formula is evaluated on the ends scaled to the larger one.
+    #[test]
+    fn tiny_ends_give_finite_shifts() {
+        for (a, b) in [(1e-130, 2e-130), (3e-200, 1e-200), (1e-300, 1e-300)] {
+            let (d, da, db) = crate::short_channel::barrier_shift(a, b, 30.0);
+            assert!(d.is_finite() && da.is_finite() && db.is_finite(), "{a} {b}");
+            assert!(d >= 0.0 && d <= a.max(b), "{a} {b}: {d}");
+        }
+        let mut c = short(6.0);
+        c.temperature = 77.0;
+        let fet = SheetFet::new(&c).unwrap();
+        for vg in [-1.5, -0.6, 0.0, 0.8] {
+            let (ch, dd) = fet.channel_at(&[0.05, vg, 0.0, 0.05, 0.0]).unwrap();
+            assert!(
+                ch.current.v.is_finite() && dd.iter().all(|x| x.is_finite()),
+                "{vg}"
+            );
+        }
     }
 
     /// The whole element's Jacobian (contacts and short channel) against central
