@@ -117,6 +117,25 @@ impl Values {
     fn has(&self, specs: &[ParamSpec], name: &str) -> bool {
         self.get(specs, name).is_some() || self.text(specs, name).is_some()
     }
+
+    /// Refuses `a` and `b` given together (one would silently win), at `b`, with `help`.
+    fn exclusive(
+        &self,
+        specs: &[ParamSpec],
+        a: &str,
+        b: &str,
+        help: impl Into<String>,
+    ) -> Result<(), BuildError> {
+        if self.has(specs, a) && self.has(specs, b) {
+            Err(BuildError::at(
+                b,
+                format!("`{a}` and `{b}` are both given; one would silently win"),
+                help,
+            ))
+        } else {
+            Ok(())
+        }
+    }
 }
 
 /// Why a kind's parameter values do not make an element.
@@ -462,15 +481,14 @@ fn mobility_consistency(v: &Values) -> Result<(), BuildError> {
         let mass = format!("{carrier}_mass");
         for side in ["along", "across"] {
             let pair = format!("{carrier}_mass_{side}");
-            if v.get(p, &mass).is_some() && v.get(p, &pair).is_some() {
-                return Err(BuildError::at(
-                    &pair,
-                    format!("`{mass}` and `{pair}` are both given; one would silently win"),
-                    format!(
-                        "give the masses along and across the channel (the density of states uses their geometric mean), or `{mass}` alone for an isotropic band"
-                    ),
-                ));
-            }
+            v.exclusive(
+                p,
+                &mass,
+                &pair,
+                format!(
+                    "give the masses along and across the channel (the density of states uses their geometric mean), or `{mass}` alone for an isotropic band"
+                ),
+            )?;
         }
     }
     if v.text(p, "transport_direction").is_some() && v.text(p, "channel").is_none() {
@@ -596,15 +614,12 @@ fn sheet_consistency(v: &Values) -> Result<(), BuildError> {
         ("insulator_layers", "insulator_thickness"),
         ("insulator2_layers", "insulator2_thickness"),
     ] {
-        if v.get(p, count).is_some() && v.get(p, thick).is_some() {
-            return Err(BuildError::at(
-                thick,
-                format!("`{count}` and `{thick}` are both given; one would silently win"),
-                format!(
-                    "give either the layer count or the thickness: remove `{thick}` or `{count}`"
-                ),
-            ));
-        }
+        v.exclusive(
+            p,
+            count,
+            thick,
+            format!("give either the layer count or the thickness: remove `{thick}` or `{count}`"),
+        )?;
         if let Some(n) = v.get(p, count) {
             if n.fract() != 0.0 || !(1.0..=1e6).contains(&n) {
                 return Err(BuildError::at(
@@ -1074,24 +1089,15 @@ fn contact_options(v: &Values, card: &mut SheetFetCard) -> Result<(), BuildError
     let p = SHEET_PARAMS;
     let q = lamina_devices::physics::Q;
     let ev = |name: &str| v.get(p, name).map(|x| x / q);
-    let both = |a: &str, b: &str, help: &str| {
-        if v.has(p, a) && v.has(p, b) {
-            Err(BuildError::at(
-                b,
-                format!("`{a}` and `{b}` are both given; one would silently win"),
-                help.to_string(),
-            ))
-        } else {
-            Ok(())
-        }
-    };
     // The natural length.
-    both(
+    v.exclusive(
+        p,
         "natural_length",
         "channel_thickness",
         "give the natural length, or the channel's thickness and permittivity to compute it",
     )?;
-    both(
+    v.exclusive(
+        p,
         "natural_length",
         "channel_permittivity",
         "give the natural length, or the channel's thickness and permittivity to compute it",
@@ -1139,7 +1145,8 @@ fn contact_options(v: &Values, card: &mut SheetFetCard) -> Result<(), BuildError
     let direct_keys = ["contact_electron_barrier", "contact_hole_barrier"];
     let metal_given = metal_keys.iter().find(|k| v.has(p, k));
     let direct_given = direct_keys.iter().find(|k| v.has(p, k));
-    both(
+    v.exclusive(
+        p,
         "contact_metal",
         "contact_work_function",
         "name the metal (its library work function) or give the work function",

@@ -68,7 +68,7 @@
 
 use super::{Gate, Intrinsic, SheetFet, SheetFetCard, SheetModel};
 use crate::contact::{injection_scale, InjectionTable};
-use crate::physics::{logistic, EPS0, HBAR, K_B, M0, Q};
+use crate::physics::{f0, logistic, EPS0, HBAR, K_B, M0, Q};
 use crate::short_channel::barrier_shift;
 use lamina_engine::{Detail, DetailValue};
 use std::sync::{Arc, Mutex, Weak};
@@ -136,17 +136,11 @@ pub(crate) struct ContactCurrent {
 fn table(length: f64) -> Arc<InjectionTable> {
     static TABLES: Mutex<Vec<(u64, Weak<InjectionTable>)>> = Mutex::new(Vec::new());
     let key = length.to_bits();
-    let mut cache = TABLES.lock().unwrap_or_else(|e| e.into_inner());
-    cache.retain(|(_, w)| w.strong_count() > 0);
-    if let Some(t) = cache
-        .iter()
-        .find(|(k, _)| *k == key)
-        .and_then(|(_, w)| w.upgrade())
-    {
+    if let Some(t) = super::find(&TABLES, &key) {
         return t;
     }
     let t = Arc::new(InjectionTable::new(length));
-    cache.push((key, Arc::downgrade(&t)));
+    super::lock(&TABLES).push((key, Arc::downgrade(&t)));
     t
 }
 
@@ -404,14 +398,15 @@ impl SheetFet {
         let (Some((vd, vs)), Some(&vg)) = (self.channel_voltages(x), x.get(1)) else {
             return out;
         };
+        let shift = self.short_channel_shift(x);
         if let (Some(c), Some(&td), Some(&ts)) = (self.schottky(), x.first(), x.get(2)) {
+            let delta = shift.map_or(0.0, |s| s.0);
             out.push(num("contact electron barrier", c.electron_barrier(), "V"));
             out.push(num("contact hole barrier", c.hole_barrier(), "V"));
             for (r_name, drop_name, t, i) in [
                 ("source contact resistance", "source contact drop", ts, vs),
                 ("drain contact resistance", "drain contact drop", td, vd),
             ] {
-                let delta = self.short_channel_shift(x).map_or(0.0, |s| s.0);
                 let k = self.contact_current(c, t, i, vg, delta);
                 // dI/dV across the contact, per width: R W = W / (dI/dV_T).
                 let g = k.d_terminal;
@@ -426,7 +421,7 @@ impl SheetFet {
         }
         if let Some(sc) = &self.short {
             out.push(num("natural length", self.length() / sc.lengths, "m"));
-            if let Some((d, dd)) = self.short_channel_shift(x) {
+            if let Some((d, dd)) = shift {
                 out.push(num("short channel barrier shift", d, "V"));
                 out.push(num("gate control factor", 1.0 + dd[1], ""));
             }
@@ -479,16 +474,8 @@ impl ShortChannel {
     /// relative to the long channel's (module docs).
     pub(crate) fn shift(&self, a: f64, b: f64) -> (f64, f64, f64) {
         let w = self.smoothing;
-        // x⁺ and its slope.
-        let plus = |x: f64| {
-            let z = x / w;
-            let v = if z > 0.0 {
-                x + w * (-z).exp().ln_1p()
-            } else {
-                w * z.exp().ln_1p()
-            };
-            (v, logistic(z))
-        };
+        // x⁺ = w F0(x/w) and its slope, the logistic.
+        let plus = |x: f64| (w * f0(x / w), logistic(x / w));
         let (ap, sap) = plus(a);
         let (bp, sbp) = plus(b);
         let (am, sam) = plus(-a);
