@@ -1136,14 +1136,25 @@ pub fn run_swept(
                 // Displacement current of the ramped gate included, as a measurement's.
                 ig: unsigned_zero(sample_at(&gate, t)),
             };
-            // The turning point ends the up leg and starts the down leg.
+            // The turning point ends the up leg and starts the down leg. The down leg's
+            // sample there is the right-hand limit, extrapolated back to the turn from the
+            // first two accepted steps after it (the integrator restarts with a short step at
+            // the vertex), so each leg carries its own ramp's displacement current.
             if leg_before == Some(Leg::Up) && leg == Leg::Down {
                 let (tp, pp) = (times[k - 1], out.last().map(|s: &SweptPoint| s.point));
                 if let Some(pp) = pp {
+                    let point = match (right_limit(&samples, tp), right_limit(&gate, tp)) {
+                        (Some(id), Some(ig)) => IvPoint {
+                            id: unsigned_zero(id),
+                            ig: unsigned_zero(ig),
+                            ..pp
+                        },
+                        _ => pp,
+                    };
                     out.push(SweptPoint {
                         leg: Leg::Down,
                         time_s: tp,
-                        point: pp,
+                        point,
                     });
                 }
             }
@@ -1166,6 +1177,14 @@ pub struct Stress {
     pub vgs_v: f64,
     /// How long it is held (s).
     pub time_s: f64,
+}
+
+/// The limit of the recorded values as time falls to `t` from above: the straight line
+/// through the first two samples after `t`, taken back to `t`; `None` without two.
+fn right_limit(samples: &[(f64, f64)], t: f64) -> Option<f64> {
+    let k = samples.partition_point(|s| s.0 <= t);
+    let (&(t1, y1), &(t2, y2)) = (samples.get(k)?, samples.get(k + 1)?);
+    Some(y1 - (y2 - y1) * (t1 - t) / (t2 - t1))
 }
 
 /// The recorded value at time `t`: the sample there (the integrator steps onto every vertex),

@@ -5,7 +5,7 @@
 
 use lamina::op::{operating_point, OpReport};
 use lamina_devices::physics::{HBAR, K_B, M0, Q};
-use lamina_devices::sheet_fet::leakage::{Barrier, Carrier, TunnelStack};
+use lamina_devices::sheet_fet::leakage::{Barrier, Carrier, LeakageMode, TunnelStack};
 use lamina_devices::{materials, SheetFet, SheetFetCard};
 use lamina_engine::{DetailValue, System};
 use lamina_netlist::{load_source, LoadOptions};
@@ -292,4 +292,148 @@ c m (drain = d, gate = g, source = ground)
     assert!(r.devices[0]
         .details
         .contains(&("gate leakage", DetailValue::Word("not modelled"))));
+}
+
+/// MoS2 under ten layers of hBN (3.3 nm) and a metal gate near the channel's affinity: a
+/// device whose leakage is far below its channel current at small gate drives.
+fn moderate_card(mode: LeakageMode) -> SheetFetCard {
+    let mut card = thin_card();
+    card.insulator = vec![materials::insulator_layer("hBN", Some(10.0), None).unwrap()];
+    card.gate = lamina_devices::Gate::Metal {
+        work_function: card.electron_affinity + 0.3,
+    };
+    card.gate_leakage = mode;
+    card
+}
+
+/// `gate_leakage = auto` leaves the leakage out exactly where the whole gate's current stays
+/// below the stated fraction of the off-current scale `(W/L) σ(0) kT/q` (the rule in the
+/// leakage module's docs; checked here against the direct quadrature, not the table): the
+/// onsets bracket the crossing to 10 mV, inside them the stamped current is zero, beyond
+/// them it is the `on` device's, and across the fade-in the slopes are the derivatives.
+#[test]
+fn auto_mode_leaves_out_only_what_is_below_the_fraction() {
+    let auto = SheetFet::new(&moderate_card(LeakageMode::Auto)).unwrap();
+    let on = SheetFet::new(&moderate_card(LeakageMode::On)).unwrap();
+    let card = moderate_card(LeakageMode::Auto);
+    let w = auto.leakage_window().expect("a window");
+    assert!(on.leakage_window().is_none());
+    assert!(w.below < -0.5 && w.above > 0.5, "{w:?}");
+    let table = auto.leakage_table().unwrap();
+    let vt = K_B * card.temperature / Q;
+    let sigma0 = auto.model().table_s_sigma(0.0).1;
+    let (wd, l) = (card.width, card.length);
+    let scale = wd / l * sigma0 * vt;
+    let limit = card.leakage_fraction * scale;
+    let gate = |u: f64| wd * l * table.direct(u).abs();
+    for (onset, out) in [(w.above, 1.0), (w.below, -1.0)] {
+        assert!(
+            gate(onset) < limit,
+            "at {onset}: {:e} vs {limit:e}",
+            gate(onset)
+        );
+        assert!(
+            gate(onset + out * 0.0101) >= limit,
+            "just beyond {onset}: {:e} vs {limit:e}",
+            gate(onset + out * 0.0101)
+        );
+        // Beyond the onset the device carries the whole leakage.
+        let u = onset + out * 0.2;
+        assert_eq!(auto.gate_leakage(u, u), on.gate_leakage(u, u));
+    }
+    // Inside, nothing is stamped, and what is left out is below the fraction.
+    for k in 1..40 {
+        let u = w.below + (w.above - w.below) * k as f64 / 40.0;
+        assert!(gate(u) < limit, "{u}: {:e}", gate(u));
+        if w.excludes(u) {
+            assert_eq!(auto.gate_leakage(u, u), [(0.0, 0.0); 2]);
+        }
+    }
+    // Continuous with continuous slopes through the fade-in (central differences).
+    let dh = 1e-6;
+    for onset in [w.above, w.below] {
+        for k in 0..=12 {
+            let u = onset - onset.signum() * (k as f64 / 10.0) * 2.0 * vt;
+            let [(i, g), _] = auto.gate_leakage(u, 0.0);
+            let [(ip, _), _] = auto.gate_leakage(u + dh, 0.0);
+            let [(im, _), _] = auto.gate_leakage(u - dh, 0.0);
+            let fd = (ip - im) / (2.0 * dh);
+            // Against the slope scale of the whole current over the fade-in (where the
+            // weight's slope starts from zero, the difference carries its curvature).
+            let [(whole, dwhole), _] = on.gate_leakage(u, 0.0);
+            let scale = dwhole.abs() + whole.abs() / (2.0 * vt);
+            assert!(
+                (g - fd).abs() <= 1e-4 * scale + 1e-30,
+                "u = {u}: slope {g:e}, difference {fd:e} (I = {i:e})"
+            );
+        }
+    }
+}
+
+const MODES: &str = "device c : sheet_fet {
+    channel = MoS2, gate = Au, INSULATOR, width = 1 um, length = 1 um MODE
+}
+voltage_source vg (pos = g, neg = ground) { dc = 1.5 V }
+voltage_source vd (pos = d, neg = ground) { dc = 0.1 V }
+c m (drain = d, gate = g, source = ground)
+";
+
+/// `gate_leakage = off` removes the current (the report says `off`); an unknown mode, a
+/// fraction without `auto`, a fraction outside (0, 1] and either key on a stack without
+/// tunnelling data are refused at the key, with what to write instead.
+#[test]
+fn leakage_modes_from_the_card() {
+    let text =
+        |insulator: &str, mode: &str| MODES.replace("INSULATOR", insulator).replace("MODE", mode);
+    let r = report(&text(
+        "insulator = hBN, insulator_layers = 2",
+        ", gate_leakage = off",
+    ));
+    assert_eq!(r.devices[0].terminals[1].2, 0.0);
+    assert!(r.devices[0]
+        .details
+        .contains(&("gate leakage", DetailValue::Word("off"))));
+    let on = report(&text(
+        "insulator = hBN, insulator_layers = 2",
+        ", gate_leakage = on",
+    ));
+    assert!(on.devices[0].terminals[1].2 > 0.0);
+    for (insulator, mode, key, says) in [
+        (
+            "insulator = hBN, insulator_layers = 10",
+            ", gate_leakage = sometimes",
+            "gate_leakage",
+            "no gate-leakage mode called `sometimes`",
+        ),
+        (
+            "insulator = hBN, insulator_layers = 10",
+            ", gate_leakage = on, gate_leakage_fraction = 0.01",
+            "gate_leakage_fraction",
+            "only applies with `gate_leakage = auto`",
+        ),
+        (
+            "insulator = hBN, insulator_layers = 10",
+            ", gate_leakage_fraction = 2",
+            "gate_leakage_fraction",
+            "outside (0, 1]",
+        ),
+        (
+            "insulator_permittivity = 3.9, insulator_thickness = 3 nm",
+            ", gate_leakage = on",
+            "gate_leakage",
+            "has no gate leakage",
+        ),
+    ] {
+        let e = load_source("t.lam", &text(insulator, mode), &LoadOptions::default())
+            .err()
+            .unwrap_or_else(|| panic!("{mode} accepted"))
+            .to_string();
+        assert!(e.contains(says), "{e}");
+        let line = text(insulator, mode)
+            .lines()
+            .position(|l| l.contains(key))
+            .unwrap()
+            + 1;
+        assert!(e.contains(&format!("t.lam:{line}:")), "{e}");
+    }
 }

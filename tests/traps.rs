@@ -534,3 +534,24 @@ fn slow_trap_cards_out_of_range_are_refused() {
     let why = why(&dirac);
     assert!(why.contains("metal gate"), "{why}");
 }
+
+/// At the turning point of a fast both-way sweep the down leg starts with its own ramp's
+/// displacement current: the drain current jumps there by the same amount the two legs
+/// differ at the next gate voltage (at 1 MV/s the traps barely move, so the legs differ by
+/// the drain's displacement current `C dV_GS/dt`, of opposite sign on the two ramps).
+#[test]
+fn turning_point_samples_carry_their_own_legs_displacement_current() {
+    let j = iv_json(&["--sweep-rate", "1 MV/s"]);
+    let points = j["points"].as_array().unwrap();
+    let at = |leg: &str, vgs: f64| {
+        points
+            .iter()
+            .find(|p| p["sweep"] == leg && (p["vgs"].as_f64().unwrap() - vgs).abs() < 1e-9)
+            .and_then(|p| p["id"].as_f64())
+            .unwrap_or_else(|| panic!("no {leg} point at {vgs} V"))
+    };
+    let jump = at("up", 1.0) - at("down", 1.0);
+    let gap = at("up", 0.95) - at("down", 0.95);
+    assert!(jump < 0.0 && gap < 0.0, "jump {jump:e}, gap {gap:e}");
+    assert!((jump / gap - 1.0).abs() < 0.1, "jump {jump:e}, gap {gap:e}");
+}

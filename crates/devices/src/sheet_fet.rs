@@ -307,6 +307,11 @@ pub struct SheetFetCard {
     /// Each insulator layer's bands and tunnelling masses, in the order of `insulator`, for
     /// the gate leakage ([`leakage`]); empty for a stack without leakage.
     pub tunnelling: Vec<leakage::Barrier>,
+    /// When the gate leakage enters the solution ([`leakage`], "When it is on").
+    pub gate_leakage: leakage::LeakageMode,
+    /// The fraction of the channel's off-current scale below which an `auto` device leaves
+    /// its gate leakage out ([`leakage`], "When it is on").
+    pub leakage_fraction: f64,
 }
 
 impl Default for SheetFetCard {
@@ -348,6 +353,8 @@ impl Default for SheetFetCard {
             natural_length: 0.0,
             slow_traps: Vec::new(),
             tunnelling: Vec::new(),
+            gate_leakage: leakage::LeakageMode::Auto,
+            leakage_fraction: insight::SIGNIFICANT_LEAKAGE,
         }
     }
 }
@@ -641,6 +648,8 @@ impl SheetFetCard {
             contacts: None,
             natural_length: 0.0,
             slow_traps: Vec::new(),
+            gate_leakage: leakage::LeakageMode::Auto,
+            leakage_fraction: 0.0,
             insulator: self
                 .insulator
                 .iter()
@@ -2349,8 +2358,13 @@ pub struct SheetFet {
     /// The short-channel barrier shift, if the channel is short enough to have one.
     short: Option<ShortChannel>,
     traps: traps::Traps,
-    /// The gate leakage table and `W L / 2` (m²), where the card has tunnelling data.
+    /// The gate leakage table and `W L / 2` (m²), where the card has tunnelling data and
+    /// does not turn it off.
     leakage: Option<(Arc<leakage::LeakageTable>, f64)>,
+    /// Where an `auto` device leaves its leakage out (`None`: nowhere).
+    leakage_window: Option<leakage::Window>,
+    /// Whether the card has tunnelling data but turns the leakage off.
+    leakage_turned_off: bool,
     /// The card's insulator layers (for the field each carries, [`insight`]).
     layers: Vec<Layer>,
 }
@@ -2407,8 +2421,22 @@ impl SheetFet {
             + usize::from(schottky || card.drain_resistance > 0.0)
             + usize::from(schottky || card.source_resistance > 0.0);
         let traps = traps::Traps::new(card, &model, card.width * card.length, first_trap);
-        let leakage = leakage::LeakageTable::shared(card, &model)
-            .map(|t| (t, 0.5 * card.width * card.length));
+        let leakage = match card.gate_leakage {
+            leakage::LeakageMode::Off => None,
+            _ => leakage::LeakageTable::shared(card, &model),
+        };
+        let leakage_window = leakage
+            .as_ref()
+            .filter(|_| card.gate_leakage == leakage::LeakageMode::Auto)
+            .and_then(|t| {
+                // The whole gate's current against the fraction of the off-current scale
+                // `(W/L) σ(0) kT/q`, as a density: `f σ(0) V_T / L²`.
+                let sigma0 = model.table_s_sigma(0.0).1;
+                let limit =
+                    card.leakage_fraction * sigma0 * model.stack.vt / (card.length * card.length);
+                t.window(limit).narrowest_kept()
+            });
+        let leakage = leakage.map(|t| (t, 0.5 * card.width * card.length));
         Ok(SheetFet {
             model,
             area: card.width * card.length,
@@ -2425,6 +2453,9 @@ impl SheetFet {
             short: ShortChannel::of(card),
             traps,
             leakage,
+            leakage_window,
+            leakage_turned_off: !card.tunnelling.is_empty()
+                && card.gate_leakage == leakage::LeakageMode::Off,
             layers: card.insulator.clone(),
         })
     }

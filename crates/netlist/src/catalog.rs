@@ -348,6 +348,8 @@ static SHEET_PARAMS: &[ParamSpec] = &[
     maybe("insulator2_band_gap", ENERGY),
     maybe("insulator2_electron_tunnelling_mass", Dim::NONE),
     maybe("insulator2_hole_tunnelling_mass", Dim::NONE),
+    named("gate_leakage"),
+    maybe("gate_leakage_fraction", Dim::NONE),
     maybe("gate_work_function", ENERGY),
     maybe("gate_fermi_velocity", VELOCITY),
     maybe("gate_half_gap", ENERGY),
@@ -1077,8 +1079,72 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, BuildError> {
         .into_iter()
         .collect::<Option<Vec<_>>>()
         .unwrap_or_default();
+    leakage_options(v, &mut card)?;
     card.validate()?;
     Ok(card)
+}
+
+/// When the gate leakage is in the solution: `gate_leakage = auto` (the default: only beyond
+/// the gate drives where it reaches `gate_leakage_fraction` of the channel's off-current
+/// scale), `on` or `off`. A mode or fraction on a stack without tunnelling data is refused:
+/// there is no leakage to switch.
+fn leakage_options(v: &Values, card: &mut SheetFetCard) -> Result<(), BuildError> {
+    use lamina_devices::sheet_fet::leakage::LeakageMode;
+    let p = SHEET_PARAMS;
+    let mode = v.text(p, "gate_leakage");
+    let fraction = v.get(p, "gate_leakage_fraction");
+    if card.tunnelling.is_empty() {
+        if let Some(key) = [
+            mode.map(|_| "gate_leakage"),
+            fraction.map(|_| "gate_leakage_fraction"),
+        ]
+        .into_iter()
+        .flatten()
+        .next()
+        {
+            return Err(BuildError::at(
+                key,
+                format!(
+                    "`{key}` is given, but the gate stack has no gate leakage: a layer lacks \
+                     tunnelling data"
+                ),
+                "use library insulators that have tunnelling data (hBN, SiO2, HfO2, Al2O3), \
+                 or give each layer's affinity, band gap and tunnelling masses",
+            ));
+        }
+        return Ok(());
+    }
+    card.gate_leakage = match mode {
+        None | Some("auto") => LeakageMode::Auto,
+        Some("on") => LeakageMode::On,
+        Some("off") => LeakageMode::Off,
+        Some(other) => {
+            return Err(BuildError::at(
+                "gate_leakage",
+                format!("no gate-leakage mode called `{other}`"),
+                "write `gate_leakage = auto` (the default: left out where below \
+                 `gate_leakage_fraction` of the channel's off-current scale), `on` or `off`",
+            ))
+        }
+    };
+    if let Some(f) = fraction {
+        if card.gate_leakage != LeakageMode::Auto {
+            return Err(BuildError::at(
+                "gate_leakage_fraction",
+                "`gate_leakage_fraction` only applies with `gate_leakage = auto`".to_string(),
+                "remove `gate_leakage_fraction`, or set `gate_leakage = auto`",
+            ));
+        }
+        if !(f > 0.0 && f <= 1.0) {
+            return Err(BuildError::at(
+                "gate_leakage_fraction",
+                format!("`gate_leakage_fraction` {f} is outside (0, 1]"),
+                "give a fraction such as 1e-3 (the default)",
+            ));
+        }
+        card.leakage_fraction = f;
+    }
+    Ok(())
 }
 
 /// Schottky contacts and the natural length: the barriers from a metal (library name or

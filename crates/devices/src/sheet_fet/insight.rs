@@ -18,8 +18,10 @@
 //! leaves through the drain, and its ratio to the drain current's magnitude, with a word: `significant` where the gate current is at least
 //! [`SIGNIFICANT_LEAKAGE`] of the drain current, `negligible` below, `not modelled` for a card
 //! without tunnelling data (a layer given by permittivity and thickness instead of a library
-//! insulator). The leakage is always in the solution where modelled; the word only says
-//! whether it matters next to the drain current.
+//! insulator), `off` where the card turns it off, and `left out (below its onsets)` where an
+//! `auto` card leaves it out at both channel ends ([`super::leakage`], "When it is on"), with
+//! the onsets. Otherwise the word only says whether the leakage in the solution matters next
+//! to the drain current.
 //!
 //! Insulator fields: each layer carries `E_i = |Q_g| / (ε_i ε0)` (Gauss's law; the larger gate
 //! charge of the two channel ends), reported beside the layer's breakdown field where the
@@ -130,20 +132,49 @@ impl SheetFet {
         if self.leakage.is_none() {
             return vec![Detail {
                 name: "gate leakage",
-                value: DetailValue::Word("not modelled"),
+                value: DetailValue::Word(if self.leakage_turned_off {
+                    "off"
+                } else {
+                    "not modelled"
+                }),
             }];
         }
         let [(to_drain, _), (to_source, _)] = self.gate_leakage(vg - vd, vg - vs);
         let gate = to_drain + to_source;
         let ratio = gate.abs() / drain.abs();
-        vec![
-            Detail {
-                name: "gate leakage",
-                value: DetailValue::Word(if ratio >= SIGNIFICANT_LEAKAGE {
+        let mut onsets = Vec::new();
+        let word = match self.leakage_window() {
+            Some(w) => {
+                onsets = vec![
+                    Detail {
+                        name: "gate leakage onset below",
+                        value: DetailValue::Number(w.below, "V"),
+                    },
+                    Detail {
+                        name: "gate leakage onset above",
+                        value: DetailValue::Number(w.above, "V"),
+                    },
+                ];
+                if w.excludes(vg - vd) && w.excludes(vg - vs) {
+                    let mut all = vec![Detail {
+                        name: "gate leakage",
+                        value: DetailValue::Word("left out (below its onsets)"),
+                    }];
+                    all.append(&mut onsets);
+                    return all;
+                } else if ratio >= SIGNIFICANT_LEAKAGE {
                     "significant"
                 } else {
                     "negligible"
-                }),
+                }
+            }
+            None if ratio >= SIGNIFICANT_LEAKAGE => "significant",
+            None => "negligible",
+        };
+        let mut all = vec![
+            Detail {
+                name: "gate leakage",
+                value: DetailValue::Word(word),
             },
             Detail {
                 name: "gate leakage current",
@@ -157,6 +188,8 @@ impl SheetFet {
                 name: "gate leakage ratio",
                 value: DetailValue::Number(ratio, "1"),
             },
-        ]
+        ];
+        all.append(&mut onsets);
+        all
     }
 }

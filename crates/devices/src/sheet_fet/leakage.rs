@@ -75,15 +75,37 @@
 //! thermal voltages of `u = 0`, where `J` is linear in `u` and smallest: 1e-2.
 //!
 //! # When it is on
-//! Always, for a card whose every layer has tunnelling data (a library insulator, or the
-//! four card keys): the current is in every solution, so nothing is left out silently, and
-//! the operating point says whether it matters (`significant` from
-//! [`super::insight::SIGNIFICANT_LEAKAGE`] of the drain current). A stack with a layer
-//! without data has none, and the operating point says `not modelled`. The cost is the knots
-//! a run visits: the demo ring's Monte Carlo (`netlists/demo/ring-21-mc.lam`, 20 samples, 42
-//! devices each with its own work function, so its own table) took 3.8 to 4.5 s instead of
-//! 2.6 to 2.8 s on the shared two-core machine, its figures unchanged (the demo's 3.3 nm of hBN and 3 nm
-//! of HfO2 leak far below the drain current).
+//! For a card whose every layer has tunnelling data (a library insulator, or the four card
+//! keys), card key `gate_leakage`:
+//!
+//! * `auto` (the default): the leakage is left out at gate drives where the whole gate's
+//!   current `W L |J(u)|` stays below `gate_leakage_fraction` (default
+//!   [`super::insight::SIGNIFICANT_LEAKAGE`] = 1e-3) of the channel's off-current scale
+//!   `(W/L) σ(0) kT/q`, the drain current of the device at zero gate drive with one thermal
+//!   voltage across it (its subthreshold current at `V_GS = 0`, the current that sets a logic
+//!   gate's static node currents). `J` is monotonic in `u`, so this is a window
+//!   `below < u < above` about `u = 0`, found once per device by doubling and bisection on
+//!   the direct quadrature to 10 mV (about twenty solves per side, [`LeakageTable::window`]);
+//!   within [`BLEND_VT`] thermal voltages inside each onset the current fades in (a
+//!   smoothstep weight, so the current and its slope stay continuous), beyond it the
+//!   leakage is whole. Where a channel end's gate drive lies well inside the window the
+//!   table is not read at all: a circuit that never leaves it pays nothing. What is left out
+//!   is below the stated fraction of the off-current scale at every gate drive, and so below
+//!   that fraction of the drain current wherever the device carries at least its off
+//!   current; compared with its current at the same gate drive this is conservative on the
+//!   accumulation side, where the channel carries more. Where either onset lies within the
+//!   fade-in of `u = 0` (the leakage matters almost everywhere) it is kept everywhere.
+//! * `on`: at every gate drive (as `auto` with an empty window).
+//! * `off`: never (the operating point says `off`).
+//!
+//! The operating point reports the onsets of an `auto` device and says `left out (below its
+//! onsets)` where both channel ends lie inside the window; otherwise the gate current in the
+//! solution, its part to the drain and its ratio to the drain current, with `significant`
+//! from [`super::insight::SIGNIFICANT_LEAKAGE`] of the drain current or `negligible`. A
+//! stack with a layer without data has none, and the operating point says `not modelled`.
+//! The demo process (`netlists/demo/process.lam`: 3.3 nm of hBN under 3 nm of HfO2) leaves
+//! it out within about ±2 V of gate drive, so its ring's Monte Carlo no longer solves any
+//! leakage knot (with it always on, 20 samples took 3.8 to 4.5 s instead of 2.6 to 2.8 s).
 //!
 //! The device's gate current takes each end's density over half the gate: `I_GS = (W L / 2)
 //! J(u_s)`, `I_GD = (W L / 2) J(u_d)`, each flowing from the gate to its own end. Exact for a
@@ -313,6 +335,15 @@ impl TunnelStack {
 /// Checks the card's tunnelling data: none, or one entry per insulator layer within the
 /// guards (eV and electron masses): affinity [-20, 20], gap (0, 20], masses [1e-3, 1e2].
 pub(crate) fn validate(card: &SheetFetCard) -> Result<(), String> {
+    // Checked with or without tunnelling data: a fraction outside (0, 1] is a typo.
+    if !(card.leakage_fraction > 0.0 && card.leakage_fraction <= 1.0) {
+        return Err(format!(
+            "gate leakage_fraction {} is outside (0, 1]: it is the part of the channel's \
+             off-current scale below which the leakage is left out (default {})",
+            card.leakage_fraction,
+            super::insight::SIGNIFICANT_LEAKAGE
+        ));
+    }
     if card.tunnelling.is_empty() {
         return Ok(());
     }
@@ -358,10 +389,23 @@ impl SheetFet {
         let Some((table, half_area)) = &self.leakage else {
             return [(0.0, 0.0); 2];
         };
-        [u_d, u_s].map(|u| {
-            let (j, dj) = table.density(u);
-            (j * half_area, dj * half_area)
+        [u_d, u_s].map(|u| match &self.leakage_window {
+            Some(w) if w.excludes(u) => (0.0, 0.0),
+            Some(w) => {
+                let (j, dj) = table.density(u);
+                let (g, dg) = w.weight(u);
+                (j * g * half_area, (dj * g + j * dg) * half_area)
+            }
+            None => {
+                let (j, dj) = table.density(u);
+                (j * half_area, dj * half_area)
+            }
         })
+    }
+
+    /// Where the device leaves its gate leakage out (an `auto` card), if anywhere.
+    pub fn leakage_window(&self) -> Option<Window> {
+        self.leakage_window
     }
 
     /// The device's gate-leakage table, where its card has tunnelling data.
@@ -560,6 +604,109 @@ impl LeakageTable {
         };
         let j = self.j0 * v.sinh();
         (j, self.j0 * v.cosh() * dv * ds)
+    }
+}
+
+/// How a card's gate leakage enters the solution (card key `gate_leakage`).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum LeakageMode {
+    /// Only at gate drives where it is not negligible (the module docs, "When it is on").
+    #[default]
+    Auto,
+    /// At every gate drive.
+    On,
+    /// Never.
+    Off,
+}
+
+/// The gate drives (V) between which an `auto` device leaves its leakage out: `below < 0 <
+/// above`. Within [`BLEND_VT`] thermal voltages inside each onset the current fades in
+/// smoothly (C¹), and beyond the onsets it is whole.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Window {
+    /// The onset on the negative side (V).
+    pub below: f64,
+    /// The onset on the positive side (V).
+    pub above: f64,
+    blend: f64,
+}
+
+/// Width of the fade-in inside each onset, in thermal voltages.
+pub const BLEND_VT: f64 = 2.0;
+
+/// How finely (V) the onsets are located; below [`BLEND_VT`] thermal voltages at 300 K.
+const ONSET_RESOLUTION: f64 = 0.01;
+
+impl Window {
+    /// The weight of the leakage at `u` and its slope: 0 well inside, 1 outside.
+    #[inline]
+    pub fn weight(&self, u: f64) -> (f64, f64) {
+        let depth = if u >= 0.0 {
+            self.above - u
+        } else {
+            u - self.below
+        };
+        if depth <= 0.0 {
+            return (1.0, 0.0);
+        }
+        if depth >= self.blend {
+            return (0.0, 0.0);
+        }
+        // Smoothstep in the distance to the onset: 1 at the onset, 0 a blend inside it.
+        let t = 1.0 - depth / self.blend;
+        let w = t * t * (3.0 - 2.0 * t);
+        let dw_dt = 6.0 * t * (1.0 - t);
+        // dt/du = +1/blend on the positive side (depth falls as u grows), -1/blend below.
+        let sign = if u >= 0.0 { 1.0 } else { -1.0 };
+        (w, dw_dt * sign / self.blend)
+    }
+
+    /// The window, or `None` where either onset lies within the fade-in of `u = 0` (the
+    /// leakage matters at almost any gate drive: it is kept everywhere, so the fade-in never
+    /// meets `u = 0`, where the two sides' weights would differ).
+    pub(crate) fn narrowest_kept(self) -> Option<Window> {
+        (self.above > self.blend && -self.below > self.blend).then_some(self)
+    }
+
+    /// Whether `u` lies where the leakage is wholly left out.
+    #[inline]
+    pub fn excludes(&self, u: f64) -> bool {
+        u > self.below + self.blend && u < self.above - self.blend
+    }
+}
+
+impl LeakageTable {
+    /// The window of gate drives where `|J|` stays below `limit` (A/m²): on each side of
+    /// `u = 0` the largest `|u|` (to [`ONSET_RESOLUTION`]) below which it does, by doubling
+    /// then bisection on the direct quadrature (`J` is monotonic in `u`; the module docs).
+    /// About twenty direct solves per side; [`super::U_REACH`] where it never reaches `limit`.
+    pub fn window(&self, limit: f64) -> Window {
+        let onset = |sign: f64| {
+            let below = |u: f64| self.direct(sign * u).abs() < limit;
+            let mut lo = 0.0;
+            let mut hi = 0.25;
+            while below(hi) {
+                lo = hi;
+                if hi >= super::U_REACH {
+                    return super::U_REACH;
+                }
+                hi = (2.0 * hi).min(super::U_REACH);
+            }
+            while hi - lo > ONSET_RESOLUTION {
+                let mid = 0.5 * (lo + hi);
+                if below(mid) {
+                    lo = mid;
+                } else {
+                    hi = mid;
+                }
+            }
+            lo
+        };
+        Window {
+            below: -onset(-1.0),
+            above: onset(1.0),
+            blend: BLEND_VT * self.stack.kt,
+        }
     }
 }
 
