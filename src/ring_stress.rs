@@ -37,6 +37,15 @@
 //! operating point at the nominal supply, traps at rest there, and can differ from the fresh
 //! frequency here by the traps' shift between 0 V and the supply.
 //!
+//! # Whole periods only
+//! The stalled pattern stresses alternate devices: the n-channel device of a stage whose input
+//! was held high, the p-channel device of one whose input was held low. A whole period has
+//! every stage switch both ways, so it sees both; one pass of the edge-travel estimate
+//! (`RingParams::edge`) from the single-defect start sees one transition per stage, each made
+//! by the device the stress held off, and would report a drift of the wrong size and even
+//! sign (+6 % against -1.7 % by whole periods for the demo ring after 1 s at 1.2 V). The job
+//! refuses it.
+//!
 //! # Without slow traps
 //! A ring whose devices have no slow traps has nothing that remembers the stress: every
 //! measurement gives the fresh frequency. The job still runs (a check of the procedure) and
@@ -312,6 +321,14 @@ pub fn run_stress(
     shortest_trap_time_s: Option<f64>,
 ) -> Result<StressReport, StressError> {
     plan.check().map_err(StressError::Invalid)?;
+    if params.edge {
+        return Err(StressError::Invalid(
+            "the drift after a stress is measured over whole periods, not by edge travel: one \
+             pass of the edge sees one of each stage's two transitions, which the stress shifts \
+             differently"
+                .into(),
+        ));
+    }
     let mut recovery = plan.recovery_s.clone();
     recovery.sort_by(f64::total_cmp);
     recovery.dedup();

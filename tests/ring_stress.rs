@@ -193,7 +193,7 @@ fn traps_too_fast_to_stay_frozen_are_refused() {
 #[test]
 fn bad_stress_flags_are_usage_errors() {
     let file = "netlists/demo/ring-21.lam";
-    let cases: [&[&str]; 9] = [
+    let cases: [&[&str]; 10] = [
         &["--stress-supply", "1.2", "--stress-time", "-1 s"],
         &["--stress-supply", "1.2", "--stress-time", "0 s"],
         &["--stress-supply", "1.2", "--stress-time", "1 V"],
@@ -210,6 +210,7 @@ fn bad_stress_flags_are_usage_errors() {
         ],
         &["--stress-supply", "1.2"],
         &["--recovery-time", "1 s"],
+        &["--stress-supply", "1.2", "--stress-time", "1 s", "--edge"],
     ];
     for extra in cases {
         let args: Vec<&str> = ["ring", file].iter().chain(extra).copied().collect();
@@ -218,6 +219,62 @@ fn bad_stress_flags_are_usage_errors() {
     }
     let r = stress(file, &[], plan(-1.0, &[]));
     assert!(matches!(r, Err(StressError::Invalid(_))));
+}
+
+/// Edge travel sees one transition per stage, made by the devices the stress held off, so the
+/// library refuses it too (the flag conflict above is the command's side).
+#[test]
+fn edge_travel_is_refused_for_a_stress() {
+    let sets: Vec<(String, String)> = Vec::new();
+    let file = Path::new(ONE_TRAP);
+    let d = design::load(file, &sets).unwrap_or_else(|e| panic!("{e}"));
+    let held = design::load(file, &sets)
+        .unwrap_or_else(|e| panic!("{e}"))
+        .circuit;
+    let edge = RingParams {
+        edge: true,
+        ..RingParams::default()
+    };
+    let (mut system, ring, params) = design::ring_from(d, &edge).unwrap_or_else(|e| panic!("{e}"));
+    let r = run_stress(
+        &mut system,
+        held,
+        &ring,
+        &params,
+        &plan(TAU, &[]),
+        Some(TAU),
+    );
+    assert!(matches!(r, Err(StressError::Invalid(_))));
+}
+
+/// The engine's `Start::State` continues a run from another's `end_state`: an RC discharge
+/// (1 kΩ, 1 pF, τ = 1 ns, from 1 V) run for 1 ns and continued for 1 ns ends at `exp(-2)` V
+/// within 1e-3 (the integrator's truncation error is far smaller), and a state of the wrong
+/// length is refused.
+#[test]
+fn a_run_continued_from_its_end_state_continues_the_waveform() {
+    use lamina_engine::elements::{Capacitor, Resistor};
+    use lamina_engine::{Circuit, EngineError, Start, System, TransientParams};
+    let mut c = Circuit::new();
+    let a = c.node("a");
+    c.add("r", Resistor::new(1e3), &[a, Circuit::GROUND])
+        .unwrap();
+    c.add("c", Capacitor::new(1e-12), &[a, Circuit::GROUND])
+        .unwrap();
+    let mut sys = System::new(c).unwrap();
+    let p = TransientParams::new(1e-9);
+    let first = sys
+        .transient(&p, &Start::Given(vec![(a, 1.0)]), &[], None)
+        .unwrap();
+    let i = sys.node_unknown(a).unwrap();
+    assert!((first.end_state[i] - (-1.0f64).exp()).abs() < 1e-3);
+    let second = sys
+        .transient(&p, &Start::State(first.end_state.clone()), &[], None)
+        .unwrap();
+    let v = second.end_state[i];
+    assert!((v - (-2.0f64).exp()).abs() < 1e-3, "{v} V after 2 τ");
+    let wrong = sys.transient(&p, &Start::State(vec![0.0; 7]), &[], None);
+    assert!(matches!(wrong, Err(EngineError::Invalid(_))));
 }
 
 /// A stress of a ring without slow traps runs with a warning that says the drift is zero; the

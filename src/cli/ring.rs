@@ -80,9 +80,10 @@ pub struct Args {
     /// Bias stress: the ring stalled with its stage outputs held alternately at this supply
     /// and at 0 V (the supply at it) for `--stress-time`, then released at its nominal supply
     /// with the traps as the stress left them; reports the frequency drift against the fresh
-    /// ring (in volts unless a unit is written).
+    /// ring (in volts unless a unit is written). Whole periods only: one pass of `--edge` sees
+    /// one of each stage's two transitions, which a stress shifts differently.
     #[arg(long, value_name = "V", allow_hyphen_values = true, requires = "stress_time",
-          conflicts_with_all = ["show", "dump_matrix"])]
+          conflicts_with_all = ["show", "dump_matrix", "edge"])]
     pub stress_supply: Option<String>,
     /// How long the stress is held, in seconds unless a unit is written (`1 s`, `10 ms`).
     #[arg(

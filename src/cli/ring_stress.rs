@@ -8,7 +8,7 @@ use crate::error::JobError;
 use crate::output::{csv, ensure_dir, write_whole as write_file, OutputSet};
 use crate::plot::{draw, Axis, Figure, Series, Style};
 use crate::ring::RingParams;
-use crate::ring_stress::{run_stress, StressError, StressPlan, StressReport, SETTLE};
+use crate::ring_stress::{run_stress, StressPlan, StressReport, SETTLE};
 use crate::{note, out};
 use lamina_engine::{Circuit, System};
 use lamina_netlist::units::Dim;
@@ -72,10 +72,7 @@ impl StressRun {
             &self.plan,
             self.shortest_trap_time_s,
         )
-        .map_err(|e| match e {
-            StressError::Invalid(m) => JobError::Usage(m),
-            e => JobError::Analysis(e.to_string()),
-        })?;
+        .map_err(|e| JobError::Analysis(e.to_string()))?;
         if let Some(set) = out {
             write_stress(set.dir(), &report).map_err(JobError::Io)?;
             set.commit()?;
