@@ -5,7 +5,8 @@
 //! job runs four kinds of state through one engine, one physics:
 //!
 //! 1. **Fresh.** The ring unpowered long enough for every trap to be at rest: the operating
-//!    point with the supply and every stage output at 0 V.
+//!    point with the supply and every stage output at 0 V (any other source of the circuit
+//!    keeps its value throughout).
 //! 2. **Stress.** The ring *stalled*, as a ring with its enable off sits: the stage outputs held
 //!    alternately at the stress supply and at 0 V (even stages high, the single-defect pattern
 //!    of [`crate::ring`]) and the supply at the stress value, for the stress time. The holding
