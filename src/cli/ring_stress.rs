@@ -20,18 +20,20 @@ pub(crate) fn plan(a: &Args) -> Result<Option<StressPlan>, JobError> {
     let Some(supply) = &a.stress_supply else {
         return Ok(None);
     };
-    let positive = super::extract::positive;
-    let supply_v = positive("--stress-supply", &Some(supply.clone()), "V", Dim::VOLTAGE)?;
-    let time_s = positive("--stress-time", &a.stress_time, "s", Dim::TIME)?;
-    let recovery_s = a
-        .recovery_time
-        .iter()
-        .map(|t| positive("--recovery-time", &Some(t.clone()), "s", Dim::TIME))
-        .collect::<Result<Vec<_>, _>>()?;
+    // One value that must be positive, read with its unit; an error names the flag.
+    let positive = |flag: &str, text: &str, unit: &str, dim: Dim| {
+        super::extract::positive(flag, &Some(text.to_string()), unit, dim)
+            .map(|v| v.unwrap_or(f64::NAN))
+    };
+    let time_s = a.stress_time.as_deref().unwrap_or_default();
     let plan = StressPlan {
-        supply_v: supply_v.unwrap_or(0.0),
-        time_s: time_s.unwrap_or(0.0),
-        recovery_s: recovery_s.into_iter().flatten().collect(),
+        supply_v: positive("--stress-supply", supply, "V", Dim::VOLTAGE)?,
+        time_s: positive("--stress-time", time_s, "s", Dim::TIME)?,
+        recovery_s: a
+            .recovery_time
+            .iter()
+            .map(|t| positive("--recovery-time", t, "s", Dim::TIME))
+            .collect::<Result<_, _>>()?,
     };
     plan.check().map_err(JobError::Usage)?;
     Ok(Some(plan))
