@@ -5,6 +5,8 @@
 //! * [`builtin`]: circuits built in code (a square-law inverter and rings of it).
 //! * [`ring`]: the ring-oscillator job: start-up with a single circulating edge, a transient
 //!   that stops once enough periods have been seen, and the frequency measurement.
+//! * [`ring_stress`]: the ring's frequency drift after a bias stress (slow traps) and its
+//!   recovery.
 //! * [`iv`]: device curves of the one FET in a file.
 //! * [`cv`]: gate capacitances and the gate stack's parts of the one 2D-channel FET in a file.
 //! * [`sweep`]: a file's analyses over a grid of parameter values, in parallel.
@@ -46,6 +48,7 @@ pub mod op;
 pub mod output;
 pub mod plot;
 pub mod ring;
+pub mod ring_stress;
 pub mod small_signal;
 pub mod sweep;
 pub mod transient;

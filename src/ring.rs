@@ -221,7 +221,19 @@ pub fn run_ring(
     ring: &Ring,
     params: &RingParams,
 ) -> Result<RingReport, RingError> {
-    run(system, ring, params, false, None).map(|(r, _)| r)
+    run(system, ring, params, false, None, &single_edge_start(ring)).map(|(r, _)| r)
+}
+
+/// As [`run_ring`], from `start` instead of [`single_edge_start`]: a state with the stage
+/// outputs at the same single-defect levels (a run continued from an earlier one's end state,
+/// device-internal unknowns such as trap occupancies carried over; see `ring_stress`).
+pub fn run_ring_from(
+    system: &mut System,
+    ring: &Ring,
+    params: &RingParams,
+    start: &Start,
+) -> Result<RingReport, RingError> {
+    run(system, ring, params, false, None, start).map(|(r, _)| r)
 }
 
 /// Recorded waveforms of a ring run: time and the first two stage outputs.
@@ -250,7 +262,7 @@ pub fn run_ring_recorded(
     ring: &Ring,
     params: &RingParams,
 ) -> Result<(RingReport, RingWaves), RingError> {
-    run(system, ring, params, true, None)
+    run(system, ring, params, true, None, &single_edge_start(ring))
 }
 
 /// As [`run_ring_recorded`], keeping the waveforms of the stages `shown` (indices into the
@@ -261,7 +273,14 @@ pub fn run_ring_showing(
     params: &RingParams,
     shown: &[usize],
 ) -> Result<(RingReport, RingWaves), RingError> {
-    run(system, ring, params, true, Some(shown))
+    run(
+        system,
+        ring,
+        params,
+        true,
+        Some(shown),
+        &single_edge_start(ring),
+    )
 }
 
 /// Successive periods must agree within this (relative spread) to count as settled.
@@ -318,6 +337,7 @@ fn run(
     params: &RingParams,
     record: bool,
     shown: Option<&[usize]>,
+    start: &Start,
 ) -> Result<(RingReport, RingWaves), RingError> {
     let stages = ring.outputs.len();
     if stages < 3 || stages % 2 == 0 {
@@ -344,9 +364,9 @@ fn run(
         ));
     }
     if params.edge {
-        run_edge(system, ring, params, record)
+        run_edge(system, ring, params, record, start)
     } else {
-        run_periods(system, ring, params, record, shown)
+        run_periods(system, ring, params, record, shown, start)
     }
 }
 
@@ -660,6 +680,7 @@ fn run_periods(
     params: &RingParams,
     record: bool,
     shown: Option<&[usize]>,
+    start: &Start,
 ) -> Result<(RingReport, RingWaves), RingError> {
     let stages = ring.outputs.len();
     let tp = transient_params(params);
@@ -718,7 +739,7 @@ fn run_periods(
             }
         };
         let probes = probes(ring);
-        system.transient(&tp, &single_edge_start(ring), &probes, Some(&mut observer))
+        system.transient(&tp, start, &probes, Some(&mut observer))
     };
     bar.finish_and_clear();
     let res = res?;
@@ -834,6 +855,7 @@ fn run_edge(
     ring: &Ring,
     params: &RingParams,
     record: bool,
+    start: &Start,
 ) -> Result<(RingReport, RingWaves), RingError> {
     let stages = ring.outputs.len();
     // Let the edge form over about 20 stages, then time it over as many as the ring allows.
@@ -897,7 +919,7 @@ fn run_edge(
             }
         };
         let probes = probes(ring);
-        system.transient(&tp, &single_edge_start(ring), &probes, Some(&mut observer))
+        system.transient(&tp, start, &probes, Some(&mut observer))
     };
     bar.finish_and_clear();
     let res = res?;

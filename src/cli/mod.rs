@@ -15,6 +15,7 @@ pub mod materials;
 pub mod montecarlo;
 pub mod montecarlo_merge;
 pub mod ring;
+pub mod ring_stress;
 pub mod run;
 pub mod small_signal;
 pub mod sweep;

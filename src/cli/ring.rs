@@ -77,6 +77,32 @@ pub struct Args {
     /// ring, or all of a ring of five or fewer).
     #[arg(long, value_name = "LIST", value_delimiter = ',')]
     pub show: Vec<usize>,
+    /// Bias stress: the ring stalled with its stage outputs held alternately at this supply
+    /// and at 0 V (the supply at it) for `--stress-time`, then released at its nominal supply
+    /// with the traps as the stress left them; reports the frequency drift against the fresh
+    /// ring (in volts unless a unit is written). Whole periods only: one pass of `--edge` sees
+    /// one of each stage's two transitions, which a stress shifts differently.
+    #[arg(long, value_name = "V", allow_hyphen_values = true, requires = "stress_time",
+          conflicts_with_all = ["show", "dump_matrix", "edge"])]
+    pub stress_supply: Option<String>,
+    /// How long the stress is held, in seconds unless a unit is written (`1 s`, `10 ms`).
+    #[arg(
+        long,
+        value_name = "TIME",
+        allow_hyphen_values = true,
+        requires = "stress_supply"
+    )]
+    pub stress_time: Option<String>,
+    /// Recovery times after the stress (the ring held unpowered) at which it is measured again,
+    /// such as `1 ms,1 s,100 s` (repeatable).
+    #[arg(
+        long,
+        value_name = "TIME",
+        value_delimiter = ',',
+        allow_hyphen_values = true,
+        requires = "stress_supply"
+    )]
+    pub recovery_time: Vec<String>,
 }
 
 /// Runs the job.
@@ -93,6 +119,7 @@ pub fn run(a: Args) -> Result<(), JobError> {
             a.bypass_factor
         )));
     }
+    let stress = super::ring_stress::plan(&a)?;
     let set_out = OutputSet::begin_opt(a.out.as_deref())?;
     let params = RingParams {
         integrator: method(a.integrator),
@@ -101,6 +128,8 @@ pub fn run(a: Args) -> Result<(), JobError> {
         bypass: a.bypass_factor,
         ..RingParams::default()
     };
+    // A second copy of the ring's circuit for a stress, with its shortest trap time constant.
+    let mut held = None;
     let (mut system, ring, params) = match (&a.file, a.builtin) {
         (Some(_), _) if a.stages.is_some() => {
             return Err(JobError::Usage(format!(
@@ -112,6 +141,10 @@ pub fn run(a: Args) -> Result<(), JobError> {
         (Some(file), _) => {
             let sets = design::parse_sets(&a.set)?;
             let d = design::load(file, &sets)?;
+            if stress.is_some() {
+                let copy = design::load(file, &sets)?;
+                held = Some((crate::ring_stress::shortest_trap_time(&copy), copy.circuit));
+            }
             design::ring_from(d, &params)?
         }
         (None, Some(Builtin::SquareRing)) => {
@@ -124,8 +157,12 @@ pub fn run(a: Args) -> Result<(), JobError> {
             }
             let mut stage = SquareStage::default();
             crate::builtin::apply_sets(&mut stage, &design::parse_sets(&a.set)?)?;
-            let (circuit, ring) =
-                square_ring(stages, &stage).map_err(|e| JobError::Analysis(e.to_string()))?;
+            let build =
+                || square_ring(stages, &stage).map_err(|e| JobError::Analysis(e.to_string()));
+            let (circuit, ring) = build()?;
+            if stress.is_some() {
+                held = Some((None, build()?.0));
+            }
             let system = System::new(circuit).map_err(|e| JobError::Analysis(e.to_string()))?;
             (system, ring, params)
         }
@@ -135,6 +172,14 @@ pub fn run(a: Args) -> Result<(), JobError> {
             ))
         }
     };
+    if let (Some(plan), Some((tau, circuit))) = (stress, held) {
+        let run = super::ring_stress::StressRun {
+            held: circuit,
+            plan,
+            shortest_trap_time_s: tau,
+        };
+        return run.finish(&mut system, &ring, &params, a.json, set_out);
+    }
     finish_ring(
         &mut system,
         &ring,

@@ -117,6 +117,10 @@ pub enum Start {
     Given(Vec<(NodeId, f64)>),
     /// From a DC solve with the given nodes held at their values, released at t = 0.
     Clamped(Vec<(NodeId, f64)>, OpParams),
+    /// From every unknown in the system's order (nodes, then element internals such as a
+    /// device's trap occupancies), as [`TransientResult::end_state`] of an earlier run of the
+    /// same system hands it back: a run continued with its slow state carried over.
+    State(Vec<f64>),
 }
 
 /// A callback that sees each accepted time and the probes' values there.
@@ -239,6 +243,9 @@ pub struct TransientResult {
     pub stats: TransientStats,
     /// How the starting operating point was found, when there was one.
     pub start: Option<OpInfo>,
+    /// Every unknown at the last accepted time, in the system's order (a [`Start::State`]
+    /// continues from it).
+    pub end_state: Vec<f64>,
 }
 
 struct History {
@@ -344,6 +351,16 @@ impl System {
                     x[i] = v;
                 }
                 start_info = Some(self.operating_point_from(&mut x, op, &clamps)?);
+            }
+            Start::State(state) => {
+                if state.len() != n || state.iter().any(|v| !v.is_finite()) {
+                    return Err(EngineError::Invalid(format!(
+                        "a start state needs {n} finite unknowns, one per unknown of the \
+                         system; {} given",
+                        state.len()
+                    )));
+                }
+                x.copy_from_slice(state);
             }
         }
 
@@ -730,6 +747,7 @@ impl System {
             signals,
             stats,
             start: start_info,
+            end_state: x,
         })
     }
 
