@@ -12,7 +12,12 @@
 //!    of [`crate::ring`]) and the supply at the stress value, for the stress time. The holding
 //!    is done by ideal voltage sources pinning every stage output in a copy of the ring's
 //!    circuit (the *held* circuit); its transient moves only the trap occupancies once the
-//!    [`RAMP`] to the held levels is over, so its steps grow as long as the traps allow.
+//!    [`RAMP`] to the held levels is over, so its steps grow as long as the traps allow. An
+//!    odd ring has one defect in that pattern: stage 0's input and output are both held high,
+//!    so its n-channel device conducts through the hold (drain high as well as gate), a
+//!    stress that differs from its neighbours' at the drain end. A ring stalled by a real
+//!    enable gate sits in a consistent state instead; with 21 stages the defect is one stage
+//!    in 21 (a model estimate either way).
 //! 3. **Recovery.** The held ring with the supply and every stage output at 0 V, for each
 //!    recovery time (counted from the end of the stress, the holds chained in increasing
 //!    order).
