@@ -388,10 +388,7 @@ fn run_one(
         perturbation: Some(Perturb(draws.clone())),
         ..LoadOptions::default()
     };
-    let ring = RingParams {
-        wave_samples: crate::sweep::CURVE_SAMPLES,
-        ..RingParams::default()
-    };
+    let ring = RingParams::for_monte_carlo();
     let result = run_all_options(path, &options, &ring, None);
     let (figures, curves, error) = match result {
         Ok(results) => {

@@ -382,3 +382,35 @@ fn ring_waveforms_keep_their_bound_and_the_figures_do_not_move() {
         assert_eq!((t[i], a[i], b[i]), (tk, ta[k], tb[k]), "sample {k}");
     }
 }
+
+/// A Monte Carlo sample's measurement (3 periods after at least 1 discarded) gives the
+/// single run's figures (5 after 3) to within the settled periods' own spread: the demo
+/// 2D-FET ring and an 11-stage square-law ring, within 2e-5 in frequency and energy per
+/// cycle.
+#[test]
+fn monte_carlo_measurement_agrees_with_the_single_run() {
+    let design =
+        lamina::design::load(std::path::Path::new("netlists/demo/ring-21.lam"), &[]).unwrap();
+    let (mut sys, demo, _) = lamina::design::ring_from(design, &RingParams::default()).unwrap();
+    let (mut square_sys, square) = {
+        let (c, r) = square_ring(11, &SquareStage::default()).unwrap();
+        (System::new(c).unwrap(), r)
+    };
+    for (sys, ring) in [(&mut sys, &demo), (&mut square_sys, &square)] {
+        let full = run_ring(sys, ring, &RingParams::default()).unwrap();
+        let quick = run_ring(sys, ring, &RingParams::for_monte_carlo()).unwrap();
+        assert!(quick.periods_used < full.periods_used);
+        assert!(
+            quick.steps < full.steps,
+            "{} vs {}",
+            quick.steps,
+            full.steps
+        );
+        for (a, b) in [
+            (quick.frequency, full.frequency),
+            (quick.energy_per_cycle, full.energy_per_cycle),
+        ] {
+            assert!((a / b - 1.0).abs() < 2e-5, "{a} vs {b}");
+        }
+    }
+}
