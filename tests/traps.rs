@@ -550,6 +550,17 @@ fn turning_point_samples_carry_their_own_legs_displacement_current() {
             .and_then(|p| p["id"].as_f64())
             .unwrap_or_else(|| panic!("no {leg} point at {vgs} V"))
     };
+    // The gate current of the ramped sweep (the gate's displacement current, leakage being
+    // negligible here) has the sign of each leg's ramp.
+    let gate_at = |leg: &str, k: usize| {
+        points
+            .iter()
+            .filter(|p| p["sweep"] == leg)
+            .nth(k)
+            .and_then(|p| p["ig_a"].as_f64())
+            .unwrap_or_else(|| panic!("no {leg} gate current"))
+    };
+    assert!(gate_at("up", 5) > 0.0 && gate_at("down", 5) < 0.0);
     let jump = at("up", 1.0) - at("down", 1.0);
     let gap = at("up", 0.95) - at("down", 0.95);
     assert!(jump < 0.0 && gap < 0.0, "jump {jump:e}, gap {gap:e}");

@@ -900,6 +900,7 @@ impl Swept {
                         "vgs": s.point.vgs,
                         "vds": s.point.vds,
                         "id": s.point.id,
+                        "ig_a": s.point.ig,
                     })
                 })
                 .collect();
@@ -910,21 +911,23 @@ impl Swept {
             return;
         }
         out!(
-            "{:>10} {:>10} {:>6} {:>13} {:>16}   (model estimate)",
+            "{:>10} {:>10} {:>6} {:>13} {:>16} {:>16}   (model estimate)",
             "V_GS (V)",
             "V_DS (V)",
             "sweep",
             "time (s)",
-            "I_D (A)"
+            "I_D (A)",
+            "I_G (A)"
         );
         for s in &self.points {
             out!(
-                "{:>10} {:>10} {:>6} {:>13} {:>16}",
+                "{:>10} {:>10} {:>6} {:>13} {:>16} {:>16}",
                 fixed(s.point.vgs, 4),
                 fixed(s.point.vds, 4),
                 s.leg.name(),
                 sci(s.time_s, 5),
-                sci(s.point.id, 6)
+                sci(s.point.id, 6),
+                sci(s.point.ig, 6)
             );
         }
         for line in metrics_text(&self.metrics).into_iter().chain(self.text()) {
@@ -943,10 +946,10 @@ impl Swept {
             }
             let rows = mine
                 .iter()
-                .map(|s| vec![s.time_s, s.point.vgs, s.point.vds, s.point.id]);
+                .map(|s| vec![s.time_s, s.point.vgs, s.point.vds, s.point.id, s.point.ig]);
             write_file(
                 &dir.join(format!("iv-{}.csv", leg.name())),
-                csv(&["time_s", "vgs_v", "vds_v", "id_a"], rows).as_bytes(),
+                csv(&["time_s", "vgs_v", "vds_v", "id_a", "ig_a"], rows).as_bytes(),
             )?;
         }
         let mut j = json!({ "metrics": metrics_json(&self.metrics), "sweep": self.json() });
