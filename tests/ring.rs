@@ -414,3 +414,36 @@ fn monte_carlo_measurement_agrees_with_the_single_run() {
         }
     }
 }
+
+/// `integrator = variable_bdf` in a file's ring analysis selects the variable-order BDF (the
+/// same as `lamina ring --integrator variable-bdf`), whose frequency agrees with the
+/// trapezoidal rule's within the default tolerances' error (2e-4); a misspelt name is refused
+/// at its place with the nearest name.
+#[test]
+fn a_ring_file_can_choose_the_variable_order_integrator() {
+    let text = std::fs::read_to_string("netlists/reference/square-ring-11.lam").unwrap();
+    let with = |name: &str| {
+        text.replace(
+            "supply = vdd }",
+            &format!("supply = vdd, integrator = {name} }}"),
+        )
+    };
+    let options = lamina_netlist::LoadOptions::default();
+    let design = lamina_netlist::load_source("r.lam", &with("variable_bdf"), &options).unwrap();
+    let (mut sys, ring, params) =
+        lamina::design::ring_from(design, &RingParams::default()).unwrap();
+    assert_eq!(params.integrator, Integrator::VariableBdf);
+    let bdf = run_ring(&mut sys, &ring, &params).unwrap();
+    let trap = run_ring(&mut sys, &ring, &RingParams::default()).unwrap();
+    assert!(
+        (bdf.frequency / trap.frequency - 1.0).abs() < 2e-4,
+        "{} vs {}",
+        bdf.frequency,
+        trap.frequency
+    );
+    let e = lamina_netlist::load_source("r.lam", &with("variable_bfd"), &options)
+        .err()
+        .unwrap()
+        .to_string();
+    assert!(e.contains("r.lam:16:") && e.contains("variable_bdf"), "{e}");
+}

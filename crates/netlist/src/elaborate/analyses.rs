@@ -784,6 +784,7 @@ impl<'s> Elaborator<'s> {
                 "trapezoidal" => Some(Integrator::Trapezoidal),
                 "euler" => Some(Integrator::BackwardEuler),
                 "bdf2" => Some(Integrator::Bdf2),
+                "variable_bdf" => Some(Integrator::VariableBdf),
                 other => {
                     let mut d = Diagnostic::new(
                         ErrorKind::Unknown,
@@ -791,8 +792,10 @@ impl<'s> Elaborator<'s> {
                         format!("no integrator called `{other}`"),
                     );
                     d = d.with_help(
-                        did_you_mean(other, ["trapezoidal", "euler", "bdf2"])
-                            .unwrap_or_else(|| "use trapezoidal, euler or bdf2".into()),
+                        did_you_mean(other, ["trapezoidal", "euler", "bdf2", "variable_bdf"])
+                            .unwrap_or_else(|| {
+                                "use trapezoidal, euler, bdf2 or variable_bdf".into()
+                            }),
                     );
                     self.diags.push(d);
                     return None;
