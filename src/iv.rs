@@ -33,6 +33,7 @@
 //! shows; [`hysteresis`] reads the width of a both-way sweep at a stated current.
 
 use lamina_devices::physics::{K_B, Q};
+use lamina_devices::sheet_fet::leakage::LeakageMode;
 use lamina_devices::SheetFet;
 use lamina_engine::elements::{VoltageSource, Waveform};
 use lamina_engine::{
@@ -204,7 +205,7 @@ pub fn run_iv_with(
     vds: &[f64],
     params: &SweepParams,
 ) -> Result<Vec<IvPoint>, String> {
-    let mut c = design.circuit;
+    let mut c = whole_leakage(design)?;
     let Driven {
         gate: vg_src,
         drain: vd_src,
@@ -234,6 +235,27 @@ pub fn run_iv_with(
         }
     }
     Ok(out)
+}
+
+/// The design's circuit with its FET's gate leakage taken whole: a device curve measures the
+/// gate current itself, so an `auto` card's leakage (left out where it is small next to the
+/// channel, `lamina_devices::sheet_fet::leakage`) is in it at every gate drive, as with
+/// `gate_leakage = on`.
+fn whole_leakage(design: Design) -> Result<Circuit, String> {
+    let fet = find_fet(&design.circuit)?;
+    let whole = design.sheet_card(fet).and_then(|card| {
+        (card.gate_leakage == LeakageMode::Auto && !card.tunnelling.is_empty()).then(|| {
+            let mut card = card.clone();
+            card.gate_leakage = LeakageMode::On;
+            card
+        })
+    });
+    let mut c = design.circuit;
+    if let Some(card) = whole {
+        c.replace(fet, Box::new(SheetFet::new(&card)?))
+            .map_err(|e| e.to_string())?;
+    }
+    Ok(c)
 }
 
 fn sweep_params() -> SweepParams {
@@ -1026,7 +1048,12 @@ fn ramped_circuit(
             c.element_kind(fet)
         )
     })?;
-    let device = SheetFet::new(card)?;
+    // The gate current is measured, so the leakage is whole (see `whole_leakage`).
+    let mut card = card.clone();
+    if card.gate_leakage == LeakageMode::Auto {
+        card.gate_leakage = LeakageMode::On;
+    }
+    let device = SheetFet::new(&card)?;
     let mut n = Circuit::new();
     let (d, g) = (n.node("drain"), n.node("gate"));
     let ramp = Waveform::piecewise_linear(vertices).map_err(|e| e.to_string())?;
@@ -1102,10 +1129,16 @@ pub fn run_swept(
     let mut out = Vec::with_capacity(vds.len() * (path.len() + 1));
     for &vd in vds {
         let mut vertices = preamble.clone();
-        for (&t, &(_, v)) in times.iter().zip(&path) {
+        for (k, (&t, &(leg, v))) in times.iter().zip(&path).enumerate() {
             // A stress at the sweep's first V_GS runs straight into it.
             if vertices.last().is_none_or(|&(tl, _)| t > tl) {
                 vertices.push((t, v));
+            }
+            // Just after the turn, a vertex on the down ramp (a breakpoint the integrator
+            // lands on) where the down leg's first sample is read.
+            if let (Leg::Up, Some(&(Leg::Down, next))) = (leg, path.get(k + 1)) {
+                let after = TURN_FRACTION * (times[k + 1] - t);
+                vertices.push((t + after, v + TURN_FRACTION * (next - v)));
             }
         }
         let (mut sys, vd_src, vg_src) = ramped_circuit(design, vertices, vd)?;
@@ -1137,24 +1170,20 @@ pub fn run_swept(
                 ig: unsigned_zero(sample_at(&gate, t)),
             };
             // The turning point ends the up leg and starts the down leg. The down leg's
-            // sample there is the right-hand limit, extrapolated back to the turn from the
-            // first two accepted steps after it (the integrator restarts with a short step at
-            // the vertex), so each leg carries its own ramp's displacement current.
+            // sample there is read at the vertex a small fraction of the step after the turn,
+            // so each leg carries its own ramp's displacement current.
             if leg_before == Some(Leg::Up) && leg == Leg::Down {
-                let (tp, pp) = (times[k - 1], out.last().map(|s: &SweptPoint| s.point));
-                if let Some(pp) = pp {
-                    let point = match (right_limit(&samples, tp), right_limit(&gate, tp)) {
-                        (Some(id), Some(ig)) => IvPoint {
-                            id: unsigned_zero(id),
-                            ig: unsigned_zero(ig),
-                            ..pp
-                        },
-                        _ => pp,
-                    };
+                let tp = times[k - 1];
+                if let Some(pp) = out.last().map(|s: &SweptPoint| s.point) {
+                    let after = tp + TURN_FRACTION * (t - tp);
                     out.push(SweptPoint {
                         leg: Leg::Down,
                         time_s: tp,
-                        point,
+                        point: IvPoint {
+                            id: unsigned_zero(sample_at(&samples, after)),
+                            ig: unsigned_zero(sample_at(&gate, after)),
+                            ..pp
+                        },
                     });
                 }
             }
@@ -1179,13 +1208,10 @@ pub struct Stress {
     pub time_s: f64,
 }
 
-/// The limit of the recorded values as time falls to `t` from above: the straight line
-/// through the first two samples after `t`, taken back to `t`; `None` without two.
-fn right_limit(samples: &[(f64, f64)], t: f64) -> Option<f64> {
-    let k = samples.partition_point(|s| s.0 <= t);
-    let (&(t1, y1), &(t2, y2)) = (samples.get(k)?, samples.get(k + 1)?);
-    Some(y1 - (y2 - y1) * (t1 - t) / (t2 - t1))
-}
+/// Where, as a fraction of the down leg's first step, the down leg's sample at the turn is
+/// read: close enough that `I_D` has not moved (a change of `1e-6` of one step), far enough
+/// that the integrator resolves the ramp's displacement current there.
+const TURN_FRACTION: f64 = 1e-6;
 
 /// The recorded value at time `t`: the sample there (the integrator steps onto every vertex),
 /// else the straight line between its neighbours.

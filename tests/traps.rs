@@ -565,4 +565,19 @@ fn turning_point_samples_carry_their_own_legs_displacement_current() {
     let gap = at("up", 0.95) - at("down", 0.95);
     assert!(jump < 0.0 && gap < 0.0, "jump {jump:e}, gap {gap:e}");
     assert!((jump / gap - 1.0).abs() < 0.1, "jump {jump:e}, gap {gap:e}");
+    // At 1 V/s the displacement current is 1e-9 of the drain current, and the down leg's
+    // first sample, read just after the turn, is the up leg's last within 1e-5 of it (a
+    // straight line through the next two samples carried the curve's bend: 3e-5).
+    let j = iv_json(&["--sweep-rate", "1 V/s"]);
+    let points = j["points"].as_array().unwrap();
+    let id = |leg: &str, first: bool| {
+        let mut legs = points.iter().filter(|p| p["sweep"] == leg);
+        let p = if first { legs.next() } else { legs.next_back() };
+        p.and_then(|p| p["id"].as_f64()).unwrap()
+    };
+    let (up, down) = (id("up", false), id("down", true));
+    assert!(
+        (up - down).abs() < 1e-5 * up.abs(),
+        "up {up:e}, down {down:e}"
+    );
 }

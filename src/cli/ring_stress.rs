@@ -148,10 +148,10 @@ fn print_stress(r: &StressReport) {
         r.fresh.stages
     );
     out!(
-        "  stress         supply {} V held {} s, stage outputs alternately at it and 0 V; \
+        "  stress         supply {} held {}, stage outputs alternately at it and 0 V; \
          recovery unpowered",
-        r.plan.supply_v,
-        r.plan.time_s
+        crate::plot::engineering(r.plan.supply_v, "V"),
+        crate::plot::engineering(r.plan.time_s, "s")
     );
     match r.shortest_trap_time_s {
         Some(tau) => out!(

@@ -2429,12 +2429,18 @@ impl SheetFet {
             .as_ref()
             .filter(|_| card.gate_leakage == leakage::LeakageMode::Auto)
             .and_then(|t| {
-                // The whole gate's current against the fraction of the off-current scale
-                // `(W/L) σ(0) kT/q`, as a density: `f σ(0) V_T / L²`.
-                let sigma0 = model.table_s_sigma(0.0).1;
-                let limit =
-                    card.leakage_fraction * sigma0 * model.stack.vt / (card.length * card.length);
-                t.window(limit).narrowest_kept()
+                // The whole gate's current against the fraction of the smallest channel
+                // current scale `(W/L) σ kT/q` inside the window, as a density:
+                // `f σ_min V_T / L²` (the leakage module's docs, "When it is on").
+                let area = card.width * card.length;
+                let limit = |sigma: f64| {
+                    (card.leakage_fraction * sigma * model.stack.vt / card.length.powi(2))
+                        .max(leakage::NEGLIGIBLE_CURRENT / area)
+                };
+                let first = t.window(limit(model.table_s_sigma(0.0).1), None);
+                let least =
+                    leakage::smallest_on(first.below, first.above, |u| model.table_s_sigma(u).1);
+                t.window(limit(least), Some(&first)).narrowest_kept()
             });
         let leakage = leakage.map(|t| (t, 0.5 * card.width * card.length));
         Ok(SheetFet {

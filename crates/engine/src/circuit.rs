@@ -182,6 +182,27 @@ impl Circuit {
         Ok(id)
     }
 
+    /// Replaces the element `id` by `element`, keeping its name and pins (a device rebuilt
+    /// from an adjusted card, say). The new element must have as many terminals.
+    pub fn replace(
+        &mut self,
+        id: ElementId,
+        element: Box<dyn Element>,
+    ) -> Result<(), CircuitError> {
+        let Some(entry) = self.entries.get_mut(id.0) else {
+            return Err(CircuitError::ForeignNode(format!("element #{}", id.0)));
+        };
+        if element.terminals().len() != entry.pins.len() {
+            return Err(CircuitError::PinCount {
+                element: entry.name.clone(),
+                expected: element.terminals().len(),
+                found: entry.pins.len(),
+            });
+        }
+        entry.element = element;
+        Ok(())
+    }
+
     /// The element called `name`, if it exists.
     pub fn find_element(&self, name: &str) -> Option<ElementId> {
         self.element_lookup.get(name).copied()

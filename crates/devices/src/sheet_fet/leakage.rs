@@ -78,23 +78,31 @@
 //! For a card whose every layer has tunnelling data (a library insulator, or the four card
 //! keys), card key `gate_leakage`:
 //!
-//! * `auto` (the default): the leakage is left out at gate drives where the whole gate's
-//!   current `W L |J(u)|` stays below `gate_leakage_fraction` (default
-//!   [`super::insight::SIGNIFICANT_LEAKAGE`] = 1e-3) of the channel's off-current scale
-//!   `(W/L) σ(0) kT/q`, the drain current of the device at zero gate drive with one thermal
-//!   voltage across it (its subthreshold current at `V_GS = 0`, the current that sets a logic
-//!   gate's static node currents). `J` is monotonic in `u`, so this is a window
-//!   `below < u < above` about `u = 0`, found once per device by doubling and bisection on
-//!   the direct quadrature to 10 mV (about twenty solves per side, [`LeakageTable::window`]);
-//!   within [`BLEND_VT`] thermal voltages inside each onset the current fades in (a
-//!   smoothstep weight, so the current and its slope stay continuous), beyond it the
-//!   leakage is whole. Where a channel end's gate drive lies well inside the window the
-//!   table is not read at all: a circuit that never leaves it pays nothing. What is left out
-//!   is below the stated fraction of the off-current scale at every gate drive, and so below
-//!   that fraction of the drain current wherever the device carries at least its off
-//!   current; compared with its current at the same gate drive this is conservative on the
-//!   accumulation side, where the channel carries more. Where either onset lies within the
-//!   fade-in of `u = 0` (the leakage matters almost everywhere) it is kept everywhere.
+//! * `auto` (the default): the leakage is left out inside a window of gate drives
+//!   `below < u < above` about `u = 0` where the whole gate's current `W L |J(u)|` stays
+//!   below `gate_leakage_fraction` (default [`super::insight::SIGNIFICANT_LEAKAGE`] = 1e-3)
+//!   of the *smallest* channel current scale `(W/L) σ kT/q` anywhere in the window (the
+//!   current the device carries with one thermal voltage across it, `σ` at its least, which
+//!   is the weakest path by which such a device can hold a node), or below
+//!   [`NEGLIGIBLE_CURRENT`], one electron a year. Comparing with the smallest current and
+//!   not with the device's own at the same gate drive matters for nodes held by an off
+//!   device: a storage node written through a pass device and read by another device's gate
+//!   loses its charge to that gate's leakage, which is tiny next to the reading device's
+//!   own current but not next to the pass device's (`tests/leakage.rs`, the retention
+//!   check). The window is found once per device: with the limit from `σ(0)` a first window,
+//!   then with the limit from half the least `σ` in it (a scan of the tables, [`smallest_on`])
+//!   the window within it, so what is left out obeys the rule over the final, narrower
+//!   window. `J` is monotonic in `u` (non-decreasing in `|u|`, up to quadrature rounding on
+//!   its flat stretches), so each onset is found by doubling from 0.25 V and secant steps
+//!   on `ln |J|` to 10 mV (a few direct solves per side, [`LeakageTable::window`]); within
+//!   [`BLEND_VT`] thermal voltages inside each onset the current fades in (a smoothstep
+//!   weight, so the current and its slope stay continuous), beyond it the leakage is whole.
+//!   Where a channel end's gate drive lies well inside the window the table is not read at
+//!   all. Where either onset lies within the fade-in of `u = 0` (the leakage matters almost
+//!   everywhere: thin stacks, or a cold channel whose `σ` underflows at its minimum) it is
+//!   kept everywhere, as with `on`. What the rule cannot see is a node held by a device of
+//!   another card far weaker than any of this one's; for such studies (retention of a
+//!   dynamic node) give `gate_leakage = on`.
 //! * `on`: at every gate drive (as `auto` with an empty window).
 //! * `off`: never (the operating point says `off`).
 //!
@@ -103,9 +111,11 @@
 //! solution, its part to the drain and its ratio to the drain current, with `significant`
 //! from [`super::insight::SIGNIFICANT_LEAKAGE`] of the drain current or `negligible`. A
 //! stack with a layer without data has none, and the operating point says `not modelled`.
-//! The demo process (`netlists/demo/process.lam`: 3.3 nm of hBN under 3 nm of HfO2) leaves
-//! it out within about ±2 V of gate drive, so its ring's Monte Carlo no longer solves any
-//! leakage knot (with it always on, 20 samples took 3.8 to 4.5 s instead of 2.6 to 2.8 s).
+//! Device curves (`lamina iv`) measure the gate current, so they take an `auto` card's
+//! leakage whole. The demo process (`netlists/demo/process.lam`: 3.3 nm of hBN under 3 nm
+//! of HfO2) leaves it out between -1.03 and 1.16 V for its n-channel device and between
+//! -0.23 and 1.71 V for its p-channel one (whose holes see a low barrier into hBN with the
+//! library's affinity), so in its ring the p-channel devices carry their leakage.
 //!
 //! The device's gate current takes each end's density over half the gate: `I_GS = (W L / 2)
 //! J(u_s)`, `I_GD = (W L / 2) J(u_d)`, each flowing from the gate to its own end. Exact for a
@@ -338,7 +348,7 @@ pub(crate) fn validate(card: &SheetFetCard) -> Result<(), String> {
     // Checked with or without tunnelling data: a fraction outside (0, 1] is a typo.
     if !(card.leakage_fraction > 0.0 && card.leakage_fraction <= 1.0) {
         return Err(format!(
-            "gate leakage_fraction {} is outside (0, 1]: it is the part of the channel's \
+            "gate_leakage_fraction {} is outside (0, 1]: it is the part of the channel's \
              off-current scale below which the leakage is left out (default {})",
             card.leakage_fraction,
             super::insight::SIGNIFICANT_LEAKAGE
@@ -675,36 +685,94 @@ impl Window {
     }
 }
 
+/// A gate current (A) below which `auto` always leaves the leakage out: one electron's charge
+/// a year (`q / 3.156e7 s`, 5.1e-27 A). Over any run shorter than a year it moves less charge
+/// through the whole gate than one electron, however weakly the node it reaches is held.
+pub const NEGLIGIBLE_CURRENT: f64 = Q / 3.156e7;
+
+/// Points of the scan for the smallest channel conductance in a window.
+const SCAN_POINTS: usize = 2048;
+
+/// Half the smallest of `sigma` over `[lo, hi]` (and at 0), scanned at [`SCAN_POINTS`]
+/// evenly spaced points: σ is a sum of exponentials in `u`, so between points a few mV apart
+/// the scan misses at most a factor `e^{Δu/V_T}` at the ambipolar minimum (1.2 for a 10 V
+/// window at 300 K), which the halving covers; a window many volts wide at cryogenic
+/// temperatures can miss more, and its σ underflows there anyway (the window then closes).
+pub(crate) fn smallest_on(lo: f64, hi: f64, sigma: impl Fn(f64) -> f64) -> f64 {
+    let (lo, hi) = (lo.max(-super::U_REACH), hi.min(super::U_REACH));
+    let step = (hi - lo) / (SCAN_POINTS - 1) as f64;
+    (0..SCAN_POINTS)
+        .map(|k| sigma(lo + step * k as f64))
+        .fold(sigma(0.0), f64::min)
+        * 0.5
+}
+
 impl LeakageTable {
     /// The window of gate drives where `|J|` stays below `limit` (A/m²): on each side of
-    /// `u = 0` the largest `|u|` (to [`ONSET_RESOLUTION`]) below which it does, by doubling
-    /// then bisection on the direct quadrature (`J` is monotonic in `u`; the module docs).
-    /// About twenty direct solves per side; [`super::U_REACH`] where it never reaches `limit`.
-    pub fn window(&self, limit: f64) -> Window {
-        let onset = |sign: f64| {
-            let below = |u: f64| self.direct(sign * u).abs() < limit;
-            let mut lo = 0.0;
-            let mut hi = 0.25;
-            while below(hi) {
-                lo = hi;
-                if hi >= super::U_REACH {
-                    return super::U_REACH;
+    /// `u = 0` the largest `|u|` (to [`ONSET_RESOLUTION`]) below which it does, and at most
+    /// `within`'s onset on that side (a window for a larger limit). `J` is monotonic in `u`
+    /// (the module docs), so a bracket by doubling from 0.25 V, then secant steps on `ln |J|`
+    /// (nearly linear in `u`), each probed one resolution further, find it in a few direct
+    /// solves per side (a solve that fails counts as above the limit). [`super::U_REACH`]
+    /// where it never reaches `limit`.
+    pub fn window(&self, limit: f64, within: Option<&Window>) -> Window {
+        let onset = |sign: f64, cap: f64| {
+            // ln(|J| / limit): below zero where the leakage may be left out.
+            let g = |u: f64| (self.direct(sign * u).abs() / limit).ln();
+            let below = |x: f64| x < 0.0;
+            let (mut lo, mut glo) = (0.0, f64::NEG_INFINITY);
+            let mut hi = 0.25f64.min(cap);
+            let mut ghi = g(hi);
+            while below(ghi) {
+                if hi >= cap {
+                    return cap;
                 }
-                hi = (2.0 * hi).min(super::U_REACH);
+                (lo, glo) = (hi, ghi);
+                hi = (2.0 * hi).min(cap);
+                ghi = g(hi);
             }
             while hi - lo > ONSET_RESOLUTION {
-                let mid = 0.5 * (lo + hi);
-                if below(mid) {
-                    lo = mid;
+                let x = if glo.is_finite() && ghi.is_finite() && ghi > glo {
+                    (lo + (hi - lo) * -glo / (ghi - glo))
+                        .clamp(lo + 0.25 * ONSET_RESOLUTION, hi - 0.25 * ONSET_RESOLUTION)
                 } else {
-                    hi = mid;
+                    0.5 * (lo + hi)
+                };
+                let gx = g(x);
+                // Probe one resolution toward the other end: a good estimate closes the
+                // bracket there.
+                let y = if below(gx) {
+                    (lo, glo) = (x, gx);
+                    x + ONSET_RESOLUTION
+                } else {
+                    (hi, ghi) = (x, gx);
+                    x - ONSET_RESOLUTION
+                };
+                if y > lo && y < hi {
+                    let gy = g(y);
+                    if below(gy) {
+                        (lo, glo) = (y, gy);
+                    } else {
+                        (hi, ghi) = (y, gy);
+                    }
                 }
             }
             lo
         };
+        let cap = |onset: f64| {
+            if onset >= super::U_REACH {
+                super::U_REACH
+            } else {
+                onset + ONSET_RESOLUTION
+            }
+        };
+        let (below, above) = match within {
+            Some(w) => (cap(-w.below), cap(w.above)),
+            None => (super::U_REACH, super::U_REACH),
+        };
         Window {
-            below: -onset(-1.0),
-            above: onset(1.0),
+            below: -onset(-1.0, below),
+            above: onset(1.0, above),
             blend: BLEND_VT * self.stack.kt,
         }
     }
