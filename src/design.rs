@@ -294,9 +294,15 @@ pub fn run_all_options(
         )));
     }
     let mut out = Vec::new();
+    // Each analysis gets a fresh elaboration, so sweeps and runs cannot affect each other; the
+    // first takes the one just loaded (building a file's devices twice doubled a Monte Carlo
+    // sample's set-up).
+    let mut fresh = Some(design);
     for a in &kinds {
-        // Each analysis gets a fresh elaboration, so sweeps and runs cannot affect each other.
-        let design = load_options(path, options)?;
+        let design = match fresh.take() {
+            Some(d) => d,
+            None => load_options(path, options)?,
+        };
         let outcome = match a.analysis {
             Analysis::Ring { .. } => {
                 let (mut sys, ring, params) = ring_from(design, base)?;

@@ -2437,10 +2437,11 @@ impl SheetFet {
                     (card.leakage_fraction * sigma * model.stack.vt / card.length.powi(2))
                         .max(leakage::NEGLIGIBLE_CURRENT / area)
                 };
-                let first = t.window(limit(model.table_s_sigma(0.0).1), None);
+                let mut probes = leakage::Probes::default();
+                let first = t.window(limit(model.table_s_sigma(0.0).1), &mut probes);
                 let least =
                     leakage::smallest_on(first.below, first.above, |u| model.table_s_sigma(u).1);
-                t.window(limit(least), Some(&first)).narrowest_kept()
+                t.window(limit(least), &mut probes).narrowest_kept()
             });
         let leakage = leakage.map(|t| (t, 0.5 * card.width * card.length));
         Ok(SheetFet {

@@ -709,28 +709,55 @@ pub(crate) fn smallest_on(lo: f64, hi: f64, sigma: impl Fn(f64) -> f64) -> f64 {
 
 impl LeakageTable {
     /// The window of gate drives where `|J|` stays below `limit` (A/m²): on each side of
-    /// `u = 0` the largest `|u|` (to [`ONSET_RESOLUTION`]) below which it does, and at most
-    /// `within`'s onset on that side (a window for a larger limit). `J` is monotonic in `u`
-    /// (the module docs), so a bracket by doubling from 0.25 V, then secant steps on `ln |J|`
-    /// (nearly linear in `u`), each probed one resolution further, find it in a few direct
-    /// solves per side (a solve that fails counts as above the limit). [`super::U_REACH`]
-    /// where it never reaches `limit`.
-    pub fn window(&self, limit: f64, within: Option<&Window>) -> Window {
-        let onset = |sign: f64, cap: f64| {
-            // ln(|J| / limit): below zero where the leakage may be left out.
-            let g = |u: f64| (self.direct(sign * u).abs() / limit).ln();
-            let below = |x: f64| x < 0.0;
+    /// `u = 0` the largest `|u|` (to [`ONSET_RESOLUTION`]) below which it does. `J` is
+    /// monotonic in `u` (the module docs), so a bracket from the solves `probes` holds from
+    /// earlier searches on this table, else by doubling from 0.25 V, then secant steps on
+    /// `ln |J|` (nearly linear in `u`), each probed one resolution further, find it in a few
+    /// direct solves per side, all kept in `probes`. A solve that fails counts as above the
+    /// limit. [`super::U_REACH`] where `J` never reaches `limit`.
+    pub fn window(&self, limit: f64, probes: &mut Probes) -> Window {
+        let ln_limit = limit.ln();
+        let onset = |sign: f64, seen: &mut Vec<(f64, f64)>| {
+            // ln(|J| / limit) at |u| = x, kept: below zero where the leakage may be left out.
+            let g = |x: f64, seen: &mut Vec<(f64, f64)>| {
+                let y = self.direct(sign * x).abs().ln();
+                seen.push((x, y));
+                y - ln_limit
+            };
+            let below = |y: f64| y < 0.0;
+            // The bracket from earlier solves: the last one below before the first one not.
+            seen.sort_by(|a, b| a.0.total_cmp(&b.0));
             let (mut lo, mut glo) = (0.0, f64::NEG_INFINITY);
-            let mut hi = 0.25f64.min(cap);
-            let mut ghi = g(hi);
-            while below(ghi) {
-                if hi >= cap {
-                    return cap;
+            let mut first_above = None;
+            for &(x, y) in seen.iter() {
+                if below(y - ln_limit) {
+                    (lo, glo) = (x, y - ln_limit);
+                } else {
+                    first_above = Some((x, y - ln_limit));
+                    break;
                 }
-                (lo, glo) = (hi, ghi);
-                hi = (2.0 * hi).min(cap);
-                ghi = g(hi);
             }
+            let (mut hi, mut ghi) = match first_above {
+                Some(found) => found,
+                None => {
+                    let mut x = if lo > 0.0 { 2.0 * lo } else { 0.25 };
+                    loop {
+                        if lo >= super::U_REACH {
+                            return super::U_REACH;
+                        }
+                        x = x.min(super::U_REACH);
+                        let gx = g(x, seen);
+                        if !below(gx) {
+                            break (x, gx);
+                        }
+                        (lo, glo) = (x, gx);
+                        x *= 2.0;
+                    }
+                }
+            };
+            // Which end the last step moved (the Illinois rule halves the other end's value
+            // when the same end moves twice, so the bracket closes from both sides).
+            let mut last_moved = 0i8;
             while hi - lo > ONSET_RESOLUTION {
                 let x = if glo.is_finite() && ghi.is_finite() && ghi > glo {
                     (lo + (hi - lo) * -glo / (ghi - glo))
@@ -738,18 +765,26 @@ impl LeakageTable {
                 } else {
                     0.5 * (lo + hi)
                 };
-                let gx = g(x);
+                let gx = g(x, seen);
                 // Probe one resolution toward the other end: a good estimate closes the
                 // bracket there.
                 let y = if below(gx) {
                     (lo, glo) = (x, gx);
+                    if last_moved == -1 {
+                        ghi *= 0.5;
+                    }
+                    last_moved = -1;
                     x + ONSET_RESOLUTION
                 } else {
                     (hi, ghi) = (x, gx);
+                    if last_moved == 1 {
+                        glo *= 0.5;
+                    }
+                    last_moved = 1;
                     x - ONSET_RESOLUTION
                 };
                 if y > lo && y < hi {
-                    let gy = g(y);
+                    let gy = g(y, seen);
                     if below(gy) {
                         (lo, glo) = (y, gy);
                     } else {
@@ -759,23 +794,20 @@ impl LeakageTable {
             }
             lo
         };
-        let cap = |onset: f64| {
-            if onset >= super::U_REACH {
-                super::U_REACH
-            } else {
-                onset + ONSET_RESOLUTION
-            }
-        };
-        let (below, above) = match within {
-            Some(w) => (cap(-w.below), cap(w.above)),
-            None => (super::U_REACH, super::U_REACH),
-        };
+        let [negative, positive] = &mut probes.sides;
         Window {
-            below: -onset(-1.0, below),
-            above: onset(1.0, above),
+            below: -onset(-1.0, negative),
+            above: onset(1.0, positive),
             blend: BLEND_VT * self.stack.kt,
         }
     }
+}
+
+/// Direct solves `(|u|, ln |J|)` on each side of `u = 0`, kept from one window search on a
+/// table to the next ([`LeakageTable::window`]).
+#[derive(Debug, Default)]
+pub struct Probes {
+    sides: [Vec<(f64, f64)>; 2],
 }
 
 /// The cubic Hermite interpolant on `[0, 1]` and its derivative.
