@@ -165,6 +165,9 @@ pub struct TransientParams {
     /// Device bypass tolerance as a multiple of the Newton update tolerance (default 1; 0
     /// evaluates every device at every iteration; see [`NewtonParams::bypass`]).
     pub bypass: f64,
+    /// Newton restricted to the active unknowns, latent ones held and checked (see the
+    /// `latency` module doc and DEVELOPERS.md, "Latency"; default off).
+    pub latency: bool,
 }
 
 impl TransientParams {
@@ -186,6 +189,7 @@ impl TransientParams {
             damp_breakpoints: true,
             output: Output::EveryStep,
             bypass: 1.0,
+            latency: false,
         }
     }
 
@@ -220,6 +224,11 @@ pub struct TransientStats {
     /// Accepted steps of the variable-order formula at each order 1 to 5 (zero for the
     /// fixed-order formulas).
     pub orders: [usize; MAX_ORDER],
+    /// Unknown-steps held latent and solved active over the accepted steps (both zero
+    /// without [`TransientParams::latency`]).
+    pub latent_unknown_steps: u64,
+    /// See `latent_unknown_steps`.
+    pub active_unknown_steps: u64,
     /// Time reached.
     pub end_time: f64,
     /// LU solver counters at the end of the run.
@@ -469,6 +478,12 @@ impl System {
         let mut quadratic: Option<f64> = None;
         let kappa = (p.lte_reltol / p.tol.reltol).min(1.0);
         let mut last_fail_time = 0.0;
+        // The latency partition lives for the stepping loop only: it ends with the loop, and
+        // on the step-size failure, so later analyses solve the whole system.
+        self.latency_end();
+        if p.latency {
+            self.latency_begin();
+        }
 
         while t < p.stop_time * (1.0 - 1e-12) {
             // Choose this step's length and method.
@@ -484,6 +499,7 @@ impl System {
                 }
             }
             if step < h_min {
+                self.latency_end();
                 return Err(self.step_error(t, step, last_failure.take(), last_fail_time));
             }
             let method = if (restart && p.damp_breakpoints)
@@ -536,6 +552,7 @@ impl System {
             });
             let w = extrapolation_weights(t_new, &hist.t, m_pred);
             predict_into(&w, &hist.x, m_pred, &mut x_new);
+            self.latency_hold(&x, &mut x_new);
             let ctx = EvalContext {
                 time: t_new,
                 source_scale: 1.0,
@@ -679,6 +696,13 @@ impl System {
                     acc.row(qn, d);
                 }
             }
+            if p.latency {
+                let tol_of_row = |r: usize| {
+                    rows.binary_search(&r)
+                        .map_or(f64::INFINITY, |k| tol_of(k, q_new[k], hist.q[0][k], &qref))
+                };
+                self.latency_accepted(&x, &x_new, t_new, &p.tol, &tol_of_row);
+            }
             hist.push(t_new, &q_new, &x_new);
             rate_known = true;
             x.copy_from_slice(&x_new);
@@ -720,6 +744,10 @@ impl System {
                     h = h.min(0.1 * (bp - t)).max(h_min * 10.0);
                 }
             }
+        }
+        if let Some((latent, active)) = self.latency_end() {
+            stats.latent_unknown_steps = latent;
+            stats.active_unknown_steps = active;
         }
         stats.end_time = t;
         stats.lu = self.lu.stats();
