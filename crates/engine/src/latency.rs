@@ -195,6 +195,13 @@ impl System {
         self.latency.as_ref().is_some_and(|l| l.on)
     }
 
+    /// The active unknowns, in order.
+    pub(crate) fn latency_active(&self) -> Vec<usize> {
+        self.latency
+            .as_ref()
+            .map_or_else(Vec::new, |l| l.active.clone())
+    }
+
     /// Sets the latent unknowns of the predicted state to their held values.
     pub(crate) fn latency_hold(&self, x: &[f64], x_new: &mut [f64]) {
         if let Some(l) = &self.latency {

@@ -1224,12 +1224,16 @@ impl System {
                 self.rhs = delta;
                 return Err(NewtonFailure::Singular { unknown });
             }
+            // Latent unknowns have no update: the loops over unknowns visit the active ones.
+            let active = latent.then(|| self.latency_active());
+            let active = active.as_deref();
+            let n = self.n;
             let mut vmax = 0.0f64;
-            for i in 0..self.n {
+            each(active, n, |i| {
                 if self.kinds[i] == UnknownKind::Voltage {
                     vmax = vmax.max(delta[i].abs());
                 }
-            }
+            });
             let lambda = if vmax > params.max_voltage_step {
                 params.max_voltage_step / vmax
             } else {
@@ -1237,11 +1241,11 @@ impl System {
             };
             let mut norm = 0.0f64;
             if lambda == 1.0 {
-                for i in 0..self.n {
+                each(active, n, |i| {
                     let bound = tol.reltol * x[i].abs().max((x[i] + delta[i]).abs())
                         + self.unknown_abstol(i, &tol);
                     norm = norm.max(delta[i].abs() / bound);
-                }
+                });
             }
             let quadratic = (it > 1)
                 .then(|| norm / (prev_norm * prev_norm))
@@ -1259,11 +1263,9 @@ impl System {
                 // tolerance. The solution also takes that last correction, and the charges the
                 // integrator will store are carried along it to first order, q += (∂q/∂x) Δ,
                 // so unknowns and charges agree to O(Δ²) without another evaluation.
-                for i in 0..self.n {
-                    x[i] += delta[i];
-                }
+                each(active, n, |i| x[i] += delta[i]);
                 if load.a0 != 0.0 {
-                    self.carry_charges(&delta);
+                    self.carry_charges(&delta, active);
                 }
                 self.rhs = delta;
                 return Ok(NewtonInfo {
@@ -1272,9 +1274,7 @@ impl System {
                     quadratic,
                 });
             }
-            for i in 0..self.n {
-                x[i] += lambda * delta[i];
-            }
+            each(active, n, |i| x[i] += lambda * delta[i]);
             self.rhs = delta;
         }
         Err(NewtonFailure::NoConvergence {
@@ -1282,20 +1282,22 @@ impl System {
         })
     }
 
-    /// `q += C Δ` with `C = ∂q/∂x` from the last assembly.
-    fn carry_charges(&mut self, delta: &[f64]) {
+    /// `q += C Δ` with `C = ∂q/∂x` from the last assembly (`Δ` nonzero only in the columns
+    /// `active` when given).
+    fn carry_charges(&mut self, delta: &[f64], active: Option<&[usize]>) {
         self.cdelta.fill(0.0);
         let col_ptr = self.pattern.col_ptr();
         let row_idx = self.pattern.row_idx();
-        for c in 0..self.n {
+        let (cmat, cdelta) = (&self.cmat, &mut self.cdelta);
+        each(active, self.n, |c| {
             let d = delta[c];
             if d != 0.0 {
                 let range = col_ptr[c]..col_ptr[c + 1];
-                for (&r, &cv) in row_idx[range.clone()].iter().zip(&self.cmat[range]) {
-                    self.cdelta[r] += cv * d;
+                for (&r, &cv) in row_idx[range.clone()].iter().zip(&cmat[range]) {
+                    cdelta[r] += cv * d;
                 }
             }
-        }
+        });
         for (q, cd) in self.q.iter_mut().zip(&self.cdelta) {
             *q += cd;
         }
@@ -1483,6 +1485,15 @@ impl System {
             row_idx,
             self.jac.clone(),
         ))
+    }
+}
+
+/// Calls `f` for each index of `subset`, or for `0..n` without one.
+#[inline]
+fn each(subset: Option<&[usize]>, n: usize, mut f: impl FnMut(usize)) {
+    match subset {
+        Some(list) => list.iter().for_each(|&i| f(i)),
+        None => (0..n).for_each(f),
     }
 }
 
