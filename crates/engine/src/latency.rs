@@ -98,6 +98,24 @@ pub(crate) struct Latency {
     strategy: LuStrategy,
     /// Unknowns whose state changed since the last refresh.
     changed: Vec<usize>,
+    /// The working rows (sorted): every row a live element touches, the active unknowns'
+    /// rows, closed under the pinned row trade. Only these are assembled, checked and
+    /// integrated; the others (*interior* latent rows) change nothing while they stay so.
+    pub(crate) work: Vec<usize>,
+    in_work: Vec<bool>,
+    /// Per row: its index among the transient's charge rows, or NONE; the working rows'.
+    charge_k: Vec<usize>,
+    pub(crate) work_k: Vec<usize>,
+    /// Rows that became interior since the transient last took them.
+    left: Vec<usize>,
+    /// Per interior row's unknown: when it left the working rows and its current then.
+    leave_t: Vec<f64>,
+    leave_f: Vec<f64>,
+    /// When an interior row's missed charge reaches its bound: (time, unknown), unsorted.
+    deadlines: Vec<(f64, usize)>,
+    tol: Tolerances,
+    /// Per row touched by more than [`WIDE`] elements (a supply): its frozen sums as a tree.
+    trees: Vec<Option<SumTree>>,
     /// Counters: latent unknown-steps and active unknown-steps over accepted steps.
     pub(crate) latent_steps: u64,
     pub(crate) active_steps: u64,
@@ -112,8 +130,12 @@ impl Latency {
 
 impl System {
     /// Starts the latency bookkeeping of a transient: every unknown active, nothing frozen.
-    pub(crate) fn latency_begin(&mut self) {
+    pub(crate) fn latency_begin(&mut self, tol: Tolerances) {
         let strategy = self.lu.strategy();
+        let mut charge_k = vec![NONE; self.n];
+        for (k, &r) in self.charge_rows.iter().enumerate() {
+            charge_k[r] = k;
+        }
         let n = self.n;
         let ne = self.elements.len();
         let mut eq_row: Vec<usize> = (0..n).collect();
@@ -143,6 +165,12 @@ impl System {
             }
         }
         let locs = self.layout.map32.len();
+        let trees = (0..n)
+            .map(|r| {
+                let d = count[r + 1] - count[r];
+                (d > WIDE).then(|| SumTree::new(d))
+            })
+            .collect();
         self.latency = Some(Latency {
             on: true,
             held: vec![false; n],
@@ -176,6 +204,16 @@ impl System {
             lu: None,
             strategy,
             changed: (0..n).collect(),
+            work: Vec::new(),
+            in_work: vec![false; n],
+            charge_k,
+            work_k: Vec::new(),
+            left: Vec::new(),
+            leave_t: vec![0.0; n],
+            leave_f: vec![0.0; n],
+            deadlines: Vec::new(),
+            tol,
+            trees,
             latent_steps: 0,
             active_steps: 0,
         });
@@ -205,9 +243,10 @@ impl System {
     /// Sets the latent unknowns of the predicted state to their held values.
     pub(crate) fn latency_hold(&self, x: &[f64], x_new: &mut [f64]) {
         if let Some(l) = &self.latency {
-            for ((xn, &xo), &h) in x_new.iter_mut().zip(x).zip(&l.held) {
-                if h {
-                    *xn = xo;
+            // Interior rows' unknowns are held and never predicted.
+            for &u in &l.work {
+                if l.held[u] {
+                    x_new[u] = x[u];
                 }
             }
         }
@@ -220,7 +259,8 @@ impl System {
             return false;
         };
         let mut woke = false;
-        for u in 0..self.n {
+        for w in 0..l.work.len() {
+            let u = l.work[w];
             if !l.held[u] {
                 continue;
             }
@@ -268,8 +308,8 @@ impl System {
         let Some(l) = self.latency.as_mut() else {
             return;
         };
-        let n = self.n;
-        for u in 0..n {
+        l.latent_steps += (self.n - l.work.len()) as u64;
+        for &u in &l.work {
             if l.held[u] {
                 l.missed[u] += l.pending[u];
                 l.pending[u] = 0.0;
@@ -291,7 +331,8 @@ impl System {
         }
         let loc_map = &self.layout.loc_map;
         let loc_start = &self.layout.loc_start;
-        for u in 0..n {
+        for w in 0..l.work.len() {
+            let u = l.work[w];
             if l.held[u] || l.quiet[u] < QUIET_STEPS {
                 continue;
             }
@@ -315,11 +356,60 @@ impl System {
         }
     }
 
+    /// The working rows of the partition (empty without one).
+    pub(crate) fn latency_rows(&self) -> Vec<usize> {
+        self.latency
+            .as_ref()
+            .map_or_else(Vec::new, |l| l.work.clone())
+    }
+
+    /// The working rows and their indices among the charge rows, when latency is on.
+    pub(crate) fn latency_work(&self) -> Option<(Vec<usize>, Vec<usize>)> {
+        self.latency
+            .as_ref()
+            .filter(|l| l.on)
+            .map(|l| (l.work.clone(), l.work_k.clone()))
+    }
+
+    /// The rows that became interior since the last call.
+    pub(crate) fn latency_take_left(&mut self) -> Vec<usize> {
+        self.latency
+            .as_mut()
+            .map_or_else(Vec::new, |l| std::mem::take(&mut l.left))
+    }
+
+    /// Wakes the interior rows whose missed charge reaches its bound by `t_new` (the state
+    /// is `x`); returns whether any woke.
+    pub(crate) fn latency_due(&mut self, x: &[f64], t_new: f64) -> bool {
+        let Some(l) = self.latency.as_mut() else {
+            return false;
+        };
+        let mut any = false;
+        let mut k = 0;
+        while k < l.deadlines.len() {
+            let (when, u) = l.deadlines[k];
+            if when <= t_new {
+                l.deadlines.swap_remove(k);
+                if l.held[u] && !l.in_work[l.eq_row[u]] {
+                    wake(l, u, &self.layout.loc_map, &self.layout.loc_start);
+                    any = true;
+                }
+            } else {
+                k += 1;
+            }
+        }
+        if any {
+            self.latency_refresh(x, t_new);
+        }
+        any
+    }
+
     /// Brings the frozen elements, the frozen sums, the live elements and the active system up
     /// to date with the held set, evaluating newly frozen elements at `x` (time `t`).
-    pub(crate) fn latency_refresh(&mut self, x: &[f64], t: f64) {
+    /// Returns whether a row joined the working rows.
+    pub(crate) fn latency_refresh(&mut self, x: &[f64], t: f64) -> bool {
         let Some(mut l) = self.latency.take() else {
-            return;
+            return false;
         };
         let ctx = EvalContext {
             time: t,
@@ -327,6 +417,7 @@ impl System {
             analysis: Analysis::Transient,
         };
         let mut dirty_rows = Vec::new();
+        let mut flipped: Vec<u32> = Vec::new();
         let mut changed = std::mem::take(&mut l.changed);
         changed.sort_unstable();
         changed.dedup();
@@ -340,8 +431,28 @@ impl System {
                     continue;
                 }
                 l.frozen[e] = want;
+                flipped.push(e as u32);
                 if want {
                     self.evaluate_into(e, x, &ctx, &mut l.st_f, &mut l.st_q);
+                }
+                let plan = &self.layout.plan[e];
+                for (k, &g) in local.iter().enumerate() {
+                    if g == NONE {
+                        continue;
+                    }
+                    if let Some(tree) = l.trees[g].as_mut() {
+                        let at = plan.map as usize + k;
+                        let leaf = if want {
+                            let q = if plan.charge { l.st_q[at] } else { 0.0 };
+                            [l.st_f[at], q, l.st_f[at].abs(), q.abs()]
+                        } else {
+                            [0.0; 4]
+                        };
+                        let adj = &l.adj[l.adj_ptr[g]..l.adj_ptr[g + 1]];
+                        // Entries are sorted by element, then local index.
+                        let pos = adj.partition_point(|&(a, j)| (a as usize, j as usize) < (e, k));
+                        tree.set(pos, leaf);
+                    }
                 }
                 dirty_rows.extend(local.iter().copied().filter(|&g| g != NONE));
             }
@@ -349,6 +460,10 @@ impl System {
         dirty_rows.sort_unstable();
         dirty_rows.dedup();
         for &r in &dirty_rows {
+            if let Some(tree) = &l.trees[r] {
+                [l.fz_f[r], l.fz_q[r], l.fz_scale[r], l.fz_qscale[r]] = tree.total();
+                continue;
+            }
             let (mut f, mut q, mut sf, mut sq) = (0.0, 0.0, 0.0f64, 0.0f64);
             for &(e, k) in &l.adj[l.adj_ptr[r]..l.adj_ptr[r + 1]] {
                 let e = e as usize;
@@ -368,25 +483,120 @@ impl System {
             l.fz_scale[r] = sf;
             l.fz_qscale[r] = sq;
         }
-        l.live.clear();
-        l.live_slots.clear();
-        for (e, plan) in self.layout.plan.iter().enumerate() {
-            if !l.frozen[e] {
-                l.live.push(e as u32);
-                let nl = plan.local as usize;
-                let slots = &self.layout.slots32[plan.slot as usize..][..nl * nl];
-                l.live_slots
-                    .extend(slots.iter().copied().filter(|&s| s != NONE32));
+        // The live elements in element order: edited in place when few changed (the cost of
+        // a refresh then follows the active part, not the circuit).
+        flipped.sort_unstable();
+        flipped.dedup();
+        if l.live.is_empty() || flipped.len() * 8 > l.live.len() {
+            l.live = (0..l.frozen.len() as u32)
+                .filter(|&e| !l.frozen[e as usize])
+                .collect();
+        } else {
+            for &e in &flipped {
+                match (l.live.binary_search(&e), l.frozen[e as usize]) {
+                    (Ok(k), true) => {
+                        l.live.remove(k);
+                    }
+                    (Err(k), false) => l.live.insert(k, e),
+                    _ => {}
+                }
             }
         }
-        self.build_active(&mut l);
+        l.live_slots.clear();
+        for &e in &l.live {
+            let plan = &self.layout.plan[e as usize];
+            let nl = plan.local as usize;
+            let slots = &self.layout.slots32[plan.slot as usize..][..nl * nl];
+            l.live_slots
+                .extend(slots.iter().copied().filter(|&s| s != NONE32));
+        }
+        // Every active unknown is a working row or was just woken.
+        let mut active: Vec<usize> = l.work.iter().chain(&changed).copied().collect();
+        active.sort_unstable();
+        active.dedup();
+        active.retain(|&u| !l.held[u]);
+        self.build_active(&mut l, active);
+        let entered = self.build_work(&mut l, t);
         self.latency = Some(l);
+        entered
+    }
+
+    /// The working rows after a refresh (see [`Latency::work`]); a row about to become
+    /// interior must pass the residual test on its frozen current, or it stays. Returns
+    /// whether a row joined.
+    fn build_work(&self, l: &mut Latency, t: f64) -> bool {
+        let mut want: Vec<usize> = Vec::with_capacity(l.work.len());
+        for &e in &l.live {
+            let e = e as usize;
+            let local =
+                &self.layout.loc_map[self.layout.loc_start[e]..self.layout.loc_start[e + 1]];
+            want.extend(local.iter().copied().filter(|&g| g != NONE));
+        }
+        want.extend_from_slice(&l.active);
+        let traded: Vec<usize> = want.iter().map(|&r| l.eq_row[r]).collect();
+        want.extend(traded);
+        want.sort_unstable();
+        want.dedup();
+        let tol = l.tol;
+        let mut entered = false;
+        // Rows leaving: in the old working rows and not wanted (both lists are sorted).
+        let mut kept = Vec::new();
+        let mut k = 0;
+        for &r in &l.work {
+            while k < want.len() && want[k] < r {
+                k += 1;
+            }
+            if k < want.len() && want[k] == r {
+                continue;
+            }
+            let u = l.eq_row[r];
+            let f = l.fz_f[r];
+            let abs = match self.kinds[r] {
+                UnknownKind::Voltage => tol.abstol,
+                UnknownKind::Current => tol.vntol,
+            };
+            if !(l.held[u] && f.abs() <= tol.reltol * l.fz_scale[r] + abs) {
+                kept.push(r);
+                continue;
+            }
+            l.in_work[r] = false;
+            l.left.push(r);
+            l.leave_t[u] = t;
+            l.leave_f[u] = f;
+            let room = l.qtol[u] - l.missed[u];
+            if f != 0.0 && room.is_finite() {
+                l.deadlines.push((t + room.max(0.0) / f.abs(), u));
+            }
+        }
+        if !kept.is_empty() {
+            want.extend(kept);
+            want.sort_unstable();
+        }
+        for &r in &want {
+            if !l.in_work[r] {
+                l.in_work[r] = true;
+                entered = true;
+                // The charge it missed while interior.
+                let u = l.eq_row[r];
+                l.missed[u] += l.leave_f[u].abs() * (t - l.leave_t[u]);
+            }
+        }
+        l.work = want;
+        l.work_k = l
+            .work
+            .iter()
+            .map(|&r| l.charge_k[r])
+            .filter(|&k| k != NONE)
+            .collect();
+        entered
     }
 
     /// The active unknowns, the pattern of `J_AA` and its LU.
-    fn build_active(&self, l: &mut Latency) {
-        l.active = (0..self.n).filter(|&u| !l.held[u]).collect();
-        l.pos.fill(NONE);
+    fn build_active(&self, l: &mut Latency, active: Vec<usize>) {
+        for &u in &l.active {
+            l.pos[l.eq_row[u]] = NONE;
+        }
+        l.active = active;
         for (k, &u) in l.active.iter().enumerate() {
             l.pos[l.eq_row[u]] = k;
         }
@@ -454,6 +664,43 @@ impl System {
             v[u] = r;
         }
         Ok(())
+    }
+}
+
+/// Rows touched by more elements than this keep their frozen sums in a [`SumTree`], so that a
+/// refresh costs `log d` for them instead of `d`.
+const WIDE: usize = 64;
+
+/// Sums (and largest magnitudes) of the frozen contributions to one wide row, over its
+/// elements in element order: a binary tree whose shape depends only on the row's degree, so
+/// the sums depend only on which elements are frozen, not on the order they froze in.
+struct SumTree {
+    size: usize,
+    /// Per node: sum of `f`, sum of `q`, largest `|f|`, largest `|q|`.
+    node: Vec<[f64; 4]>,
+}
+
+impl SumTree {
+    fn new(leaves: usize) -> Self {
+        let size = leaves.next_power_of_two();
+        SumTree {
+            size,
+            node: vec![[0.0; 4]; 2 * size],
+        }
+    }
+
+    fn set(&mut self, pos: usize, leaf: [f64; 4]) {
+        let mut i = self.size + pos;
+        self.node[i] = leaf;
+        while i > 1 {
+            i /= 2;
+            let (a, b) = (self.node[2 * i], self.node[2 * i + 1]);
+            self.node[i] = [a[0] + b[0], a[1] + b[1], a[2].max(b[2]), a[3].max(b[3])];
+        }
+    }
+
+    fn total(&self) -> [f64; 4] {
+        self.node[1]
     }
 }
 

@@ -571,6 +571,11 @@ pub(crate) enum NewtonFailure {
     NoConvergence {
         worst: Vec<(usize, f64, f64)>,
     },
+    /// A latent row joined the working rows of the latency partition: the transient must
+    /// give it its charge history and solve again (not a failure of the step).
+    Woke {
+        iterations: usize,
+    },
 }
 
 /// The extra terms one solve adds to the plain assembled system.
@@ -986,10 +991,12 @@ impl System {
                 jac[s as usize] = 0.0;
                 cmat[s as usize] = 0.0;
             }
-            f.copy_from_slice(&l.fz_f);
-            q.copy_from_slice(&l.fz_q);
-            scale.copy_from_slice(&l.fz_scale);
-            qscale.copy_from_slice(&l.fz_qscale);
+            for &r in &l.work {
+                f[r] = l.fz_f[r];
+                q[r] = l.fz_q[r];
+                scale[r] = l.fz_scale[r];
+                qscale[r] = l.fz_qscale[r];
+            }
         } else {
             jac.fill(0.0);
             if a0 != 0.0 {
@@ -1100,8 +1107,20 @@ impl System {
     /// Builds `rhs = -F` for `load` from the last assembly and returns the largest
     /// residual-to-tolerance ratio and its row.
     fn residual(&mut self, x: &[f64], load: &Load<'_>, tol: &Tolerances) -> (f64, usize) {
+        self.residual_of(x, load, tol, None)
+    }
+
+    /// [`System::residual`] on the rows `subset` only, when given (the latency partition's
+    /// working rows).
+    fn residual_of(
+        &mut self,
+        x: &[f64],
+        load: &Load<'_>,
+        tol: &Tolerances,
+        subset: Option<&[usize]>,
+    ) -> (f64, usize) {
         let n_nodes = self.n_nodes;
-        for i in 0..self.n {
+        each(subset, self.n, |i| {
             let mut fi = self.f[i];
             if load.a0 != 0.0 || load.hist.is_some() {
                 // Both terms of the charge derivative count as contributions: their
@@ -1125,7 +1144,7 @@ impl System {
                 }
             }
             self.rhs[i] = -fi;
-        }
+        });
         for &(i, v) in load.clamps {
             for &s in
                 &self.layout.row_slots[self.layout.row_slot_ptr[i]..self.layout.row_slot_ptr[i + 1]]
@@ -1137,13 +1156,13 @@ impl System {
             self.scale[i] = v.abs();
         }
         let mut worst = (0.0f64, 0usize);
-        for i in 0..self.n {
+        each(subset, self.n, |i| {
             let abs = self.row_abstol(i, tol);
             let ratio = self.rhs[i].abs() / (tol.reltol * self.scale[i] + abs);
             if ratio.is_nan() || ratio > worst.0 {
                 worst = (ratio, i);
             }
-        }
+        });
         worst
     }
 
@@ -1189,12 +1208,16 @@ impl System {
         for it in 1..=params.max_iterations {
             let (ratio, worst_row) = loop {
                 self.assemble_with(x, &load.ctx, load.a0, rule, latent);
-                let worst = self.residual(x, load, &tol);
+                let rows = latent.then(|| self.latency_rows());
+                let worst = self.residual_of(x, load, &tol, rows.as_deref());
                 if !(latent && self.latency_check(load.a0, &tol)) {
                     break worst;
                 }
-                // Woken unknowns: their elements are live again and must be assembled.
-                self.latency_refresh(x, load.ctx.time);
+                // Woken unknowns: their elements are live again and must be assembled. A row
+                // that joins the working rows needs its charge history from the transient.
+                if self.latency_refresh(x, load.ctx.time) {
+                    return Err(NewtonFailure::Woke { iterations: it });
+                }
             };
             // A device that returns NaN or infinity is named as such, not as a singular matrix
             // (the residual reports a non-finite row as its worst: no extra pass).
@@ -1202,20 +1225,28 @@ impl System {
                 return Err(NewtonFailure::NotANumber { unknown: worst_row });
             }
             let mut delta = std::mem::take(&mut self.rhs);
+            // Latent unknowns have no update: the loops over unknowns visit the active ones.
+            let active = latent.then(|| self.latency_active());
+            let active = active.as_deref();
             let solved = if latent {
                 let solved = self.solve_active(&mut delta);
                 if solved.is_err() && self.latency.as_ref().is_some_and(|l| l.any_held()) {
                     // The active part alone is singular: solve the whole system from here.
                     self.rhs = delta;
                     self.latency_wake_all();
-                    self.latency_refresh(x, load.ctx.time);
+                    if self.latency_refresh(x, load.ctx.time) {
+                        return Err(NewtonFailure::Woke { iterations: it });
+                    }
                     continue;
                 }
                 solved
             } else {
                 self.solve_update(&mut delta)
             };
-            let bad = delta.iter().position(|d| !d.is_finite());
+            let bad = match active {
+                Some(list) => list.iter().copied().find(|&i| !delta[i].is_finite()),
+                None => delta.iter().position(|d| !d.is_finite()),
+            };
             if let Err(s) = solved {
                 self.rhs = delta;
                 return Err(NewtonFailure::Singular { unknown: s.unknown });
@@ -1224,9 +1255,6 @@ impl System {
                 self.rhs = delta;
                 return Err(NewtonFailure::Singular { unknown });
             }
-            // Latent unknowns have no update: the loops over unknowns visit the active ones.
-            let active = latent.then(|| self.latency_active());
-            let active = active.as_deref();
             let n = self.n;
             let mut vmax = 0.0f64;
             each(active, n, |i| {
@@ -1265,7 +1293,8 @@ impl System {
                 // so unknowns and charges agree to O(Δ²) without another evaluation.
                 each(active, n, |i| x[i] += delta[i]);
                 if load.a0 != 0.0 {
-                    self.carry_charges(&delta, active);
+                    let rows = latent.then(|| self.latency_rows());
+                    self.carry_charges(&delta, active, rows.as_deref());
                 }
                 self.rhs = delta;
                 return Ok(NewtonInfo {
@@ -1283,9 +1312,11 @@ impl System {
     }
 
     /// `q += C Δ` with `C = ∂q/∂x` from the last assembly (`Δ` nonzero only in the columns
-    /// `active` when given).
-    fn carry_charges(&mut self, delta: &[f64], active: Option<&[usize]>) {
-        self.cdelta.fill(0.0);
+    /// `active` when given, whose entries lie in the rows `rows`).
+    fn carry_charges(&mut self, delta: &[f64], active: Option<&[usize]>, rows: Option<&[usize]>) {
+        let n = self.n;
+        let cdelta = &mut self.cdelta;
+        each(rows, n, |r| cdelta[r] = 0.0);
         let col_ptr = self.pattern.col_ptr();
         let row_idx = self.pattern.row_idx();
         let (cmat, cdelta) = (&self.cmat, &mut self.cdelta);
@@ -1298,9 +1329,8 @@ impl System {
                 }
             }
         });
-        for (q, cd) in self.q.iter_mut().zip(&self.cdelta) {
-            *q += cd;
-        }
+        let (q, cdelta) = (&mut self.q, &self.cdelta);
+        each(rows, n, |r| q[r] += cdelta[r]);
     }
 
     /// The three rows with the largest residual-to-tolerance ratio at `x`.
@@ -1378,6 +1408,12 @@ impl System {
                     .into_iter()
                     .map(|(i, v, t)| self.culprit(i, v, t))
                     .collect(),
+                tried,
+            },
+            // Only transients with latency wake, and they solve again.
+            NewtonFailure::Woke { .. } => EngineError::NoConvergence {
+                context,
+                worst: Vec::new(),
                 tried,
             },
         }
@@ -1490,7 +1526,7 @@ impl System {
 
 /// Calls `f` for each index of `subset`, or for `0..n` without one.
 #[inline]
-fn each(subset: Option<&[usize]>, n: usize, mut f: impl FnMut(usize)) {
+pub(crate) fn each(subset: Option<&[usize]>, n: usize, mut f: impl FnMut(usize)) {
     match subset {
         Some(list) => list.iter().for_each(|&i| f(i)),
         None => (0..n).for_each(f),
