@@ -29,12 +29,25 @@
 //!   steps (the charge change Newton would have applied), would exceed that row's truncation
 //!   error tolerance `lte_reltol max(|q_i|, q_ref) + chgtol` taken when it was held.
 //!
+//! * **Working rows.** Only the rows a live element touches, and the active unknowns' rows,
+//!   are assembled, checked, predicted, integrated and stored each step. The other latent
+//!   rows are *interior*: every element on them is frozen, so their current `f_i` is
+//!   constant. A row becomes interior only when `f_i` passes the residual test; its history is
+//!   then set to its present (held) value and the trapezoidal rule's stored rate, which that
+//!   test bounds, to zero, so its equation stays exactly as it was. Its missed charge grows
+//!   as `|f_i| (t - t_leave)`, so it wakes at the time that reaches its bound (a current of
+//!   exactly zero, a settled stage ahead of the edge, never wakes by itself); a neighbour
+//!   that wakes makes it a working row again. A row touched by more than [`WIDE`] elements
+//!   (a supply) keeps its frozen sums in a tree of fixed shape, so each refresh costs in
+//!   proportion to the active part, not to the circuit.
+//!
 //! *Accuracy.* A step with latent unknowns is accepted only when every equation, latent or
 //! active, passes the residual test Newton applies to the full system: the accepted state is a
 //! solution of the full step equations to the ordinary Newton tolerances. Beyond one step, the
 //! charge a latent row fails to move accumulates; it is bounded by one step's truncation-error
 //! tolerance of that row, so the latent part never drifts by more than the integrator already
-//! allows for one step. The truncation-error test still runs on every charge row.
+//! allows for one step. The truncation-error test runs on every working charge row; an
+//! interior row's charge is constant, so its estimate would be zero.
 //!
 //! *Charge.* An active row's charge is computed and carried as before. A latent row whose
 //! elements are all frozen keeps its charge bit for bit; one touched by a live element stores
@@ -487,7 +500,7 @@ impl System {
         // a refresh then follows the active part, not the circuit).
         flipped.sort_unstable();
         flipped.dedup();
-        if l.live.is_empty() || flipped.len() * 8 > l.live.len() {
+        if l.live.is_empty() || flipped.len().saturating_mul(l.live.len()) > l.frozen.len() {
             l.live = (0..l.frozen.len() as u32)
                 .filter(|&e| !l.frozen[e as usize])
                 .collect();
@@ -624,7 +637,9 @@ impl System {
         let m = l.active.len();
         l.values = vec![0.0; l.gather.len()];
         l.rhs = vec![0.0; m];
-        l.lu = if m == 0 {
+        // Everything active: the system's own solver (analysed once, pinned unknowns taken
+        // out) solves the same equations.
+        l.lu = if m == 0 || m == self.n {
             None
         } else {
             let pattern = SymbolicSparseColMat::new_checked(m, m, ptr, None, rows);
@@ -635,6 +650,13 @@ impl System {
     /// Factorises `J_AA` from the last assembly and solves it for the active unknowns' update;
     /// latent unknowns get none. `v` holds `-F` by row on entry and `Δ` by unknown on return.
     pub(crate) fn solve_active(&mut self, v: &mut [f64]) -> Result<(), Singular> {
+        if self
+            .latency
+            .as_ref()
+            .is_some_and(|l| l.active.len() == self.n)
+        {
+            return self.solve_update(v);
+        }
         let Some(l) = self.latency.as_mut() else {
             return Err(Singular { unknown: 0 });
         };

@@ -1449,7 +1449,7 @@ impl System {
     /// right-hand side on entry, `Δ` on return). With pinned nodes (see the module doc) their
     /// updates come from their sources' rows, the kept unknowns from the reduced matrix, and
     /// the sources' currents from the pinned nodes' rows.
-    fn solve_update(&mut self, v: &mut [f64]) -> Result<(), Singular> {
+    pub(crate) fn solve_update(&mut self, v: &mut [f64]) -> Result<(), Singular> {
         let System {
             jac, lu, reduction, ..
         } = self;
