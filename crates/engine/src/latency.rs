@@ -62,6 +62,8 @@ use crate::element::{Analysis, EvalContext, UnknownKind};
 use crate::lu::{LuStrategy, Singular, SparseLu};
 use crate::system::{System, Tolerances, NONE, NONE32};
 use faer::sparse::SymbolicSparseColMat;
+use std::cmp::Reverse;
+use std::collections::BinaryHeap;
 
 /// Consecutive quiet accepted steps before an unknown becomes latent.
 pub(crate) const QUIET_STEPS: u32 = 3;
@@ -124,8 +126,11 @@ pub(crate) struct Latency {
     /// Per interior row's unknown: when it left the working rows and its current then.
     leave_t: Vec<f64>,
     leave_f: Vec<f64>,
-    /// When an interior row's missed charge reaches its bound: (time, unknown), unsorted.
-    deadlines: Vec<(f64, usize)>,
+    /// Per unknown of an interior row: when its missed charge reaches its bound (infinite
+    /// otherwise); and those times as a min-heap of `(time bits, unknown)` (non-negative times
+    /// order like their bits), whose entries count only while they match `deadline`.
+    deadline: Vec<f64>,
+    deadlines: BinaryHeap<Reverse<(u64, usize)>>,
     tol: Tolerances,
     /// Per row touched by more than [`WIDE`] elements (a supply): its frozen sums as a tree.
     trees: Vec<Option<SumTree>>,
@@ -224,7 +229,8 @@ impl System {
             left: Vec::new(),
             leave_t: vec![0.0; n],
             leave_f: vec![0.0; n],
-            deadlines: Vec::new(),
+            deadline: vec![f64::INFINITY; n],
+            deadlines: BinaryHeap::new(),
             tol,
             trees,
             latent_steps: 0,
@@ -398,17 +404,16 @@ impl System {
             return false;
         };
         let mut any = false;
-        let mut k = 0;
-        while k < l.deadlines.len() {
-            let (when, u) = l.deadlines[k];
-            if when <= t_new {
-                l.deadlines.swap_remove(k);
-                if l.held[u] && !l.in_work[l.eq_row[u]] {
-                    wake(l, u, &self.layout.loc_map, &self.layout.loc_start);
-                    any = true;
-                }
-            } else {
-                k += 1;
+        while let Some(&Reverse((bits, u))) = l.deadlines.peek() {
+            let when = f64::from_bits(bits);
+            if when > t_new {
+                break;
+            }
+            l.deadlines.pop();
+            if l.deadline[u] == when && l.held[u] && !l.in_work[l.eq_row[u]] {
+                l.deadline[u] = f64::INFINITY;
+                wake(l, u, &self.layout.loc_map, &self.layout.loc_start);
+                any = true;
             }
         }
         if any {
@@ -578,7 +583,9 @@ impl System {
             l.leave_f[u] = f;
             let room = l.qtol[u] - l.missed[u];
             if f != 0.0 && room.is_finite() {
-                l.deadlines.push((t + room.max(0.0) / f.abs(), u));
+                let when = t + room.max(0.0) / f.abs();
+                l.deadline[u] = when;
+                l.deadlines.push(Reverse((when.to_bits(), u)));
             }
         }
         if !kept.is_empty() {
@@ -592,7 +599,14 @@ impl System {
                 // The charge it missed while interior.
                 let u = l.eq_row[r];
                 l.missed[u] += l.leave_f[u].abs() * (t - l.leave_t[u]);
+                l.deadline[u] = f64::INFINITY;
             }
+        }
+        // Entries of rows that came back since are dropped once they outnumber the rows.
+        if l.deadlines.len() > 2 * self.n {
+            let deadline = &l.deadline;
+            l.deadlines
+                .retain(|&Reverse((bits, u))| deadline[u] == f64::from_bits(bits));
         }
         l.work = want;
         l.work_k = l
