@@ -635,8 +635,9 @@ impl System {
         let mut column: Vec<(usize, usize)> = Vec::new();
         for &c in &l.active {
             column.clear();
-            for s in col_ptr[c]..col_ptr[c + 1] {
-                let k = l.pos[row_idx[s]];
+            let range = col_ptr[c]..col_ptr[c + 1];
+            for (s, &r) in range.clone().zip(&row_idx[range]) {
+                let k = l.pos[r];
                 if k != NONE {
                     column.push((k, s));
                 }
