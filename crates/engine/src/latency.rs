@@ -67,6 +67,8 @@ use std::collections::BinaryHeap;
 
 /// Consecutive quiet accepted steps before an unknown becomes latent.
 pub(crate) const QUIET_STEPS: u32 = 3;
+/// Fraction of the Newton residual tolerance a latent row's residual must stay within.
+pub(crate) const HOLD_FRACTION: f64 = 0.01;
 /// Fraction of the Newton update tolerance within which a step counts as quiet.
 pub(crate) const QUIET_FRACTION: f64 = 0.01;
 
@@ -292,7 +294,9 @@ impl System {
             let share = res / a0;
             l.pending[u] = share;
             // NaN fails both tests and wakes the row, whose residual then reports it.
-            if !(res <= tol.reltol * self.scale[r] + abs && l.missed[u] + share <= l.qtol[u]) {
+            if !(res <= HOLD_FRACTION * (tol.reltol * self.scale[r] + abs)
+                && l.missed[u] + share <= l.qtol[u])
+            {
                 wake(l, u, &self.layout.loc_map, &self.layout.loc_start);
                 woke = true;
             }
