@@ -24,8 +24,9 @@
 //! * **Checking latent rows.** At every Newton iteration each latent unknown's equation is
 //!   evaluated at the held value (its frozen sum, the live elements touching it, the charge
 //!   history). The unknown wakes, and the iteration is assembled again with it active, when its
-//!   residual fails the test every active row must pass, `|F_i| ≤ reltol scale_i + abstol_i`,
-//!   or when the charge its row has missed since it was held, `Σ |F_i| / α₀` over the accepted
+//!   residual leaves a fraction [`HOLD_FRACTION`] of the test every active row must pass,
+//!   `|F_i| ≤ reltol scale_i + abstol_i` (a held value is not refined by later iterations, so
+//!   it must sit well inside the test), or when the charge its row has missed since it was held, `Σ |F_i| / α₀` over the accepted
 //!   steps (the charge change Newton would have applied), would exceed that row's truncation
 //!   error tolerance `lte_reltol max(|q_i|, q_ref) + chgtol` taken when it was held.
 //!

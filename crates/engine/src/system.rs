@@ -66,6 +66,10 @@
 //! *Determinism.* Decisions depend only on `x`, the stored stamps and the tolerances, taken
 //! in element order on one thread; every transient run starts with no stored stamps, so a
 //! run's results do not depend on the runs before it. DC analyses never bypass.
+//!
+//! # Latency
+//! With `TransientParams::latency`, Newton in a transient solves the active unknowns only and
+//! holds and checks the latent ones (the `latency` module).
 
 use crate::circuit::{Circuit, ElementId, NodeId};
 use crate::element::{Analysis, Element, EvalContext, Stamp, UnknownKind};
