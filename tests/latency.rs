@@ -30,9 +30,9 @@ fn latency_keeps_the_101_stage_ring_frequency_and_is_deterministic() {
         ..RingParams::default()
     };
     let on = square(101, &params);
-    // Measured 5.5e-7; the defaults' own error against the reference setting is 1.4e-4.
+    // Measured 5e-11; the defaults' own error against the reference setting is 1.4e-4.
     assert!(
-        relative(on.frequency, off.frequency) < 5e-6,
+        relative(on.frequency, off.frequency) < 1e-8,
         "on {} off {}",
         on.frequency,
         off.frequency
@@ -52,8 +52,8 @@ fn latency_keeps_the_demo_ring_frequency() {
         run_ring(&mut sys, &ring, &params).unwrap().frequency
     };
     let (on, off) = (run(true), run(false));
-    // Measured 2.0e-7 (the defaults' own error: 6e-5).
-    assert!(relative(on, off) < 2e-6, "on {on} off {off}");
+    // Measured 2e-13 (the defaults' own error: 6e-5).
+    assert!(relative(on, off) < 1e-8, "on {on} off {off}");
 }
 
 /// The edge-travel estimate fails unless the edge reaches the far node through every stage in
@@ -72,9 +72,9 @@ fn the_single_edge_wakes_every_latent_stage_it_reaches() {
         )
     };
     let (on, off) = (edge(true), edge(false));
-    // Measured 5.6e-7; the defaults land 9.2e-5 below the reference setting here.
+    // Measured 4e-15; the defaults land 9.2e-5 below the reference setting here.
     assert!(
-        relative(on.stage_delay, off.stage_delay) < 5e-6,
+        relative(on.stage_delay, off.stage_delay) < 1e-8,
         "on {} off {}",
         on.stage_delay,
         off.stage_delay

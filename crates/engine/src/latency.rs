@@ -25,8 +25,10 @@
 //!   evaluated at the held value (its frozen sum, the live elements touching it, the charge
 //!   history). The unknown wakes, and the iteration is assembled again with it active, when its
 //!   residual leaves a fraction [`HOLD_FRACTION`] of the test every active row must pass,
-//!   `|F_i| ≤ reltol scale_i + abstol_i` (a held value is not refined by later iterations, so
-//!   it must sit well inside the test), or when the charge its row has missed since it was held, `Σ |F_i| / α₀` over the accepted
+//!   `|F_i| ≤ reltol scale_i + abstol_i`, with `scale_i` the row's largest current alone (a
+//!   held value is not refined by later iterations, so it must sit well inside the test; and
+//!   the charge terms' scale, `α₀` times the largest charge, grows as the step shrinks), or
+//!   when the charge its row has missed since it was held, `Σ |F_i| / α₀` over the accepted
 //!   steps (the charge change Newton would have applied), would exceed that row's truncation
 //!   error tolerance `lte_reltol max(|q_i|, q_ref) + chgtol` taken when it was held.
 //!
@@ -114,6 +116,10 @@ pub(crate) struct Latency {
     rhs: Vec<f64>,
     lu: Option<SparseLu>,
     strategy: LuStrategy,
+    /// Per working row: its largest current contribution at the last assembly; per working
+    /// unknown: whether its row passed the hold test at the last check.
+    fscale: Vec<f64>,
+    holdable: Vec<bool>,
     /// Unknowns whose state changed since the last refresh.
     changed: Vec<usize>,
     /// The working rows (sorted): every row a live element touches, the active unknowns'
@@ -224,6 +230,8 @@ impl System {
             rhs: Vec::new(),
             lu: None,
             strategy,
+            fscale: vec![0.0; n],
+            holdable: vec![false; n],
             changed: (0..n).collect(),
             work: Vec::new(),
             in_work: vec![false; n],
@@ -283,19 +291,25 @@ impl System {
         let mut woke = false;
         for w in 0..l.work.len() {
             let u = l.work[w];
-            if !l.held[u] {
-                continue;
-            }
             let r = l.eq_row[u];
             let abs = match self.kinds[r] {
                 UnknownKind::Voltage => tol.abstol,
                 UnknownKind::Current => tol.vntol,
             };
             let res = self.rhs[r].abs();
+            // Whether the row could be held now (an unknown is held only then, so that it is
+            // not woken at once).
+            l.holdable[u] = res <= HOLD_FRACTION * (tol.reltol * l.fscale[r] + abs);
+            if !l.held[u] {
+                continue;
+            }
             let share = res / a0;
             l.pending[u] = share;
-            // NaN fails both tests and wakes the row, whose residual then reports it.
-            if !(res <= HOLD_FRACTION * (tol.reltol * self.scale[r] + abs)
+            // NaN fails both tests and wakes the row, whose residual then reports it. The scale
+            // is the row's largest current alone: the charge terms' scale, `α₀` times the
+            // largest charge, grows without bound as the step shrinks and would let a held node
+            // that still carries current pass.
+            if !(res <= HOLD_FRACTION * (tol.reltol * l.fscale[r] + abs)
                 && l.missed[u] + share <= l.qtol[u])
             {
                 wake(l, u, &self.layout.loc_map, &self.layout.loc_start);
@@ -303,6 +317,16 @@ impl System {
             }
         }
         woke
+    }
+
+    /// Keeps the working rows' current scales of the last assembly (before the residual adds
+    /// the charge terms to them).
+    pub(crate) fn latency_keep_scale(&mut self) {
+        if let Some(l) = self.latency.as_mut() {
+            for &r in &l.work {
+                l.fscale[r] = self.scale[r];
+            }
+        }
     }
 
     /// Wakes every unknown (after the active system failed to factorise).
@@ -357,7 +381,7 @@ impl System {
         let loc_start = &self.layout.loc_start;
         for w in 0..l.work.len() {
             let u = l.work[w];
-            if l.held[u] || l.quiet[u] < QUIET_STEPS {
+            if l.held[u] || l.quiet[u] < QUIET_STEPS || !l.holdable[u] {
                 continue;
             }
             // An internal unknown goes latent only with every local unknown of its element.

@@ -1212,6 +1212,9 @@ impl System {
         for it in 1..=params.max_iterations {
             let (ratio, worst_row) = loop {
                 self.assemble_with(x, &load.ctx, load.a0, rule, latent);
+                if latent {
+                    self.latency_keep_scale();
+                }
                 let rows = latent.then(|| self.latency_rows());
                 let worst = self.residual_of(x, load, &tol, rows.as_deref());
                 if !(latent && self.latency_check(load.a0, &tol)) {
