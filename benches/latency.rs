@@ -2,7 +2,10 @@
 //! off. The demo 21-stage 2D-FET ring (4 ns, about three periods, from the single-edge start),
 //! where device evaluation dominates; the 101-stage square-law ring (16 ns, two periods), whose
 //! square-law devices do not opt into bypass (their evaluation is cheaper than the expansion)
-//! and so show what the pinned supply alone saves.
+//! and so show what the pinned supply alone saves. Then the single-edge window of long
+//! square-law rings (1 ns from the single-edge start, about 25 stage delays) with latency off
+//! and on (`TransientParams::latency`): off, every step costs in proportion to the ring;
+//! on, Newton assembles, factorises and solves the few moving stages only.
 
 use lamina::builtin::{square_ring, SquareStage};
 use lamina::design::{load, ring_from};
@@ -37,4 +40,27 @@ fn square_ring_101_sixteen_ns(bencher: divan::Bencher, bypass: f64) {
     let start = single_edge_start(&ring);
     let probe = Probe::Voltage(ring.outputs[0]);
     bencher.bench_local(|| window(&mut sys, &start, probe, 16e-9, bypass));
+}
+
+#[divan::bench(consts = [false, true], args = [1001, 3001, 10001, 30001], sample_count = 3, sample_size = 1)]
+fn square_ring_single_edge_one_ns<const LATENT: bool>(bencher: divan::Bencher, stages: usize) {
+    single_edge(bencher, stages, 1e-9, LATENT);
+}
+
+/// With the one-nanosecond window, the cost of two more nanoseconds of edge travel (the
+/// start-up, where everything is active for a few steps, cancels).
+#[divan::bench(args = [1001, 30001], sample_count = 3, sample_size = 1)]
+fn square_ring_single_edge_three_ns_latent(bencher: divan::Bencher, stages: usize) {
+    single_edge(bencher, stages, 3e-9, true);
+}
+
+fn single_edge(bencher: divan::Bencher, stages: usize, stop: f64, latency: bool) {
+    let (circuit, ring) = square_ring(stages, &SquareStage::default()).unwrap();
+    let mut sys = System::new(circuit).unwrap();
+    let start = single_edge_start(&ring);
+    let probe = Probe::Voltage(ring.outputs[0]);
+    let mut p = TransientParams::new(stop);
+    p.output = Output::Streaming;
+    p.latency = latency;
+    bencher.bench_local(|| divan::black_box(sys.transient(&p, &start, &[probe], None).unwrap()));
 }

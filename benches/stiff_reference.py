@@ -205,10 +205,12 @@ def run_scipy(stages, rtol, atol, discard, used):
     return result, seconds
 
 
-def run_lamina(binary, stages, reference, integrator="trapezoidal"):
+def run_lamina(binary, stages, reference, integrator="trapezoidal", latency=False):
     """One Lamina ring run; returns (report, wall seconds)."""
     cmd = [str(binary), "ring", "--builtin", "square-ring", "--stages", str(stages), "--json"]
     cmd += ["--integrator", integrator]
+    if latency:
+        cmd.append("--latency")
     if reference:
         cmd.append("--reference")
     t0 = time.perf_counter()
@@ -275,6 +277,11 @@ def main():
         "default trapezoidal; the --reference run stays trapezoidal)",
     )
     ap.add_argument(
+        "--latency",
+        action="store_true",
+        help="Lamina's default run with `lamina ring --latency`",
+    )
+    ap.add_argument(
         "--skip-lamina-reference",
         action="store_true",
         help="do not run Lamina's --reference setting (about 20 s on 101 stages)",
@@ -290,9 +297,10 @@ def main():
     rows = []  # (method, frequency, seconds, steps, note)
     progress("lamina, default settings")
     lam, lam_time = best_of(
-        a.repeat, lambda: run_lamina(a.lamina, a.stages, False, a.integrator)
+        a.repeat, lambda: run_lamina(a.lamina, a.stages, False, a.integrator, a.latency)
     )
-    rows.append(("lamina default", lam["frequency_hz"], lam_time, lam["steps"], a.integrator))
+    note = a.integrator + (" latency" if a.latency else "")
+    rows.append(("lamina default", lam["frequency_hz"], lam_time, lam["steps"], note))
     discard, used = lam["periods_discarded"], lam["periods_used"]
     if not a.skip_lamina_reference:
         progress("lamina --reference")

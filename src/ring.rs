@@ -74,6 +74,9 @@ pub struct RingParams {
     /// Device bypass tolerance as a multiple of the Newton update tolerance
     /// (`TransientParams::bypass`, default 1; 0 evaluates every device at every iteration).
     pub bypass: f64,
+    /// Newton on the active stages only (`TransientParams::latency`; off at the reference
+    /// setting, whatever this says).
+    pub latency: bool,
 }
 
 impl RingParams {
@@ -113,6 +116,7 @@ impl Default for RingParams {
             stall_delays: 200.0,
             wave_samples: 1 << 15,
             bypass: 1.0,
+            latency: false,
         }
     }
 }
@@ -344,6 +348,7 @@ fn transient_params(params: &RingParams) -> TransientParams {
     };
     tp.integrator = params.integrator;
     tp.bypass = params.bypass;
+    tp.latency = params.latency && !params.reference;
     tp.min_step = Some(params.time_limit * 1e-15);
     tp.output = Output::Streaming;
     tp

@@ -46,12 +46,18 @@ fn floating_node_returns_to_zero_after_100_periods() {
             Integrator::BackwardEuler,
             Integrator::VariableBdf,
         ] {
-            for stepping in [Stepping::Adaptive, Stepping::Fixed(PERIOD / 100.0)] {
+            // Latency on holds the settled node between edges (see the engine's `latency`).
+            for (stepping, latency) in [
+                (Stepping::Adaptive, false),
+                (Stepping::Fixed(PERIOD / 100.0), false),
+                (Stepping::Adaptive, true),
+            ] {
                 let mut sys = floating_loop(strategy);
                 let (a, x) = (sys.find_node("a").unwrap(), sys.find_node("x").unwrap());
                 let mut p = TransientParams::new(100.0 * PERIOD);
                 p.integrator = integrator;
                 p.stepping = stepping;
+                p.latency = latency;
                 // Tight Newton tolerances: what is left is the accepted iterates' residual
                 // (each step's charge balance holds to the Newton tolerance), not an
                 // integration error, which would grow with every step and every period.
@@ -74,7 +80,7 @@ fn floating_node_returns_to_zero_after_100_periods() {
                         checked += 1;
                         assert!(
                             res.signals[1][k].abs() < 1e-12,
-                            "{strategy:?} {integrator:?} {stepping:?}: v(x) = {:e} at t = {:e}",
+                            "{strategy:?} {integrator:?} {stepping:?} {latency}: v(x) = {:e} at t = {:e}",
                             res.signals[1][k],
                             res.time[k]
                         );

@@ -60,6 +60,10 @@ pub struct Args {
     /// at every Newton iteration). Only the 2D-channel FET is ever bypassed.
     #[arg(long, value_name = "FACTOR", default_value_t = 1.0)]
     pub bypass_factor: f64,
+    /// Latency: solve Newton for the moving stages only, holding the settled ones at their
+    /// values and checking their equations at every iteration (ignored with --reference).
+    #[arg(long)]
+    pub latency: bool,
     /// Estimate by edge travel (the time the single edge takes between two nodes) instead of
     /// whole periods: for long rings, where a period is costly.
     #[arg(long)]
@@ -126,6 +130,7 @@ pub fn run(a: Args) -> Result<(), JobError> {
         reference: a.reference,
         edge: a.edge,
         bypass: a.bypass_factor,
+        latency: a.latency,
         ..RingParams::default()
     };
     // A second copy of the ring's circuit for a stress, with its shortest trap time constant.

@@ -49,6 +49,7 @@ mod dc;
 pub mod element;
 pub mod elements;
 mod error;
+mod latency;
 mod linear;
 pub mod lu;
 mod small_signal;

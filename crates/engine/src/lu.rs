@@ -301,6 +301,11 @@ impl SparseLu {
         })
     }
 
+    /// The factorisation path this solver takes.
+    pub fn strategy(&self) -> LuStrategy {
+        self.strategy
+    }
+
     /// What the solver has done so far.
     pub fn stats(&self) -> LuStats {
         self.stats

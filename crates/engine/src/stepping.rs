@@ -163,6 +163,27 @@ pub(crate) fn predict_into(w: &[f64], points: &[Vec<f64>], m: usize, out: &mut [
     }
 }
 
+/// [`predict_into`] on the entries `subset` only, when given (the others keep their values);
+/// each entry is summed in the same order, so the values agree bit for bit.
+pub(crate) fn predict_subset(
+    w: &[f64],
+    points: &[Vec<f64>],
+    m: usize,
+    subset: Option<&[usize]>,
+    out: &mut [f64],
+) {
+    let Some(list) = subset else {
+        return predict_into(w, points, m, out);
+    };
+    for &i in list {
+        let mut v = 0.0;
+        for (wj, pj) in w.iter().zip(points).take(m) {
+            v += wj * pj[i];
+        }
+        out[i] = v;
+    }
+}
+
 /// The fraction of the predictor-corrector difference that is the local truncation error, for
 /// a step `h` whose predictor used the points `t[..m]` (newest first) and a corrector whose
 /// error is `coef · q^{(m)}` (see the module doc).

@@ -66,9 +66,9 @@ use crate::element::{Analysis, EvalContext};
 use crate::error::EngineError;
 use crate::lu::LuStats;
 use crate::stepping::{
-    extrapolation_weights, milne_fraction, next_quadratic, predict_into, Controller,
+    extrapolation_weights, milne_fraction, next_quadratic, predict_subset, Controller,
 };
-use crate::system::{Load, NewtonFailure, NewtonParams, System, Tolerances};
+use crate::system::{each, Load, NewtonFailure, NewtonParams, System, Tolerances};
 
 /// Integration formula.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
@@ -169,6 +169,9 @@ pub struct TransientParams {
     /// Device bypass tolerance as a multiple of the Newton update tolerance (default 1; 0
     /// evaluates every device at every iteration; see [`NewtonParams::bypass`]).
     pub bypass: f64,
+    /// Newton restricted to the active unknowns, latent ones held and checked (see the
+    /// `latency` module doc and DEVELOPERS.md, "Latency"; default off).
+    pub latency: bool,
 }
 
 impl TransientParams {
@@ -190,6 +193,7 @@ impl TransientParams {
             damp_breakpoints: true,
             output: Output::EveryStep,
             bypass: 1.0,
+            latency: false,
         }
     }
 
@@ -224,6 +228,11 @@ pub struct TransientStats {
     /// Accepted steps of the variable-order formula at each order 1 to 5 (zero for the
     /// fixed-order formulas).
     pub orders: [usize; MAX_ORDER],
+    /// Unknown-steps held latent and solved active over the accepted steps (both zero
+    /// without [`TransientParams::latency`]).
+    pub latent_unknown_steps: u64,
+    /// See `latent_unknown_steps`.
+    pub active_unknown_steps: u64,
     /// Time reached.
     pub end_time: f64,
     /// LU solver counters at the end of the run.
@@ -268,14 +277,32 @@ impl History {
         }
     }
 
-    fn push(&mut self, t: f64, q_rows: &[f64], x: &[f64]) {
+    /// Adds an accepted point; with `work` and `work_k` (latency) only those unknowns and
+    /// charge rows are written, the others keeping the (equal) values of their history.
+    fn push(
+        &mut self,
+        t: f64,
+        q_rows: &[f64],
+        x: &[f64],
+        work: Option<&[usize]>,
+        work_k: Option<&[usize]>,
+    ) {
         let cap = self.q.len();
         self.q.rotate_right(1);
         self.x.rotate_right(1);
         self.t[..cap].rotate_right(1);
         self.t[0] = t;
-        self.q[0].copy_from_slice(q_rows);
-        self.x[0].copy_from_slice(x);
+        let (q0, x0) = (&mut self.q[0], &mut self.x[0]);
+        match (work, work_k) {
+            (Some(u), Some(k)) => {
+                u.iter().for_each(|&i| x0[i] = x[i]);
+                k.iter().for_each(|&i| q0[i] = q_rows[i]);
+            }
+            _ => {
+                q0.copy_from_slice(q_rows);
+                x0.copy_from_slice(x);
+            }
+        }
         self.valid = (self.valid + 1).min(cap);
     }
 }
@@ -486,6 +513,12 @@ impl System {
         let mut quadratic: Option<f64> = None;
         let kappa = (p.lte_reltol / p.tol.reltol).min(1.0);
         let mut last_fail_time = 0.0;
+        // The latency partition lives for the stepping loop only: it ends with the loop, and
+        // on the step-size failure, so later analyses solve the whole system.
+        self.latency_end();
+        if p.latency {
+            self.latency_begin(p.tol);
+        }
 
         while t < p.stop_time * (1.0 - 1e-12) {
             // Choose this step's length and method.
@@ -501,6 +534,7 @@ impl System {
                 }
             }
             if step < h_min {
+                self.latency_end();
                 return Err(self.step_error(t, step, last_failure.take(), last_fail_time));
             }
             let method = if (restart && p.damp_breakpoints)
@@ -529,21 +563,10 @@ impl System {
                 }
                 Integrator::VariableBdf => alpha[0],
             };
-            hist_vec.fill(0.0);
-            for (k, &r) in rows.iter().enumerate() {
-                hist_vec[r] = match method {
-                    Integrator::BackwardEuler => -hist.q[0][k] / step,
-                    Integrator::Trapezoidal => -2.0 * hist.q[0][k] / step - qdot[k],
-                    Integrator::Bdf2 => {
-                        let w = step / (hist.t[0] - hist.t[1]);
-                        let a1 = -(1.0 + w) / step;
-                        let a2 = w * w / (step * (1.0 + w));
-                        a1 * hist.q[0][k] + a2 * hist.q[1][k]
-                    }
-                    Integrator::VariableBdf => {
-                        (1..=order).map(|j| alpha[j] * hist.q[j - 1][k]).sum()
-                    }
-                };
+            // Latency: wake the interior rows whose missed charge is due, then work on the
+            // working rows only (all rows without latency).
+            if p.latency {
+                self.latency_due(&x, t_new);
             }
             // Predictor: the polynomial of the formula's order through the accepted points.
             let m_pred = hist.valid.min(match method {
@@ -552,22 +575,52 @@ impl System {
                 _ => 3,
             });
             let w = extrapolation_weights(t_new, &hist.t, m_pred);
-            predict_into(&w, &hist.x, m_pred, &mut x_new);
+            let work = self.latency_work().map(|(u, _)| u);
+            predict_subset(&w, &hist.x, m_pred, work.as_deref(), &mut x_new);
+            self.latency_hold(&x, &mut x_new);
             let ctx = EvalContext {
                 time: t_new,
                 source_scale: 1.0,
                 analysis: Analysis::Transient,
             };
-            let load = Load {
-                ctx,
-                a0,
-                hist: Some(&hist_vec),
-                gmin: p.gmin,
-                clamps: &[],
-                pseudo: None,
-            };
             newton.quadratic = quadratic.map(|m| m / kappa);
-            match self.newton(&mut x_new, &load, &newton) {
+            let solved = loop {
+                let work_k = self.latency_work().map(|(_, k)| k);
+                if work_k.is_none() {
+                    hist_vec.fill(0.0);
+                }
+                each(work_k.as_deref(), nr, |k| {
+                    hist_vec[rows[k]] = match method {
+                        Integrator::BackwardEuler => -hist.q[0][k] / step,
+                        Integrator::Trapezoidal => -2.0 * hist.q[0][k] / step - qdot[k],
+                        Integrator::Bdf2 => {
+                            let w = step / (hist.t[0] - hist.t[1]);
+                            let a1 = -(1.0 + w) / step;
+                            let a2 = w * w / (step * (1.0 + w));
+                            a1 * hist.q[0][k] + a2 * hist.q[1][k]
+                        }
+                        Integrator::VariableBdf => {
+                            (1..=order).map(|j| alpha[j] * hist.q[j - 1][k]).sum()
+                        }
+                    };
+                });
+                let load = Load {
+                    ctx,
+                    a0,
+                    hist: Some(&hist_vec),
+                    gmin: p.gmin,
+                    clamps: &[],
+                    pseudo: None,
+                };
+                match self.newton(&mut x_new, &load, &newton) {
+                    // A latent row joined the working rows: give it its history, solve on.
+                    Err(NewtonFailure::Woke { iterations }) => {
+                        stats.newton_iterations += iterations;
+                    }
+                    other => break other,
+                }
+            };
+            match solved {
                 Ok(info) => {
                     stats.newton_iterations += info.iterations;
                     quadratic = next_quadratic(quadratic, &info);
@@ -583,9 +636,12 @@ impl System {
                     continue;
                 }
             }
-            for (k, &r) in rows.iter().enumerate() {
-                q_new[k] = self.q[r];
-            }
+            let work = self.latency_work();
+            let (work_u, work_k) = match &work {
+                Some((u, k)) => (Some(u.as_slice()), Some(k.as_slice())),
+                None => (None, None),
+            };
+            each(work_k, nr, |k| q_new[k] = self.q[rows[k]]);
 
             // Truncation-error test: Milne's device on the charges (see `stepping`).
             let mut k_exp = 2.0;
@@ -599,7 +655,7 @@ impl System {
                     same: 0.0,
                     higher: est.has_higher().then_some(0.0),
                 };
-                for k in 0..nr {
+                each(work_k, nr, |k| {
                     let (e, lower, higher) = est.row(q_new[k], &phi[k]);
                     let inv_tol = 1.0 / tol_of(k, q_new[k], hist.q[0][k], &qref);
                     r.same = r.same.max(e.abs() * inv_tol);
@@ -609,7 +665,7 @@ impl System {
                     if let Some(v) = r.higher.as_mut() {
                         *v = v.max(higher * inv_tol);
                     }
-                }
+                });
                 bdf_ratios = r;
                 k_exp = (order + 1) as f64;
                 ratio = (!fixed).then_some(r.same);
@@ -648,9 +704,9 @@ impl System {
                             milne_fraction(t_new, &hist.t, m, coef),
                         )
                     };
-                    predict_into(&wq, &hist.q, m.max(1), &mut q_pred);
+                    predict_subset(&wq, &hist.q, m.max(1), work_k, &mut q_pred);
                     let mut worst = 0.0f64;
-                    for k in 0..nr {
+                    each(work_k, nr, |k| {
                         let mut qp = q_pred[k];
                         if use_rate && m < 2 {
                             qp += step * qdot[k];
@@ -660,7 +716,7 @@ impl System {
                         if e > worst {
                             worst = e;
                         }
-                    }
+                    });
                     k_exp = if m == 3 { 3.0 } else { 2.0 };
                     ratio = Some(worst);
                 }
@@ -679,26 +735,53 @@ impl System {
                 }
             }
 
-            // Accept.
-            flush_tiny(&mut x_new);
-            for k in 0..nr {
+            // Accept (with latency, the working rows only: the interior rows' values and
+            // histories stay constant while they are interior).
+            flush_tiny(&mut x_new, work_u);
+            each(work_k, nr, |k| {
                 qdot[k] = match method {
                     Integrator::BackwardEuler => (q_new[k] - hist.q[0][k]) / step,
                     Integrator::Trapezoidal => 2.0 * (q_new[k] - hist.q[0][k]) / step - qdot[k],
                     Integrator::Bdf2 | Integrator::VariableBdf => a0 * q_new[k] + hist_vec[rows[k]],
                 };
                 qref[k] = qref[k].max(q_new[k].abs());
-            }
-            flush_tiny(&mut qdot);
+            });
+            flush_tiny(&mut qdot, work_k);
             if variable {
                 let acc = Accept::new(t_new, &hist.t, hist.valid);
-                for (d, &qn) in phi.iter_mut().zip(&q_new) {
-                    acc.row(qn, d);
+                each(work_k, nr, |k| acc.row(q_new[k], &mut phi[k]));
+            }
+            if p.latency {
+                let tol_of_row = |r: usize| {
+                    rows.binary_search(&r)
+                        .map_or(f64::INFINITY, |k| tol_of(k, q_new[k], hist.q[0][k], &qref))
+                };
+                self.latency_accepted(&x, &x_new, t_new, &p.tol, &tol_of_row);
+            }
+            hist.push(t_new, &q_new, &x_new, work_u, work_k);
+            rate_known = true;
+            match work_u {
+                Some(list) => list.iter().for_each(|&u| x[u] = x_new[u]),
+                None => x.copy_from_slice(&x_new),
+            }
+            // Rows that became interior: their history is their present value, held (the
+            // trapezoidal rule's stored rate, below tolerance when they were held, is
+            // dropped so that their equation stops changing).
+            for r in self.latency_take_left() {
+                for past in hist.x.iter_mut() {
+                    past[r] = x[r];
+                }
+                if let Ok(k) = rows.binary_search(&r) {
+                    for past in hist.q.iter_mut() {
+                        past[k] = q_new[k];
+                    }
+                    qdot[k] = 0.0;
+                    if variable {
+                        phi[k] = [0.0; HISTORY];
+                        phi[k][0] = q_new[k];
+                    }
                 }
             }
-            hist.push(t_new, &q_new, &x_new);
-            rate_known = true;
-            x.copy_from_slice(&x_new);
             t = t_new;
             stats.accepted += 1;
             restart = false;
@@ -737,6 +820,10 @@ impl System {
                     h = h.min(0.1 * (bp - t)).max(h_min * 10.0);
                 }
             }
+        }
+        if let Some((latent, active)) = self.latency_end() {
+            stats.latent_unknown_steps = latent;
+            stats.active_unknown_steps = active;
         }
         stats.end_time = t;
         stats.lu = self.lu.stats();
@@ -783,7 +870,7 @@ impl System {
                     culprit: self.culprit(unknown, f64::NAN, 0.0),
                 }
             }
-            None => Vec::new(),
+            Some(NewtonFailure::Woke { .. }) | None => Vec::new(),
         };
         EngineError::StepTooSmall {
             time: t,
@@ -810,12 +897,12 @@ const FLUSH_BELOW: f64 = 1e-100;
 /// voltage tolerance and its square and cube are still normal numbers; the charge it moves is
 /// at most `C · 1e-100`, far below any truncation-error tolerance, so the accepted state stays
 /// charge-consistent to that bound.
-fn flush_tiny(values: &mut [f64]) {
-    for v in values {
-        if v.abs() < FLUSH_BELOW {
-            *v = 0.0;
+fn flush_tiny(values: &mut [f64], subset: Option<&[usize]>) {
+    each(subset, values.len(), |i| {
+        if values[i].abs() < FLUSH_BELOW {
+            values[i] = 0.0;
         }
-    }
+    });
 }
 
 /// Collects samples, at accepted steps, on a fixed grid, decimated, or not at all.

@@ -1,0 +1,790 @@
+//! Latency: Newton restricted to the active part of the circuit in transients.
+//!
+//! In a long ring only the few stages around the travelling edge move; the others sit at a
+//! rail. With [`crate::TransientParams::latency`] on, each transient step solves Newton for the
+//! *active* unknowns only and holds the *latent* ones at their last accepted values:
+//!
+//! * **Holding.** After an accepted step, an unknown becomes latent when it moved by at most
+//!   `η (reltol max(|x_n|, |x_{n+1}|) + abstol_i)` (η = [`QUIET_FRACTION`], `abstol_i` is
+//!   `vntol` for a voltage, `abstol` for a current) on each of the last [`QUIET_STEPS`] accepted
+//!   steps. An element's internal unknown (a branch current, an internal node) is latent only
+//!   together with all of its element's local unknowns. The step after, the predictor leaves a
+//!   latent unknown at its value.
+//! * **Frozen elements.** An element whose local unknowns are all latent, and which is not an
+//!   independent source (the only elements whose evaluation depends on time), sees exactly the
+//!   inputs of its evaluation at the moment it froze, so that evaluation's currents and charges
+//!   stand for it unchanged, exactly. Each row keeps the sum of its frozen elements'
+//!   contributions (recomputed in element order whenever one of them freezes or thaws); each
+//!   Newton iteration assembles the other (*live*) elements on top of those sums.
+//! * **The active system.** Newton factorises and solves `J_AA Δ_A = -F_A`: the columns of the
+//!   active unknowns and the equations they own. A node pinned by an ideal grounded source
+//!   (see [`crate::System`], "Pinned unknowns") trades equations with the source's current: the
+//!   current is solved from the node's KCL row, the node held by the source's row. The symbolic
+//!   analysis of `J_AA` is redone only when the active set changes.
+//! * **Checking latent rows.** At every Newton iteration each latent unknown's equation is
+//!   evaluated at the held value (its frozen sum, the live elements touching it, the charge
+//!   history). The unknown wakes, and the iteration is assembled again with it active, when its
+//!   residual leaves a fraction [`HOLD_FRACTION`] of the test every active row must pass,
+//!   `|F_i| ≤ reltol scale_i + abstol_i`, with `scale_i` the row's largest current alone (a
+//!   held value is not refined by later iterations, so it must sit well inside the test; and
+//!   the charge terms' scale, `α₀` times the largest charge, grows as the step shrinks), or
+//!   when the charge its row has missed since it was held, `Σ |F_i| / α₀` over the accepted
+//!   steps (the charge change Newton would have applied), would exceed that row's truncation
+//!   error tolerance `lte_reltol max(|q_i|, q_ref) + chgtol` taken when it was held.
+//!
+//! * **Working rows.** Only the rows a live element touches, and the active unknowns' rows,
+//!   are assembled, checked, predicted, integrated and stored each step. The other latent
+//!   rows are *interior*: every element on them is frozen, so their current `f_i` is
+//!   constant. A row becomes interior only when `f_i` passes the residual test; its history is
+//!   then set to its present (held) value and the trapezoidal rule's stored rate, which that
+//!   test bounds, to zero, so its equation stays exactly as it was. Its missed charge grows
+//!   as `|f_i| (t - t_leave)`, so it wakes at the time that reaches its bound (a current of
+//!   exactly zero, a settled stage ahead of the edge, never wakes by itself); a neighbour
+//!   that wakes makes it a working row again. A row touched by more than [`WIDE`] elements
+//!   (a supply) keeps its frozen sums in a tree of fixed shape, so each refresh costs in
+//!   proportion to the active part, not to the circuit.
+//!
+//! *Accuracy.* A step with latent unknowns is accepted only when every equation, latent or
+//! active, passes the residual test Newton applies to the full system: the accepted state is a
+//! solution of the full step equations to the ordinary Newton tolerances. Beyond one step, the
+//! charge a latent row fails to move accumulates; it is bounded by one step's truncation-error
+//! tolerance of that row, so the latent part never drifts by more than the integrator already
+//! allows for one step. The truncation-error test runs on every working charge row; an
+//! interior row's charge is constant, so its estimate would be zero.
+//!
+//! *Charge.* An active row's charge is computed and carried as before. A latent row whose
+//! elements are all frozen keeps its charge bit for bit; one touched by a live element stores
+//! the assembled charge (frozen sum plus live contributions), which is what the integrator
+//! stores and reuses, so charge telescopes on every row. A floating node without current
+//! stays latent with its charge exact.
+//!
+//! *Determinism.* Holding, waking and the frozen sums depend only on the run's own accepted
+//! states and residuals, taken in unknown and element order on one thread.
+
+use crate::element::{Analysis, EvalContext, UnknownKind};
+use crate::lu::{LuStrategy, Singular, SparseLu};
+use crate::system::{System, Tolerances, NONE, NONE32};
+use faer::sparse::SymbolicSparseColMat;
+use std::cmp::Reverse;
+use std::collections::BinaryHeap;
+
+/// Consecutive quiet accepted steps before an unknown becomes latent.
+pub(crate) const QUIET_STEPS: u32 = 3;
+/// Fraction of the Newton residual tolerance a latent row's residual must stay within.
+pub(crate) const HOLD_FRACTION: f64 = 0.01;
+/// Fraction of the Newton update tolerance within which a step counts as quiet.
+pub(crate) const QUIET_FRACTION: f64 = 0.01;
+
+/// The latent/active partition of one transient run, and the solver of the active system.
+pub(crate) struct Latency {
+    /// Whether the stepping loop's Newton solves use it.
+    pub(crate) on: bool,
+    /// Per unknown: held at its last accepted value.
+    pub(crate) held: Vec<bool>,
+    quiet: Vec<u32>,
+    /// Per unknown: charge its equation missed over accepted steps while held, this attempt's
+    /// share, and the bound.
+    missed: Vec<f64>,
+    pending: Vec<f64>,
+    qtol: Vec<f64>,
+    /// Per unknown: the row holding its equation (pinned nodes and their sources' currents
+    /// trade rows); per row: the position in `active` of the unknown it belongs to.
+    eq_row: Vec<usize>,
+    pos: Vec<usize>,
+    /// Per element: frozen, never frozen (sources), the number of pins (internals follow).
+    frozen: Vec<bool>,
+    source: Vec<bool>,
+    pins: Vec<usize>,
+    /// Stored currents and charges of frozen elements at their `Plan::map` offsets.
+    st_f: Vec<f64>,
+    st_q: Vec<f64>,
+    /// Per row: the elements that have it as a local unknown, with the local index.
+    adj_ptr: Vec<usize>,
+    adj: Vec<(u32, u8)>,
+    /// Per row: the sums of the frozen elements' contributions.
+    pub(crate) fz_f: Vec<f64>,
+    pub(crate) fz_q: Vec<f64>,
+    pub(crate) fz_scale: Vec<f64>,
+    pub(crate) fz_qscale: Vec<f64>,
+    /// Elements evaluated at each iteration, and their matrix slots.
+    pub(crate) live: Vec<u32>,
+    pub(crate) live_slots: Vec<u32>,
+    /// The active unknowns, and the active system.
+    active: Vec<usize>,
+    gather: Vec<usize>,
+    values: Vec<f64>,
+    rhs: Vec<f64>,
+    lu: Option<SparseLu>,
+    strategy: LuStrategy,
+    /// Per working row: its largest current contribution at the last assembly; per working
+    /// unknown: whether its row passed the hold test at the last check.
+    fscale: Vec<f64>,
+    holdable: Vec<bool>,
+    /// Unknowns whose state changed since the last refresh.
+    changed: Vec<usize>,
+    /// The working rows (sorted): every row a live element touches, the active unknowns'
+    /// rows, closed under the pinned row trade. Only these are assembled, checked and
+    /// integrated; the others (*interior* latent rows) change nothing while they stay so.
+    pub(crate) work: Vec<usize>,
+    in_work: Vec<bool>,
+    /// Per row: its index among the transient's charge rows, or NONE; the working rows'.
+    charge_k: Vec<usize>,
+    pub(crate) work_k: Vec<usize>,
+    /// Rows that became interior since the transient last took them.
+    left: Vec<usize>,
+    /// Per interior row's unknown: when it left the working rows and its current then.
+    leave_t: Vec<f64>,
+    leave_f: Vec<f64>,
+    /// Per unknown of an interior row: when its missed charge reaches its bound (infinite
+    /// otherwise); and those times as a min-heap of `(time bits, unknown)` (non-negative times
+    /// order like their bits), whose entries count only while they match `deadline`.
+    deadline: Vec<f64>,
+    deadlines: BinaryHeap<Reverse<(u64, usize)>>,
+    tol: Tolerances,
+    /// Per row touched by more than [`WIDE`] elements (a supply): its frozen sums as a tree.
+    trees: Vec<Option<SumTree>>,
+    /// Counters: latent unknown-steps and active unknown-steps over accepted steps.
+    pub(crate) latent_steps: u64,
+    pub(crate) active_steps: u64,
+}
+
+impl Latency {
+    /// Whether any unknown is held.
+    pub(crate) fn any_held(&self) -> bool {
+        self.held.iter().any(|&h| h)
+    }
+}
+
+impl System {
+    /// Starts the latency bookkeeping of a transient: every unknown active, nothing frozen.
+    pub(crate) fn latency_begin(&mut self, tol: Tolerances) {
+        let strategy = self.lu.strategy();
+        let mut charge_k = vec![NONE; self.n];
+        for (k, &r) in self.charge_rows.iter().enumerate() {
+            charge_k[r] = k;
+        }
+        let n = self.n;
+        let ne = self.elements.len();
+        let mut eq_row: Vec<usize> = (0..n).collect();
+        for (node, branch) in self.pinned_pairs() {
+            eq_row[node] = branch;
+            eq_row[branch] = node;
+        }
+        let mut count = vec![0usize; n + 1];
+        for &g in &self.layout.loc_map {
+            if g != NONE {
+                count[g + 1] += 1;
+            }
+        }
+        for r in 0..n {
+            count[r + 1] += count[r];
+        }
+        let mut adj = vec![(0u32, 0u8); count[n]];
+        let mut fill = count.clone();
+        for e in 0..ne {
+            let local =
+                &self.layout.loc_map[self.layout.loc_start[e]..self.layout.loc_start[e + 1]];
+            for (k, &g) in local.iter().enumerate() {
+                if g != NONE {
+                    adj[fill[g]] = (e as u32, k as u8);
+                    fill[g] += 1;
+                }
+            }
+        }
+        let locs = self.layout.map32.len();
+        let trees = (0..n)
+            .map(|r| {
+                let d = count[r + 1] - count[r];
+                (d > WIDE).then(|| SumTree::new(d))
+            })
+            .collect();
+        self.latency = Some(Latency {
+            on: true,
+            held: vec![false; n],
+            quiet: vec![0; n],
+            missed: vec![0.0; n],
+            pending: vec![0.0; n],
+            qtol: vec![f64::INFINITY; n],
+            eq_row,
+            pos: vec![NONE; n],
+            frozen: vec![false; ne],
+            source: self
+                .elements
+                .iter()
+                .map(|e| e.is_independent_source())
+                .collect(),
+            pins: (0..ne).map(|e| self.pin_count(e)).collect(),
+            st_f: vec![0.0; locs],
+            st_q: vec![0.0; locs],
+            adj_ptr: count,
+            adj,
+            fz_f: vec![0.0; n],
+            fz_q: vec![0.0; n],
+            fz_scale: vec![0.0; n],
+            fz_qscale: vec![0.0; n],
+            live: Vec::new(),
+            live_slots: Vec::new(),
+            active: Vec::new(),
+            gather: Vec::new(),
+            values: Vec::new(),
+            rhs: Vec::new(),
+            lu: None,
+            strategy,
+            fscale: vec![0.0; n],
+            holdable: vec![false; n],
+            changed: (0..n).collect(),
+            work: Vec::new(),
+            in_work: vec![false; n],
+            charge_k,
+            work_k: Vec::new(),
+            left: Vec::new(),
+            leave_t: vec![0.0; n],
+            leave_f: vec![0.0; n],
+            deadline: vec![f64::INFINITY; n],
+            deadlines: BinaryHeap::new(),
+            tol,
+            trees,
+            latent_steps: 0,
+            active_steps: 0,
+        });
+        self.latency_refresh(&vec![0.0; n], 0.0);
+    }
+
+    /// Ends the latency bookkeeping; later solves use the full system.
+    pub(crate) fn latency_end(&mut self) -> Option<(u64, u64)> {
+        self.latency
+            .take()
+            .map(|l| (l.latent_steps, l.active_steps))
+    }
+
+    /// Whether the Newton solves of the running transient restrict themselves to the active
+    /// unknowns.
+    pub(crate) fn latency_on(&self) -> bool {
+        self.latency.as_ref().is_some_and(|l| l.on)
+    }
+
+    /// The active unknowns, in order.
+    pub(crate) fn latency_active(&self) -> Vec<usize> {
+        self.latency
+            .as_ref()
+            .map_or_else(Vec::new, |l| l.active.clone())
+    }
+
+    /// Sets the latent unknowns of the predicted state to their held values.
+    pub(crate) fn latency_hold(&self, x: &[f64], x_new: &mut [f64]) {
+        if let Some(l) = &self.latency {
+            // Interior rows' unknowns are held and never predicted.
+            for &u in &l.work {
+                if l.held[u] {
+                    x_new[u] = x[u];
+                }
+            }
+        }
+    }
+
+    /// Checks every latent unknown's equation after an assembly and residual (`rhs = -F`):
+    /// wakes those that fail (see the module doc) and returns whether any woke.
+    pub(crate) fn latency_check(&mut self, a0: f64, tol: &Tolerances) -> bool {
+        let Some(l) = self.latency.as_mut() else {
+            return false;
+        };
+        let mut woke = false;
+        for w in 0..l.work.len() {
+            let u = l.work[w];
+            let r = l.eq_row[u];
+            let abs = match self.kinds[r] {
+                UnknownKind::Voltage => tol.abstol,
+                UnknownKind::Current => tol.vntol,
+            };
+            let res = self.rhs[r].abs();
+            // Whether the row could be held now (an unknown is held only then, so that it is
+            // not woken at once).
+            l.holdable[u] = res <= HOLD_FRACTION * (tol.reltol * l.fscale[r] + abs);
+            if !l.held[u] {
+                continue;
+            }
+            let share = res / a0;
+            l.pending[u] = share;
+            // NaN fails both tests and wakes the row, whose residual then reports it. The scale
+            // is the row's largest current alone: the charge terms' scale, `α₀` times the
+            // largest charge, grows without bound as the step shrinks and would let a held node
+            // that still carries current pass.
+            if !(res <= HOLD_FRACTION * (tol.reltol * l.fscale[r] + abs)
+                && l.missed[u] + share <= l.qtol[u])
+            {
+                wake(l, u, &self.layout.loc_map, &self.layout.loc_start);
+                woke = true;
+            }
+        }
+        woke
+    }
+
+    /// Keeps the working rows' current scales of the last assembly (before the residual adds
+    /// the charge terms to them).
+    pub(crate) fn latency_keep_scale(&mut self) {
+        if let Some(l) = self.latency.as_mut() {
+            for &r in &l.work {
+                l.fscale[r] = self.scale[r];
+            }
+        }
+    }
+
+    /// Wakes every unknown (after the active system failed to factorise).
+    pub(crate) fn latency_wake_all(&mut self) {
+        if let Some(l) = self.latency.as_mut() {
+            for u in 0..self.n {
+                if l.held[u] {
+                    l.held[u] = false;
+                    l.quiet[u] = 0;
+                    l.changed.push(u);
+                }
+            }
+        }
+    }
+
+    /// After an accepted step from `x_old` to `x_new` at `t`: commits the latent rows' missed
+    /// charge, counts quiet steps and holds the unknowns that became latent. `charge_tol(r)`
+    /// is row `r`'s truncation-error tolerance (infinite for a row without charge).
+    pub(crate) fn latency_accepted(
+        &mut self,
+        x_old: &[f64],
+        x_new: &[f64],
+        t: f64,
+        tol: &Tolerances,
+        charge_tol: &dyn Fn(usize) -> f64,
+    ) {
+        let Some(l) = self.latency.as_mut() else {
+            return;
+        };
+        l.latent_steps += (self.n - l.work.len()) as u64;
+        for &u in &l.work {
+            if l.held[u] {
+                l.missed[u] += l.pending[u];
+                l.pending[u] = 0.0;
+                l.latent_steps += 1;
+                continue;
+            }
+            l.active_steps += 1;
+            let (a, b) = (x_old[u], x_new[u]);
+            let abs = match self.kinds[u] {
+                UnknownKind::Voltage => tol.vntol,
+                UnknownKind::Current => tol.abstol,
+            };
+            let bound = QUIET_FRACTION * (tol.reltol * a.abs().max(b.abs()) + abs);
+            l.quiet[u] = if (b - a).abs() <= bound {
+                l.quiet[u].saturating_add(1)
+            } else {
+                0
+            };
+        }
+        let loc_map = &self.layout.loc_map;
+        let loc_start = &self.layout.loc_start;
+        for w in 0..l.work.len() {
+            let u = l.work[w];
+            if l.held[u] || l.quiet[u] < QUIET_STEPS || !l.holdable[u] {
+                continue;
+            }
+            // An internal unknown goes latent only with every local unknown of its element.
+            let internal_ok = match self.unknown_owner[u] {
+                None => true,
+                Some(e) => loc_map[loc_start[e]..loc_start[e + 1]]
+                    .iter()
+                    .all(|&g| g == NONE || l.held[g] || l.quiet[g] >= QUIET_STEPS),
+            };
+            if internal_ok {
+                l.held[u] = true;
+                l.missed[u] = 0.0;
+                l.pending[u] = 0.0;
+                l.qtol[u] = charge_tol(l.eq_row[u]);
+                l.changed.push(u);
+            }
+        }
+        if !l.changed.is_empty() {
+            self.latency_refresh(x_new, t);
+        }
+    }
+
+    /// The working rows of the partition (empty without one).
+    pub(crate) fn latency_rows(&self) -> Vec<usize> {
+        self.latency
+            .as_ref()
+            .map_or_else(Vec::new, |l| l.work.clone())
+    }
+
+    /// The working rows and their indices among the charge rows, when latency is on.
+    pub(crate) fn latency_work(&self) -> Option<(Vec<usize>, Vec<usize>)> {
+        self.latency
+            .as_ref()
+            .filter(|l| l.on)
+            .map(|l| (l.work.clone(), l.work_k.clone()))
+    }
+
+    /// The rows that became interior since the last call.
+    pub(crate) fn latency_take_left(&mut self) -> Vec<usize> {
+        self.latency
+            .as_mut()
+            .map_or_else(Vec::new, |l| std::mem::take(&mut l.left))
+    }
+
+    /// Wakes the interior rows whose missed charge reaches its bound by `t_new` (the state
+    /// is `x`); returns whether any woke.
+    pub(crate) fn latency_due(&mut self, x: &[f64], t_new: f64) -> bool {
+        let Some(l) = self.latency.as_mut() else {
+            return false;
+        };
+        let mut any = false;
+        while let Some(&Reverse((bits, u))) = l.deadlines.peek() {
+            let when = f64::from_bits(bits);
+            if when > t_new {
+                break;
+            }
+            l.deadlines.pop();
+            if l.deadline[u] == when && l.held[u] && !l.in_work[l.eq_row[u]] {
+                l.deadline[u] = f64::INFINITY;
+                wake(l, u, &self.layout.loc_map, &self.layout.loc_start);
+                any = true;
+            }
+        }
+        if any {
+            self.latency_refresh(x, t_new);
+        }
+        any
+    }
+
+    /// Brings the frozen elements, the frozen sums, the live elements and the active system up
+    /// to date with the held set, evaluating newly frozen elements at `x` (time `t`).
+    /// Returns whether a row joined the working rows.
+    pub(crate) fn latency_refresh(&mut self, x: &[f64], t: f64) -> bool {
+        let Some(mut l) = self.latency.take() else {
+            return false;
+        };
+        let ctx = EvalContext {
+            time: t,
+            source_scale: 1.0,
+            analysis: Analysis::Transient,
+        };
+        let mut dirty_rows = Vec::new();
+        let mut flipped: Vec<u32> = Vec::new();
+        let mut changed = std::mem::take(&mut l.changed);
+        changed.sort_unstable();
+        changed.dedup();
+        for &u in &changed {
+            for a in l.adj_ptr[u]..l.adj_ptr[u + 1] {
+                let e = l.adj[a].0 as usize;
+                let (lo, hi) = (self.layout.loc_start[e], self.layout.loc_start[e + 1]);
+                let local = &self.layout.loc_map[lo..hi];
+                let want = !l.source[e] && local.iter().all(|&g| g == NONE || l.held[g]);
+                if want == l.frozen[e] {
+                    continue;
+                }
+                l.frozen[e] = want;
+                flipped.push(e as u32);
+                if want {
+                    self.evaluate_into(e, x, &ctx, &mut l.st_f, &mut l.st_q);
+                }
+                let plan = &self.layout.plan[e];
+                for (k, &g) in local.iter().enumerate() {
+                    if g == NONE {
+                        continue;
+                    }
+                    if let Some(tree) = l.trees[g].as_mut() {
+                        let at = plan.map as usize + k;
+                        let leaf = if want {
+                            let q = if plan.charge { l.st_q[at] } else { 0.0 };
+                            [l.st_f[at], q, l.st_f[at].abs(), q.abs()]
+                        } else {
+                            [0.0; 4]
+                        };
+                        let adj = &l.adj[l.adj_ptr[g]..l.adj_ptr[g + 1]];
+                        // Entries are sorted by element, then local index.
+                        let pos = adj.partition_point(|&(a, j)| (a as usize, j as usize) < (e, k));
+                        tree.set(pos, leaf);
+                    }
+                }
+                dirty_rows.extend(local.iter().copied().filter(|&g| g != NONE));
+            }
+        }
+        dirty_rows.sort_unstable();
+        dirty_rows.dedup();
+        for &r in &dirty_rows {
+            if let Some(tree) = &l.trees[r] {
+                [l.fz_f[r], l.fz_q[r], l.fz_scale[r], l.fz_qscale[r]] = tree.total();
+                continue;
+            }
+            let (mut f, mut q, mut sf, mut sq) = (0.0, 0.0, 0.0f64, 0.0f64);
+            for &(e, k) in &l.adj[l.adj_ptr[r]..l.adj_ptr[r + 1]] {
+                let e = e as usize;
+                if !l.frozen[e] {
+                    continue;
+                }
+                let at = self.layout.plan[e].map as usize + k as usize;
+                f += l.st_f[at];
+                sf = sf.max(l.st_f[at].abs());
+                if self.layout.plan[e].charge {
+                    q += l.st_q[at];
+                    sq = sq.max(l.st_q[at].abs());
+                }
+            }
+            l.fz_f[r] = f;
+            l.fz_q[r] = q;
+            l.fz_scale[r] = sf;
+            l.fz_qscale[r] = sq;
+        }
+        // The live elements in element order: edited in place when few changed (the cost of
+        // a refresh then follows the active part, not the circuit).
+        flipped.sort_unstable();
+        flipped.dedup();
+        if l.live.is_empty() || flipped.len().saturating_mul(l.live.len()) > l.frozen.len() {
+            l.live = (0..l.frozen.len() as u32)
+                .filter(|&e| !l.frozen[e as usize])
+                .collect();
+        } else {
+            for &e in &flipped {
+                match (l.live.binary_search(&e), l.frozen[e as usize]) {
+                    (Ok(k), true) => {
+                        l.live.remove(k);
+                    }
+                    (Err(k), false) => l.live.insert(k, e),
+                    _ => {}
+                }
+            }
+        }
+        l.live_slots.clear();
+        for &e in &l.live {
+            let plan = &self.layout.plan[e as usize];
+            let nl = plan.local as usize;
+            let slots = &self.layout.slots32[plan.slot as usize..][..nl * nl];
+            l.live_slots
+                .extend(slots.iter().copied().filter(|&s| s != NONE32));
+        }
+        // Every active unknown is a working row or was just woken.
+        let mut active: Vec<usize> = l.work.iter().chain(&changed).copied().collect();
+        active.sort_unstable();
+        active.dedup();
+        active.retain(|&u| !l.held[u]);
+        self.build_active(&mut l, active);
+        let entered = self.build_work(&mut l, t);
+        self.latency = Some(l);
+        entered
+    }
+
+    /// The working rows after a refresh (see [`Latency::work`]); a row about to become
+    /// interior must pass the residual test on its frozen current, or it stays. Returns
+    /// whether a row joined.
+    fn build_work(&self, l: &mut Latency, t: f64) -> bool {
+        let mut want: Vec<usize> = Vec::with_capacity(l.work.len());
+        for &e in &l.live {
+            let e = e as usize;
+            let local =
+                &self.layout.loc_map[self.layout.loc_start[e]..self.layout.loc_start[e + 1]];
+            want.extend(local.iter().copied().filter(|&g| g != NONE));
+        }
+        want.extend_from_slice(&l.active);
+        let traded: Vec<usize> = want.iter().map(|&r| l.eq_row[r]).collect();
+        want.extend(traded);
+        want.sort_unstable();
+        want.dedup();
+        let tol = l.tol;
+        let mut entered = false;
+        // Rows leaving: in the old working rows and not wanted (both lists are sorted).
+        let mut kept = Vec::new();
+        let mut k = 0;
+        for &r in &l.work {
+            while k < want.len() && want[k] < r {
+                k += 1;
+            }
+            if k < want.len() && want[k] == r {
+                continue;
+            }
+            let u = l.eq_row[r];
+            let f = l.fz_f[r];
+            let abs = match self.kinds[r] {
+                UnknownKind::Voltage => tol.abstol,
+                UnknownKind::Current => tol.vntol,
+            };
+            if !(l.held[u] && f.abs() <= tol.reltol * l.fz_scale[r] + abs) {
+                kept.push(r);
+                continue;
+            }
+            l.in_work[r] = false;
+            l.left.push(r);
+            l.leave_t[u] = t;
+            l.leave_f[u] = f;
+            let room = l.qtol[u] - l.missed[u];
+            if f != 0.0 && room.is_finite() {
+                let when = t + room.max(0.0) / f.abs();
+                l.deadline[u] = when;
+                l.deadlines.push(Reverse((when.to_bits(), u)));
+            }
+        }
+        if !kept.is_empty() {
+            want.extend(kept);
+            want.sort_unstable();
+        }
+        for &r in &want {
+            if !l.in_work[r] {
+                l.in_work[r] = true;
+                entered = true;
+                // The charge it missed while interior.
+                let u = l.eq_row[r];
+                l.missed[u] += l.leave_f[u].abs() * (t - l.leave_t[u]);
+                l.deadline[u] = f64::INFINITY;
+            }
+        }
+        // Entries of rows that came back since are dropped once they outnumber the rows.
+        if l.deadlines.len() > 2 * self.n {
+            let deadline = &l.deadline;
+            l.deadlines
+                .retain(|&Reverse((bits, u))| deadline[u] == f64::from_bits(bits));
+        }
+        l.work = want;
+        l.work_k = l
+            .work
+            .iter()
+            .map(|&r| l.charge_k[r])
+            .filter(|&k| k != NONE)
+            .collect();
+        entered
+    }
+
+    /// The active unknowns, the pattern of `J_AA` and its LU.
+    fn build_active(&self, l: &mut Latency, active: Vec<usize>) {
+        for &u in &l.active {
+            l.pos[l.eq_row[u]] = NONE;
+        }
+        l.active = active;
+        for (k, &u) in l.active.iter().enumerate() {
+            l.pos[l.eq_row[u]] = k;
+        }
+        let col_ptr = self.pattern.col_ptr();
+        let row_idx = self.pattern.row_idx();
+        let mut ptr = vec![0usize];
+        let mut rows = Vec::new();
+        l.gather.clear();
+        let mut column: Vec<(usize, usize)> = Vec::new();
+        for &c in &l.active {
+            column.clear();
+            let range = col_ptr[c]..col_ptr[c + 1];
+            for (s, &r) in range.clone().zip(&row_idx[range]) {
+                let k = l.pos[r];
+                if k != NONE {
+                    column.push((k, s));
+                }
+            }
+            column.sort_unstable();
+            for &(k, s) in &column {
+                rows.push(k);
+                l.gather.push(s);
+            }
+            ptr.push(rows.len());
+        }
+        let m = l.active.len();
+        l.values = vec![0.0; l.gather.len()];
+        l.rhs = vec![0.0; m];
+        // Everything active: the system's own solver (analysed once, pinned unknowns taken
+        // out) solves the same equations.
+        l.lu = if m == 0 || m == self.n {
+            None
+        } else {
+            let pattern = SymbolicSparseColMat::new_checked(m, m, ptr, None, rows);
+            SparseLu::new(pattern, l.strategy).ok()
+        };
+    }
+
+    /// Factorises `J_AA` from the last assembly and solves it for the active unknowns' update;
+    /// latent unknowns get none. `v` holds `-F` by row on entry and `Δ` by unknown on return.
+    pub(crate) fn solve_active(&mut self, v: &mut [f64]) -> Result<(), Singular> {
+        if self
+            .latency
+            .as_ref()
+            .is_some_and(|l| l.active.len() == self.n)
+        {
+            return self.solve_update(v);
+        }
+        let Some(l) = self.latency.as_mut() else {
+            return Err(Singular { unknown: 0 });
+        };
+        for (value, &s) in l.values.iter_mut().zip(&l.gather) {
+            *value = self.jac[s];
+        }
+        for (r, &u) in l.rhs.iter_mut().zip(&l.active) {
+            *r = v[l.eq_row[u]];
+        }
+        v.fill(0.0);
+        let Some(lu) = l.lu.as_mut() else {
+            return if l.active.is_empty() {
+                Ok(())
+            } else {
+                Err(Singular {
+                    unknown: l.active[0],
+                })
+            };
+        };
+        let active = &l.active;
+        let back = |e: Singular| Singular {
+            unknown: active[e.unknown.min(active.len() - 1)],
+        };
+        lu.factor(&l.values).map_err(back)?;
+        lu.solve(&mut l.rhs).map_err(back)?;
+        for (&r, &u) in l.rhs.iter().zip(active) {
+            v[u] = r;
+        }
+        Ok(())
+    }
+}
+
+/// Rows touched by more elements than this keep their frozen sums in a [`SumTree`], so that a
+/// refresh costs `log d` for them instead of `d`.
+const WIDE: usize = 64;
+
+/// Sums (and largest magnitudes) of the frozen contributions to one wide row, over its
+/// elements in element order: a binary tree whose shape depends only on the row's degree, so
+/// the sums depend only on which elements are frozen, not on the order they froze in.
+struct SumTree {
+    size: usize,
+    /// Per node: sum of `f`, sum of `q`, largest `|f|`, largest `|q|`.
+    node: Vec<[f64; 4]>,
+}
+
+impl SumTree {
+    fn new(leaves: usize) -> Self {
+        let size = leaves.next_power_of_two();
+        SumTree {
+            size,
+            node: vec![[0.0; 4]; 2 * size],
+        }
+    }
+
+    fn set(&mut self, pos: usize, leaf: [f64; 4]) {
+        let mut i = self.size + pos;
+        self.node[i] = leaf;
+        while i > 1 {
+            i /= 2;
+            let (a, b) = (self.node[2 * i], self.node[2 * i + 1]);
+            self.node[i] = [a[0] + b[0], a[1] + b[1], a[2].max(b[2]), a[3].max(b[3])];
+        }
+    }
+
+    fn total(&self) -> [f64; 4] {
+        self.node[1]
+    }
+}
+
+/// Marks `u` active, with the internal unknowns of every element it belongs to (an internal
+/// unknown is latent only with all of its element's unknowns).
+fn wake(l: &mut Latency, u: usize, loc_map: &[usize], loc_start: &[usize]) {
+    l.held[u] = false;
+    l.quiet[u] = 0;
+    l.changed.push(u);
+    for a in l.adj_ptr[u]..l.adj_ptr[u + 1] {
+        let e = l.adj[a].0 as usize;
+        let local = &loc_map[loc_start[e]..loc_start[e + 1]];
+        for &g in &local[l.pins[e]..] {
+            if g != NONE && l.held[g] {
+                l.held[g] = false;
+                l.quiet[g] = 0;
+                l.changed.push(g);
+            }
+        }
+    }
+}
