@@ -60,6 +60,47 @@ impl SweptTransfer {
         let vm = |leg| self.leg(leg).and_then(|l| l.metrics).map(|m| m.vm);
         Some(vm(Leg::Down)? - vm(Leg::Up)?)
     }
+
+    /// The margins of the hysteretic (bistable) transfer curve, where both legs ran: the
+    /// worst case of the two legs, which is what a gate whose input may arrive on either leg
+    /// guarantees. Unity-gain margins from the legs' least `V_IL` and `V_OH` and greatest
+    /// `V_IH` and `V_OL` (`NM_L = min V_IL - max V_OL`, `NM_H = min V_OH - max V_IH`), and the
+    /// maximum-square noise margin of the butterfly of one leg against the other (a
+    /// cross-coupled pair with one inverter on each leg, the smaller of the two pairings).
+    pub fn hysteretic(&self) -> Option<Hysteretic> {
+        let (up, down) = (self.leg(Leg::Up)?, self.leg(Leg::Down)?);
+        let margins = up.metrics.zip(down.metrics).map(|(a, b)| {
+            (
+                a.vil.min(b.vil) - a.vol.max(b.vol),
+                a.voh.min(b.voh) - a.vih.max(b.vih),
+            )
+        });
+        let snm = [
+            butterfly(&up.vin, &up.vout, &down.vin, &down.vout),
+            butterfly(&down.vin, &down.vout, &up.vin, &up.vout),
+        ]
+        .into_iter()
+        .map(|m| m.map(|m| m.snm))
+        .reduce(|a, b| a.zip(b).map(|(a, b)| a.min(b)))
+        .flatten();
+        Some(Hysteretic {
+            nml: margins.map(|m| m.0),
+            nmh: margins.map(|m| m.1),
+            snm,
+        })
+    }
+}
+
+/// Margins of a hysteretic transfer curve ([`SweptTransfer::hysteretic`]), each absent where
+/// a leg lacks the points it needs.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Hysteretic {
+    /// Worst-case unity-gain low noise margin (V).
+    pub nml: Option<f64>,
+    /// Worst-case unity-gain high noise margin (V).
+    pub nmh: Option<f64>,
+    /// Maximum-square noise margin of one leg against the other (V).
+    pub snm: Option<f64>,
 }
 
 /// Runs the transfer analysis `a` of `design` with its input ramped at `rate_v_per_s` in

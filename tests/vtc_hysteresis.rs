@@ -126,3 +126,37 @@ fn sweep_flags_are_checked() {
         assert_eq!(out.status.code(), Some(2), "{extra:?}");
     }
 }
+
+/// The hysteretic (bistable) curve's margins are the worst case of the two legs: without
+/// traps they are each leg's own (the legs coincide within 1 mV); with traps at 1 V/s the
+/// unity-gain margins are the least `V_IL`/`V_OH` against the greatest `V_OL`/`V_IH` of the
+/// legs, and one leg against the other leaves a smaller square than either leg against
+/// itself (the legs are shifted apart, so the butterfly's smaller lobe shrinks; the
+/// maximum-square definition of E. Seevinck, F. J. List and J. Lohstroh, IEEE JSSC 22, 748
+/// (1987), recalled), by less than the V_M shift.
+#[test]
+fn hysteretic_margins_are_the_worst_of_both_legs() {
+    let own = |s: &SweptTransfer, leg: Leg| s.leg(leg).and_then(|l| l.snm).unwrap().snm;
+    let plain = swept("netlists/demo/inverter.lam", 1.0);
+    let h = plain.hysteretic().unwrap();
+    assert!(
+        (h.snm.unwrap() - own(&plain, Leg::Up)).abs() < 1e-3,
+        "{h:?}"
+    );
+    let traps = swept("netlists/demo/inverter-traps.lam", 1.0);
+    let h = traps.hysteretic().unwrap();
+    let (up, down) = (
+        traps.leg(Leg::Up).unwrap().metrics.unwrap(),
+        traps.leg(Leg::Down).unwrap().metrics.unwrap(),
+    );
+    assert_eq!(h.nml, Some(up.vil.min(down.vil) - up.vol.max(down.vol)));
+    assert_eq!(h.nmh, Some(up.voh.min(down.voh) - up.vih.max(down.vih)));
+    let cross = h.snm.unwrap();
+    let least = own(&traps, Leg::Up).min(own(&traps, Leg::Down));
+    let shift = traps.vm_shift_v().unwrap().abs();
+    assert!(cross < least, "cross {cross} V, legs {least} V");
+    assert!(
+        least - cross < shift,
+        "cross {cross} V, legs {least} V, shift {shift} V"
+    );
+}

@@ -160,7 +160,11 @@ fn swept_json_with(s: &SweptTransfer, with_points: bool) -> Value {
             "direction": direction_name(s.direction),
             "legs": s.legs.iter().map(|l| leg_json(l, with_points)).collect::<Vec<_>>(),
             "vm_shift_v": s.vm_shift_v(),
+            "hysteretic": s.hysteretic().map(|h| json!({
+                "nml_v": h.nml, "nmh_v": h.nmh, "snm_v": h.snm,
+            })),
             "definitions": {
+                "hysteretic": "margins of the two legs together (both ways only): nml_v = least V_IL - greatest V_OL, nmh_v = least V_OH - greatest V_IH over the legs, snm_v = maximum-square noise margin of one leg against the other (the smaller pairing)",
                 "rate_v_per_s": "the input ramps at this rate through the transfer analysis's input values in a transient that starts at rest (the operating point) at the first one",
                 "vm_shift_v": "V_M of the down leg minus V_M of the up leg",
                 "legs": "each leg in increasing input order; figures as for the DC curve (unity-gain noise margins, maximum-square SNM of the leg against itself)",
@@ -211,6 +215,14 @@ fn swept_text(s: &SweptTransfer) -> Vec<String> {
             Some(d) => format!("  V_M shift (down - up) {} V", f(Some(d))),
             None => "  V_M shift not reported: a leg has no switching threshold".into(),
         });
+        if let Some(h) = s.hysteretic() {
+            l.push(format!(
+                "  hysteretic curve (worst of both legs): NM_L {} V, NM_H {} V, SNM {} V (one leg against the other)",
+                f(h.nml),
+                f(h.nmh),
+                f(h.snm)
+            ));
+        }
     }
     l
 }
