@@ -168,18 +168,35 @@ pub enum StressError {
     Ring(RingError),
     /// The measurement is not short against the shortest trap time constant.
     NotFrozen(String),
+    /// A hold (set-up, stress or recovery) failed in the engine: which, and why.
+    Hold(String),
 }
 
 impl fmt::Display for StressError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
-            StressError::Invalid(m) | StressError::NotFrozen(m) => f.write_str(m),
+            StressError::Invalid(m) | StressError::NotFrozen(m) | StressError::Hold(m) => {
+                f.write_str(m)
+            }
             StressError::Ring(e) => write!(f, "{e}"),
         }
     }
 }
 
 impl std::error::Error for StressError {}
+
+impl StressError {
+    /// The error with the phase it happened in named first (an engine failure in a hold
+    /// otherwise reads like one of the ring's own runs).
+    fn during(self, phase: &str) -> Self {
+        match self {
+            StressError::Ring(RingError::Engine(e)) => {
+                StressError::Hold(format!("{phase} failed: {e}"))
+            }
+            other => other,
+        }
+    }
+}
 
 impl From<RingError> for StressError {
     fn from(e: RingError) -> Self {
@@ -343,7 +360,9 @@ pub fn run_stress(
     let mut held = Held::new(held_circuit, ring, system)?;
     let nominal = pattern(stages, ring.vdd);
     let mut measure = |held: &mut Held, from: &HeldState| -> Result<RingReport, StressError> {
-        let set = held.hold(from, nominal.clone(), SETTLE)?;
+        let set = held
+            .hold(from, nominal.clone(), SETTLE)
+            .map_err(|e| e.during("the set-up hold before a measurement"))?;
         let start = Start::State(set.x[..n].to_vec());
         let report = run_ring_from(system, ring, params, &start)?;
         if let Some(tau) = shortest_trap_time_s {
@@ -361,14 +380,18 @@ pub fn run_stress(
     };
     let rest = held.rest()?;
     let fresh = measure(&mut held, &rest)?;
-    let stressed_state = held.hold(&rest, pattern(stages, plan.supply_v), plan.time_s)?;
+    let stressed_state = held
+        .hold(&rest, pattern(stages, plan.supply_v), plan.time_s)
+        .map_err(|e| e.during(&format!("the stress hold at {} V", plan.supply_v)))?;
     let stressed = measure(&mut held, &stressed_state)?;
     let zero = vec![0.0; stages + 1];
     let mut state = stressed_state;
     let mut since = 0.0;
     let mut recovered = Vec::with_capacity(recovery.len());
     for &t in &recovery {
-        state = held.hold(&state, zero.clone(), t - since)?;
+        state = held
+            .hold(&state, zero.clone(), t - since)
+            .map_err(|e| e.during(&format!("the recovery hold until {t:e} s")))?;
         since = t;
         recovered.push(Recovered {
             recovery_s: t,
