@@ -61,7 +61,7 @@ pub struct Args {
     #[arg(long, value_name = "FACTOR", default_value_t = 1.0)]
     pub bypass_factor: f64,
     /// Latency: solve Newton for the moving stages only, holding the settled ones at their
-    /// values and checking their equations at every iteration (ignored with --reference).
+    /// values and checking their equations at every iteration (not with --reference).
     #[arg(long)]
     pub latency: bool,
     /// Estimate by edge travel (the time the single edge takes between two nodes) instead of
@@ -114,6 +114,13 @@ pub fn run(a: Args) -> Result<(), JobError> {
     if !a.show.is_empty() && a.out.is_none() {
         return Err(JobError::Usage(
             "--show chooses the waveforms --out writes; add --out DIR".into(),
+        ));
+    }
+    if a.latency && a.reference {
+        return Err(JobError::Usage(
+            "--latency and --reference do not go together: the reference run solves every \
+             stage at every step; drop one"
+                .into(),
         ));
     }
     if !(a.bypass_factor.is_finite() && a.bypass_factor >= 0.0) {

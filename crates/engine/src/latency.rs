@@ -391,9 +391,13 @@ impl System {
                     .iter()
                     .all(|&g| g == NONE || l.held[g] || l.quiet[g] >= QUIET_STEPS),
             };
-            if internal_ok {
+            // A row that has already missed its run's allowance of charge stays active.
+            if internal_ok && l.missed[u] < charge_tol(l.eq_row[u]) {
                 l.held[u] = true;
-                l.missed[u] = 0.0;
+                // `missed` is kept from earlier holds of this run: the charge a held row
+                // misses is not given back when it wakes, so the bound of one step's
+                // truncation tolerance is for the whole run, not for each hold (a leaking
+                // node would otherwise lose a tolerance's worth per hold, without bound).
                 l.pending[u] = 0.0;
                 l.qtol[u] = charge_tol(l.eq_row[u]);
                 l.changed.push(u);
@@ -602,7 +606,8 @@ impl System {
                 UnknownKind::Voltage => tol.abstol,
                 UnknownKind::Current => tol.vntol,
             };
-            if !(l.held[u] && f.abs() <= tol.reltol * l.fz_scale[r] + abs) {
+            // Interior only within the same fraction of the tolerance a held row must keep.
+            if !(l.held[u] && f.abs() <= HOLD_FRACTION * (tol.reltol * l.fz_scale[r] + abs)) {
                 kept.push(r);
                 continue;
             }
