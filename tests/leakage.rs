@@ -521,3 +521,19 @@ c m (drain = d, gate = g, source = ground)
         }
     }
 }
+
+/// `lamina check --verbose` lists the fraction an `auto` card leaves its leakage out below,
+/// with where it came from.
+#[test]
+fn check_lists_the_leakage_fraction() {
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_lamina"))
+        .args(["check", "netlists/demo/n-device.lam", "--verbose"])
+        .output()
+        .unwrap();
+    let text = String::from_utf8_lossy(&out.stdout);
+    let line = text
+        .lines()
+        .find(|l| l.contains("gate_leakage_fraction"))
+        .unwrap_or_else(|| panic!("{text}"));
+    assert!(line.contains("0.001") && line.contains("default"), "{line}");
+}

@@ -1782,6 +1782,18 @@ pub fn resolved_values(card: &SheetFetCard, o: &CardOrigins) -> Vec<CardValue> {
             }
         }
     }
+    // The fraction below which an `auto` card leaves its gate leakage out.
+    if !card.tunnelling.is_empty()
+        && card.gate_leakage == lamina_devices::sheet_fet::leakage::LeakageMode::Auto
+    {
+        let key = "gate_leakage_fraction";
+        push(
+            key,
+            card.leakage_fraction,
+            "1",
+            by(key).unwrap_or(Origin::Default),
+        );
+    }
     // Geometry, temperature, transport and contacts.
     for (key, value, unit) in [
         ("temperature", card.temperature, "K"),
