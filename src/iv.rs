@@ -34,7 +34,7 @@
 
 use lamina_devices::physics::{K_B, Q};
 use lamina_devices::sheet_fet::leakage::LeakageMode;
-use lamina_devices::SheetFet;
+use lamina_devices::{SheetFet, SheetFetCard};
 use lamina_engine::elements::{VoltageSource, Waveform};
 use lamina_engine::{
     Circuit, Control, ElementId, NodeId, OpParams, Output, Probe, Start, SweepParams, System,
@@ -243,19 +243,22 @@ pub fn run_iv_with(
 /// `gate_leakage = on`.
 fn whole_leakage(design: Design) -> Result<Circuit, String> {
     let fet = find_fet(&design.circuit)?;
-    let whole = design.sheet_card(fet).and_then(|card| {
-        (card.gate_leakage == LeakageMode::Auto && !card.tunnelling.is_empty()).then(|| {
-            let mut card = card.clone();
-            card.gate_leakage = LeakageMode::On;
-            card
-        })
-    });
+    let whole = design.sheet_card(fet).and_then(leakage_whole);
     let mut c = design.circuit;
     if let Some(card) = whole {
         c.replace(fet, Box::new(SheetFet::new(&card)?))
             .map_err(|e| e.to_string())?;
     }
     Ok(c)
+}
+
+/// `card` with its gate leakage on at every gate drive, where it is `auto` and has any.
+fn leakage_whole(card: &SheetFetCard) -> Option<SheetFetCard> {
+    (card.gate_leakage == LeakageMode::Auto && !card.tunnelling.is_empty()).then(|| {
+        let mut card = card.clone();
+        card.gate_leakage = LeakageMode::On;
+        card
+    })
 }
 
 fn sweep_params() -> SweepParams {
@@ -1049,11 +1052,7 @@ fn ramped_circuit(
         )
     })?;
     // The gate current is measured, so the leakage is whole (see `whole_leakage`).
-    let mut card = card.clone();
-    if card.gate_leakage == LeakageMode::Auto {
-        card.gate_leakage = LeakageMode::On;
-    }
-    let device = SheetFet::new(&card)?;
+    let device = SheetFet::new(&leakage_whole(card).unwrap_or_else(|| card.clone()))?;
     let mut n = Circuit::new();
     let (d, g) = (n.node("drain"), n.node("gate"));
     let ramp = Waveform::piecewise_linear(vertices).map_err(|e| e.to_string())?;

@@ -66,7 +66,7 @@ impl SweptTransfer {
     /// guarantees. Unity-gain margins from the legs' least `V_IL` and `V_OH` and greatest
     /// `V_IH` and `V_OL` (`NM_L = min V_IL - max V_OL`, `NM_H = min V_OH - max V_IH`), and the
     /// maximum-square noise margin of the butterfly of one leg against the other (a
-    /// cross-coupled pair with one inverter on each leg, the smaller of the two pairings).
+    /// cross-coupled pair with one inverter on each leg).
     pub fn hysteretic(&self) -> Option<Hysteretic> {
         let (up, down) = (self.leg(Leg::Up)?, self.leg(Leg::Down)?);
         let margins = up.metrics.zip(down.metrics).map(|(a, b)| {
@@ -75,14 +75,8 @@ impl SweptTransfer {
                 a.voh.min(b.voh) - a.vih.max(b.vih),
             )
         });
-        let snm = [
-            butterfly(&up.vin, &up.vout, &down.vin, &down.vout),
-            butterfly(&down.vin, &down.vout, &up.vin, &up.vout),
-        ]
-        .into_iter()
-        .map(|m| m.map(|m| m.snm))
-        .reduce(|a, b| a.zip(b).map(|(a, b)| a.min(b)))
-        .flatten();
+        // One pairing is enough: the other is the same butterfly mirrored about v_out = v_in.
+        let snm = butterfly(&up.vin, &up.vout, &down.vin, &down.vout).map(|m| m.snm);
         Some(Hysteretic {
             nml: margins.map(|m| m.0),
             nmh: margins.map(|m| m.1),

@@ -164,7 +164,7 @@ fn swept_json_with(s: &SweptTransfer, with_points: bool) -> Value {
                 "nml_v": h.nml, "nmh_v": h.nmh, "snm_v": h.snm,
             })),
             "definitions": {
-                "hysteretic": "margins of the two legs together (both ways only): nml_v = least V_IL - greatest V_OL, nmh_v = least V_OH - greatest V_IH over the legs, snm_v = maximum-square noise margin of one leg against the other (the smaller pairing)",
+                "hysteretic": "margins of the two legs together (both ways only): nml_v = least V_IL - greatest V_OL, nmh_v = least V_OH - greatest V_IH over the legs, snm_v = maximum-square noise margin of one leg against the other",
                 "rate_v_per_s": "the input ramps at this rate through the transfer analysis's input values in a transient that starts at rest (the operating point) at the first one",
                 "vm_shift_v": "V_M of the down leg minus V_M of the up leg",
                 "legs": "each leg in increasing input order; figures as for the DC curve (unity-gain noise margins, maximum-square SNM of the leg against itself)",

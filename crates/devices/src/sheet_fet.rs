@@ -309,8 +309,8 @@ pub struct SheetFetCard {
     pub tunnelling: Vec<leakage::Barrier>,
     /// When the gate leakage enters the solution ([`leakage`], "When it is on").
     pub gate_leakage: leakage::LeakageMode,
-    /// The fraction of the channel's off-current scale below which an `auto` device leaves
-    /// its gate leakage out ([`leakage`], "When it is on").
+    /// The fraction of the device's smallest channel current below which an `auto` device
+    /// leaves its gate leakage out ([`leakage`], "When it is on").
     pub leakage_fraction: f64,
 }
 

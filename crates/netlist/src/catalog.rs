@@ -1085,8 +1085,8 @@ pub fn sheet_card(v: &Values) -> Result<SheetFetCard, BuildError> {
 }
 
 /// When the gate leakage is in the solution: `gate_leakage = auto` (the default: only beyond
-/// the gate drives where it reaches `gate_leakage_fraction` of the channel's off-current
-/// scale), `on` or `off`. A mode or fraction on a stack without tunnelling data is refused:
+/// the gate drives where it reaches `gate_leakage_fraction` of the device's smallest channel
+/// current there), `on` or `off`. A mode or fraction on a stack without tunnelling data is refused:
 /// there is no leakage to switch.
 fn leakage_options(v: &Values, card: &mut SheetFetCard) -> Result<(), BuildError> {
     use lamina_devices::sheet_fet::leakage::LeakageMode;
@@ -1094,14 +1094,12 @@ fn leakage_options(v: &Values, card: &mut SheetFetCard) -> Result<(), BuildError
     let mode = v.text(p, "gate_leakage");
     let fraction = v.get(p, "gate_leakage_fraction");
     if card.tunnelling.is_empty() {
-        if let Some(key) = [
-            mode.map(|_| "gate_leakage"),
-            fraction.map(|_| "gate_leakage_fraction"),
-        ]
-        .into_iter()
-        .flatten()
-        .next()
-        {
+        let given = match (mode, fraction) {
+            (Some(_), _) => Some("gate_leakage"),
+            (None, Some(_)) => Some("gate_leakage_fraction"),
+            (None, None) => None,
+        };
+        if let Some(key) = given {
             return Err(BuildError::at(
                 key,
                 format!(
@@ -1123,7 +1121,8 @@ fn leakage_options(v: &Values, card: &mut SheetFetCard) -> Result<(), BuildError
                 "gate_leakage",
                 format!("no gate-leakage mode called `{other}`"),
                 "write `gate_leakage = auto` (the default: left out where below \
-                 `gate_leakage_fraction` of the channel's off-current scale), `on` or `off`",
+                 `gate_leakage_fraction` of the device's smallest channel current), `on` or \
+                 `off`",
             ))
         }
     };

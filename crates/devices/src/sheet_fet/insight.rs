@@ -142,54 +142,43 @@ impl SheetFet {
         let [(to_drain, _), (to_source, _)] = self.gate_leakage(vg - vd, vg - vs);
         let gate = to_drain + to_source;
         let ratio = gate.abs() / drain.abs();
-        let mut onsets = Vec::new();
-        let word = match self.leakage_window() {
-            Some(w) => {
-                onsets = vec![
-                    Detail {
-                        name: "gate leakage onset below",
-                        value: DetailValue::Number(w.below, "V"),
-                    },
-                    Detail {
-                        name: "gate leakage onset above",
-                        value: DetailValue::Number(w.above, "V"),
-                    },
-                ];
-                if w.excludes(vg - vd) && w.excludes(vg - vs) {
-                    let mut all = vec![Detail {
-                        name: "gate leakage",
-                        value: DetailValue::Word("left out (below its onsets)"),
-                    }];
-                    all.append(&mut onsets);
-                    return all;
-                } else if ratio >= SIGNIFICANT_LEAKAGE {
-                    "significant"
-                } else {
-                    "negligible"
-                }
-            }
-            None if ratio >= SIGNIFICANT_LEAKAGE => "significant",
-            None => "negligible",
+        let window = self.leakage_window();
+        let left_out = window.is_some_and(|w| w.excludes(vg - vd) && w.excludes(vg - vs));
+        let word = match (left_out, ratio >= SIGNIFICANT_LEAKAGE) {
+            (true, _) => "left out (below its onsets)",
+            (false, true) => "significant",
+            (false, false) => "negligible",
         };
-        let mut all = vec![
-            Detail {
-                name: "gate leakage",
-                value: DetailValue::Word(word),
-            },
-            Detail {
-                name: "gate leakage current",
-                value: DetailValue::Number(gate, "A"),
-            },
-            Detail {
-                name: "gate leakage to drain",
-                value: DetailValue::Number(to_drain, "A"),
-            },
-            Detail {
-                name: "gate leakage ratio",
-                value: DetailValue::Number(ratio, "1"),
-            },
-        ];
-        all.append(&mut onsets);
+        let mut all = vec![Detail {
+            name: "gate leakage",
+            value: DetailValue::Word(word),
+        }];
+        // What the solution carries, unless the leakage is left out here.
+        if !left_out {
+            all.extend(
+                [
+                    ("gate leakage current", gate, "A"),
+                    ("gate leakage to drain", to_drain, "A"),
+                    ("gate leakage ratio", ratio, "1"),
+                ]
+                .map(|(name, x, unit)| Detail {
+                    name,
+                    value: DetailValue::Number(x, unit),
+                }),
+            );
+        }
+        if let Some(w) = window {
+            all.extend(
+                [
+                    ("gate leakage onset below", w.below),
+                    ("gate leakage onset above", w.above),
+                ]
+                .map(|(name, x)| Detail {
+                    name,
+                    value: DetailValue::Number(x, "V"),
+                }),
+            );
+        }
         all
     }
 }

@@ -348,8 +348,8 @@ pub(crate) fn validate(card: &SheetFetCard) -> Result<(), String> {
     // Checked with or without tunnelling data: a fraction outside (0, 1] is a typo.
     if !(card.leakage_fraction > 0.0 && card.leakage_fraction <= 1.0) {
         return Err(format!(
-            "gate_leakage_fraction {} is outside (0, 1]: it is the part of the channel's \
-             off-current scale below which the leakage is left out (default {})",
+            "gate_leakage_fraction {} is outside (0, 1]: it is the part of the device's \
+             smallest channel current below which the leakage is left out (default {})",
             card.leakage_fraction,
             super::insight::SIGNIFICANT_LEAKAGE
         ));
