@@ -149,6 +149,13 @@ pub(crate) struct Latency {
 }
 
 impl Latency {
+    /// Marks `u` active again, its quiet count restarted.
+    fn release(&mut self, u: usize) {
+        self.held[u] = false;
+        self.quiet[u] = 0;
+        self.changed.push(u);
+    }
+
     /// Whether any unknown is held.
     pub(crate) fn any_held(&self) -> bool {
         self.held.iter().any(|&h| h)
@@ -334,9 +341,7 @@ impl System {
         if let Some(l) = self.latency.as_mut() {
             for u in 0..self.n {
                 if l.held[u] {
-                    l.held[u] = false;
-                    l.quiet[u] = 0;
-                    l.changed.push(u);
+                    l.release(u);
                 }
             }
         }
@@ -778,17 +783,13 @@ impl SumTree {
 /// Marks `u` active, with the internal unknowns of every element it belongs to (an internal
 /// unknown is latent only with all of its element's unknowns).
 fn wake(l: &mut Latency, u: usize, loc_map: &[usize], loc_start: &[usize]) {
-    l.held[u] = false;
-    l.quiet[u] = 0;
-    l.changed.push(u);
+    l.release(u);
     for a in l.adj_ptr[u]..l.adj_ptr[u + 1] {
         let e = l.adj[a].0 as usize;
         let local = &loc_map[loc_start[e]..loc_start[e + 1]];
         for &g in &local[l.pins[e]..] {
             if g != NONE && l.held[g] {
-                l.held[g] = false;
-                l.quiet[g] = 0;
-                l.changed.push(g);
+                l.release(g);
             }
         }
     }
