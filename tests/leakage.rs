@@ -144,6 +144,50 @@ fn table_matches_direct_quadrature() {
     assert!(table.density(0.3).0 > 0.0 && table.density(-0.3).0 < 0.0);
 }
 
+/// Devices whose cards differ in the metal gate's work function alone take their knots from
+/// one shared grid, interpolated across its columns in the work function (the leakage
+/// module's docs): the table of a work function between columns, or on one, agrees with the
+/// card's own direct quadrature as the table of the card alone does (the bound of
+/// `table_matches_direct_quadrature`), for an electron (MoS2) and a hole (WSe2) channel.
+#[test]
+fn shared_grid_tables_match_direct_quadrature() {
+    for (channel, gate) in [("MoS2", 4.37), ("WSe2", 4.94)] {
+        for t in [77.0, 300.0, 400.0] {
+            let vt = K_B * t / Q;
+            let mut worst = [0.0f64; 2];
+            // Column spacing is a quarter of a thermal voltage: off-column fractions and a
+            // shift on a column.
+            for frac in [0.0, 0.37, 0.5, 0.81] {
+                let mut card = thin_card();
+                materials::apply_channel(&mut card, channel).unwrap();
+                card.temperature = t;
+                let w = card.electron_affinity + (gate - card.electron_affinity);
+                let column = 0.25 * vt;
+                let w = card.electron_affinity
+                    + ((w - card.electron_affinity) / column).floor() * column
+                    + frac * column;
+                card.gate = lamina_devices::Gate::Metal { work_function: w };
+                let fet = SheetFet::new(&card).unwrap();
+                let table = fet.leakage_table().unwrap();
+                for k in 0..400 {
+                    let u = -3.0 + 6.0 * (k as f64 + 0.37) / 400.0;
+                    let (j, _) = table.density(u);
+                    let direct = table.direct(u);
+                    let rel = (j - direct).abs() / direct.abs().max(1e-25);
+                    let w = &mut worst[usize::from(u.abs() > 2.0 * vt)];
+                    *w = w.max(rel);
+                }
+            }
+            eprintln!(
+                "{channel} {t} K: near 0 {:.2e}, beyond {:.2e}",
+                worst[0], worst[1]
+            );
+            assert!(worst[0] < 2e-2, "{channel} {t} K near u = 0: {}", worst[0]);
+            assert!(worst[1] < 5e-4, "{channel} {t} K: {}", worst[1]);
+        }
+    }
+}
+
 /// The stamped gate currents' slopes are the derivatives of the currents: central
 /// differences, step 1e-5 V, across on and off states.
 #[test]
