@@ -383,7 +383,7 @@ fn ring_waveforms_keep_their_bound_and_the_figures_do_not_move() {
     }
 }
 
-/// A Monte Carlo sample's measurement (3 periods after at least 1 discarded) gives the
+/// A Monte Carlo sample's measurement (2 periods after at least 1 discarded) gives the
 /// single run's figures (5 after 3) to within the settled periods' own spread: the demo
 /// 2D-FET ring and an 11-stage square-law ring, within 2e-5 in frequency and energy per
 /// cycle.

@@ -2439,8 +2439,9 @@ impl SheetFet {
                 };
                 let mut probes = leakage::Probes::default();
                 let first = t.window(limit(model.table_s_sigma(0.0).1), &mut probes);
-                let least =
-                    leakage::smallest_on(first.below, first.above, |u| model.table_s_sigma(u).1);
+                let least = leakage::smallest_on(first.below, first.above, model.stack.vt, |u| {
+                    model.table_s_sigma(u).1
+                });
                 t.window(limit(least), &mut probes).narrowest_kept()
             });
         let leakage = leakage.map(|t| (t, 0.5 * card.width * card.length));

@@ -852,18 +852,27 @@ impl Window {
 /// through the whole gate than one electron, however weakly the node it reaches is held.
 pub const NEGLIGIBLE_CURRENT: f64 = Q / 3.156e7;
 
-/// Points of the scan for the smallest channel conductance in a window.
+/// The most points of the scan for the smallest channel conductance in a window.
 const SCAN_POINTS: usize = 2048;
+/// The scan's spacing, in thermal voltages, where [`SCAN_POINTS`] allow it.
+const SCAN_VT: f64 = 0.25;
 
-/// Half the smallest of `sigma` over `[lo, hi]` (and at 0), scanned at [`SCAN_POINTS`]
-/// evenly spaced points: σ is a sum of exponentials in `u`, so between points a few mV apart
-/// the scan misses at most a factor `e^{Δu/V_T}` at the ambipolar minimum (1.2 for a 10 V
-/// window at 300 K), which the halving covers; a window many volts wide at cryogenic
-/// temperatures can miss more, and its σ underflows there anyway (the window then closes).
-pub(crate) fn smallest_on(lo: f64, hi: f64, sigma: impl Fn(f64) -> f64) -> f64 {
+/// Half the smallest of `sigma` over `[lo, hi]` (and at 0), scanned at evenly spaced points a
+/// quarter of the thermal voltage `vt` apart (at most [`SCAN_POINTS`]) with both ends: σ is a
+/// sum of exponentials in `u` that change at most e-fold per thermal voltage, so between
+/// points `Δu` apart the scan misses at most a factor `e^{Δu/V_T}` (1.28), which the halving
+/// covers; a window many volts wide at cryogenic temperatures, where the points' cap widens
+/// the spacing, can miss more, and its σ underflows there anyway (the window then closes).
+pub(crate) fn smallest_on(lo: f64, hi: f64, vt: f64, sigma: impl Fn(f64) -> f64) -> f64 {
     let (lo, hi) = (lo.max(-super::U_REACH), hi.min(super::U_REACH));
-    let step = (hi - lo) / (SCAN_POINTS - 1) as f64;
-    (0..SCAN_POINTS)
+    let wanted = ((hi - lo) / (SCAN_VT * vt)).ceil();
+    let points = if wanted.is_finite() {
+        (wanted as usize + 1).clamp(2, SCAN_POINTS)
+    } else {
+        SCAN_POINTS
+    };
+    let step = (hi - lo) / (points - 1) as f64;
+    (0..points)
         .map(|k| sigma(lo + step * k as f64))
         .fold(sigma(0.0), f64::min)
         * 0.5
