@@ -588,10 +588,7 @@ impl LeakageTable {
         *self.knots[k].get_or_init(|| {
             let u = position(self.h, self.core, s as f64);
             match &self.grid {
-                Some((grid, first, weights)) => (0..4)
-                    .filter(|&m| weights[m] != 0.0)
-                    .map(|m| weights[m] * grid.knot(u, s, first + m as i64))
-                    .sum(),
+                Some((grid, first, weights)) => grid.interpolate(u, s, *first, weights),
                 None => (self.direct(u) / self.j0).asinh(),
             }
         })
@@ -743,15 +740,39 @@ impl LeakageGrid {
             .current_density(st.xi, u, st.gate_charge / self.c_ins)
     }
 
-    /// `y` at knot `s` (at `u`) of column `column`, solved on first use.
-    fn knot(&self, u: f64, s: i64, column: i64) -> f64 {
-        if let Some(&y) = super::lock(&self.values).get(&(s, column)) {
-            return y;
+    /// `Σ_m weights[m] y(s, first + m)` at knot `s` (at `u`): the columns' knots looked up
+    /// under one lock, those not yet solved solved outside it and kept (a thread that solved
+    /// the same knot meanwhile found the same value: the solve is a pure function of the
+    /// knot), then summed in column order.
+    fn interpolate(&self, u: f64, s: i64, first: i64, weights: &[f64; 4]) -> f64 {
+        let mut y = [None; 4];
+        {
+            let values = super::lock(&self.values);
+            for m in 0..4 {
+                if weights[m] != 0.0 {
+                    y[m] = values.get(&(s, first + m as i64)).copied();
+                }
+            }
         }
-        // Solved outside the lock; a thread that solved the same knot meanwhile found the
-        // same value (the solve is a pure function of the knot).
-        let y = (self.direct(u, column) / self.j0).asinh();
-        *super::lock(&self.values).entry((s, column)).or_insert(y)
+        let mut solved = [None; 4];
+        for m in 0..4 {
+            if weights[m] != 0.0 && y[m].is_none() {
+                let v = (self.direct(u, first + m as i64) / self.j0).asinh();
+                (y[m], solved[m]) = (Some(v), Some(v));
+            }
+        }
+        if solved.iter().any(Option::is_some) {
+            let mut values = super::lock(&self.values);
+            for m in 0..4 {
+                if let Some(v) = solved[m] {
+                    y[m] = Some(*values.entry((s, first + m as i64)).or_insert(v));
+                }
+            }
+        }
+        (0..4)
+            .filter(|&m| weights[m] != 0.0)
+            .map(|m| weights[m] * y[m].unwrap_or(0.0))
+            .sum()
     }
 
     /// The first of the four columns about `W - χ = shift` (V) and their four-point Lagrange
