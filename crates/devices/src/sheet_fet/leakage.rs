@@ -71,21 +71,25 @@
 //! fourth-order centred-difference slopes, so `J(u)` is C¹. Each knot is solved when first
 //! needed (a run pays only for the gate drives it visits, a few µs each) and kept; a look-up
 //! costs 43 ns. Measured against the direct quadrature (`tests/leakage.rs`, MoS2 under two hBN
-//! layers): within 1.2e-4 at 300 K and 400 K, 2e-5 at 77 K, 5e-6 at 4 K, except within two
-//! thermal voltages of `u = 0`, where `J` is linear in `u` and smallest: 1e-2.
+//! layers, a graphene gate, whose table is the card's own): within 2.3e-4 from 77 K to 400 K,
+//! 1.4e-6 at 4 K, except within two thermal voltages of `u = 0`, where `J` is linear in `u`
+//! and smallest: 1e-2.
 //!
 //! Under a metal gate whose work function `W` lies within [`MAX_SHARED_SHIFT`] of the
 //! channel's affinity `χ`, cards that differ only in `W` or in their mobilities (a threshold
-//! or mobility spread in a Monte Carlo run) share one grid: the same knots in `u`
-//! on columns of `W - χ` a quarter of a thermal voltage apart, each solved once, and a card's
-//! knot is the cubic interpolant across the four columns about its `W` (`W` shifts the
-//! stack's electrostatics by exactly `W - χ` in `u`, but also the gate's Fermi level in the
-//! supply, so `J` depends on both). Measured against each card's own direct quadrature
-//! (`tests/leakage.rs`, MoS2 and WSe2 under two hBN layers, work functions on and between
-//! columns): within 4.3e-4 at 77 K, 2.7e-4 at 300 K and 3.4e-4 at 400 K beyond two thermal
-//! voltages of `u = 0` (a table of the card's own, on the same points: 2.7e-4, 1.9e-4,
-//! 3.7e-4), 1.2e-3 within them. Such a table's onsets ([`LeakageTable::window`]) are found on
-//! its knots, against a limit lowered by 1 %, instead of by direct solves.
+//! or mobility spread in a Monte Carlo run) share one grid of `J`: the same knots in `u` on
+//! columns of `W - χ` a quarter of a thermal voltage apart, each solved once (the grid keeps
+//! at most 2^20 values, about 50 MB), and a card's knot is the cubic interpolant of the four
+//! columns' `asinh(J / J_0)` about its `W`, with the card's own `J_0` (`W` shifts the stack's
+//! electrostatics by exactly `W - χ` in `u`, but also the gate's Fermi level in the supply,
+//! so `J` depends on both). On a column the knots are the card's own to 1e-11. Measured
+//! against each card's own direct quadrature (`tests/leakage.rs`: MoS2 and WSe2 under two
+//! hBN layers, `W - χ` from -1 to 2.6 V, on and between columns, 77 to 400 K): within 4.8e-4
+//! beyond two thermal voltages of `u = 0` (the largest at -12 V_T on MoS2 at 0.37 V, on a
+//! column as well: the interpolation in `u`, as a card's own table has), 7.3e-3 within them,
+//! and the slope at `u = 0` within 1.1e-2 of a central difference; under a gold gate from
+//! 4 K to 400 K as above, within 3e-4. Such a table's onsets ([`LeakageTable::window`]) are
+//! found on its knots, against a limit lowered by 1 %, instead of by direct solves.
 //!
 //! # When it is on
 //! For a card whose every layer has tunnelling data (a library insulator, or the four card
@@ -107,7 +111,7 @@
 //!   the window within it, so what is left out obeys the rule over the final, narrower
 //!   window. `J` is monotonic in `u` (non-decreasing in `|u|`, up to quadrature rounding on
 //!   its flat stretches), so each onset is found by doubling from 0.25 V and secant steps
-//!   on `ln |J|` to 10 mV (a few direct solves per side, [`LeakageTable::window`]); within
+//!   on `ln |J|` to 10 mV (a few direct solves per side, or table values for a card on a shared grid, [`LeakageTable::window`]); within
 //!   [`BLEND_VT`] thermal voltages inside each onset the current fades in (a smoothstep
 //!   weight, so the current and its slope stay continuous), beyond it the leakage is whole.
 //!   Where a channel end's gate drive lies well inside the window the table is not read at
@@ -524,7 +528,7 @@ impl LeakageTable {
             Gate::Metal { work_function }
                 if (work_function - card.electron_affinity).abs() <= MAX_SHARED_SHIFT =>
             {
-                let grid = LeakageGrid::shared(card, h, core, last);
+                let grid = LeakageGrid::shared(card);
                 let (first, weights) = grid.columns(work_function - card.electron_affinity);
                 Some((grid, first, weights))
             }
@@ -545,7 +549,7 @@ impl LeakageTable {
         };
         let vt = table.stack.kt;
         table.j0 = match &table.grid {
-            Some((grid, ..)) => grid.j0,
+            Some((grid, first, weights)) => grid.j0(*first, weights),
             None => table
                 .direct(vt)
                 .abs()
@@ -588,7 +592,13 @@ impl LeakageTable {
         *self.knots[k].get_or_init(|| {
             let u = position(self.h, self.core, s as f64);
             match &self.grid {
-                Some((grid, first, weights)) => grid.interpolate(u, s, *first, weights),
+                Some((grid, first, weights)) => {
+                    let j = grid.densities(u, s, *first, weights);
+                    (0..4)
+                        .filter(|&m| weights[m] != 0.0)
+                        .map(|m| weights[m] * (j[m] / self.j0).asinh())
+                        .sum()
+                }
                 None => (self.direct(u) / self.j0).asinh(),
             }
         })
@@ -669,17 +679,23 @@ fn position(h: f64, core: f64, s: f64) -> f64 {
 /// Spacing of a [`LeakageGrid`]'s columns in the gate work function, in thermal voltages.
 const COLUMN_VT: f64 = 0.25;
 
-/// `y(u) = asinh(J / J_0)` of one stack under metal gates of every work function `W` within
+/// The most values a [`LeakageGrid`] keeps (about 50 MB); beyond it, knots are still solved
+/// and each card keeps its own, but the grid stores no more (a work-function sweep at
+/// cryogenic temperatures, whose knots are dense, cannot grow it without bound).
+const MAX_GRID_VALUES: usize = 1 << 20;
+
+/// `J(u)` of one stack under metal gates of every work function `W` within
 /// [`MAX_SHARED_SHIFT`] of the channel's affinity `χ`, on the tables' knots in `u` and on
 /// columns `W - χ = j Δ` ([`COLUMN_VT`] thermal voltages apart), each solved on first use and
-/// kept while a device uses the grid. The work function shifts the stack's electrostatics by
-/// exactly `W - χ` in `u` (the charge balance, [`SheetModel::shared`]) but also sets the
-/// gate's Fermi level in the supply, so `J` is a function of `u` and `W` both, smooth in each
-/// on the thermal voltage's scale. A card's table takes its knots as the cubic (four-point
-/// Lagrange) interpolant across the columns about its own `W`: devices that differ in their
-/// work function alone (a threshold spread in a Monte Carlo run) then share the solves, and
-/// each device costs a few look-ups per knot instead of a quadrature. Measured against the
-/// direct quadrature: see the module docs.
+/// kept while a device uses the grid (at most [`MAX_GRID_VALUES`]). The work function shifts
+/// the stack's electrostatics by exactly `W - χ` in `u` (the charge balance,
+/// [`SheetModel::shared`]) but also sets the gate's Fermi level in the supply, so `J` is a
+/// function of `u` and `W` both, smooth in each on the thermal voltage's scale. A card's
+/// table takes its knots `asinh(J / J_0)`, with its own `J_0`, as the cubic (four-point
+/// Lagrange) interpolant of the columns' `asinh(J / J_0)` about its own `W`: devices that
+/// differ in their work function alone (a threshold spread in a Monte Carlo run) then share
+/// the solves, and each device costs a few look-ups per knot instead of a quadrature.
+/// Measured against the direct quadrature: see the module docs.
 #[derive(Debug)]
 pub(crate) struct LeakageGrid {
     /// The stack with `W = χ`, whose state at `u - jΔ` is the card's at `u`.
@@ -687,14 +703,14 @@ pub(crate) struct LeakageGrid {
     tunnel: TunnelStack,
     c_ins: f64,
     spacing: f64,
-    j0: f64,
+    /// `J` (A/m²) by (knot, column); the knots `i64::MIN` and `i64::MAX` hold `J(∓V_T)`.
     values: Mutex<HashMap<(i64, i64), f64>>,
 }
 
 impl LeakageGrid {
     /// The grid of `card`'s stack with its work function set aside, shared while any table
-    /// uses it; knots laid out as `(h, core, last)`.
-    fn shared(card: &SheetFetCard, h: f64, core: f64, last: f64) -> Arc<LeakageGrid> {
+    /// uses it.
+    fn shared(card: &SheetFetCard) -> Arc<LeakageGrid> {
         static GRIDS: Mutex<Vec<(SheetFetCard, Weak<LeakageGrid>)>> = Mutex::new(Vec::new());
         // The mobilities do not enter `J` (only the state's `ξ` and `Q_g`): cards that
         // differ in them share the grid too.
@@ -711,22 +727,13 @@ impl LeakageGrid {
             return g;
         }
         let tunnel = tunnel_stack(&base);
-        let vt = tunnel.kt;
-        let mut grid = LeakageGrid {
+        let grid = Arc::new(LeakageGrid {
             stack: super::Stack::new(&base),
             c_ins: base.insulator_capacitance(),
-            spacing: COLUMN_VT * vt,
-            j0: 1.0,
+            spacing: COLUMN_VT * tunnel.kt,
             tunnel,
             values: Mutex::new(HashMap::new()),
-        };
-        debug_assert!(position(h, core, last) >= super::U_REACH);
-        grid.j0 = grid
-            .direct(vt, 0)
-            .abs()
-            .max(grid.direct(-vt, 0).abs())
-            .max(1e-30);
-        let grid = Arc::new(grid);
+        });
         super::lock(&GRIDS).push((base, Arc::downgrade(&grid)));
         grid
     }
@@ -740,39 +747,54 @@ impl LeakageGrid {
             .current_density(st.xi, u, st.gate_charge / self.c_ins)
     }
 
-    /// `Σ_m weights[m] y(s, first + m)` at knot `s` (at `u`): the columns' knots looked up
-    /// under one lock, those not yet solved solved outside it and kept (a thread that solved
-    /// the same knot meanwhile found the same value: the solve is a pure function of the
-    /// knot), then summed in column order.
-    fn interpolate(&self, u: f64, s: i64, first: i64, weights: &[f64; 4]) -> f64 {
-        let mut y = [None; 4];
+    /// `J` at knot `key` (at `u`) in the columns `first..first + 4` whose weight is not zero
+    /// (zero for the others): looked up under one lock, those not yet solved solved outside
+    /// it and kept (a thread that solved the same knot meanwhile found the same value: the
+    /// solve is a pure function of the knot).
+    fn densities(&self, u: f64, key: i64, first: i64, weights: &[f64; 4]) -> [f64; 4] {
+        let mut j = [None; 4];
         {
             let values = super::lock(&self.values);
-            for m in 0..4 {
+            for (m, jm) in j.iter_mut().enumerate() {
                 if weights[m] != 0.0 {
-                    y[m] = values.get(&(s, first + m as i64)).copied();
+                    *jm = Some(values.get(&(key, first + m as i64)).copied());
                 }
             }
         }
         let mut solved = [None; 4];
-        for m in 0..4 {
-            if weights[m] != 0.0 && y[m].is_none() {
-                let v = (self.direct(u, first + m as i64) / self.j0).asinh();
-                (y[m], solved[m]) = (Some(v), Some(v));
+        for (m, jm) in j.iter_mut().enumerate() {
+            if let Some(None) = jm {
+                let v = self.direct(u, first + m as i64);
+                (*jm, solved[m]) = (Some(Some(v)), Some(v));
             }
         }
         if solved.iter().any(Option::is_some) {
             let mut values = super::lock(&self.values);
-            for m in 0..4 {
-                if let Some(v) = solved[m] {
-                    y[m] = Some(*values.entry((s, first + m as i64)).or_insert(v));
+            for (m, v) in solved.iter().enumerate() {
+                if let Some(v) = *v {
+                    if values.len() < MAX_GRID_VALUES {
+                        values.entry((key, first + m as i64)).or_insert(v);
+                    }
                 }
             }
         }
-        (0..4)
-            .filter(|&m| weights[m] != 0.0)
-            .map(|m| weights[m] * y[m].unwrap_or(0.0))
-            .sum()
+        j.map(|jm| jm.flatten().unwrap_or(0.0))
+    }
+
+    /// The `J_0` of a card whose columns are `first` with `weights`: the larger `|J|` at
+    /// `u = ±V_T`, interpolated in `ln |J|` across the columns (a scale for `asinh`, which
+    /// needs its magnitude only).
+    fn j0(&self, first: i64, weights: &[f64; 4]) -> f64 {
+        let vt = self.tunnel.kt;
+        let at = |u: f64, key: i64| {
+            let j = self.densities(u, key, first, weights);
+            (0..4)
+                .filter(|&m| weights[m] != 0.0)
+                .map(|m| weights[m] * j[m].abs().max(1e-300).ln())
+                .sum::<f64>()
+                .exp()
+        };
+        at(vt, i64::MAX).max(at(-vt, i64::MIN)).max(1e-30)
     }
 
     /// The first of the four columns about `W - χ = shift` (V) and their four-point Lagrange
@@ -822,9 +844,12 @@ pub struct Window {
 /// Width of the fade-in inside each onset, in thermal voltages.
 pub const BLEND_VT: f64 = 2.0;
 
-/// The share by which a window searched on a shared grid's table lowers its limit: ten
-/// times the table's error against the direct quadrature beyond two thermal voltages of
-/// `u = 0` (the module docs), so the direct current at an onset stays below the limit.
+/// The share by which a window searched on a shared grid's table lowers its limit: twice the
+/// table's largest error against the direct quadrature within two thermal voltages of
+/// `u = 0`, and twenty times beyond (the module docs), so the direct current at an onset
+/// stays below the limit (an onset inside the fade-in of `u = 0` keeps the leakage
+/// everywhere anyway). Checked by a reviewer over 4 to 500 K: the direct current at a
+/// searched onset reached 0.990 of the limit at most.
 const GRID_MARGIN: f64 = 1e-2;
 
 /// How finely (V) the onsets are located; below [`BLEND_VT`] thermal voltages at 300 K.
@@ -876,14 +901,16 @@ pub const NEGLIGIBLE_CURRENT: f64 = Q / 3.156e7;
 /// The most points of the scan for the smallest channel conductance in a window.
 const SCAN_POINTS: usize = 2048;
 /// The scan's spacing, in thermal voltages, where [`SCAN_POINTS`] allow it.
-const SCAN_VT: f64 = 0.25;
+const SCAN_VT: f64 = 0.125;
 
-/// Half the smallest of `sigma` over `[lo, hi]` (and at 0), scanned at evenly spaced points a
-/// quarter of the thermal voltage `vt` apart (at most [`SCAN_POINTS`]) with both ends: σ is a
-/// sum of exponentials in `u` that change at most e-fold per thermal voltage, so between
-/// points `Δu` apart the scan misses at most a factor `e^{Δu/V_T}` (1.28), which the halving
-/// covers; a window many volts wide at cryogenic temperatures, where the points' cap widens
-/// the spacing, can miss more, and its σ underflows there anyway (the window then closes).
+/// Half the smallest of `sigma` over `[lo, hi]` (and at 0), scanned at evenly spaced points an
+/// eighth of the thermal voltage `vt` apart (at most [`SCAN_POINTS`]) with both ends: σ is a
+/// sum of the carriers' conductances, each growing at most as `n^(1 + α)` with a
+/// density-dependent mobility (α at most 4, [`crate::mobility`]), so at most e⁵-fold per
+/// thermal voltage, and between points `Δu` apart the scan misses at most a factor
+/// `e^{5 Δu / V_T}` (1.87), which the halving covers; a window many volts wide at cryogenic
+/// temperatures, where the points' cap widens the spacing, can miss more, and its σ
+/// underflows there anyway (the window then closes).
 pub(crate) fn smallest_on(lo: f64, hi: f64, vt: f64, sigma: impl Fn(f64) -> f64) -> f64 {
     let (lo, hi) = (lo.max(-super::U_REACH), hi.min(super::U_REACH));
     let wanted = ((hi - lo) / (SCAN_VT * vt)).ceil();
@@ -905,8 +932,9 @@ impl LeakageTable {
     /// monotonic in `u` (the module docs), so a bracket from the solves `probes` holds from
     /// earlier searches on this table, else by doubling from 0.25 V, then secant steps on
     /// `ln |J|` (nearly linear in `u`), each probed one resolution further, find it in a few
-    /// direct solves per side, all kept in `probes`. A solve that fails counts as above the
-    /// limit. [`super::U_REACH`] where `J` never reaches `limit`.
+    /// probes per side, all kept in `probes`: direct solves, or for a table on a shared grid
+    /// the table's values against a limit lowered by [`GRID_MARGIN`]. A solve that fails
+    /// counts as above the limit. [`super::U_REACH`] where `J` never reaches `limit`.
     pub fn window(&self, limit: f64, probes: &mut Probes) -> Window {
         // A table on a shared grid is searched on its knots (solved once for every device
         // of the grid), against a limit lowered by [`GRID_MARGIN`], which covers the
