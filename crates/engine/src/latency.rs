@@ -63,7 +63,7 @@
 
 use crate::element::{Analysis, EvalContext, UnknownKind};
 use crate::lu::{DenseLu, LuStrategy, Singular, SparseLu};
-use crate::system::{System, Tolerances, NONE, NONE32};
+use crate::system::{System, Tolerances, NONE};
 use faer::sparse::SymbolicSparseColMat;
 use std::cmp::Reverse;
 use std::collections::BinaryHeap;
@@ -109,9 +109,10 @@ pub(crate) struct Latency {
     pub(crate) fz_q: Vec<f64>,
     pub(crate) fz_scale: Vec<f64>,
     pub(crate) fz_qscale: Vec<f64>,
-    /// Elements evaluated at each iteration, and their matrix slots.
+    /// Elements evaluated at each iteration, in element order.
     pub(crate) live: Vec<u32>,
-    pub(crate) live_slots: Vec<u32>,
+    /// Per row: how many live elements have it as a local unknown.
+    live_count: Vec<u32>,
     /// The active unknowns, and the active system: per entry of `J_AA` (column by column),
     /// its slot in the system's matrix and its place in the dense matrix (dense path only).
     active: Vec<usize>,
@@ -123,11 +124,11 @@ pub(crate) struct Latency {
     dense: DenseLu,
     strategy: LuStrategy,
     /// Buffers kept between refreshes, so that a refresh allocates nothing once they have
-    /// grown: the next active list, the working rows being built, rows kept from leaving,
+    /// grown: the next (or last) active list and working rows, the rows a refresh examines,
     /// rows and elements touched by a refresh, one column of `J_AA`.
     next_active: Vec<usize>,
     next_work: Vec<usize>,
-    kept: Vec<usize>,
+    candidates: Vec<usize>,
     dirty_rows: Vec<usize>,
     flipped: Vec<u32>,
     column: Vec<(usize, usize)>,
@@ -225,6 +226,8 @@ impl System {
                 (d > WIDE).then(|| SumTree::new(d))
             })
             .collect();
+        // Nothing is frozen yet: every element touching a row is live.
+        let live_count = (0..n).map(|r| (count[r + 1] - count[r]) as u32).collect();
         self.latency = Some(Latency {
             on: true,
             held: vec![false; n],
@@ -250,7 +253,7 @@ impl System {
             fz_scale: vec![0.0; n],
             fz_qscale: vec![0.0; n],
             live: Vec::new(),
-            live_slots: Vec::new(),
+            live_count,
             active: Vec::new(),
             gather: Vec::new(),
             dense_at: Vec::new(),
@@ -261,7 +264,7 @@ impl System {
             strategy,
             next_active: Vec::new(),
             next_work: Vec::new(),
-            kept: Vec::new(),
+            candidates: Vec::new(),
             dirty_rows: Vec::new(),
             flipped: Vec::new(),
             column: Vec::new(),
@@ -518,16 +521,12 @@ impl System {
         l.changed.dedup();
         self.refreeze(&mut l, x, &ctx);
         self.resum(&mut l);
-        self.relive(&mut l);
-        // Every active unknown is a working row or was just woken.
-        let mut active = std::mem::take(&mut l.next_active);
-        active.clear();
-        active.extend(l.work.iter().chain(&l.changed).filter(|&&u| !l.held[u]));
-        active.sort_unstable();
-        active.dedup();
-        l.changed.clear();
-        self.build_active(&mut l, active);
+        relive(&mut l);
+        if reactivate(&mut l) {
+            self.build_active(&mut l);
+        }
         let entered = self.build_work(&mut l, t);
+        l.changed.clear();
         self.latency = Some(l);
         entered
     }
@@ -550,6 +549,13 @@ impl System {
                 }
                 l.frozen[e] = want;
                 l.flipped.push(e as u32);
+                for &g in local.iter().filter(|&&g| g != NONE) {
+                    if want {
+                        l.live_count[g] -= 1;
+                    } else {
+                        l.live_count[g] += 1;
+                    }
+                }
                 if want {
                     self.evaluate_into(e, x, ctx, &mut l.st_f, &mut l.st_q);
                 }
@@ -608,102 +614,69 @@ impl System {
         }
     }
 
-    /// The live elements in element order and their matrix slots: edited in place when few
-    /// flipped (the cost of a refresh then follows the active part, not the circuit).
-    fn relive(&self, l: &mut Latency) {
-        l.flipped.sort_unstable();
-        l.flipped.dedup();
-        if l.live.is_empty() || l.flipped.len().saturating_mul(l.live.len()) > l.frozen.len() {
-            l.live.clear();
-            let frozen = &l.frozen;
-            l.live
-                .extend((0..frozen.len() as u32).filter(|&e| !frozen[e as usize]));
-        } else {
-            for &e in &l.flipped {
-                match (l.live.binary_search(&e), l.frozen[e as usize]) {
-                    (Ok(k), true) => {
-                        l.live.remove(k);
-                    }
-                    (Err(k), false) => l.live.insert(k, e),
-                    _ => {}
-                }
-            }
-        }
-        l.live_slots.clear();
-        for &e in &l.live {
-            let plan = &self.layout.plan[e as usize];
-            let nl = plan.local as usize;
-            let slots = &self.layout.slots32[plan.slot as usize..][..nl * nl];
-            l.live_slots
-                .extend(slots.iter().copied().filter(|&s| s != NONE32));
-        }
-    }
-
-    /// The working rows after a refresh (see [`Latency::work`]); a row about to become
-    /// interior must pass the residual test on its frozen current, or it stays. Returns
-    /// whether a row joined.
+    /// The working rows after a refresh (see [`Latency::work`]): a row is wanted when a live
+    /// element touches it or its unknown is active, or either holds for the row it trades
+    /// with. A row about to become interior must pass the residual test on its frozen
+    /// current, or it stays. Only the rows whose answer can have changed are examined: those
+    /// of the flipped elements (their live counts and frozen sums changed) and of the changed
+    /// unknowns, with their trades; a row kept before is kept again unless it is one of them.
+    /// Returns whether a row joined.
     fn build_work(&self, l: &mut Latency, t: f64) -> bool {
-        let mut want = std::mem::take(&mut l.next_work);
-        want.clear();
-        for &e in &l.live {
+        l.candidates.clear();
+        for &e in &l.flipped {
             let e = e as usize;
             let local =
                 &self.layout.loc_map[self.layout.loc_start[e]..self.layout.loc_start[e + 1]];
-            want.extend(local.iter().copied().filter(|&g| g != NONE));
+            l.candidates
+                .extend(local.iter().copied().filter(|&g| g != NONE));
         }
-        want.extend_from_slice(&l.active);
-        // Closed under the pinned row trade.
-        for i in 0..want.len() {
-            want.push(l.eq_row[want[i]]);
+        l.candidates.extend_from_slice(&l.changed);
+        for i in 0..l.candidates.len() {
+            l.candidates.push(l.eq_row[l.candidates[i]]);
         }
-        want.sort_unstable();
-        want.dedup();
+        if l.candidates.is_empty() {
+            return false;
+        }
+        l.candidates.sort_unstable();
+        l.candidates.dedup();
         let tol = l.tol;
+        let basic = |l: &Latency, r: usize| l.live_count[r] > 0 || !l.held[r];
         let mut entered = false;
-        // Rows leaving: in the old working rows and not wanted (both lists are sorted).
-        l.kept.clear();
-        let mut k = 0;
-        for &r in &l.work {
-            while k < want.len() && want[k] < r {
-                k += 1;
-            }
-            if k < want.len() && want[k] == r {
-                continue;
-            }
+        let mut moved = false;
+        for c in 0..l.candidates.len() {
+            let r = l.candidates[c];
             let u = l.eq_row[r];
-            let f = l.fz_f[r];
-            let abs = match self.kinds[r] {
-                UnknownKind::Voltage => tol.abstol,
-                UnknownKind::Current => tol.vntol,
-            };
-            // Interior only within the same fraction of the tolerance a held row must keep.
-            if !(l.held[u] && f.abs() <= HOLD_FRACTION * (tol.reltol * l.fz_scale[r] + abs)) {
-                l.kept.push(r);
-                continue;
-            }
-            l.in_work[r] = false;
-            l.left.push(r);
-            l.leave_t[u] = t;
-            l.leave_f[u] = f;
-            let room = l.qtol[u] - l.missed[u];
-            if f != 0.0 && room.is_finite() {
-                let when = t + room.max(0.0) / f.abs();
-                l.deadline[u] = when;
-                l.deadlines.push(Reverse((when.to_bits(), u)));
-            }
-        }
-        if !l.kept.is_empty() {
-            want.extend_from_slice(&l.kept);
-            want.sort_unstable();
-        }
-        for &r in &want {
-            if !l.in_work[r] {
+            let want = basic(l, r) || basic(l, u);
+            if want && !l.in_work[r] {
                 l.in_work[r] = true;
                 entered = true;
+                moved = true;
                 // The charge it missed while interior.
-                let u = l.eq_row[r];
                 l.missed[u] += l.leave_f[u].abs() * (t - l.leave_t[u]);
                 l.deadline[u] = f64::INFINITY;
+            } else if !want && l.in_work[r] {
+                let f = l.fz_f[r];
+                let abs = match self.kinds[r] {
+                    UnknownKind::Voltage => tol.abstol,
+                    UnknownKind::Current => tol.vntol,
+                };
+                // Interior only within the same fraction of the tolerance a held row must
+                // keep.
+                if !(l.held[u] && f.abs() <= HOLD_FRACTION * (tol.reltol * l.fz_scale[r] + abs))
+                {
+                    continue;
+                }
+                l.in_work[r] = false;
+                moved = true;
+                l.left.push(r);
+                l.leave_t[u] = t;
+                l.leave_f[u] = f;
+                let room = l.qtol[u] - l.missed[u];
+                if f != 0.0 && room.is_finite() {
+                    let when = t + room.max(0.0) / f.abs();
+                    l.deadline[u] = when;
+                    l.deadlines.push(Reverse((when.to_bits(), u)));
+                }
             }
         }
         // Entries of rows that came back since are dropped once they outnumber the rows.
@@ -712,21 +685,39 @@ impl System {
             l.deadlines
                 .retain(|&Reverse((bits, u))| deadline[u] == f64::from_bits(bits));
         }
-        l.next_work = std::mem::replace(&mut l.work, want);
-        l.work_k.clear();
-        let charge_k = &l.charge_k;
-        l.work_k
-            .extend(l.work.iter().map(|&r| charge_k[r]).filter(|&k| k != NONE));
+        if moved {
+            // The old working rows still in, merged with the candidates that joined (both
+            // sorted).
+            let mut next = std::mem::take(&mut l.next_work);
+            next.clear();
+            let mut joined = l.candidates.iter().copied().filter(|&r| l.in_work[r]).peekable();
+            for &r in &l.work {
+                while let Some(j) = joined.next_if(|&j| j < r) {
+                    next.push(j);
+                }
+                if joined.peek() == Some(&r) {
+                    joined.next();
+                }
+                if l.in_work[r] {
+                    next.push(r);
+                }
+            }
+            next.extend(joined);
+            l.next_work = std::mem::replace(&mut l.work, next);
+            l.work_k.clear();
+            let charge_k = &l.charge_k;
+            l.work_k
+                .extend(l.work.iter().map(|&r| charge_k[r]).filter(|&k| k != NONE));
+        }
         entered
     }
 
     /// The active unknowns, the pattern of `J_AA` and its solver: dense up to [`DENSE_MAX`]
     /// unknowns, sparse (a fresh symbolic analysis) beyond.
-    fn build_active(&self, l: &mut Latency, active: Vec<usize>) {
-        for &u in &l.active {
+    fn build_active(&self, l: &mut Latency) {
+        for &u in &l.next_active {
             l.pos[l.eq_row[u]] = NONE;
         }
-        l.next_active = std::mem::replace(&mut l.active, active);
         for (k, &u) in l.active.iter().enumerate() {
             l.pos[l.eq_row[u]] = k;
         }
@@ -834,6 +825,60 @@ impl System {
         }
         Ok(())
     }
+}
+
+/// The live elements in element order after the flips of a refresh (`l.flipped`): edited in
+/// place when few flipped (the cost of a refresh then follows the active part, not the
+/// circuit).
+fn relive(l: &mut Latency) {
+    l.flipped.sort_unstable();
+    l.flipped.dedup();
+    if l.live.is_empty() || l.flipped.len().saturating_mul(l.live.len()) > l.frozen.len() {
+        l.live.clear();
+        let frozen = &l.frozen;
+        l.live
+            .extend((0..frozen.len() as u32).filter(|&e| !frozen[e as usize]));
+    } else {
+        for &e in &l.flipped {
+            match (l.live.binary_search(&e), l.frozen[e as usize]) {
+                (Ok(k), true) => {
+                    l.live.remove(k);
+                }
+                (Err(k), false) => l.live.insert(k, e),
+                _ => {}
+            }
+        }
+    }
+}
+
+/// The active unknowns after the changes of a refresh (`l.changed`, sorted): every unknown
+/// not held is active (one stops being held only by [`Latency::release`], which lists it as
+/// changed), so the old list is merged with the changed unknowns. The old list goes to
+/// `l.next_active`. Returns whether the list changed.
+fn reactivate(l: &mut Latency) -> bool {
+    let mut next = std::mem::take(&mut l.next_active);
+    next.clear();
+    let mut changed = l.changed.iter().copied().peekable();
+    for &u in &l.active {
+        while let Some(c) = changed.next_if(|&c| c < u) {
+            if !l.held[c] {
+                next.push(c);
+            }
+        }
+        if changed.peek() == Some(&u) {
+            changed.next();
+        }
+        if !l.held[u] {
+            next.push(u);
+        }
+    }
+    next.extend(changed.filter(|&c| !l.held[c]));
+    if next == l.active {
+        l.next_active = next;
+        return false;
+    }
+    l.next_active = std::mem::replace(&mut l.active, next);
+    true
 }
 
 /// How the active system is solved.

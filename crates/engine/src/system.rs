@@ -991,9 +991,17 @@ impl System {
             ..
         } = self;
         if let Some(l) = latency {
-            for &s in &l.live_slots {
-                jac[s as usize] = 0.0;
-                cmat[s as usize] = 0.0;
+            // Every live element's slots are cleared before any is scattered (elements share
+            // slots).
+            for &e in &l.live {
+                let plan = &layout.plan[e as usize];
+                let nl = plan.local as usize;
+                for &s in &layout.slots32[plan.slot as usize..][..nl * nl] {
+                    if s != NONE32 {
+                        jac[s as usize] = 0.0;
+                        cmat[s as usize] = 0.0;
+                    }
+                }
             }
             for &r in &l.work {
                 f[r] = l.fz_f[r];
