@@ -301,7 +301,6 @@ impl System {
         self.latency.as_ref().is_some_and(|l| l.on)
     }
 
-
     /// Sets the latent unknowns of the predicted state to their held values.
     pub(crate) fn latency_hold(&self, x: &[f64], x_new: &mut [f64]) {
         if let Some(l) = &self.latency {
@@ -662,8 +661,7 @@ impl System {
                 };
                 // Interior only within the same fraction of the tolerance a held row must
                 // keep.
-                if !(l.held[u] && f.abs() <= HOLD_FRACTION * (tol.reltol * l.fz_scale[r] + abs))
-                {
+                if !(l.held[u] && f.abs() <= HOLD_FRACTION * (tol.reltol * l.fz_scale[r] + abs)) {
                     continue;
                 }
                 l.in_work[r] = false;
@@ -690,7 +688,12 @@ impl System {
             // sorted).
             let mut next = std::mem::take(&mut l.next_work);
             next.clear();
-            let mut joined = l.candidates.iter().copied().filter(|&r| l.in_work[r]).peekable();
+            let mut joined = l
+                .candidates
+                .iter()
+                .copied()
+                .filter(|&r| l.in_work[r])
+                .peekable();
             for &r in &l.work {
                 while let Some(j) = joined.next_if(|&j| j < r) {
                     next.push(j);
@@ -742,7 +745,10 @@ impl System {
                     l.column.push((k, s));
                 }
             }
-            l.column.sort_unstable();
+            // The sparse pattern lists rows in order; the dense matrix takes them as they come.
+            if !dense {
+                l.column.sort_unstable();
+            }
             for &(k, s) in &l.column {
                 l.gather.push(s);
                 if dense {
@@ -799,11 +805,7 @@ impl System {
         };
         match &mut l.solver {
             ActiveSolver::None if active.is_empty() => return Ok(()),
-            ActiveSolver::None => {
-                return Err(Singular {
-                    unknown: active[0],
-                })
-            }
+            ActiveSolver::None => return Err(Singular { unknown: active[0] }),
             ActiveSolver::Dense => {
                 let a = l.dense.matrix_mut(active.len());
                 for (&at, &s) in l.dense_at.iter().zip(&l.gather) {

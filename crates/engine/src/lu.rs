@@ -429,7 +429,10 @@ impl DenseLu {
     /// The matrix of the next factorisation, `n × n` column-major, zeroed (`n` at most the
     /// capacity).
     pub fn matrix_mut(&mut self, n: usize) -> &mut [f64] {
-        assert!(n <= self.cap, "dense LU of {n} unknowns beyond its capacity");
+        assert!(
+            n <= self.cap,
+            "dense LU of {n} unknowns beyond its capacity"
+        );
         self.n = n;
         let a = &mut self.a[..n * n];
         a.fill(0.0);

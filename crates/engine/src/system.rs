@@ -1101,7 +1101,8 @@ impl System {
         // Small elements on the stack: the latency partition freezes elements at every
         // refresh, and hot loops allocate nothing.
         if nl <= SMALL {
-            let (mut xs, mut df, mut dq) = ([0.0; SMALL], [0.0; SMALL * SMALL], [0.0; SMALL * SMALL]);
+            let (mut xs, mut df, mut dq) =
+                ([0.0; SMALL], [0.0; SMALL * SMALL], [0.0; SMALL * SMALL]);
             gather(map, x, &mut xs[..nl]);
             let stamp = &mut Stamp::new(fs, qs, &mut df[..nl * nl], &mut dq[..nl * nl]);
             self.elements[e].evaluate(&xs[..nl], ctx, stamp);
@@ -1233,9 +1234,8 @@ impl System {
                 if latent {
                     self.latency_keep_scale();
                 }
-                let worst = self.with_latency_lists(latent, |s, _, rows| {
-                    s.residual_of(x, load, &tol, rows)
-                });
+                let worst = self
+                    .with_latency_lists(latent, |s, _, rows| s.residual_of(x, load, &tol, rows));
                 if !(latent && self.latency_check(load.a0, &tol)) {
                     break worst;
                 }
