@@ -773,7 +773,8 @@ impl System {
             ActiveSolver::Dense
         } else {
             let pattern = SymbolicSparseColMat::new_checked(m, m, ptr, None, rows);
-            SparseLu::new(pattern, l.strategy).map_or(ActiveSolver::None, ActiveSolver::Sparse)
+            SparseLu::new(pattern, l.strategy)
+                .map_or(ActiveSolver::None, |lu| ActiveSolver::Sparse(Box::new(lu)))
         };
     }
 
@@ -891,7 +892,7 @@ enum ActiveSolver {
     /// [`DenseLu`] in the partition's buffers.
     Dense,
     /// A sparse LU analysed for this active set.
-    Sparse(SparseLu),
+    Sparse(Box<SparseLu>),
 }
 
 /// Rows touched by more elements than this keep their frozen sums in a [`SumTree`], so that a
