@@ -19,8 +19,12 @@
 //! * **The active system.** Newton factorises and solves `J_AA Δ_A = -F_A`: the columns of the
 //!   active unknowns and the equations they own. A node pinned by an ideal grounded source
 //!   (see [`crate::System`], "Pinned unknowns") trades equations with the source's current: the
-//!   current is solved from the node's KCL row, the node held by the source's row. The symbolic
-//!   analysis of `J_AA` is redone only when the active set changes.
+//!   current is solved from the node's KCL row, the node held by the source's row. In a ring
+//!   the active set changes at nearly every step (the edge moves), so `J_AA` of up to
+//!   [`DENSE_MAX`] unknowns is factorised dense with partial pivoting in buffers sized once
+//!   ([`DenseLu`]: no ordering, no symbolic analysis, no allocation); a larger one gets a
+//!   sparse LU whose symbolic analysis is redone when the active set changes. Either way a
+//!   singular `J_AA` is reported, and Newton then solves the whole system.
 //! * **Checking latent rows.** At every Newton iteration each latent unknown's equation is
 //!   evaluated at the held value (its frozen sum, the live elements touching it, the charge
 //!   history). The unknown wakes, and the iteration is assembled again with it active, when its
@@ -43,6 +47,13 @@
 //!   that wakes makes it a working row again. A row touched by more than [`WIDE`] elements
 //!   (a supply) keeps its frozen sums in a tree of fixed shape, so each refresh costs in
 //!   proportion to the active part, not to the circuit.
+//! * **Refreshes.** A refresh (after an accepted step that holds an unknown, or a wake)
+//!   examines only the rows whose working status can have changed: those of the elements that
+//!   froze or thawed and of the unknowns that changed, with their trades (each row counts its
+//!   live elements). The active list is merged from the changed unknowns (every unknown not
+//!   held is active) and the active system is rebuilt only when it changed. The lists live in
+//!   buffers kept by the partition, and Newton and the transient borrow them: after the
+//!   buffers have grown, refreshes and steps allocate nothing (a sparse active system aside).
 //!
 //! *Accuracy.* A step with latent unknowns is accepted only when every equation, latent or
 //! active, passes the residual test Newton applies to the full system: the accepted state is a
