@@ -473,6 +473,23 @@ impl System {
             }
         };
         sample(&x, &mut values);
+        // The probes of each unknown: a step with latency changes the working rows' unknowns
+        // only, so it samples their probes only (the others keep their values).
+        let mut probe_ptr = vec![0usize; n + 1];
+        for &u in idx.iter().flatten() {
+            probe_ptr[u + 1] += 1;
+        }
+        for u in 0..n {
+            probe_ptr[u + 1] += probe_ptr[u];
+        }
+        let mut probe_of = vec![0usize; probe_ptr[n]];
+        let mut fill = probe_ptr.clone();
+        for (k, u) in idx.iter().enumerate() {
+            if let Some(u) = *u {
+                probe_of[fill[u]] = k;
+                fill[u] += 1;
+            }
+        }
         out.first(0.0, &values);
 
         let tol_of = |k: usize, qa: f64, qb: f64, qref: &[f64]| -> f64 {
@@ -770,8 +787,18 @@ impl System {
             hist.push(t_new, &q_new, &x_new, work_u, work_k);
             rate_known = true;
             match work_u {
-                Some(list) => list.iter().for_each(|&u| x[u] = x_new[u]),
-                None => x.copy_from_slice(&x_new),
+                Some(list) => {
+                    for &u in list {
+                        x[u] = x_new[u];
+                        for &k in &probe_of[probe_ptr[u]..probe_ptr[u + 1]] {
+                            values[k] = x[u];
+                        }
+                    }
+                }
+                None => {
+                    x.copy_from_slice(&x_new);
+                    sample(&x, &mut values);
+                }
             }
             // Rows that became interior: their history is their present value, held (the
             // trapezoidal rule's stored rate, below tolerance when they were held, is
@@ -795,7 +822,6 @@ impl System {
             t = t_new;
             stats.accepted += 1;
             restart = false;
-            sample(&x, &mut values);
             out.push(t, &values);
             if let Some(obs) = observer.as_mut() {
                 if obs(t, &values) == Control::Stop {
