@@ -537,8 +537,48 @@ impl System {
         }
         let entered = self.build_work(&mut l, t);
         l.changed.clear();
+        #[cfg(test)]
+        self.check_partition(&l);
         self.latency = Some(l);
         entered
+    }
+
+    /// The incremental refresh against the definitions, recomputed from scratch (the engine's
+    /// own tests run it after every refresh): live elements and their counts per row, every
+    /// unknown not held active, every wanted row working, the working rows sorted.
+    #[cfg(test)]
+    fn check_partition(&self, l: &Latency) {
+        let live: Vec<u32> = (0..l.frozen.len() as u32)
+            .filter(|&e| !l.frozen[e as usize])
+            .collect();
+        assert_eq!(l.live, live, "live elements");
+        let mut count = vec![0u32; self.n];
+        for &e in &live {
+            let e = e as usize;
+            let local =
+                &self.layout.loc_map[self.layout.loc_start[e]..self.layout.loc_start[e + 1]];
+            for &g in local.iter().filter(|&&g| g != NONE) {
+                count[g] += 1;
+            }
+        }
+        assert_eq!(l.live_count, count, "live elements per row");
+        let active: Vec<usize> = (0..self.n).filter(|&u| !l.held[u]).collect();
+        assert_eq!(l.active, active, "active unknowns");
+        assert!(
+            l.work.windows(2).all(|w| w[0] < w[1]),
+            "working rows sorted"
+        );
+        for r in 0..self.n {
+            assert_eq!(
+                l.in_work[r],
+                l.work.binary_search(&r).is_ok(),
+                "row {r} flag"
+            );
+            let basic = |r: usize| count[r] > 0 || !l.held[r];
+            if basic(r) || basic(l.eq_row[r]) {
+                assert!(l.in_work[r], "wanted row {r} not working");
+            }
+        }
     }
 
     /// Freezes and thaws the elements of the changed unknowns (`l.changed`, sorted), storing a
