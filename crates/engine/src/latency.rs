@@ -51,7 +51,8 @@
 //!   examines only the rows whose working status can have changed: those of the elements that
 //!   froze or thawed and of the unknowns that changed, with their trades (each row counts its
 //!   live elements). The active list is merged from the changed unknowns (every unknown not
-//!   held is active) and the active system is rebuilt only when it changed. The lists live in
+//!   held is active) and the active system is rebuilt only when it changed (the engine's own
+//!   tests check the result against these definitions after every refresh). The lists live in
 //!   buffers kept by the partition, and Newton and the transient borrow them: after the
 //!   buffers have grown, refreshes and steps allocate nothing (a sparse active system aside).
 //!
