@@ -441,15 +441,41 @@ impl Monitor {
     fn step(&mut self, t: f64, outputs: &[f64]) -> bool {
         let (lo, hi) = ((0.5 - BAND) * self.vdd, (0.5 + BAND) * self.vdd);
         let dt = t - self.t;
-        let mut fastest = 0.0f64;
+        // A pass the compiler vectorises (in a long ring at most a few outputs switch at a
+        // step): the largest move, in independent lanes (the largest of them is the same
+        // number whatever the order), and whether any output switched.
+        const LANES: usize = 8;
+        let mut lanes = [0.0f64; LANES];
+        let mut any = false;
+        let mut chunks = outputs.chunks_exact(LANES).zip(
+            self.values
+                .chunks_exact_mut(LANES)
+                .zip(self.high.chunks_exact(LANES)),
+        );
+        for (v, (old, high)) in &mut chunks {
+            for k in 0..LANES {
+                lanes[k] = lanes[k].max((v[k] - old[k]).abs());
+                old[k] = v[k];
+                any |= if high[k] { v[k] < lo } else { v[k] > hi };
+            }
+        }
+        let tail = outputs.len() - outputs.len() % LANES;
+        let rest = outputs[tail..]
+            .iter()
+            .zip(&mut self.values[tail..])
+            .zip(&self.high[tail..]);
+        for ((&v, old), &high) in rest {
+            lanes[0] = lanes[0].max((v - *old).abs());
+            *old = v;
+            any |= if high { v < lo } else { v > hi };
+        }
+        let fastest = lanes.iter().fold(0.0f64, |m, &l| m.max(l));
         let nodes = outputs
             .iter()
-            .zip(&mut self.values)
             .zip(&mut self.high)
-            .zip(&mut self.first_switch);
-        for (((&v, old), high), first) in nodes {
-            fastest = fastest.max((v - *old).abs());
-            *old = v;
+            .zip(&mut self.first_switch)
+            .take(if any { outputs.len() } else { 0 });
+        for ((&v, high), first) in nodes {
             let switched = if *high { v < lo } else { v > hi };
             if switched {
                 *high = !*high;

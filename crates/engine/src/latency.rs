@@ -19,8 +19,12 @@
 //! * **The active system.** Newton factorises and solves `J_AA Δ_A = -F_A`: the columns of the
 //!   active unknowns and the equations they own. A node pinned by an ideal grounded source
 //!   (see [`crate::System`], "Pinned unknowns") trades equations with the source's current: the
-//!   current is solved from the node's KCL row, the node held by the source's row. The symbolic
-//!   analysis of `J_AA` is redone only when the active set changes.
+//!   current is solved from the node's KCL row, the node held by the source's row. In a ring
+//!   the active set changes at nearly every step (the edge moves), so `J_AA` of up to
+//!   [`DENSE_MAX`] unknowns is factorised dense with partial pivoting in buffers sized once
+//!   ([`DenseLu`]: no ordering, no symbolic analysis, no allocation); a larger one gets a
+//!   sparse LU whose symbolic analysis is redone when the active set changes. Either way a
+//!   singular `J_AA` is reported, and Newton then solves the whole system.
 //! * **Checking latent rows.** At every Newton iteration each latent unknown's equation is
 //!   evaluated at the held value (its frozen sum, the live elements touching it, the charge
 //!   history). The unknown wakes, and the iteration is assembled again with it active, when its
@@ -43,6 +47,14 @@
 //!   that wakes makes it a working row again. A row touched by more than [`WIDE`] elements
 //!   (a supply) keeps its frozen sums in a tree of fixed shape, so each refresh costs in
 //!   proportion to the active part, not to the circuit.
+//! * **Refreshes.** A refresh (after an accepted step that holds an unknown, or a wake)
+//!   examines only the rows whose working status can have changed: those of the elements that
+//!   froze or thawed and of the unknowns that changed, with their trades (each row counts its
+//!   live elements). The active list is merged from the changed unknowns (every unknown not
+//!   held is active) and the active system is rebuilt only when it changed (the engine's own
+//!   tests check the result against these definitions after every refresh). The lists live in
+//!   buffers kept by the partition, and Newton and the transient borrow them: after the
+//!   buffers have grown, refreshes and steps allocate nothing (a sparse active system aside).
 //!
 //! *Accuracy.* A step with latent unknowns is accepted only when every equation, latent or
 //! active, passes the residual test Newton applies to the full system: the accepted state is a
@@ -62,8 +74,8 @@
 //! states and residuals, taken in unknown and element order on one thread.
 
 use crate::element::{Analysis, EvalContext, UnknownKind};
-use crate::lu::{LuStrategy, Singular, SparseLu};
-use crate::system::{System, Tolerances, NONE, NONE32};
+use crate::lu::{DenseLu, LuStrategy, Singular, SparseLu};
+use crate::system::{System, Tolerances, NONE};
 use faer::sparse::SymbolicSparseColMat;
 use std::cmp::Reverse;
 use std::collections::BinaryHeap;
@@ -74,6 +86,9 @@ pub(crate) const QUIET_STEPS: u32 = 3;
 pub(crate) const HOLD_FRACTION: f64 = 0.01;
 /// Fraction of the Newton update tolerance within which a step counts as quiet.
 pub(crate) const QUIET_FRACTION: f64 = 0.01;
+/// Active systems of up to this many unknowns are factorised dense (see [`DenseLu`]); larger
+/// ones by the sparse solver, whose symbolic analysis is redone when the active set changes.
+pub(crate) const DENSE_MAX: usize = 48;
 
 /// The latent/active partition of one transient run, and the solver of the active system.
 pub(crate) struct Latency {
@@ -106,16 +121,29 @@ pub(crate) struct Latency {
     pub(crate) fz_q: Vec<f64>,
     pub(crate) fz_scale: Vec<f64>,
     pub(crate) fz_qscale: Vec<f64>,
-    /// Elements evaluated at each iteration, and their matrix slots.
+    /// Elements evaluated at each iteration, in element order.
     pub(crate) live: Vec<u32>,
-    pub(crate) live_slots: Vec<u32>,
-    /// The active unknowns, and the active system.
+    /// Per row: how many live elements have it as a local unknown.
+    live_count: Vec<u32>,
+    /// The active unknowns, and the active system: per entry of `J_AA` (column by column),
+    /// its slot in the system's matrix and its place in the dense matrix (dense path only).
     active: Vec<usize>,
     gather: Vec<usize>,
+    dense_at: Vec<u32>,
     values: Vec<f64>,
     rhs: Vec<f64>,
-    lu: Option<SparseLu>,
+    solver: ActiveSolver,
+    dense: DenseLu,
     strategy: LuStrategy,
+    /// Buffers kept between refreshes, so that a refresh allocates nothing once they have
+    /// grown: the next (or last) active list and working rows, the rows a refresh examines,
+    /// rows and elements touched by a refresh, one column of `J_AA`.
+    next_active: Vec<usize>,
+    next_work: Vec<usize>,
+    candidates: Vec<usize>,
+    dirty_rows: Vec<usize>,
+    flipped: Vec<u32>,
+    column: Vec<(usize, usize)>,
     /// Per working row: its largest current contribution at the last assembly; per working
     /// unknown: whether its row passed the hold test at the last check.
     fscale: Vec<f64>,
@@ -154,6 +182,11 @@ impl Latency {
         self.held[u] = false;
         self.quiet[u] = 0;
         self.changed.push(u);
+    }
+
+    /// The active unknowns, in order.
+    pub(crate) fn active(&self) -> &[usize] {
+        &self.active
     }
 
     /// Whether any unknown is held.
@@ -205,6 +238,8 @@ impl System {
                 (d > WIDE).then(|| SumTree::new(d))
             })
             .collect();
+        // Nothing is frozen yet: every element touching a row is live.
+        let live_count = (0..n).map(|r| (count[r + 1] - count[r]) as u32).collect();
         self.latency = Some(Latency {
             on: true,
             held: vec![false; n],
@@ -230,13 +265,21 @@ impl System {
             fz_scale: vec![0.0; n],
             fz_qscale: vec![0.0; n],
             live: Vec::new(),
-            live_slots: Vec::new(),
+            live_count,
             active: Vec::new(),
             gather: Vec::new(),
+            dense_at: Vec::new(),
             values: Vec::new(),
             rhs: Vec::new(),
-            lu: None,
+            solver: ActiveSolver::None,
+            dense: DenseLu::new(DENSE_MAX),
             strategy,
+            next_active: Vec::new(),
+            next_work: Vec::new(),
+            candidates: Vec::new(),
+            dirty_rows: Vec::new(),
+            flipped: Vec::new(),
+            column: Vec::new(),
             fscale: vec![0.0; n],
             holdable: vec![false; n],
             changed: (0..n).collect(),
@@ -268,13 +311,6 @@ impl System {
     /// unknowns.
     pub(crate) fn latency_on(&self) -> bool {
         self.latency.as_ref().is_some_and(|l| l.on)
-    }
-
-    /// The active unknowns, in order.
-    pub(crate) fn latency_active(&self) -> Vec<usize> {
-        self.latency
-            .as_ref()
-            .map_or_else(Vec::new, |l| l.active.clone())
     }
 
     /// Sets the latent unknowns of the predicted state to their held values.
@@ -413,26 +449,45 @@ impl System {
         }
     }
 
-    /// The working rows of the partition (empty without one).
-    pub(crate) fn latency_rows(&self) -> Vec<usize> {
-        self.latency
-            .as_ref()
-            .map_or_else(Vec::new, |l| l.work.clone())
+    /// Runs `f` with the active unknowns and the working rows of the partition lent out of it
+    /// (both `None` unless `latent`): the Newton loop's passes over them borrow the lists
+    /// instead of copying them. `f` must not use the partition itself.
+    pub(crate) fn with_latency_lists<R>(
+        &mut self,
+        latent: bool,
+        f: impl FnOnce(&mut Self, Option<&[usize]>, Option<&[usize]>) -> R,
+    ) -> R {
+        let lent = self
+            .latency
+            .as_mut()
+            .filter(|_| latent)
+            .map(|l| (std::mem::take(&mut l.active), std::mem::take(&mut l.work)));
+        let out = match &lent {
+            Some((active, work)) => f(self, Some(active), Some(work)),
+            None => f(self, None, None),
+        };
+        if let (Some((active, work)), Some(l)) = (lent, self.latency.as_mut()) {
+            l.active = active;
+            l.work = work;
+        }
+        out
     }
 
     /// The working rows and their indices among the charge rows, when latency is on.
-    pub(crate) fn latency_work(&self) -> Option<(Vec<usize>, Vec<usize>)> {
+    pub(crate) fn latency_work(&self) -> Option<(&[usize], &[usize])> {
         self.latency
             .as_ref()
             .filter(|l| l.on)
-            .map(|l| (l.work.clone(), l.work_k.clone()))
+            .map(|l| (l.work.as_slice(), l.work_k.as_slice()))
     }
 
-    /// The rows that became interior since the last call.
-    pub(crate) fn latency_take_left(&mut self) -> Vec<usize> {
-        self.latency
-            .as_mut()
-            .map_or_else(Vec::new, |l| std::mem::take(&mut l.left))
+    /// Puts the rows that became interior since the last call into `rows` (emptied first).
+    pub(crate) fn latency_take_left(&mut self, rows: &mut Vec<usize>) {
+        rows.clear();
+        if let Some(l) = self.latency.as_mut() {
+            // Swapped, so both lists keep their room.
+            std::mem::swap(&mut l.left, rows);
+        }
     }
 
     /// Wakes the interior rows whose missed charge reaches its bound by `t_new` (the state
@@ -462,7 +517,8 @@ impl System {
 
     /// Brings the frozen elements, the frozen sums, the live elements and the active system up
     /// to date with the held set, evaluating newly frozen elements at `x` (time `t`).
-    /// Returns whether a row joined the working rows.
+    /// Returns whether a row joined the working rows. Allocates nothing once the partition's
+    /// buffers have grown (a newly built sparse active system aside).
     pub(crate) fn latency_refresh(&mut self, x: &[f64], t: f64) -> bool {
         let Some(mut l) = self.latency.take() else {
             return false;
@@ -472,12 +528,68 @@ impl System {
             source_scale: 1.0,
             analysis: Analysis::Transient,
         };
-        let mut dirty_rows = Vec::new();
-        let mut flipped: Vec<u32> = Vec::new();
-        let mut changed = std::mem::take(&mut l.changed);
-        changed.sort_unstable();
-        changed.dedup();
-        for &u in &changed {
+        l.changed.sort_unstable();
+        l.changed.dedup();
+        self.refreeze(&mut l, x, &ctx);
+        self.resum(&mut l);
+        relive(&mut l);
+        if reactivate(&mut l) {
+            self.build_active(&mut l);
+        }
+        let entered = self.build_work(&mut l, t);
+        l.changed.clear();
+        #[cfg(test)]
+        self.check_partition(&l);
+        self.latency = Some(l);
+        entered
+    }
+
+    /// The incremental refresh against the definitions, recomputed from scratch (the engine's
+    /// own tests run it after every refresh): live elements and their counts per row, every
+    /// unknown not held active, every wanted row working, the working rows sorted.
+    #[cfg(test)]
+    fn check_partition(&self, l: &Latency) {
+        let live: Vec<u32> = (0..l.frozen.len() as u32)
+            .filter(|&e| !l.frozen[e as usize])
+            .collect();
+        assert_eq!(l.live, live, "live elements");
+        let mut count = vec![0u32; self.n];
+        for &e in &live {
+            let e = e as usize;
+            let local =
+                &self.layout.loc_map[self.layout.loc_start[e]..self.layout.loc_start[e + 1]];
+            for &g in local.iter().filter(|&&g| g != NONE) {
+                count[g] += 1;
+            }
+        }
+        assert_eq!(l.live_count, count, "live elements per row");
+        let active: Vec<usize> = (0..self.n).filter(|&u| !l.held[u]).collect();
+        assert_eq!(l.active, active, "active unknowns");
+        assert!(
+            l.work.windows(2).all(|w| w[0] < w[1]),
+            "working rows sorted"
+        );
+        for r in 0..self.n {
+            assert_eq!(
+                l.in_work[r],
+                l.work.binary_search(&r).is_ok(),
+                "row {r} flag"
+            );
+            let basic = |r: usize| count[r] > 0 || !l.held[r];
+            if basic(r) || basic(l.eq_row[r]) {
+                assert!(l.in_work[r], "wanted row {r} not working");
+            }
+        }
+    }
+
+    /// Freezes and thaws the elements of the changed unknowns (`l.changed`, sorted), storing a
+    /// newly frozen element's evaluation at `x`; lists the flipped elements and the rows they
+    /// touch (`l.flipped`, `l.dirty_rows`) and updates the wide rows' trees.
+    fn refreeze(&self, l: &mut Latency, x: &[f64], ctx: &EvalContext) {
+        l.dirty_rows.clear();
+        l.flipped.clear();
+        for c in 0..l.changed.len() {
+            let u = l.changed[c];
             for a in l.adj_ptr[u]..l.adj_ptr[u + 1] {
                 let e = l.adj[a].0 as usize;
                 let (lo, hi) = (self.layout.loc_start[e], self.layout.loc_start[e + 1]);
@@ -487,9 +599,16 @@ impl System {
                     continue;
                 }
                 l.frozen[e] = want;
-                flipped.push(e as u32);
+                l.flipped.push(e as u32);
+                for &g in local.iter().filter(|&&g| g != NONE) {
+                    if want {
+                        l.live_count[g] -= 1;
+                    } else {
+                        l.live_count[g] += 1;
+                    }
+                }
                 if want {
-                    self.evaluate_into(e, x, &ctx, &mut l.st_f, &mut l.st_q);
+                    self.evaluate_into(e, x, ctx, &mut l.st_f, &mut l.st_q);
                 }
                 let plan = &self.layout.plan[e];
                 for (k, &g) in local.iter().enumerate() {
@@ -510,12 +629,17 @@ impl System {
                         tree.set(pos, leaf);
                     }
                 }
-                dirty_rows.extend(local.iter().copied().filter(|&g| g != NONE));
+                l.dirty_rows
+                    .extend(local.iter().copied().filter(|&g| g != NONE));
             }
         }
-        dirty_rows.sort_unstable();
-        dirty_rows.dedup();
-        for &r in &dirty_rows {
+    }
+
+    /// Recomputes the frozen sums of the rows a flip touched, in element order.
+    fn resum(&self, l: &mut Latency) {
+        l.dirty_rows.sort_unstable();
+        l.dirty_rows.dedup();
+        for &r in &l.dirty_rows {
             if let Some(tree) = &l.trees[r] {
                 [l.fz_f[r], l.fz_q[r], l.fz_scale[r], l.fz_qscale[r]] = tree.total();
                 continue;
@@ -539,106 +663,70 @@ impl System {
             l.fz_scale[r] = sf;
             l.fz_qscale[r] = sq;
         }
-        // The live elements in element order: edited in place when few changed (the cost of
-        // a refresh then follows the active part, not the circuit).
-        flipped.sort_unstable();
-        flipped.dedup();
-        if l.live.is_empty() || flipped.len().saturating_mul(l.live.len()) > l.frozen.len() {
-            l.live = (0..l.frozen.len() as u32)
-                .filter(|&e| !l.frozen[e as usize])
-                .collect();
-        } else {
-            for &e in &flipped {
-                match (l.live.binary_search(&e), l.frozen[e as usize]) {
-                    (Ok(k), true) => {
-                        l.live.remove(k);
-                    }
-                    (Err(k), false) => l.live.insert(k, e),
-                    _ => {}
-                }
-            }
-        }
-        l.live_slots.clear();
-        for &e in &l.live {
-            let plan = &self.layout.plan[e as usize];
-            let nl = plan.local as usize;
-            let slots = &self.layout.slots32[plan.slot as usize..][..nl * nl];
-            l.live_slots
-                .extend(slots.iter().copied().filter(|&s| s != NONE32));
-        }
-        // Every active unknown is a working row or was just woken.
-        let mut active: Vec<usize> = l.work.iter().chain(&changed).copied().collect();
-        active.sort_unstable();
-        active.dedup();
-        active.retain(|&u| !l.held[u]);
-        self.build_active(&mut l, active);
-        let entered = self.build_work(&mut l, t);
-        self.latency = Some(l);
-        entered
     }
 
-    /// The working rows after a refresh (see [`Latency::work`]); a row about to become
-    /// interior must pass the residual test on its frozen current, or it stays. Returns
-    /// whether a row joined.
+    /// The working rows after a refresh (see [`Latency::work`]): a row is wanted when a live
+    /// element touches it or its unknown is active, or either holds for the row it trades
+    /// with. A row about to become interior must pass the residual test on its frozen
+    /// current, or it stays. Only the rows whose answer can have changed are examined: those
+    /// of the flipped elements (their live counts and frozen sums changed) and of the changed
+    /// unknowns, with their trades; a row kept before is kept again unless it is one of them.
+    /// Returns whether a row joined.
     fn build_work(&self, l: &mut Latency, t: f64) -> bool {
-        let mut want: Vec<usize> = Vec::with_capacity(l.work.len());
-        for &e in &l.live {
+        l.candidates.clear();
+        for &e in &l.flipped {
             let e = e as usize;
             let local =
                 &self.layout.loc_map[self.layout.loc_start[e]..self.layout.loc_start[e + 1]];
-            want.extend(local.iter().copied().filter(|&g| g != NONE));
+            l.candidates
+                .extend(local.iter().copied().filter(|&g| g != NONE));
         }
-        want.extend_from_slice(&l.active);
-        let traded: Vec<usize> = want.iter().map(|&r| l.eq_row[r]).collect();
-        want.extend(traded);
-        want.sort_unstable();
-        want.dedup();
+        l.candidates.extend_from_slice(&l.changed);
+        for i in 0..l.candidates.len() {
+            l.candidates.push(l.eq_row[l.candidates[i]]);
+        }
+        if l.candidates.is_empty() {
+            return false;
+        }
+        l.candidates.sort_unstable();
+        l.candidates.dedup();
         let tol = l.tol;
+        let basic = |l: &Latency, r: usize| l.live_count[r] > 0 || !l.held[r];
         let mut entered = false;
-        // Rows leaving: in the old working rows and not wanted (both lists are sorted).
-        let mut kept = Vec::new();
-        let mut k = 0;
-        for &r in &l.work {
-            while k < want.len() && want[k] < r {
-                k += 1;
-            }
-            if k < want.len() && want[k] == r {
-                continue;
-            }
+        let mut moved = false;
+        for c in 0..l.candidates.len() {
+            let r = l.candidates[c];
             let u = l.eq_row[r];
-            let f = l.fz_f[r];
-            let abs = match self.kinds[r] {
-                UnknownKind::Voltage => tol.abstol,
-                UnknownKind::Current => tol.vntol,
-            };
-            // Interior only within the same fraction of the tolerance a held row must keep.
-            if !(l.held[u] && f.abs() <= HOLD_FRACTION * (tol.reltol * l.fz_scale[r] + abs)) {
-                kept.push(r);
-                continue;
-            }
-            l.in_work[r] = false;
-            l.left.push(r);
-            l.leave_t[u] = t;
-            l.leave_f[u] = f;
-            let room = l.qtol[u] - l.missed[u];
-            if f != 0.0 && room.is_finite() {
-                let when = t + room.max(0.0) / f.abs();
-                l.deadline[u] = when;
-                l.deadlines.push(Reverse((when.to_bits(), u)));
-            }
-        }
-        if !kept.is_empty() {
-            want.extend(kept);
-            want.sort_unstable();
-        }
-        for &r in &want {
-            if !l.in_work[r] {
+            let want = basic(l, r) || basic(l, u);
+            if want && !l.in_work[r] {
                 l.in_work[r] = true;
                 entered = true;
+                moved = true;
                 // The charge it missed while interior.
-                let u = l.eq_row[r];
                 l.missed[u] += l.leave_f[u].abs() * (t - l.leave_t[u]);
                 l.deadline[u] = f64::INFINITY;
+            } else if !want && l.in_work[r] {
+                let f = l.fz_f[r];
+                let abs = match self.kinds[r] {
+                    UnknownKind::Voltage => tol.abstol,
+                    UnknownKind::Current => tol.vntol,
+                };
+                // Interior only within the same fraction of the tolerance a held row must
+                // keep.
+                if !(l.held[u] && f.abs() <= HOLD_FRACTION * (tol.reltol * l.fz_scale[r] + abs)) {
+                    continue;
+                }
+                l.in_work[r] = false;
+                moved = true;
+                l.left.push(r);
+                l.leave_t[u] = t;
+                l.leave_f[u] = f;
+                let room = l.qtol[u] - l.missed[u];
+                if f != 0.0 && room.is_finite() {
+                    let when = t + room.max(0.0) / f.abs();
+                    l.deadline[u] = when;
+                    l.deadlines.push(Reverse((when.to_bits(), u)));
+                }
             }
         }
         // Entries of rows that came back since are dropped once they outnumber the rows.
@@ -647,62 +735,105 @@ impl System {
             l.deadlines
                 .retain(|&Reverse((bits, u))| deadline[u] == f64::from_bits(bits));
         }
-        l.work = want;
-        l.work_k = l
-            .work
-            .iter()
-            .map(|&r| l.charge_k[r])
-            .filter(|&k| k != NONE)
-            .collect();
+        if moved {
+            // The old working rows still in, merged with the candidates that joined (both
+            // sorted).
+            let mut next = std::mem::take(&mut l.next_work);
+            next.clear();
+            let mut joined = l
+                .candidates
+                .iter()
+                .copied()
+                .filter(|&r| l.in_work[r])
+                .peekable();
+            for &r in &l.work {
+                while let Some(j) = joined.next_if(|&j| j < r) {
+                    next.push(j);
+                }
+                if joined.peek() == Some(&r) {
+                    joined.next();
+                }
+                if l.in_work[r] {
+                    next.push(r);
+                }
+            }
+            next.extend(joined);
+            l.next_work = std::mem::replace(&mut l.work, next);
+            l.work_k.clear();
+            let charge_k = &l.charge_k;
+            l.work_k
+                .extend(l.work.iter().map(|&r| charge_k[r]).filter(|&k| k != NONE));
+        }
         entered
     }
 
-    /// The active unknowns, the pattern of `J_AA` and its LU.
-    fn build_active(&self, l: &mut Latency, active: Vec<usize>) {
-        for &u in &l.active {
+    /// The active unknowns, the pattern of `J_AA` and its solver: dense up to [`DENSE_MAX`]
+    /// unknowns, sparse (a fresh symbolic analysis) beyond.
+    fn build_active(&self, l: &mut Latency) {
+        for &u in &l.next_active {
             l.pos[l.eq_row[u]] = NONE;
         }
-        l.active = active;
         for (k, &u) in l.active.iter().enumerate() {
             l.pos[l.eq_row[u]] = k;
         }
+        let m = l.active.len();
+        let dense = m <= l.dense.capacity();
         let col_ptr = self.pattern.col_ptr();
         let row_idx = self.pattern.row_idx();
-        let mut ptr = vec![0usize];
+        // The sparse pattern is handed to the solver, which keeps it: built only for it.
+        let mut ptr = Vec::new();
         let mut rows = Vec::new();
+        if !dense {
+            ptr.push(0usize);
+        }
         l.gather.clear();
-        let mut column: Vec<(usize, usize)> = Vec::new();
-        for &c in &l.active {
-            column.clear();
+        l.dense_at.clear();
+        for (j, &c) in l.active.iter().enumerate() {
+            l.column.clear();
             let range = col_ptr[c]..col_ptr[c + 1];
             for (s, &r) in range.clone().zip(&row_idx[range]) {
                 let k = l.pos[r];
                 if k != NONE {
-                    column.push((k, s));
+                    l.column.push((k, s));
                 }
             }
-            column.sort_unstable();
-            for &(k, s) in &column {
-                rows.push(k);
-                l.gather.push(s);
+            // The sparse pattern lists rows in order; the dense matrix takes them as they come.
+            if !dense {
+                l.column.sort_unstable();
             }
-            ptr.push(rows.len());
+            for &(k, s) in &l.column {
+                l.gather.push(s);
+                if dense {
+                    l.dense_at.push((j * m + k) as u32);
+                } else {
+                    rows.push(k);
+                }
+            }
+            if !dense {
+                ptr.push(rows.len());
+            }
         }
-        let m = l.active.len();
-        l.values = vec![0.0; l.gather.len()];
-        l.rhs = vec![0.0; m];
+        l.values.clear();
+        l.values.resize(l.gather.len(), 0.0);
+        l.rhs.clear();
+        l.rhs.resize(m, 0.0);
         // Everything active: the system's own solver (analysed once, pinned unknowns taken
         // out) solves the same equations.
-        l.lu = if m == 0 || m == self.n {
-            None
+        l.solver = if m == 0 || m == self.n {
+            ActiveSolver::None
+        } else if dense {
+            ActiveSolver::Dense
         } else {
             let pattern = SymbolicSparseColMat::new_checked(m, m, ptr, None, rows);
-            SparseLu::new(pattern, l.strategy).ok()
+            SparseLu::new(pattern, l.strategy)
+                .map_or(ActiveSolver::None, |lu| ActiveSolver::Sparse(Box::new(lu)))
         };
     }
 
     /// Factorises `J_AA` from the last assembly and solves it for the active unknowns' update;
-    /// latent unknowns get none. `v` holds `-F` by row on entry and `Δ` by unknown on return.
+    /// latent unknowns get none. `v` holds `-F` by row on entry; on return it holds `Δ` for
+    /// the active unknowns and zero for the other unknowns of working rows (the entries of
+    /// interior rows are left as they were: nothing reads them).
     pub(crate) fn solve_active(&mut self, v: &mut [f64]) -> Result<(), Singular> {
         if self
             .latency
@@ -714,33 +845,106 @@ impl System {
         let Some(l) = self.latency.as_mut() else {
             return Err(Singular { unknown: 0 });
         };
-        for (value, &s) in l.values.iter_mut().zip(&l.gather) {
-            *value = self.jac[s];
-        }
         for (r, &u) in l.rhs.iter_mut().zip(&l.active) {
             *r = v[l.eq_row[u]];
         }
-        v.fill(0.0);
-        let Some(lu) = l.lu.as_mut() else {
-            return if l.active.is_empty() {
-                Ok(())
-            } else {
-                Err(Singular {
-                    unknown: l.active[0],
-                })
-            };
-        };
+        // Working rows are closed under the row trade, so they cover every row read above.
+        for &r in &l.work {
+            v[r] = 0.0;
+        }
         let active = &l.active;
         let back = |e: Singular| Singular {
             unknown: active[e.unknown.min(active.len() - 1)],
         };
-        lu.factor(&l.values).map_err(back)?;
-        lu.solve(&mut l.rhs).map_err(back)?;
+        match &mut l.solver {
+            ActiveSolver::None if active.is_empty() => return Ok(()),
+            ActiveSolver::None => return Err(Singular { unknown: active[0] }),
+            ActiveSolver::Dense => {
+                let a = l.dense.matrix_mut(active.len());
+                for (&at, &s) in l.dense_at.iter().zip(&l.gather) {
+                    a[at as usize] = self.jac[s];
+                }
+                l.dense.factor().map_err(back)?;
+                l.dense.solve(&mut l.rhs);
+            }
+            ActiveSolver::Sparse(lu) => {
+                for (value, &s) in l.values.iter_mut().zip(&l.gather) {
+                    *value = self.jac[s];
+                }
+                lu.factor(&l.values).map_err(back)?;
+                lu.solve(&mut l.rhs).map_err(back)?;
+            }
+        }
         for (&r, &u) in l.rhs.iter().zip(active) {
             v[u] = r;
         }
         Ok(())
     }
+}
+
+/// The live elements in element order after the flips of a refresh (`l.flipped`): edited in
+/// place when few flipped (the cost of a refresh then follows the active part, not the
+/// circuit).
+fn relive(l: &mut Latency) {
+    l.flipped.sort_unstable();
+    l.flipped.dedup();
+    if l.live.is_empty() || l.flipped.len().saturating_mul(l.live.len()) > l.frozen.len() {
+        l.live.clear();
+        let frozen = &l.frozen;
+        l.live
+            .extend((0..frozen.len() as u32).filter(|&e| !frozen[e as usize]));
+    } else {
+        for &e in &l.flipped {
+            match (l.live.binary_search(&e), l.frozen[e as usize]) {
+                (Ok(k), true) => {
+                    l.live.remove(k);
+                }
+                (Err(k), false) => l.live.insert(k, e),
+                _ => {}
+            }
+        }
+    }
+}
+
+/// The active unknowns after the changes of a refresh (`l.changed`, sorted): every unknown
+/// not held is active (one stops being held only by [`Latency::release`], which lists it as
+/// changed), so the old list is merged with the changed unknowns. The old list goes to
+/// `l.next_active`. Returns whether the list changed.
+fn reactivate(l: &mut Latency) -> bool {
+    let mut next = std::mem::take(&mut l.next_active);
+    next.clear();
+    let mut changed = l.changed.iter().copied().peekable();
+    for &u in &l.active {
+        while let Some(c) = changed.next_if(|&c| c < u) {
+            if !l.held[c] {
+                next.push(c);
+            }
+        }
+        if changed.peek() == Some(&u) {
+            changed.next();
+        }
+        if !l.held[u] {
+            next.push(u);
+        }
+    }
+    next.extend(changed.filter(|&c| !l.held[c]));
+    if next == l.active {
+        l.next_active = next;
+        return false;
+    }
+    l.next_active = std::mem::replace(&mut l.active, next);
+    true
+}
+
+/// How the active system is solved.
+enum ActiveSolver {
+    /// Nothing active; everything active (the system's own solver); or the sparse symbolic
+    /// analysis failed (reported as singular, so the caller falls back to the whole system).
+    None,
+    /// [`DenseLu`] in the partition's buffers.
+    Dense,
+    /// A sparse LU analysed for this active set.
+    Sparse(Box<SparseLu>),
 }
 
 /// Rows touched by more elements than this keep their frozen sums in a [`SumTree`], so that a

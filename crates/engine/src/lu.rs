@@ -390,6 +390,139 @@ impl SparseLu {
     }
 }
 
+/// Dense LU with partial pivoting for the small systems of the latency partition's active
+/// unknowns (`crate::latency`): no ordering, no symbolic analysis and no allocation per
+/// factorisation, in buffers sized once for [`DenseLu::capacity`] unknowns.
+///
+/// Column-major; row elimination skips zero multipliers and zero pivot-row entries, so a
+/// banded matrix (a ring's stages in order) costs about `n` times its band squared rather than
+/// `n³/3`. A pivot that is zero, not finite, or at most [`SINGULAR_RATIO`] times its column's
+/// largest entry of `A` means the matrix is numerically singular (the test of the sparse
+/// fixed-pivot path); the error names the column.
+pub struct DenseLu {
+    n: usize,
+    cap: usize,
+    /// `A` on entry (by [`DenseLu::matrix_mut`]), `L` (unit, below) and `U` after factoring.
+    a: Vec<f64>,
+    /// Row `i` of the factors is row `perm[i]` of `A`.
+    perm: Vec<usize>,
+    work: Vec<f64>,
+}
+
+impl DenseLu {
+    /// Buffers for systems of up to `cap` unknowns.
+    pub fn new(cap: usize) -> Self {
+        DenseLu {
+            n: 0,
+            cap,
+            a: vec![0.0; cap * cap],
+            perm: vec![0; cap],
+            work: vec![0.0; cap],
+        }
+    }
+
+    /// The largest system it takes.
+    pub fn capacity(&self) -> usize {
+        self.cap
+    }
+
+    /// The matrix of the next factorisation, `n × n` column-major, zeroed (`n` at most the
+    /// capacity).
+    pub fn matrix_mut(&mut self, n: usize) -> &mut [f64] {
+        assert!(
+            n <= self.cap,
+            "dense LU of {n} unknowns beyond its capacity"
+        );
+        self.n = n;
+        let a = &mut self.a[..n * n];
+        a.fill(0.0);
+        a
+    }
+
+    /// Factorises the matrix last set by [`DenseLu::matrix_mut`] in place.
+    pub fn factor(&mut self) -> Result<(), Singular> {
+        let n = self.n;
+        let a = &mut self.a[..n * n];
+        let amax = &mut self.work[..n];
+        for (j, m) in amax.iter_mut().enumerate() {
+            *m = a[j * n..(j + 1) * n]
+                .iter()
+                .fold(0.0f64, |m, v| m.max(v.abs()));
+        }
+        for (i, p) in self.perm[..n].iter_mut().enumerate() {
+            *p = i;
+        }
+        for k in 0..n {
+            // Partial pivoting: the largest entry of column k at or below the diagonal (the
+            // first of equals, so the choice is deterministic).
+            let col = &a[k * n..(k + 1) * n];
+            let (mut p, mut best) = (k, col[k].abs());
+            for (i, v) in col.iter().enumerate().skip(k + 1) {
+                if v.abs() > best {
+                    (p, best) = (i, v.abs());
+                }
+            }
+            if !best.is_finite() || best == 0.0 || best <= SINGULAR_RATIO * amax[k] {
+                return Err(Singular { unknown: k });
+            }
+            if p != k {
+                for j in 0..n {
+                    a.swap(j * n + k, j * n + p);
+                }
+                self.perm.swap(k, p);
+            }
+            let inv = 1.0 / a[k * n + k];
+            for v in &mut a[k * n + k + 1..(k + 1) * n] {
+                *v *= inv;
+            }
+            let (left, right) = a.split_at_mut((k + 1) * n);
+            // Rows below the last nonzero multiplier are untouched.
+            let l = &left[k * n + k + 1..];
+            let len = l.iter().rposition(|&m| m != 0.0).map_or(0, |i| i + 1);
+            if len == 0 {
+                continue;
+            }
+            for column in right.chunks_exact_mut(n) {
+                let u = column[k];
+                if u != 0.0 {
+                    for (x, &m) in column[k + 1..k + 1 + len].iter_mut().zip(&l[..len]) {
+                        *x -= m * u;
+                    }
+                }
+            }
+        }
+        Ok(())
+    }
+
+    /// Solves `A x = rhs` in place with the last factorisation.
+    pub fn solve(&mut self, rhs: &mut [f64]) {
+        let n = self.n;
+        let a = &self.a[..n * n];
+        let y = &mut self.work[..n];
+        for (yi, &p) in y.iter_mut().zip(&self.perm[..n]) {
+            *yi = rhs[p];
+        }
+        for j in 0..n {
+            let yj = y[j];
+            if yj != 0.0 {
+                for (yi, &m) in y[j + 1..].iter_mut().zip(&a[j * n + j + 1..(j + 1) * n]) {
+                    *yi -= m * yj;
+                }
+            }
+        }
+        for j in (0..n).rev() {
+            let yj = y[j] / a[j * n + j];
+            y[j] = yj;
+            if yj != 0.0 {
+                for (yi, &u) in y[..j].iter_mut().zip(&a[j * n..j * n + j]) {
+                    *yi -= u * yj;
+                }
+            }
+        }
+        rhs[..n].copy_from_slice(y);
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -465,6 +598,54 @@ mod tests {
                 assert_eq!(lu.stats().fixed_refactorizations, 2);
             }
         }
+    }
+
+    /// The dense path on the same cyclic system with a zero diagonal (it must pivot), sizes
+    /// 1 to 9, against the product; then a matrix of a smaller size in the same buffers.
+    #[test]
+    fn dense_lu_solves_a_cyclic_system_with_a_zero_diagonal() {
+        let mut lu = DenseLu::new(9);
+        for n in (1..=9).chain([3]) {
+            let mut entries = Vec::new();
+            for i in 0..n {
+                // Row i: a zero diagonal on the first row, off-diagonals around the cycle.
+                entries.push((i, i, if i == 0 { 0.0 } else { 2.0 + i as f64 }));
+                if n > 1 {
+                    entries.push((i, (i + 1) % n, -1.5));
+                    entries.push((i, (i + n - 1) % n, 0.25 * i as f64 + 1.0));
+                }
+            }
+            if n == 1 {
+                entries[0].2 = 3.0;
+            }
+            let a = lu.matrix_mut(n);
+            for &(r, c, v) in &entries {
+                a[c * n + r] += v;
+            }
+            lu.factor().unwrap();
+            let b: Vec<f64> = (0..n).map(|i| (i as f64 * 0.7).sin() + 0.3).collect();
+            let mut x = b.clone();
+            lu.solve(&mut x);
+            let mut ax = vec![0.0; n];
+            for &(r, c, v) in &entries {
+                ax[r] += v * x[c];
+            }
+            for i in 0..n {
+                assert!((ax[i] - b[i]).abs() < 1e-12, "size {n} row {i}");
+            }
+        }
+    }
+
+    #[test]
+    fn dense_lu_reports_a_dependent_column_and_an_infinite_entry() {
+        let mut lu = DenseLu::new(4);
+        // Column 2 is column 0 plus column 1.
+        let a = lu.matrix_mut(3);
+        a.copy_from_slice(&[1.0, 2.0, 0.5, 0.0, 1.0, 3.0, 1.0, 3.0, 3.5]);
+        assert_eq!(lu.factor(), Err(Singular { unknown: 2 }));
+        let a = lu.matrix_mut(2);
+        a.copy_from_slice(&[f64::INFINITY, 1.0, 0.0, 1.0]);
+        assert_eq!(lu.factor(), Err(Singular { unknown: 0 }));
     }
 
     #[test]

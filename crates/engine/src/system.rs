@@ -991,9 +991,17 @@ impl System {
             ..
         } = self;
         if let Some(l) = latency {
-            for &s in &l.live_slots {
-                jac[s as usize] = 0.0;
-                cmat[s as usize] = 0.0;
+            // Every live element's slots are cleared before any is scattered (elements share
+            // slots).
+            for &e in &l.live {
+                let plan = &layout.plan[e as usize];
+                let nl = plan.local as usize;
+                for &s in &layout.slots32[plan.slot as usize..][..nl * nl] {
+                    if s != NONE32 {
+                        jac[s as usize] = 0.0;
+                        cmat[s as usize] = 0.0;
+                    }
+                }
             }
             for &r in &l.work {
                 f[r] = l.fz_f[r];
@@ -1086,13 +1094,24 @@ impl System {
         let plan = &self.layout.plan[e];
         let nl = plan.local as usize;
         let lo = plan.map as usize;
-        let mut xs = vec![0.0; nl];
-        gather(&self.layout.map32[lo..lo + nl], x, &mut xs);
         let (fs, qs) = (&mut f[lo..lo + nl], &mut q[lo..lo + nl]);
         fs.fill(0.0);
         qs.fill(0.0);
-        let (mut df, mut dq) = (vec![0.0; nl * nl], vec![0.0; nl * nl]);
-        self.elements[e].evaluate(&xs, ctx, &mut Stamp::new(fs, qs, &mut df, &mut dq));
+        let map = &self.layout.map32[lo..lo + nl];
+        // Small elements on the stack: the latency partition freezes elements at every
+        // refresh, and hot loops allocate nothing.
+        if nl <= SMALL {
+            let (mut xs, mut df, mut dq) =
+                ([0.0; SMALL], [0.0; SMALL * SMALL], [0.0; SMALL * SMALL]);
+            gather(map, x, &mut xs[..nl]);
+            let stamp = &mut Stamp::new(fs, qs, &mut df[..nl * nl], &mut dq[..nl * nl]);
+            self.elements[e].evaluate(&xs[..nl], ctx, stamp);
+        } else {
+            let mut xs = vec![0.0; nl];
+            gather(map, x, &mut xs);
+            let (mut df, mut dq) = (vec![0.0; nl * nl], vec![0.0; nl * nl]);
+            self.elements[e].evaluate(&xs, ctx, &mut Stamp::new(fs, qs, &mut df, &mut dq));
+        }
     }
 
     /// The nodes held by ideal grounded sources and those sources' currents (see "Pinned
@@ -1215,8 +1234,8 @@ impl System {
                 if latent {
                     self.latency_keep_scale();
                 }
-                let rows = latent.then(|| self.latency_rows());
-                let worst = self.residual_of(x, load, &tol, rows.as_deref());
+                let worst = self
+                    .with_latency_lists(latent, |s, _, rows| s.residual_of(x, load, &tol, rows));
                 if !(latent && self.latency_check(load.a0, &tol)) {
                     break worst;
                 }
@@ -1232,9 +1251,6 @@ impl System {
                 return Err(NewtonFailure::NotANumber { unknown: worst_row });
             }
             let mut delta = std::mem::take(&mut self.rhs);
-            // Latent unknowns have no update: the loops over unknowns visit the active ones.
-            let active = latent.then(|| self.latency_active());
-            let active = active.as_deref();
             let solved = if latent {
                 let solved = self.solve_active(&mut delta);
                 if solved.is_err() && self.latency.as_ref().is_some_and(|l| l.any_held()) {
@@ -1250,6 +1266,12 @@ impl System {
             } else {
                 self.solve_update(&mut delta)
             };
+            // Latent unknowns have no update: the loops over unknowns visit the active ones.
+            let active = self
+                .latency
+                .as_ref()
+                .filter(|_| latent)
+                .map(Latency::active);
             let bad = match active {
                 Some(list) => list.iter().copied().find(|&i| !delta[i].is_finite()),
                 None => delta.iter().position(|d| !d.is_finite()),
@@ -1300,8 +1322,9 @@ impl System {
                 // so unknowns and charges agree to O(Δ²) without another evaluation.
                 each(active, n, |i| x[i] += delta[i]);
                 if load.a0 != 0.0 {
-                    let rows = latent.then(|| self.latency_rows());
-                    self.carry_charges(&delta, active, rows.as_deref());
+                    self.with_latency_lists(latent, |s, active, rows| {
+                        s.carry_charges(&delta, active, rows)
+                    });
                 }
                 self.rhs = delta;
                 return Ok(NewtonInfo {

@@ -460,6 +460,10 @@ impl System {
         let mut hist_vec = vec![0.0; n];
         let mut q_new = vec![0.0; nr];
         let mut q_pred = vec![0.0; nr];
+        // Latency: copies of the working rows and their charge indices for the accepted step
+        // (the partition may change them while accepting it), and the rows that became
+        // interior; kept across steps so that stepping allocates nothing.
+        let (mut work_u_buf, mut work_k_buf, mut left) = (Vec::new(), Vec::new(), Vec::new());
 
         let mut out = Recorder::new(p.output, idx.len());
         let mut values = vec![0.0; idx.len()];
@@ -469,6 +473,23 @@ impl System {
             }
         };
         sample(&x, &mut values);
+        // The probes of each unknown: a step with latency changes the working rows' unknowns
+        // only, so it samples their probes only (the others keep their values).
+        let mut probe_ptr = vec![0usize; n + 1];
+        for &u in idx.iter().flatten() {
+            probe_ptr[u + 1] += 1;
+        }
+        for u in 0..n {
+            probe_ptr[u + 1] += probe_ptr[u];
+        }
+        let mut probe_of = vec![0usize; probe_ptr[n]];
+        let mut fill = probe_ptr.clone();
+        for (k, u) in idx.iter().enumerate() {
+            if let Some(u) = *u {
+                probe_of[fill[u]] = k;
+                fill[u] += 1;
+            }
+        }
         out.first(0.0, &values);
 
         let tol_of = |k: usize, qa: f64, qb: f64, qref: &[f64]| -> f64 {
@@ -576,7 +597,7 @@ impl System {
             });
             let w = extrapolation_weights(t_new, &hist.t, m_pred);
             let work = self.latency_work().map(|(u, _)| u);
-            predict_subset(&w, &hist.x, m_pred, work.as_deref(), &mut x_new);
+            predict_subset(&w, &hist.x, m_pred, work, &mut x_new);
             self.latency_hold(&x, &mut x_new);
             let ctx = EvalContext {
                 time: t_new,
@@ -589,7 +610,7 @@ impl System {
                 if work_k.is_none() {
                     hist_vec.fill(0.0);
                 }
-                each(work_k.as_deref(), nr, |k| {
+                each(work_k, nr, |k| {
                     hist_vec[rows[k]] = match method {
                         Integrator::BackwardEuler => -hist.q[0][k] / step,
                         Integrator::Trapezoidal => -2.0 * hist.q[0][k] / step - qdot[k],
@@ -636,9 +657,14 @@ impl System {
                     continue;
                 }
             }
-            let work = self.latency_work();
-            let (work_u, work_k) = match &work {
-                Some((u, k)) => (Some(u.as_slice()), Some(k.as_slice())),
+            let (work_u, work_k) = match self.latency_work() {
+                Some((u, k)) => {
+                    work_u_buf.clear();
+                    work_u_buf.extend_from_slice(u);
+                    work_k_buf.clear();
+                    work_k_buf.extend_from_slice(k);
+                    (Some(work_u_buf.as_slice()), Some(work_k_buf.as_slice()))
+                }
                 None => (None, None),
             };
             each(work_k, nr, |k| q_new[k] = self.q[rows[k]]);
@@ -761,13 +787,24 @@ impl System {
             hist.push(t_new, &q_new, &x_new, work_u, work_k);
             rate_known = true;
             match work_u {
-                Some(list) => list.iter().for_each(|&u| x[u] = x_new[u]),
-                None => x.copy_from_slice(&x_new),
+                Some(list) => {
+                    for &u in list {
+                        x[u] = x_new[u];
+                        for &k in &probe_of[probe_ptr[u]..probe_ptr[u + 1]] {
+                            values[k] = x[u];
+                        }
+                    }
+                }
+                None => {
+                    x.copy_from_slice(&x_new);
+                    sample(&x, &mut values);
+                }
             }
             // Rows that became interior: their history is their present value, held (the
             // trapezoidal rule's stored rate, below tolerance when they were held, is
             // dropped so that their equation stops changing).
-            for r in self.latency_take_left() {
+            self.latency_take_left(&mut left);
+            for &r in &left {
                 for past in hist.x.iter_mut() {
                     past[r] = x[r];
                 }
@@ -785,7 +822,6 @@ impl System {
             t = t_new;
             stats.accepted += 1;
             restart = false;
-            sample(&x, &mut values);
             out.push(t, &values);
             if let Some(obs) = observer.as_mut() {
                 if obs(t, &values) == Control::Stop {
