@@ -61,7 +61,9 @@ pub struct Args {
     #[arg(long, value_name = "FACTOR", default_value_t = 1.0)]
     pub bypass_factor: f64,
     /// Latency: solve Newton for the moving stages only, holding the settled ones at their
-    /// values and checking their equations at every iteration (not with --reference).
+    /// values and checking their equations at every iteration (not with --reference). Pays
+    /// where settled stages sit still (long square-law rings, the single-edge estimate);
+    /// slower on 2D-FET rings, whose settled outputs keep creeping toward the rail.
     #[arg(long)]
     pub latency: bool,
     /// Estimate by edge travel (the time the single edge takes between two nodes) instead of

@@ -88,7 +88,9 @@ pub(crate) const HOLD_FRACTION: f64 = 0.01;
 pub(crate) const QUIET_FRACTION: f64 = 0.01;
 /// Active systems of up to this many unknowns are factorised dense (see [`DenseLu`]); larger
 /// ones by the sparse solver, whose symbolic analysis is redone when the active set changes.
-pub(crate) const DENSE_MAX: usize = 48;
+/// 48 and 128 gave the same times on the square-law rings; on a 101-stage 2D-FET ring, whose
+/// active sets are larger, 128 took 5.7 s against 6.9-8.7 s at 48 (DEVELOPERS.md, Latency).
+pub(crate) const DENSE_MAX: usize = 128;
 
 /// The latent/active partition of one transient run, and the solver of the active system.
 pub(crate) struct Latency {
