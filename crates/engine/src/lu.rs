@@ -398,7 +398,9 @@ impl SparseLu {
 /// banded matrix (a ring's stages in order) costs about `n` times its band squared rather than
 /// `n³/3`. A pivot that is zero, not finite, or at most [`SINGULAR_RATIO`] times its column's
 /// largest entry of `A` means the matrix is numerically singular (the test of the sparse
-/// fixed-pivot path); the error names the column.
+/// fixed-pivot path); the error names the column. A NaN off the pivots is not detected (the
+/// column maxima and the zero skips pass over it): the caller's residual test, which every
+/// accepted Newton state passes, is what rejects a device that returns one.
 pub struct DenseLu {
     n: usize,
     cap: usize,
