@@ -5,7 +5,9 @@
 
 use lamina::op::{operating_point, OpReport};
 use lamina_devices::physics::{HBAR, K_B, M0, Q};
-use lamina_devices::sheet_fet::leakage::{Barrier, Carrier, LeakageMode, TunnelStack};
+use lamina_devices::sheet_fet::leakage::{
+    Barrier, Carrier, LeakageMode, LeakageTable, TunnelStack,
+};
 use lamina_devices::{materials, SheetFet, SheetFetCard};
 use lamina_engine::{DetailValue, System};
 use lamina_netlist::{load_source, LoadOptions};
@@ -102,6 +104,29 @@ fn thin_card() -> SheetFetCard {
     card
 }
 
+/// The table's largest relative error against the direct quadrature at `points` gate drives
+/// across `[-reach, reach]` (V), and where: within two thermal voltages `vt` of `u = 0`, and
+/// beyond.
+fn worst_against_direct(
+    table: &LeakageTable,
+    vt: f64,
+    reach: f64,
+    points: usize,
+) -> [(f64, f64); 2] {
+    let mut worst = [(0.0f64, 0.0); 2];
+    for k in 0..points {
+        let u = reach * (2.0 * (k as f64 + 0.37) / points as f64 - 1.0);
+        let (j, _) = table.density(u);
+        let direct = table.direct(u);
+        let rel = (j - direct).abs() / direct.abs().max(1e-25);
+        let w = &mut worst[usize::from(u.abs() > 2.0 * vt)];
+        if rel > w.0 {
+            *w = (rel, u);
+        }
+    }
+    worst
+}
+
 /// The table (cubic in the knot index, knots solved on first use) agrees with the direct
 /// quadrature between knots, from 4 K to 400 K, over the core and the widening knots beyond
 /// it: under a gold gate (a metal gate: knots from the stack's shared grid) and a graphene
@@ -120,17 +145,7 @@ fn table_matches_direct_quadrature() {
             let vt = K_B * t / Q;
             let fet = SheetFet::new(&card).unwrap();
             let table = fet.leakage_table().unwrap();
-            let mut worst = [(0.0f64, 0.0); 2];
-            for k in 0..2000 {
-                let u = -4.0 + 8.0 * (k as f64 + 0.37) / 2000.0;
-                let (j, _) = table.density(u);
-                let direct = table.direct(u);
-                let rel = (j - direct).abs() / direct.abs().max(1e-25);
-                let w = &mut worst[usize::from(u.abs() > 2.0 * vt)];
-                if rel > w.0 {
-                    *w = (rel, u);
-                }
-            }
+            let worst = worst_against_direct(table, vt, 4.0, 2000);
             eprintln!(
                 "{gate} {t} K: near 0 {:.2e}, beyond {:.2e}",
                 worst[0].0, worst[1].0
@@ -191,14 +206,9 @@ fn shared_grid_tables_match_direct_quadrature() {
                 card.gate = lamina_devices::Gate::Metal { work_function: w };
                 let fet = SheetFet::new(&card).unwrap();
                 let table = fet.leakage_table().unwrap();
-                for k in 0..400 {
-                    let u = -3.0 + 6.0 * (k as f64 + 0.37) / 400.0;
-                    let (j, _) = table.density(u);
-                    let direct = table.direct(u);
-                    let rel = (j - direct).abs() / direct.abs().max(1e-25);
-                    let w = &mut worst[usize::from(u.abs() > 2.0 * vt)];
-                    *w = w.max(rel);
-                }
+                let [near, beyond] = worst_against_direct(table, vt, 3.0, 400);
+                worst[0] = worst[0].max(near.0);
+                worst[1] = worst[1].max(beyond.0);
                 let dh = 1e-3 * vt;
                 let slope = (table.direct(dh) - table.direct(-dh)) / (2.0 * dh);
                 let (_, dj) = table.density(0.0);

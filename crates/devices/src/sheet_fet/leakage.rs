@@ -111,7 +111,8 @@
 //!   the window within it, so what is left out obeys the rule over the final, narrower
 //!   window. `J` is monotonic in `u` (non-decreasing in `|u|`, up to quadrature rounding on
 //!   its flat stretches), so each onset is found by doubling from 0.25 V and secant steps
-//!   on `ln |J|` to 10 mV (a few direct solves per side, or table values for a card on a shared grid, [`LeakageTable::window`]); within
+//!   on `ln |J|` to 10 mV (a few direct solves per side, or table values for a card on a
+//!   shared grid, [`LeakageTable::window`]); within
 //!   [`BLEND_VT`] thermal voltages inside each onset the current fades in (a smoothstep
 //!   weight, so the current and its slope stay continuous), beyond it the leakage is whole.
 //!   Where a channel end's gate drive lies well inside the window the table is not read at
@@ -593,11 +594,7 @@ impl LeakageTable {
             let u = position(self.h, self.core, s as f64);
             match &self.grid {
                 Some((grid, first, weights)) => {
-                    let j = grid.densities(u, s, *first, weights);
-                    (0..4)
-                        .filter(|&m| weights[m] != 0.0)
-                        .map(|m| weights[m] * (j[m] / self.j0).asinh())
-                        .sum()
+                    grid.interpolate(u, s, *first, weights, |j| (j / self.j0).asinh())
                 }
                 None => (self.direct(u) / self.j0).asinh(),
             }
@@ -747,38 +744,43 @@ impl LeakageGrid {
             .current_density(st.xi, u, st.gate_charge / self.c_ins)
     }
 
-    /// `J` at knot `key` (at `u`) in the columns `first..first + 4` whose weight is not zero
-    /// (zero for the others): looked up under one lock, those not yet solved solved outside
-    /// it and kept (a thread that solved the same knot meanwhile found the same value: the
-    /// solve is a pure function of the knot).
-    fn densities(&self, u: f64, key: i64, first: i64, weights: &[f64; 4]) -> [f64; 4] {
-        let mut j = [None; 4];
+    /// `Σ_m weights[m] f(J_m)` over the columns `first..first + 4`, `J_m` at knot `key` (at
+    /// `u`); columns of weight zero are not solved. The columns' values are looked up under
+    /// one lock, those not yet solved solved outside it and kept (a thread that solved the
+    /// same knot meanwhile found the same value: the solve is a pure function of the knot).
+    fn interpolate(
+        &self,
+        u: f64,
+        key: i64,
+        first: i64,
+        weights: &[f64; 4],
+        f: impl Fn(f64) -> f64,
+    ) -> f64 {
+        let (mut j, mut missing) = ([0.0; 4], [false; 4]);
         {
             let values = super::lock(&self.values);
-            for (m, jm) in j.iter_mut().enumerate() {
-                if weights[m] != 0.0 {
-                    *jm = Some(values.get(&(key, first + m as i64)).copied());
+            for m in (0..4).filter(|&m| weights[m] != 0.0) {
+                match values.get(&(key, first + m as i64)) {
+                    Some(&v) => j[m] = v,
+                    None => missing[m] = true,
                 }
             }
         }
-        let mut solved = [None; 4];
-        for (m, jm) in j.iter_mut().enumerate() {
-            if let Some(None) = jm {
-                let v = self.direct(u, first + m as i64);
-                (*jm, solved[m]) = (Some(Some(v)), Some(v));
-            }
+        for m in (0..4).filter(|&m| missing[m]) {
+            j[m] = self.direct(u, first + m as i64);
         }
-        if solved.iter().any(Option::is_some) {
+        if missing.contains(&true) {
             let mut values = super::lock(&self.values);
-            for (m, v) in solved.iter().enumerate() {
-                if let Some(v) = *v {
-                    if values.len() < MAX_GRID_VALUES {
-                        values.entry((key, first + m as i64)).or_insert(v);
-                    }
+            for m in (0..4).filter(|&m| missing[m]) {
+                if values.len() < MAX_GRID_VALUES {
+                    values.entry((key, first + m as i64)).or_insert(j[m]);
                 }
             }
         }
-        j.map(|jm| jm.flatten().unwrap_or(0.0))
+        (0..4)
+            .filter(|&m| weights[m] != 0.0)
+            .map(|m| weights[m] * f(j[m]))
+            .sum()
     }
 
     /// The `J_0` of a card whose columns are `first` with `weights`: the larger `|J|` at
@@ -787,11 +789,7 @@ impl LeakageGrid {
     fn j0(&self, first: i64, weights: &[f64; 4]) -> f64 {
         let vt = self.tunnel.kt;
         let at = |u: f64, key: i64| {
-            let j = self.densities(u, key, first, weights);
-            (0..4)
-                .filter(|&m| weights[m] != 0.0)
-                .map(|m| weights[m] * j[m].abs().max(1e-300).ln())
-                .sum::<f64>()
+            self.interpolate(u, key, first, weights, |j| j.abs().max(1e-300).ln())
                 .exp()
         };
         at(vt, i64::MAX).max(at(-vt, i64::MIN)).max(1e-30)
