@@ -4,7 +4,7 @@
 use lamina_engine::elements::{Capacitor, Inductor, Resistor, VoltageSource};
 use lamina_engine::lu::LuStrategy;
 use lamina_engine::{
-    Circuit, Integrator, NodeId, Output, Probe, Start, Stepping, System, TransientParams,
+    Circuit, Control, Integrator, NodeId, Output, Probe, Start, Stepping, System, TransientParams,
     TransientStats,
 };
 
@@ -287,4 +287,84 @@ fn variable_order_never_amplifies_a_lossless_tank() {
         );
         assert!(stats.orders[2..].iter().sum::<usize>() > 0, "{stats:?}");
     }
+}
+
+/// Runs the RC step to 10 τ at `loosening`, returning to the nominal tolerances at `tighten`
+/// (an observer's [`Control::Tighten`]), with no cap on the step; the accepted times and
+/// `v(out)`.
+fn run_rc_loosened(loosening: f64, tighten: Option<f64>) -> (Vec<f64>, Vec<f64>) {
+    let (mut sys, out) = rc(LuStrategy::FixedPivot);
+    let mut p = TransientParams::new(10e-6);
+    p.startup_loosening = loosening;
+    p.max_step = Some(10e-6);
+    let mut observer = |t: f64, _: &[f64]| match tighten {
+        Some(t0) if t >= t0 => Control::Tighten,
+        _ => Control::Continue,
+    };
+    let res = sys
+        .transient(
+            &p,
+            &Start::Given(vec![]),
+            &[Probe::Voltage(out)],
+            Some(&mut observer),
+        )
+        .unwrap();
+    (res.time, res.signals[0].clone())
+}
+
+/// The start-up loosening (`TransientParams::startup_loosening`) on the RC step, against the
+/// exact response `v = V0 (1 - e^(-t/τ))` (Alexander and Sadiku 2013, ch. 7): loosened
+/// throughout, it takes fewer steps and errs more; tightened at 2 τ, it takes as many steps
+/// after it as the nominal run (within a fifth), and the error the looser start left decays with the
+/// circuit's own e^(-t/τ) (the RC's error obeys its homogeneous equation), so at 10 τ the
+/// result is within the nominal run's error plus e^-8 of the loosened error at 2 τ.
+/// Returning `Tighten` from a run without loosening changes nothing, bit for bit; a factor
+/// below 1 is refused.
+#[test]
+fn startup_loosening_relaxes_after_tightening() {
+    let tau = 1e-6;
+    let err = |t: &[f64], v: &[f64], at: f64| {
+        let i = t.partition_point(|&x| x < at * (1.0 - 1e-9));
+        (t[i], (v[i] - (1.0 - (-t[i] / tau).exp())).abs())
+    };
+    let (tn, vn) = run_rc_loosened(1.0, None);
+    let (tl, vl) = run_rc_loosened(1000.0, None);
+    let (tt, vt) = run_rc_loosened(1000.0, Some(2.0 * tau));
+    assert!(
+        tl.len() * 2 < tn.len(),
+        "{} vs {} steps",
+        tl.len(),
+        tn.len()
+    );
+    let (_, e_nominal_2) = err(&tn, &vn, 2.0 * tau);
+    let (_, e_loose_2) = err(&tl, &vl, 2.0 * tau);
+    assert!(
+        e_loose_2 > 10.0 * e_nominal_2,
+        "{e_loose_2} vs {e_nominal_2}"
+    );
+    // The steps after 2 τ: as many as the nominal run's there.
+    let after = |t: &[f64]| t.len() - t.partition_point(|&x| x <= 2.0 * tau);
+    let (nominal, tightened) = (after(&tn), after(&tt));
+    assert!(
+        tightened.abs_diff(nominal) * 5 <= nominal && after(&tl) * 2 < nominal,
+        "{tightened} vs {nominal} steps after 2 τ (loosened throughout: {})",
+        after(&tl)
+    );
+    let (_, e_tight_2) = err(&tt, &vt, 2.0 * tau);
+    let (_, e_nominal_10) = err(&tn, &vn, 10.0 * tau);
+    let (_, e_tight_10) = err(&tt, &vt, 10.0 * tau);
+    assert!(
+        e_tight_10 <= 2.0 * e_nominal_10 + (-8.0f64).exp() * e_tight_2,
+        "{e_tight_10} vs {e_nominal_10} + e^-8 {e_tight_2}"
+    );
+    // Tighten without loosening: the same run.
+    let (t1, v1) = run_rc_loosened(1.0, Some(0.0));
+    assert_eq!((t1, v1), (tn, vn));
+    let (mut sys, out) = rc(LuStrategy::FixedPivot);
+    let mut p = TransientParams::new(1e-6);
+    p.startup_loosening = 0.5;
+    let e = sys
+        .transient(&p, &Start::Given(vec![]), &[Probe::Voltage(out)], None)
+        .unwrap_err();
+    assert!(e.to_string().contains("at least 1"), "{e}");
 }

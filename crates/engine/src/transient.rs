@@ -133,6 +133,9 @@ pub enum Control {
     Continue,
     /// Stop after this step.
     Stop,
+    /// Keep integrating at the nominal truncation-error tolerances from this step on (see
+    /// [`TransientParams::startup_loosening`]; nothing changes in a run without it).
+    Tighten,
 }
 
 /// Parameters of a transient run.
@@ -172,6 +175,13 @@ pub struct TransientParams {
     /// Newton restricted to the active unknowns, latent ones held and checked (see the
     /// `latency` module doc and DEVELOPERS.md, "Latency"; default off).
     pub latency: bool,
+    /// Factor (at least 1; default 1) on both truncation-error tolerances (`lte_reltol`,
+    /// `chgtol`) until an observer returns [`Control::Tighten`]: for a run whose start is
+    /// thrown away, such as a ring oscillator's start-up before the periods it measures. The
+    /// Newton tolerances stay as they are. The step that tightens is judged against the
+    /// nominal tolerances for the next step's length, so the first tight step needs no
+    /// rejection to find its size.
+    pub startup_loosening: f64,
 }
 
 impl TransientParams {
@@ -194,6 +204,7 @@ impl TransientParams {
             output: Output::EveryStep,
             bypass: 1.0,
             latency: false,
+            startup_loosening: 1.0,
         }
     }
 
@@ -327,6 +338,13 @@ impl System {
             return Err(EngineError::Invalid(
                 "transient tolerances must be positive".into(),
             ));
+        }
+        if !(p.startup_loosening >= 1.0 && p.startup_loosening.is_finite()) {
+            return Err(EngineError::Invalid(format!(
+                "the start-up loosening is a factor of at least 1 on the truncation-error \
+                 tolerances, not {}",
+                p.startup_loosening
+            )));
         }
         let h_max = p.max_step.unwrap_or(p.stop_time / 50.0).min(p.stop_time);
         let h_min = p.min_step.unwrap_or(1e-12 * p.stop_time);
@@ -492,8 +510,11 @@ impl System {
         }
         out.first(0.0, &values);
 
+        // The truncation-error tolerances' factor: `startup_loosening` until an observer
+        // tightens them.
+        let loosening = std::cell::Cell::new(p.startup_loosening);
         let tol_of = |k: usize, qa: f64, qb: f64, qref: &[f64]| -> f64 {
-            p.lte_reltol * qa.abs().max(qb.abs()).max(qref[k]) + p.chgtol
+            (p.lte_reltol * qa.abs().max(qb.abs()).max(qref[k]) + p.chgtol) * loosening.get()
         };
 
         let next_bp0 = self.next_breakpoint(0.0);
@@ -824,8 +845,22 @@ impl System {
             restart = false;
             out.push(t, &values);
             if let Some(obs) = observer.as_mut() {
-                if obs(t, &values) == Control::Stop {
-                    break;
+                match obs(t, &values) {
+                    Control::Stop => break,
+                    Control::Tighten if loosening.get() > 1.0 => {
+                        // This step's error ratios against the nominal tolerances (both
+                        // terms scale alike), from which the next step is chosen.
+                        let f = loosening.replace(1.0);
+                        ratio = ratio.map(|r| r * f);
+                        bdf_ratios.same *= f;
+                        for v in [&mut bdf_ratios.lower, &mut bdf_ratios.higher] {
+                            if let Some(v) = v.as_mut() {
+                                *v *= f;
+                            }
+                        }
+                        control.reset();
+                    }
+                    Control::Tighten | Control::Continue => {}
                 }
             }
             if method == Integrator::VariableBdf {
