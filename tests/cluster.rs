@@ -18,10 +18,9 @@
 
 mod common;
 
-use common::{files, lamina, lamina_ok};
-use std::path::{Path, PathBuf};
+use common::{files, lamina, lamina_ok, Scratch};
+use std::path::Path;
 use std::process::{Command, Output};
-use std::sync::atomic::{AtomicUsize, Ordering};
 
 const CIRCUIT: &str = "\
 param vdd = 1 V
@@ -44,14 +43,10 @@ analysis transient { stop = 2 ns, record = [out] }
 const VDD: &str = "--param=vdd=0.5:1.0:0.25V";
 const RLOAD: &str = "--param=rload=1kOhm,2kOhm";
 
-/// A directory of its own for one test, holding the circuit as `circuit.lam`.
-fn scratch(name: &str) -> PathBuf {
-    static N: AtomicUsize = AtomicUsize::new(0);
-    let n = N.fetch_add(1, Ordering::Relaxed);
-    let dir =
-        std::env::temp_dir().join(format!("lamina-cluster-{}-{n}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).expect("temporary directory");
+/// A directory of its own for one test, holding the circuit as `circuit.lam` (removed when
+/// the test ends).
+fn scratch(name: &str) -> Scratch {
+    let dir = Scratch::new(&format!("cluster-{name}"));
     std::fs::write(dir.join("circuit.lam"), CIRCUIT).expect("circuit file");
     dir
 }

@@ -13,9 +13,10 @@
 //!   name are usage errors (exit 2);
 //! * `cluster-script` writes a job array for a batch fit and refuses a single fit.
 
+mod common;
+use common::Scratch;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
-use std::sync::atomic::{AtomicUsize, Ordering};
 
 const WAFER: &str = "netlists/demo/data/wafer-curves.csv";
 const CARD: &str = "netlists/demo/n-device.lam";
@@ -35,17 +36,9 @@ const DIES: [(&str, f64, f64); 8] = [
     ("die08", 45.48, 4.3304),
 ];
 
-/// A directory of its own for one test.
-fn scratch(name: &str) -> PathBuf {
-    static N: AtomicUsize = AtomicUsize::new(0);
-    let n = N.fetch_add(1, Ordering::Relaxed);
-    let dir = std::env::temp_dir().join(format!(
-        "lamina-fit-batch-{}-{n}-{name}",
-        std::process::id()
-    ));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).expect("temporary directory");
-    dir
+/// A directory of its own for one test (removed when the test ends).
+fn scratch(name: &str) -> Scratch {
+    Scratch::new(&format!("fit-batch-{name}"))
 }
 
 fn path(p: &Path) -> &str {

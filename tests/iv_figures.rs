@@ -2,6 +2,8 @@
 //! closed forms, criteria that scale with W/L, the swing held to the thermal limit, currents at
 //! stated biases, the output characteristics' own grid, and no negative zero in any report.
 
+mod common;
+use common::Scratch;
 use lamina::iv::{
     iv_metrics, thermal_swing_mv_per_dec, Device, Geometry, IvConfig, IvPoint, Polarity,
 };
@@ -38,10 +40,9 @@ fn metrics(file: &Path, args: &[&str]) -> Value {
     v["metrics"].clone()
 }
 
-fn scratch(test: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("lamina-iv-{test}-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
+/// A directory of its own for one test (removed when the test ends).
+fn scratch(test: &str) -> Scratch {
+    Scratch::new(&format!("iv-{test}"))
 }
 
 /// A file of one demo-process device (`n2d` or `p2d`) with instance overrides.

@@ -39,3 +39,41 @@ pub fn files(dir: &Path) -> Vec<(String, Vec<u8>)> {
     list.sort();
     list
 }
+
+/// A directory of its own under the system's temporary directory, named after `name`, the
+/// process and a counter; removed with its files when dropped, except while the test is
+/// panicking (a failing test's files stay to be looked at).
+pub struct Scratch(std::path::PathBuf);
+
+impl Scratch {
+    pub fn new(name: &str) -> Self {
+        static N: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
+        let n = N.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+        let dir = std::env::temp_dir().join(format!("lamina-{name}-{}-{n}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&dir);
+        std::fs::create_dir_all(&dir).expect("temporary directory");
+        Scratch(dir)
+    }
+}
+
+impl std::ops::Deref for Scratch {
+    type Target = Path;
+
+    fn deref(&self) -> &Path {
+        &self.0
+    }
+}
+
+impl AsRef<Path> for Scratch {
+    fn as_ref(&self) -> &Path {
+        &self.0
+    }
+}
+
+impl Drop for Scratch {
+    fn drop(&mut self) {
+        if !std::thread::panicking() {
+            let _ = std::fs::remove_dir_all(&self.0);
+        }
+    }
+}
