@@ -601,11 +601,12 @@ impl System {
                 l.add_missed(u, t, 0.0);
                 // The row's relaxation time `C_ii / G_ii` from the step's matrix (every
                 // element on an active row is live, so its diagonal is complete); none
-                // (infinite) unless both are positive.
+                // (infinite) unless both are positive and their ratio does not underflow.
                 let (j, c) = self.diagonal(r);
                 let g = j - l.a0 * c;
-                l.tau[u] = if c > 0.0 && g > 0.0 {
-                    c / g
+                let tau = c / g;
+                l.tau[u] = if c > 0.0 && g > 0.0 && tau > 0.0 {
+                    tau
                 } else {
                     f64::INFINITY
                 };
