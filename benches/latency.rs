@@ -5,10 +5,7 @@
 //! and so show what the pinned supply alone saves. Then the single-edge window of long
 //! square-law rings (1 ns from the single-edge start, about 25 stage delays) with latency off
 //! and on (`TransientParams::latency`): off, every step costs in proportion to the ring;
-//! on, Newton assembles, factorises and solves the few moving stages only. Last, rings of the
-//! demo's 2D-FET process (21, 51 and 101 stages, 4 ns from the single-edge start) with latency
-//! off and on: their settled outputs creep toward the rails and feel their inputs' edges
-//! through the gate charges, which latency must hold by the charge they miss.
+//! on, Newton assembles, factorises and solves the few moving stages only.
 
 use lamina::builtin::{square_ring, SquareStage};
 use lamina::design::{load, ring_from};
@@ -55,19 +52,6 @@ fn square_ring_single_edge_one_ns<const LATENT: bool>(bencher: divan::Bencher, s
 #[divan::bench(args = [1001, 30001], sample_count = 3, sample_size = 1)]
 fn square_ring_single_edge_three_ns_latent(bencher: divan::Bencher, stages: usize) {
     single_edge(bencher, stages, 3e-9, true);
-}
-
-#[divan::bench(consts = [false, true], args = [21, 51, 101], sample_count = 5, sample_size = 1)]
-fn demo_ring_four_ns_latency<const LATENT: bool>(bencher: divan::Bencher, stages: usize) {
-    let sets = [("stages".to_string(), stages.to_string())];
-    let design = load(Path::new("netlists/demo/ring-21.lam"), &sets).unwrap();
-    let (mut sys, ring, _) = ring_from(design, &RingParams::default()).unwrap();
-    let start = single_edge_start(&ring);
-    let probe = Probe::Voltage(ring.outputs[0]);
-    let mut p = TransientParams::new(4e-9);
-    p.output = Output::Streaming;
-    p.latency = LATENT;
-    bencher.bench_local(|| divan::black_box(sys.transient(&p, &start, &[probe], None).unwrap()));
 }
 
 fn single_edge(bencher: divan::Bencher, stages: usize, stop: f64, latency: bool) {

@@ -61,9 +61,9 @@ pub struct Args {
     #[arg(long, value_name = "FACTOR", default_value_t = 1.0)]
     pub bypass_factor: f64,
     /// Latency: solve Newton for the moving stages only, holding the settled ones at their
-    /// values while the charge they miss stays within a fraction of the truncation-error
-    /// tolerance (not with --reference). Pays on long rings (square-law and 2D-FET rings of
-    /// 51 stages and more, the single-edge estimate); about even on short 2D-FET rings.
+    /// values and checking their equations at every iteration (not with --reference). Pays
+    /// where settled stages sit still (long square-law rings, the single-edge estimate);
+    /// slower on 2D-FET rings, whose settled outputs keep creeping toward the rail.
     #[arg(long)]
     pub latency: bool,
     /// Estimate by edge travel (the time the single edge takes between two nodes) instead of

@@ -4,16 +4,12 @@
 //! rail. With [`crate::TransientParams::latency`] on, each transient step solves Newton for the
 //! *active* unknowns only and holds the *latent* ones at their last accepted values:
 //!
-//! * **Holding.** After an accepted step, an unknown becomes latent when it was *quiet* on
-//!   each of the last [`QUIET_STEPS`] accepted steps: on a row with charge, its charge moved
-//!   by at most η `qtol_i` (η = [`QUIET_FRACTION`]; `qtol_i = lte_reltol max(|q_i|, q_ref) +
-//!   chgtol`, the row's truncation-error tolerance), so that held it would miss about that
-//!   much a step; on a row without charge, its unknown moved by at most
-//!   `η (reltol max(|x_n|, |x_{n+1}|) + abstol_i)` (`abstol_i` is `vntol` for a voltage,
-//!   `abstol` for a current). It must also pass the hold tests below with at least half of
-//!   its allowance of missed charge free. An element's internal unknown (a branch current, an
-//!   internal node) is latent only together with all of its element's local unknowns. The
-//!   step after, the predictor leaves a latent unknown at its value.
+//! * **Holding.** After an accepted step, an unknown becomes latent when it moved by at most
+//!   `η (reltol max(|x_n|, |x_{n+1}|) + abstol_i)` (η = [`QUIET_FRACTION`], `abstol_i` is
+//!   `vntol` for a voltage, `abstol` for a current) on each of the last [`QUIET_STEPS`] accepted
+//!   steps. An element's internal unknown (a branch current, an internal node) is latent only
+//!   together with all of its element's local unknowns. The step after, the predictor leaves a
+//!   latent unknown at its value.
 //! * **Frozen elements.** An element whose local unknowns are all latent, and which is not an
 //!   independent source (the only elements whose evaluation depends on time), sees exactly the
 //!   inputs of its evaluation at the moment it froze, so that evaluation's currents and charges
@@ -31,36 +27,26 @@
 //!   singular `J_AA` is reported, and Newton then solves the whole system.
 //! * **Checking latent rows.** At every Newton iteration each latent unknown's equation is
 //!   evaluated at the held value (its frozen sum, the live elements touching it, the charge
-//!   history). The charge its residual `F_i` moves over the step is `|F_i| w` (`w = h/2` for
-//!   the trapezoidal rule, whose residual carries the currents of both ends of the step; `h`
-//!   for the backward-difference formulas). On a row with charge the unknown wakes, and the
-//!   iteration is assembled again with it active, when its *missed charge* `m_i` plus this
-//!   step's share would exceed μ `qtol_i` (μ = [`MISSED_FRACTION`], `qtol_i` taken when it
-//!   was held), or when its residual leaves [`HOLD_FRACTION`] of Newton's own residual test
-//!   on its full scale, the largest current or `α₀`-scaled charge term (a held row is part of
-//!   that test and is not refined by later iterations; this part is for Newton's
-//!   convergence, the accuracy is the missed charge's). On a row without charge it wakes when
-//!   its residual leaves [`HOLD_FRACTION`] of `reltol scale_i + abstol_i` with `scale_i` its
-//!   largest current alone.
-//! * **Missed charge.** `m_i` gains each accepted step's share while the row is held, and
-//!   decays with the row's own relaxation time `τ_i = C_ii / G_ii` (the diagonals of the
-//!   capacitance matrix and of `G = J - α₀ C`, taken from the step that held it; infinite
-//!   unless both are positive): `dm_i/dt = |F_i| - m_i / τ_i`. It is kept across holds and
-//!   wakes. A held row's stored trapezoidal rate is set to the rate its currents ask for, so
-//!   that its next residual is the charge the step misses rather than alternating between
-//!   twice that and nothing.
+//!   history). The unknown wakes, and the iteration is assembled again with it active, when its
+//!   residual leaves a fraction [`HOLD_FRACTION`] of the test every active row must pass,
+//!   `|F_i| ≤ reltol scale_i + abstol_i`, with `scale_i` the row's largest current alone (a
+//!   held value is not refined by later iterations, so it must sit well inside the test; and
+//!   the charge terms' scale, `α₀` times the largest charge, grows as the step shrinks), or
+//!   when the charge its row has missed since it was held, `Σ |F_i| / α₀` over the accepted
+//!   steps (the charge change Newton would have applied), would exceed that row's truncation
+//!   error tolerance `lte_reltol max(|q_i|, q_ref) + chgtol` taken when it was held.
+//!
 //! * **Working rows.** Only the rows a live element touches, and the active unknowns' rows,
 //!   are assembled, checked, predicted, integrated and stored each step. The other latent
 //!   rows are *interior*: every element on them is frozen, so their current `f_i` is
-//!   constant. A row with charge becomes interior while its missed charge is within its
-//!   bound, one without only when `f_i` passes its residual test; its history is then set to
-//!   its present (held) value and the trapezoidal rule's stored rate to zero, so its equation
-//!   stays exactly as it was. Its missed charge follows `dm/dt = |f_i| - m / τ_i` in closed
-//!   form, so it wakes at the time that reaches its bound (never when `|f_i| τ_i`, the level
-//!   it tends to, is within the bound: a settled stage whose residual current only holds it
-//!   where it is); a neighbour that wakes makes it a working row again. A row touched by more
-//!   than [`WIDE`] elements (a supply) keeps its frozen sums in a tree of fixed shape, so
-//!   each refresh costs in proportion to the active part, not to the circuit.
+//!   constant. A row becomes interior only when `f_i` passes the residual test; its history is
+//!   then set to its present (held) value and the trapezoidal rule's stored rate, which that
+//!   test bounds, to zero, so its equation stays exactly as it was. Its missed charge grows
+//!   as `|f_i| (t - t_leave)`, so it wakes at the time that reaches its bound (a current of
+//!   exactly zero, a settled stage ahead of the edge, never wakes by itself); a neighbour
+//!   that wakes makes it a working row again. A row touched by more than [`WIDE`] elements
+//!   (a supply) keeps its frozen sums in a tree of fixed shape, so each refresh costs in
+//!   proportion to the active part, not to the circuit.
 //! * **Refreshes.** A refresh (after an accepted step that holds an unknown, or a wake)
 //!   examines only the rows whose working status can have changed: those of the elements that
 //!   froze or thawed and of the unknowns that changed, with their trades (each row counts its
@@ -74,29 +60,13 @@
 //!   sparse active system aside, and an element of more than four local unknowns, whose
 //!   evaluation when it freezes uses heap buffers).
 //!
-//! *Accuracy.* A step with latent unknowns is accepted only when every working equation,
-//! latent or active, passes the residual test Newton applies to the full system. What a
-//! held row adds is the charge it misses. Over a hold, the row's own equations asked for a
-//! charge change of `-Σ F_i w` that it did not get. That is the error the truncation-error
-//! test bounds on every other row: the charge a step's formula gets wrong, held within
-//! `qtol_i`. Linearised on the row's own diagonal, the charge the held row lacks against
-//! the full solve, `D_i`, obeys `dD_i/dt = F_i - D_i / τ_i`: the full solve would relax
-//! toward the same state with the row's time constant. So `|D_i| ≤ m_i ≤ μ qtol_i`: at any
-//! time, the held row is off by less than a fraction of one step's allowed truncation
-//! error. A floating node (`τ_i` infinite, or far longer than the run) never gets its missed
-//! charge back, and its bound then holds for the whole run; a stage held at a rail through
-//! an on transistor (`τ_i` of picoseconds) sits within `|F_i| τ_i` of where its equation
-//! would put it, and stays held while that is within the bound. A node coupled by charge to
-//! a moving input (a gate whose input edge arrives, through the overlap and intrinsic gate
-//! charges) sees its charge change by the coupled charge. Its residual carries that change,
-//! so the coupled charge is counted as missed and the node wakes as its input's edge
-//! arrives, before it has missed μ `qtol_i`. The bound is first order (the residual taken at
-//! the held state, the relaxation on the row's own diagonal), and each hold that ends in the
-//! interior rows loses up to half a step of the row's current with its dropped stored rate;
-//! a row is held only with half its allowance free, so a floating node is held a few times a
-//! run, not at every step (without that, `crates/engine/tests/latency_leak.rs`'s node was
-//! held 2,700 times and drifted 2.5e-4 V). The truncation-error test runs on every working
-//! charge row; an interior row's charge is constant, so its estimate would be zero.
+//! *Accuracy.* A step with latent unknowns is accepted only when every equation, latent or
+//! active, passes the residual test Newton applies to the full system: the accepted state is a
+//! solution of the full step equations to the ordinary Newton tolerances. Beyond one step, the
+//! charge a latent row fails to move accumulates; it is bounded by one step's truncation-error
+//! tolerance of that row, so the latent part never drifts by more than the integrator already
+//! allows for one step. The truncation-error test runs on every working charge row; an
+//! interior row's charge is constant, so its estimate would be zero.
 //!
 //! *Charge.* An active row's charge is computed and carried as before. A latent row whose
 //! elements are all frozen keeps its charge bit for bit; one touched by a live element stores
@@ -116,19 +86,9 @@ use std::collections::BinaryHeap;
 
 /// Consecutive quiet accepted steps before an unknown becomes latent.
 pub(crate) const QUIET_STEPS: u32 = 3;
-/// Fraction of the Newton residual tolerance a latent row's residual must stay within (the
-/// full scale on a row with charge, the largest current on a row without).
+/// Fraction of the Newton residual tolerance a latent row's residual must stay within.
 pub(crate) const HOLD_FRACTION: f64 = 0.01;
-/// Fraction of a charge row's truncation-error tolerance (taken when it is held) that its
-/// missed charge may reach before it wakes. At 1.0 the demo process's rings of 21, 51 and
-/// 101 stages ran as fast and landed 1.6e-7, 6.4e-9 and 3.5e-9 from the full solve, against
-/// 1.9e-7, 2.3e-9 and 4.9e-10 at 0.3 (measured before the half-free rule of holding); 0.3
-/// keeps a margin for the first-order bound.
-pub(crate) const MISSED_FRACTION: f64 = 0.3;
-/// Fraction of the row's truncation-error tolerance (a row with charge) or of the Newton
-/// update tolerance (without) within which a step counts as quiet. 0.1 and 0.3 held about
-/// as many rows on the 2D-FET rings but woke them far more often (101 stages 3.4 and 8.7 s
-/// against 1.7 s, measured before the missed charge decayed with the relaxation time).
+/// Fraction of the Newton update tolerance within which a step counts as quiet.
 pub(crate) const QUIET_FRACTION: f64 = 0.01;
 /// Active systems of up to this many unknowns are factorised dense (see [`DenseLu`]); larger
 /// ones by the sparse solver, whose symbolic analysis is redone when the active set changes.
@@ -143,21 +103,11 @@ pub(crate) struct Latency {
     /// Per unknown: held at its last accepted value.
     pub(crate) held: Vec<bool>,
     quiet: Vec<u32>,
-    /// Per unknown: the bound on the charge its row lacks from having been held (see the
-    /// module doc), at time `missed_t`; its row's relaxation time, taken when it was last
-    /// held; its row's signed residual at this attempt's last check; the bound on `missed`.
+    /// Per unknown: charge its equation missed over accepted steps while held, this attempt's
+    /// share, and the bound.
     missed: Vec<f64>,
-    missed_t: Vec<f64>,
-    tau: Vec<f64>,
-    pending_f: Vec<f64>,
+    pending: Vec<f64>,
     qtol: Vec<f64>,
-    /// The charge a residual moves per unit of current over the step being solved and its
-    /// end (see [`System::latency_step`]), and the last accepted time.
-    weight: f64,
-    t_new: f64,
-    t_acc: f64,
-    /// `α₀` of the step being solved (set at each check).
-    a0: f64,
     /// Per unknown: the row holding its equation (pinned nodes and their sources' currents
     /// trade rows); per row: the position in `active` of the unknown it belongs to.
     eq_row: Vec<usize>,
@@ -216,7 +166,8 @@ pub(crate) struct Latency {
     pub(crate) work_k: Vec<usize>,
     /// Rows that became interior since the transient last took them.
     left: Vec<usize>,
-    /// Per interior row's unknown: its current when it left the working rows.
+    /// Per interior row's unknown: when it left the working rows and its current then.
+    leave_t: Vec<f64>,
     leave_f: Vec<f64>,
     /// Per unknown of an interior row: when its missed charge reaches its bound (infinite
     /// otherwise); and those times as a min-heap of `(time bits, unknown)` (non-negative times
@@ -232,63 +183,11 @@ pub(crate) struct Latency {
 }
 
 impl Latency {
-    /// Marks `u` active again, its quiet count restarted (its missed charge stays, and
-    /// decays).
+    /// Marks `u` active again, its quiet count restarted.
     fn release(&mut self, u: usize) {
         self.held[u] = false;
         self.quiet[u] = 0;
         self.changed.push(u);
-    }
-
-    /// `u`'s missed-charge bound decayed to time `t` with its row's relaxation time.
-    fn missed_at(&self, u: usize, t: f64) -> f64 {
-        let m = self.missed[u];
-        if m == 0.0 {
-            return 0.0;
-        }
-        m * (-(t - self.missed_t[u]).max(0.0) / self.tau[u]).exp()
-    }
-
-    /// Brings `u`'s missed-charge bound to time `t`, adding `charge` missed over the step
-    /// that ends there.
-    fn add_missed(&mut self, u: usize, t: f64, charge: f64) {
-        self.missed[u] = self.missed_at(u, t) + charge;
-        self.missed_t[u] = t;
-    }
-
-    /// Brings an interior row's missed-charge bound to the last accepted time: its constant
-    /// current `leave_f` feeds it while it decays (`dm/dt = |f| - m / τ`).
-    fn settle_interior(&mut self, u: usize) {
-        let s = (self.t_acc - self.missed_t[u]).max(0.0);
-        let (f, tau) = (self.leave_f[u].abs(), self.tau[u]);
-        let fed = if tau.is_finite() {
-            f * tau * -(-s / tau).exp_m1()
-        } else {
-            f * s
-        };
-        let decayed = self.missed_at(u, self.t_acc);
-        self.missed[u] = decayed + fed;
-        self.missed_t[u] = self.t_acc;
-    }
-
-    /// When an interior row's missed-charge bound, `missed` now at `t_acc` and fed by its
-    /// current `f`, reaches its bound (infinite if never).
-    fn interior_deadline(&self, u: usize, f: f64) -> f64 {
-        let (f, tau) = (f.abs(), self.tau[u]);
-        let room = self.qtol[u] - self.missed[u];
-        if f == 0.0 || !room.is_finite() {
-            return f64::INFINITY;
-        }
-        let room = room.max(0.0);
-        if !tau.is_finite() {
-            return self.t_acc + room / f;
-        }
-        // m(s) = A - (A - m₀) e^(-s/τ) with A = |f| τ, the level it tends to.
-        let a = f * tau;
-        if a <= self.qtol[u] {
-            return f64::INFINITY;
-        }
-        self.t_acc + tau * (room / (a - self.qtol[u])).ln_1p()
     }
 
     /// The active unknowns, in order.
@@ -352,14 +251,8 @@ impl System {
             held: vec![false; n],
             quiet: vec![0; n],
             missed: vec![0.0; n],
-            missed_t: vec![0.0; n],
-            tau: vec![f64::INFINITY; n],
-            pending_f: vec![0.0; n],
+            pending: vec![0.0; n],
             qtol: vec![f64::INFINITY; n],
-            weight: 0.0,
-            t_new: 0.0,
-            t_acc: 0.0,
-            a0: 0.0,
             eq_row,
             pos: vec![NONE; n],
             frozen: vec![false; ne],
@@ -401,6 +294,7 @@ impl System {
             charge_k,
             work_k: Vec::new(),
             left: Vec::new(),
+            leave_t: vec![0.0; n],
             leave_f: vec![0.0; n],
             deadline: vec![f64::INFINITY; n],
             deadlines: BinaryHeap::new(),
@@ -443,7 +337,6 @@ impl System {
         let Some(l) = self.latency.as_mut() else {
             return false;
         };
-        l.a0 = a0;
         let mut woke = false;
         for w in 0..l.work.len() {
             let u = l.work[w];
@@ -453,57 +346,26 @@ impl System {
                 UnknownKind::Current => tol.vntol,
             };
             let res = self.rhs[r].abs();
-            // The charge the residual moves over this step (for a held row, the charge it
-            // misses); an active row keeps it for the hold test at acceptance.
-            l.pending_f[u] = -self.rhs[r];
-            let share = res * l.weight;
-            // Whether the row could be held now, as far as its residual tells (an unknown is
-            // held only then, so that it is not woken at once). A charge row needs only to sit
-            // inside Newton's own test, its full scale with the charge terms (a held row is
-            // part of that test, and is not refined); its accuracy is the missed-charge
-            // bound's. A row without charge keeps the test on its largest current alone.
-            let fits = if l.charge_k[r] != NONE {
-                res <= HOLD_FRACTION * (tol.reltol * self.scale[r] + abs)
-            } else {
-                res <= HOLD_FRACTION * (tol.reltol * l.fscale[r] + abs)
-            };
-            l.holdable[u] = fits;
+            // Whether the row could be held now (an unknown is held only then, so that it is
+            // not woken at once).
+            l.holdable[u] = res <= HOLD_FRACTION * (tol.reltol * l.fscale[r] + abs);
             if !l.held[u] {
                 continue;
             }
-            // NaN fails both tests and wakes the row, whose residual then reports it.
-            if !(fits && l.missed_at(u, l.t_new) + share <= l.qtol[u]) {
+            let share = res / a0;
+            l.pending[u] = share;
+            // NaN fails both tests and wakes the row, whose residual then reports it. The scale
+            // is the row's largest current alone: the charge terms' scale, `α₀` times the
+            // largest charge, grows without bound as the step shrinks and would let a held node
+            // that still carries current pass.
+            if !(res <= HOLD_FRACTION * (tol.reltol * l.fscale[r] + abs)
+                && l.missed[u] + share <= l.qtol[u])
+            {
                 wake(l, u, &self.layout.loc_map, &self.layout.loc_start);
                 woke = true;
             }
         }
         woke
-    }
-
-    /// Sets the charge a residual moves per unit of current over the step about to be solved:
-    /// `h / 2` for the trapezoidal rule (its residual carries the currents at both ends,
-    /// each for half the step), `h` for the backward-difference formulas.
-    pub(crate) fn latency_step(&mut self, weight: f64, t_new: f64) {
-        if let Some(l) = self.latency.as_mut() {
-            l.weight = weight;
-            l.t_new = t_new;
-        }
-    }
-
-    /// After an accepted step, sets the stored charge rates of the held working rows (indexed
-    /// like the system's charge rows) to the rates their currents ask for: the rate the formula
-    /// computed from a held charge carries the row's residual, which a trapezoidal step
-    /// would otherwise take back at the next step (its residual would alternate between
-    /// twice the current and nothing).
-    pub(crate) fn latency_settle_rates(&self, qdot: &mut [f64]) {
-        if let Some(l) = &self.latency {
-            for &u in &l.work {
-                let k = l.charge_k[l.eq_row[u]];
-                if l.held[u] && k != NONE {
-                    qdot[k] -= l.pending_f[u];
-                }
-            }
-        }
     }
 
     /// Keeps the working rows' current scales of the last assembly (before the residual adds
@@ -528,48 +390,35 @@ impl System {
     }
 
     /// After an accepted step from `x_old` to `x_new` at `t`: commits the latent rows' missed
-    /// charge, counts quiet steps and holds the unknowns that became latent. `charge(r)` is
-    /// row `r`'s truncation-error tolerance and the charge it moved over the step (infinite
-    /// and zero for a row without charge).
+    /// charge, counts quiet steps and holds the unknowns that became latent. `charge_tol(r)`
+    /// is row `r`'s truncation-error tolerance (infinite for a row without charge).
     pub(crate) fn latency_accepted(
         &mut self,
         x_old: &[f64],
         x_new: &[f64],
         t: f64,
         tol: &Tolerances,
-        charge: &dyn Fn(usize) -> (f64, f64),
+        charge_tol: &dyn Fn(usize) -> f64,
     ) {
-        // Taken out while the step's matrix is read.
-        let Some(mut l) = self.latency.take() else {
+        let Some(l) = self.latency.as_mut() else {
             return;
         };
         l.latent_steps += (self.n - l.work.len()) as u64;
-        l.t_acc = t;
-        for w in 0..l.work.len() {
-            let u = l.work[w];
+        for &u in &l.work {
             if l.held[u] {
-                let q = (l.pending_f[u] * l.weight).abs();
-                l.add_missed(u, t, q);
+                l.missed[u] += l.pending[u];
+                l.pending[u] = 0.0;
                 l.latent_steps += 1;
                 continue;
             }
             l.active_steps += 1;
-            // A charge row is quiet when its charge moved by a small fraction of its
-            // truncation tolerance (held, it would miss about that much a step); a row
-            // without charge when its unknown moved by a small fraction of Newton's update
-            // tolerance.
-            let (qtol, moved) = charge(l.eq_row[u]);
-            let quiet = if qtol.is_finite() {
-                moved <= QUIET_FRACTION * qtol
-            } else {
-                let (a, b) = (x_old[u], x_new[u]);
-                let abs = match self.kinds[u] {
-                    UnknownKind::Voltage => tol.vntol,
-                    UnknownKind::Current => tol.abstol,
-                };
-                (b - a).abs() <= QUIET_FRACTION * (tol.reltol * a.abs().max(b.abs()) + abs)
+            let (a, b) = (x_old[u], x_new[u]);
+            let abs = match self.kinds[u] {
+                UnknownKind::Voltage => tol.vntol,
+                UnknownKind::Current => tol.abstol,
             };
-            l.quiet[u] = if quiet {
+            let bound = QUIET_FRACTION * (tol.reltol * a.abs().max(b.abs()) + abs);
+            l.quiet[u] = if (b - a).abs() <= bound {
                 l.quiet[u].saturating_add(1)
             } else {
                 0
@@ -589,33 +438,19 @@ impl System {
                     .iter()
                     .all(|&g| g == NONE || l.held[g] || l.quiet[g] >= QUIET_STEPS),
             };
-            // A row is held only with at least half its allowance of missed charge free, so
-            // that a row whose missed charge does not relax (a floating node) is held a few
-            // times in a run, not again at every step.
-            let r = l.eq_row[u];
-            let qtol = MISSED_FRACTION * charge(r).0;
-            let share = (l.pending_f[u] * l.weight).abs();
-            if internal_ok && l.missed_at(u, t) + share <= 0.5 * qtol {
+            // A row that has already missed its run's allowance of charge stays active.
+            if internal_ok && l.missed[u] < charge_tol(l.eq_row[u]) {
                 l.held[u] = true;
-                l.qtol[u] = qtol;
-                l.add_missed(u, t, 0.0);
-                // The row's relaxation time `C_ii / G_ii` from the step's matrix (every
-                // element on an active row is live, so its diagonal is complete); none
-                // (infinite) unless both are positive and their ratio does not underflow.
-                let (j, c) = self.diagonal(r);
-                let g = j - l.a0 * c;
-                let tau = c / g;
-                l.tau[u] = if c > 0.0 && g > 0.0 && tau > 0.0 {
-                    tau
-                } else {
-                    f64::INFINITY
-                };
+                // `missed` is kept from earlier holds of this run: the charge a held row
+                // misses is not given back when it wakes, so the bound of one step's
+                // truncation tolerance is for the whole run, not for each hold (a leaking
+                // node would otherwise lose a tolerance's worth per hold, without bound).
+                l.pending[u] = 0.0;
+                l.qtol[u] = charge_tol(l.eq_row[u]);
                 l.changed.push(u);
             }
         }
-        let changed = !l.changed.is_empty();
-        self.latency = Some(l);
-        if changed {
+        if !l.changed.is_empty() {
             self.latency_refresh(x_new, t);
         }
     }
@@ -676,7 +511,6 @@ impl System {
             l.deadlines.pop();
             if l.deadline[u] == when && l.held[u] && !l.in_work[l.eq_row[u]] {
                 l.deadline[u] = f64::INFINITY;
-                l.settle_interior(u);
                 wake(l, u, &self.layout.loc_map, &self.layout.loc_start);
                 any = true;
             }
@@ -708,7 +542,7 @@ impl System {
         if reactivate(&mut l) {
             self.build_active(&mut l);
         }
-        let entered = self.build_work(&mut l);
+        let entered = self.build_work(&mut l, t);
         l.changed.clear();
         #[cfg(test)]
         self.check_partition(&l);
@@ -844,7 +678,7 @@ impl System {
     /// of the flipped elements (their live counts and frozen sums changed) and of the changed
     /// unknowns, with their trades; a row kept before is kept again unless it is one of them.
     /// Returns whether a row joined.
-    fn build_work(&self, l: &mut Latency) -> bool {
+    fn build_work(&self, l: &mut Latency, t: f64) -> bool {
         l.candidates.clear();
         for &e in &l.flipped {
             let e = e as usize;
@@ -874,9 +708,8 @@ impl System {
                 l.in_work[r] = true;
                 entered = true;
                 moved = true;
-                // The charge it missed while interior, to the last accepted step (the step
-                // being solved checks its row).
-                l.settle_interior(u);
+                // The charge it missed while interior.
+                l.missed[u] += l.leave_f[u].abs() * (t - l.leave_t[u]);
                 l.deadline[u] = f64::INFINITY;
             } else if !want && l.in_work[r] {
                 let f = l.fz_f[r];
@@ -884,24 +717,19 @@ impl System {
                     UnknownKind::Voltage => tol.abstol,
                     UnknownKind::Current => tol.vntol,
                 };
-                // A charge row may become interior while it has room left in its allowance of
-                // missed charge: its deadline wakes it when the room is used. A row without
-                // charge only within the same fraction of the current test a held row keeps.
-                let fits = if l.charge_k[r] != NONE {
-                    l.missed_at(u, l.t_acc) < l.qtol[u]
-                } else {
-                    f.abs() <= HOLD_FRACTION * (tol.reltol * l.fz_scale[r] + abs)
-                };
-                if !(l.held[u] && fits) {
+                // Interior only within the same fraction of the tolerance a held row must
+                // keep.
+                if !(l.held[u] && f.abs() <= HOLD_FRACTION * (tol.reltol * l.fz_scale[r] + abs)) {
                     continue;
                 }
                 l.in_work[r] = false;
                 moved = true;
                 l.left.push(r);
+                l.leave_t[u] = t;
                 l.leave_f[u] = f;
-                l.add_missed(u, l.t_acc, 0.0);
-                let when = l.interior_deadline(u, f);
-                if when.is_finite() {
+                let room = l.qtol[u] - l.missed[u];
+                if f != 0.0 && room.is_finite() {
+                    let when = t + room.max(0.0) / f.abs();
                     l.deadline[u] = when;
                     l.deadlines.push(Reverse((when.to_bits(), u)));
                 }

@@ -1189,13 +1189,6 @@ impl System {
         worst
     }
 
-    /// Row `r`'s diagonal entries of the last assembly: the Newton matrix (`G + α₀ C`) and
-    /// the capacitance matrix (`C`).
-    pub(crate) fn diagonal(&self, r: usize) -> (f64, f64) {
-        let d = self.layout.diag_slot[r];
-        (self.jac[d], self.cmat[d])
-    }
-
     fn row_abstol(&self, i: usize, tol: &Tolerances) -> f64 {
         match self.kinds[i] {
             UnknownKind::Voltage => tol.abstol,

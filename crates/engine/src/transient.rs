@@ -608,8 +608,6 @@ impl System {
             // Latency: wake the interior rows whose missed charge is due, then work on the
             // working rows only (all rows without latency).
             if p.latency {
-                let trapezoidal = method == Integrator::Trapezoidal;
-                self.latency_step(if trapezoidal { 0.5 * step } else { step }, t_new);
                 self.latency_due(&x, t_new);
             }
             // Predictor: the polynomial of the formula's order through the accepted points.
@@ -795,22 +793,17 @@ impl System {
                 };
                 qref[k] = qref[k].max(q_new[k].abs());
             });
-            // Latency: a held row's stored rate is its currents' (see
-            // `System::latency_settle_rates`).
-            self.latency_settle_rates(&mut qdot);
             flush_tiny(&mut qdot, work_k);
             if variable {
                 let acc = Accept::new(t_new, &hist.t, hist.valid);
                 each(work_k, nr, |k| acc.row(q_new[k], &mut phi[k]));
             }
             if p.latency {
-                let charge_of_row = |r: usize| {
-                    rows.binary_search(&r).map_or((f64::INFINITY, 0.0), |k| {
-                        let (qa, qb) = (q_new[k], hist.q[0][k]);
-                        (tol_of(k, qa, qb, &qref), (qa - qb).abs())
-                    })
+                let tol_of_row = |r: usize| {
+                    rows.binary_search(&r)
+                        .map_or(f64::INFINITY, |k| tol_of(k, q_new[k], hist.q[0][k], &qref))
                 };
-                self.latency_accepted(&x, &x_new, t_new, &p.tol, &charge_of_row);
+                self.latency_accepted(&x, &x_new, t_new, &p.tol, &tol_of_row);
             }
             hist.push(t_new, &q_new, &x_new, work_u, work_k);
             rate_known = true;
