@@ -517,7 +517,7 @@ impl System {
             (p.lte_reltol * qa.abs().max(qb.abs()).max(qref[k]) + p.chgtol) * loosening.get()
         };
 
-        let next_bp0 = self.next_breakpoint(0.0);
+        let next_bp0 = self.next_breakpoint(0.0, h_min);
         let mut h = match p.stepping {
             Stepping::Fixed(h) => h,
             Stepping::Adaptive => p.initial_step.unwrap_or_else(|| {
@@ -533,7 +533,7 @@ impl System {
         let mut x_new = vec![0.0; n];
         let mut stats = TransientStats::default();
         let mut restart = true;
-        let mut next_bp = self.next_breakpoint(t);
+        let mut next_bp = self.next_breakpoint(t, h_min);
         let mut newton = NewtonParams {
             tol: p.tol,
             max_iterations: p.max_newton_iterations,
@@ -886,7 +886,7 @@ impl System {
                 control.reset();
                 orders.reset();
                 quadratic = None;
-                next_bp = self.next_breakpoint(t);
+                next_bp = self.next_breakpoint(t, h_min);
                 if let Some(bp) = next_bp {
                     h = h.min(0.1 * (bp - t)).max(h_min * 10.0);
                 }
@@ -909,11 +909,15 @@ impl System {
         })
     }
 
-    fn next_breakpoint(&self, t: f64) -> Option<f64> {
+    /// The first breakpoint of any element more than `merge` (the smallest step) after `t`:
+    /// breakpoints closer together than a step can be are one (two sources' corners that
+    /// compute a rounding error apart would otherwise ask for a step of 1e-20 s).
+    fn next_breakpoint(&self, t: f64, merge: f64) -> Option<f64> {
+        let after = t + merge;
         self.breakpoint_elements
             .iter()
-            .filter_map(|&e| self.elements[e].next_breakpoint(t))
-            .filter(|&b| b > t)
+            .filter_map(|&e| self.elements[e].next_breakpoint(after))
+            .filter(|&b| b > after)
             .min_by(|a, b| a.total_cmp(b))
     }
 

@@ -1,0 +1,59 @@
+//! Breakpoints of two sources that fall a rounding error apart: a periodic pulse whose corner
+//! computes to 3.9999999999999996e-5 s beside a straight-line source with a corner at 4e-5 s.
+
+use lamina_engine::elements::{Capacitor, Pulse, Resistor, VoltageSource, Waveform};
+use lamina_engine::{Circuit, Output, Probe, Start, System, TransientParams};
+
+/// A pulse through 1 kOhm into 1 pF, and a ramp from 2 V to 0 at 4e-5 s through 1 kOhm into
+/// 1 fF; the ramp's node follows its source within the RC's lag.
+fn run(corner: f64) -> Result<(Vec<f64>, Vec<f64>), lamina_engine::EngineError> {
+    let period = 1e-6;
+    let pulse = Waveform::pulse(Pulse {
+        low: 0.0,
+        high: 1.0,
+        delay: 0.0,
+        rise: 0.1 * period,
+        fall: 0.2 * period,
+        width: 0.3 * period,
+        period: Some(period),
+    })
+    .unwrap();
+    let mut c = Circuit::new();
+    let g = Circuit::GROUND;
+    let (a, y) = (c.node("a"), c.node("y"));
+    c.add("v", VoltageSource::new(pulse), &[a, g]).unwrap();
+    c.add("r1", Resistor::new(1e3), &[a, y]).unwrap();
+    c.add("c1", Capacitor::new(1e-12), &[y, g]).unwrap();
+    let (b, z) = (c.node("b"), c.node("z"));
+    let ramp = Waveform::piecewise_linear(vec![(0.0, 2.0), (corner, 0.0)]).unwrap();
+    c.add("vr", VoltageSource::new(ramp), &[b, g]).unwrap();
+    c.add("r2", Resistor::new(1e3), &[b, z]).unwrap();
+    c.add("c2", Capacitor::new(1e-15), &[z, g]).unwrap();
+    let mut sys = System::new(c).unwrap();
+    let mut p = TransientParams::new(6e-5);
+    p.output = Output::Interval(1e-5);
+    let r = sys.transient(
+        &p,
+        &Start::Given(vec![(b, 2.0), (z, 2.0)]),
+        &[Probe::Voltage(z)],
+        None,
+    )?;
+    Ok((r.time, r.signals[0].clone()))
+}
+
+/// Two breakpoints closer than the smallest step are one: the run goes through (it stopped
+/// with a step of 6.8e-21 s before), and the ramp's node is at 2 (1 - t / 4e-5) V within the
+/// RC lag (1 ps against 40 us: 5e-8 of the slope's swing) before the corner and 0 after it
+/// (the ramp is a straight line, so its exact response has a constant lag: common practice).
+#[test]
+fn breakpoints_a_rounding_error_apart_are_one() {
+    let (t, v) = run(4e-5).expect("the run goes through");
+    for (&t, &v) in t.iter().zip(&v) {
+        let exact = if t < 4e-5 {
+            2.0 * (1.0 - t / 4e-5)
+        } else {
+            0.0
+        };
+        assert!((v - exact).abs() < 1e-6, "t = {t:e}: {v} vs {exact}");
+    }
+}
