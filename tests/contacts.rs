@@ -4,17 +4,12 @@
 //! the channel length.
 
 mod common;
-use common::{lamina, lamina_ok};
+use common::{lamina, lamina_ok, ScratchFile};
 use serde_json::Value;
-use std::path::PathBuf;
 
-/// A scratch file with `text`, unique per test.
-fn file(name: &str, text: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("lamina-contacts-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    let p = dir.join(name);
-    std::fs::write(&p, text).unwrap();
-    p
+/// A scratch file with `text` in a directory of its own (removed when it is dropped).
+fn file(name: &str, text: &str) -> ScratchFile {
+    ScratchFile::new("contacts", name, text)
 }
 
 const STACK: &str = "channel = MoS2, insulator = hBN, insulator_layers = 10";

@@ -2,9 +2,11 @@
 //! method on an analytic square-law device with series resistance, the three thresholds, the
 //! field-effect mobility, the swing of an exponential, and the CLI with located errors.
 
+mod common;
+use common::ScratchFile;
 use lamina::extract::{extract, read_card, Card, ExtractConfig, Extraction};
 use lamina_netlist::table::{parse_table, TableOptions};
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::process::Command;
 
 const DEMO_CARD: &str = "netlists/demo/n-device.lam";
@@ -26,12 +28,9 @@ fn lamina(args: &[&str]) -> std::process::Output {
         .unwrap()
 }
 
-fn temp(name: &str, text: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("lamina-extract-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    let p = dir.join(name);
-    std::fs::write(&p, text).unwrap();
-    p
+/// A scratch file with `text` in a directory of its own (removed when it is dropped).
+fn temp(name: &str, text: &str) -> ScratchFile {
+    ScratchFile::new("extract", name, text)
 }
 
 /// Linear-region square law with series resistance (G. Ghibaudo, Electron. Lett. 24, 543,

@@ -77,3 +77,27 @@ impl Drop for Scratch {
         }
     }
 }
+
+/// A file with its own [`Scratch`] directory, removed with it; derefs to the file's path.
+pub struct ScratchFile {
+    path: std::path::PathBuf,
+    _dir: Scratch,
+}
+
+impl ScratchFile {
+    /// Writes `text` to `name` in a new scratch directory named after `prefix`.
+    pub fn new(prefix: &str, name: &str, text: &str) -> Self {
+        let dir = Scratch::new(prefix);
+        let path = dir.join(name);
+        std::fs::write(&path, text).expect("scratch file");
+        ScratchFile { path, _dir: dir }
+    }
+}
+
+impl std::ops::Deref for ScratchFile {
+    type Target = Path;
+
+    fn deref(&self) -> &Path {
+        &self.path
+    }
+}
