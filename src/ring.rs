@@ -818,12 +818,14 @@ fn run_periods(
             if steps % 2000 == 0 {
                 bar.set_message(format!("t = {:.3} ns, {steps} steps", t * 1e9));
             }
-            // Stop once `needed` crossings are located (the last one a step after it is
-            // seen, so that the cubic rule places it) and the last `measure` periods agree.
+            // Stop once `needed` crossings are located, none pending (the newest one a step
+            // after it is seen, so that the cubic rule places it), and the last `measure`
+            // periods agree.
             let seen = periods.ups_linear.len();
             let located = periods.ups.len();
             let stalled = monitor.step(t, outputs);
-            if stalled || (located >= needed && periods.settled(params.measure)) || seen > cap {
+            let placed = located >= needed && located == seen;
+            if stalled || (placed && periods.settled(params.measure)) || seen > cap {
                 Control::Stop
             } else if seen > params.discard || (seen == params.discard && outputs[0] < level) {
                 // Half a period before the measured periods begin (out[0] falling through

@@ -138,6 +138,10 @@ pub enum Control {
     Tighten,
 }
 
+/// Rounding steps (units of `f64::EPSILON` relative to the time) within which a breakpoint
+/// counts as the point just reached.
+const BREAKPOINT_ROUNDING: f64 = 16.0;
+
 /// Parameters of a transient run.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct TransientParams {
@@ -517,7 +521,7 @@ impl System {
             (p.lte_reltol * qa.abs().max(qb.abs()).max(qref[k]) + p.chgtol) * loosening.get()
         };
 
-        let next_bp0 = self.next_breakpoint(0.0, h_min);
+        let next_bp0 = self.next_breakpoint(0.0);
         let mut h = match p.stepping {
             Stepping::Fixed(h) => h,
             Stepping::Adaptive => p.initial_step.unwrap_or_else(|| {
@@ -533,7 +537,7 @@ impl System {
         let mut x_new = vec![0.0; n];
         let mut stats = TransientStats::default();
         let mut restart = true;
-        let mut next_bp = self.next_breakpoint(t, h_min);
+        let mut next_bp = self.next_breakpoint(t);
         let mut newton = NewtonParams {
             tol: p.tol,
             max_iterations: p.max_newton_iterations,
@@ -886,7 +890,7 @@ impl System {
                 control.reset();
                 orders.reset();
                 quadratic = None;
-                next_bp = self.next_breakpoint(t, h_min);
+                next_bp = self.next_breakpoint(t);
                 if let Some(bp) = next_bp {
                     h = h.min(0.1 * (bp - t)).max(h_min * 10.0);
                 }
@@ -909,11 +913,13 @@ impl System {
         })
     }
 
-    /// The first breakpoint of any element more than `merge` (the smallest step) after `t`:
-    /// breakpoints closer together than a step can be are one (two sources' corners that
-    /// compute a rounding error apart would otherwise ask for a step of 1e-20 s).
-    fn next_breakpoint(&self, t: f64, merge: f64) -> Option<f64> {
-        let after = t + merge;
+    /// The first breakpoint of any element after `t`, passing over those within
+    /// [`BREAKPOINT_ROUNDING`] rounding steps of `t`: two sources' corners that compute a
+    /// rounding error apart are one corner (they would otherwise ask for a step of 1e-20 s).
+    /// Corners further apart than that are never merged, however close: a step below the
+    /// smallest step then stops the run with its error, never skips a corner silently.
+    fn next_breakpoint(&self, t: f64) -> Option<f64> {
+        let after = t + BREAKPOINT_ROUNDING * f64::EPSILON * t.abs();
         self.breakpoint_elements
             .iter()
             .filter_map(|&e| self.elements[e].next_breakpoint(after))
