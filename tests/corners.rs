@@ -12,8 +12,9 @@
 
 use lamina::montecarlo::{corner_value, corners, run_corners, Applied, SampleRow};
 use lamina_netlist::Distribution;
-use std::path::{Path, PathBuf};
-use std::sync::atomic::{AtomicUsize, Ordering};
+mod common;
+use common::Scratch;
+use std::path::Path;
 
 const DIVIDER: &str = "\
 device ru : resistor { resistance = 1 kOhm }
@@ -30,14 +31,9 @@ variation c.capacitance { distribution = uniform(half_width = 0.1 pF), scope = g
 analysis operating_point
 ";
 
-/// A directory of its own for one test.
-fn scratch(name: &str) -> PathBuf {
-    static N: AtomicUsize = AtomicUsize::new(0);
-    let n = N.fetch_add(1, Ordering::Relaxed);
-    let dir =
-        std::env::temp_dir().join(format!("lamina-corners-{}-{n}-{name}", std::process::id()));
-    std::fs::create_dir_all(&dir).expect("temporary directory");
-    dir
+/// A directory of its own for one test (removed when the test ends).
+fn scratch(name: &str) -> Scratch {
+    Scratch::new(&format!("corners-{name}"))
 }
 
 /// Writes `text` and runs its corners at `k`.
@@ -120,7 +116,6 @@ fn one_at_a_time_corners_give_the_closed_form_divider_outputs() {
         assert_eq!(r.draws.len(), 3, "{:?}", r.draws);
         assert!(r.draws.iter().all(|(k, _)| !k.contains("local")));
     }
-    std::fs::remove_dir_all(&dir).expect("clean up");
 }
 
 #[test]
@@ -146,7 +141,6 @@ fn all_combinations_give_two_to_the_n_corners_plus_nominal() {
     let rl = 1000.0 * (-0.2f64).exp();
     let want = rl / (960.0 + rl);
     assert!((got / want - 1.0).abs() < REL, "{got} against {want}");
-    std::fs::remove_dir_all(&dir).expect("clean up");
 }
 
 #[test]
@@ -292,5 +286,4 @@ fn the_command_lists_the_corners_that_fail_a_limit() {
         cmd(&[f, "--all-combinations", "--runs", "4"]).status.code(),
         Some(2)
     );
-    std::fs::remove_dir_all(&dir).expect("clean up");
 }

@@ -14,11 +14,10 @@
 
 mod common;
 
-use common::files;
+use common::{files, Scratch};
 use lamina::montecarlo::{shard_range, stable_hash};
 use std::path::{Path, PathBuf};
 use std::process::Output;
-use std::sync::atomic::{AtomicUsize, Ordering};
 
 const CIRCUIT: &str = "\
 device r : resistor { resistance = 1 kOhm }
@@ -39,13 +38,9 @@ analysis transient { stop = 3 ns, record = [out] }
 
 const SPEC: &str = "operating_point.mid_v>0.49V";
 
-/// A directory of its own for one test.
-fn scratch(name: &str) -> PathBuf {
-    static N: AtomicUsize = AtomicUsize::new(0);
-    let n = N.fetch_add(1, Ordering::Relaxed);
-    let dir = std::env::temp_dir().join(format!("lamina-shards-{}-{n}-{name}", std::process::id()));
-    std::fs::create_dir_all(&dir).expect("temporary directory");
-    dir
+/// A directory of its own for one test (removed when the test ends).
+fn scratch(name: &str) -> Scratch {
+    Scratch::new(&format!("shards-{name}"))
 }
 
 fn lamina(args: &[&str]) -> Output {
@@ -174,7 +169,6 @@ fn four_merged_shards_give_the_single_machine_report_and_files_byte_for_byte() {
             "{name} differs between the single run and the merge"
         );
     }
-    std::fs::remove_dir_all(&dir).expect("clean up");
 }
 
 #[test]
@@ -221,7 +215,6 @@ fn merge_refuses_parts_that_are_missing_twice_or_of_another_run() {
     let (code, err) = merge(&[&junk]);
     assert_eq!(code, Some(4));
     assert!(err.contains("not a part file"), "{err}");
-    std::fs::remove_dir_all(&dir).expect("clean up");
 }
 
 #[test]
@@ -245,7 +238,6 @@ fn shard_values_other_than_k_of_n_are_usage_errors() {
         "1/2",
     ]);
     assert_eq!(out.status.code(), Some(2));
-    std::fs::remove_dir_all(&dir).expect("clean up");
 }
 
 #[test]

@@ -48,8 +48,8 @@ fn run(corner: f64) -> Result<(Vec<f64>, Vec<f64>), lamina_engine::EngineError> 
     Ok((r.time, r.signals[0].clone()))
 }
 
-/// Two breakpoints closer than the smallest step are one: the run goes through (it stopped
-/// with a step of 6.8e-21 s before), and the ramp's node is at 2 (1 - t / 4e-5) V within the
+/// Two breakpoints a rounding step apart are one: the run goes through (it stopped with a
+/// step of 6.8e-21 s before), and the ramp's node is at 2 (1 - t / 4e-5) V within the
 /// RC lag (1 ps against 40 us: 5e-8 of the slope's swing) before the corner and 0 after it
 /// (the ramp is a straight line, so its exact response has a constant lag: common practice).
 #[test]
