@@ -17,6 +17,31 @@
 //! contributions are `α₀` times the largest single element charge and the history term). Updates are damped so that no
 //! voltage moves by more than `max_voltage_step` per iteration.
 //!
+//! # Update test in time
+//! In a transient two things change in the update test, both so that Newton's first update
+//! (the predictor's error) passes when the state it leads to is as accurate as the test asks:
+//!
+//! * A voltage's update is measured against the largest `|x_i|` that voltage has had in the
+//!   run, `V_i`: `|Δ_i| ≤ reltol max(|x_i|, |x_i + Δ_i|, V_i) + vntol`, as the
+//!   truncation-error test measures a charge against its largest value and the bypass a
+//!   device's voltages against theirs. A node resting at 0 V after swinging to 1 V gets
+//!   `reltol · 1 V`, not `vntol`; a node whose whole range is 10 mV keeps `reltol · 10 mV`
+//!   (`tests/transient.rs`, algebraic nodes at both scales). Without this a settled node's
+//!   predictor error of a few microvolts forced a second, confirming iteration at most steps
+//!   (the confirming update was at the median 3e-10 of the tolerance).
+//! * An ideal voltage source's branch current is left out of the update test: it enters every
+//!   equation linearly (`f = [i, -i, x_pos - x_neg - V]`, and no other element sees it), so
+//!   with `x = (v, i)` and `F = g(v) + B i` the state after an update has the residual
+//!   `g(v + Δv) - g(v) - (∂g/∂v) Δv`, which depends on `Δv` alone: the current's own update,
+//!   however large (the predictor's error on a supply current at an edge), says nothing about
+//!   convergence, and its error after the update follows the voltages'. Its row and the
+//!   residual test are unchanged.
+//!
+//! Measured (default tolerances): Newton iterations per accepted step 2.03 -> 1.18 on the
+//! demo 21-stage 2D-FET ring and 1.99 -> 1.04 on the 101-stage square-law ring, their
+//! frequencies moved by 1.0e-7 and 2.1e-8 (the defaults' own errors against the reference
+//! setting: 5.5e-5 and 1.4e-4). DC analyses keep the plain test.
+//!
 //! # Pinned unknowns
 //! A node held by an ideal voltage source to ground ([`Element::is_ideal_voltage_source`]: a
 //! supply) is known in every solve: the source's row reads `x_node = V`. Its column (every
@@ -668,6 +693,12 @@ pub struct System {
     evaluations: DeviceEvaluations,
     /// The active/latent partition of the running transient, when it uses one.
     pub(crate) latency: Option<Latency>,
+    /// Per unknown: it enters every equation linearly (an ideal voltage source's branch
+    /// current), so the time-domain update test leaves it out (module doc, "Update test in
+    /// time").
+    linear_unknown: Vec<bool>,
+    /// Per voltage unknown: the largest `|x_i|` of the running transient (empty outside one).
+    voltage_range: Vec<f64>,
 }
 
 impl System {
@@ -688,6 +719,7 @@ impl System {
             .map(|name| node_label(name))
             .collect();
         let mut unknown_owner = vec![None; n_nodes];
+        let mut linear_unknown = vec![false; n_nodes];
         let mut loc_start = Vec::new();
         let mut loc_map = Vec::new();
         let mut slot_start = Vec::new();
@@ -706,6 +738,7 @@ impl System {
             }
             for internal in entry.element.internals() {
                 let idx = kinds.len();
+                linear_unknown.push(entry.element.is_ideal_voltage_source());
                 kinds.push(internal.kind);
                 unknown_names.push(format!("{}.{}", entry.name, internal.name));
                 unknown_owner.push(Some(e));
@@ -876,6 +909,8 @@ impl System {
             bypass: BypassCache::default(),
             evaluations: DeviceEvaluations::default(),
             latency: None,
+            linear_unknown,
+            voltage_range: Vec::new(),
         })
     }
 
@@ -903,6 +938,17 @@ impl System {
     /// Forgets every stored stamp, so that a run does not depend on the runs before it.
     pub(crate) fn reset_bypass(&mut self) {
         self.bypass.reset();
+    }
+
+    /// Starts a transient's voltage ranges at `|x|` (module doc, "Update test in time").
+    pub(crate) fn begin_voltage_range(&mut self, x: &[f64]) {
+        self.voltage_range.clear();
+        self.voltage_range.extend(x.iter().map(|v| v.abs()));
+    }
+
+    /// Ends the voltage ranges: later solves (DC, small-signal) use the plain update test.
+    pub(crate) fn end_voltage_range(&mut self) {
+        self.voltage_range.clear();
     }
 
     /// What the LU solver has done so far.
@@ -1297,10 +1343,20 @@ impl System {
                 1.0
             };
             let mut norm = 0.0f64;
+            // In time: voltages against their range so far, linear unknowns left out.
+            let in_time = load.a0 != 0.0 && self.voltage_range.len() == n;
             if lambda == 1.0 {
                 each(active, n, |i| {
-                    let bound = tol.reltol * x[i].abs().max((x[i] + delta[i]).abs())
-                        + self.unknown_abstol(i, &tol);
+                    let mut size = x[i].abs().max((x[i] + delta[i]).abs());
+                    if in_time {
+                        if self.linear_unknown[i] {
+                            return;
+                        }
+                        if self.kinds[i] == UnknownKind::Voltage {
+                            size = size.max(self.voltage_range[i]);
+                        }
+                    }
+                    let bound = tol.reltol * size + self.unknown_abstol(i, &tol);
                     norm = norm.max(delta[i].abs() / bound);
                 });
             }
@@ -1321,6 +1377,14 @@ impl System {
                 // integrator will store are carried along it to first order, q += (∂q/∂x) Δ,
                 // so unknowns and charges agree to O(Δ²) without another evaluation.
                 each(active, n, |i| x[i] += delta[i]);
+                if in_time {
+                    let range = &mut self.voltage_range;
+                    each(active, n, |i| {
+                        if self.kinds[i] == UnknownKind::Voltage {
+                            range[i] = range[i].max(x[i].abs());
+                        }
+                    });
+                }
                 if load.a0 != 0.0 {
                     self.with_latency_lists(latent, |s, active, rows| {
                         s.carry_charges(&delta, active, rows)
@@ -1705,7 +1769,9 @@ mod tests {
         p.tol.vntol = 1e-12;
         let (time, vx) = run(&mut sys, &p);
         let evals = sys.device_evaluations();
-        assert!(evals.bypassed > evals.evaluated / 4, "{evals:?}");
+        // About a fifth of the evaluations are bypassed (more before Newton's update test in
+        // time left the source's current out: second iterations were mostly bypassed).
+        assert!(evals.bypassed > evals.evaluated / 6, "{evals:?}");
         // Every sample where the drive is back at 0 V (from 0.6 to 1.0 of each period).
         let mut checked = 0;
         for (t, v) in time.iter().zip(&vx) {

@@ -31,7 +31,9 @@
 //! `q_ref` is the largest `|q|` the row has had so far; a proportional-integral controller
 //! chooses the next step from the worst ratio of this step and the last. Newton accepts an
 //! update within its tolerances once the residual passed or, from a measured
-//! quadratic-convergence constant, would pass. The constants, the
+//! quadratic-convergence constant, would pass; in time a voltage's update is measured against
+//! its range so far and a supply's current is left out (`system` module doc, "Update test in
+//! time"), so most steps take one iteration. The constants, the
 //! controller and their sources are in the `stepping` module.
 //!
 //! Source corners are breakpoints: the step is cut to land on each one, the history restarts
@@ -565,6 +567,7 @@ impl System {
         if p.latency {
             self.latency_begin(p.tol);
         }
+        self.begin_voltage_range(&x);
 
         while t < p.stop_time * (1.0 - 1e-12) {
             // Choose this step's length and method.
@@ -581,6 +584,7 @@ impl System {
             }
             if step < h_min {
                 self.latency_end();
+                self.end_voltage_range();
                 return Err(self.step_error(t, step, last_failure.take(), last_fail_time));
             }
             let method = if (restart && p.damp_breakpoints)
@@ -896,6 +900,7 @@ impl System {
                 }
             }
         }
+        self.end_voltage_range();
         if let Some((latent, active)) = self.latency_end() {
             stats.latent_unknown_steps = latent;
             stats.active_unknown_steps = active;
@@ -1228,11 +1233,13 @@ pub(crate) mod tests {
 
     /// An RC low-pass (τ = 1 ns) driven by a sine at ω τ = 1 from rest, against the closed form
     /// `v = A / (1 + (ωτ)²) (sin ωt - ωτ cos ωt + ωτ e^{-t/τ})` (first-order response, common
-    /// practice). The controller rejects almost nothing, and Newton takes at most two
-    /// iterations on the linear circuit (one solves it; a second confirms when the first update,
-    /// the predictor's error, exceeded the Newton tolerances: measured 1.48 per attempt).
+    /// practice). The controller rejects almost nothing, and Newton mostly takes one iteration
+    /// on the linear circuit (it solves it; a second confirms when the first update, the
+    /// predictor's error, exceeded the Newton tolerances, which the source's current, left out
+    /// of the update test in time, no longer does): measured 1.10 per attempt, 1.48 when the
+    /// source's current counted.
     #[test]
-    fn a_driven_rc_is_accurate_with_few_rejections_and_at_most_two_newton_iterations() {
+    fn a_driven_rc_is_accurate_with_few_rejections_and_mostly_one_newton_iteration() {
         let (mut sys, out, tau) = driven_rc();
         let (amp, omega) = (1.0, 1.0 / tau);
         let stop = 10.0 * 2.0 * std::f64::consts::PI * tau;
@@ -1255,7 +1262,7 @@ pub(crate) mod tests {
         let s = res.stats;
         let attempts = s.accepted + s.rejected_lte + s.rejected_newton;
         assert!(s.rejected_lte * 50 <= s.accepted, "{s:?}");
-        assert!(s.newton_iterations <= attempts * 2, "{s:?}");
+        assert!(s.newton_iterations * 10 <= attempts * 12, "{s:?}");
     }
 
     /// A capacitor discharging through a resistor for 20,000 time constants: its voltage passes
