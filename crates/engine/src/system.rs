@@ -21,14 +21,18 @@
 //! In a transient two things change in the update test, both so that Newton's first update
 //! (the predictor's error) passes when the state it leads to is as accurate as the test asks:
 //!
-//! * A voltage's update is measured against the largest `|x_i|` that voltage has had in the
-//!   run, `V_i`: `|Δ_i| ≤ reltol max(|x_i|, |x_i + Δ_i|, V_i) + vntol`, as the
-//!   truncation-error test measures a charge against its largest value and the bypass a
-//!   device's voltages against theirs. A node resting at 0 V after swinging to 1 V gets
-//!   `reltol · 1 V`, not `vntol`; a node whose whole range is 10 mV keeps `reltol · 10 mV`
-//!   (`tests/transient.rs`, algebraic nodes at both scales). Without this a settled node's
-//!   predictor error of a few microvolts forced a second, confirming iteration at most steps
-//!   (the confirming update was at the median 3e-10 of the tolerance).
+//! * A voltage on a row that carries charge has its update measured against the largest
+//!   `|x_i|` it has had on the run's accepted steps, `V_i`:
+//!   `|Δ_i| ≤ reltol max(|x_i|, |x_i + Δ_i|, V_i) + vntol`, as the truncation-error test
+//!   measures that row's charge against its largest value (and the bypass a device's voltages
+//!   against theirs). A charged node resting at 0 V after swinging to 1 V gets
+//!   `reltol · 1 V`, not `vntol`. A node without charge keeps the plain bound: no
+//!   truncation-error test watches it, and a review measured what a range that never shrinks
+//!   does there (a charge-less node at a square-law region boundary, after a 1 V excursion
+//!   and then working within 7 mV: 1.1e-5 V off its closed form against 3e-10 V with the
+//!   plain bound; after 10 V, 0.7 mV; `tests/transient.rs`). Without the range a settled
+//!   node's predictor error of a few microvolts forced a second, confirming iteration at
+//!   most steps (the confirming update was at the median 3e-10 of the tolerance).
 //! * An ideal voltage source's branch current is left out of the update test: it enters every
 //!   equation linearly (`f = [i, -i, x_pos - x_neg - V]`, and no other element sees it), so
 //!   with `x = (v, i)` and `F = g(v) + B i` the state after an update has the residual
@@ -697,7 +701,11 @@ pub struct System {
     /// current), so the time-domain update test leaves it out (module doc, "Update test in
     /// time").
     linear_unknown: Vec<bool>,
-    /// Per voltage unknown: the largest `|x_i|` of the running transient (empty outside one).
+    /// Per unknown: a voltage on a row that carries charge, whose update the time-domain test
+    /// measures against its range (module doc, "Update test in time").
+    ranged: Vec<bool>,
+    /// Per unknown: the largest `|x_i|` of the running transient's accepted steps (empty
+    /// outside one; read for `ranged` unknowns only).
     voltage_range: Vec<f64>,
 }
 
@@ -866,6 +874,9 @@ impl System {
             }
         }
         let charge_rows = (0..n).filter(|&i| is_charge_row[i]).collect();
+        let ranged = (0..n)
+            .map(|i| is_charge_row[i] && kinds[i] == UnknownKind::Voltage)
+            .collect();
         let any_bypassable = plan.iter().any(|p| p.bypass);
         Ok(System {
             elements,
@@ -910,6 +921,7 @@ impl System {
             evaluations: DeviceEvaluations::default(),
             latency: None,
             linear_unknown,
+            ranged,
             voltage_range: Vec::new(),
         })
     }
@@ -944,6 +956,13 @@ impl System {
     pub(crate) fn begin_voltage_range(&mut self, x: &[f64]) {
         self.voltage_range.clear();
         self.voltage_range.extend(x.iter().map(|v| v.abs()));
+    }
+
+    /// Widens the voltage ranges by an accepted step's unknowns `x` (those in `subset` when
+    /// given).
+    pub(crate) fn widen_voltage_range(&mut self, x: &[f64], subset: Option<&[usize]>) {
+        let range = &mut self.voltage_range;
+        each(subset, self.n, |i| range[i] = range[i].max(x[i].abs()));
     }
 
     /// Ends the voltage ranges: later solves (DC, small-signal) use the plain update test.
@@ -1352,7 +1371,7 @@ impl System {
                         if self.linear_unknown[i] {
                             return;
                         }
-                        if self.kinds[i] == UnknownKind::Voltage {
+                        if self.ranged[i] {
                             size = size.max(self.voltage_range[i]);
                         }
                     }
@@ -1377,14 +1396,6 @@ impl System {
                 // integrator will store are carried along it to first order, q += (∂q/∂x) Δ,
                 // so unknowns and charges agree to O(Δ²) without another evaluation.
                 each(active, n, |i| x[i] += delta[i]);
-                if in_time {
-                    let range = &mut self.voltage_range;
-                    each(active, n, |i| {
-                        if self.kinds[i] == UnknownKind::Voltage {
-                            range[i] = range[i].max(x[i].abs());
-                        }
-                    });
-                }
                 if load.a0 != 0.0 {
                     self.with_latency_lists(latent, |s, active, rows| {
                         s.carry_charges(&delta, active, rows)

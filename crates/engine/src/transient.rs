@@ -793,6 +793,7 @@ impl System {
             // Accept (with latency, the working rows only: the interior rows' values and
             // histories stay constant while they are interior).
             flush_tiny(&mut x_new, work_u);
+            self.widen_voltage_range(&x_new, work_u);
             each(work_k, nr, |k| {
                 qdot[k] = match method {
                     Integrator::BackwardEuler => (q_new[k] - hist.q[0][k]) / step,
@@ -1236,8 +1237,9 @@ pub(crate) mod tests {
     /// practice). The controller rejects almost nothing, and Newton mostly takes one iteration
     /// on the linear circuit (it solves it; a second confirms when the first update, the
     /// predictor's error, exceeded the Newton tolerances, which the source's current, left out
-    /// of the update test in time, no longer does): measured 1.10 per attempt, 1.48 when the
-    /// source's current counted.
+    /// of the update test in time, no longer does; the driven node, without charge, keeps the
+    /// plain bound and still does near its zero crossings): measured 1.24 per attempt, 1.48
+    /// when the source's current counted.
     #[test]
     fn a_driven_rc_is_accurate_with_few_rejections_and_mostly_one_newton_iteration() {
         let (mut sys, out, tau) = driven_rc();
@@ -1262,7 +1264,7 @@ pub(crate) mod tests {
         let s = res.stats;
         let attempts = s.accepted + s.rejected_lte + s.rejected_newton;
         assert!(s.rejected_lte * 50 <= s.accepted, "{s:?}");
-        assert!(s.newton_iterations * 10 <= attempts * 12, "{s:?}");
+        assert!(s.newton_iterations * 10 <= attempts * 13, "{s:?}");
     }
 
     /// A capacitor discharging through a resistor for 20,000 time constants: its voltage passes
