@@ -68,10 +68,13 @@
 //!   of the unknowns would stay active if every row ready to be held were held; the rows'
 //!   quiet steps are counted throughout, and Newton checks the residuals against the hold
 //!   tests (it wakes nothing, nothing being held) only from the step after enough rows have
-//!   been quiet long enough. A run starts in the fallback. Entering it, an interior row's
-//!   missed charge is brought to the last accepted time as when any neighbour wakes it; the
-//!   missed charge is kept through the fallback, so each row's allowance stays one for the
-//!   whole run.
+//!   been quiet long enough. A run starts in the fallback. After a hold shorter than
+//!   [`SHORT_HOLD`] accepted steps the fallback waits, for longer after each such hold,
+//!   before it may hold again: on a ring whose active share hovers between the two
+//!   thresholds the switches themselves would cost more than holding saves. Entering the
+//!   fallback, an interior row's missed charge is brought to the last accepted time as when
+//!   a neighbour wakes it; the missed charge is kept through the fallback, so each row's
+//!   allowance stays one step's truncation tolerance for the whole run.
 //!
 //! *Accuracy.* A step with latent unknowns is accepted only when every equation, latent or
 //! active, passes the residual test Newton applies to the full system: the accepted state is a
@@ -120,6 +123,17 @@ pub(crate) const FULL_ABOVE: f64 = 0.5;
 /// below which the fallback holds again. Below [`FULL_ABOVE`], so that a share near either
 /// does not switch at every step.
 pub(crate) const HOLD_BELOW: f64 = 0.3;
+/// A hold that falls back within this many accepted steps was too short to pay for its
+/// switches (each wakes or holds every row at once); the fallback then waits before holding
+/// again, [`BACKOFF_FIRST`] accepted steps after the first such hold and twice as long after
+/// each next one, up to [`BACKOFF_MAX`]; a longer hold starts the wait afresh. Without the
+/// wait the 101-stage demo 2D-FET ring switched 7,192 times in 42,946 steps and ran 1.3-1.7x
+/// slower than the plain solve (DEVELOPERS.md, Latency).
+pub(crate) const SHORT_HOLD: u64 = 32;
+/// See [`SHORT_HOLD`].
+pub(crate) const BACKOFF_FIRST: u64 = 32;
+/// See [`SHORT_HOLD`].
+pub(crate) const BACKOFF_MAX: u64 = 4096;
 
 /// The latent/active partition of one transient run, and the solver of the active system.
 pub(crate) struct Latency {
@@ -130,6 +144,10 @@ pub(crate) struct Latency {
     fallback: bool,
     /// Switches between holding and the fallback.
     switches: u64,
+    /// Accepted steps since the last switch, and how many the fallback waits before it may
+    /// hold again (see [`SHORT_HOLD`]).
+    since_switch: u64,
+    backoff: u64,
     /// In the fallback: whether Newton checks every row's residual (which rows could be
     /// held), from the step after enough rows have been quiet long enough.
     watch: bool,
@@ -237,9 +255,15 @@ impl Latency {
     /// refresh the steps solve the whole system as latency off does.
     fn suspend(&mut self) {
         self.release_all();
+        self.backoff = if self.since_switch < SHORT_HOLD {
+            (2 * self.backoff).clamp(BACKOFF_FIRST, BACKOFF_MAX)
+        } else {
+            0
+        };
         self.on = false;
         self.watch = false;
         self.switches += 1;
+        self.since_switch = 0;
     }
 
     /// Row `r`'s truncation-error tolerance from `charge_tol`, which takes its index among
@@ -313,6 +337,8 @@ impl System {
             on: !fallback,
             fallback,
             switches: 0,
+            since_switch: 0,
+            backoff: 0,
             watch: false,
             held: vec![false; n],
             quiet: vec![0; n],
@@ -475,6 +501,7 @@ impl System {
             return;
         };
         l.latent_steps += (self.n - l.work.len()) as u64;
+        l.since_switch += 1;
         for &u in &l.work {
             if l.held[u] {
                 l.missed[u] += l.pending[u];
@@ -527,11 +554,15 @@ impl System {
         }
     }
 
-    /// In the fallback, after an accepted step: watches the residuals from the next step once
-    /// few unknowns would stay active counting the quiet ones, and resumes holding (`on`) once,
-    /// on a watched step, few would stay active counting those ready to be held (nothing is
-    /// held in the fallback, so every row is working and `work` lists every unknown).
+    /// In the fallback, after an accepted step and once its wait is over (see
+    /// [`SHORT_HOLD`]): watches the residuals from the next step once few unknowns would stay
+    /// active counting the quiet ones, and resumes holding (`on`) once, on a watched step,
+    /// few would stay active counting those ready to be held (nothing is held in the
+    /// fallback, so every row is working and `work` lists every unknown).
     fn maybe_resume(&self, l: &mut Latency, charge_tol: &dyn Fn(usize) -> f64) {
+        if l.since_switch < l.backoff {
+            return;
+        }
         let few = |ready: usize| ((self.n - ready) as f64) < HOLD_BELOW * self.n as f64;
         let settled = l
             .work
@@ -549,6 +580,7 @@ impl System {
             if few(ready) {
                 l.on = true;
                 l.switches += 1;
+                l.since_switch = 0;
             }
         }
     }

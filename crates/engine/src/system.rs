@@ -1958,6 +1958,8 @@ mod latency_tests {
         p.tol.abstol = 1e-18;
         p.tol.vntol = 1e-12;
         p.latency = true;
+        // Holding on a three-unknown circuit: no whole-system fallback.
+        p.latency_fallback = false;
         let res = run_latent(&mut sys, &p);
         assert!(
             res.stats.latent_unknown_steps > res.stats.active_unknown_steps / 10,
@@ -1989,6 +1991,8 @@ mod latency_tests {
         let mut p = TransientParams::new(5.0 * PERIOD);
         p.output = Output::Interval(PERIOD / 200.0);
         p.latency = true;
+        // Holding on a three-unknown circuit: no whole-system fallback.
+        p.latency_fallback = false;
         let mut sys = circuit(true, true);
         let on = run_latent(&mut sys, &p);
         assert!(on.stats.latent_unknown_steps > 0, "{:?}", on.stats);
