@@ -168,7 +168,7 @@ fn the_fallback_switches_both_ways_and_keeps_the_period() {
 /// the fallback wait longer each time before it holds again (`latency::SHORT_HOLD`): without
 /// that wait this window switched 1,538 times in 7,609 steps (the whole `lamina ring` run
 /// 7,192 times in 42,946), with it 22 times. The end state stays within Newton's tolerance
-/// of the full solve (measured 6.7e-13 V).
+/// of the full solve (measured 6.7e-13 V), and a second run is the same bit for bit.
 #[test]
 fn the_fallback_does_not_switch_at_every_step() {
     let run = |latency: bool| {
@@ -191,4 +191,6 @@ fn the_fallback_does_not_switch_at_every_step() {
         .fold(0.0, f64::max);
     assert!(on.stats.latency_switches < 100, "{:?}", on.stats);
     assert!(worst < 1e-3, "largest difference {worst}");
+    // The switches and the waits depend on the run's own steps only.
+    assert_eq!(on, run(true));
 }
