@@ -5,7 +5,9 @@
 //! and so show what the pinned supply alone saves. Then the single-edge window of long
 //! square-law rings (1 ns from the single-edge start, about 25 stage delays) with latency off
 //! and on (`TransientParams::latency`): off, every step costs in proportion to the ring;
-//! on, Newton assembles, factorises and solves the few moving stages only.
+//! on, Newton assembles, factorises and solves the few moving stages only. And the demo
+//! process at 101 stages (10 ns) off and on, where latency mostly takes its whole-system
+//! fallback.
 
 use lamina::builtin::{square_ring, SquareStage};
 use lamina::design::{load, ring_from};
@@ -31,6 +33,22 @@ fn demo_ring_21_four_ns(bencher: divan::Bencher, bypass: f64) {
     let start = single_edge_start(&ring);
     let probe = Probe::Voltage(ring.outputs[0]);
     bencher.bench_local(|| window(&mut sys, &start, probe, 4e-9, bypass));
+}
+
+/// The demo process at 101 stages, 10 ns from the single-edge start, latency off and on:
+/// with latency its active share hovers about the whole-system fallback's thresholds, so this
+/// times the fallback's switching and watching against the plain solve.
+#[divan::bench(consts = [false, true], sample_count = 3, sample_size = 1)]
+fn demo_ring_101_ten_ns<const LATENT: bool>(bencher: divan::Bencher) {
+    let sets = [("stages".to_string(), "101".to_string())];
+    let design = load(Path::new("netlists/demo/ring-21.lam"), &sets).unwrap();
+    let (mut sys, ring, _) = ring_from(design, &RingParams::default()).unwrap();
+    let start = single_edge_start(&ring);
+    let probe = Probe::Voltage(ring.outputs[0]);
+    let mut p = TransientParams::new(10e-9);
+    p.output = Output::Streaming;
+    p.latency = LATENT;
+    bencher.bench_local(|| divan::black_box(sys.transient(&p, &start, &[probe], None).unwrap()));
 }
 
 #[divan::bench(args = [0.0, 1.0], sample_count = 5, sample_size = 1)]

@@ -60,13 +60,30 @@
 //!   sparse active system aside, and an element of more than four local unknowns, whose
 //!   evaluation when it freezes uses heap buffers).
 //!
+//! * **Fallback.** With [`crate::TransientParams::latency_fallback`], while more than
+//!   [`FULL_ABOVE`] of the unknowns are active after an accepted step's holds, every held row
+//!   wakes and the steps take latency off's path (the whole system's assembly, refactor and
+//!   solve; `on` false, nothing held, every row working): the dense LU of a large active set
+//!   and the bookkeeping cost more than that. Holding resumes when fewer than [`HOLD_BELOW`]
+//!   of the unknowns would stay active if every row ready to be held were held; the rows'
+//!   quiet steps are counted throughout, and Newton checks the residuals against the hold
+//!   tests (it wakes nothing, nothing being held) only from the step after enough rows have
+//!   been quiet long enough. A run starts in the fallback. After a hold shorter than
+//!   [`SHORT_HOLD`] accepted steps the fallback waits, for longer after each such hold,
+//!   before it may hold again: on a ring whose active share hovers between the two
+//!   thresholds the switches themselves would cost more than holding saves. Entering the
+//!   fallback, an interior row's missed charge is brought to the last accepted time as when
+//!   a neighbour wakes it; the missed charge is kept through the fallback, so each row's
+//!   allowance stays one step's truncation tolerance for the whole run.
+//!
 //! *Accuracy.* A step with latent unknowns is accepted only when every equation, latent or
 //! active, passes the residual test Newton applies to the full system: the accepted state is a
 //! solution of the full step equations to the ordinary Newton tolerances. Beyond one step, the
 //! charge a latent row fails to move accumulates; it is bounded by one step's truncation-error
 //! tolerance of that row, so the latent part never drifts by more than the integrator already
 //! allows for one step. The truncation-error test runs on every working charge row; an
-//! interior row's charge is constant, so its estimate would be zero.
+//! interior row's charge is constant, so its estimate would be zero. A fallback step is a
+//! full solve, nothing held: it adds no missed charge.
 //!
 //! *Charge.* An active row's charge is computed and carried as before. A latent row whose
 //! elements are all frozen keeps its charge bit for bit; one touched by a live element stores
@@ -96,10 +113,44 @@ pub(crate) const QUIET_FRACTION: f64 = 0.01;
 /// active sets are larger, 128 took 5.7 s against 6.9-8.7 s at 48 (DEVELOPERS.md, Latency).
 pub(crate) const DENSE_MAX: usize = 128;
 
+/// Active share (active unknowns over all unknowns, after an accepted step's holds) above
+/// which latency falls back to the whole system, nothing held. On the demo 2D-FET ring of 21
+/// stages most unknowns stay active, and the dense LU of that active set plus the
+/// bookkeeping cost more than the whole banded system's refactor (DEVELOPERS.md, Latency;
+/// not swept).
+pub(crate) const FULL_ABOVE: f64 = 0.5;
+/// Share of the unknowns that would stay active if every row ready to be held were held,
+/// below which the fallback holds again. Below [`FULL_ABOVE`], so that a share near either
+/// does not switch at every step.
+pub(crate) const HOLD_BELOW: f64 = 0.3;
+/// A hold that falls back within this many accepted steps was too short to pay for its
+/// switches (each wakes or holds every row at once); the fallback then waits before holding
+/// again, [`BACKOFF_FIRST`] accepted steps after the first such hold and twice as long after
+/// each next one, up to [`BACKOFF_MAX`]; a longer hold starts the wait afresh. Without the
+/// wait the 101-stage demo 2D-FET ring switched 7,192 times in 42,946 steps and ran 1.3-1.7x
+/// slower than the plain solve (DEVELOPERS.md, Latency).
+pub(crate) const SHORT_HOLD: u64 = 32;
+/// See [`SHORT_HOLD`].
+pub(crate) const BACKOFF_FIRST: u64 = 32;
+/// See [`SHORT_HOLD`].
+pub(crate) const BACKOFF_MAX: u64 = 4096;
+
 /// The latent/active partition of one transient run, and the solver of the active system.
 pub(crate) struct Latency {
-    /// Whether the stepping loop's Newton solves use it.
+    /// Whether the stepping loop's Newton solves use it (false: the whole-system fallback,
+    /// nothing held, every row working).
     pub(crate) on: bool,
+    /// Whether it may fall back to the whole system ([`crate::TransientParams::latency_fallback`]).
+    fallback: bool,
+    /// Switches between holding and the fallback.
+    switches: u64,
+    /// Accepted steps since the last switch, and how many the fallback waits before it may
+    /// hold again (see [`SHORT_HOLD`]).
+    since_switch: u64,
+    backoff: u64,
+    /// In the fallback: whether Newton checks every row's residual (which rows could be
+    /// held), from the step after enough rows have been quiet long enough.
+    watch: bool,
     /// Per unknown: held at its last accepted value.
     pub(crate) held: Vec<bool>,
     quiet: Vec<u32>,
@@ -190,6 +241,40 @@ impl Latency {
         self.changed.push(u);
     }
 
+    /// Marks every held unknown active again (an interior row's missed charge is brought to
+    /// the refresh's time when it rejoins the working rows, see [`System::latency_refresh`]).
+    fn release_all(&mut self) {
+        for u in 0..self.held.len() {
+            if self.held[u] {
+                self.release(u);
+            }
+        }
+    }
+
+    /// Enters the whole-system fallback: every held unknown wakes, so that after the caller's
+    /// refresh the steps solve the whole system as latency off does.
+    fn suspend(&mut self) {
+        self.release_all();
+        self.backoff = if self.since_switch < SHORT_HOLD {
+            (2 * self.backoff).clamp(BACKOFF_FIRST, BACKOFF_MAX)
+        } else {
+            0
+        };
+        self.on = false;
+        self.watch = false;
+        self.switches += 1;
+        self.since_switch = 0;
+    }
+
+    /// Row `r`'s truncation-error tolerance from `charge_tol`, which takes its index among
+    /// the charge rows (infinite for a row without charge).
+    fn charge_tol_of(&self, r: usize, charge_tol: &dyn Fn(usize) -> f64) -> f64 {
+        match self.charge_k[r] {
+            NONE => f64::INFINITY,
+            k => charge_tol(k),
+        }
+    }
+
     /// The active unknowns, in order.
     pub(crate) fn active(&self) -> &[usize] {
         &self.active
@@ -203,7 +288,9 @@ impl Latency {
 
 impl System {
     /// Starts the latency bookkeeping of a transient: every unknown active, nothing frozen.
-    pub(crate) fn latency_begin(&mut self, tol: Tolerances) {
+    /// With `fallback`, it starts in the whole-system fallback (everything is active at
+    /// first) and holds once enough rows are ready.
+    pub(crate) fn latency_begin(&mut self, tol: Tolerances, fallback: bool) {
         let strategy = self.lu.strategy();
         let mut charge_k = vec![NONE; self.n];
         for (k, &r) in self.charge_rows.iter().enumerate() {
@@ -247,7 +334,12 @@ impl System {
         // Nothing is frozen yet: every element touching a row is live.
         let live_count = (0..n).map(|r| (count[r + 1] - count[r]) as u32).collect();
         self.latency = Some(Latency {
-            on: true,
+            on: !fallback,
+            fallback,
+            switches: 0,
+            since_switch: 0,
+            backoff: 0,
+            watch: false,
             held: vec![false; n],
             quiet: vec![0; n],
             missed: vec![0.0; n],
@@ -306,17 +398,24 @@ impl System {
         self.latency_refresh(&vec![0.0; n], 0.0);
     }
 
-    /// Ends the latency bookkeeping; later solves use the full system.
-    pub(crate) fn latency_end(&mut self) -> Option<(u64, u64)> {
+    /// Ends the latency bookkeeping; later solves use the full system. Returns the latent
+    /// and active unknown-steps and the fallback's switches.
+    pub(crate) fn latency_end(&mut self) -> Option<(u64, u64, u64)> {
         self.latency
             .take()
-            .map(|l| (l.latent_steps, l.active_steps))
+            .map(|l| (l.latent_steps, l.active_steps, l.switches))
     }
 
     /// Whether the Newton solves of the running transient restrict themselves to the active
     /// unknowns.
     pub(crate) fn latency_on(&self) -> bool {
         self.latency.as_ref().is_some_and(|l| l.on)
+    }
+
+    /// Whether Newton's residuals are checked against the hold tests: while holding, and in
+    /// the fallback once enough rows have been quiet long enough.
+    pub(crate) fn latency_watching(&self) -> bool {
+        self.latency.as_ref().is_some_and(|l| l.on || l.watch)
     }
 
     /// Sets the latent unknowns of the predicted state to their held values.
@@ -381,17 +480,14 @@ impl System {
     /// Wakes every unknown (after the active system failed to factorise).
     pub(crate) fn latency_wake_all(&mut self) {
         if let Some(l) = self.latency.as_mut() {
-            for u in 0..self.n {
-                if l.held[u] {
-                    l.release(u);
-                }
-            }
+            l.release_all();
         }
     }
 
     /// After an accepted step from `x_old` to `x_new` at `t`: commits the latent rows' missed
-    /// charge, counts quiet steps and holds the unknowns that became latent. `charge_tol(r)`
-    /// is row `r`'s truncation-error tolerance (infinite for a row without charge).
+    /// charge, counts quiet steps, holds the unknowns that became latent and switches to or
+    /// from the whole-system fallback. `charge_tol(k)` is the `k`-th charge row's
+    /// truncation-error tolerance.
     pub(crate) fn latency_accepted(
         &mut self,
         x_old: &[f64],
@@ -400,10 +496,12 @@ impl System {
         tol: &Tolerances,
         charge_tol: &dyn Fn(usize) -> f64,
     ) {
-        let Some(l) = self.latency.as_mut() else {
+        // Taken out while the hold tests read the system.
+        let Some(mut l) = self.latency.take() else {
             return;
         };
         l.latent_steps += (self.n - l.work.len()) as u64;
+        l.since_switch += 1;
         for &u in &l.work {
             if l.held[u] {
                 l.missed[u] += l.pending[u];
@@ -424,35 +522,86 @@ impl System {
                 0
             };
         }
-        let loc_map = &self.layout.loc_map;
-        let loc_start = &self.layout.loc_start;
+        if !l.on {
+            self.maybe_resume(&mut l, charge_tol);
+        }
+        let mut newly_held = 0;
         for w in 0..l.work.len() {
             let u = l.work[w];
-            if l.held[u] || l.quiet[u] < QUIET_STEPS || !l.holdable[u] {
+            if !(l.on && self.ready_to_hold(&l, u, charge_tol)) {
                 continue;
             }
-            // An internal unknown goes latent only with every local unknown of its element.
-            let internal_ok = match self.unknown_owner[u] {
-                None => true,
-                Some(e) => loc_map[loc_start[e]..loc_start[e + 1]]
-                    .iter()
-                    .all(|&g| g == NONE || l.held[g] || l.quiet[g] >= QUIET_STEPS),
-            };
-            // A row that has already missed its run's allowance of charge stays active.
-            if internal_ok && l.missed[u] < charge_tol(l.eq_row[u]) {
-                l.held[u] = true;
-                // `missed` is kept from earlier holds of this run: the charge a held row
-                // misses is not given back when it wakes, so the bound of one step's
-                // truncation tolerance is for the whole run, not for each hold (a leaking
-                // node would otherwise lose a tolerance's worth per hold, without bound).
-                l.pending[u] = 0.0;
-                l.qtol[u] = charge_tol(l.eq_row[u]);
-                l.changed.push(u);
-            }
+            newly_held += 1;
+            l.held[u] = true;
+            // `missed` is kept from earlier holds of this run: the charge a held row
+            // misses is not given back when it wakes, so the bound of one step's
+            // truncation tolerance is for the whole run, not for each hold (a leaking
+            // node would otherwise lose a tolerance's worth per hold, without bound).
+            l.pending[u] = 0.0;
+            l.qtol[u] = l.charge_tol_of(l.eq_row[u], charge_tol);
+            l.changed.push(u);
         }
-        if !l.changed.is_empty() {
+        // Too many active unknowns: the whole system is cheaper than the active one. (The
+        // active list is refreshed below: it does not yet count this step's holds.)
+        let active = l.active.len() - newly_held;
+        if l.on && l.fallback && active as f64 > FULL_ABOVE * self.n as f64 {
+            l.suspend();
+        }
+        let changed = !l.changed.is_empty();
+        self.latency = Some(l);
+        if changed {
             self.latency_refresh(x_new, t);
         }
+    }
+
+    /// In the fallback, after an accepted step and once its wait is over (see
+    /// [`SHORT_HOLD`]): watches the residuals from the next step once few unknowns would stay
+    /// active counting the quiet ones, and resumes holding (`on`) once, on a watched step,
+    /// few would stay active counting those ready to be held (nothing is held in the
+    /// fallback, so every row is working and `work` lists every unknown).
+    fn maybe_resume(&self, l: &mut Latency, charge_tol: &dyn Fn(usize) -> f64) {
+        if l.since_switch < l.backoff {
+            return;
+        }
+        let few = |ready: usize| ((self.n - ready) as f64) < HOLD_BELOW * self.n as f64;
+        let settled = l
+            .work
+            .iter()
+            .filter(|&&u| l.quiet[u] >= QUIET_STEPS)
+            .count();
+        let watched = l.watch;
+        l.watch = few(settled);
+        if watched && l.watch {
+            let ready = l
+                .work
+                .iter()
+                .filter(|&&u| self.ready_to_hold(l, u, charge_tol))
+                .count();
+            if few(ready) {
+                l.on = true;
+                l.switches += 1;
+                l.since_switch = 0;
+            }
+        }
+    }
+
+    /// Whether the active unknown `u` may be held after an accepted step: quiet on its last
+    /// [`QUIET_STEPS`] steps, its row inside the hold test at the last check, an internal
+    /// unknown only with all of its element's local unknowns, and its row's missed charge of
+    /// the run still below its truncation tolerance (a row that has missed its run's
+    /// allowance stays active).
+    fn ready_to_hold(&self, l: &Latency, u: usize, charge_tol: &dyn Fn(usize) -> f64) -> bool {
+        if l.held[u] || l.quiet[u] < QUIET_STEPS || !l.holdable[u] {
+            return false;
+        }
+        let (loc_map, loc_start) = (&self.layout.loc_map, &self.layout.loc_start);
+        let internal_ok = match self.unknown_owner[u] {
+            None => true,
+            Some(e) => loc_map[loc_start[e]..loc_start[e + 1]]
+                .iter()
+                .all(|&g| g == NONE || l.held[g] || l.quiet[g] >= QUIET_STEPS),
+        };
+        internal_ok && l.missed[u] < l.charge_tol_of(l.eq_row[u], charge_tol)
     }
 
     /// Runs `f` with the active unknowns and the working rows of the partition lent out of it

@@ -1292,16 +1292,19 @@ impl System {
             });
         // A running transient's latency partition (see the `latency` module): only the
         // active unknowns are solved, the latent ones checked.
+        // In its whole-system fallback the partition may still watch every row's residual
+        // (it holds nothing, so nothing wakes), from which it decides when to hold again.
         let latent = self.latency_on() && load.a0 != 0.0 && load.hist.is_some();
+        let watch = self.latency_watching() && load.a0 != 0.0 && load.hist.is_some();
         for it in 1..=params.max_iterations {
             let (ratio, worst_row) = loop {
                 self.assemble_with(x, &load.ctx, load.a0, rule, latent);
-                if latent {
+                if watch {
                     self.latency_keep_scale();
                 }
                 let worst = self
                     .with_latency_lists(latent, |s, _, rows| s.residual_of(x, load, &tol, rows));
-                if !(latent && self.latency_check(load.a0, &tol)) {
+                if !(watch && self.latency_check(load.a0, &tol)) {
                     break worst;
                 }
                 // Woken unknowns: their elements are live again and must be assembled. A row
@@ -1966,6 +1969,8 @@ mod latency_tests {
         p.tol.abstol = 1e-18;
         p.tol.vntol = 1e-12;
         p.latency = true;
+        // Holding on a three-unknown circuit: no whole-system fallback.
+        p.latency_fallback = false;
         let res = run_latent(&mut sys, &p);
         assert!(
             res.stats.latent_unknown_steps > res.stats.active_unknown_steps / 10,
@@ -1997,6 +2002,8 @@ mod latency_tests {
         let mut p = TransientParams::new(5.0 * PERIOD);
         p.output = Output::Interval(PERIOD / 200.0);
         p.latency = true;
+        // Holding on a three-unknown circuit: no whole-system fallback.
+        p.latency_fallback = false;
         let mut sys = circuit(true, true);
         let on = run_latent(&mut sys, &p);
         assert!(on.stats.latent_unknown_steps > 0, "{:?}", on.stats);

@@ -181,6 +181,11 @@ pub struct TransientParams {
     /// Newton restricted to the active unknowns, latent ones held and checked (see the
     /// `latency` module doc and DEVELOPERS.md, "Latency"; default off).
     pub latency: bool,
+    /// With [`TransientParams::latency`]: solve the whole system, nothing held, while more
+    /// than half the unknowns are active (see the `latency` module doc, "Fallback"; default
+    /// on). Off, latency holds whatever it can however few that is (for tests of holding on
+    /// small circuits).
+    pub latency_fallback: bool,
     /// Factor (at least 1; default 1) on both truncation-error tolerances (`lte_reltol`,
     /// `chgtol`) until an observer returns [`Control::Tighten`]: for a run whose start is
     /// thrown away, such as a ring oscillator's start-up before the periods it measures. The
@@ -210,6 +215,7 @@ impl TransientParams {
             output: Output::EveryStep,
             bypass: 1.0,
             latency: false,
+            latency_fallback: true,
             startup_loosening: 1.0,
         }
     }
@@ -250,6 +256,8 @@ pub struct TransientStats {
     pub latent_unknown_steps: u64,
     /// See `latent_unknown_steps`.
     pub active_unknown_steps: u64,
+    /// Switches between holding and the whole-system fallback (latency only).
+    pub latency_switches: u64,
     /// Time reached.
     pub end_time: f64,
     /// LU solver counters at the end of the run.
@@ -565,7 +573,7 @@ impl System {
         // on the step-size failure, so later analyses solve the whole system.
         self.latency_end();
         if p.latency {
-            self.latency_begin(p.tol);
+            self.latency_begin(p.tol, p.latency_fallback);
         }
         self.begin_voltage_range(&x);
 
@@ -808,10 +816,8 @@ impl System {
                 each(work_k, nr, |k| acc.row(q_new[k], &mut phi[k]));
             }
             if p.latency {
-                let tol_of_row = |r: usize| {
-                    rows.binary_search(&r)
-                        .map_or(f64::INFINITY, |k| tol_of(k, q_new[k], hist.q[0][k], &qref))
-                };
+                // By index among the charge rows.
+                let tol_of_row = |k: usize| tol_of(k, q_new[k], hist.q[0][k], &qref);
                 self.latency_accepted(&x, &x_new, t_new, &p.tol, &tol_of_row);
             }
             hist.push(t_new, &q_new, &x_new, work_u, work_k);
@@ -902,9 +908,10 @@ impl System {
             }
         }
         self.end_voltage_range();
-        if let Some((latent, active)) = self.latency_end() {
+        if let Some((latent, active, switches)) = self.latency_end() {
             stats.latent_unknown_steps = latent;
             stats.active_unknown_steps = active;
+            stats.latency_switches = switches;
         }
         stats.end_time = t;
         stats.lu = self.lu.stats();
