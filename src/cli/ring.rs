@@ -18,6 +18,15 @@ pub enum Builtin {
     SquareRing,
 }
 
+/// An option turned on or off.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+pub enum Switch {
+    /// On.
+    On,
+    /// Off.
+    Off,
+}
+
 /// Integration formula.
 #[derive(Clone, Copy, Debug, ValueEnum)]
 pub enum Method {
@@ -61,11 +70,13 @@ pub struct Args {
     #[arg(long, value_name = "FACTOR", default_value_t = 1.0)]
     pub bypass_factor: f64,
     /// Latency: solve Newton for the moving stages only, holding the settled ones at their
-    /// values and checking their equations at every iteration (not with --reference). Pays
-    /// where settled stages sit still (long square-law rings, the single-edge estimate);
-    /// slower on 2D-FET rings, whose settled outputs keep creeping toward the rail.
-    #[arg(long)]
-    pub latency: bool,
+    /// values and checking their equations at every iteration, and solve the whole ring
+    /// while most stages move. On by default, off with --reference (which solves every stage
+    /// at every step). Pays where settled stages sit still (long square-law rings, the
+    /// single-edge estimate); 2D-FET rings, whose settled outputs keep creeping toward the
+    /// rail, are mostly solved whole.
+    #[arg(long, value_enum)]
+    pub latency: Option<Switch>,
     /// Estimate by edge travel (the time the single edge takes between two nodes) instead of
     /// whole periods: for long rings, where a period is costly.
     #[arg(long)]
@@ -118,9 +129,9 @@ pub fn run(a: Args) -> Result<(), JobError> {
             "--show chooses the waveforms --out writes; add --out DIR".into(),
         ));
     }
-    if a.latency && a.reference {
+    if a.latency == Some(Switch::On) && a.reference {
         return Err(JobError::Usage(
-            "--latency and --reference do not go together: the reference run solves every \
+            "--latency on and --reference do not go together: the reference run solves every \
              stage at every step; drop one"
                 .into(),
         ));
@@ -139,7 +150,7 @@ pub fn run(a: Args) -> Result<(), JobError> {
         reference: a.reference,
         edge: a.edge,
         bypass: a.bypass_factor,
-        latency: a.latency,
+        latency: a.latency.map_or(!a.reference, |s| s == Switch::On),
         ..RingParams::default()
     };
     // A second copy of the ring's circuit for a stress, with its shortest trap time constant.
