@@ -190,7 +190,8 @@ fn the_fallback_does_not_switch_at_every_step() {
         .map(|(a, b)| (a - b).abs())
         .fold(0.0, f64::max);
     assert!(on.stats.latency_switches < 100, "{:?}", on.stats);
-    assert!(worst < 1e-3, "largest difference {worst}");
+    // Measured 6.7e-13 V: a history or stored rate wrong at a switch would show far above.
+    assert!(worst < 1e-9, "largest difference {worst}");
     // The switches and the waits depend on the run's own steps only.
     assert_eq!(on, run(true));
 }
