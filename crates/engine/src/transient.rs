@@ -535,8 +535,13 @@ impl System {
         let mut h = match p.stepping {
             Stepping::Fixed(h) => h,
             Stepping::Adaptive => p.initial_step.unwrap_or_else(|| {
-                // A first guess; the first step's error test corrects it.
+                // A first guess; the first step's error test corrects it. No longer than a
+                // hundredth of the time the charges take to move by their own size at their
+                // rates at t = 0 (see `starting_step`).
                 let mut h0 = h_max.min(1e-3 * p.stop_time);
+                if let Some(hs) = starting_step(&q0, &rate0, |k| tol_of(k, q0[k], q0[k], &qref)) {
+                    h0 = h0.min(hs);
+                }
                 if let Some(bp) = next_bp0 {
                     h0 = h0.min(0.1 * bp);
                 }
@@ -982,6 +987,25 @@ impl System {
 /// [`flush_tiny`]).
 const FLUSH_BELOW: f64 = 1e-100;
 
+/// A starting step from the charges `q0` and their rates `rate0` at t = 0, in the manner of
+/// Hairer, Nørsett and Wanner (Solving Ordinary Differential Equations I, 2nd ed., 1993,
+/// section II.4, "Starting step size"; recalled from memory): with each row's charge and
+/// rate measured in its truncation-error tolerance `tol(k)`, `d0 = max |q0| / tol` and
+/// `d1 = max |rate0| / tol`, the step `0.01 d0 / d1`, a hundredth of the time the charges take
+/// to move by their own size. `None` when nothing carries charge or nothing moves.
+fn starting_step(q0: &[f64], rate0: &[f64], tol: impl Fn(usize) -> f64) -> Option<f64> {
+    let (mut d0, mut d1) = (0.0f64, 0.0f64);
+    for (k, (q, r)) in q0.iter().zip(rate0).enumerate() {
+        let scale = tol(k);
+        if scale > 0.0 {
+            d0 = d0.max(q.abs() / scale);
+            d1 = d1.max(r.abs() / scale);
+        }
+    }
+    let h = 0.01 * d0 / d1;
+    (d0 > 0.0 && d1 > 0.0 && h.is_finite() && h > 0.0).then_some(h)
+}
+
 /// Sets values of magnitude below [`FLUSH_BELOW`] to zero.
 ///
 /// A settled node decays exponentially towards its rail; left alone its voltage, and the
@@ -1306,5 +1330,40 @@ pub(crate) mod tests {
             v.iter().any(|&x| x > 0.0 && x < 1e-90),
             "the run passes below 1e-90 V"
         );
+    }
+
+    /// A 1 pF capacitor discharging from 1 V through 1 kOhm (τ = 1 ns) in a run a million
+    /// time constants long: the first step comes from the charge and its rate at t = 0
+    /// (`starting_step`: 0.01 τ here, which the first-order start's error test trims once to
+    /// 0.007 τ), not from the run's length (1e-3 of it, 1e-6 s, which that test cut down by
+    /// several rejections), and the first sample follows `e^{-t/τ}` (first-order response,
+    /// common practice).
+    #[test]
+    fn the_first_step_is_sized_from_the_charge_rates_at_the_start() {
+        let run = |initial_step: Option<f64>| {
+            let mut c = Circuit::new();
+            let out = c.node("out");
+            c.add("r", Resistor::new(1e3), &[out, Circuit::GROUND])
+                .unwrap();
+            c.add("c", Capacitor::new(1e-12), &[out, Circuit::GROUND])
+                .unwrap();
+            let mut sys = System::new(c).unwrap();
+            let mut p = TransientParams::new(1e-3);
+            p.initial_step = initial_step;
+            sys.transient(
+                &p,
+                &Start::Given(vec![(out, 1.0)]),
+                &[Probe::Voltage(out)],
+                None,
+            )
+            .unwrap()
+        };
+        let res = run(None);
+        let (t1, v1) = (res.time[1], res.signals[0][1]);
+        assert!((5e-12..=1e-11).contains(&t1), "first step {t1:e} s");
+        assert!((v1 - (-t1 / 1e-9).exp()).abs() < 1e-4, "{v1} V at {t1:e} s");
+        let (s, long) = (res.stats, run(Some(1e-6)).stats);
+        assert!(s.rejected_lte <= 1 && s.rejected_newton == 0, "{s:?}");
+        assert!(long.rejected_lte >= s.rejected_lte + 3, "{long:?}");
     }
 }
