@@ -1298,17 +1298,22 @@ pub(crate) mod tests {
         assert!(s.newton_iterations * 10 <= attempts * 13, "{s:?}");
     }
 
-    /// A capacitor discharging through a resistor for 20,000 time constants: its voltage passes
-    /// 1e-100 V and is then exactly zero, never a subnormal number.
-    #[test]
-    fn a_settled_node_is_flushed_to_zero_instead_of_decaying_into_subnormals() {
+    /// 1 pF from `out` to ground discharging through 1 kOhm (τ = 1 ns): the system and `out`.
+    fn discharging_rc() -> (System, NodeId) {
         let mut c = Circuit::new();
         let out = c.node("out");
         c.add("r", Resistor::new(1e3), &[out, Circuit::GROUND])
             .unwrap();
         c.add("c", Capacitor::new(1e-12), &[out, Circuit::GROUND])
             .unwrap();
-        let mut sys = System::new(c).unwrap();
+        (System::new(c).unwrap(), out)
+    }
+
+    /// A capacitor discharging through a resistor for 20,000 time constants: its voltage passes
+    /// 1e-100 V and is then exactly zero, never a subnormal number.
+    #[test]
+    fn a_settled_node_is_flushed_to_zero_instead_of_decaying_into_subnormals() {
+        let (mut sys, out) = discharging_rc();
         let mut p = TransientParams::new(2e-5);
         p.integrator = Integrator::BackwardEuler;
         p.max_step = Some(2e-8);
@@ -1341,13 +1346,7 @@ pub(crate) mod tests {
     #[test]
     fn the_first_step_is_sized_from_the_charge_rates_at_the_start() {
         let run = |initial_step: Option<f64>| {
-            let mut c = Circuit::new();
-            let out = c.node("out");
-            c.add("r", Resistor::new(1e3), &[out, Circuit::GROUND])
-                .unwrap();
-            c.add("c", Capacitor::new(1e-12), &[out, Circuit::GROUND])
-                .unwrap();
-            let mut sys = System::new(c).unwrap();
+            let (mut sys, out) = discharging_rc();
             let mut p = TransientParams::new(1e-3);
             p.initial_step = initial_step;
             sys.transient(
