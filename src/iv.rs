@@ -1146,7 +1146,7 @@ pub fn run_swept(
         p.output = Output::Streaming;
         let mut samples: Vec<(f64, f64)> = Vec::new();
         let mut gate: Vec<(f64, f64)> = Vec::new();
-        let mut record = |t: f64, v: &[f64]| {
+        let mut record = |t: f64, v: &[f64], _: lamina_engine::Moved<'_>| {
             samples.push((t, -v[0]));
             gate.push((t, -v[1]));
             Control::Continue

@@ -146,7 +146,7 @@ pub fn run_transient(design: Design, a: &Analysis) -> Result<TransientReport, St
     // a fixed output interval may be too coarse for them.
     let node_count = nodes.len();
     let mut stepped = lamina_engine::Decimator::new(MAX_TRANSIENT_SAMPLES, node_count);
-    let mut observer = |t: f64, v: &[f64]| {
+    let mut observer = |t: f64, v: &[f64], _: lamina_engine::Moved<'_>| {
         steps += 1;
         if node_count > 0 {
             stepped.push(t, &v[..node_count]);

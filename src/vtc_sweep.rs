@@ -142,7 +142,7 @@ pub fn run_swept_transfer(
     let mut p = TransientParams::new(t);
     p.output = Output::Streaming;
     let mut samples: Vec<(f64, f64)> = Vec::new();
-    let mut record = |t: f64, v: &[f64]| {
+    let mut record = |t: f64, v: &[f64], _: lamina_engine::Moved<'_>| {
         samples.push((t, v[0]));
         Control::Continue
     };

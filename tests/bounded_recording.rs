@@ -91,7 +91,7 @@ fn a_streaming_run_stores_nothing_and_shows_every_step() {
     let mut p = TransientParams::new(1e-5);
     p.output = Output::Streaming;
     let (mut seen, mut last_t, mut peak) = (0usize, 0.0, 0.0f64);
-    let mut observer = |t: f64, v: &[f64]| {
+    let mut observer = |t: f64, v: &[f64], _: lamina_engine::Moved<'_>| {
         assert!(t > last_t);
         seen += 1;
         last_t = t;

@@ -89,7 +89,7 @@ fn the_single_edge_wakes_every_latent_stage_it_reaches() {
     p.latency = true;
     let probe = Probe::Voltage(ring.outputs[60]);
     let mut fell = None;
-    let mut watch = |t: f64, v: &[f64]| {
+    let mut watch = |t: f64, v: &[f64], _: lamina_engine::Moved<'_>| {
         if v[0] < 0.5 {
             fell = Some(t);
             return lamina_engine::Control::Stop;

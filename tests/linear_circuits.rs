@@ -297,7 +297,7 @@ fn run_rc_loosened(loosening: f64, tighten: Option<f64>) -> (Vec<f64>, Vec<f64>)
     let mut p = TransientParams::new(10e-6);
     p.startup_loosening = loosening;
     p.max_step = Some(10e-6);
-    let mut observer = |t: f64, _: &[f64]| match tighten {
+    let mut observer = |t: f64, _: &[f64], _: lamina_engine::Moved<'_>| match tighten {
         Some(t0) if t >= t0 => Control::Tighten,
         _ => Control::Continue,
     };

@@ -70,6 +70,6 @@ pub use small_signal::{
 };
 pub use system::{DeviceEvaluations, NewtonInfo, NewtonParams, System, Tolerances};
 pub use transient::{
-    Control, Decimator, Integrator, Observer, Output, Start, Stepping, TransientParams,
+    Control, Decimator, Integrator, Moved, Observer, Output, Start, Stepping, TransientParams,
     TransientResult, TransientStats,
 };

@@ -125,8 +125,15 @@ pub enum Start {
     State(Vec<f64>),
 }
 
-/// A callback that sees each accepted time and the probes' values there.
-pub type Observer<'a> = &'a mut dyn FnMut(f64, &[f64]) -> Control;
+/// A callback that sees each accepted time, the probes' values there, and which probes the
+/// step may have moved.
+pub type Observer<'a> = &'a mut dyn FnMut(f64, &[f64], Moved<'_>) -> Control;
+
+/// The probes (indices into the values an [`Observer`] sees, each once, in no particular
+/// order) whose values an accepted step may have changed; every other value is the same bit
+/// for bit as at the step before. `None`: any may have. A run with latency names the probes
+/// of its working unknowns, so an observer of a long circuit can look at those alone.
+pub type Moved<'a> = Option<&'a [usize]>;
 
 /// Whether an observer wants the run to go on.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -496,6 +503,8 @@ impl System {
         // (the partition may change them while accepting it), and the rows that became
         // interior; kept across steps so that stepping allocates nothing.
         let (mut work_u_buf, mut work_k_buf, mut left) = (Vec::new(), Vec::new(), Vec::new());
+        // The probes a step with latency moved (handed to the observer).
+        let mut moved: Vec<usize> = Vec::new();
 
         let mut out = Recorder::new(p.output, idx.len());
         let mut values = vec![0.0; idx.len()];
@@ -829,10 +838,12 @@ impl System {
             rate_known = true;
             match work_u {
                 Some(list) => {
+                    moved.clear();
                     for &u in list {
                         x[u] = x_new[u];
                         for &k in &probe_of[probe_ptr[u]..probe_ptr[u + 1]] {
                             values[k] = x[u];
+                            moved.push(k);
                         }
                     }
                 }
@@ -865,7 +876,7 @@ impl System {
             restart = false;
             out.push(t, &values);
             if let Some(obs) = observer.as_mut() {
-                match obs(t, &values) {
+                match obs(t, &values, work_u.map(|_| moved.as_slice())) {
                     Control::Stop => break,
                     Control::Tighten if loosening.get() > 1.0 => {
                         // This step's error ratios against the nominal tolerances (both
