@@ -132,7 +132,8 @@ pub type Observer<'a> = &'a mut dyn FnMut(f64, &[f64], Moved<'_>) -> Control;
 /// The probes (indices into the values an [`Observer`] sees, each once, in no particular
 /// order) whose values an accepted step may have changed; every other value is the same bit
 /// for bit as at the step before. `None`: any may have. A run with latency names the probes
-/// of its working unknowns, so an observer of a long circuit can look at those alone.
+/// of its working unknowns, so an observer of a long circuit can look at those alone; its
+/// first step's list is `None` or every probe (latency starts holding nothing).
 pub type Moved<'a> = Option<&'a [usize]>;
 
 /// Whether an observer wants the run to go on.
@@ -440,9 +441,12 @@ impl System {
         self.assemble(&x, &ctx0, 0.0);
         let q0: Vec<f64> = rows.iter().map(|&r| self.q[r]).collect();
         // Consistent charge rates at t = 0: a backward-Euler solve over a negligible step
-        // settles the algebraic unknowns (a source that jumps at t = 0, say) while the charges
-        // stay put; the rates then follow from the charge change. The start state itself is
-        // kept. If that solve fails, KCL at the start state gives the rates.
+        // `tiny`, with the sources at `tiny`, settles the algebraic unknowns (a source that
+        // starts moving at t = 0, say: evaluated at 0 its rate would read 0, and the first
+        // step's error test, comparing with `q0 + h rate`, cut the step to the minimum on long
+        // runs) while the charges move by their rates; the rates follow from the charge
+        // change. The start state itself is kept. If that solve fails, KCL at the start state
+        // gives the rates.
         let mut rate0: Vec<f64> = rows.iter().map(|&r| -self.f[r]).collect();
         if !rows.is_empty() {
             let tiny = 1e-12 * p.stop_time;
@@ -452,7 +456,7 @@ impl System {
             }
             let mut xc = x.clone();
             let load = Load {
-                ctx: ctx0,
+                ctx: EvalContext { time: tiny, ..ctx0 },
                 a0: 1.0 / tiny,
                 hist: Some(&hist0),
                 gmin: p.gmin,
