@@ -100,7 +100,7 @@ fn crossings_do_not_depend_on_the_output_interval() {
 /// Runs the transient of the circuit `text` and returns its table's columns `names`, one row
 /// per accepted step.
 fn transient_columns(text: &str, names: &[&str]) -> Vec<Vec<f64>> {
-    let dir = common::Scratch::new("algebraic");
+    let dir = common::Scratch::new("transient-columns");
     let file = dir.join("circuit.lam");
     std::fs::write(&file, text).unwrap();
     let result = dir.join("result");
