@@ -63,20 +63,39 @@ fn add_inverter(
     vdd: NodeId,
 ) -> Result<(), CircuitError> {
     let (n, p) = fets(s);
+    // One name buffer for the three elements: a 30001-stage ring builds 90,000 names.
+    let mut buf = String::with_capacity(name.len() + 10);
     c.add(
-        &format!("{name}.pull_down"),
+        joined(&mut buf, name, "pull_down"),
         n,
         &[output, input, Circuit::GROUND],
     )?;
-    c.add(&format!("{name}.pull_up"), p, &[output, input, vdd])?;
+    c.add(joined(&mut buf, name, "pull_up"), p, &[output, input, vdd])?;
     if s.load != 0.0 {
         c.add(
-            &format!("{name}.load"),
+            joined(&mut buf, name, "load"),
             Capacitor::new(s.load),
             &[output, Circuit::GROUND],
         )?;
     }
     Ok(())
+}
+
+/// `name.part`, written into `buf`.
+fn joined<'a>(buf: &'a mut String, name: &str, part: &str) -> &'a str {
+    buf.clear();
+    buf.push_str(name);
+    buf.push('.');
+    buf.push_str(part);
+    buf
+}
+
+/// `prefix[i]`, written into `buf`.
+fn indexed<'a>(buf: &'a mut String, prefix: &str, i: usize) -> &'a str {
+    use std::fmt::Write;
+    buf.clear();
+    let _ = write!(buf, "{prefix}[{i}]");
+    buf
 }
 
 /// The handles a job needs on a ring of inverters.
@@ -93,19 +112,23 @@ pub struct Ring {
 /// An `stages`-stage ring of the inverter `stage`, with nodes `out[0]`, `out[1]`, ...
 pub fn square_ring(stages: usize, stage: &SquareStage) -> Result<(Circuit, Ring), CircuitError> {
     let mut c = Circuit::new();
+    c.reserve(stages + 1, 3 * stages + 1);
     let vdd = c.node("vdd");
     let supply = c.add(
         "supply",
         VoltageSource::dc(stage.vdd),
         &[vdd, Circuit::GROUND],
     )?;
-    let outputs: Vec<NodeId> = (0..stages).map(|i| c.node(&format!("out[{i}]"))).collect();
+    let mut buf = String::new();
+    let outputs: Vec<NodeId> = (0..stages)
+        .map(|i| c.node(indexed(&mut buf, "out", i)))
+        .collect();
     for i in 0..stages {
         let input = outputs[(i + stages - 1) % stages];
         add_inverter(
             &mut c,
             stage,
-            &format!("stage[{i}]"),
+            indexed(&mut buf, "stage", i),
             input,
             outputs[i],
             vdd,

@@ -1,8 +1,10 @@
 //! Building a circuit through the Rust API: named nodes, named elements and their pins.
 
 use crate::element::Element;
-use std::collections::HashMap;
+use foldhash::fast::FixedState;
+use hashbrown::HashTable;
 use std::fmt;
+use std::hash::BuildHasher;
 
 /// A node of a [`Circuit`]. [`Circuit::GROUND`] is the reference node at 0 V.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]
@@ -67,10 +69,60 @@ impl fmt::Display for CircuitError {
 
 impl std::error::Error for CircuitError {}
 
-pub(crate) struct Entry {
-    pub(crate) name: String,
-    pub(crate) element: Box<dyn Element>,
-    pub(crate) pins: Vec<NodeId>,
+/// Names kept in one buffer, found by name in constant time: a circuit of a million elements
+/// costs no allocation per name, and freeing it none either. The hash is seeded with a
+/// constant, so nothing depends on the process.
+#[derive(Clone, Default)]
+pub(crate) struct Names {
+    text: String,
+    /// Where each name ends in `text`.
+    ends: Vec<usize>,
+    /// Each name's index with its hash (kept, so that growing the table hashes nothing).
+    index: HashTable<(usize, u64)>,
+}
+
+impl Names {
+    fn hash(name: &str) -> u64 {
+        FixedState::with_seed(0).hash_one(name)
+    }
+
+    /// The `i`-th name.
+    pub(crate) fn get(&self, i: usize) -> &str {
+        let start = if i == 0 { 0 } else { self.ends[i - 1] };
+        &self.text[start..self.ends[i]]
+    }
+
+    /// How many names there are.
+    pub(crate) fn len(&self) -> usize {
+        self.ends.len()
+    }
+
+    /// The index of `name`, if it is there.
+    pub(crate) fn find(&self, name: &str) -> Option<usize> {
+        self.index
+            .find(Self::hash(name), |&(i, _)| self.get(i) == name)
+            .map(|&(i, _)| i)
+    }
+
+    /// Adds `name` and returns its index, or the index it already has as the error.
+    pub(crate) fn push(&mut self, name: &str) -> Result<usize, usize> {
+        let hash = Self::hash(name);
+        if let Some(&(i, _)) = self.index.find(hash, |&(i, _)| self.get(i) == name) {
+            return Err(i);
+        }
+        let i = self.ends.len();
+        self.text.push_str(name);
+        self.ends.push(self.text.len());
+        self.index.insert_unique(hash, (i, hash), |&(_, h)| h);
+        Ok(i)
+    }
+
+    /// Room for `more` names of about `bytes` bytes each.
+    fn reserve(&mut self, more: usize, bytes: usize) {
+        self.text.reserve(more.saturating_mul(bytes));
+        self.ends.reserve(more);
+        self.index.reserve(more, |&(_, h)| h);
+    }
 }
 
 /// A flat circuit: nodes by name and elements with their pins.
@@ -84,10 +136,12 @@ pub(crate) struct Entry {
 /// assert_eq!(c.node_count(), 2);
 /// ```
 pub struct Circuit {
-    node_names: Vec<String>,
-    node_lookup: HashMap<String, NodeId>,
-    pub(crate) entries: Vec<Entry>,
-    element_lookup: HashMap<String, ElementId>,
+    pub(crate) node_names: Names,
+    pub(crate) elements: Vec<Box<dyn Element>>,
+    pub(crate) element_names: Names,
+    /// Every element's pins in one list; element `e`'s are `pins[pin_start[e]..pin_start[e + 1]]`.
+    pub(crate) pins: Vec<NodeId>,
+    pub(crate) pin_start: Vec<usize>,
 }
 
 impl Default for Circuit {
@@ -105,35 +159,41 @@ impl Circuit {
 
     /// An empty circuit holding only ground.
     pub fn new() -> Self {
-        let mut node_lookup = HashMap::new();
-        node_lookup.insert(Self::GROUND_NAME.to_string(), Self::GROUND);
+        let mut node_names = Names::default();
+        let _ = node_names.push(Self::GROUND_NAME);
         Circuit {
-            node_names: vec![Self::GROUND_NAME.to_string()],
-            node_lookup,
-            entries: Vec::new(),
-            element_lookup: HashMap::new(),
+            node_names,
+            elements: Vec::new(),
+            element_names: Names::default(),
+            pins: Vec::new(),
+            pin_start: vec![0],
         }
+    }
+
+    /// Makes room for `nodes` more nodes and `elements` more elements (with names of about 16
+    /// bytes and three pins each), so that building a large circuit does not grow its tables
+    /// step by step.
+    pub fn reserve(&mut self, nodes: usize, elements: usize) {
+        self.node_names.reserve(nodes, 16);
+        self.element_names.reserve(elements, 16);
+        self.elements.reserve(elements);
+        self.pins.reserve(elements.saturating_mul(3));
+        self.pin_start.reserve(elements);
     }
 
     /// The node called `name`, created if new. `ground` is the reference node.
     pub fn node(&mut self, name: &str) -> NodeId {
-        if let Some(&id) = self.node_lookup.get(name) {
-            return id;
-        }
-        let id = NodeId(self.node_names.len());
-        self.node_names.push(name.to_string());
-        self.node_lookup.insert(name.to_string(), id);
-        id
+        NodeId(self.node_names.push(name).unwrap_or_else(|id| id))
     }
 
     /// The node called `name`, if it exists.
     pub fn find_node(&self, name: &str) -> Option<NodeId> {
-        self.node_lookup.get(name).copied()
+        self.node_names.find(name).map(NodeId)
     }
 
     /// The name of `node`.
     pub fn node_name(&self, node: NodeId) -> &str {
-        &self.node_names[node.0]
+        self.node_names.get(node.0)
     }
 
     /// Number of nodes, ground included.
@@ -158,7 +218,7 @@ impl Circuit {
         element: Box<dyn Element>,
         pins: &[NodeId],
     ) -> Result<ElementId, CircuitError> {
-        if self.element_lookup.contains_key(name) {
+        if self.element_names.find(name).is_some() {
             return Err(CircuitError::DuplicateElement(name.to_string()));
         }
         let expected = element.terminals().len();
@@ -172,14 +232,14 @@ impl Circuit {
         if pins.iter().any(|p| p.0 >= self.node_names.len()) {
             return Err(CircuitError::ForeignNode(name.to_string()));
         }
-        let id = ElementId(self.entries.len());
-        self.entries.push(Entry {
-            name: name.to_string(),
-            element,
-            pins: pins.to_vec(),
-        });
-        self.element_lookup.insert(name.to_string(), id);
-        Ok(id)
+        let id = self
+            .element_names
+            .push(name)
+            .map_err(|_| CircuitError::DuplicateElement(name.to_string()))?;
+        self.elements.push(element);
+        self.pins.extend_from_slice(pins);
+        self.pin_start.push(self.pins.len());
+        Ok(ElementId(id))
     }
 
     /// Replaces the element `id` by `element`, keeping its name and pins (a device rebuilt
@@ -189,48 +249,49 @@ impl Circuit {
         id: ElementId,
         element: Box<dyn Element>,
     ) -> Result<(), CircuitError> {
-        let Some(entry) = self.entries.get_mut(id.0) else {
+        if id.0 >= self.elements.len() {
             return Err(CircuitError::ForeignNode(format!("element #{}", id.0)));
-        };
-        if element.terminals().len() != entry.pins.len() {
+        }
+        let found = self.element_pins(id).len();
+        if element.terminals().len() != found {
             return Err(CircuitError::PinCount {
-                element: entry.name.clone(),
+                element: self.element_name(id).to_string(),
                 expected: element.terminals().len(),
-                found: entry.pins.len(),
+                found,
             });
         }
-        entry.element = element;
+        self.elements[id.0] = element;
         Ok(())
     }
 
     /// The element called `name`, if it exists.
     pub fn find_element(&self, name: &str) -> Option<ElementId> {
-        self.element_lookup.get(name).copied()
+        self.element_names.find(name).map(ElementId)
     }
 
     /// The name of an element.
     pub fn element_name(&self, id: ElementId) -> &str {
-        &self.entries[id.0].name
+        self.element_names.get(id.0)
     }
 
     /// The nodes an element's terminals connect to, in terminal order.
     pub fn element_pins(&self, id: ElementId) -> &[NodeId] {
-        &self.entries[id.0].pins
+        &self.pins[self.pin_start[id.0]..self.pin_start[id.0 + 1]]
     }
 
     /// The terminal names of an element.
     pub fn element_terminals(&self, id: ElementId) -> &'static [&'static str] {
-        self.entries[id.0].element.terminals()
+        self.elements[id.0].terminals()
     }
 
     /// The kind of an element, such as `"resistor"`.
     pub fn element_kind(&self, id: ElementId) -> &'static str {
-        self.entries[id.0].element.kind()
+        self.elements[id.0].kind()
     }
 
     /// Every element, in insertion order.
     pub fn elements(&self) -> impl Iterator<Item = ElementId> {
-        (0..self.entries.len()).map(ElementId)
+        (0..self.elements.len()).map(ElementId)
     }
 
     /// Every node except ground, in creation order.
@@ -240,6 +301,54 @@ impl Circuit {
 
     /// Number of elements.
     pub fn element_count(&self) -> usize {
-        self.entries.len()
+        self.elements.len()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::elements::Resistor;
+
+    #[test]
+    fn names_are_found_after_the_table_grows_and_repeats_are_refused() {
+        let mut c = Circuit::new();
+        let nodes: Vec<NodeId> = (0..5000).map(|i| c.node(&format!("n{i}"))).collect();
+        assert_eq!(c.node("ground"), Circuit::GROUND);
+        assert_eq!(c.node("n1234"), nodes[1234]);
+        assert_eq!(c.node_count(), 5001);
+        for (i, &node) in nodes.iter().enumerate() {
+            assert_eq!(c.node_name(node), format!("n{i}"));
+            assert_eq!(c.find_node(&format!("n{i}")), Some(node));
+        }
+        assert_eq!(c.find_node("n5000"), None);
+        // A name that is a prefix or a concatenation of others is its own name.
+        assert_eq!(c.find_node("n1"), Some(nodes[1]));
+        assert_eq!(c.find_node("n1n2"), None);
+
+        c.reserve(0, 3);
+        let r = c
+            .add("r", Resistor::new(1.0), &[nodes[0], nodes[1]])
+            .unwrap();
+        let pins = [nodes[1], Circuit::GROUND];
+        let s = c.add("s", Resistor::new(2.0), &pins).unwrap();
+        assert_eq!(
+            c.add("r", Resistor::new(3.0), &[nodes[2], nodes[3]]),
+            Err(CircuitError::DuplicateElement("r".into()))
+        );
+        // A refused element leaves nothing behind.
+        assert!(matches!(
+            c.add("t", Resistor::new(3.0), &[nodes[2]]),
+            Err(CircuitError::PinCount { .. })
+        ));
+        assert_eq!(c.find_element("t"), None);
+        assert_eq!(c.element_count(), 2);
+        assert_eq!(
+            (c.find_element("r"), c.find_element("s")),
+            (Some(r), Some(s))
+        );
+        assert_eq!(c.element_name(s), "s");
+        assert_eq!(c.element_pins(r), &[nodes[0], nodes[1]]);
+        assert_eq!(c.element_pins(s), &pins);
     }
 }

@@ -201,6 +201,9 @@ pub(crate) struct Latency {
     dirty_rows: Vec<usize>,
     flipped: Vec<u32>,
     column: Vec<(usize, usize)>,
+    /// All false between uses: marks of unknowns (rows) and of elements for [`sort_unique`].
+    marks: Vec<bool>,
+    element_marks: Vec<bool>,
     /// Per working row: its largest current contribution at the last assembly; per working
     /// unknown: whether its row passed the hold test at the last check.
     fscale: Vec<f64>,
@@ -377,6 +380,8 @@ impl System {
             candidates: Vec::new(),
             dirty_rows: Vec::new(),
             flipped: Vec::new(),
+            marks: vec![false; n],
+            element_marks: vec![false; ne],
             column: Vec::new(),
             fscale: vec![0.0; n],
             holdable: vec![false; n],
@@ -683,8 +688,7 @@ impl System {
             source_scale: 1.0,
             analysis: Analysis::Transient,
         };
-        l.changed.sort_unstable();
-        l.changed.dedup();
+        sort_unique(&mut l.changed, &mut l.marks);
         self.refreeze(&mut l, x, &ctx);
         self.resum(&mut l);
         relive(&mut l);
@@ -792,8 +796,7 @@ impl System {
 
     /// Recomputes the frozen sums of the rows a flip touched, in element order.
     fn resum(&self, l: &mut Latency) {
-        l.dirty_rows.sort_unstable();
-        l.dirty_rows.dedup();
+        sort_unique(&mut l.dirty_rows, &mut l.marks);
         for &r in &l.dirty_rows {
             if let Some(tree) = &l.trees[r] {
                 [l.fz_f[r], l.fz_q[r], l.fz_scale[r], l.fz_qscale[r]] = tree.total();
@@ -843,8 +846,7 @@ impl System {
         if l.candidates.is_empty() {
             return false;
         }
-        l.candidates.sort_unstable();
-        l.candidates.dedup();
+        sort_unique(&mut l.candidates, &mut l.marks);
         let tol = l.tol;
         let basic = |l: &Latency, r: usize| l.live_count[r] > 0 || !l.held[r];
         let mut entered = false;
@@ -1040,9 +1042,54 @@ impl System {
 /// The live elements in element order after the flips of a refresh (`l.flipped`): edited in
 /// place when few flipped (the cost of a refresh then follows the active part, not the
 /// circuit).
+/// Sorts `list`, indices below `marks.len()`, and drops repeats. A list long against the
+/// range it draws from (the first holds of a run freeze most of the circuit at once) is marked
+/// and read back in index order, linear in the range instead of a sort's `m log m`; either
+/// way the result is the same. `marks` is all false before and after.
+fn sort_unique<T: Copy + Ord + Index>(list: &mut Vec<T>, marks: &mut [bool]) {
+    if list.len() < marks.len() / 16 {
+        list.sort_unstable();
+        list.dedup();
+        return;
+    }
+    for &i in list.iter() {
+        marks[i.index()] = true;
+    }
+    list.clear();
+    for (i, mark) in marks.iter_mut().enumerate() {
+        if std::mem::take(mark) {
+            list.push(T::from_index(i));
+        }
+    }
+}
+
+/// An unknown's or an element's index, as the partition's lists store it.
+trait Index {
+    fn index(self) -> usize;
+    fn from_index(i: usize) -> Self;
+}
+
+impl Index for usize {
+    fn index(self) -> usize {
+        self
+    }
+    fn from_index(i: usize) -> Self {
+        i
+    }
+}
+
+impl Index for u32 {
+    fn index(self) -> usize {
+        self as usize
+    }
+    // Element indices fit: the system refuses circuits whose indices would not.
+    fn from_index(i: usize) -> Self {
+        i as u32
+    }
+}
+
 fn relive(l: &mut Latency) {
-    l.flipped.sort_unstable();
-    l.flipped.dedup();
+    sort_unique(&mut l.flipped, &mut l.element_marks);
     if l.live.is_empty() || l.flipped.len().saturating_mul(l.live.len()) > l.frozen.len() {
         l.live.clear();
         let frozen = &l.frozen;
@@ -1151,5 +1198,31 @@ fn wake(l: &mut Latency, u: usize, loc_map: &[usize], loc_start: &[usize]) {
                 l.release(g);
             }
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::sort_unique;
+
+    #[test]
+    fn sort_unique_gives_the_sorted_distinct_indices_by_either_path() {
+        let mut marks = vec![false; 1000];
+        // Short against the range: sorted; long: marked and read back.
+        for list in [
+            vec![7usize, 3, 7, 999, 0, 3],
+            (0..900).rev().chain(0..300).collect(),
+        ] {
+            let mut expected = list.clone();
+            expected.sort_unstable();
+            expected.dedup();
+            let mut got = list.clone();
+            sort_unique(&mut got, &mut marks);
+            assert_eq!(got, expected);
+            assert!(marks.iter().all(|&m| !m));
+        }
+        let mut elements: Vec<u32> = vec![5, 1, 5, 2];
+        sort_unique(&mut elements, &mut [false; 8]);
+        assert_eq!(elements, [1, 2, 5]);
     }
 }

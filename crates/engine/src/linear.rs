@@ -306,7 +306,7 @@ impl System {
 
     /// Every node but ground with its voltage in the solution `x`, in creation order.
     pub fn node_voltages<'a>(&'a self, x: &'a [f64]) -> impl Iterator<Item = (&'a str, f64)> {
-        (0..self.n_nodes).map(move |i| (self.node_names[i + 1].as_str(), x[i]))
+        (0..self.n_nodes).map(move |i| (self.node_names.get(i + 1), x[i]))
     }
 
     /// Every element, in circuit order.

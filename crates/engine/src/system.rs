@@ -100,7 +100,7 @@
 //! With `TransientParams::latency`, Newton in a transient solves the active unknowns only and
 //! holds and checks the latent ones (the `latency` module).
 
-use crate::circuit::{Circuit, ElementId, NodeId};
+use crate::circuit::{Circuit, ElementId, Names, NodeId};
 use crate::element::{Analysis, Element, EvalContext, Stamp, UnknownKind};
 use crate::error::{Culprit, EngineError};
 use crate::latency::Latency;
@@ -420,13 +420,14 @@ impl Reduction {
     #[allow(clippy::too_many_arguments)]
     fn build(
         elements: &[Box<dyn Element>],
-        pins: &[Vec<NodeId>],
+        pin_start: &[usize],
+        pins: &[NodeId],
         loc_start: &[usize],
         loc_map: &[usize],
         kinds: &[UnknownKind],
         col_ptr: &[usize],
         row_idx: &[usize],
-        per_row: &[Vec<usize>],
+        (row_slot_ptr, row_slots): (&[usize], &[usize]),
     ) -> Option<(Reduction, SymbolicSparseColMat<usize>)> {
         let n = kinds.len();
         let slot_of = |r: usize, c: usize| -> Option<usize> {
@@ -438,11 +439,12 @@ impl Reduction {
         let mut pinned = Vec::new();
         for (e, element) in elements.iter().enumerate() {
             let local = &loc_map[loc_start[e]..loc_start[e + 1]];
+            let pins = &pins[pin_start[e]..pin_start[e + 1]];
             if !element.is_ideal_voltage_source()
                 || element.has_charge()
                 || local.len() != 3
-                || pins[e].len() != 2
-                || pins[e][0].is_ground() == pins[e][1].is_ground()
+                || pins.len() != 2
+                || pins[0].is_ground() == pins[1].is_ground()
             {
                 continue;
             }
@@ -457,7 +459,7 @@ impl Reduction {
             };
             taken[node] = true;
             taken[branch] = true;
-            let row = per_row[node]
+            let row = row_slots[row_slot_ptr[node]..row_slot_ptr[node + 1]]
                 .iter()
                 .map(|&s| (col_of(s), s))
                 .filter(|&(c, _)| c != branch)
@@ -658,13 +660,14 @@ pub(crate) struct Layout {
 /// Build it once with [`System::new`] and run any number of analyses on it.
 pub struct System {
     pub(crate) elements: Vec<Box<dyn Element>>,
-    element_names: Vec<String>,
-    element_pins: Vec<Vec<NodeId>>,
-    pub(crate) node_names: Vec<String>,
+    element_names: Names,
+    /// Element `e`'s pins are `pins[pin_start[e]..pin_start[e + 1]]`.
+    pins: Vec<NodeId>,
+    pin_start: Vec<usize>,
+    pub(crate) node_names: Names,
     pub(crate) n: usize,
     pub(crate) n_nodes: usize,
     pub(crate) kinds: Vec<UnknownKind>,
-    unknown_names: Vec<String>,
     pub(crate) unknown_owner: Vec<Option<usize>>,
     pub(crate) layout: Layout,
     pub(crate) pattern: SymbolicSparseColMat<usize>,
@@ -718,88 +721,112 @@ impl System {
     /// Compiles `circuit`, choosing how the Newton matrix is factorised.
     pub fn with_strategy(circuit: Circuit, strategy: LuStrategy) -> Result<Self, EngineError> {
         let n_nodes = circuit.node_count() - 1;
+        let Circuit {
+            node_names,
+            elements,
+            element_names,
+            pins,
+            pin_start,
+        } = circuit;
+        let ne = elements.len();
         let mut kinds = vec![UnknownKind::Voltage; n_nodes];
-        let node_names: Vec<String> = (0..circuit.node_count())
-            .map(|k| circuit.node_name(NodeId(k)).to_string())
-            .collect();
-        let mut unknown_names: Vec<String> = node_names[1..]
-            .iter()
-            .map(|name| node_label(name))
-            .collect();
         let mut unknown_owner = vec![None; n_nodes];
         let mut linear_unknown = vec![false; n_nodes];
-        let mut loc_start = Vec::new();
-        let mut loc_map = Vec::new();
-        let mut slot_start = Vec::new();
-        let mut has_charge = Vec::new();
-        let mut elements = Vec::new();
-        let mut element_names = Vec::new();
-        let mut element_pins = Vec::new();
+        let mut loc_start = Vec::with_capacity(ne + 1);
+        let mut loc_map = Vec::with_capacity(pins.len());
+        let mut slot_start = Vec::with_capacity(ne + 1);
+        let mut has_charge = Vec::with_capacity(ne);
         let mut breakpoint_elements = Vec::new();
         let mut max_local = 0;
-        let mut pairs: Vec<(usize, usize)> = (0..n_nodes).map(|i| (i, i)).collect();
         let mut slot_count = 0;
-        for (e, entry) in circuit.entries.into_iter().enumerate() {
+        for (e, element) in elements.iter().enumerate() {
             loc_start.push(loc_map.len());
-            for p in &entry.pins {
+            for p in &pins[pin_start[e]..pin_start[e + 1]] {
                 loc_map.push(if p.is_ground() { NONE } else { p.0 - 1 });
             }
-            for internal in entry.element.internals() {
+            for internal in element.internals() {
                 let idx = kinds.len();
-                linear_unknown.push(entry.element.is_ideal_voltage_source());
+                linear_unknown.push(element.is_ideal_voltage_source());
                 kinds.push(internal.kind);
-                unknown_names.push(format!("{}.{}", entry.name, internal.name));
                 unknown_owner.push(Some(e));
                 loc_map.push(idx);
             }
-            let local = &loc_map[loc_start[e]..];
-            let nl = local.len();
+            let nl = loc_map.len() - loc_start[e];
             max_local = max_local.max(nl);
-            for &r in local {
-                for &c in local {
-                    if r != NONE && c != NONE {
-                        pairs.push((r, c));
-                    }
-                }
-            }
             slot_start.push(slot_count);
             slot_count += nl * nl;
-            has_charge.push(entry.element.has_charge());
-            if entry.element.next_breakpoint(f64::NEG_INFINITY).is_some() {
+            has_charge.push(element.has_charge());
+            if element.next_breakpoint(f64::NEG_INFINITY).is_some() {
                 breakpoint_elements.push(e);
             }
-            elements.push(entry.element);
-            element_names.push(entry.name);
-            element_pins.push(entry.pins);
         }
         loc_start.push(loc_map.len());
         slot_start.push(slot_count);
         let n = kinds.len();
-        // Branch rows of voltage-defined elements have a zero diagonal; keep it in the pattern
-        // so that clamps and pseudo-transient terms can use it.
-        pairs.extend((n_nodes..n).map(|i| (i, i)));
         if n == 0 {
             return Err(EngineError::Invalid("the circuit has no unknowns".into()));
         }
 
-        // Compressed columns with sorted, unique rows.
-        pairs.sort_unstable_by_key(|&(r, c)| (c, r));
-        pairs.dedup();
+        // Compressed columns with sorted, unique rows: every element's local pairs and the
+        // diagonal (branch rows of voltage-defined elements have a zero diagonal; it stays in
+        // the pattern so that clamps and pseudo-transient terms can use it), bucketed by
+        // column (a sort of every pair would cost `log` of their number more), then each
+        // column's few rows sorted.
+        let locals = |e: usize| {
+            loc_map[loc_start[e]..loc_start[e + 1]]
+                .iter()
+                .copied()
+                .filter(|&g| g != NONE)
+        };
         let mut col_ptr = vec![0usize; n + 1];
-        let mut row_idx = Vec::with_capacity(pairs.len());
-        for &(r, c) in &pairs {
-            col_ptr[c + 1] += 1;
-            row_idx.push(r);
+        for c in 0..n {
+            col_ptr[c + 1] = 1;
+        }
+        for e in 0..ne {
+            let m = locals(e).count();
+            for c in locals(e) {
+                col_ptr[c + 1] += m;
+            }
         }
         for c in 0..n {
             col_ptr[c + 1] += col_ptr[c];
         }
+        let mut fill = col_ptr.clone();
+        let mut all_rows = vec![0usize; col_ptr[n]];
+        for c in 0..n {
+            all_rows[fill[c]] = c;
+            fill[c] += 1;
+        }
+        for e in 0..ne {
+            for c in locals(e) {
+                for r in locals(e) {
+                    all_rows[fill[c]] = r;
+                    fill[c] += 1;
+                }
+            }
+        }
+        let mut row_idx = Vec::with_capacity(all_rows.len());
+        let mut unique_ptr = vec![0usize; n + 1];
+        for c in 0..n {
+            let rows = &mut all_rows[col_ptr[c]..col_ptr[c + 1]];
+            rows.sort_unstable();
+            let mut last = NONE;
+            for &r in rows.iter() {
+                if r != last {
+                    row_idx.push(r);
+                    last = r;
+                }
+            }
+            unique_ptr[c + 1] = row_idx.len();
+        }
+        drop(all_rows);
+        let col_ptr = unique_ptr;
         let slot_of = |r: usize, c: usize| -> usize {
             let rows = &row_idx[col_ptr[c]..col_ptr[c + 1]];
             col_ptr[c] + rows.binary_search(&r).expect("entry is in the pattern")
         };
         let mut slots = Vec::with_capacity(slot_count);
-        for e in 0..elements.len() {
+        for e in 0..ne {
             let local = &loc_map[loc_start[e]..loc_start[e + 1]];
             for &r in local {
                 for &c in local {
@@ -812,17 +839,19 @@ impl System {
             }
         }
         let diag_slot: Vec<usize> = (0..n).map(|i| slot_of(i, i)).collect();
-        let mut per_row: Vec<Vec<usize>> = vec![Vec::new(); n];
-        for c in 0..n {
-            for s in col_ptr[c]..col_ptr[c + 1] {
-                per_row[row_idx[s]].push(s);
-            }
+        // Each row's slots, in column order (the slots run column by column).
+        let mut row_slot_ptr = vec![0usize; n + 1];
+        for &r in &row_idx {
+            row_slot_ptr[r + 1] += 1;
         }
-        let mut row_slot_ptr = vec![0];
-        let mut row_slots = Vec::new();
-        for r in &per_row {
-            row_slots.extend(r.iter().copied());
-            row_slot_ptr.push(row_slots.len());
+        for r in 0..n {
+            row_slot_ptr[r + 1] += row_slot_ptr[r];
+        }
+        let mut row_slots = vec![0usize; row_idx.len()];
+        let mut next = row_slot_ptr.clone();
+        for (s, &r) in row_idx.iter().enumerate() {
+            row_slots[next[r]] = s;
+            next[r] += 1;
         }
         let nnz = row_idx.len();
         if n >= NONE32 as usize || nnz >= NONE32 as usize || slots.len() >= NONE32 as usize {
@@ -849,13 +878,14 @@ impl System {
         }
         let reduced = Reduction::build(
             &elements,
-            &element_pins,
+            &pin_start,
+            &pins,
             &loc_start,
             &loc_map,
             &kinds,
             &col_ptr,
             &row_idx,
-            &per_row,
+            (&row_slot_ptr, &row_slots),
         );
         let pattern = SymbolicSparseColMat::new_checked(n, n, col_ptr, None, row_idx);
         let (reduction, solved_pattern) = match reduced {
@@ -881,12 +911,12 @@ impl System {
         Ok(System {
             elements,
             element_names,
-            element_pins,
+            pins,
+            pin_start,
             node_names,
             n,
             n_nodes,
             kinds,
-            unknown_names,
             unknown_owner,
             layout: Layout {
                 loc_start,
@@ -938,8 +968,19 @@ impl System {
 
     /// The name of unknown `i`: `node out` for a node voltage, `element.internal` (such as
     /// `supply.i`) for an element's own unknown.
-    pub fn unknown_name(&self, i: usize) -> &str {
-        &self.unknown_names[i]
+    pub fn unknown_name(&self, i: usize) -> String {
+        match self.unknown_owner[i] {
+            None => node_label(self.node_names.get(i + 1)),
+            Some(e) => {
+                let local = &self.layout.loc_map[self.layout.loc_start[e]..];
+                let k = local.iter().position(|&g| g == i).unwrap_or(0) - self.pin_count(e);
+                format!(
+                    "{}.{}",
+                    self.element_names.get(e),
+                    self.elements[e].internals()[k].name
+                )
+            }
+        }
     }
 
     /// How many evaluations of bypassable elements this system has done and skipped.
@@ -984,7 +1025,10 @@ impl System {
     pub fn branch_unknown(&self, element: ElementId) -> Option<usize> {
         let e = element.0;
         let local = &self.layout.loc_map[self.layout.loc_start[e]..self.layout.loc_start[e + 1]];
-        let pins = self.element_pins.get(e)?.len();
+        if e >= self.elements.len() {
+            return None;
+        }
+        let pins = self.pin_count(e);
         let internals = self.elements[e].internals();
         internals
             .iter()
@@ -994,24 +1038,21 @@ impl System {
 
     /// The name of a node.
     pub fn node_name(&self, node: NodeId) -> &str {
-        &self.node_names[node.0]
+        self.node_names.get(node.0)
     }
 
     /// The element called `name`, if any.
     pub fn find_element(&self, name: &str) -> Option<ElementId> {
-        self.element_names
-            .iter()
-            .position(|n| n == name)
-            .map(ElementId)
+        self.element_names.find(name).map(ElementId)
     }
 
     /// The node called `name`, if any.
     pub fn find_node(&self, name: &str) -> Option<NodeId> {
-        self.node_names.iter().position(|n| n == name).map(NodeId)
+        self.node_names.find(name).map(NodeId)
     }
 
     pub(crate) fn element_name(&self, e: usize) -> &str {
-        &self.element_names[e]
+        self.element_names.get(e)
     }
 
     /// Evaluates every element at `x` and accumulates `f`, `q`, the row scales and the
@@ -1189,7 +1230,7 @@ impl System {
 
     /// The number of pins of element `e` (its internal unknowns follow them).
     pub(crate) fn pin_count(&self, e: usize) -> usize {
-        self.element_pins[e].len()
+        self.pin_start[e + 1] - self.pin_start[e]
     }
 
     /// Builds `rhs = -F` for `load` from the last assembly and returns the largest
@@ -1470,15 +1511,16 @@ impl System {
         if let Some(owner) = self.unknown_owner.get(unknown).copied().flatten() {
             elements.push(format!(
                 "{} ({})",
-                self.element_names[owner],
+                self.element_names.get(owner),
                 self.elements[owner].kind()
             ));
         } else {
-            for (e, pins) in self.element_pins.iter().enumerate() {
+            for e in 0..self.elements.len() {
+                let pins = &self.pins[self.pin_start[e]..self.pin_start[e + 1]];
                 if pins.iter().any(|p| !p.is_ground() && p.0 - 1 == unknown) {
                     elements.push(format!(
                         "{} ({})",
-                        self.element_names[e],
+                        self.element_names.get(e),
                         self.elements[e].kind()
                     ));
                     if elements.len() == 4 {
@@ -1488,7 +1530,7 @@ impl System {
             }
         }
         Culprit {
-            unknown: self.unknown_names[unknown].clone(),
+            unknown: self.unknown_name(unknown),
             value,
             tolerance,
             elements,
