@@ -112,7 +112,10 @@ pub struct Ring {
 /// An `stages`-stage ring of the inverter `stage`, with nodes `out[0]`, `out[1]`, ...
 pub fn square_ring(stages: usize, stage: &SquareStage) -> Result<(Circuit, Ring), CircuitError> {
     let mut c = Circuit::new();
-    c.reserve(stages + 1, 3 * stages + 1);
+    c.reserve(
+        stages.saturating_add(1),
+        stages.saturating_mul(3).saturating_add(1),
+    );
     let vdd = c.node("vdd");
     let supply = c.add(
         "supply",

@@ -71,7 +71,8 @@ impl std::error::Error for CircuitError {}
 
 /// Names kept in one buffer, found by name in constant time: a circuit of a million elements
 /// costs no allocation per name, and freeing it none either. The hash is seeded with a
-/// constant, so nothing depends on the process.
+/// constant, so nothing depends on the process (names are the user's own, not untrusted
+/// input: a file crafted for collisions could only slow its own build).
 #[derive(Clone, Default)]
 pub(crate) struct Names {
     text: String,

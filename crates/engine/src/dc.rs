@@ -135,7 +135,7 @@ impl System {
                         ))
                     })?;
                     idx.push(Some(u));
-                    names.push(self.unknown_name(u).to_string());
+                    names.push(self.unknown_name(u));
                 }
             }
         }

@@ -972,8 +972,9 @@ impl System {
         match self.unknown_owner[i] {
             None => node_label(self.node_names.get(i + 1)),
             Some(e) => {
-                let local = &self.layout.loc_map[self.layout.loc_start[e]..];
-                let k = local.iter().position(|&g| g == i).unwrap_or(0) - self.pin_count(e);
+                // The element's internals follow its pins, numbered in order.
+                let first = self.layout.loc_map[self.layout.loc_start[e] + self.pin_count(e)];
+                let k = i - first;
                 format!(
                     "{}.{}",
                     self.element_names.get(e),
@@ -1024,10 +1025,10 @@ impl System {
     /// The unknown of the first branch current an element owns, if any.
     pub fn branch_unknown(&self, element: ElementId) -> Option<usize> {
         let e = element.0;
-        let local = &self.layout.loc_map[self.layout.loc_start[e]..self.layout.loc_start[e + 1]];
         if e >= self.elements.len() {
             return None;
         }
+        let local = &self.layout.loc_map[self.layout.loc_start[e]..self.layout.loc_start[e + 1]];
         let pins = self.pin_count(e);
         let internals = self.elements[e].internals();
         internals
@@ -1226,6 +1227,21 @@ impl System {
         self.reduction.as_ref().map_or(Vec::new(), |r| {
             r.pinned.iter().map(|p| (p.node, p.branch)).collect()
         })
+    }
+
+    /// The rate `G_ii / C_ii` (1/s) at which unknown `i`'s own row relaxes with every other
+    /// unknown fixed, from the last transient assembly (`a0` its formula's coefficient:
+    /// the matrix holds `G + a0 C`); 0 when the row has no charge of its own, no positive
+    /// conductance, or one lost in rounding beside `a0 C_ii`.
+    pub(crate) fn relaxation_rate(&self, i: usize, a0: f64) -> f64 {
+        let d = self.layout.diag_slot[i];
+        let c = self.cmat[d];
+        let g = self.jac[d] - a0 * c;
+        if c > 0.0 && g > 1e-9 * a0 * c {
+            g / c
+        } else {
+            0.0
+        }
     }
 
     /// The number of pins of element `e` (its internal unknowns follow them).
@@ -1917,6 +1933,64 @@ mod tests {
         c.add("cb", Capacitor::new(1e-12), &[b, Circuit::GROUND])
             .unwrap();
         System::new(c).unwrap()
+    }
+
+    /// A node charged through R from a source relaxes at 1/(RC) (common practice); a node
+    /// with a capacitor alone does not relax, and a row without charge has no rate.
+    #[test]
+    fn the_relaxation_rate_of_an_rc_node_is_one_over_rc() {
+        let mut c = Circuit::new();
+        let (a, y, f) = (c.node("a"), c.node("y"), c.node("f"));
+        c.add("v", VoltageSource::dc(1.0), &[a, Circuit::GROUND])
+            .unwrap();
+        c.add("r", Resistor::new(2e3), &[a, y]).unwrap();
+        c.add("c", Capacitor::new(3e-12), &[y, Circuit::GROUND])
+            .unwrap();
+        c.add("cf", Capacitor::new(1e-15), &[f, y]).unwrap();
+        let mut sys = System::new(c).unwrap();
+        let ctx = EvalContext {
+            time: 0.0,
+            source_scale: 1.0,
+            analysis: Analysis::Transient,
+        };
+        let x = vec![0.3; sys.unknown_count()];
+        for a0 in [1e9, 1e12] {
+            sys.assemble(&x, &ctx, a0);
+            let (iy, iff, ia) = (1, 2, 0);
+            let rate = sys.relaxation_rate(iy, a0);
+            let exact = 1.0 / (2e3 * (3e-12 + 1e-15));
+            assert!(
+                (rate - exact).abs() < 1e-9 * exact,
+                "{a0}: {rate} against {exact}"
+            );
+            assert_eq!(sys.relaxation_rate(iff, a0), 0.0);
+            assert_eq!(sys.relaxation_rate(ia, a0), 0.0);
+        }
+    }
+
+    /// Unknown names are made on demand from the circuit's names; an element of another
+    /// circuit has no branch unknown here (it used to index out of bounds).
+    #[test]
+    fn unknown_names_and_a_foreign_element() {
+        let mut small = Circuit::new();
+        let a = small.node("a");
+        small
+            .add("s", VoltageSource::dc(1.0), &[a, Circuit::GROUND])
+            .unwrap();
+        let mut big = Circuit::new();
+        let b = big.node("b");
+        big.add("r0", Resistor::new(1.0), &[b, Circuit::GROUND])
+            .unwrap();
+        let far = big
+            .add("r1", Resistor::new(1.0), &[b, Circuit::GROUND])
+            .unwrap();
+        let sys = System::new(small).unwrap();
+        assert_eq!(sys.branch_unknown(far), None);
+        assert_eq!(sys.unknown_name(0), "node a");
+        assert_eq!(sys.unknown_name(1), "s.i");
+        assert_eq!(sys.find_element("s").map(|e| e.index()), Some(0));
+        assert_eq!(sys.find_node("a"), Some(a));
+        assert_eq!(sys.find_node("b"), None);
     }
 
     #[test]
