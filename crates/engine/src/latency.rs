@@ -86,16 +86,20 @@
 //! full solve, nothing held: it adds no missed charge.
 //!
 //! The missed charge is the error a row's charge carries from its holds. Once the row is
-//! solved again its own equation works that error off: with its neighbours fixed the row's
-//! linearised equation is `C_ii e' = -G_ii e` (`G_ii`, `C_ii` the diagonals of the Newton
-//! matrix `G + a0 C` at the step's last assembly, [`System::relaxation_rate`]), so each
-//! accepted step with the row active multiplies its missed charge by what the formula leaves
-//! of `e` at `z = h G_ii / C_ii` ([`remaining`]: backward Euler `1/(1 + z)`, the trapezoidal
-//! rule `|1 - z/2|/(1 + z/2)`, never below the exact `exp(-z)`; the multistep formulas keep
-//! it whole). A floating node (`G_ii = 0`) keeps all of it, so the bound holds for it over
-//! the whole run; a ring stage, driven to its rail between the edge's passes, gets it back
-//! within a few of its time constants and can be held again (without this, the stages of a
-//! 10001-stage ring ran out of their allowance within eight periods and stayed active:
+//! solved again its own equation works that error off, as far as it drains to the rails:
+//! with every other unknown fixed, a voltage error on row `i` drives the current `G_ii` out
+//! of it, of which what flows to other free rows stays in the circuit; so the error leaves
+//! at least at the rate `(G_ii - Σ_j |G_ji|) / C_ii`, the other free rows `j` of column `i`
+//! subtracted (`G`, `C` from the Newton matrix `G + a0 C` at the step's last assembly, a
+//! pinned node counting as a rail: [`System::drain_rate`]; a transconductance there only
+//! lowers it). Each accepted step with the row active multiplies its missed charge by what
+//! the formula leaves of a decay at that rate, `z = h · rate` ([`remaining`]: backward Euler
+//! `1/(1 + z)`, the trapezoidal rule `|1 - z/2|/(1 + z/2)`, never below the exact
+//! `exp(-z)`; the multistep formulas keep it whole). A floating node, or an island of nodes
+//! joined by resistors with no path to a rail, keeps all of it, so the bound holds there
+//! over the whole run; a ring stage, driven to its rail between the edge's passes, gets it
+//! back within a few of its time constants and can be held again (without this, the stages
+//! of a 10001-stage ring ran out of their allowance within eight periods and stayed active:
 //! `tests/long_ring.rs`).
 //!
 //! *Charge.* An active row's charge is computed and carried as before. A latent row whose
@@ -215,6 +219,8 @@ pub(crate) struct Latency {
     dirty_rows: Vec<usize>,
     flipped: Vec<u32>,
     column: Vec<(usize, usize)>,
+    /// Per row: a pinned node's, whose source takes any charge (see [`System::drain_rate`]).
+    rail: Vec<bool>,
     /// All false between uses: marks of unknowns (rows) and of elements for [`sort_unique`].
     marks: Vec<bool>,
     element_marks: Vec<bool>,
@@ -316,9 +322,11 @@ impl System {
         let n = self.n;
         let ne = self.elements.len();
         let mut eq_row: Vec<usize> = (0..n).collect();
+        let mut rail = vec![false; n];
         for (node, branch) in self.pinned_pairs() {
             eq_row[node] = branch;
             eq_row[branch] = node;
+            rail[node] = true;
         }
         let mut count = vec![0usize; n + 1];
         for &g in &self.layout.loc_map {
@@ -394,6 +402,7 @@ impl System {
             candidates: Vec::new(),
             dirty_rows: Vec::new(),
             flipped: Vec::new(),
+            rail,
             marks: vec![false; n],
             element_marks: vec![false; ne],
             column: Vec::new(),
@@ -532,7 +541,7 @@ impl System {
             // Solved again, a row's missed charge relaxes at its own rate (module doc,
             // "Accuracy"); a row whose unknown trades equations (a pinned node) keeps it.
             if l.missed[u] > 0.0 && l.eq_row[u] == u {
-                let z = step.length * self.relaxation_rate(u, step.a0);
+                let z = step.length * self.drain_rate(u, step.a0, &l.rail);
                 l.missed[u] *= remaining(step.method, z);
             }
             let (a, b) = (x_old[u], x_new[u]);
