@@ -100,15 +100,19 @@ impl Names {
 
     /// The index of `name`, if it is there.
     pub(crate) fn find(&self, name: &str) -> Option<usize> {
+        self.find_hashed(name, Self::hash(name))
+    }
+
+    fn find_hashed(&self, name: &str, hash: u64) -> Option<usize> {
         self.index
-            .find(Self::hash(name), |&(i, _)| self.get(i) == name)
+            .find(hash, |&(i, _)| self.get(i) == name)
             .map(|&(i, _)| i)
     }
 
     /// Adds `name` and returns its index, or the index it already has as the error.
     pub(crate) fn push(&mut self, name: &str) -> Result<usize, usize> {
         let hash = Self::hash(name);
-        if let Some(&(i, _)) = self.index.find(hash, |&(i, _)| self.get(i) == name) {
+        if let Some(i) = self.find_hashed(name, hash) {
             return Err(i);
         }
         let i = self.ends.len();
