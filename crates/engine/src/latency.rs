@@ -85,23 +85,6 @@
 //! interior row's charge is constant, so its estimate would be zero. A fallback step is a
 //! full solve, nothing held: it adds no missed charge.
 //!
-//! The missed charge is the error a row's charge carries from its holds. Once the row is
-//! solved again its own equation works that error off, as far as it drains to the rails:
-//! with every other unknown fixed, a voltage error on row `i` drives the current `G_ii` out
-//! of it, of which what flows to other free rows stays in the circuit; so the error leaves
-//! at least at the rate `(G_ii - Σ_j |G_ji|) / C_ii`, the other free rows `j` of column `i`
-//! subtracted (`G`, `C` from the Newton matrix `G + a0 C` at the step's last assembly, a
-//! pinned node counting as a rail: [`System::drain_rate`]; a transconductance there only
-//! lowers it). Each accepted step with the row active multiplies its missed charge by what
-//! the formula leaves of a decay at that rate, `z = h · rate` ([`remaining`]: backward Euler
-//! `1/(1 + z)`, the trapezoidal rule `|1 - z/2|/(1 + z/2)`, never below the exact
-//! `exp(-z)`; the multistep formulas keep it whole). A floating node, or an island of nodes
-//! joined by resistors with no path to a rail, keeps all of it, so the bound holds there
-//! over the whole run; a ring stage, driven to its rail between the edge's passes, gets it
-//! back within a few of its time constants and can be held again (without this, the stages
-//! of a 10001-stage ring ran out of their allowance within eight periods and stayed active:
-//! `tests/long_ring.rs`).
-//!
 //! *Charge.* An active row's charge is computed and carried as before. A latent row whose
 //! elements are all frozen keeps its charge bit for bit; one touched by a live element stores
 //! the assembled charge (frozen sum plus live contributions), which is what the integrator
@@ -114,7 +97,6 @@
 use crate::element::{Analysis, EvalContext, UnknownKind};
 use crate::lu::{DenseLu, LuStrategy, Singular, SparseLu};
 use crate::system::{System, Tolerances, NONE};
-use crate::transient::Integrator;
 use faer::sparse::SymbolicSparseColMat;
 use std::cmp::Reverse;
 use std::collections::BinaryHeap;
@@ -219,8 +201,6 @@ pub(crate) struct Latency {
     dirty_rows: Vec<usize>,
     flipped: Vec<u32>,
     column: Vec<(usize, usize)>,
-    /// Per row: a pinned node's, whose source takes any charge (see [`System::drain_rate`]).
-    rail: Vec<bool>,
     /// All false between uses: marks of unknowns (rows) and of elements for [`sort_unique`].
     marks: Vec<bool>,
     element_marks: Vec<bool>,
@@ -322,11 +302,9 @@ impl System {
         let n = self.n;
         let ne = self.elements.len();
         let mut eq_row: Vec<usize> = (0..n).collect();
-        let mut rail = vec![false; n];
         for (node, branch) in self.pinned_pairs() {
             eq_row[node] = branch;
             eq_row[branch] = node;
-            rail[node] = true;
         }
         let mut count = vec![0usize; n + 1];
         for &g in &self.layout.loc_map {
@@ -402,7 +380,6 @@ impl System {
             candidates: Vec::new(),
             dirty_rows: Vec::new(),
             flipped: Vec::new(),
-            rail,
             marks: vec![false; n],
             element_marks: vec![false; ne],
             column: Vec::new(),
@@ -520,7 +497,7 @@ impl System {
         &mut self,
         x_old: &[f64],
         x_new: &[f64],
-        step: &AcceptedStep,
+        t: f64,
         tol: &Tolerances,
         charge_tol: &dyn Fn(usize) -> f64,
     ) {
@@ -538,12 +515,6 @@ impl System {
                 continue;
             }
             l.active_steps += 1;
-            // Solved again, a row's missed charge relaxes at its own rate (module doc,
-            // "Accuracy"); a row whose unknown trades equations (a pinned node) keeps it.
-            if l.missed[u] > 0.0 && l.eq_row[u] == u {
-                let z = step.length * self.drain_rate(u, step.a0, &l.rail);
-                l.missed[u] *= remaining(step.method, z);
-            }
             let (a, b) = (x_old[u], x_new[u]);
             let abs = match self.kinds[u] {
                 UnknownKind::Voltage => tol.vntol,
@@ -556,7 +527,6 @@ impl System {
                 0
             };
         }
-        let t = step.time;
         if !l.on {
             self.maybe_resume(&mut l, charge_tol);
         }
@@ -1069,34 +1039,6 @@ impl System {
     }
 }
 
-/// An accepted step, as [`System::latency_accepted`] needs it: its end time, length, method
-/// and the method's coefficient `a0` (the Newton matrix is `G + a0 C`).
-pub(crate) struct AcceptedStep {
-    pub(crate) time: f64,
-    pub(crate) length: f64,
-    pub(crate) method: Integrator,
-    pub(crate) a0: f64,
-}
-
-/// The fraction of a row's charge error that one step of `method` leaves when the row
-/// relaxes by itself at `z = h G_ii / C_ii` per step (module doc, "Accuracy"): the formula's
-/// amplification on `q' = -(G/C) q` (backward Euler `1 / (1 + z)`, the trapezoidal rule
-/// `|1 - z/2| / (1 + z/2)`, which tends to 1 on a stiff row: its error rings rather than
-/// dies), never below the exact `exp(-z)`. The multistep formulas get no credit (1): their
-/// parasitic roots make a one-line factor unsafe.
-fn remaining(method: Integrator, z: f64) -> f64 {
-    // No relaxation (or none measured: zero, negative or not a number) leaves it whole.
-    if z.is_nan() || z <= 0.0 {
-        return 1.0;
-    }
-    let formula = match method {
-        Integrator::BackwardEuler => 1.0 / (1.0 + z),
-        Integrator::Trapezoidal => (1.0 - 0.5 * z).abs() / (1.0 + 0.5 * z),
-        Integrator::Bdf2 | Integrator::VariableBdf => return 1.0,
-    };
-    formula.max((-z).exp())
-}
-
 /// Sorts `list`, indices below `marks.len()`, and drops repeats. A list long against the
 /// range it draws from (the first holds of a run freeze most of the circuit at once) is marked
 /// and read back in index order, linear in the range instead of a sort's `m log m`; either
@@ -1262,33 +1204,6 @@ fn wake(l: &mut Latency, u: usize, loc_map: &[usize], loc_start: &[usize]) {
 #[cfg(test)]
 mod tests {
     use super::sort_unique;
-
-    /// The formulas' amplification on `e' = -(G/C) e` at `z = h G/C` (backward Euler
-    /// `1/(1 + z)`, the trapezoidal rule `(1 - z/2)/(1 + z/2)`: common practice, any text on
-    /// the stability of one-step methods), never below `exp(-z)`.
-    #[test]
-    fn what_a_step_leaves_of_a_relaxing_row_s_error() {
-        use super::{remaining, Integrator};
-        let close = |a: f64, b: f64| (a - b).abs() < 1e-15;
-        assert!(close(remaining(Integrator::BackwardEuler, 1.0), 0.5));
-        // The trapezoidal rule damps a little more than the exact decay at z = 1 ...
-        assert!(close(
-            remaining(Integrator::Trapezoidal, 1.0),
-            (-1.0f64).exp()
-        ));
-        // ... and hardly at all on a stiff row, where its error rings.
-        assert!(close(remaining(Integrator::Trapezoidal, 10.0), 4.0 / 6.0));
-        // For small z the exact decay is the larger.
-        assert!(close(
-            remaining(Integrator::Trapezoidal, 0.01),
-            (-0.01f64).exp()
-        ));
-        for z in [0.0, -1.0, f64::NAN] {
-            assert_eq!(remaining(Integrator::Trapezoidal, z), 1.0);
-        }
-        assert_eq!(remaining(Integrator::Bdf2, 1.0), 1.0);
-        assert_eq!(remaining(Integrator::VariableBdf, 1.0), 1.0);
-    }
 
     #[test]
     fn sort_unique_gives_the_sorted_distinct_indices_by_either_path() {

@@ -1229,36 +1229,6 @@ impl System {
         })
     }
 
-    /// The rate (1/s) at which unknown `i`'s row loses a charge error to the rails with every
-    /// other unknown fixed, from the last transient assembly (`a0` its formula's coefficient:
-    /// the matrix holds `G + a0 C`): `(G_ii - Σ_j |G_ji|) / C_ii` over the other rows `j`
-    /// of column `i` that are not rails (`rail[j]`: a pinned node, whose source takes any
-    /// charge). A voltage error on `i` drives `G_ii` out of it; what reaches another free row
-    /// stays in the circuit (a node relaxing through a resistor onto a floating neighbour
-    /// loses nothing: `1/R - 1/R`), and a transconductance there only lowers the rate. 0 when
-    /// the row has no charge of its own, nothing reaches a rail, or the difference is lost in
-    /// rounding beside `a0 C_ii`.
-    pub(crate) fn drain_rate(&self, i: usize, a0: f64, rail: &[bool]) -> f64 {
-        let d = self.layout.diag_slot[i];
-        let c = self.cmat[d];
-        if c <= 0.0 {
-            return 0.0;
-        }
-        let (col_ptr, row_idx) = (self.pattern.col_ptr(), self.pattern.row_idx());
-        let mut g = self.jac[d] - a0 * c;
-        let column = col_ptr[i]..col_ptr[i + 1];
-        for (s, &j) in column.clone().zip(&row_idx[column]) {
-            if j != i && !rail[j] {
-                g -= (self.jac[s] - a0 * self.cmat[s]).abs();
-            }
-        }
-        if g > 1e-9 * a0 * c {
-            g / c
-        } else {
-            0.0
-        }
-    }
-
     /// The number of pins of element `e` (its internal unknowns follow them).
     pub(crate) fn pin_count(&self, e: usize) -> usize {
         self.pin_start[e + 1] - self.pin_start[e]
@@ -1948,43 +1918,6 @@ mod tests {
         c.add("cb", Capacitor::new(1e-12), &[b, Circuit::GROUND])
             .unwrap();
         System::new(c).unwrap()
-    }
-
-    /// A node charged through R from a source relaxes at 1/(RC) (common practice); a node
-    /// with a capacitor alone does not relax, a row without charge has no rate, and an
-    /// error that flows to a row that is not a rail is not lost.
-    #[test]
-    fn an_rc_node_drains_to_its_source_at_one_over_rc() {
-        let mut c = Circuit::new();
-        let (a, y, f) = (c.node("a"), c.node("y"), c.node("f"));
-        c.add("v", VoltageSource::dc(1.0), &[a, Circuit::GROUND])
-            .unwrap();
-        c.add("r", Resistor::new(2e3), &[a, y]).unwrap();
-        c.add("c", Capacitor::new(3e-12), &[y, Circuit::GROUND])
-            .unwrap();
-        c.add("cf", Capacitor::new(1e-15), &[f, y]).unwrap();
-        let mut sys = System::new(c).unwrap();
-        let ctx = EvalContext {
-            time: 0.0,
-            source_scale: 1.0,
-            analysis: Analysis::Transient,
-        };
-        let x = vec![0.3; sys.unknown_count()];
-        for a0 in [1e9, 1e12] {
-            sys.assemble(&x, &ctx, a0);
-            let (iy, iff, ia) = (1, 2, 0);
-            let rail = [true, false, false, false];
-            let rate = sys.drain_rate(iy, a0, &rail);
-            let exact = 1.0 / (2e3 * (3e-12 + 1e-15));
-            assert!(
-                (rate - exact).abs() < 1e-9 * exact,
-                "{a0}: {rate} against {exact}"
-            );
-            assert_eq!(sys.drain_rate(iff, a0, &rail), 0.0);
-            assert_eq!(sys.drain_rate(ia, a0, &rail), 0.0);
-            // With the source's node not a rail, the error reaches another free row.
-            assert_eq!(sys.drain_rate(iy, a0, &[false; 4]), 0.0);
-        }
     }
 
     /// Unknown names are made on demand from the circuit's names; an element of another

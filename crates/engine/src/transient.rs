@@ -66,7 +66,6 @@ use crate::circuit::NodeId;
 use crate::dc::{OpInfo, OpParams, Probe};
 use crate::element::{Analysis, EvalContext};
 use crate::error::EngineError;
-use crate::latency::AcceptedStep;
 use crate::lu::LuStats;
 use crate::stepping::{
     extrapolation_weights, milne_fraction, next_quadratic, predict_subset, Controller,
@@ -837,13 +836,7 @@ impl System {
             if p.latency {
                 // By index among the charge rows.
                 let tol_of_row = |k: usize| tol_of(k, q_new[k], hist.q[0][k], &qref);
-                let accepted = AcceptedStep {
-                    time: t_new,
-                    length: step,
-                    method,
-                    a0,
-                };
-                self.latency_accepted(&x, &x_new, &accepted, &p.tol, &tol_of_row);
+                self.latency_accepted(&x, &x_new, t_new, &p.tol, &tol_of_row);
             }
             hist.push(t_new, &q_new, &x_new, work_u, work_k);
             rate_known = true;

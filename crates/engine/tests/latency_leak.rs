@@ -57,10 +57,10 @@ fn a_leaking_node_keeps_its_drift_with_latency() {
     drift_stays_bounded(false, 0.2, 1e-10);
 }
 
-/// The same leak shared by two nodes joined through 1 kOhm: the resistor relaxes each node
-/// onto the other within picoseconds, but that gives no charge back to the pair (it reaches
-/// no rail), so the pair keeps the single node's bound over the whole run. Exact: the pair
-/// discharges as one 2 fF node through 200 TOhm, `exp(-t / 0.4 s)` (common practice).
+/// The same leak shared by two nodes joined through 1 kOhm (the resistor relaxes each node
+/// onto the other within picoseconds, but no charge leaves the pair through it): the pair
+/// keeps the single node's bound over the whole run. Exact: the pair discharges as one 2 fF
+/// node through 200 TOhm, `exp(-t / 0.4 s)` (common practice).
 #[test]
 fn a_leaking_pair_of_nodes_keeps_its_drift_with_latency() {
     drift_stays_bounded(true, 0.4, 1e-9);
