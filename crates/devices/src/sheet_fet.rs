@@ -1530,6 +1530,45 @@ fn lock<T>(m: &Mutex<T>) -> std::sync::MutexGuard<'_, T> {
     m.lock().unwrap_or_else(|p| p.into_inner())
 }
 
+/// How many cards' gate-leakage windows [`remembered_window`] keeps.
+const WINDOW_CACHE: usize = 8;
+
+/// The gate-leakage window of `card` (resolved), found by `search` or remembered from one of
+/// the last [`WINDOW_CACHE`] cards searched: a circuit's devices share a handful of cards,
+/// and the search (secant steps on the leakage table) repeated for each of the demo ring's
+/// 42 devices took 9 % of its run. The window is a function of the card alone (its stack's
+/// tables are shared and their knots solved independently), so remembering it changes no
+/// result; Monte Carlo samples, whose cards all differ, only pay the comparisons.
+fn remembered_window(
+    card: &SheetFetCard,
+    search: impl FnOnce() -> Option<leakage::Window>,
+) -> Option<leakage::Window> {
+    static WINDOWS: Mutex<RecentWindows> = Mutex::new(RecentWindows(Vec::new()));
+    if let Some(w) = lock(&WINDOWS).get(card) {
+        return w;
+    }
+    // Searched outside the lock, so that threads building different devices do not wait.
+    let window = search();
+    lock(&WINDOWS).put(card, window);
+    window
+}
+
+/// The last [`WINDOW_CACHE`] cards' windows, oldest first.
+struct RecentWindows(Vec<(SheetFetCard, Option<leakage::Window>)>);
+
+impl RecentWindows {
+    fn get(&self, card: &SheetFetCard) -> Option<Option<leakage::Window>> {
+        self.0.iter().find(|(k, _)| k == card).map(|&(_, w)| w)
+    }
+
+    fn put(&mut self, card: &SheetFetCard, window: Option<leakage::Window>) {
+        if self.0.len() == WINDOW_CACHE {
+            self.0.remove(0);
+        }
+        self.0.push((card.clone(), window));
+    }
+}
+
 /// The live entry of `cache` for `key`, dropping dead ones.
 fn find<K: PartialEq, T>(cache: &Mutex<Vec<(K, Weak<T>)>>, key: &K) -> Option<Arc<T>> {
     let mut c = lock(cache);
@@ -2429,20 +2468,23 @@ impl SheetFet {
             .as_ref()
             .filter(|_| card.gate_leakage == leakage::LeakageMode::Auto)
             .and_then(|t| {
-                // The whole gate's current against the fraction of the smallest channel
-                // current scale `(W/L) σ kT/q` inside the window, as a density:
-                // `f σ_min V_T / L²` (the leakage module's docs, "When it is on").
-                let area = card.width * card.length;
-                let limit = |sigma: f64| {
-                    (card.leakage_fraction * sigma * model.stack.vt / card.length.powi(2))
-                        .max(leakage::NEGLIGIBLE_CURRENT / area)
-                };
-                let mut probes = leakage::Probes::default();
-                let first = t.window(limit(model.table_s_sigma(0.0).1), &mut probes);
-                let least = leakage::smallest_on(first.below, first.above, model.stack.vt, |u| {
-                    model.table_s_sigma(u).1
-                });
-                t.window(limit(least), &mut probes).narrowest_kept()
+                remembered_window(card, || {
+                    // The whole gate's current against the fraction of the smallest channel
+                    // current scale `(W/L) σ kT/q` inside the window, as a density:
+                    // `f σ_min V_T / L²` (the leakage module's docs, "When it is on").
+                    let area = card.width * card.length;
+                    let limit = |sigma: f64| {
+                        (card.leakage_fraction * sigma * model.stack.vt / card.length.powi(2))
+                            .max(leakage::NEGLIGIBLE_CURRENT / area)
+                    };
+                    let mut probes = leakage::Probes::default();
+                    let first = t.window(limit(model.table_s_sigma(0.0).1), &mut probes);
+                    let least =
+                        leakage::smallest_on(first.below, first.above, model.stack.vt, |u| {
+                            model.table_s_sigma(u).1
+                        });
+                    t.window(limit(least), &mut probes).narrowest_kept()
+                })
             });
         let leakage = leakage.map(|t| (t, 0.5 * card.width * card.length));
         Ok(SheetFet {
@@ -2753,6 +2795,34 @@ impl Element for SheetFet {
 mod tests {
     use super::*;
     use crate::physics::dirac_band_density;
+
+    /// A card's window is remembered; another card gets its own, and the oldest of more
+    /// than `WINDOW_CACHE` cards is forgotten.
+    #[test]
+    fn the_last_cards_leakage_windows_are_remembered() {
+        let card = |w: f64| SheetFetCard {
+            width: w,
+            ..SheetFetCard::default()
+        };
+        let window = |v: f64| {
+            Some(leakage::Window {
+                below: -v,
+                above: v,
+                blend: 0.0,
+            })
+        };
+        let mut recent = RecentWindows(Vec::new());
+        assert_eq!(recent.get(&card(1.0)), None);
+        recent.put(&card(1.0), window(1.0));
+        recent.put(&card(2.0), None);
+        assert_eq!(recent.get(&card(1.0)), Some(window(1.0)));
+        assert_eq!(recent.get(&card(2.0)), Some(None));
+        for k in 1..WINDOW_CACHE {
+            recent.put(&card(10.0 + k as f64), None);
+        }
+        assert_eq!(recent.get(&card(1.0)), None);
+        assert_eq!(recent.get(&card(2.0)), Some(None));
+    }
 
     /// The gate's level solve meets every representable target density, from 1e-300 to
     /// 1e20 per m² of either sign, for half gaps from 0 to 0.3 eV and 4 K to 500 K, cold or

@@ -836,7 +836,7 @@ pub struct Window {
     pub below: f64,
     /// The onset on the positive side (V).
     pub above: f64,
-    blend: f64,
+    pub(crate) blend: f64,
 }
 
 /// Width of the fade-in inside each onset, in thermal voltages.
