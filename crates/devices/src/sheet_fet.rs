@@ -1536,9 +1536,10 @@ const WINDOW_CACHE: usize = 8;
 /// The gate-leakage window of `card` (resolved), found by `search` or remembered from one of
 /// the last [`WINDOW_CACHE`] cards searched: a circuit's devices share a handful of cards,
 /// and the search (secant steps on the leakage table) repeated for each of the demo ring's
-/// 42 devices took 9 % of its run. The window is a function of the card alone (its stack's
-/// tables are shared and their knots solved independently), so remembering it changes no
-/// result; Monte Carlo samples, whose cards all differ, only pay the comparisons.
+/// 42 devices took 9 % of its run. The window is a function of the card alone (a second
+/// search of a card reads the same shared table knots the first one solved), so remembering
+/// it changes no result; Monte Carlo samples, whose cards all differ, only pay the
+/// comparisons.
 fn remembered_window(
     card: &SheetFetCard,
     search: impl FnOnce() -> Option<leakage::Window>,

@@ -778,10 +778,9 @@ impl System {
                 .copied()
                 .filter(|&g| g != NONE)
         };
-        let mut col_ptr = vec![0usize; n + 1];
-        for c in 0..n {
-            col_ptr[c + 1] = 1;
-        }
+        // One diagonal entry per column to start with.
+        let mut col_ptr = vec![1usize; n + 1];
+        col_ptr[0] = 0;
         for e in 0..ne {
             let m = locals(e).count();
             for c in locals(e) {
