@@ -32,9 +32,18 @@
 //!   `|F_i| ≤ reltol scale_i + abstol_i`, with `scale_i` the row's largest current alone (a
 //!   held value is not refined by later iterations, so it must sit well inside the test; and
 //!   the charge terms' scale, `α₀` times the largest charge, grows as the step shrinks), or
-//!   when the charge its row has missed since it was held, `Σ |F_i| / α₀` over the accepted
-//!   steps (the charge change Newton would have applied), would exceed that row's truncation
-//!   error tolerance `lte_reltol max(|q_i|, q_ref) + chgtol` taken when it was held.
+//!   when the charge its row has missed, `Σ |F_i| / α₀` over the accepted steps of every
+//!   hold of the run (the charge change Newton would have applied), would exceed its
+//!   *budget*, taken when it was held.
+//! * **Budget.** The row's own truncation-error tolerance `lte_reltol max(|q_i|, q_ref) +
+//!   chgtol`, and no more than its column passes on: a value held `Δ = F_i / J_ii` off
+//!   drives the current `G_ki Δ` into every other row `k` at every step, which the active
+//!   solve takes as given, so the budget is at most `qtol_k |J_ii| / |G_ki|` for each charge
+//!   row `k` of the column (`|J_ii|` at its smallest over step sizes, `|G_ii|`, where that is
+//!   a bound). A row without charge (an algebraic node) so gets a finite budget when it
+//!   feeds a charge row; with its own tolerance alone, infinite, a node in a loop of
+//!   transconductances held its algebraic partner at a stale value whose error the loop's
+//!   gain passed on, and the slow node drifted without bound (DEVELOPERS.md, Latency).
 //!
 //! * **Working rows.** Only the rows a live element touches, and the active unknowns' rows,
 //!   are assembled, checked, predicted, integrated and stored each step. The other latent
@@ -80,8 +89,11 @@
 //! active, passes the residual test Newton applies to the full system: the accepted state is a
 //! solution of the full step equations to the ordinary Newton tolerances. Beyond one step, the
 //! charge a latent row fails to move accumulates; it is bounded by one step's truncation-error
-//! tolerance of that row, so the latent part never drifts by more than the integrator already
-//! allows for one step. The truncation-error test runs on every working charge row; an
+//! tolerance of that row, and what its held value passes on to each neighbouring charge row
+//! by that row's tolerance (the budget), so the latent part never drifts by more than the
+//! integrator already allows for one step, times one plus a row's number of held neighbours.
+//! The budget follows the coupling one row deep: an error passed on through an active
+//! algebraic row to a charge row beyond it is not bounded. The truncation-error test runs on every working charge row; an
 //! interior row's charge is constant, so its estimate would be zero. A fallback step is a
 //! full solve, nothing held: it adds no missed charge.
 //!
@@ -498,6 +510,7 @@ impl System {
         x_old: &[f64],
         x_new: &[f64],
         t: f64,
+        a0: f64,
         tol: &Tolerances,
         charge_tol: &dyn Fn(usize) -> f64,
     ) {
@@ -528,12 +541,12 @@ impl System {
             };
         }
         if !l.on {
-            self.maybe_resume(&mut l, charge_tol);
+            self.maybe_resume(&mut l, a0, charge_tol);
         }
         let mut newly_held = 0;
         for w in 0..l.work.len() {
             let u = l.work[w];
-            if !(l.on && self.ready_to_hold(&l, u, charge_tol)) {
+            if !(l.on && self.ready_to_hold(&l, u, a0, charge_tol)) {
                 continue;
             }
             newly_held += 1;
@@ -543,7 +556,7 @@ impl System {
             // truncation tolerance is for the whole run, not for each hold (a leaking
             // node would otherwise lose a tolerance's worth per hold, without bound).
             l.pending[u] = 0.0;
-            l.qtol[u] = l.charge_tol_of(l.eq_row[u], charge_tol);
+            l.qtol[u] = self.hold_budget(&l, u, a0, charge_tol);
             l.changed.push(u);
         }
         // Too many active unknowns: the whole system is cheaper than the active one. (The
@@ -564,7 +577,7 @@ impl System {
     /// active counting the quiet ones, and resumes holding (`on`) once, on a watched step,
     /// few would stay active counting those ready to be held (nothing is held in the
     /// fallback, so every row is working and `work` lists every unknown).
-    fn maybe_resume(&self, l: &mut Latency, charge_tol: &dyn Fn(usize) -> f64) {
+    fn maybe_resume(&self, l: &mut Latency, a0: f64, charge_tol: &dyn Fn(usize) -> f64) {
         if l.since_switch < l.backoff {
             return;
         }
@@ -580,7 +593,7 @@ impl System {
             let ready = l
                 .work
                 .iter()
-                .filter(|&&u| self.ready_to_hold(l, u, charge_tol))
+                .filter(|&&u| self.ready_to_hold(l, u, a0, charge_tol))
                 .count();
             if few(ready) {
                 l.on = true;
@@ -595,7 +608,13 @@ impl System {
     /// unknown only with all of its element's local unknowns, and its row's missed charge of
     /// the run still below its truncation tolerance (a row that has missed its run's
     /// allowance stays active).
-    fn ready_to_hold(&self, l: &Latency, u: usize, charge_tol: &dyn Fn(usize) -> f64) -> bool {
+    fn ready_to_hold(
+        &self,
+        l: &Latency,
+        u: usize,
+        a0: f64,
+        charge_tol: &dyn Fn(usize) -> f64,
+    ) -> bool {
         if l.held[u] || l.quiet[u] < QUIET_STEPS || !l.holdable[u] {
             return false;
         }
@@ -606,7 +625,54 @@ impl System {
                 .iter()
                 .all(|&g| g == NONE || l.held[g] || l.quiet[g] >= QUIET_STEPS),
         };
-        internal_ok && l.missed[u] < l.charge_tol_of(l.eq_row[u], charge_tol)
+        // A row that has missed nothing may be held on a zero budget (a floating node whose
+        // equation holds exactly at its held value).
+        internal_ok && {
+            let budget = self.hold_budget(l, u, a0, charge_tol);
+            l.missed[u] < budget || l.missed[u] == 0.0
+        }
+    }
+
+    /// The charge `u`'s equation may miss over the run while held (see the module doc,
+    /// "Budget"): its own row's truncation tolerance, and no more than lets each other charge
+    /// row `k` of its column receive its own tolerance through a conductance. A held value off
+    /// by `Δ = F / J_uu` drives the current `G_ku Δ` into row `k` at every step, which the
+    /// active solve takes as given, while the held row counts `F / α₀`; so for each such row
+    /// the budget is at most `qtol_k |J_uu| / |G_ku|`, with `|J_uu| = |G_uu + α₀ C_uu|` at its
+    /// smallest over step sizes, `|G_uu|`, when `G_uu` and `C_uu` share a sign and `G_uu` is
+    /// not zero (at the step held otherwise). A capacitance `C_ku` only moves row `k`'s
+    /// charge by `C_ku Δ`, once, which the residual test bounds. Reads the Jacobian of the
+    /// last assembly (`jac` at `a0`, `cmat`), in which `u` was active, so every element on its
+    /// column was live and the column is whole.
+    fn hold_budget(
+        &self,
+        l: &Latency,
+        u: usize,
+        a0: f64,
+        charge_tol: &dyn Fn(usize) -> f64,
+    ) -> f64 {
+        let r = l.eq_row[u];
+        let mut budget = l.charge_tol_of(r, charge_tol);
+        let (col_ptr, row_idx) = (self.pattern.col_ptr(), self.pattern.row_idx());
+        let entries = col_ptr[u]..col_ptr[u + 1];
+        let conductance = |s: usize| self.jac[s] - a0 * self.cmat[s];
+        let (gd, cd) = match row_idx[entries.clone()].binary_search(&r) {
+            Ok(k) => (conductance(col_ptr[u] + k), self.cmat[col_ptr[u] + k]),
+            Err(_) => (0.0, 0.0),
+        };
+        let diagonal = if gd != 0.0 && gd * cd >= 0.0 {
+            gd.abs()
+        } else {
+            (gd + a0 * cd).abs()
+        };
+        for s in entries {
+            let (k, g) = (row_idx[s], conductance(s));
+            if k == r || g == 0.0 {
+                continue;
+            }
+            budget = budget.min(l.charge_tol_of(k, charge_tol) * diagonal / g.abs());
+        }
+        budget
     }
 
     /// Runs `f` with the active unknowns and the working rows of the partition lent out of it

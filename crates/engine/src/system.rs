@@ -677,7 +677,7 @@ pub struct System {
     pub(crate) jac: Vec<f64>,
     /// `∂q/∂x` in pattern order (filled only when `a0 != 0`), to carry the charges along the
     /// final Newton correction.
-    cmat: Vec<f64>,
+    pub(crate) cmat: Vec<f64>,
     /// Scratch for `C Δ`.
     cdelta: Vec<f64>,
     pub(crate) f: Vec<f64>,

@@ -836,7 +836,7 @@ impl System {
             if p.latency {
                 // By index among the charge rows.
                 let tol_of_row = |k: usize| tol_of(k, q_new[k], hist.q[0][k], &qref);
-                self.latency_accepted(&x, &x_new, t_new, &p.tol, &tol_of_row);
+                self.latency_accepted(&x, &x_new, t_new, a0, &p.tol, &tol_of_row);
             }
             hist.push(t_new, &q_new, &x_new, work_u, work_k);
             rate_known = true;
