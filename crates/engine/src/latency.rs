@@ -36,14 +36,20 @@
 //!   hold of the run (the charge change Newton would have applied), would exceed its
 //!   *budget*, taken when it was held.
 //! * **Budget.** The row's own truncation-error tolerance `lte_reltol max(|q_i|, q_ref) +
-//!   chgtol`, and no more than its column passes on: a value held `Δ = F_i / J_ii` off
-//!   drives the current `G_ki Δ` into every other row `k` at every step, which the active
-//!   solve takes as given, so the budget is at most `qtol_k |J_ii| / |G_ki|` for each charge
-//!   row `k` of the column (`|J_ii|` at its smallest over step sizes, `|G_ii|`, where that is
-//!   a bound). A row without charge (an algebraic node) so gets a finite budget when it
-//!   feeds a charge row; with its own tolerance alone, infinite, a node in a loop of
-//!   transconductances held its algebraic partner at a stale value whose error the loop's
-//!   gain passed on, and the slow node drifted without bound (DEVELOPERS.md, Latency).
+//!   chgtol`, and no more than its column passes on. A row that missed charge `M` is off by
+//!   `e = M / C_ii` once it wakes (an algebraic row by `F_i / G_ii` while held), and drives
+//!   `G_ki e` into every other row `k` at every step, which the active solve takes as given;
+//!   the error relaxes at `G_ii / C_ii`, or without conductance lasts to the end of the run,
+//!   so `∫ e dt <= M / D` with `D = max(|G_ii|, |C_ii| / (t_stop - t))` (zero when `G_ii`
+//!   and `C_ii` differ in sign), and the budget is at most `qtol_k D / |G_ki|` for each
+//!   charge row `k` of the column. An algebraic row of the column passes the error on to
+//!   its own column's charge rows, through its diagonal, up to two such rows deep; a held
+//!   algebraic row there (whose column the last assembly left partial, and which may wake
+//!   while the error lasts) leaves a budget of zero. Taken when the row is held, from the
+//!   assembly in which it was active, and lowered at each accepted step while it is held
+//!   from the entries that assembly made whole (couplings grow as neighbours switch). A row
+//!   without charge so gets a finite budget when it feeds a charge row (DEVELOPERS.md,
+//!   Latency, "Budget through the column", for the circuits that needed each part).
 //!
 //! * **Working rows.** Only the rows a live element touches, and the active unknowns' rows,
 //!   are assembled, checked, predicted, integrated and stored each step. The other latent
@@ -92,8 +98,9 @@
 //! tolerance of that row, and what its held value passes on to each neighbouring charge row
 //! by that row's tolerance (the budget), so the latent part never drifts by more than the
 //! integrator already allows for one step, times one plus a row's number of held neighbours.
-//! The budget follows the coupling one row deep: an error passed on through an active
-//! algebraic row to a charge row beyond it is not bounded. The truncation-error test runs on every working charge row; an
+//! The bound rests on each row's own relaxation (`G_ii`), first order: a loop of gain that
+//! slows a charge row's decay below `G_ii / C_ii` is not bounded by it (the loop in
+//! `tests/latency_leak.rs` is caught through its algebraic node's budget). The truncation-error test runs on every working charge row; an
 //! interior row's charge is constant, so its estimate would be zero. A fallback step is a
 //! full solve, nothing held: it adds no missed charge.
 //!
@@ -124,6 +131,12 @@ pub(crate) const QUIET_FRACTION: f64 = 0.01;
 /// 48 and 128 gave the same times on the square-law rings; on a 101-stage 2D-FET ring, whose
 /// active sets are larger, 128 took 5.7 s against 6.9-8.7 s at 48 (DEVELOPERS.md, Latency).
 pub(crate) const DENSE_MAX: usize = 128;
+
+/// Columns a held row's budget follows its error through: its own and those of up to two
+/// algebraic rows in a row (see [`System::pass_on_budget`]).
+const PASS_DEPTH: usize = 3;
+/// Column entries that search may read before it gives up (and the row is not held).
+const PASS_ENTRIES: usize = 1 << 16;
 
 /// Active share (active unknowns over all unknowns, after an accepted step's holds) above
 /// which latency falls back to the whole system, nothing held. On the demo 2D-FET ring of 21
@@ -171,6 +184,11 @@ pub(crate) struct Latency {
     missed: Vec<f64>,
     pending: Vec<f64>,
     qtol: Vec<f64>,
+    /// Per held unknown: the lower bound on its row's diagonal its budget divides by (see
+    /// [`System::hold_budget`]), taken when it was held.
+    diag: Vec<f64>,
+    /// The run's stop time: an error that does not decay lasts at most until then.
+    stop_time: f64,
     /// Per unknown: the row holding its equation (pinned nodes and their sources' currents
     /// trade rows); per row: the position in `active` of the unknown it belongs to.
     eq_row: Vec<usize>,
@@ -305,7 +323,7 @@ impl System {
     /// Starts the latency bookkeeping of a transient: every unknown active, nothing frozen.
     /// With `fallback`, it starts in the whole-system fallback (everything is active at
     /// first) and holds once enough rows are ready.
-    pub(crate) fn latency_begin(&mut self, tol: Tolerances, fallback: bool) {
+    pub(crate) fn latency_begin(&mut self, tol: Tolerances, fallback: bool, stop_time: f64) {
         let strategy = self.lu.strategy();
         let mut charge_k = vec![NONE; self.n];
         for (k, &r) in self.charge_rows.iter().enumerate() {
@@ -359,6 +377,8 @@ impl System {
             quiet: vec![0; n],
             missed: vec![0.0; n],
             pending: vec![0.0; n],
+            diag: vec![0.0; n],
+            stop_time,
             qtol: vec![f64::INFINITY; n],
             eq_row,
             pos: vec![NONE; n],
@@ -523,6 +543,12 @@ impl System {
         for &u in &l.work {
             if l.held[u] {
                 l.missed[u] += l.pending[u];
+                // The couplings may have grown since the row was held (a neighbour's
+                // transconductance as it switches): the budget only shrinks.
+                if l.pending[u] != 0.0 {
+                    let now = self.pass_on_budget(&l, u, l.diag[u], a0, charge_tol);
+                    l.qtol[u] = l.qtol[u].min(now);
+                }
                 l.pending[u] = 0.0;
                 l.latent_steps += 1;
                 continue;
@@ -541,23 +567,28 @@ impl System {
             };
         }
         if !l.on {
-            self.maybe_resume(&mut l, a0, charge_tol);
+            self.maybe_resume(&mut l, t, a0, charge_tol);
         }
-        let mut newly_held = 0;
+        // Budgets first, then the holds: every budget reads the assembly in which all of
+        // this step's newly held rows were still active (their columns whole).
+        let first = l.changed.len();
         for w in 0..l.work.len() {
             let u = l.work[w];
-            if !(l.on && self.ready_to_hold(&l, u, a0, charge_tol)) {
+            if !(l.on && self.ready_to_hold(&l, u, t, a0, charge_tol)) {
                 continue;
             }
-            newly_held += 1;
+            (l.qtol[u], l.diag[u]) = self.hold_budget(&l, u, t, a0, charge_tol);
+            l.changed.push(u);
+        }
+        let newly_held = l.changed.len() - first;
+        for c in first..l.changed.len() {
+            let u = l.changed[c];
             l.held[u] = true;
             // `missed` is kept from earlier holds of this run: the charge a held row
             // misses is not given back when it wakes, so the bound of one step's
             // truncation tolerance is for the whole run, not for each hold (a leaking
             // node would otherwise lose a tolerance's worth per hold, without bound).
             l.pending[u] = 0.0;
-            l.qtol[u] = self.hold_budget(&l, u, a0, charge_tol);
-            l.changed.push(u);
         }
         // Too many active unknowns: the whole system is cheaper than the active one. (The
         // active list is refreshed below: it does not yet count this step's holds.)
@@ -577,7 +608,7 @@ impl System {
     /// active counting the quiet ones, and resumes holding (`on`) once, on a watched step,
     /// few would stay active counting those ready to be held (nothing is held in the
     /// fallback, so every row is working and `work` lists every unknown).
-    fn maybe_resume(&self, l: &mut Latency, a0: f64, charge_tol: &dyn Fn(usize) -> f64) {
+    fn maybe_resume(&self, l: &mut Latency, t: f64, a0: f64, charge_tol: &dyn Fn(usize) -> f64) {
         if l.since_switch < l.backoff {
             return;
         }
@@ -593,7 +624,7 @@ impl System {
             let ready = l
                 .work
                 .iter()
-                .filter(|&&u| self.ready_to_hold(l, u, a0, charge_tol))
+                .filter(|&&u| self.ready_to_hold(l, u, t, a0, charge_tol))
                 .count();
             if few(ready) {
                 l.on = true;
@@ -612,6 +643,7 @@ impl System {
         &self,
         l: &Latency,
         u: usize,
+        t: f64,
         a0: f64,
         charge_tol: &dyn Fn(usize) -> f64,
     ) -> bool {
@@ -627,52 +659,147 @@ impl System {
         };
         // A row that has missed nothing may be held on a zero budget (a floating node whose
         // equation holds exactly at its held value).
-        internal_ok && {
-            let budget = self.hold_budget(l, u, a0, charge_tol);
-            l.missed[u] < budget || l.missed[u] == 0.0
-        }
+        internal_ok
+            && (l.missed[u] == 0.0 || l.missed[u] < self.hold_budget(l, u, t, a0, charge_tol).0)
     }
 
-    /// The charge `u`'s equation may miss over the run while held (see the module doc,
-    /// "Budget"): its own row's truncation tolerance, and no more than lets each other charge
-    /// row `k` of its column receive its own tolerance through a conductance. A held value off
-    /// by `Δ = F / J_uu` drives the current `G_ku Δ` into row `k` at every step, which the
-    /// active solve takes as given, while the held row counts `F / α₀`; so for each such row
-    /// the budget is at most `qtol_k |J_uu| / |G_ku|`, with `|J_uu| = |G_uu + α₀ C_uu|` at its
-    /// smallest over step sizes, `|G_uu|`, when `G_uu` and `C_uu` share a sign and `G_uu` is
-    /// not zero (at the step held otherwise). A capacitance `C_ku` only moves row `k`'s
-    /// charge by `C_ku Δ`, once, which the residual test bounds. Reads the Jacobian of the
-    /// last assembly (`jac` at `a0`, `cmat`), in which `u` was active, so every element on its
-    /// column was live and the column is whole.
+    /// The charge `u`'s equation may miss over the run while held, and the bound on its
+    /// diagonal that budget divides by (see the module doc, "Budget"): its own row's
+    /// truncation tolerance, and no more than lets each other charge row of its column, or
+    /// beyond an algebraic row of it, receive its own tolerance ([`Self::pass_on_budget`]).
+    /// The diagonal bounds how long the held error `e` lasts once the row wakes: a row that
+    /// misses charge `M` is off by `e = M / C_uu`, which relaxes at `G_uu / C_uu` or, without
+    /// conductance, stays to the end of the run, so `∫ e dt <= M min(1 / |G_uu|, (t_stop - t)
+    /// / |C_uu|)` (`G_uu` less than a rounding of `α₀ C_uu` reads as zero: the bound then
+    /// rests on the run's end); an algebraic row's error `F / G_uu` is gone when it wakes.
+    /// A diagonal whose parts differ in sign (a negative conductance) bounds nothing: zero.
+    /// Reads the Jacobian of the last assembly (`jac` at `a0`, `cmat`), in which `u` was
+    /// active, so every element on its column was live and the column is whole.
     fn hold_budget(
         &self,
         l: &Latency,
         u: usize,
+        t: f64,
+        a0: f64,
+        charge_tol: &dyn Fn(usize) -> f64,
+    ) -> (f64, f64) {
+        let r = l.eq_row[u];
+        let own = l.charge_tol_of(r, charge_tol);
+        let (col_ptr, row_idx) = (self.pattern.col_ptr(), self.pattern.row_idx());
+        let (gd, cd) = match row_idx[col_ptr[u]..col_ptr[u + 1]].binary_search(&r) {
+            Ok(k) => {
+                let s = col_ptr[u] + k;
+                (self.jac[s] - a0 * self.cmat[s], self.cmat[s])
+            }
+            Err(_) => (0.0, 0.0),
+        };
+        let diag = if gd * cd < 0.0 {
+            0.0
+        } else {
+            gd.abs()
+                .max(cd.abs() / (l.stop_time - t).max(f64::MIN_POSITIVE))
+        };
+        (
+            own.min(self.pass_on_budget(l, u, diag, a0, charge_tol)),
+            diag,
+        )
+    }
+
+    /// The most charge held `u` may miss before its error, `diag` the bound on its diagonal
+    /// (see [`Self::hold_budget`]), passes some other charge row `k` of its column its
+    /// tolerance: a held value off by `e` drives `G_ku e` into row `k` at every step, which
+    /// the active solve takes as given, so at most `qtol_k diag / |G_ku|`. An algebraic row
+    /// `k` (no charge) of the column passes the error on, `G_ku e / |J_kv|` on its unknown `v`,
+    /// to the charge rows of `v`'s column, and so on to [`PASS_DEPTH`] algebraic rows; a
+    /// search that would visit more than [`PASS_ENTRIES`] entries gives zero (hold nothing
+    /// rather than bound nothing). Only entries whose values the last assembly made whole are
+    /// read: those of a column whose unknown is active, and of an active unknown's row.
+    /// A capacitance `C_ku` moves row `k`'s charge by `C_ku / C_uu` times the charge `u`
+    /// missed, once: within `k`'s tolerance for passive capacitors.
+    fn pass_on_budget(
+        &self,
+        l: &Latency,
+        u: usize,
+        diag: f64,
         a0: f64,
         charge_tol: &dyn Fn(usize) -> f64,
     ) -> f64 {
-        let r = l.eq_row[u];
-        let mut budget = l.charge_tol_of(r, charge_tol);
-        let (col_ptr, row_idx) = (self.pattern.col_ptr(), self.pattern.row_idx());
-        let entries = col_ptr[u]..col_ptr[u + 1];
-        let conductance = |s: usize| self.jac[s] - a0 * self.cmat[s];
-        let (gd, cd) = match row_idx[entries.clone()].binary_search(&r) {
-            Ok(k) => (conductance(col_ptr[u] + k), self.cmat[col_ptr[u] + k]),
-            Err(_) => (0.0, 0.0),
-        };
-        let diagonal = if gd != 0.0 && gd * cd >= 0.0 {
-            gd.abs()
-        } else {
-            (gd + a0 * cd).abs()
-        };
-        for s in entries {
-            let (k, g) = (row_idx[s], conductance(s));
-            if k == r || g == 0.0 {
-                continue;
-            }
-            budget = budget.min(l.charge_tol_of(k, charge_tol) * diagonal / g.abs());
+        let mut budget = f64::INFINITY;
+        let mut visits = 0usize;
+        if !self.pass_on(l, u, diag, 0, a0, charge_tol, &mut budget, &mut visits) {
+            return 0.0;
         }
         budget
+    }
+
+    /// One column of [`Self::pass_on_budget`]'s search: the column of unknown `c`, whose
+    /// error is `1 / scale` per unit of the held row's missed charge. Returns false when the
+    /// search grew past [`PASS_ENTRIES`].
+    #[allow(
+        clippy::too_many_arguments,
+        reason = "a recursion's state, kept out of the partition"
+    )]
+    fn pass_on(
+        &self,
+        l: &Latency,
+        c: usize,
+        scale: f64,
+        depth: usize,
+        a0: f64,
+        charge_tol: &dyn Fn(usize) -> f64,
+        budget: &mut f64,
+        visits: &mut usize,
+    ) -> bool {
+        let (col_ptr, row_idx) = (self.pattern.col_ptr(), self.pattern.row_idx());
+        let entries = col_ptr[c]..col_ptr[c + 1];
+        *visits += entries.len();
+        if *visits > PASS_ENTRIES {
+            return false;
+        }
+        let own_row = l.eq_row[c];
+        for s in entries {
+            let k = row_idx[s];
+            let v = l.eq_row[k];
+            // Whole when the column's unknown or the row's is active (all its elements live).
+            if k == own_row || (l.held[c] && l.held[v]) {
+                continue;
+            }
+            let g = (self.jac[s] - a0 * self.cmat[s]).abs();
+            if g == 0.0 {
+                continue;
+            }
+            if l.charge_k[k] != NONE {
+                *budget = budget.min(l.charge_tol_of(k, charge_tol) * scale / g);
+                continue;
+            }
+            // An algebraic row: its unknown takes the error on, through its diagonal. A held
+            // one's column is not whole (its frozen elements are not assembled), yet it may
+            // wake while the error lasts: nothing is bounded, so nothing may be missed.
+            if depth + 1 >= PASS_DEPTH {
+                continue;
+            }
+            if l.held[v] {
+                *budget = 0.0;
+                return true;
+            }
+            let j_kv = match row_idx[col_ptr[v]..col_ptr[v + 1]].binary_search(&k) {
+                Ok(i) => self.jac[col_ptr[v] + i].abs(),
+                Err(_) => 0.0,
+            };
+            if !self.pass_on(
+                l,
+                v,
+                scale * j_kv / g,
+                depth + 1,
+                a0,
+                charge_tol,
+                budget,
+                visits,
+            ) {
+                return false;
+            }
+        }
+        true
     }
 
     /// Runs `f` with the active unknowns and the working rows of the partition lent out of it

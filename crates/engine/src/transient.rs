@@ -591,7 +591,7 @@ impl System {
         // on the step-size failure, so later analyses solve the whole system.
         self.latency_end();
         if p.latency {
-            self.latency_begin(p.tol, p.latency_fallback);
+            self.latency_begin(p.tol, p.latency_fallback, p.stop_time);
         }
         self.begin_voltage_range(&x);
 
