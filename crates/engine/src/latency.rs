@@ -38,11 +38,12 @@
 //! * **Budget.** The row's own truncation-error tolerance `lte_reltol max(|q_i|, q_ref) +
 //!   chgtol`, and no more than its column passes on. A row that missed charge `M` is off by
 //!   `e = M / C_ii` once it wakes (an algebraic row by `F_i / G_ii` while held), and drives
-//!   `G_ki e` into every other row `k` at every step, which the active solve takes as given;
-//!   the error relaxes at `G_ii / C_ii`, or without conductance lasts to the end of the run,
-//!   so `∫ e dt <= M / D` with `D = max(|G_ii|, |C_ii| / (t_stop - t))` (zero when `G_ii`
-//!   and `C_ii` differ in sign), and the budget is at most `qtol_k D / |G_ki|` for each
-//!   charge row `k` of the column. An algebraic row of the column passes the error on to
+//!   `G_ki e` into every other row `k` at every step, which the active solve takes as given.
+//!   No decay is assumed (a loop of gain can hold the error up however fast the row's own
+//!   conductance would relax it): it lasts to the end of the run, so `∫ e dt <= M / D` with
+//!   `D = |C_ii| / (t_stop - t)` (`|G_ii|` for an algebraic row, whose error is gone when it
+//!   wakes), and the budget is at most `qtol_k D / |G_ki|` for each charge row `k` of the
+//!   column. An algebraic row of the column passes the error on to
 //!   its own column's charge rows, through its diagonal, up to two such rows deep; a held
 //!   algebraic row there (whose column the last assembly left partial, and which may wake
 //!   while the error lasts) leaves a budget of zero. Taken when the row is held, from the
@@ -98,9 +99,9 @@
 //! tolerance of that row, and what its held value passes on to each neighbouring charge row
 //! by that row's tolerance (the budget), so the latent part never drifts by more than the
 //! integrator already allows for one step, times one plus a row's number of held neighbours.
-//! The bound rests on each row's own relaxation (`G_ii`), first order: a loop of gain that
-//! slows a charge row's decay below `G_ii / C_ii` is not bounded by it (the loop in
-//! `tests/latency_leak.rs` is caught through its algebraic node's budget). The truncation-error test runs on every working charge row; an
+//! First order: each row's error is taken alone, the held rows' errors on one another
+//! through held rows are not followed. The truncation-error test runs on every working
+//! charge row; an
 //! interior row's charge is constant, so its estimate would be zero. A fallback step is a
 //! full solve, nothing held: it adds no missed charge.
 //!
@@ -668,11 +669,9 @@ impl System {
     /// truncation tolerance, and no more than lets each other charge row of its column, or
     /// beyond an algebraic row of it, receive its own tolerance ([`Self::pass_on_budget`]).
     /// The diagonal bounds how long the held error `e` lasts once the row wakes: a row that
-    /// misses charge `M` is off by `e = M / C_uu`, which relaxes at `G_uu / C_uu` or, without
-    /// conductance, stays to the end of the run, so `∫ e dt <= M min(1 / |G_uu|, (t_stop - t)
-    /// / |C_uu|)` (`G_uu` less than a rounding of `α₀ C_uu` reads as zero: the bound then
-    /// rests on the run's end); an algebraic row's error `F / G_uu` is gone when it wakes.
-    /// A diagonal whose parts differ in sign (a negative conductance) bounds nothing: zero.
+    /// misses charge `M` is off by `e = M / C_uu`, taken to last to the end of the run (a
+    /// loop of gain can hold it up however strongly `G_uu` would relax it), so `∫ e dt <= M
+    /// (t_stop - t) / |C_uu|`; an algebraic row's error `F / G_uu` is gone when it wakes.
     /// Reads the Jacobian of the last assembly (`jac` at `a0`, `cmat`), in which `u` was
     /// active, so every element on its column was live and the column is whole.
     fn hold_budget(
@@ -693,11 +692,10 @@ impl System {
             }
             Err(_) => (0.0, 0.0),
         };
-        let diag = if gd * cd < 0.0 {
-            0.0
+        let diag = if cd != 0.0 {
+            cd.abs() / (l.stop_time - t).max(f64::MIN_POSITIVE)
         } else {
             gd.abs()
-                .max(cd.abs() / (l.stop_time - t).max(f64::MIN_POSITIVE))
         };
         (
             own.min(self.pass_on_budget(l, u, diag, a0, charge_tol)),
