@@ -44,9 +44,9 @@
 //!   `D = |C_ii| / (t_stop - t)` (`|G_ii|` for an algebraic row, whose error is gone when it
 //!   wakes), and the budget is at most `qtol_k D / |G_ki|` for each charge row `k` of the
 //!   column. An algebraic row of the column passes the error on to
-//!   its own column's charge rows, through its diagonal, up to two such rows deep; a held
-//!   algebraic row there (whose column the last assembly left partial, and which may wake
-//!   while the error lasts) leaves a budget of zero. Taken when the row is held, from the
+//!   its own column's charge rows, through its diagonal, up to two such rows deep; a third,
+//!   or a held algebraic row on the way (whose column the last assembly left partial, and
+//!   which may wake while the error lasts), leaves a budget of zero. Taken when the row is held, from the
 //!   assembly in which it was active, and lowered at each accepted step while it is held
 //!   from the entries that assembly made whole (couplings grow as neighbours switch). A row
 //!   without charge so gets a finite budget when it feeds a charge row (DEVELOPERS.md,
@@ -100,7 +100,11 @@
 //! by that row's tolerance (the budget), so the latent part never drifts by more than the
 //! integrator already allows for one step, times one plus a row's number of held neighbours.
 //! First order: each row's error is taken alone, the held rows' errors on one another
-//! through held rows are not followed. The truncation-error test runs on every working
+//! through held rows are not followed, nor an error a charge row received and carries on,
+//! nor one passed on at a coupling that grew after the charge was missed: a node that
+//! integrates the difference of such rows with a large gain over the whole run can end far
+//! from the full solve while every row stays within a few allowances (DEVELOPERS.md,
+//! Latency, "Budget through the column"). The truncation-error test runs on every working
 //! charge row; an
 //! interior row's charge is constant, so its estimate would be zero. A fallback step is a
 //! full solve, nothing held: it adds no missed charge.
@@ -134,7 +138,7 @@ pub(crate) const QUIET_FRACTION: f64 = 0.01;
 pub(crate) const DENSE_MAX: usize = 128;
 
 /// Columns a held row's budget follows its error through: its own and those of up to two
-/// algebraic rows in a row (see [`System::pass_on_budget`]).
+/// algebraic rows in a row; a third leaves a budget of zero (see [`System::pass_on_budget`]).
 const PASS_DEPTH: usize = 3;
 /// Column entries that search may read before it gives up (and the row is not held).
 const PASS_ENTRIES: usize = 1 << 16;
@@ -770,13 +774,11 @@ impl System {
                 *budget = budget.min(l.charge_tol_of(k, charge_tol) * scale / g);
                 continue;
             }
-            // An algebraic row: its unknown takes the error on, through its diagonal. A held
-            // one's column is not whole (its frozen elements are not assembled), yet it may
-            // wake while the error lasts: nothing is bounded, so nothing may be missed.
-            if depth + 1 >= PASS_DEPTH {
-                continue;
-            }
-            if l.held[v] {
+            // An algebraic row: its unknown takes the error on, through its diagonal. Beyond
+            // the search's depth, or held (its column is not whole: its frozen elements are
+            // not assembled; yet it may wake while the error lasts), nothing is bounded, so
+            // nothing may be missed.
+            if depth + 1 >= PASS_DEPTH || l.held[v] {
                 *budget = 0.0;
                 return true;
             }
