@@ -43,12 +43,12 @@
 //!   conductance would relax it): it lasts to the end of the run, so `∫ e dt <= M / D` with
 //!   `D = |C_ii| / (t_stop - t)` (`|G_ii|` for an algebraic row, whose error is gone when it
 //!   wakes), and the budget is at most `qtol_k D / |G_ki|` for each charge row `k` of the
-//!   column. An algebraic row of the column passes the error on to
-//!   its own column's charge rows, through its diagonal, up to two such rows deep; a third,
-//!   or a held algebraic row on the way (whose column the last assembly left partial, and
-//!   which may wake while the error lasts), leaves a budget of zero. Taken when the row is held, from the
-//!   assembly in which it was active, and lowered at each accepted step while it is held
-//!   from the entries that assembly made whole (couplings grow as neighbours switch). A row
+//!   column. An algebraic row of the column passes the error on to its own column's charge
+//!   rows, through its diagonal, up to two such rows deep; a third, or a held algebraic row
+//!   on the way (whose column the last assembly left partial, and which may wake while the
+//!   error lasts), leaves a budget of zero. Taken when the row is held, from the assembly in
+//!   which it was active, and lowered at each accepted step while it is held from the
+//!   entries that step's assembly made whole (couplings grow as neighbours switch). A row
 //!   without charge so gets a finite budget when it feeds a charge row (DEVELOPERS.md,
 //!   Latency, "Budget through the column", for the circuits that needed each part).
 //!
@@ -105,8 +105,7 @@
 //! integrates the difference of such rows with a large gain over the whole run can end far
 //! from the full solve while every row stays within a few allowances (DEVELOPERS.md,
 //! Latency, "Budget through the column"). The truncation-error test runs on every working
-//! charge row; an
-//! interior row's charge is constant, so its estimate would be zero. A fallback step is a
+//! charge row; an interior row's charge is constant, so its estimate would be zero. A fallback step is a
 //! full solve, nothing held: it adds no missed charge.
 //!
 //! *Charge.* An active row's charge is computed and carried as before. A latent row whose
@@ -189,8 +188,8 @@ pub(crate) struct Latency {
     missed: Vec<f64>,
     pending: Vec<f64>,
     qtol: Vec<f64>,
-    /// Per held unknown: the lower bound on its row's diagonal its budget divides by (see
-    /// [`System::hold_budget`]), taken when it was held.
+    /// Per held unknown: the bound `D` its budget divides by (see [`System::hold_budget`]),
+    /// taken when it was held (smaller than later in the hold, where less of the run is left).
     diag: Vec<f64>,
     /// The run's stop time: an error that does not decay lasts at most until then.
     stop_time: f64,
@@ -642,8 +641,8 @@ impl System {
     /// Whether the active unknown `u` may be held after an accepted step: quiet on its last
     /// [`QUIET_STEPS`] steps, its row inside the hold test at the last check, an internal
     /// unknown only with all of its element's local unknowns, and its row's missed charge of
-    /// the run still below its truncation tolerance (a row that has missed its run's
-    /// allowance stays active).
+    /// the run still below its budget ([`Self::hold_budget`]; a row that has missed its
+    /// run's allowance stays active).
     fn ready_to_hold(
         &self,
         l: &Latency,
