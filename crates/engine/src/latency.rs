@@ -105,8 +105,8 @@
 //! integrates the difference of such rows with a large gain over the whole run can end far
 //! from the full solve while every row stays within a few allowances (DEVELOPERS.md,
 //! Latency, "Budget through the column"). The truncation-error test runs on every working
-//! charge row; an interior row's charge is constant, so its estimate would be zero. A fallback step is a
-//! full solve, nothing held: it adds no missed charge.
+//! charge row; an interior row's charge is constant, so its estimate would be zero. A
+//! fallback step is a full solve, nothing held: it adds no missed charge.
 //!
 //! *Charge.* An active row's charge is computed and carried as before. A latent row whose
 //! elements are all frozen keeps its charge bit for bit; one touched by a live element stores
