@@ -51,6 +51,11 @@
 //!   entries that step's assembly made whole (couplings grow as neighbours switch). A row
 //!   without charge so gets a finite budget when it feeds a charge row (DEVELOPERS.md,
 //!   Latency, "Budget through the column", for the circuits that needed each part).
+//! * **Giving back.** A row that wakes gets back, in every stored point of its charge
+//!   history, the part of the signed charge its current moved over the hold that its own
+//!   relaxation would not have undone ([`give_back`]): all of it without conductance, about
+//!   the equilibrium offset `C F / G` for a row that relaxes within the hold. The missed
+//!   charge still counts against the run's allowance.
 //!
 //! * **Working rows.** Only the rows a live element touches, and the active unknowns' rows,
 //!   are assembled, checked, predicted, integrated and stored each step. The other latent
@@ -100,13 +105,13 @@
 //! by that row's tolerance (the budget), so the latent part never drifts by more than the
 //! integrator already allows for one step, times one plus a row's number of held neighbours.
 //! First order: each row's error is taken alone, the held rows' errors on one another
-//! through held rows are not followed, nor an error a charge row received and carries on,
-//! nor one passed on at a coupling that grew after the charge was missed: a node that
-//! integrates the difference of such rows with a large gain over the whole run can end far
-//! from the full solve while every row stays within a few allowances (DEVELOPERS.md,
-//! Latency, "Budget through the column"). The truncation-error test runs on every working
-//! charge row; an interior row's charge is constant, so its estimate would be zero. A
-//! fallback step is a full solve, nothing held: it adds no missed charge.
+//! through held rows are not followed, nor an error a charge row received and carries on in
+//! a slow loop: a node that integrates the difference of such rows with a large gain over
+//! the whole run can end far from the full solve while every row stays within a few
+//! allowances (DEVELOPERS.md, Latency, "Budget through the column"). The truncation-error
+//! test runs on every working charge row; an interior row's charge is constant, so its
+//! estimate would be zero. A fallback step is a full solve, nothing held: it adds no missed
+//! charge.
 //!
 //! *Charge.* An active row's charge is computed and carried as before. A latent row whose
 //! elements are all frozen keeps its charge bit for bit; one touched by a live element stores
@@ -188,6 +193,20 @@ pub(crate) struct Latency {
     missed: Vec<f64>,
     pending: Vec<f64>,
     qtol: Vec<f64>,
+    /// Per unknown: the signed charge its row is owed over this hold (its residual over the
+    /// accepted steps as charge: its current times the step, less what its charge moved at
+    /// the held value), this attempt's current, when the hold began and its row's conductance
+    /// and capacitance then (see [`give_back`]).
+    owed: Vec<f64>,
+    pending_owed: Vec<f64>,
+    /// The last accepted time, and per held unknown its row's charge then.
+    last_t: f64,
+    last_q: Vec<f64>,
+    hold_t: Vec<f64>,
+    hold_gc: Vec<(f64, f64)>,
+    /// Charge given back to rows that woke, `(index among the charge rows, charge)`, until the
+    /// transient adds it to their histories.
+    given: Vec<(usize, f64)>,
     /// Per held unknown: the bound `D` its budget divides by (see [`System::hold_budget`]),
     /// taken when it was held (smaller than later in the hold, where less of the run is left).
     diag: Vec<f64>,
@@ -383,6 +402,13 @@ impl System {
             pending: vec![0.0; n],
             diag: vec![0.0; n],
             stop_time,
+            owed: vec![0.0; n],
+            pending_owed: vec![0.0; n],
+            last_t: 0.0,
+            last_q: vec![0.0; n],
+            hold_t: vec![0.0; n],
+            hold_gc: vec![(0.0, 0.0); n],
+            given: Vec::new(),
             qtol: vec![f64::INFINITY; n],
             eq_row,
             pos: vec![NONE; n],
@@ -494,6 +520,9 @@ impl System {
             }
             let share = res / a0;
             l.pending[u] = share;
+            // The row's current alone: its charge terms at a held value are the formula's
+            // history (the trapezoidal rule's stored rate alternates in sign while held).
+            l.pending_owed[u] = -self.f[r];
             // NaN fails both tests and wakes the row, whose residual then reports it. The scale
             // is the row's largest current alone: the charge terms' scale, `α₀` times the
             // largest charge, grows without bound as the step shrinks and would let a held node
@@ -547,6 +576,13 @@ impl System {
         for &u in &l.work {
             if l.held[u] {
                 l.missed[u] += l.pending[u];
+                // What the row's equation asked for over the step less what its charge
+                // moved at the held value (a coupling capacitor to a moving neighbour moves
+                // it): the step's residual as charge.
+                let q = self.q[l.eq_row[u]];
+                l.owed[u] += l.pending_owed[u] * (t - l.last_t) - (q - l.last_q[u]);
+                l.last_q[u] = q;
+                l.pending_owed[u] = 0.0;
                 // The couplings may have grown since the row was held (a neighbour's
                 // transconductance as it switches): the budget only shrinks.
                 if l.pending[u] != 0.0 {
@@ -582,12 +618,17 @@ impl System {
                 continue;
             }
             (l.qtol[u], l.diag[u]) = self.hold_budget(&l, u, t, a0, charge_tol);
+            l.hold_gc[u] = self.diagonal_parts(l.eq_row[u], u, a0);
             l.changed.push(u);
         }
         let newly_held = l.changed.len() - first;
         for c in first..l.changed.len() {
             let u = l.changed[c];
             l.held[u] = true;
+            l.owed[u] = 0.0;
+            l.pending_owed[u] = 0.0;
+            l.hold_t[u] = t;
+            l.last_q[u] = self.q[l.eq_row[u]];
             // `missed` is kept from earlier holds of this run: the charge a held row
             // misses is not given back when it wakes, so the bound of one step's
             // truncation tolerance is for the whole run, not for each hold (a leaking
@@ -600,6 +641,7 @@ impl System {
         if l.on && l.fallback && active as f64 > FULL_ABOVE * self.n as f64 {
             l.suspend();
         }
+        l.last_t = t;
         let changed = !l.changed.is_empty();
         self.latency = Some(l);
         if changed {
@@ -687,14 +729,7 @@ impl System {
     ) -> (f64, f64) {
         let r = l.eq_row[u];
         let own = l.charge_tol_of(r, charge_tol);
-        let (col_ptr, row_idx) = (self.pattern.col_ptr(), self.pattern.row_idx());
-        let (gd, cd) = match row_idx[col_ptr[u]..col_ptr[u + 1]].binary_search(&r) {
-            Ok(k) => {
-                let s = col_ptr[u] + k;
-                (self.jac[s] - a0 * self.cmat[s], self.cmat[s])
-            }
-            Err(_) => (0.0, 0.0),
-        };
+        let (gd, cd) = self.diagonal_parts(r, u, a0);
         let diag = if cd != 0.0 {
             cd.abs() / (l.stop_time - t).max(f64::MIN_POSITIVE)
         } else {
@@ -704,6 +739,19 @@ impl System {
             own.min(self.pass_on_budget(l, u, diag, a0, charge_tol)),
             diag,
         )
+    }
+
+    /// The conductance and capacitance of row `r`'s entry in column `u` in the last assembly
+    /// (`jac` at `a0`, `cmat`); zero where the pattern has none.
+    fn diagonal_parts(&self, r: usize, u: usize, a0: f64) -> (f64, f64) {
+        let (col_ptr, row_idx) = (self.pattern.col_ptr(), self.pattern.row_idx());
+        match row_idx[col_ptr[u]..col_ptr[u + 1]].binary_search(&r) {
+            Ok(k) => {
+                let s = col_ptr[u] + k;
+                (self.jac[s] - a0 * self.cmat[s], self.cmat[s])
+            }
+            Err(_) => (0.0, 0.0),
+        }
     }
 
     /// The most charge held `u` may miss before its error, `diag` the bound on its diagonal
@@ -888,11 +936,21 @@ impl System {
             self.build_active(&mut l);
         }
         let entered = self.build_work(&mut l, t);
+        let given = give_back(&mut l, t);
         l.changed.clear();
         #[cfg(test)]
         self.check_partition(&l);
         self.latency = Some(l);
-        entered
+        entered || given
+    }
+
+    /// Puts the charge given back to rows that woke since the last call into `given`
+    /// (emptied first), as `(index among the charge rows, charge)`.
+    pub(crate) fn latency_take_given(&mut self, given: &mut Vec<(usize, f64)>) {
+        given.clear();
+        if let Some(l) = self.latency.as_mut() {
+            std::mem::swap(&mut l.given, given);
+        }
     }
 
     /// The incremental refresh against the definitions, recomputed from scratch (the engine's
@@ -1053,6 +1111,7 @@ impl System {
                 moved = true;
                 // The charge it missed while interior.
                 l.missed[u] += l.leave_f[u].abs() * (t - l.leave_t[u]);
+                l.owed[u] -= l.leave_f[u] * (t - l.leave_t[u]);
                 l.deadline[u] = f64::INFINITY;
             } else if !want && l.in_work[r] {
                 let f = l.fz_f[r];
@@ -1380,6 +1439,33 @@ impl SumTree {
 
 /// Marks `u` active, with the internal unknowns of every element it belongs to (an internal
 /// unknown is latent only with all of its element's unknowns).
+/// For every unknown that woke in this refresh (at `t`), the part of the signed charge its
+/// row was owed over the hold that its own relaxation would not have undone: `S (1 -
+/// e^{-x}) / x` with `x = G T / C` (its row's conductance and capacitance when it was held,
+/// `T` the hold's length). All of `S` for a row without conductance (which the full solve
+/// would have moved by exactly that, given its neighbours); about the equilibrium offset
+/// `C F / G` for one that relaxes within the hold; never more than `S`. Returns whether any
+/// was given. The missed charge is not forgiven: the run's allowance stays used.
+fn give_back(l: &mut Latency, t: f64) -> bool {
+    let before = l.given.len();
+    for c in 0..l.changed.len() {
+        let u = l.changed[c];
+        if l.held[u] {
+            continue;
+        }
+        let owed = std::mem::take(&mut l.owed[u]);
+        let k = l.charge_k[l.eq_row[u]];
+        let (g, cap) = l.hold_gc[u];
+        if owed == 0.0 || k == NONE || cap == 0.0 {
+            continue;
+        }
+        let x = g / cap * (t - l.hold_t[u]);
+        let share = if x > 1e-9 { -(-x).exp_m1() / x } else { 1.0 };
+        l.given.push((k, owed * share));
+    }
+    l.given.len() > before
+}
+
 fn wake(l: &mut Latency, u: usize, loc_map: &[usize], loc_start: &[usize]) {
     l.release(u);
     for a in l.adj_ptr[u]..l.adj_ptr[u + 1] {

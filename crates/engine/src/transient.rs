@@ -340,6 +340,28 @@ impl History {
     }
 }
 
+/// Adds the charge given back to rows that woke (`(index among the charge rows, charge)`,
+/// see the `latency` module) to every stored point of their charge history, as if they had
+/// held it all along: the formulas' rates are unchanged and the next step moves the row by
+/// it.
+fn give_back(
+    given: &[(usize, f64)],
+    hist: &mut History,
+    q_new: &mut [f64],
+    phi: &mut [Differences],
+    variable: bool,
+) {
+    for &(k, charge) in given {
+        for past in hist.q.iter_mut() {
+            past[k] += charge;
+        }
+        q_new[k] += charge;
+        if variable {
+            phi[k][0] += charge;
+        }
+    }
+}
+
 impl System {
     /// Runs a transient analysis, recording `probes`. `observer`, when given, sees each
     /// accepted time with the probes' values and may stop the run early.
@@ -507,6 +529,7 @@ impl System {
         // (the partition may change them while accepting it), and the rows that became
         // interior; kept across steps so that stepping allocates nothing.
         let (mut work_u_buf, mut work_k_buf, mut left) = (Vec::new(), Vec::new(), Vec::new());
+        let mut given: Vec<(usize, f64)> = Vec::new();
         // The probes a step with latency moved (handed to the observer).
         let mut moved: Vec<usize> = Vec::new();
 
@@ -661,6 +684,12 @@ impl System {
             };
             newton.quadratic = quadratic.map(|m| m / kappa);
             let solved = loop {
+                // Rows that woke (here or in the last attempt) take back the charge they were
+                // owed before their history is read.
+                if p.latency {
+                    self.latency_take_given(&mut given);
+                    give_back(&given, &mut hist, &mut q_new, &mut phi, variable);
+                }
                 let work_k = self.latency_work().map(|(_, k)| k);
                 if work_k.is_none() {
                     hist_vec.fill(0.0);
@@ -839,6 +868,11 @@ impl System {
                 self.latency_accepted(&x, &x_new, t_new, a0, &p.tol, &tol_of_row);
             }
             hist.push(t_new, &q_new, &x_new, work_u, work_k);
+            if p.latency {
+                // Rows woken entering the fallback.
+                self.latency_take_given(&mut given);
+                give_back(&given, &mut hist, &mut q_new, &mut phi, variable);
+            }
             rate_known = true;
             match work_u {
                 Some(list) => {
