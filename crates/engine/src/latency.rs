@@ -1111,7 +1111,9 @@ impl System {
                 moved = true;
                 // The charge it missed while interior.
                 l.missed[u] += l.leave_f[u].abs() * (t - l.leave_t[u]);
-                l.owed[u] -= l.leave_f[u] * (t - l.leave_t[u]);
+                // Owed up to the last accepted time only: a refresh at an attempt's time is
+                // followed by that step, which moves the row by its current itself.
+                l.owed[u] -= l.leave_f[u] * (l.last_t - l.leave_t[u]).max(0.0);
                 l.deadline[u] = f64::INFINITY;
             } else if !want && l.in_work[r] {
                 let f = l.fz_f[r];
@@ -1437,8 +1439,6 @@ impl SumTree {
     }
 }
 
-/// Marks `u` active, with the internal unknowns of every element it belongs to (an internal
-/// unknown is latent only with all of its element's unknowns).
 /// For every unknown that woke in this refresh (at `t`), the part of the signed charge its
 /// row was owed over the hold that its own relaxation would not have undone: `S (1 -
 /// e^{-x}) / x` with `x = G T / C` (its row's conductance and capacitance when it was held,
@@ -1466,6 +1466,8 @@ fn give_back(l: &mut Latency, t: f64) -> bool {
     l.given.len() > before
 }
 
+/// Marks `u` active, with the internal unknowns of every element it belongs to (an internal
+/// unknown is latent only with all of its element's unknowns).
 fn wake(l: &mut Latency, u: usize, loc_map: &[usize], loc_start: &[usize]) {
     l.release(u);
     for a in l.adj_ptr[u]..l.adj_ptr[u + 1] {
