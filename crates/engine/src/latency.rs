@@ -207,9 +207,6 @@ pub(crate) struct Latency {
     /// Charge given back to rows that woke, `(index among the charge rows, charge)`, until the
     /// transient adds it to their histories.
     given: Vec<(usize, f64)>,
-    /// Per held unknown: the bound `D` its budget divides by (see [`System::hold_budget`]),
-    /// taken when it was held (smaller than later in the hold, where less of the run is left).
-    diag: Vec<f64>,
     /// The run's stop time: an error that does not decay lasts at most until then.
     stop_time: f64,
     /// Per unknown: the row holding its equation (pinned nodes and their sources' currents
@@ -322,6 +319,17 @@ impl Latency {
         self.since_switch = 0;
     }
 
+    /// The bound `D` on a held row's diagonal that its budget divides by, from the diagonal's
+    /// conductance and capacitance at time `t` (see [`System::hold_budget`]): `|C| / (t_stop
+    /// - t)`, an error lasting to the end of the run; `|G|` for an algebraic row.
+    fn error_bound(&self, (g, c): (f64, f64), t: f64) -> f64 {
+        if c != 0.0 {
+            c.abs() / (self.stop_time - t).max(f64::MIN_POSITIVE)
+        } else {
+            g.abs()
+        }
+    }
+
     /// Row `r`'s truncation-error tolerance from `charge_tol`, which takes its index among
     /// the charge rows (infinite for a row without charge).
     fn charge_tol_of(&self, r: usize, charge_tol: &dyn Fn(usize) -> f64) -> f64 {
@@ -400,7 +408,6 @@ impl System {
             quiet: vec![0; n],
             missed: vec![0.0; n],
             pending: vec![0.0; n],
-            diag: vec![0.0; n],
             stop_time,
             owed: vec![0.0; n],
             pending_owed: vec![0.0; n],
@@ -586,7 +593,9 @@ impl System {
                 // The couplings may have grown since the row was held (a neighbour's
                 // transconductance as it switches): the budget only shrinks.
                 if l.pending[u] != 0.0 {
-                    let now = self.pass_on_budget(&l, u, l.diag[u], a0, charge_tol);
+                    // `D` as at the hold: smaller than now, when less of the run is left.
+                    let d = l.error_bound(l.hold_gc[u], l.hold_t[u]);
+                    let now = self.pass_on_budget(&l, u, d, a0, charge_tol);
                     l.qtol[u] = l.qtol[u].min(now);
                 }
                 l.pending[u] = 0.0;
@@ -617,8 +626,7 @@ impl System {
             if !(l.on && self.ready_to_hold(&l, u, t, a0, charge_tol)) {
                 continue;
             }
-            (l.qtol[u], l.diag[u]) = self.hold_budget(&l, u, t, a0, charge_tol);
-            l.hold_gc[u] = self.diagonal_parts(l.eq_row[u], u, a0);
+            (l.qtol[u], l.hold_gc[u]) = self.hold_budget(&l, u, t, a0, charge_tol);
             l.changed.push(u);
         }
         let newly_held = l.changed.len() - first;
@@ -709,8 +717,8 @@ impl System {
             && (l.missed[u] == 0.0 || l.missed[u] < self.hold_budget(l, u, t, a0, charge_tol).0)
     }
 
-    /// The charge `u`'s equation may miss over the run while held, and the bound on its
-    /// diagonal that budget divides by (see the module doc, "Budget"): its own row's
+    /// The charge `u`'s equation may miss over the run while held, and its diagonal's
+    /// conductance and capacitance (see the module doc, "Budget"): its own row's
     /// truncation tolerance, and no more than lets each other charge row of its column, or
     /// beyond an algebraic row of it, receive its own tolerance ([`Self::pass_on_budget`]).
     /// The diagonal bounds how long the held error `e` lasts once the row wakes: a row that
@@ -726,19 +734,12 @@ impl System {
         t: f64,
         a0: f64,
         charge_tol: &dyn Fn(usize) -> f64,
-    ) -> (f64, f64) {
+    ) -> (f64, (f64, f64)) {
         let r = l.eq_row[u];
         let own = l.charge_tol_of(r, charge_tol);
-        let (gd, cd) = self.diagonal_parts(r, u, a0);
-        let diag = if cd != 0.0 {
-            cd.abs() / (l.stop_time - t).max(f64::MIN_POSITIVE)
-        } else {
-            gd.abs()
-        };
-        (
-            own.min(self.pass_on_budget(l, u, diag, a0, charge_tol)),
-            diag,
-        )
+        let parts = self.diagonal_parts(r, u, a0);
+        let d = l.error_bound(parts, t);
+        (own.min(self.pass_on_budget(l, u, d, a0, charge_tol)), parts)
     }
 
     /// The conductance and capacitance of row `r`'s entry in column `u` in the last assembly

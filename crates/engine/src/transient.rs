@@ -340,29 +340,31 @@ impl History {
     }
 }
 
-/// Adds the charge given back to rows that woke (`(index among the charge rows, charge)`,
-/// see the `latency` module) to every stored point of their charge history, as if they had
-/// held it all along: the formulas' rates are unchanged and the next step moves the row by
-/// it.
-fn give_back(
-    given: &[(usize, f64)],
-    hist: &mut History,
-    q_new: &mut [f64],
-    phi: &mut [Differences],
-    variable: bool,
-) {
-    for &(k, charge) in given {
-        for past in hist.q.iter_mut() {
-            past[k] += charge;
-        }
-        q_new[k] += charge;
-        if variable {
-            phi[k][0] += charge;
+impl System {
+    /// Takes the charge latency gives back to rows that woke (`(index among the charge rows,
+    /// charge)` into `given`) and adds it to every stored point of their charge history, as
+    /// if they had held it all along: the formulas' rates are unchanged and the next step
+    /// moves the row by it.
+    fn take_back(
+        &mut self,
+        given: &mut Vec<(usize, f64)>,
+        hist: &mut History,
+        q_new: &mut [f64],
+        phi: &mut [Differences],
+        variable: bool,
+    ) {
+        self.latency_take_given(given);
+        for &(k, charge) in given.iter() {
+            for past in hist.q.iter_mut() {
+                past[k] += charge;
+            }
+            q_new[k] += charge;
+            if variable {
+                phi[k][0] += charge;
+            }
         }
     }
-}
 
-impl System {
     /// Runs a transient analysis, recording `probes`. `observer`, when given, sees each
     /// accepted time with the probes' values and may stop the run early.
     pub fn transient(
@@ -687,8 +689,7 @@ impl System {
                 // Rows that woke (here or in the last attempt) take back the charge they were
                 // owed before their history is read.
                 if p.latency {
-                    self.latency_take_given(&mut given);
-                    give_back(&given, &mut hist, &mut q_new, &mut phi, variable);
+                    self.take_back(&mut given, &mut hist, &mut q_new, &mut phi, variable);
                 }
                 let work_k = self.latency_work().map(|(_, k)| k);
                 if work_k.is_none() {
@@ -870,8 +871,7 @@ impl System {
             hist.push(t_new, &q_new, &x_new, work_u, work_k);
             if p.latency {
                 // Rows woken entering the fallback.
-                self.latency_take_given(&mut given);
-                give_back(&given, &mut hist, &mut q_new, &mut phi, variable);
+                self.take_back(&mut given, &mut hist, &mut q_new, &mut phi, variable);
             }
             rate_known = true;
             match work_u {
