@@ -195,3 +195,36 @@ fn the_fallback_does_not_switch_at_every_step() {
     // The switches and the waits depend on the run's own steps only.
     assert_eq!(on, run(true));
 }
+
+/// A ring from its single-edge start is at rest but for the stages the defect sets moving
+/// (the transient's consistent-rate solve says which), so latency holds the rest before the
+/// first step, with or without the whole-system fallback: the first step solves a handful of
+/// unknowns, not the ring's 303 (measured 2 active unknowns, with or without the fallback;
+/// before, the first three steps solved all 303). The clamped operating point, its supply
+/// set from the source's row, takes one Newton iteration (before, four: two damped to 0.5 V
+/// while the supply walked up from zero).
+#[test]
+fn a_ring_at_rest_is_held_from_the_first_step() {
+    for fallback in [true, false] {
+        let (circuit, ring) = square_ring(301, &SquareStage::default()).unwrap();
+        let mut sys = System::new(circuit).unwrap();
+        let mut p = TransientParams::new(1e-9);
+        p.output = Output::Streaming;
+        p.latency = true;
+        p.latency_fallback = fallback;
+        let probe = Probe::Voltage(ring.outputs[0]);
+        let mut first = |_: f64, _: &[f64], moved: lamina_engine::Moved<'_>| {
+            // The first step lists every probe, so an observer sees every start value.
+            assert!(moved.is_none());
+            lamina_engine::Control::Stop
+        };
+        let res = sys
+            .transient(&p, &single_edge_start(&ring), &[probe], Some(&mut first))
+            .unwrap();
+        let s = res.stats;
+        assert_eq!(s.accepted, 1);
+        assert!(s.active_unknown_steps <= 10, "fallback {fallback}: {s:?}");
+        assert_eq!(s.latency_switches, u64::from(fallback), "{s:?}");
+        assert_eq!(res.start.map(|i| i.iterations), Some(1));
+    }
+}

@@ -10,6 +10,13 @@
 //!   steps. An element's internal unknown (a branch current, an internal node) is latent only
 //!   together with all of its element's local unknowns. The step after, the predictor leaves a
 //!   latent unknown at its value.
+//! * **At rest from the start.** An unknown whose rate at t = 0 (the transient's
+//!   consistent-rate solve) would move it by less than that bound over the first step counts
+//!   as quiet since before it, and is held before the first step when its row passes the
+//!   hold test there, its budget from an assembly at the start with every row active
+//!   ([`System::latency_hold_at_rest`]): a long ring from a single-edge start solves only
+//!   the stages the start set moving from its first step, not the whole ring for the first
+//!   [`QUIET_STEPS`] steps.
 //! * **Frozen elements.** An element whose local unknowns are all latent, and which is not an
 //!   independent source (the only elements whose evaluation depends on time), sees exactly the
 //!   inputs of its evaluation at the moment it froze, so that evaluation's currents and charges
@@ -169,6 +176,27 @@ pub(crate) const BACKOFF_FIRST: u64 = 32;
 /// See [`SHORT_HOLD`].
 pub(crate) const BACKOFF_MAX: u64 = 4096;
 
+/// The most an unknown of `kind` may move from `a` to `b` in a quiet step:
+/// `η (reltol max(|a|, |b|) + abstol)`, η = [`QUIET_FRACTION`] (see the module doc, "Holding").
+pub(crate) fn quiet_bound(a: f64, b: f64, kind: UnknownKind, tol: &Tolerances) -> f64 {
+    let abs = match kind {
+        UnknownKind::Voltage => tol.vntol,
+        UnknownKind::Current => tol.abstol,
+    };
+    QUIET_FRACTION * (tol.reltol * a.abs().max(b.abs()) + abs)
+}
+
+/// The residual a held row of `kind` (of an unknown of that kind's row: a KCL row is a
+/// current, a source's row a voltage) with largest current contribution `scale` must stay
+/// within: [`HOLD_FRACTION`] of Newton's residual test.
+fn hold_test(scale: f64, kind: UnknownKind, tol: &Tolerances) -> f64 {
+    let abs = match kind {
+        UnknownKind::Voltage => tol.abstol,
+        UnknownKind::Current => tol.vntol,
+    };
+    HOLD_FRACTION * (tol.reltol * scale + abs)
+}
+
 /// The latent/active partition of one transient run, and the solver of the active system.
 pub(crate) struct Latency {
     /// Whether the stepping loop's Newton solves use it (false: the whole-system fallback,
@@ -223,6 +251,9 @@ pub(crate) struct Latency {
     /// Per row: the elements that have it as a local unknown, with the local index.
     adj_ptr: Vec<usize>,
     adj: Vec<(u32, u8)>,
+    /// Per local unknown of an element (at its `Plan::map` offset): its entry's position in
+    /// its row's list.
+    adj_at: Vec<u32>,
     /// Per row: the sums of the frozen elements' contributions.
     pub(crate) fz_f: Vec<f64>,
     pub(crate) fz_q: Vec<f64>,
@@ -354,7 +385,13 @@ impl System {
     /// Starts the latency bookkeeping of a transient: every unknown active, nothing frozen.
     /// With `fallback`, it starts in the whole-system fallback (everything is active at
     /// first) and holds once enough rows are ready.
-    pub(crate) fn latency_begin(&mut self, tol: Tolerances, fallback: bool, stop_time: f64) {
+    pub(crate) fn latency_begin(
+        &mut self,
+        tol: Tolerances,
+        fallback: bool,
+        stop_time: f64,
+        at_rest: &[usize],
+    ) {
         let strategy = self.lu.strategy();
         let mut charge_k = vec![NONE; self.n];
         for (k, &r) in self.charge_rows.iter().enumerate() {
@@ -376,19 +413,21 @@ impl System {
         for r in 0..n {
             count[r + 1] += count[r];
         }
+        let locs = self.layout.map32.len();
         let mut adj = vec![(0u32, 0u8); count[n]];
+        let mut adj_at = vec![0u32; locs];
         let mut fill = count.clone();
         for e in 0..ne {
-            let local =
-                &self.layout.loc_map[self.layout.loc_start[e]..self.layout.loc_start[e + 1]];
+            let lo = self.layout.loc_start[e];
+            let local = &self.layout.loc_map[lo..self.layout.loc_start[e + 1]];
             for (k, &g) in local.iter().enumerate() {
                 if g != NONE {
                     adj[fill[g]] = (e as u32, k as u8);
+                    adj_at[lo + k] = (fill[g] - count[g]) as u32;
                     fill[g] += 1;
                 }
             }
         }
-        let locs = self.layout.map32.len();
         let trees = (0..n)
             .map(|r| {
                 let d = count[r + 1] - count[r];
@@ -430,6 +469,7 @@ impl System {
             st_q: vec![0.0; locs],
             adj_ptr: count,
             adj,
+            adj_at,
             fz_f: vec![0.0; n],
             fz_q: vec![0.0; n],
             fz_scale: vec![0.0; n],
@@ -469,6 +509,14 @@ impl System {
             latent_steps: 0,
             active_steps: 0,
         });
+        if let Some(l) = self.latency.as_mut() {
+            for &u in at_rest {
+                l.quiet[u] = QUIET_STEPS;
+            }
+            // Watched from the first step when few would stay active counting those at rest
+            // (see `maybe_resume`).
+            l.watch = fallback && ((n - at_rest.len()) as f64) < HOLD_BELOW * n as f64;
+        }
         self.latency_refresh(&vec![0.0; n], 0.0);
     }
 
@@ -514,14 +562,11 @@ impl System {
         for w in 0..l.work.len() {
             let u = l.work[w];
             let r = l.eq_row[u];
-            let abs = match self.kinds[r] {
-                UnknownKind::Voltage => tol.abstol,
-                UnknownKind::Current => tol.vntol,
-            };
             let res = self.rhs[r].abs();
+            let test = hold_test(l.fscale[r], self.kinds[r], tol);
             // Whether the row could be held now (an unknown is held only then, so that it is
             // not woken at once).
-            l.holdable[u] = res <= HOLD_FRACTION * (tol.reltol * l.fscale[r] + abs);
+            l.holdable[u] = res <= test;
             if !l.held[u] {
                 continue;
             }
@@ -534,9 +579,7 @@ impl System {
             // is the row's largest current alone: the charge terms' scale, `α₀` times the
             // largest charge, grows without bound as the step shrinks and would let a held node
             // that still carries current pass.
-            if !(res <= HOLD_FRACTION * (tol.reltol * l.fscale[r] + abs)
-                && l.missed[u] + share <= l.qtol[u])
-            {
+            if !(res <= test && l.missed[u] + share <= l.qtol[u]) {
                 wake(l, u, &self.layout.loc_map, &self.layout.loc_start);
                 woke = true;
             }
@@ -604,29 +647,75 @@ impl System {
             }
             l.active_steps += 1;
             let (a, b) = (x_old[u], x_new[u]);
-            let abs = match self.kinds[u] {
-                UnknownKind::Voltage => tol.vntol,
-                UnknownKind::Current => tol.abstol,
-            };
-            let bound = QUIET_FRACTION * (tol.reltol * a.abs().max(b.abs()) + abs);
-            l.quiet[u] = if (b - a).abs() <= bound {
+            l.quiet[u] = if (b - a).abs() <= quiet_bound(a, b, self.kinds[u], tol) {
                 l.quiet[u].saturating_add(1)
             } else {
                 0
             };
         }
+        self.hold_ready(&mut l, t, a0, charge_tol);
+        l.last_t = t;
+        let changed = !l.changed.is_empty();
+        self.latency = Some(l);
+        if changed {
+            self.latency_refresh(x_new, t);
+        }
+    }
+
+    /// Holds, before the first step, the unknowns at rest at the start (counted quiet by
+    /// [`Self::latency_begin`]) whose rows pass the hold test at `x` (at t = 0 from an
+    /// equilibrium start: the charge terms of a row at rest vanish, so its current alone is
+    /// its residual), with budgets from an assembly at `x` with every row active. The first
+    /// step then solves only what the start set moving, instead of the whole system until
+    /// the rest have been quiet for [`QUIET_STEPS`] steps. Nothing else changes: every held
+    /// row is checked at every Newton iteration as always, and wakes when it fails.
+    pub(crate) fn latency_hold_at_rest(
+        &mut self,
+        x: &[f64],
+        tol: &Tolerances,
+        charge_tol: &dyn Fn(usize) -> f64,
+    ) {
+        let ctx = EvalContext {
+            time: 0.0,
+            source_scale: 1.0,
+            analysis: Analysis::Transient,
+        };
+        // `a0 = 0`: the matrix is the conductances, as the budgets read it.
+        self.assemble(x, &ctx, 0.0);
+        self.latency_keep_scale();
+        let Some(mut l) = self.latency.take() else {
+            return;
+        };
+        for w in 0..l.work.len() {
+            let u = l.work[w];
+            let r = l.eq_row[u];
+            l.holdable[u] = self.f[r].abs() <= hold_test(l.fscale[r], self.kinds[r], tol);
+        }
+        self.hold_ready(&mut l, 0.0, 0.0, charge_tol);
+        let changed = !l.changed.is_empty();
+        self.latency = Some(l);
+        if changed {
+            self.latency_refresh(x, 0.0);
+        }
+    }
+
+    /// The holds after an accepted step at `t` (or at the start): resumes holding from the
+    /// fallback when few would stay active, takes the budgets of the rows ready to be held,
+    /// holds them, and falls back when too many stay active. Reads the last assembly (`jac`
+    /// at `a0`).
+    fn hold_ready(&self, l: &mut Latency, t: f64, a0: f64, charge_tol: &dyn Fn(usize) -> f64) {
         if !l.on {
-            self.maybe_resume(&mut l, t, a0, charge_tol);
+            self.maybe_resume(l, t, a0, charge_tol);
         }
         // Budgets first, then the holds: every budget reads the assembly in which all of
         // this step's newly held rows were still active (their columns whole).
         let first = l.changed.len();
         for w in 0..l.work.len() {
             let u = l.work[w];
-            if !(l.on && self.ready_to_hold(&l, u, t, a0, charge_tol)) {
+            if !(l.on && self.ready_to_hold(l, u, t, a0, charge_tol)) {
                 continue;
             }
-            (l.qtol[u], l.hold_gc[u]) = self.hold_budget(&l, u, t, a0, charge_tol);
+            (l.qtol[u], l.hold_gc[u]) = self.hold_budget(l, u, t, a0, charge_tol);
             l.changed.push(u);
         }
         let newly_held = l.changed.len() - first;
@@ -648,12 +737,6 @@ impl System {
         let active = l.active.len() - newly_held;
         if l.on && l.fallback && active as f64 > FULL_ABOVE * self.n as f64 {
             l.suspend();
-        }
-        l.last_t = t;
-        let changed = !l.changed.is_empty();
-        self.latency = Some(l);
-        if changed {
-            self.latency_refresh(x_new, t);
         }
     }
 
@@ -1033,10 +1116,7 @@ impl System {
                         } else {
                             [0.0; 4]
                         };
-                        let adj = &l.adj[l.adj_ptr[g]..l.adj_ptr[g + 1]];
-                        // Entries are sorted by element, then local index.
-                        let pos = adj.partition_point(|&(a, j)| (a as usize, j as usize) < (e, k));
-                        tree.set(pos, leaf);
+                        tree.set(l.adj_at[at] as usize, leaf);
                     }
                 }
                 l.dirty_rows
@@ -1049,7 +1129,7 @@ impl System {
     fn resum(&self, l: &mut Latency) {
         sort_unique(&mut l.dirty_rows, &mut l.marks);
         for &r in &l.dirty_rows {
-            if let Some(tree) = &l.trees[r] {
+            if let Some(tree) = l.trees[r].as_mut() {
                 [l.fz_f[r], l.fz_q[r], l.fz_scale[r], l.fz_qscale[r]] = tree.total();
                 continue;
             }
@@ -1118,13 +1198,9 @@ impl System {
                 l.deadline[u] = f64::INFINITY;
             } else if !want && l.in_work[r] {
                 let f = l.fz_f[r];
-                let abs = match self.kinds[r] {
-                    UnknownKind::Voltage => tol.abstol,
-                    UnknownKind::Current => tol.vntol,
-                };
                 // Interior only within the same fraction of the tolerance a held row must
                 // keep.
-                if !(l.held[u] && f.abs() <= HOLD_FRACTION * (tol.reltol * l.fz_scale[r] + abs)) {
+                if !(l.held[u] && f.abs() <= hold_test(l.fz_scale[r], self.kinds[r], &tol)) {
                     continue;
                 }
                 l.in_work[r] = false;
@@ -1188,6 +1264,16 @@ impl System {
             l.pos[l.eq_row[u]] = k;
         }
         let m = l.active.len();
+        l.gather.clear();
+        l.dense_at.clear();
+        l.values.clear();
+        l.rhs.clear();
+        // Everything active: the system's own solver (analysed once, pinned unknowns taken
+        // out) solves the same equations, and no `J_AA` is gathered.
+        if m == self.n {
+            l.solver = ActiveSolver::None;
+            return;
+        }
         let dense = m <= l.dense.capacity();
         let col_ptr = self.pattern.col_ptr();
         let row_idx = self.pattern.row_idx();
@@ -1197,8 +1283,6 @@ impl System {
         if !dense {
             ptr.push(0usize);
         }
-        l.gather.clear();
-        l.dense_at.clear();
         for (j, &c) in l.active.iter().enumerate() {
             l.column.clear();
             let range = col_ptr[c]..col_ptr[c + 1];
@@ -1224,13 +1308,9 @@ impl System {
                 ptr.push(rows.len());
             }
         }
-        l.values.clear();
         l.values.resize(l.gather.len(), 0.0);
-        l.rhs.clear();
         l.rhs.resize(m, 0.0);
-        // Everything active: the system's own solver (analysed once, pinned unknowns taken
-        // out) solves the same equations.
-        l.solver = if m == 0 || m == self.n {
+        l.solver = if m == 0 {
             ActiveSolver::None
         } else if dense {
             ActiveSolver::Dense
@@ -1410,10 +1490,18 @@ const WIDE: usize = 64;
 /// Sums (and largest magnitudes) of the frozen contributions to one wide row, over its
 /// elements in element order: a binary tree whose shape depends only on the row's degree, so
 /// the sums depend only on which elements are frozen, not on the order they froze in.
+///
+/// Leaves are set first and their sums brought up to date when the total is read: along
+/// each changed leaf's path, or, when that would visit more nodes than the tree has (the
+/// first holds of a run freeze most of a supply's devices at once), by rebuilding every
+/// inner node. Either way each inner node ends as the sum of its two children, so the
+/// total is the same bit for bit.
 struct SumTree {
     size: usize,
     /// Per node: sum of `f`, sum of `q`, largest `|f|`, largest `|q|`.
     node: Vec<[f64; 4]>,
+    /// Leaves set since the sums were last brought up to date.
+    changed: Vec<u32>,
 }
 
 impl SumTree {
@@ -1422,20 +1510,36 @@ impl SumTree {
         SumTree {
             size,
             node: vec![[0.0; 4]; 2 * size],
+            changed: Vec::new(),
         }
     }
 
     fn set(&mut self, pos: usize, leaf: [f64; 4]) {
-        let mut i = self.size + pos;
-        self.node[i] = leaf;
-        while i > 1 {
-            i /= 2;
-            let (a, b) = (self.node[2 * i], self.node[2 * i + 1]);
-            self.node[i] = [a[0] + b[0], a[1] + b[1], a[2].max(b[2]), a[3].max(b[3])];
-        }
+        self.node[self.size + pos] = leaf;
+        self.changed.push(pos as u32);
     }
 
-    fn total(&self) -> [f64; 4] {
+    fn join(&mut self, i: usize) {
+        let (a, b) = (self.node[2 * i], self.node[2 * i + 1]);
+        self.node[i] = [a[0] + b[0], a[1] + b[1], a[2].max(b[2]), a[3].max(b[3])];
+    }
+
+    fn total(&mut self) -> [f64; 4] {
+        let depth = self.size.trailing_zeros() as usize;
+        if self.changed.len() * depth > self.size {
+            for i in (1..self.size).rev() {
+                self.join(i);
+            }
+        } else {
+            for c in 0..self.changed.len() {
+                let mut i = self.size + self.changed[c] as usize;
+                while i > 1 {
+                    i /= 2;
+                    self.join(i);
+                }
+            }
+        }
+        self.changed.clear();
         self.node[1]
     }
 }

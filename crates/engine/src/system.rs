@@ -1228,6 +1228,48 @@ impl System {
         })
     }
 
+    /// Sets each pinned node of `x` to the value its source's row asks for at `ctx` (one
+    /// exact Newton update of that linear row). A guess whose other nodes already sit at the
+    /// rails (a clamped start) then needs no damped Newton steps to walk the supply up from
+    /// zero.
+    pub(crate) fn pin_to_sources(&self, x: &mut [f64], ctx: &EvalContext) {
+        let Some(reduction) = self.reduction.as_ref() else {
+            return;
+        };
+        for p in &reduction.pinned {
+            let Some(e) = self.unknown_owner[p.branch] else {
+                continue;
+            };
+            let plan = &self.layout.plan[e];
+            let nl = plan.local as usize;
+            let map = &self.layout.map32[plan.map as usize..plan.map as usize + nl];
+            let (Some(b), Some(k)) = (
+                map.iter().position(|&g| g as usize == p.branch),
+                map.iter().position(|&g| g as usize == p.node),
+            ) else {
+                continue;
+            };
+            if nl > SMALL {
+                continue;
+            }
+            let (mut xs, mut f, mut q) = ([0.0; SMALL], [0.0; SMALL], [0.0; SMALL]);
+            let (mut df, mut dq) = ([0.0; SMALL * SMALL], [0.0; SMALL * SMALL]);
+            gather(map, x, &mut xs[..nl]);
+            let stamp = &mut Stamp::new(
+                &mut f[..nl],
+                &mut q[..nl],
+                &mut df[..nl * nl],
+                &mut dq[..nl * nl],
+            );
+            self.elements[e].evaluate(&xs[..nl], ctx, stamp);
+            let slope = df[b * nl + k];
+            let step = -f[b] / slope;
+            if slope != 0.0 && step.is_finite() {
+                x[p.node] += step;
+            }
+        }
+    }
+
     /// The number of pins of element `e` (its internal unknowns follow them).
     pub(crate) fn pin_count(&self, e: usize) -> usize {
         self.pin_start[e + 1] - self.pin_start[e]

@@ -133,7 +133,8 @@ pub type Observer<'a> = &'a mut dyn FnMut(f64, &[f64], Moved<'_>) -> Control;
 /// order) whose values an accepted step may have changed; every other value is the same bit
 /// for bit as at the step before. `None`: any may have. A run with latency names the probes
 /// of its working unknowns, so an observer of a long circuit can look at those alone; its
-/// first step's list is `None` or every probe (latency starts holding nothing).
+/// first step's list is `None`, so that an observer sees every value once (rows held from
+/// the start, see the `latency` module, may never move).
 pub type Moved<'a> = Option<&'a [usize]>;
 
 /// Whether an observer wants the run to go on.
@@ -441,6 +442,8 @@ impl System {
                 for &(i, v) in &clamps {
                     x[i] = v;
                 }
+                // Supplies at their values too: the clamped nodes sit at the rails already.
+                self.pin_to_sources(&mut x, &EvalContext::dc());
                 start_info = Some(self.operating_point_from(&mut x, op, &clamps)?);
             }
             Start::State(state) => {
@@ -472,6 +475,8 @@ impl System {
         // change. The start state itself is kept. If that solve fails, KCL at the start state
         // gives the rates.
         let mut rate0: Vec<f64> = rows.iter().map(|&r| -self.f[r]).collect();
+        // The state that solve reached, and its step (see `at_rest` below).
+        let mut settled: Option<(Vec<f64>, f64)> = None;
         if !rows.is_empty() {
             let tiny = 1e-12 * p.stop_time;
             let mut hist0 = vec![0.0; n];
@@ -498,6 +503,7 @@ impl System {
                 for (k, &r) in rows.iter().enumerate() {
                     rate0[k] = (self.q[r] - q0[k]) / tiny;
                 }
+                settled = Some((xc, tiny));
             }
         }
         // Whether `qdot` holds a consistent right-hand rate at the newest point, so that the
@@ -587,7 +593,8 @@ impl System {
             }),
         };
         let mut t = 0.0;
-        let mut x_new = vec![0.0; n];
+        // Interior rows' unknowns are never predicted: they keep these values.
+        let mut x_new = x.clone();
         let mut stats = TransientStats::default();
         let mut restart = true;
         let mut next_bp = self.next_breakpoint(t);
@@ -616,7 +623,31 @@ impl System {
         // on the step-size failure, so later analyses solve the whole system.
         self.latency_end();
         if p.latency {
-            self.latency_begin(p.tol, p.latency_fallback, p.stop_time);
+            // Unknowns at rest at the start: their rates at t = 0 (the consistent-rate solve's
+            // move over its tiny step) would move them by less than latency's quiet bound over
+            // the first step, so they count as quiet since before it (see the `latency`
+            // module, "Holding").
+            let at_rest: Vec<usize> = settled.as_ref().map_or(Vec::new(), |(xc, tiny)| {
+                (0..n)
+                    .filter(|&u| {
+                        let bound = crate::latency::quiet_bound(x[u], xc[u], self.kinds[u], &p.tol);
+                        (xc[u] - x[u]).abs() * (h / tiny) <= bound
+                    })
+                    .collect()
+            });
+            self.latency_begin(p.tol, p.latency_fallback, p.stop_time, &at_rest);
+            if !at_rest.is_empty() {
+                let tol_of_row = |k: usize| tol_of(k, q0[k], q0[k], &qref);
+                self.latency_hold_at_rest(&x, &p.tol, &tol_of_row);
+                // Rows already interior: their history is the start; their stored rate,
+                // within the hold test, is dropped as after a step (below).
+                self.latency_take_left(&mut left);
+                for &r in &left {
+                    if let Ok(k) = rows.binary_search(&r) {
+                        qdot[k] = 0.0;
+                    }
+                }
+            }
         }
         self.begin_voltage_range(&x);
 
@@ -914,7 +945,10 @@ impl System {
             restart = false;
             out.push(t, &values);
             if let Some(obs) = observer.as_mut() {
-                match obs(t, &values, work_u.map(|_| moved.as_slice())) {
+                // The first step's list is every probe: an observer may take its
+                // start values from this step (rows held from the start report no move).
+                let listed = work_u.filter(|_| stats.accepted > 1);
+                match obs(t, &values, listed.map(|_| moved.as_slice())) {
                     Control::Stop => break,
                     Control::Tighten if loosening.get() > 1.0 => {
                         // This step's error ratios against the nominal tolerances (both
