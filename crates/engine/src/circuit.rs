@@ -223,9 +223,6 @@ impl Circuit {
         element: Box<dyn Element>,
         pins: &[NodeId],
     ) -> Result<ElementId, CircuitError> {
-        if self.element_names.find(name).is_some() {
-            return Err(CircuitError::DuplicateElement(name.to_string()));
-        }
         let expected = element.terminals().len();
         if pins.len() != expected {
             return Err(CircuitError::PinCount {
@@ -237,6 +234,7 @@ impl Circuit {
         if pins.iter().any(|p| p.0 >= self.node_names.len()) {
             return Err(CircuitError::ForeignNode(name.to_string()));
         }
+        // Adding the name finds a duplicate too (one hash and probe per element).
         let id = self
             .element_names
             .push(name)

@@ -131,7 +131,7 @@
 
 use crate::element::{Analysis, EvalContext, UnknownKind};
 use crate::lu::{DenseLu, LuStrategy, Singular, SparseLu};
-use crate::system::{System, Tolerances, NONE};
+use crate::system::{Layout, System, Tolerances, NONE};
 use faer::sparse::SymbolicSparseColMat;
 use std::cmp::Reverse;
 use std::collections::BinaryHeap;
@@ -248,9 +248,6 @@ pub(crate) struct Latency {
     /// Stored currents and charges of frozen elements at their `Plan::map` offsets.
     st_f: Vec<f64>,
     st_q: Vec<f64>,
-    /// Per row: the elements that have it as a local unknown, with the local index.
-    adj_ptr: Vec<usize>,
-    adj: Vec<(u32, u8)>,
     /// Per local unknown of an element (at its `Plan::map` offset): its entry's position in
     /// its row's list.
     adj_at: Vec<u32>,
@@ -404,28 +401,12 @@ impl System {
             eq_row[node] = branch;
             eq_row[branch] = node;
         }
-        let mut count = vec![0usize; n + 1];
-        for &g in &self.layout.loc_map {
-            if g != NONE {
-                count[g + 1] += 1;
-            }
-        }
-        for r in 0..n {
-            count[r + 1] += count[r];
-        }
+        let (count, adj) = (&self.layout.adj_ptr, &self.layout.adj);
         let locs = self.layout.map32.len();
-        let mut adj = vec![(0u32, 0u8); count[n]];
         let mut adj_at = vec![0u32; locs];
-        let mut fill = count.clone();
-        for e in 0..ne {
-            let lo = self.layout.loc_start[e];
-            let local = &self.layout.loc_map[lo..self.layout.loc_start[e + 1]];
-            for (k, &g) in local.iter().enumerate() {
-                if g != NONE {
-                    adj[fill[g]] = (e as u32, k as u8);
-                    adj_at[lo + k] = (fill[g] - count[g]) as u32;
-                    fill[g] += 1;
-                }
+        for r in 0..n {
+            for (i, &(e, k)) in adj[count[r]..count[r + 1]].iter().enumerate() {
+                adj_at[self.layout.loc_start[e as usize] + k as usize] = i as u32;
             }
         }
         let trees = (0..n)
@@ -467,14 +448,12 @@ impl System {
             pins: (0..ne).map(|e| self.pin_count(e)).collect(),
             st_f: vec![0.0; locs],
             st_q: vec![0.0; locs],
-            adj_ptr: count,
-            adj,
             adj_at,
             fz_f: vec![0.0; n],
             fz_q: vec![0.0; n],
             fz_scale: vec![0.0; n],
             fz_qscale: vec![0.0; n],
-            live: Vec::new(),
+            live: (0..ne as u32).collect(),
             live_count,
             active: Vec::new(),
             gather: Vec::new(),
@@ -494,11 +473,11 @@ impl System {
             column: Vec::new(),
             fscale: vec![0.0; n],
             holdable: vec![false; n],
-            changed: (0..n).collect(),
-            work: Vec::new(),
-            in_work: vec![false; n],
+            changed: Vec::new(),
+            work: (0..n).collect(),
+            in_work: vec![true; n],
             charge_k,
-            work_k: Vec::new(),
+            work_k: (0..self.charge_rows.len()).collect(),
             left: Vec::new(),
             leave_t: vec![0.0; n],
             leave_f: vec![0.0; n],
@@ -509,15 +488,22 @@ impl System {
             latent_steps: 0,
             active_steps: 0,
         });
-        if let Some(l) = self.latency.as_mut() {
-            for &u in at_rest {
-                l.quiet[u] = QUIET_STEPS;
-            }
-            // Watched from the first step when few would stay active counting those at rest
-            // (see `maybe_resume`).
-            l.watch = fallback && ((n - at_rest.len()) as f64) < HOLD_BELOW * n as f64;
+        let Some(mut l) = self.latency.take() else {
+            return;
+        };
+        for &u in at_rest {
+            l.quiet[u] = QUIET_STEPS;
         }
-        self.latency_refresh(&vec![0.0; n], 0.0);
+        // Watched from the first step when few would stay active counting those at rest
+        // (see `maybe_resume`).
+        l.watch = fallback && ((n - at_rest.len()) as f64) < HOLD_BELOW * n as f64;
+        // Everything active and working, every element live (built as such: a refresh from
+        // nothing would examine every row and element to reach the same).
+        l.active = (0..n).collect();
+        self.build_active(&mut l);
+        #[cfg(test)]
+        self.check_partition(&l);
+        self.latency = Some(l);
     }
 
     /// Ends the latency bookkeeping; later solves use the full system. Returns the latent
@@ -580,7 +566,7 @@ impl System {
             // largest charge, grows without bound as the step shrinks and would let a held node
             // that still carries current pass.
             if !(res <= test && l.missed[u] + share <= l.qtol[u]) {
-                wake(l, u, &self.layout.loc_map, &self.layout.loc_start);
+                wake(l, u, &self.layout);
                 woke = true;
             }
         }
@@ -989,7 +975,7 @@ impl System {
             l.deadlines.pop();
             if l.deadline[u] == when && l.held[u] && !l.in_work[l.eq_row[u]] {
                 l.deadline[u] = f64::INFINITY;
-                wake(l, u, &self.layout.loc_map, &self.layout.loc_start);
+                wake(l, u, &self.layout);
                 any = true;
             }
         }
@@ -1083,8 +1069,8 @@ impl System {
         l.flipped.clear();
         for c in 0..l.changed.len() {
             let u = l.changed[c];
-            for a in l.adj_ptr[u]..l.adj_ptr[u + 1] {
-                let e = l.adj[a].0 as usize;
+            for &(e, _) in self.layout.elements_of(u) {
+                let e = e as usize;
                 let (lo, hi) = (self.layout.loc_start[e], self.layout.loc_start[e + 1]);
                 let local = &self.layout.loc_map[lo..hi];
                 let want = !l.source[e] && local.iter().all(|&g| g == NONE || l.held[g]);
@@ -1134,7 +1120,7 @@ impl System {
                 continue;
             }
             let (mut f, mut q, mut sf, mut sq) = (0.0, 0.0, 0.0f64, 0.0f64);
-            for &(e, k) in &l.adj[l.adj_ptr[r]..l.adj_ptr[r + 1]] {
+            for &(e, k) in self.layout.elements_of(r) {
                 let e = e as usize;
                 if !l.frozen[e] {
                     continue;
@@ -1573,11 +1559,11 @@ fn give_back(l: &mut Latency, t: f64) -> bool {
 
 /// Marks `u` active, with the internal unknowns of every element it belongs to (an internal
 /// unknown is latent only with all of its element's unknowns).
-fn wake(l: &mut Latency, u: usize, loc_map: &[usize], loc_start: &[usize]) {
+fn wake(l: &mut Latency, u: usize, layout: &Layout) {
     l.release(u);
-    for a in l.adj_ptr[u]..l.adj_ptr[u + 1] {
-        let e = l.adj[a].0 as usize;
-        let local = &loc_map[loc_start[e]..loc_start[e + 1]];
+    for &(e, _) in layout.elements_of(u) {
+        let e = e as usize;
+        let local = &layout.loc_map[layout.loc_start[e]..layout.loc_start[e + 1]];
         for &g in &local[l.pins[e]..] {
             if g != NONE && l.held[g] {
                 l.release(g);

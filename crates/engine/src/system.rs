@@ -434,7 +434,6 @@ impl Reduction {
             let rows = &row_idx[col_ptr[c]..col_ptr[c + 1]];
             rows.binary_search(&r).ok().map(|k| col_ptr[c] + k)
         };
-        let col_of = |s: usize| col_ptr.partition_point(|&p| p <= s) - 1;
         let mut taken = vec![false; n];
         let mut pinned = Vec::new();
         for (e, element) in elements.iter().enumerate() {
@@ -459,9 +458,17 @@ impl Reduction {
             };
             taken[node] = true;
             taken[branch] = true;
+            // The row's slots run in column order: one walk along the columns finds theirs
+            // (a supply's row has an entry for every device on it).
+            let mut c = 0;
             let row = row_slots[row_slot_ptr[node]..row_slot_ptr[node + 1]]
                 .iter()
-                .map(|&s| (col_of(s), s))
+                .map(|&s| {
+                    while col_ptr[c + 1] <= s {
+                        c += 1;
+                    }
+                    (c, s)
+                })
                 .filter(|&(c, _)| c != branch)
                 .collect();
             pinned.push(Pinned {
@@ -649,10 +656,51 @@ pub(crate) struct Layout {
     /// Slots of each row (for replacing a row by a clamp).
     row_slot_ptr: Vec<usize>,
     row_slots: Vec<usize>,
+    /// Per unknown `u`: the elements that have it as a local unknown, with its local index,
+    /// in element order (`adj[adj_ptr[u]..adj_ptr[u + 1]]`).
+    pub(crate) adj_ptr: Vec<usize>,
+    pub(crate) adj: Vec<(u32, u8)>,
     /// Hot-loop copies: per-element plans and 32-bit index lists.
     pub(crate) plan: Vec<Plan>,
     pub(crate) map32: Vec<u32>,
     pub(crate) slots32: Vec<u32>,
+}
+
+impl Layout {
+    /// The elements that have unknown `u` as a local unknown, with its local index, in
+    /// element order.
+    pub(crate) fn elements_of(&self, u: usize) -> &[(u32, u8)] {
+        &self.adj[self.adj_ptr[u]..self.adj_ptr[u + 1]]
+    }
+}
+
+/// Per unknown, the elements that have it as a local unknown with the local index, in element
+/// order, as compressed lists: `(ptr, entries)`.
+fn element_adjacency(
+    loc_map: &[usize],
+    loc_start: &[usize],
+    n: usize,
+) -> (Vec<usize>, Vec<(u32, u8)>) {
+    let mut ptr = vec![0usize; n + 1];
+    for &g in loc_map {
+        if g != NONE {
+            ptr[g + 1] += 1;
+        }
+    }
+    for r in 0..n {
+        ptr[r + 1] += ptr[r];
+    }
+    let mut adj = vec![(0u32, 0u8); ptr[n]];
+    let mut fill = ptr.clone();
+    for e in 0..loc_start.len() - 1 {
+        for (k, &g) in loc_map[loc_start[e]..loc_start[e + 1]].iter().enumerate() {
+            if g != NONE {
+                adj[fill[g]] = (e as u32, k as u8);
+                fill[g] += 1;
+            }
+        }
+    }
+    (ptr, adj)
 }
 
 /// A circuit compiled for analysis: fixed pattern, buffers and the LU solver.
@@ -766,78 +814,79 @@ impl System {
         if n == 0 {
             return Err(EngineError::Invalid("the circuit has no unknowns".into()));
         }
+        if loc_start.windows(2).any(|w| w[1] - w[0] > u8::MAX as usize) {
+            return Err(EngineError::Invalid(
+                "an element has more than 255 local unknowns".into(),
+            ));
+        }
 
+        // Per unknown, the elements that have it as a local unknown, with the local index, in
+        // element order.
+        let (adj_ptr, adj) = element_adjacency(&loc_map, &loc_start, n);
         // Compressed columns with sorted, unique rows: every element's local pairs and the
         // diagonal (branch rows of voltage-defined elements have a zero diagonal; it stays in
-        // the pattern so that clamps and pseudo-transient terms can use it), bucketed by
-        // column (a sort of every pair would cost `log` of their number more), then each
-        // column's few rows sorted.
-        let locals = |e: usize| {
-            loc_map[loc_start[e]..loc_start[e + 1]]
-                .iter()
-                .copied()
-                .filter(|&g| g != NONE)
-        };
-        // One diagonal entry per column to start with.
-        let mut col_ptr = vec![1usize; n + 1];
-        col_ptr[0] = 0;
-        for e in 0..ne {
-            let m = locals(e).count();
-            for c in locals(e) {
-                col_ptr[c + 1] += m;
+        // the pattern so that clamps and pseudo-transient terms can use it). Row `r` is added
+        // to every column its elements touch, rows in increasing order, so each column comes
+        // out sorted, and a repeat is the column's last row (no sort: a supply's column
+        // holds tens of thousands of rows).
+        let each_column = |r: usize, f: &mut dyn FnMut(usize)| {
+            f(r);
+            for &(e, _) in &adj[adj_ptr[r]..adj_ptr[r + 1]] {
+                let e = e as usize;
+                for &c in &loc_map[loc_start[e]..loc_start[e + 1]] {
+                    if c != NONE {
+                        f(c);
+                    }
+                }
             }
+        };
+        let mut last = vec![NONE; n];
+        let mut col_ptr = vec![0usize; n + 1];
+        for r in 0..n {
+            each_column(r, &mut |c| {
+                if last[c] != r {
+                    last[c] = r;
+                    col_ptr[c + 1] += 1;
+                }
+            });
         }
         for c in 0..n {
             col_ptr[c + 1] += col_ptr[c];
         }
+        let mut row_idx = vec![0usize; col_ptr[n]];
         let mut fill = col_ptr.clone();
-        let mut all_rows = vec![0usize; col_ptr[n]];
-        for c in 0..n {
-            all_rows[fill[c]] = c;
-            fill[c] += 1;
-        }
-        for e in 0..ne {
-            for c in locals(e) {
-                for r in locals(e) {
-                    all_rows[fill[c]] = r;
+        last.fill(NONE);
+        for r in 0..n {
+            each_column(r, &mut |c| {
+                if last[c] != r {
+                    last[c] = r;
+                    row_idx[fill[c]] = r;
                     fill[c] += 1;
                 }
-            }
+            });
         }
-        let mut row_idx = Vec::with_capacity(all_rows.len());
-        let mut unique_ptr = vec![0usize; n + 1];
+        drop(fill);
+        // Each element's slots, local row by local column: column `c`'s rows are marked with
+        // their slots, then read by every element on `c`.
+        let mut slots = vec![NONE; slot_count];
+        let mut diag_slot = vec![0usize; n];
+        let mut at = last;
         for c in 0..n {
-            let rows = &mut all_rows[col_ptr[c]..col_ptr[c + 1]];
-            rows.sort_unstable();
-            let mut last = NONE;
-            for &r in rows.iter() {
-                if r != last {
-                    row_idx.push(r);
-                    last = r;
-                }
+            for s in col_ptr[c]..col_ptr[c + 1] {
+                at[row_idx[s]] = s;
             }
-            unique_ptr[c + 1] = row_idx.len();
-        }
-        drop(all_rows);
-        let col_ptr = unique_ptr;
-        let slot_of = |r: usize, c: usize| -> usize {
-            let rows = &row_idx[col_ptr[c]..col_ptr[c + 1]];
-            col_ptr[c] + rows.binary_search(&r).expect("entry is in the pattern")
-        };
-        let mut slots = Vec::with_capacity(slot_count);
-        for e in 0..ne {
-            let local = &loc_map[loc_start[e]..loc_start[e + 1]];
-            for &r in local {
-                for &c in local {
-                    slots.push(if r != NONE && c != NONE {
-                        slot_of(r, c)
-                    } else {
-                        NONE
-                    });
+            diag_slot[c] = at[c];
+            for &(e, k) in &adj[adj_ptr[c]..adj_ptr[c + 1]] {
+                let e = e as usize;
+                let local = &loc_map[loc_start[e]..loc_start[e + 1]];
+                let nl = local.len();
+                for (j, &r) in local.iter().enumerate() {
+                    if r != NONE {
+                        slots[slot_start[e] + j * nl + k as usize] = at[r];
+                    }
                 }
             }
         }
-        let diag_slot: Vec<usize> = (0..n).map(|i| slot_of(i, i)).collect();
         // Each row's slots, in column order (the slots run column by column).
         let mut row_slot_ptr = vec![0usize; n + 1];
         for &r in &row_idx {
@@ -870,11 +919,6 @@ impl System {
                 bypass: elements[e].bypassable(),
             })
             .collect();
-        if loc_start.windows(2).any(|w| w[1] - w[0] > u8::MAX as usize) {
-            return Err(EngineError::Invalid(
-                "an element has more than 255 local unknowns".into(),
-            ));
-        }
         let reduced = Reduction::build(
             &elements,
             &pin_start,
@@ -920,6 +964,8 @@ impl System {
             layout: Layout {
                 loc_start,
                 loc_map,
+                adj_ptr,
+                adj,
                 diag_slot,
                 row_slot_ptr,
                 row_slots,
