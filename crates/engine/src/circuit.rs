@@ -176,11 +176,11 @@ impl Circuit {
     }
 
     /// Makes room for `nodes` more nodes and `elements` more elements (with names of about 16
-    /// bytes and three pins each), so that building a large circuit does not grow its tables
-    /// step by step.
+    /// and 24 bytes, three pins each), so that building a large circuit does not grow its
+    /// tables step by step.
     pub fn reserve(&mut self, nodes: usize, elements: usize) {
         self.node_names.reserve(nodes, 16);
-        self.element_names.reserve(elements, 16);
+        self.element_names.reserve(elements, 24);
         self.elements.reserve(elements);
         self.pins.reserve(elements.saturating_mul(3));
         self.pin_start.reserve(elements);

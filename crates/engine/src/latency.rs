@@ -1105,15 +1105,16 @@ impl System {
                         tree.set(l.adj_at[at] as usize, leaf);
                     }
                 }
-                l.dirty_rows
-                    .extend(local.iter().copied().filter(|&g| g != NONE));
+                for &g in local.iter().filter(|&&g| g != NONE) {
+                    push_unique(&mut l.dirty_rows, &mut l.marks, g);
+                }
             }
         }
     }
 
     /// Recomputes the frozen sums of the rows a flip touched, in element order.
     fn resum(&self, l: &mut Latency) {
-        sort_unique(&mut l.dirty_rows, &mut l.marks);
+        sort_marked(&mut l.dirty_rows, &mut l.marks);
         for &r in &l.dirty_rows {
             if let Some(tree) = l.trees[r].as_mut() {
                 [l.fz_f[r], l.fz_q[r], l.fz_scale[r], l.fz_qscale[r]] = tree.total();
@@ -1153,17 +1154,21 @@ impl System {
             let e = e as usize;
             let local =
                 &self.layout.loc_map[self.layout.loc_start[e]..self.layout.loc_start[e + 1]];
-            l.candidates
-                .extend(local.iter().copied().filter(|&g| g != NONE));
+            for &g in local.iter().filter(|&&g| g != NONE) {
+                push_unique(&mut l.candidates, &mut l.marks, g);
+            }
         }
-        l.candidates.extend_from_slice(&l.changed);
+        for &u in &l.changed {
+            push_unique(&mut l.candidates, &mut l.marks, u);
+        }
         for i in 0..l.candidates.len() {
-            l.candidates.push(l.eq_row[l.candidates[i]]);
+            let r = l.eq_row[l.candidates[i]];
+            push_unique(&mut l.candidates, &mut l.marks, r);
         }
         if l.candidates.is_empty() {
             return false;
         }
-        sort_unique(&mut l.candidates, &mut l.marks);
+        sort_marked(&mut l.candidates, &mut l.marks);
         let tol = l.tol;
         let basic = |l: &Latency, r: usize| l.live_count[r] > 0 || !l.held[r];
         let mut entered = false;
@@ -1356,6 +1361,34 @@ impl System {
             v[u] = r;
         }
         Ok(())
+    }
+}
+
+/// Adds `i` to `list` unless its mark says it is there already, and marks it: a list built so
+/// holds each index once however often it is offered (the first holds of a run offer every
+/// row several times), and [`sort_marked`] then orders it.
+fn push_unique<T: Copy + Index>(list: &mut Vec<T>, marks: &mut [bool], i: T) {
+    let mark = &mut marks[i.index()];
+    if !*mark {
+        *mark = true;
+        list.push(i);
+    }
+}
+
+/// Sorts a list built by [`push_unique`] and clears its marks (all false after).
+fn sort_marked<T: Copy + Ord + Index>(list: &mut Vec<T>, marks: &mut [bool]) {
+    if list.len() < marks.len() / 16 {
+        list.sort_unstable();
+        for &i in list.iter() {
+            marks[i.index()] = false;
+        }
+        return;
+    }
+    list.clear();
+    for (i, mark) in marks.iter_mut().enumerate() {
+        if std::mem::take(mark) {
+            list.push(T::from_index(i));
+        }
     }
 }
 
@@ -1574,10 +1607,10 @@ fn wake(l: &mut Latency, u: usize, layout: &Layout) {
 
 #[cfg(test)]
 mod tests {
-    use super::sort_unique;
+    use super::{push_unique, sort_marked, sort_unique};
 
     #[test]
-    fn sort_unique_gives_the_sorted_distinct_indices_by_either_path() {
+    fn sort_unique_and_sort_marked_give_the_sorted_distinct_indices_by_either_path() {
         let mut marks = vec![false; 1000];
         // Short against the range: sorted; long: marked and read back.
         for list in [
@@ -1590,6 +1623,15 @@ mod tests {
             let mut got = list.clone();
             sort_unique(&mut got, &mut marks);
             assert_eq!(got, expected);
+            assert!(marks.iter().all(|&m| !m));
+            // Built without repeats, then ordered.
+            let mut built = Vec::new();
+            for &i in &list {
+                push_unique(&mut built, &mut marks, i);
+            }
+            assert_eq!(built.len(), expected.len());
+            sort_marked(&mut built, &mut marks);
+            assert_eq!(built, expected);
             assert!(marks.iter().all(|&m| !m));
         }
         let mut elements: Vec<u32> = vec![5, 1, 5, 2];

@@ -777,11 +777,17 @@ impl System {
             pin_start,
         } = circuit;
         let ne = elements.len();
-        let mut kinds = vec![UnknownKind::Voltage; n_nodes];
-        let mut unknown_owner = vec![None; n_nodes];
-        let mut linear_unknown = vec![false; n_nodes];
+        // Sized once: a supply's one internal unknown would double lists of every node.
+        let internals: usize = elements.iter().map(|e| e.internals().len()).sum();
+        let n_all = n_nodes + internals;
+        let mut kinds = Vec::with_capacity(n_all);
+        kinds.resize(n_nodes, UnknownKind::Voltage);
+        let mut unknown_owner = Vec::with_capacity(n_all);
+        unknown_owner.resize(n_nodes, None);
+        let mut linear_unknown = Vec::with_capacity(n_all);
+        linear_unknown.resize(n_nodes, false);
         let mut loc_start = Vec::with_capacity(ne + 1);
-        let mut loc_map = Vec::with_capacity(pins.len());
+        let mut loc_map = Vec::with_capacity(pins.len() + internals);
         let mut slot_start = Vec::with_capacity(ne + 1);
         let mut has_charge = Vec::with_capacity(ne);
         let mut breakpoint_elements = Vec::new();
