@@ -67,7 +67,9 @@
 //! * **Working rows.** Only the rows a live element touches, and the active unknowns' rows,
 //!   are assembled, checked, predicted, integrated and stored each step. The other latent
 //!   rows are *interior*: every element on them is frozen, so their current `f_i` is
-//!   constant. A row becomes interior only when `f_i` passes the residual test; its history is
+//!   constant (a node row's `f_i` counts the transient's `gmin x_i`, which Newton's residual
+//!   adds and the frozen sums do not hold). A row becomes interior only when `f_i` passes
+//!   the residual test; its history is
 //!   then set to its present (held) value and the trapezoidal rule's stored rate, which that
 //!   test bounds, to zero, so its equation stays exactly as it was. Its missed charge grows
 //!   as `|f_i| (t - t_leave)`, so it wakes at the time that reaches its bound (a current of
@@ -237,6 +239,9 @@ pub(crate) struct Latency {
     given: Vec<(usize, f64)>,
     /// The run's stop time: an error that does not decay lasts at most until then.
     stop_time: f64,
+    /// The transient's conductance from every node to ground, part of each node row's current
+    /// (Newton's residual adds it; the assembled and frozen currents do not hold it).
+    gmin: f64,
     /// Per unknown: the row holding its equation (pinned nodes and their sources' currents
     /// trade rows); per row: the position in `active` of the unknown it belongs to.
     eq_row: Vec<usize>,
@@ -376,6 +381,18 @@ impl Latency {
     pub(crate) fn any_held(&self) -> bool {
         self.held.iter().any(|&h| h)
     }
+
+    /// The current the transient's `gmin` adds to row `r` at `x` (node rows, the first
+    /// `n_nodes`, only): part of the row's current in Newton's residual, though not in the
+    /// assembled or frozen sums. Without it a node whose only leak is `gmin` would pass for
+    /// one without current and be held for good.
+    fn gmin_current(&self, n_nodes: usize, r: usize, x: &[f64]) -> f64 {
+        if r < n_nodes {
+            self.gmin * x[r]
+        } else {
+            0.0
+        }
+    }
 }
 
 impl System {
@@ -387,6 +404,7 @@ impl System {
         tol: Tolerances,
         fallback: bool,
         stop_time: f64,
+        gmin: f64,
         at_rest: &[usize],
     ) {
         let strategy = self.lu.strategy();
@@ -429,6 +447,7 @@ impl System {
             missed: vec![0.0; n],
             pending: vec![0.0; n],
             stop_time,
+            gmin,
             owed: vec![0.0; n],
             pending_owed: vec![0.0; n],
             last_t: 0.0,
@@ -540,7 +559,7 @@ impl System {
 
     /// Checks every latent unknown's equation after an assembly and residual (`rhs = -F`):
     /// wakes those that fail (see the module doc) and returns whether any woke.
-    pub(crate) fn latency_check(&mut self, a0: f64, tol: &Tolerances) -> bool {
+    pub(crate) fn latency_check(&mut self, x: &[f64], a0: f64, tol: &Tolerances) -> bool {
         let Some(l) = self.latency.as_mut() else {
             return false;
         };
@@ -560,7 +579,7 @@ impl System {
             l.pending[u] = share;
             // The row's current alone: its charge terms at a held value are the formula's
             // history (the trapezoidal rule's stored rate alternates in sign while held).
-            l.pending_owed[u] = -self.f[r];
+            l.pending_owed[u] = -(self.f[r] + l.gmin_current(self.n_nodes, r, x));
             // NaN fails both tests and wakes the row, whose residual then reports it. The scale
             // is the row's largest current alone: the charge terms' scale, `α₀` times the
             // largest charge, grows without bound as the step shrinks and would let a held node
@@ -650,14 +669,19 @@ impl System {
 
     /// Holds, before the first step, the unknowns at rest at the start (counted quiet by
     /// [`Self::latency_begin`]) whose rows pass the hold test at `x` (at t = 0 from an
-    /// equilibrium start: the charge terms of a row at rest vanish, so its current alone is
-    /// its residual), with budgets from an assembly at `x` with every row active. The first
+    /// equilibrium start: the charge terms of a row at rest vanish to first order, so its
+    /// current is its residual; a trapezoidal first step's stored rate may double it, which
+    /// Newton's check of held rows then catches), with budgets from an assembly at `x` with
+    /// every row active. The first
     /// step then solves only what the start set moving, instead of the whole system until
     /// the rest have been quiet for [`QUIET_STEPS`] steps. Nothing else changes: every held
-    /// row is checked at every Newton iteration as always, and wakes when it fails.
+    /// row is checked at every Newton iteration as always, and wakes when it fails. `a0` is
+    /// the first step's `α₀` (any nonzero value assembles `jac = G + α₀ C` and `cmat = C`, from
+    /// which the budgets take `G` and `C` as after a step).
     pub(crate) fn latency_hold_at_rest(
         &mut self,
         x: &[f64],
+        a0: f64,
         tol: &Tolerances,
         charge_tol: &dyn Fn(usize) -> f64,
     ) {
@@ -666,8 +690,7 @@ impl System {
             source_scale: 1.0,
             analysis: Analysis::Transient,
         };
-        // `a0 = 0`: the matrix is the conductances, as the budgets read it.
-        self.assemble(x, &ctx, 0.0);
+        self.assemble(x, &ctx, a0);
         self.latency_keep_scale();
         let Some(mut l) = self.latency.take() else {
             return;
@@ -675,9 +698,10 @@ impl System {
         for w in 0..l.work.len() {
             let u = l.work[w];
             let r = l.eq_row[u];
-            l.holdable[u] = self.f[r].abs() <= hold_test(l.fscale[r], self.kinds[r], tol);
+            let f = self.f[r] + l.gmin_current(self.n_nodes, r, x);
+            l.holdable[u] = f.abs() <= hold_test(l.fscale[r], self.kinds[r], tol);
         }
-        self.hold_ready(&mut l, 0.0, 0.0, charge_tol);
+        self.hold_ready(&mut l, 0.0, a0, charge_tol);
         let changed = !l.changed.is_empty();
         self.latency = Some(l);
         if changed {
@@ -1005,7 +1029,7 @@ impl System {
         if reactivate(&mut l) {
             self.build_active(&mut l);
         }
-        let entered = self.build_work(&mut l, t);
+        let entered = self.build_work(&mut l, x, t);
         let given = give_back(&mut l, t);
         l.changed.clear();
         #[cfg(test)]
@@ -1148,7 +1172,7 @@ impl System {
     /// of the flipped elements (their live counts and frozen sums changed) and of the changed
     /// unknowns, with their trades; a row kept before is kept again unless it is one of them.
     /// Returns whether a row joined.
-    fn build_work(&self, l: &mut Latency, t: f64) -> bool {
+    fn build_work(&self, l: &mut Latency, x: &[f64], t: f64) -> bool {
         l.candidates.clear();
         for &e in &l.flipped {
             let e = e as usize;
@@ -1188,7 +1212,7 @@ impl System {
                 l.owed[u] -= l.leave_f[u] * (l.last_t - l.leave_t[u]).max(0.0);
                 l.deadline[u] = f64::INFINITY;
             } else if !want && l.in_work[r] {
-                let f = l.fz_f[r];
+                let f = l.fz_f[r] + l.gmin_current(self.n_nodes, r, x);
                 // Interior only within the same fraction of the tolerance a held row must
                 // keep.
                 if !(l.held[u] && f.abs() <= hold_test(l.fz_scale[r], self.kinds[r], &tol)) {

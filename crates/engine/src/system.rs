@@ -1439,7 +1439,7 @@ impl System {
                 }
                 let worst = self
                     .with_latency_lists(latent, |s, _, rows| s.residual_of(x, load, &tol, rows));
-                if !(watch && self.latency_check(load.a0, &tol)) {
+                if !(watch && self.latency_check(x, load.a0, &tol)) {
                     break worst;
                 }
                 // Woken unknowns: their elements are live again and must be assembled. A row

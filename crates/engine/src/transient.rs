@@ -439,6 +439,18 @@ impl System {
                     .iter()
                     .filter_map(|&(node, v)| self.node_unknown(node).map(|i| (i, v)))
                     .collect();
+                if let Some((node, branch)) = self
+                    .pinned_pairs()
+                    .into_iter()
+                    .find(|&(node, _)| clamps.iter().any(|&(i, _)| i == node))
+                {
+                    let source = self.unknown_owner[branch].map_or("?", |e| self.element_name(e));
+                    return Err(EngineError::Invalid(format!(
+                        "the start clamps {}, which the ideal source `{source}` holds at its own \
+                         value; clamp other nodes, or set the source's value instead",
+                        self.unknown_name(node)
+                    )));
+                }
                 for &(i, v) in &clamps {
                     x[i] = v;
                 }
@@ -635,10 +647,10 @@ impl System {
                     })
                     .collect()
             });
-            self.latency_begin(p.tol, p.latency_fallback, p.stop_time, &at_rest);
+            self.latency_begin(p.tol, p.latency_fallback, p.stop_time, p.gmin, &at_rest);
             if !at_rest.is_empty() {
                 let tol_of_row = |k: usize| tol_of(k, q0[k], q0[k], &qref);
-                self.latency_hold_at_rest(&x, &p.tol, &tol_of_row);
+                self.latency_hold_at_rest(&x, 1.0 / h, &p.tol, &tol_of_row);
                 // Rows already interior: their history is the start; their stored rate,
                 // within the hold test, is dropped as after a step (below).
                 self.latency_take_left(&mut left);
@@ -1321,6 +1333,31 @@ pub(crate) mod tests {
     use super::*;
     use crate::elements::{Capacitor, Resistor, Sine, VoltageSource, Waveform};
     use crate::Circuit;
+
+    /// A clamped start may not clamp a node an ideal grounded source holds: it is refused with
+    /// both names, not run into a singular matrix (its row is the source's, and the start would
+    /// set the node from the source anyway).
+    #[test]
+    fn a_start_clamping_a_supply_node_is_refused_by_name() {
+        let mut c = Circuit::new();
+        let (vdd, out) = (c.node("vdd"), c.node("out"));
+        c.add("supply", VoltageSource::dc(1.0), &[vdd, Circuit::GROUND])
+            .unwrap();
+        c.add("r", Resistor::new(1e3), &[vdd, out]).unwrap();
+        c.add("c", Capacitor::new(1e-12), &[out, Circuit::GROUND])
+            .unwrap();
+        let mut sys = System::new(c).unwrap();
+        let p = TransientParams::new(1e-9);
+        let start = Start::Clamped(vec![(out, 0.0), (vdd, 0.5)], OpParams::default());
+        let err = sys
+            .transient(&p, &start, &[], None)
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("vdd") && err.contains("`supply`"), "{err}");
+        // Clamping the other node alone runs.
+        let start = Start::Clamped(vec![(out, 0.0)], OpParams::default());
+        assert!(sys.transient(&p, &start, &[], None).is_ok());
+    }
 
     /// An RC low-pass, R = 1 kΩ, C = 1 pF (τ = 1 ns), driven by a 1 V sine at ωτ = 1: the
     /// system, the output node and τ.
