@@ -206,7 +206,9 @@ impl Circuit {
         self.node_names.len()
     }
 
-    /// Adds `element` called `name`, its terminals connected to `pins` in order.
+    /// Adds `element` called `name`, its terminals connected to `pins` in order. A wrong
+    /// number of pins or a node of another circuit is reported before a repeated name (the
+    /// circuit is unchanged on any error).
     pub fn add(
         &mut self,
         name: &str,

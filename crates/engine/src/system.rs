@@ -458,17 +458,18 @@ impl Reduction {
             };
             taken[node] = true;
             taken[branch] = true;
-            // The row's slots run in column order: one walk along the columns finds theirs
-            // (a supply's row has an entry for every device on it).
-            let mut c = 0;
-            let row = row_slots[row_slot_ptr[node]..row_slot_ptr[node + 1]]
+            // The pattern is symmetric (every element pairs its unknowns both ways), so the
+            // row's columns are the column's rows, both in ascending order, and the row's
+            // slots run in column order: zipped, no search (a supply's row has an entry for
+            // every device on it; a walk along the columns cost every node per source).
+            let row = row_idx[col_ptr[node]..col_ptr[node + 1]]
                 .iter()
-                .map(|&s| {
-                    while col_ptr[c + 1] <= s {
-                        c += 1;
-                    }
-                    (c, s)
-                })
+                .copied()
+                .zip(
+                    row_slots[row_slot_ptr[node]..row_slot_ptr[node + 1]]
+                        .iter()
+                        .copied(),
+                )
                 .filter(|&(c, _)| c != branch)
                 .collect();
             pinned.push(Pinned {
