@@ -188,9 +188,9 @@ pub(crate) fn quiet_bound(a: f64, b: f64, kind: UnknownKind, tol: &Tolerances) -
     QUIET_FRACTION * (tol.reltol * a.abs().max(b.abs()) + abs)
 }
 
-/// The residual a held row of `kind` (of an unknown of that kind's row: a KCL row is a
-/// current, a source's row a voltage) with largest current contribution `scale` must stay
-/// within: [`HOLD_FRACTION`] of Newton's residual test.
+/// The residual a held row must stay within, `kind` being that of the row's own unknown (a
+/// voltage's row is a KCL row, a current; a branch current's row is a voltage) and `scale`
+/// its largest current contribution: [`HOLD_FRACTION`] of Newton's residual test.
 fn hold_test(scale: f64, kind: UnknownKind, tol: &Tolerances) -> f64 {
     let abs = match kind {
         UnknownKind::Voltage => tol.abstol,
@@ -672,12 +672,12 @@ impl System {
     /// equilibrium start: the charge terms of a row at rest vanish to first order, so its
     /// current is its residual; a trapezoidal first step's stored rate may double it, which
     /// Newton's check of held rows then catches), with budgets from an assembly at `x` with
-    /// every row active. The first
-    /// step then solves only what the start set moving, instead of the whole system until
-    /// the rest have been quiet for [`QUIET_STEPS`] steps. Nothing else changes: every held
-    /// row is checked at every Newton iteration as always, and wakes when it fails. `a0` is
-    /// the first step's `α₀` (any nonzero value assembles `jac = G + α₀ C` and `cmat = C`, from
-    /// which the budgets take `G` and `C` as after a step).
+    /// every row active. The first step then solves only what the start set moving, instead
+    /// of the whole system until the rest have been quiet for [`QUIET_STEPS`] steps. Nothing
+    /// else changes: every held row is checked at every Newton iteration as always, and
+    /// wakes when it fails. `a0` is the first step's `α₀` (any nonzero value assembles
+    /// `jac = G + α₀ C` and `cmat = C`, from which the budgets take `G` and `C` as after a
+    /// step).
     pub(crate) fn latency_hold_at_rest(
         &mut self,
         x: &[f64],
