@@ -389,6 +389,9 @@ impl BypassCache {
 struct Pinned {
     node: usize,
     branch: usize,
+    /// The source, and the node's local index in it (its branch current is local 2).
+    element: usize,
+    node_local: usize,
     /// Slots of `(branch, node)` and `(node, branch)`.
     slot_bn: usize,
     slot_nb: usize,
@@ -475,6 +478,8 @@ impl Reduction {
             pinned.push(Pinned {
                 node,
                 branch,
+                element: e,
+                node_local: usize::from(local[0] == NONE),
                 slot_bn,
                 slot_nb,
                 row,
@@ -1251,9 +1256,24 @@ impl System {
         q: &mut [f64],
     ) {
         let plan = &self.layout.plan[e];
+        let (lo, nl) = (plan.map as usize, plan.local as usize);
+        self.evaluate_local(e, x, ctx, &mut f[lo..lo + nl], &mut q[lo..lo + nl], |_| {});
+    }
+
+    /// Evaluates element `e` alone at `x` into its local currents `fs` and charges `qs`, and
+    /// hands its local `∂f/∂x` (row by row) to `with_df`.
+    fn evaluate_local(
+        &self,
+        e: usize,
+        x: &[f64],
+        ctx: &EvalContext,
+        fs: &mut [f64],
+        qs: &mut [f64],
+        with_df: impl FnOnce(&[f64]),
+    ) {
+        let plan = &self.layout.plan[e];
         let nl = plan.local as usize;
         let lo = plan.map as usize;
-        let (fs, qs) = (&mut f[lo..lo + nl], &mut q[lo..lo + nl]);
         fs.fill(0.0);
         qs.fill(0.0);
         let map = &self.layout.map32[lo..lo + nl];
@@ -1265,11 +1285,13 @@ impl System {
             gather(map, x, &mut xs[..nl]);
             let stamp = &mut Stamp::new(fs, qs, &mut df[..nl * nl], &mut dq[..nl * nl]);
             self.elements[e].evaluate(&xs[..nl], ctx, stamp);
+            with_df(&df[..nl * nl]);
         } else {
             let mut xs = vec![0.0; nl];
             gather(map, x, &mut xs);
             let (mut df, mut dq) = (vec![0.0; nl * nl], vec![0.0; nl * nl]);
             self.elements[e].evaluate(&xs, ctx, &mut Stamp::new(fs, qs, &mut df, &mut dq));
+            with_df(&df);
         }
     }
 
@@ -1290,33 +1312,12 @@ impl System {
             return;
         };
         for p in &reduction.pinned {
-            let Some(e) = self.unknown_owner[p.branch] else {
-                continue;
-            };
-            let plan = &self.layout.plan[e];
-            let nl = plan.local as usize;
-            let map = &self.layout.map32[plan.map as usize..plan.map as usize + nl];
-            let (Some(b), Some(k)) = (
-                map.iter().position(|&g| g as usize == p.branch),
-                map.iter().position(|&g| g as usize == p.node),
-            ) else {
-                continue;
-            };
-            if nl > SMALL {
-                continue;
-            }
-            let (mut xs, mut f, mut q) = ([0.0; SMALL], [0.0; SMALL], [0.0; SMALL]);
-            let (mut df, mut dq) = ([0.0; SMALL * SMALL], [0.0; SMALL * SMALL]);
-            gather(map, x, &mut xs[..nl]);
-            let stamp = &mut Stamp::new(
-                &mut f[..nl],
-                &mut q[..nl],
-                &mut df[..nl * nl],
-                &mut dq[..nl * nl],
-            );
-            self.elements[e].evaluate(&xs[..nl], ctx, stamp);
-            let slope = df[b * nl + k];
-            let step = -f[b] / slope;
+            // A pinned source has two pins and its current: local rows 0 to 2, the branch 2.
+            let (mut f, mut q, mut slope) = ([0.0; 3], [0.0; 3], 0.0);
+            self.evaluate_local(p.element, x, ctx, &mut f, &mut q, |df| {
+                slope = df[2 * 3 + p.node_local]
+            });
+            let step = -f[2] / slope;
             if slope != 0.0 && step.is_finite() {
                 x[p.node] += step;
             }
