@@ -110,36 +110,47 @@ pub enum Probe {
 }
 
 impl System {
+    /// Each probe's unknown (`None` for a node at ground), or why a probe does not belong to
+    /// this system.
     pub(crate) fn probe_unknowns(
         &self,
         probes: &[Probe],
-    ) -> Result<(Vec<Option<usize>>, Vec<String>), EngineError> {
-        let mut idx = Vec::with_capacity(probes.len());
-        let mut names = Vec::with_capacity(probes.len());
-        for p in probes {
-            match *p {
+    ) -> Result<Vec<Option<usize>>, EngineError> {
+        probes
+            .iter()
+            .map(|p| match *p {
                 Probe::Voltage(node) => {
                     if node.0 > self.n_nodes {
                         return Err(EngineError::Invalid(
                             "probe names a node of another circuit".into(),
                         ));
                     }
-                    idx.push(self.node_unknown(node));
-                    names.push(crate::system::node_label(self.node_name(node)));
+                    Ok(self.node_unknown(node))
                 }
-                Probe::Current(e) => {
-                    let u = self.branch_unknown(e).ok_or_else(|| {
-                        EngineError::Invalid(format!(
-                            "element `{}` has no branch current to record",
-                            self.element_name(e.0)
-                        ))
-                    })?;
-                    idx.push(Some(u));
-                    names.push(self.unknown_name(u));
-                }
-            }
-        }
-        Ok((idx, names))
+                Probe::Current(e) => self.branch_unknown(e).map(Some).ok_or_else(|| {
+                    EngineError::Invalid(format!(
+                        "element `{}` has no branch current to record",
+                        self.element_name(e.0)
+                    ))
+                }),
+            })
+            .collect()
+    }
+
+    /// The signal names of `probes`, as a sweep or a transient records them: a node's label,
+    /// or the unknown of an element's branch current; an error for a probe that does not
+    /// belong to this system.
+    pub fn probe_names(&self, probes: &[Probe]) -> Result<Vec<String>, EngineError> {
+        let idx = self.probe_unknowns(probes)?;
+        Ok(probes
+            .iter()
+            .zip(idx)
+            .map(|(p, u)| match p {
+                Probe::Voltage(node) => crate::system::node_label(self.node_name(*node)),
+                // Always an unknown: `probe_unknowns` refuses a current without a branch.
+                Probe::Current(_) => u.map_or_else(String::new, |u| self.unknown_name(u)),
+            })
+            .collect())
     }
 
     /// Finds the DC operating point, starting from all zeros.
@@ -460,7 +471,8 @@ impl System {
         if values.iter().any(|v| !v.is_finite()) {
             return Err(EngineError::Invalid("sweep values must be finite".into()));
         }
-        let (idx, names) = self.probe_unknowns(probes)?;
+        let idx = self.probe_unknowns(probes)?;
+        let names = self.probe_names(probes)?;
         let original = self.elements[e].boxed_clone();
         let result = self.sweep_inner(e, values, &idx, params);
         self.elements[e] = original;

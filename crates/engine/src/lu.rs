@@ -1,11 +1,18 @@
-//! Sparse LU for the Newton matrix: faer for ordering and pivoting, plus a fixed-pivot
-//! refactorisation that reuses faer's last pivot order.
+//! Sparse LU for the Newton matrix: a fixed-pivot refactorisation along a fill-reducing
+//! order, with faer's partial pivoting where that order's pivots fail.
 //!
-//! The matrix pattern is fixed for a whole run. faer computes a COLAMD column order and its
-//! symbolic analysis once ([`SparseLu::new`]). A numeric factorisation with partial pivoting
-//! gives row and column permutations `P`, `Q` with `P A Q = L U`. For that pivot order we
-//! compute the fill pattern of `L` and `U` once, and each later Newton iteration refactors
-//! `P A Q` along that fixed pattern (left-looking, no search for pivots, no allocation).
+//! The matrix pattern is fixed for a whole run. [`SparseLu::new`] computes an approximate
+//! minimum degree (AMD) order of the pattern (faer's). The first factorisation tries the
+//! diagonal pivots in that order: rows and columns both in the AMD order (`P = Qᵀ`). Node
+//! equations of a circuit carry each node's own conductance and capacitance on the diagonal,
+//! which usually makes these pivots the largest of their columns (common practice in circuit
+//! solvers), so a large circuit's first factorisation needs no pivot search. Where a diagonal
+//! entry is zero (the branch row of a voltage source, say) or a pivot fails the checks below,
+//! faer factorises with partial pivoting (its COLAMD column order and symbolic analysis are
+//! computed at that first need), giving row and column permutations `P`, `Q` with
+//! `P A Q = L U`. For the order in use we compute the fill pattern of `L` and `U` once, and
+//! each later Newton iteration refactors `P A Q` along that fixed pattern (left-looking, no
+//! search for pivots, no allocation).
 //!
 //! Each fixed-order pivot is checked: `|u_jj| >= τ max_i |x_i|` over the column being
 //! eliminated (τ = [`PIVOT_THRESHOLD`]) and the column's growth `max |U_j| / max |A_j|` stays
@@ -20,6 +27,7 @@
 
 use faer::dyn_stack::{MemBuffer, MemStack, StackReq};
 use faer::linalg::lu::partial_pivoting::factor::PartialPivLuParams;
+use faer::sparse::linalg::amd;
 use faer::sparse::linalg::lu::{
     factorize_symbolic_lu, LuRef, LuSymbolicParams, NumericLu, SymbolicLu,
 };
@@ -266,19 +274,28 @@ impl FixedPivot {
 pub struct SparseLu {
     n: usize,
     pattern: SymbolicSparseColMat<usize>,
-    symbolic: SymbolicLu<usize>,
-    numeric: NumericLu<usize, f64>,
-    mem: MemBuffer,
+    /// The AMD order of the pattern: the diagonal pivots' order (module doc).
+    order: Vec<usize>,
+    /// faer's analysis, factors and workspace, made at the first factorisation that pivots.
+    faer: Option<Faer>,
     fixed: Option<FixedPivot>,
     strategy: LuStrategy,
     faer_current: bool,
+    /// The diagonal order was tried (module doc): once, at the first factorisation.
+    tried_diagonal: bool,
     stats: LuStats,
 }
 
-impl SparseLu {
-    /// Symbolic analysis of `pattern` (square, sorted rows per column).
-    pub fn new(pattern: SymbolicSparseColMat<usize>, strategy: LuStrategy) -> Result<Self, String> {
-        let n = pattern.nrows();
+/// faer's partial-pivoting factorisation of one pattern: its symbolic analysis (COLAMD column
+/// order), the numeric factors and the workspace of both.
+struct Faer {
+    symbolic: SymbolicLu<usize>,
+    numeric: NumericLu<usize, f64>,
+    mem: MemBuffer,
+}
+
+impl Faer {
+    fn new(pattern: &SymbolicSparseColMat<usize>) -> Result<Self, String> {
         let symbolic = factorize_symbolic_lu(pattern.as_ref(), LuSymbolicParams::default())
             .map_err(|e| format!("symbolic analysis failed: {e:?}"))?;
         let params: Spec<PartialPivLuParams, f64> = Default::default();
@@ -288,15 +305,44 @@ impl SparseLu {
         ]);
         let mem =
             MemBuffer::try_new(req).map_err(|_| "out of memory for LU workspace".to_string())?;
-        Ok(SparseLu {
-            n,
-            pattern,
+        Ok(Faer {
             symbolic,
             numeric: NumericLu::new(),
             mem,
+        })
+    }
+}
+
+impl SparseLu {
+    /// The AMD order of `pattern` (square, sorted rows per column); faer's analysis waits for
+    /// the first factorisation that pivots, except with [`LuStrategy::FaerOnly`].
+    pub fn new(pattern: SymbolicSparseColMat<usize>, strategy: LuStrategy) -> Result<Self, String> {
+        let n = pattern.nrows();
+        let mut order = vec![0usize; n];
+        let mut inverse = vec![0usize; n];
+        let mut mem = MemBuffer::try_new(amd::order_scratch::<usize>(n, pattern.row_idx().len()))
+            .map_err(|_| "out of memory for the AMD order".to_string())?;
+        amd::order(
+            &mut order,
+            &mut inverse,
+            pattern.as_ref(),
+            Default::default(),
+            MemStack::new(&mut mem),
+        )
+        .map_err(|e| format!("ordering failed: {e:?}"))?;
+        let faer = match strategy {
+            LuStrategy::FaerOnly => Some(Faer::new(&pattern)?),
+            LuStrategy::FixedPivot => None,
+        };
+        Ok(SparseLu {
+            n,
+            pattern,
+            order,
+            faer,
             fixed: None,
             strategy,
             faer_current: false,
+            tried_diagonal: false,
             stats: LuStats::default(),
         })
     }
@@ -317,9 +363,28 @@ impl SparseLu {
         self.fixed.as_ref().map_or(0, FixedPivot::factor_nnz)
     }
 
+    /// The fixed pattern of the diagonal pivots in the COLAMD column order (module doc), when
+    /// every diagonal entry of `values` is nonzero.
+    fn diagonal_order(&self, values: &[f64]) -> Option<FixedPivot> {
+        let (col_ptr, row_idx) = (self.pattern.col_ptr(), self.pattern.row_idx());
+        let nonzero = (0..self.n).all(|c| {
+            let rows = &row_idx[col_ptr[c]..col_ptr[c + 1]];
+            rows.binary_search(&c)
+                .is_ok_and(|k| values[col_ptr[c] + k] != 0.0)
+        });
+        if !nonzero {
+            return None;
+        }
+        Some(FixedPivot::build(&self.pattern, &self.order, &self.order))
+    }
+
     /// Factorises the matrix whose values (in pattern order) are `values`.
     pub fn factor(&mut self, values: &[f64]) -> Result<(), Singular> {
         if self.strategy == LuStrategy::FixedPivot {
+            if self.fixed.is_none() && !self.tried_diagonal {
+                self.tried_diagonal = true;
+                self.fixed = self.diagonal_order(values);
+            }
             if let Some(fixed) = self.fixed.as_mut() {
                 match fixed.refactor(values) {
                     Ok(()) => {
@@ -331,14 +396,22 @@ impl SparseLu {
                 }
             }
         }
+        if self.faer.is_none() {
+            // Fails only out of memory (the pattern's size passed the compile's checks); the
+            // first column is then named, as for a matrix that cannot be factorised.
+            self.faer = Some(Faer::new(&self.pattern).map_err(|_| Singular { unknown: 0 })?);
+        }
+        let Some(faer) = self.faer.as_mut() else {
+            return Err(Singular { unknown: 0 });
+        };
         let a = SparseColMatRef::new(self.pattern.as_ref(), values);
-        let lu = self
+        let lu = faer
             .symbolic
             .factorize_numeric_lu(
-                &mut self.numeric,
+                &mut faer.numeric,
                 a,
                 Par::Seq,
-                MemStack::new(&mut self.mem),
+                MemStack::new(&mut faer.mem),
                 Default::default(),
             )
             .map_err(|e| {
@@ -347,7 +420,7 @@ impl SparseLu {
                     faer::sparse::linalg::LuError::Generic(_) => 0,
                 };
                 Singular {
-                    unknown: self.symbolic.col_perm().arrays().0[index.min(self.n - 1)],
+                    unknown: faer.symbolic.col_perm().arrays().0[index.min(self.n - 1)],
                 }
             })?;
         self.stats.faer_factorizations += 1;
@@ -376,9 +449,12 @@ impl SparseLu {
     /// Solves `A x = rhs` in place with the last factorisation.
     pub fn solve(&mut self, rhs: &mut [f64]) -> Result<(), Singular> {
         if self.strategy == LuStrategy::FaerOnly || self.fixed.is_none() {
-            let lu = LuRef::new_unchecked(&self.symbolic, &self.numeric);
+            let Some(faer) = self.faer.as_mut().filter(|_| self.faer_current) else {
+                return Err(Singular { unknown: 0 });
+            };
+            let lu = LuRef::new_unchecked(&faer.symbolic, &faer.numeric);
             let m = MatMut::from_column_major_slice_mut(rhs, self.n, 1);
-            lu.solve_in_place_with_conj(Conj::No, m, Par::Seq, MemStack::new(&mut self.mem));
+            lu.solve_in_place_with_conj(Conj::No, m, Par::Seq, MemStack::new(&mut faer.mem));
             if let Some(bad) = rhs.iter().position(|v| !v.is_finite()) {
                 return Err(Singular { unknown: bad });
             }

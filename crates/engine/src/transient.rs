@@ -278,9 +278,7 @@ pub struct TransientStats {
 pub struct TransientResult {
     /// Sample times.
     pub time: Vec<f64>,
-    /// Signal names, in probe order.
-    pub names: Vec<String>,
-    /// One vector per probe, one entry per sample time.
+    /// One vector per probe (named by [`System::probe_names`]), one entry per sample time.
     pub signals: Vec<Vec<f64>>,
     /// Run counters.
     pub stats: TransientStats,
@@ -416,7 +414,7 @@ impl System {
                 )));
             }
         }
-        let (idx, names) = self.probe_unknowns(probes)?;
+        let idx = self.probe_unknowns(probes)?;
         let n = self.n;
         self.reset_bypass();
 
@@ -1018,7 +1016,6 @@ impl System {
         let (time, signals) = out.finish();
         Ok(TransientResult {
             time,
-            names,
             signals,
             stats,
             start: start_info,
