@@ -742,6 +742,42 @@ mod tests {
         assert!(lu.solve(&mut x).is_err());
     }
 
+    /// The first factorisation takes the diagonal when its pivots pass (no pivot search), and
+    /// hands a poor or zero diagonal to faer; each solve is checked against the product.
+    #[test]
+    fn the_first_factorisation_takes_a_good_diagonal_and_pivots_a_poor_one() {
+        let (pat, slots) = pattern(3, &[(0, 0), (0, 1), (1, 0), (1, 1), (1, 2), (2, 1), (2, 2)]);
+        let solve = |a: [f64; 7]| {
+            let mut values = vec![0.0; 7];
+            for (s, v) in slots.iter().zip(a) {
+                values[*s] = v;
+            }
+            let mut lu = SparseLu::new(pat.clone(), LuStrategy::FixedPivot).unwrap();
+            lu.factor(&values).unwrap();
+            let b = [1.0, -2.0, 0.5];
+            let mut x = b;
+            lu.solve(&mut x).unwrap();
+            let ax = [
+                a[0] * x[0] + a[1] * x[1],
+                a[2] * x[0] + a[3] * x[1] + a[4] * x[2],
+                a[5] * x[1] + a[6] * x[2],
+            ];
+            for i in 0..3 {
+                assert!((ax[i] - b[i]).abs() < 1e-12, "{a:?} row {i}");
+            }
+            lu.stats()
+        };
+        // Diagonally dominant: the diagonal order, no faer factorisation.
+        let good = solve([4.0, -1.0, -1.0, 5.0, -2.0, -1.0, 3.0]);
+        assert_eq!((good.faer_factorizations, good.fixed_refactorizations), (0, 1));
+        // A tiny diagonal entry below its column's off-diagonal: faer pivots.
+        let poor = solve([1e-9, 2.0, 1.0, 1e-9, 3.0, 1.0, 1e-9]);
+        assert_eq!((poor.faer_factorizations, poor.fallbacks), (1, 1));
+        // A zero diagonal entry: straight to faer.
+        let zero = solve([0.0, 2.0, 1.0, 1.0, 3.0, 1.0, 2.0]);
+        assert_eq!((zero.faer_factorizations, zero.fallbacks), (1, 0));
+    }
+
     #[test]
     fn a_poor_fixed_pivot_falls_back_to_faer() {
         let (pat, slots) = pattern(2, &[(0, 0), (0, 1), (1, 0), (1, 1)]);
