@@ -61,19 +61,19 @@ fn add_inverter(
     input: NodeId,
     output: NodeId,
     vdd: NodeId,
+    buf: &mut String,
 ) -> Result<(), CircuitError> {
     let (n, p) = fets(s);
-    // One name buffer for the three elements: a 30001-stage ring builds 90,000 names.
-    let mut buf = String::with_capacity(name.len() + 10);
+    // `buf` takes the three element names in turn: a 30001-stage ring builds 90,000 names.
     c.add(
-        joined(&mut buf, name, "pull_down"),
+        joined(buf, name, "pull_down"),
         n,
         &[output, input, Circuit::GROUND],
     )?;
-    c.add(joined(&mut buf, name, "pull_up"), p, &[output, input, vdd])?;
+    c.add(joined(buf, name, "pull_up"), p, &[output, input, vdd])?;
     if s.load != 0.0 {
         c.add(
-            joined(&mut buf, name, "load"),
+            joined(buf, name, "load"),
             Capacitor::new(s.load),
             &[output, Circuit::GROUND],
         )?;
@@ -140,6 +140,7 @@ pub fn square_ring(stages: usize, stage: &SquareStage) -> Result<(Circuit, Ring)
     let outputs: Vec<NodeId> = (0..stages)
         .map(|i| c.node(indexed(&mut buf, "out", i)))
         .collect();
+    let mut part = String::new();
     for i in 0..stages {
         let input = outputs[(i + stages - 1) % stages];
         add_inverter(
@@ -149,6 +150,7 @@ pub fn square_ring(stages: usize, stage: &SquareStage) -> Result<(Circuit, Ring)
             input,
             outputs[i],
             vdd,
+            &mut part,
         )?;
     }
     Ok((
@@ -183,7 +185,7 @@ pub fn square_inverter(stage: &SquareStage) -> Result<Inverter, CircuitError> {
         &[vdd, Circuit::GROUND],
     )?;
     let input = c.add("drive", VoltageSource::dc(0.0), &[inp, Circuit::GROUND])?;
-    add_inverter(&mut c, stage, "inverter", inp, out, vdd)?;
+    add_inverter(&mut c, stage, "inverter", inp, out, vdd, &mut String::new())?;
     Ok(Inverter {
         circuit: c,
         input,

@@ -78,8 +78,9 @@ pub(crate) struct Names {
     text: String,
     /// Where each name ends in `text`.
     ends: Vec<usize>,
-    /// Each name's index with its hash (kept, so that growing the table hashes nothing).
-    index: HashTable<(usize, u64)>,
+    /// Each name's index: four bytes a name, so that a million names' table stays in cache
+    /// (growing it hashes the names again; [`Circuit::reserve`] sizes it once).
+    index: HashTable<u32>,
 }
 
 impl Names {
@@ -89,8 +90,7 @@ impl Names {
 
     /// The `i`-th name.
     pub(crate) fn get(&self, i: usize) -> &str {
-        let start = if i == 0 { 0 } else { self.ends[i - 1] };
-        &self.text[start..self.ends[i]]
+        name_at(&self.text, &self.ends, i)
     }
 
     /// How many names there are.
@@ -105,8 +105,8 @@ impl Names {
 
     fn find_hashed(&self, name: &str, hash: u64) -> Option<usize> {
         self.index
-            .find(hash, |&(i, _)| self.get(i) == name)
-            .map(|&(i, _)| i)
+            .find(hash, |&i| self.get(i as usize) == name)
+            .map(|&i| i as usize)
     }
 
     /// Adds `name` and returns its index, or the index it already has as the error.
@@ -118,7 +118,11 @@ impl Names {
         let i = self.ends.len();
         self.text.push_str(name);
         self.ends.push(self.text.len());
-        self.index.insert_unique(hash, (i, hash), |&(_, h)| h);
+        // Names past u32::MAX go unindexed: a circuit that large is refused when compiled.
+        if let Ok(k) = u32::try_from(i) {
+            let Names { text, ends, index } = self;
+            index.insert_unique(hash, k, |&k| Self::hash(name_at(text, ends, k as usize)));
+        }
         Ok(i)
     }
 
@@ -126,8 +130,15 @@ impl Names {
     fn reserve(&mut self, more: usize, bytes: usize) {
         self.text.reserve(more.saturating_mul(bytes));
         self.ends.reserve(more);
-        self.index.reserve(more, |&(_, h)| h);
+        let Names { text, ends, index } = self;
+        index.reserve(more, |&k| Self::hash(name_at(text, ends, k as usize)));
     }
+}
+
+/// The `i`-th of the names ending at `ends` in `text`.
+fn name_at<'a>(text: &'a str, ends: &[usize], i: usize) -> &'a str {
+    let start = if i == 0 { 0 } else { ends[i - 1] };
+    &text[start..ends[i]]
 }
 
 /// A flat circuit: nodes by name and elements with their pins.

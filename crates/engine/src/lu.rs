@@ -769,7 +769,10 @@ mod tests {
         };
         // Diagonally dominant: the diagonal order, no faer factorisation.
         let good = solve([4.0, -1.0, -1.0, 5.0, -2.0, -1.0, 3.0]);
-        assert_eq!((good.faer_factorizations, good.fixed_refactorizations), (0, 1));
+        assert_eq!(
+            (good.faer_factorizations, good.fixed_refactorizations),
+            (0, 1)
+        );
         // A tiny diagonal entry below its column's off-diagonal: faer pivots.
         let poor = solve([1e-9, 2.0, 1.0, 1e-9, 3.0, 1.0, 1e-9]);
         assert_eq!((poor.faer_factorizations, poor.fallbacks), (1, 1));

@@ -865,7 +865,13 @@ impl System {
         for c in 0..n {
             col_ptr[c + 1] += col_ptr[c];
         }
-        let mut row_idx = vec![0usize; col_ptr[n]];
+        let nnz = col_ptr[n];
+        if n >= NONE32 as usize || nnz >= NONE32 as usize || slot_count >= NONE32 as usize {
+            return Err(EngineError::Invalid(format!(
+                "the circuit is too large: {n} unknowns and {nnz} matrix entries"
+            )));
+        }
+        let mut row_idx = vec![0usize; nnz];
         let mut fill = col_ptr.clone();
         last.fill(NONE);
         for r in 0..n {
@@ -880,7 +886,7 @@ impl System {
         drop(fill);
         // Each element's slots, local row by local column: column `c`'s rows are marked with
         // their slots, then read by every element on `c`.
-        let mut slots = vec![NONE; slot_count];
+        let mut slots32 = vec![NONE32; slot_count];
         let mut diag_slot = vec![0usize; n];
         let mut at = last;
         for c in 0..n {
@@ -894,7 +900,7 @@ impl System {
                 let nl = local.len();
                 for (j, &r) in local.iter().enumerate() {
                     if r != NONE {
-                        slots[slot_start[e] + j * nl + k as usize] = at[r];
+                        slots32[slot_start[e] + j * nl + k as usize] = at[r] as u32;
                     }
                 }
             }
@@ -913,15 +919,8 @@ impl System {
             row_slots[next[r]] = s;
             next[r] += 1;
         }
-        let nnz = row_idx.len();
-        if n >= NONE32 as usize || nnz >= NONE32 as usize || slots.len() >= NONE32 as usize {
-            return Err(EngineError::Invalid(format!(
-                "the circuit is too large: {n} unknowns and {nnz} matrix entries"
-            )));
-        }
         let narrow = |v: &usize| if *v == NONE { NONE32 } else { *v as u32 };
         let map32: Vec<u32> = loc_map.iter().map(narrow).collect();
-        let slots32: Vec<u32> = slots.iter().map(narrow).collect();
         let plan: Vec<Plan> = (0..elements.len())
             .map(|e| Plan {
                 map: loc_start[e] as u32,
