@@ -253,6 +253,10 @@ pub(crate) struct Latency {
     /// Stored currents and charges of frozen elements at their `Plan::map` offsets.
     st_f: Vec<f64>,
     st_q: Vec<f64>,
+    /// `st_f` and `st_q` hold every element's evaluation at the state and time of the next
+    /// refresh (the holds at the start store them from their assembly), so freezing an
+    /// element there evaluates nothing; cleared by that refresh.
+    st_all: bool,
     /// Per local unknown of an element (at its `Plan::map` offset): its entry's position in
     /// its row's list.
     adj_at: Vec<u32>,
@@ -467,6 +471,7 @@ impl System {
             pins: (0..ne).map(|e| self.pin_count(e)).collect(),
             st_f: vec![0.0; locs],
             st_q: vec![0.0; locs],
+            st_all: false,
             adj_at,
             fz_f: vec![0.0; n],
             fz_q: vec![0.0; n],
@@ -690,7 +695,14 @@ impl System {
             source_scale: 1.0,
             analysis: Analysis::Transient,
         };
-        self.assemble(x, &ctx, a0);
+        let Some(mut l) = self.latency.take() else {
+            return;
+        };
+        // Every element's evaluation is kept: the refresh below, at the same state and time,
+        // freezes from it instead of evaluating each element again.
+        self.assemble_keeping(x, &ctx, a0, (&mut l.st_f, &mut l.st_q));
+        l.st_all = true;
+        self.latency = Some(l);
         self.latency_keep_scale();
         let Some(mut l) = self.latency.take() else {
             return;
@@ -1032,6 +1044,7 @@ impl System {
         let entered = self.build_work(&mut l, x, t);
         let given = give_back(&mut l, t);
         l.changed.clear();
+        l.st_all = false;
         #[cfg(test)]
         self.check_partition(&l);
         self.latency = Some(l);
@@ -1110,7 +1123,7 @@ impl System {
                         l.live_count[g] += 1;
                     }
                 }
-                if want {
+                if want && !l.st_all {
                     self.evaluate_into(e, x, ctx, &mut l.st_f, &mut l.st_q);
                 }
                 let plan = &self.layout.plan[e];

@@ -1115,13 +1115,27 @@ impl System {
     /// Evaluates every element at `x` and accumulates `f`, `q`, the row scales and the
     /// matrix values `∂f/∂x + a0 ∂q/∂x`. Allocates nothing.
     pub(crate) fn assemble(&mut self, x: &[f64], ctx: &EvalContext, a0: f64) {
-        self.assemble_with(x, ctx, a0, None, false);
+        self.assemble_with(x, ctx, a0, None, false, None);
+    }
+
+    /// [`System::assemble`], also writing every element's local currents and charges into
+    /// `keep` at its `Plan::map` offset: what [`System::evaluate_into`] would store for each
+    /// element at the same `x` and `ctx`, bit for bit (the same evaluation).
+    pub(crate) fn assemble_keeping(
+        &mut self,
+        x: &[f64],
+        ctx: &EvalContext,
+        a0: f64,
+        keep: (&mut [f64], &mut [f64]),
+    ) {
+        self.assemble_with(x, ctx, a0, None, false, Some(keep));
     }
 
     /// [`System::assemble`], bypassing elements under `rule` when given. With `live` (a
     /// running transient's latency partition, see the `latency` module) the rows start from
     /// their frozen elements' sums and only the live elements are evaluated; the matrix then
-    /// holds valid values in the live elements' slots only.
+    /// holds valid values in the live elements' slots only. With `keep`, see
+    /// [`System::assemble_keeping`].
     fn assemble_with(
         &mut self,
         x: &[f64],
@@ -1129,6 +1143,7 @@ impl System {
         a0: f64,
         rule: Option<BypassRule>,
         live: bool,
+        mut keep: Option<(&mut [f64], &mut [f64])>,
     ) {
         if rule.is_some() {
             self.bypass.prepare(&self.layout, ctx.analysis);
@@ -1239,6 +1254,11 @@ impl System {
             }
             if plan.bypass && rule.is_none() {
                 evaluations.evaluated += 1;
+            }
+            if let Some((kf, kq)) = keep.as_mut() {
+                let at = plan.map as usize;
+                kf[at..at + nl].copy_from_slice(fb);
+                kq[at..at + nl].copy_from_slice(qb);
             }
             out.scatter(map, slots, charge, a0, fb, qb, dfb, dqb);
         }
@@ -1434,7 +1454,7 @@ impl System {
         let watch = self.latency_watching() && load.a0 != 0.0 && load.hist.is_some();
         for it in 1..=params.max_iterations {
             let (ratio, worst_row) = loop {
-                self.assemble_with(x, &load.ctx, load.a0, rule, latent);
+                self.assemble_with(x, &load.ctx, load.a0, rule, latent, None);
                 if watch {
                     self.latency_keep_scale();
                 }
