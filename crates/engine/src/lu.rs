@@ -661,6 +661,25 @@ mod tests {
         )
     }
 
+    /// Factorises `values`, solves `A x = b` and returns `A x` from the `entries` and `vals`
+    /// the values were summed from.
+    fn factor_solve_multiply(
+        lu: &mut SparseLu,
+        values: &[f64],
+        entries: &[(usize, usize)],
+        vals: &[f64],
+        b: &[f64],
+    ) -> Vec<f64> {
+        lu.factor(values).unwrap();
+        let mut x = b.to_vec();
+        lu.solve(&mut x).unwrap();
+        let mut ax = vec![0.0; b.len()];
+        for (&(r, c), v) in entries.iter().zip(vals) {
+            ax[r] += v * x[c];
+        }
+        ax
+    }
+
     /// A ring-like matrix with a zero-diagonal constraint row, solved by both paths and
     /// compared with a dense product.
     #[test]
@@ -688,13 +707,7 @@ mod tests {
         for strategy in [LuStrategy::FixedPivot, LuStrategy::FaerOnly] {
             let mut lu = SparseLu::new(pat.clone(), strategy).unwrap();
             for round in 0..3 {
-                lu.factor(&values).unwrap();
-                let mut x = b.clone();
-                lu.solve(&mut x).unwrap();
-                let mut ax = vec![0.0; n];
-                for (&(r, c), v) in entries.iter().zip(&vals) {
-                    ax[r] += v * x[c];
-                }
+                let ax = factor_solve_multiply(&mut lu, &values, &entries, &vals, &b);
                 for i in 0..n {
                     assert!(
                         (ax[i] - b[i]).abs() < 1e-12,
@@ -836,13 +849,7 @@ mod tests {
             }
             let b: Vec<f64> = (0..n).map(|i| 1e-6 * (1.0 + (i as f64).sin())).collect();
             let mut lu = SparseLu::new(pat, LuStrategy::FixedPivot).unwrap();
-            lu.factor(&values).unwrap();
-            let mut x = b.clone();
-            lu.solve(&mut x).unwrap();
-            let mut ax = vec![0.0; n];
-            for (&(r, c), v) in entries.iter().zip(&vals) {
-                ax[r] += v * x[c];
-            }
+            let ax = factor_solve_multiply(&mut lu, &values, &entries, &vals, &b);
             let norm = |v: &[f64]| v.iter().map(|a| a * a).sum::<f64>().sqrt();
             let diff: Vec<f64> = ax.iter().zip(&b).map(|(a, b)| a - b).collect();
             let residual = norm(&diff) / norm(&b);
