@@ -138,10 +138,15 @@ impl FixedPivot {
         }
         // Symbolic left-looking elimination without pivoting: the pattern of column j of the
         // factors is the closure of B's column j under the columns of L already known.
-        let mut u_ptr = vec![0];
-        let mut u_row = Vec::new();
-        let mut l_ptr = vec![0];
-        let mut l_row: Vec<usize> = Vec::new();
+        // The factors hold at least the pattern's entries off the diagonal (sized for them:
+        // a large circuit's lists then grow rarely, if at all).
+        let off = row_idx.len().saturating_sub(n);
+        let mut u_ptr = Vec::with_capacity(n + 1);
+        u_ptr.push(0);
+        let mut u_row = Vec::with_capacity(off);
+        let mut l_ptr = Vec::with_capacity(n + 1);
+        l_ptr.push(0);
+        let mut l_row: Vec<usize> = Vec::with_capacity(off);
         let mut mark = vec![usize::MAX; n];
         let mut heap = std::collections::BinaryHeap::new();
         let mut lower = Vec::new();

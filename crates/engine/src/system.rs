@@ -500,10 +500,14 @@ impl Reduction {
             pin_index[p.node] = k;
         }
         let pin_of = |c: usize| Some(pin_index[c]).filter(|&k| k != NONE);
-        let mut red_ptr = vec![0usize];
-        let mut red_rows = Vec::new();
-        let mut gather = Vec::new();
-        let mut coupling = Vec::new();
+        // Sized for the whole pattern (a bound; the untouched rest costs no memory): no
+        // regrowth copies on a large circuit.
+        let nnz = row_idx.len();
+        let mut red_ptr = Vec::with_capacity(n + 1);
+        red_ptr.push(0usize);
+        let mut red_rows = Vec::with_capacity(nnz);
+        let mut gather = Vec::with_capacity(nnz);
+        let mut coupling = Vec::with_capacity(pinned.iter().map(|p| p.row.len()).sum());
         for c in 0..n {
             for s in col_ptr[c]..col_ptr[c + 1] {
                 let r = kept[row_idx[s]];
