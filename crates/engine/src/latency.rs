@@ -253,9 +253,9 @@ pub(crate) struct Latency {
     /// Stored currents and charges of frozen elements at their `Plan::map` offsets.
     st_f: Vec<f64>,
     st_q: Vec<f64>,
-    /// `st_f` and `st_q` hold every element's evaluation at the state and time of the next
-    /// refresh (the holds at the start store them from their assembly), so freezing an
-    /// element there evaluates nothing; cleared by that refresh.
+    /// `st_f` and `st_q` hold every element's evaluation at the start state and time: set by
+    /// the holds at the start from their assembly for the refresh they run at once (freezing
+    /// an element there evaluates nothing), and cleared by them after it.
     st_all: bool,
     /// Per local unknown of an element (at its `Plan::map` offset): its entry's position in
     /// its row's list.
@@ -719,6 +719,11 @@ impl System {
         if changed {
             self.latency_refresh(x, 0.0);
         }
+        // The kept evaluations are of this state and time only: later freezes evaluate
+        // (also when nothing was held here and no refresh ran).
+        if let Some(l) = self.latency.as_mut() {
+            l.st_all = false;
+        }
     }
 
     /// The holds after an accepted step at `t` (or at the start): resumes holding from the
@@ -1044,7 +1049,6 @@ impl System {
         let entered = self.build_work(&mut l, x, t);
         let given = give_back(&mut l, t);
         l.changed.clear();
-        l.st_all = false;
         #[cfg(test)]
         self.check_partition(&l);
         self.latency = Some(l);
@@ -1645,6 +1649,33 @@ fn wake(l: &mut Latency, u: usize, layout: &Layout) {
 #[cfg(test)]
 mod tests {
     use super::{push_unique, sort_marked, sort_unique};
+    use crate::elements::{Capacitor, CurrentSource, Waveform};
+    use crate::{Circuit, System, Tolerances};
+
+    /// The evaluations kept by the holds at the start serve their own refresh only: when no
+    /// row passes the hold test there (a node at rest on a large capacitor whose current does
+    /// not vanish), no refresh runs, and the flag must still be cleared, or later freezes
+    /// would store the start's currents for elements that have moved since.
+    #[test]
+    fn the_start_s_kept_evaluations_serve_no_later_freeze() {
+        let mut c = Circuit::new();
+        let a = c.node("a");
+        c.add("big", Capacitor::new(1.0), &[a, Circuit::GROUND])
+            .unwrap();
+        c.add(
+            "feed",
+            CurrentSource::new(Waveform::Constant(1e-6)),
+            &[Circuit::GROUND, a],
+        )
+        .unwrap();
+        let mut s = System::new(c).unwrap();
+        let tol = Tolerances::default();
+        s.latency_begin(tol, false, 1e-9, 0.0, &[0]);
+        s.latency_hold_at_rest(&[0.0], 1e12, &tol, &|_| 1e-20);
+        let l = s.latency.as_ref().unwrap();
+        assert!(!l.held[0], "the node's current fails the hold test");
+        assert!(!l.st_all);
+    }
 
     #[test]
     fn sort_unique_and_sort_marked_give_the_sorted_distinct_indices_by_either_path() {
