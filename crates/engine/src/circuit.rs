@@ -79,7 +79,9 @@ pub(crate) struct Names {
     /// Where each name ends in `text`.
     ends: Vec<usize>,
     /// Each name's index: four bytes a name, so that a million names' table stays in cache
-    /// (growing it hashes the names again; [`Circuit::reserve`] sizes it once).
+    /// (growing it hashes the names again; [`Circuit::reserve`] sizes it once). Names past
+    /// `u32::MAX` are kept but not indexed: they are not found and their repeats not caught,
+    /// and the compile refuses such a circuit as too large.
     index: HashTable<u32>,
 }
 

@@ -698,8 +698,9 @@ impl System {
         let Some(mut l) = self.latency.take() else {
             return;
         };
-        // Every element's evaluation is kept: the refresh below, at the same state and time,
-        // freezes from it instead of evaluating each element again.
+
+        // Every element's evaluation is kept: the refresh below, if any row is held, runs at
+        // the same state and time and freezes from it instead of evaluating each again.
         self.assemble_keeping(x, &ctx, a0, (&mut l.st_f, &mut l.st_q));
         l.st_all = true;
         self.latency = Some(l);
