@@ -381,6 +381,14 @@ impl Latency {
         &self.active
     }
 
+    /// Keeps the working rows' current scales from `scale` (the last assembly's, before the
+    /// residual adds the charge terms to them).
+    fn keep_scale(&mut self, scale: &[f64]) {
+        for &r in &self.work {
+            self.fscale[r] = scale[r];
+        }
+    }
+
     /// Whether any unknown is held.
     pub(crate) fn any_held(&self) -> bool {
         self.held.iter().any(|&h| h)
@@ -601,9 +609,7 @@ impl System {
     /// the charge terms to them).
     pub(crate) fn latency_keep_scale(&mut self) {
         if let Some(l) = self.latency.as_mut() {
-            for &r in &l.work {
-                l.fscale[r] = self.scale[r];
-            }
+            l.keep_scale(&self.scale);
         }
     }
 
@@ -698,16 +704,11 @@ impl System {
         let Some(mut l) = self.latency.take() else {
             return;
         };
-
         // Every element's evaluation is kept: the refresh below, if any row is held, runs at
         // the same state and time and freezes from it instead of evaluating each again.
         self.assemble_keeping(x, &ctx, a0, (&mut l.st_f, &mut l.st_q));
         l.st_all = true;
-        self.latency = Some(l);
-        self.latency_keep_scale();
-        let Some(mut l) = self.latency.take() else {
-            return;
-        };
+        l.keep_scale(&self.scale);
         for w in 0..l.work.len() {
             let u = l.work[w];
             let r = l.eq_row[u];

@@ -306,7 +306,8 @@ impl FixedPivot {
 pub struct SparseLu {
     n: usize,
     pattern: SymbolicSparseColMat<usize>,
-    /// The AMD order of the pattern: the diagonal pivots' order (module doc).
+    /// The AMD order of the pattern: the diagonal pivots' order (module doc; empty with
+    /// [`LuStrategy::FaerOnly`], which never takes it).
     order: Vec<usize>,
     /// faer's analysis, factors and workspace, made at the first factorisation that pivots.
     faer: Option<Faer>,
@@ -345,26 +346,33 @@ impl Faer {
     }
 }
 
+/// The AMD order of `pattern` (faer's: of the pattern of `A + Aᵀ`).
+fn amd_order(pattern: &SymbolicSparseColMat<usize>) -> Result<Vec<usize>, String> {
+    let n = pattern.nrows();
+    let mut order = vec![0usize; n];
+    let mut inverse = vec![0usize; n];
+    let mut mem = MemBuffer::try_new(amd::order_scratch::<usize>(n, pattern.row_idx().len()))
+        .map_err(|_| "out of memory for the AMD order".to_string())?;
+    amd::order(
+        &mut order,
+        &mut inverse,
+        pattern.as_ref(),
+        Default::default(),
+        MemStack::new(&mut mem),
+    )
+    .map_err(|e| format!("ordering failed: {e:?}"))?;
+    Ok(order)
+}
+
 impl SparseLu {
     /// The AMD order of `pattern` (square, sorted rows per column); faer's analysis waits for
-    /// the first factorisation that pivots, except with [`LuStrategy::FaerOnly`].
+    /// the first factorisation that pivots. [`LuStrategy::FaerOnly`] takes faer's analysis
+    /// at once and no AMD order.
     pub fn new(pattern: SymbolicSparseColMat<usize>, strategy: LuStrategy) -> Result<Self, String> {
         let n = pattern.nrows();
-        let mut order = vec![0usize; n];
-        let mut inverse = vec![0usize; n];
-        let mut mem = MemBuffer::try_new(amd::order_scratch::<usize>(n, pattern.row_idx().len()))
-            .map_err(|_| "out of memory for the AMD order".to_string())?;
-        amd::order(
-            &mut order,
-            &mut inverse,
-            pattern.as_ref(),
-            Default::default(),
-            MemStack::new(&mut mem),
-        )
-        .map_err(|e| format!("ordering failed: {e:?}"))?;
-        let faer = match strategy {
-            LuStrategy::FaerOnly => Some(Faer::new(&pattern)?),
-            LuStrategy::FixedPivot => None,
+        let (order, faer) = match strategy {
+            LuStrategy::FaerOnly => (Vec::new(), Some(Faer::new(&pattern)?)),
+            LuStrategy::FixedPivot => (amd_order(&pattern)?, None),
         };
         Ok(SparseLu {
             n,
