@@ -133,7 +133,7 @@
 
 use crate::element::{Analysis, EvalContext, UnknownKind};
 use crate::lu::{DenseLu, LuStrategy, Singular, SparseLu};
-use crate::system::{Layout, System, Tolerances, NONE};
+use crate::system::{Layout, LocalScratch, System, Tolerances, NONE};
 use faer::sparse::SymbolicSparseColMat;
 use std::cmp::Reverse;
 use std::collections::BinaryHeap;
@@ -257,6 +257,8 @@ pub(crate) struct Latency {
     /// the holds at the start from their assembly for the refresh they run at once (freezing
     /// an element there evaluates nothing), and cleared by them after it.
     st_all: bool,
+    /// Buffers of a freeze's evaluation of a large element (sized at the start).
+    scratch: LocalScratch,
     /// Per local unknown of an element (at its `Plan::map` offset): its entry's position in
     /// its row's list.
     adj_at: Vec<u32>,
@@ -480,6 +482,7 @@ impl System {
             st_f: vec![0.0; locs],
             st_q: vec![0.0; locs],
             st_all: false,
+            scratch: LocalScratch::new(self.max_local()),
             adj_at,
             fz_f: vec![0.0; n],
             fz_q: vec![0.0; n],
@@ -1130,7 +1133,8 @@ impl System {
                     }
                 }
                 if want && !l.st_all {
-                    self.evaluate_into(e, x, ctx, &mut l.st_f, &mut l.st_q);
+                    let stores = (&mut l.st_f[..], &mut l.st_q[..]);
+                    self.evaluate_into(e, x, ctx, stores, &mut l.scratch);
                 }
                 let plan = &self.layout.plan[e];
                 for (k, &g) in local.iter().enumerate() {

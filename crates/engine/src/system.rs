@@ -713,6 +713,35 @@ fn element_adjacency(
     (ptr, adj)
 }
 
+/// Buffers for evaluating one element of more than `SMALL` local unknowns alone (its local
+/// unknowns and its local `∂f/∂x` and `∂q/∂x`), kept by the caller so that a hot loop of such
+/// evaluations allocates nothing once they are grown.
+#[derive(Default)]
+pub(crate) struct LocalScratch {
+    x: Vec<f64>,
+    df: Vec<f64>,
+    dq: Vec<f64>,
+}
+
+impl LocalScratch {
+    /// Buffers for elements of up to `local` local unknowns.
+    pub(crate) fn new(local: usize) -> Self {
+        LocalScratch {
+            x: vec![0.0; local],
+            df: vec![0.0; local * local],
+            dq: vec![0.0; local * local],
+        }
+    }
+}
+
+/// Zeroes `buf`'s first `len` entries, growing it to `len` if it is shorter.
+fn scratch_for(buf: &mut Vec<f64>, len: usize) {
+    if buf.len() < len {
+        buf.resize(len, 0.0);
+    }
+    buf[..len].fill(0.0);
+}
+
 /// A circuit compiled for analysis: fixed pattern, buffers and the LU solver.
 ///
 /// Build it once with [`System::new`] and run any number of analyses on it.
@@ -1269,22 +1298,26 @@ impl System {
     }
 
     /// Evaluates element `e` alone at `x` and writes its local currents and charges into
-    /// `f` and `q` at its `Plan::map` offset.
+    /// `f` and `q` at its `Plan::map` offset (`scratch` for an element of more than `SMALL`
+    /// local unknowns).
     pub(crate) fn evaluate_into(
         &self,
         e: usize,
         x: &[f64],
         ctx: &EvalContext,
-        f: &mut [f64],
-        q: &mut [f64],
+        (f, q): (&mut [f64], &mut [f64]),
+        scratch: &mut LocalScratch,
     ) {
         let plan = &self.layout.plan[e];
         let (lo, nl) = (plan.map as usize, plan.local as usize);
-        self.evaluate_local(e, x, ctx, &mut f[lo..lo + nl], &mut q[lo..lo + nl], |_| {});
+        let (fs, qs) = (&mut f[lo..lo + nl], &mut q[lo..lo + nl]);
+        self.evaluate_local(e, x, ctx, fs, qs, scratch, |_| {});
     }
 
     /// Evaluates element `e` alone at `x` into its local currents `fs` and charges `qs`, and
-    /// hands its local `∂f/∂x` (row by row) to `with_df`.
+    /// hands its local `∂f/∂x` (row by row) to `with_df`. An element of more than `SMALL`
+    /// local unknowns works in `scratch` (grown to it if need be).
+    #[allow(clippy::too_many_arguments)]
     fn evaluate_local(
         &self,
         e: usize,
@@ -1292,6 +1325,7 @@ impl System {
         ctx: &EvalContext,
         fs: &mut [f64],
         qs: &mut [f64],
+        scratch: &mut LocalScratch,
         with_df: impl FnOnce(&[f64]),
     ) {
         let plan = &self.layout.plan[e];
@@ -1310,12 +1344,20 @@ impl System {
             self.elements[e].evaluate(&xs[..nl], ctx, stamp);
             with_df(&df[..nl * nl]);
         } else {
-            let mut xs = vec![0.0; nl];
-            gather(map, x, &mut xs);
-            let (mut df, mut dq) = (vec![0.0; nl * nl], vec![0.0; nl * nl]);
-            self.elements[e].evaluate(&xs, ctx, &mut Stamp::new(fs, qs, &mut df, &mut dq));
-            with_df(&df);
+            let LocalScratch { x: xs, df, dq } = scratch;
+            scratch_for(xs, nl);
+            scratch_for(df, nl * nl);
+            scratch_for(dq, nl * nl);
+            let (xs, df, dq) = (&mut xs[..nl], &mut df[..nl * nl], &mut dq[..nl * nl]);
+            gather(map, x, xs);
+            self.elements[e].evaluate(xs, ctx, &mut Stamp::new(fs, qs, df, dq));
+            with_df(df);
         }
+    }
+
+    /// The most local unknowns of any element.
+    pub(crate) fn max_local(&self) -> usize {
+        self.xl.len()
     }
 
     /// The nodes held by ideal grounded sources and those sources' currents (see "Pinned
@@ -1337,7 +1379,9 @@ impl System {
         for p in &reduction.pinned {
             // A pinned source has two pins and its current: local rows 0 to 2, the branch 2.
             let (mut f, mut q, mut slope) = ([0.0; 3], [0.0; 3], 0.0);
-            self.evaluate_local(p.element, x, ctx, &mut f, &mut q, |df| {
+            // Three local unknowns: on the stack, the scratch stays empty.
+            let scratch = &mut LocalScratch::default();
+            self.evaluate_local(p.element, x, ctx, &mut f, &mut q, scratch, |df| {
                 slope = df[2 * 3 + p.node_local]
             });
             let step = -f[2] / slope;
