@@ -142,7 +142,12 @@ impl System {
     /// belong to this system.
     pub fn probe_names(&self, probes: &[Probe]) -> Result<Vec<String>, EngineError> {
         let idx = self.probe_unknowns(probes)?;
-        Ok(probes
+        Ok(self.names_of(probes, &idx))
+    }
+
+    /// The names of `probes`, whose unknowns `probe_unknowns` gave as `idx`.
+    fn names_of(&self, probes: &[Probe], idx: &[Option<usize>]) -> Vec<String> {
+        probes
             .iter()
             .zip(idx)
             .map(|(p, u)| match p {
@@ -150,7 +155,7 @@ impl System {
                 // Always an unknown: `probe_unknowns` refuses a current without a branch.
                 Probe::Current(_) => u.map_or_else(String::new, |u| self.unknown_name(u)),
             })
-            .collect())
+            .collect()
     }
 
     /// Finds the DC operating point, starting from all zeros.
@@ -472,7 +477,7 @@ impl System {
             return Err(EngineError::Invalid("sweep values must be finite".into()));
         }
         let idx = self.probe_unknowns(probes)?;
-        let names = self.probe_names(probes)?;
+        let names = self.names_of(probes, &idx);
         let original = self.elements[e].boxed_clone();
         let result = self.sweep_inner(e, values, &idx, params);
         self.elements[e] = original;

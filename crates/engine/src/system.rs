@@ -1376,11 +1376,11 @@ impl System {
         let Some(reduction) = self.reduction.as_ref() else {
             return;
         };
+        // Three local unknowns each: on the stack, the scratch stays empty.
+        let scratch = &mut LocalScratch::default();
         for p in &reduction.pinned {
             // A pinned source has two pins and its current: local rows 0 to 2, the branch 2.
             let (mut f, mut q, mut slope) = ([0.0; 3], [0.0; 3], 0.0);
-            // Three local unknowns: on the stack, the scratch stays empty.
-            let scratch = &mut LocalScratch::default();
             self.evaluate_local(p.element, x, ctx, &mut f, &mut q, scratch, |df| {
                 slope = df[2 * 3 + p.node_local]
             });
