@@ -133,7 +133,7 @@
 
 use crate::element::{Analysis, EvalContext, UnknownKind};
 use crate::lu::{DenseLu, LuStrategy, Singular, SparseLu};
-use crate::system::{Layout, LocalScratch, System, Tolerances, NONE};
+use crate::system::{Layout, LocalScratch, System, Tolerances, NONE, NONE32};
 use faer::sparse::SymbolicSparseColMat;
 use std::cmp::Reverse;
 use std::collections::BinaryHeap;
@@ -246,10 +246,9 @@ pub(crate) struct Latency {
     /// trade rows); per row: the position in `active` of the unknown it belongs to.
     eq_row: Vec<usize>,
     pos: Vec<usize>,
-    /// Per element: frozen, never frozen (sources), the number of pins (internals follow).
+    /// Per element: frozen, never frozen (sources).
     frozen: Vec<bool>,
     source: Vec<bool>,
-    pins: Vec<usize>,
     /// Stored currents and charges of frozen elements at their `Plan::map` offsets.
     st_f: Vec<f64>,
     st_q: Vec<f64>,
@@ -318,8 +317,10 @@ pub(crate) struct Latency {
     deadline: Vec<f64>,
     deadlines: BinaryHeap<Reverse<(u64, usize)>>,
     tol: Tolerances,
-    /// Per row touched by more than [`WIDE`] elements (a supply): its frozen sums as a tree.
-    trees: Vec<Option<SumTree>>,
+    /// Per row touched by more than [`WIDE`] elements (a supply): its frozen sums as a tree,
+    /// `trees[tree_of[r]]` (`NONE32` for every other row).
+    trees: Vec<SumTree>,
+    tree_of: Vec<u32>,
     /// Counters: latent unknown-steps and active unknown-steps over accepted steps.
     pub(crate) latent_steps: u64,
     pub(crate) active_steps: u64,
@@ -438,15 +439,18 @@ impl System {
         let mut adj_at = vec![0u32; locs];
         for r in 0..n {
             for (i, &(e, k)) in adj[count[r]..count[r + 1]].iter().enumerate() {
-                adj_at[self.layout.loc_start[e as usize] + k as usize] = i as u32;
+                adj_at[self.layout.plan[e as usize].map as usize + k as usize] = i as u32;
             }
         }
-        let trees = (0..n)
-            .map(|r| {
-                let d = count[r + 1] - count[r];
-                (d > WIDE).then(|| SumTree::new(d))
-            })
-            .collect();
+        let mut trees = Vec::new();
+        let mut tree_of = vec![NONE32; n];
+        for r in 0..n {
+            let d = count[r + 1] - count[r];
+            if d > WIDE {
+                tree_of[r] = trees.len() as u32;
+                trees.push(SumTree::new(d));
+            }
+        }
         // Nothing is frozen yet: every element touching a row is live.
         let live_count = (0..n).map(|r| (count[r + 1] - count[r]) as u32).collect();
         self.latency = Some(Latency {
@@ -478,7 +482,6 @@ impl System {
                 .iter()
                 .map(|e| e.is_independent_source())
                 .collect(),
-            pins: (0..ne).map(|e| self.pin_count(e)).collect(),
             st_f: vec![0.0; locs],
             st_q: vec![0.0; locs],
             st_all: false,
@@ -520,6 +523,7 @@ impl System {
             deadlines: BinaryHeap::new(),
             tol,
             trees,
+            tree_of,
             latent_steps: 0,
             active_steps: 0,
         });
@@ -819,13 +823,13 @@ impl System {
         if l.held[u] || l.quiet[u] < QUIET_STEPS || !l.holdable[u] {
             return false;
         }
-        let (loc_map, loc_start) = (&self.layout.loc_map, &self.layout.loc_start);
-        let internal_ok = match self.unknown_owner[u] {
-            None => true,
-            Some(e) => loc_map[loc_start[e]..loc_start[e + 1]]
-                .iter()
-                .all(|&g| g == NONE || l.held[g] || l.quiet[g] >= QUIET_STEPS),
-        };
+        let internal_ok =
+            match self.unknown_owner[u] {
+                None => true,
+                Some(e) => self.layout.local(e).iter().all(|&g| {
+                    g == NONE32 || l.held[g as usize] || l.quiet[g as usize] >= QUIET_STEPS
+                }),
+            };
         // A row that has missed nothing may be held on a zero budget (a floating node whose
         // equation holds exactly at its held value).
         internal_ok
@@ -1081,10 +1085,8 @@ impl System {
         let mut count = vec![0u32; self.n];
         for &e in &live {
             let e = e as usize;
-            let local =
-                &self.layout.loc_map[self.layout.loc_start[e]..self.layout.loc_start[e + 1]];
-            for &g in local.iter().filter(|&&g| g != NONE) {
-                count[g] += 1;
+            for &g in self.layout.local(e).iter().filter(|&&g| g != NONE32) {
+                count[g as usize] += 1;
             }
         }
         assert_eq!(l.live_count, count, "live elements per row");
@@ -1117,19 +1119,18 @@ impl System {
             let u = l.changed[c];
             for &(e, _) in self.layout.elements_of(u) {
                 let e = e as usize;
-                let (lo, hi) = (self.layout.loc_start[e], self.layout.loc_start[e + 1]);
-                let local = &self.layout.loc_map[lo..hi];
-                let want = !l.source[e] && local.iter().all(|&g| g == NONE || l.held[g]);
+                let local = self.layout.local(e);
+                let want = !l.source[e] && local.iter().all(|&g| g == NONE32 || l.held[g as usize]);
                 if want == l.frozen[e] {
                     continue;
                 }
                 l.frozen[e] = want;
                 l.flipped.push(e as u32);
-                for &g in local.iter().filter(|&&g| g != NONE) {
+                for &g in local.iter().filter(|&&g| g != NONE32) {
                     if want {
-                        l.live_count[g] -= 1;
+                        l.live_count[g as usize] -= 1;
                     } else {
-                        l.live_count[g] += 1;
+                        l.live_count[g as usize] += 1;
                     }
                 }
                 if want && !l.st_all {
@@ -1138,22 +1139,20 @@ impl System {
                 }
                 let plan = &self.layout.plan[e];
                 for (k, &g) in local.iter().enumerate() {
-                    if g == NONE {
+                    let Some(t) = tree_of(&l.tree_of, g) else {
                         continue;
-                    }
-                    if let Some(tree) = l.trees[g].as_mut() {
-                        let at = plan.map as usize + k;
-                        let leaf = if want {
-                            let q = if plan.charge { l.st_q[at] } else { 0.0 };
-                            [l.st_f[at], q, l.st_f[at].abs(), q.abs()]
-                        } else {
-                            [0.0; 4]
-                        };
-                        tree.set(l.adj_at[at] as usize, leaf);
-                    }
+                    };
+                    let at = plan.map as usize + k;
+                    let leaf = if want {
+                        let q = if plan.charge { l.st_q[at] } else { 0.0 };
+                        [l.st_f[at], q, l.st_f[at].abs(), q.abs()]
+                    } else {
+                        [0.0; 4]
+                    };
+                    l.trees[t].set(l.adj_at[at] as usize, leaf);
                 }
-                for &g in local.iter().filter(|&&g| g != NONE) {
-                    push_unique(&mut l.dirty_rows, &mut l.marks, g);
+                for &g in local.iter().filter(|&&g| g != NONE32) {
+                    push_unique(&mut l.dirty_rows, &mut l.marks, g as usize);
                 }
             }
         }
@@ -1163,7 +1162,8 @@ impl System {
     fn resum(&self, l: &mut Latency) {
         sort_marked(&mut l.dirty_rows, &mut l.marks);
         for &r in &l.dirty_rows {
-            if let Some(tree) = l.trees[r].as_mut() {
+            if let Some(t) = tree_of(&l.tree_of, r as u32) {
+                let tree = &mut l.trees[t];
                 [l.fz_f[r], l.fz_q[r], l.fz_scale[r], l.fz_qscale[r]] = tree.total();
                 continue;
             }
@@ -1199,10 +1199,8 @@ impl System {
         l.candidates.clear();
         for &e in &l.flipped {
             let e = e as usize;
-            let local =
-                &self.layout.loc_map[self.layout.loc_start[e]..self.layout.loc_start[e + 1]];
-            for &g in local.iter().filter(|&&g| g != NONE) {
-                push_unique(&mut l.candidates, &mut l.marks, g);
+            for &g in self.layout.local(e).iter().filter(|&&g| g != NONE32) {
+                push_unique(&mut l.candidates, &mut l.marks, g as usize);
             }
         }
         for &u in &l.changed {
@@ -1637,16 +1635,24 @@ fn give_back(l: &mut Latency, t: f64) -> bool {
     l.given.len() > before
 }
 
+/// The tree of row `r` in [`Latency::trees`], if it has one (`r` may be `NONE32`: ground).
+fn tree_of(tree_of: &[u32], r: u32) -> Option<usize> {
+    (r != NONE32)
+        .then(|| tree_of[r as usize])
+        .filter(|&t| t != NONE32)
+        .map(|t| t as usize)
+}
+
 /// Marks `u` active, with the internal unknowns of every element it belongs to (an internal
 /// unknown is latent only with all of its element's unknowns).
 fn wake(l: &mut Latency, u: usize, layout: &Layout) {
     l.release(u);
     for &(e, _) in layout.elements_of(u) {
         let e = e as usize;
-        let local = &layout.loc_map[layout.loc_start[e]..layout.loc_start[e + 1]];
-        for &g in &local[l.pins[e]..] {
-            if g != NONE && l.held[g] {
-                l.release(g);
+        let pins = layout.plan[e].pins as usize;
+        for &g in &layout.local(e)[pins..] {
+            if g != NONE32 && l.held[g as usize] {
+                l.release(g as usize);
             }
         }
     }

@@ -10,7 +10,7 @@
 use crate::circuit::ElementId;
 use crate::element::{EvalContext, Stamp};
 use crate::error::EngineError;
-use crate::system::{System, NONE, NONE32};
+use crate::system::{System, NONE32};
 use faer::c64;
 
 /// The conductance and capacitance matrices of the whole system at one solution, both in the
@@ -237,11 +237,11 @@ impl System {
             .elements
             .get(e)
             .ok_or_else(|| EngineError::Invalid("the element belongs to another circuit".into()))?;
-        let map = &self.layout.loc_map[self.layout.loc_start[e]..self.layout.loc_start[e + 1]];
+        let map = self.layout.local(e);
         let n = map.len();
         let xl: Vec<f64> = map
             .iter()
-            .map(|&g| if g == NONE { 0.0 } else { x[g] })
+            .map(|&g| if g == NONE32 { 0.0 } else { x[g as usize] })
             .collect();
         let (mut f, mut q, mut df, mut dq) = (
             vec![0.0; n],

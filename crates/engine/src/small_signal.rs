@@ -54,7 +54,7 @@ use crate::element::EvalContext;
 use crate::element::Stamp;
 use crate::error::EngineError;
 use crate::lu::{LuStats, LuStrategy, SparseLu};
-use crate::system::{System, NONE};
+use crate::system::{System, NONE32};
 use faer::c64;
 use faer::sparse::SymbolicSparseColMat;
 
@@ -295,11 +295,11 @@ impl System {
             Ok(f)
         };
         let (f1, f0) = (f_at(1.0)?, f_at(0.0)?);
-        let map = &self.layout.loc_map[self.layout.loc_start[e]..self.layout.loc_start[e + 1]];
+        let map = self.layout.local(e);
         let mut b = vec![0.0; self.n];
         for (k, &g) in map.iter().enumerate() {
-            if g != NONE {
-                b[g] -= f1[k] - f0[k];
+            if g != NONE32 {
+                b[g as usize] -= f1[k] - f0[k];
             }
         }
         let kind = if self.branch_unknown(source).is_some() {
@@ -333,8 +333,14 @@ impl System {
         let (b, kind) = self.source_excitation(x, source)?;
         let e = source.index();
         // The first two local unknowns are the source's `pos` and `neg` pins.
-        let local = &self.layout.loc_map[self.layout.loc_start[e]..self.layout.loc_start[e + 1]];
-        let pin = |k: usize| local.get(k).copied().filter(|&g| g != NONE);
+        let local = self.layout.local(e);
+        let pin = |k: usize| {
+            local
+                .get(k)
+                .copied()
+                .filter(|&g| g != NONE32)
+                .map(|g| g as usize)
+        };
         let pins = [pin(0), pin(1)];
         let branch = self.branch_unknown(source);
         let mut inject = vec![0.0; self.n];

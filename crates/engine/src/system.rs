@@ -119,6 +119,8 @@ pub(crate) struct Plan {
     pub(crate) map: u32,
     pub(crate) slot: u32,
     pub(crate) local: u8,
+    /// How many of the local unknowns are pins (the element's internals follow them).
+    pub(crate) pins: u8,
     pub(crate) charge: bool,
     /// Whether the element may be bypassed ([`Element::bypassable`]).
     pub(crate) bypass: bool,
@@ -396,7 +398,7 @@ struct Pinned {
     slot_bn: usize,
     slot_nb: usize,
     /// The node row's other entries: `(column, slot)`.
-    row: Vec<(usize, usize)>,
+    row: Vec<(u32, u32)>,
 }
 
 /// The Newton matrix without the pinned nodes and their sources' currents, and how to map
@@ -406,9 +408,9 @@ struct Reduction {
     /// Kept unknown `k` is full unknown `full[k]`.
     full: Vec<usize>,
     /// Per entry of the kept pattern, its full slot.
-    gather: Vec<usize>,
+    gather: Vec<u32>,
     /// Entries of pinned nodes' columns in kept rows: `(kept row, full slot, pinned index)`.
-    coupling: Vec<(usize, usize, usize)>,
+    coupling: Vec<(u32, u32, u32)>,
     values: Vec<f64>,
     rhs: Vec<f64>,
     /// Per pinned node: its update, and its row's right-hand side.
@@ -425,12 +427,11 @@ impl Reduction {
         elements: &[Box<dyn Element>],
         pin_start: &[usize],
         pins: &[NodeId],
-        loc_start: &[usize],
-        loc_map: &[usize],
+        (plan, map32): (&[Plan], &[u32]),
         kinds: &[UnknownKind],
         col_ptr: &[usize],
         row_idx: &[usize],
-        (row_slot_ptr, row_slots): (&[usize], &[usize]),
+        (row_slot_ptr, row_slots): (&[usize], &[u32]),
     ) -> Option<(Reduction, SymbolicSparseColMat<usize>)> {
         let n = kinds.len();
         let slot_of = |r: usize, c: usize| -> Option<usize> {
@@ -440,7 +441,7 @@ impl Reduction {
         let mut taken = vec![false; n];
         let mut pinned = Vec::new();
         for (e, element) in elements.iter().enumerate() {
-            let local = &loc_map[loc_start[e]..loc_start[e + 1]];
+            let local = &map32[plan[e].map as usize..][..plan[e].local as usize];
             let pins = &pins[pin_start[e]..pin_start[e + 1]];
             if !element.is_ideal_voltage_source()
                 || element.has_charge()
@@ -450,8 +451,12 @@ impl Reduction {
             {
                 continue;
             }
-            let node = if local[0] == NONE { local[1] } else { local[0] };
-            let branch = local[2];
+            let node = if local[0] == NONE32 {
+                local[1]
+            } else {
+                local[0]
+            } as usize;
+            let branch = local[2] as usize;
             if taken[node] || kinds[branch] != UnknownKind::Current {
                 continue;
             }
@@ -467,19 +472,19 @@ impl Reduction {
             // every device on it; a walk along the columns cost every node per source).
             let row = row_idx[col_ptr[node]..col_ptr[node + 1]]
                 .iter()
-                .copied()
+                .map(|&c| c as u32)
                 .zip(
                     row_slots[row_slot_ptr[node]..row_slot_ptr[node + 1]]
                         .iter()
                         .copied(),
                 )
-                .filter(|&(c, _)| c != branch)
+                .filter(|&(c, _)| c as usize != branch)
                 .collect();
             pinned.push(Pinned {
                 node,
                 branch,
                 element: e,
-                node_local: usize::from(local[0] == NONE),
+                node_local: usize::from(local[0] == NONE32),
                 slot_bn,
                 slot_nb,
                 row,
@@ -514,11 +519,12 @@ impl Reduction {
                 if r == NONE {
                     continue;
                 }
+                // Every index is below NONE32 (checked by the compile).
                 if kept[c] != NONE {
                     red_rows.push(r);
-                    gather.push(s);
+                    gather.push(s as u32);
                 } else if let Some(p) = pin_of(c) {
-                    coupling.push((r, s, p));
+                    coupling.push((r as u32, s as u32, p as u32));
                 }
             }
             if kept[c] != NONE {
@@ -659,24 +665,28 @@ impl<'a> Load<'a> {
 }
 
 pub(crate) struct Layout {
-    /// Per element: start of its local-to-global map in `loc_map`.
-    pub(crate) loc_start: Vec<usize>,
-    pub(crate) loc_map: Vec<usize>,
-    diag_slot: Vec<usize>,
+    diag_slot: Vec<u32>,
     /// Slots of each row (for replacing a row by a clamp).
     row_slot_ptr: Vec<usize>,
-    row_slots: Vec<usize>,
+    row_slots: Vec<u32>,
     /// Per unknown `u`: the elements that have it as a local unknown, with its local index,
     /// in element order (`adj[adj_ptr[u]..adj_ptr[u + 1]]`).
     pub(crate) adj_ptr: Vec<usize>,
     pub(crate) adj: Vec<(u32, u8)>,
-    /// Hot-loop copies: per-element plans and 32-bit index lists.
+    /// Per element: where its local unknowns and slots start; every element's local
+    /// unknowns (`NONE32`: ground), and its slots local row by local column.
     pub(crate) plan: Vec<Plan>,
     pub(crate) map32: Vec<u32>,
     pub(crate) slots32: Vec<u32>,
 }
 
 impl Layout {
+    /// Element `e`'s local unknowns, pins first, then its internals (`NONE32`: ground).
+    pub(crate) fn local(&self, e: usize) -> &[u32] {
+        let p = &self.plan[e];
+        &self.map32[p.map as usize..][..p.local as usize]
+    }
+
     /// The elements that have unknown `u` as a local unknown, with its local index, in
     /// element order.
     pub(crate) fn elements_of(&self, u: usize) -> &[(u32, u8)] {
@@ -686,15 +696,11 @@ impl Layout {
 
 /// Per unknown, the elements that have it as a local unknown with the local index, in element
 /// order, as compressed lists: `(ptr, entries)`.
-fn element_adjacency(
-    loc_map: &[usize],
-    loc_start: &[usize],
-    n: usize,
-) -> (Vec<usize>, Vec<(u32, u8)>) {
+fn element_adjacency(map32: &[u32], plan: &[Plan], n: usize) -> (Vec<usize>, Vec<(u32, u8)>) {
     let mut ptr = vec![0usize; n + 1];
-    for &g in loc_map {
-        if g != NONE {
-            ptr[g + 1] += 1;
+    for &g in map32 {
+        if g != NONE32 {
+            ptr[g as usize + 1] += 1;
         }
     }
     for r in 0..n {
@@ -702,11 +708,12 @@ fn element_adjacency(
     }
     let mut adj = vec![(0u32, 0u8); ptr[n]];
     let mut fill = ptr.clone();
-    for e in 0..loc_start.len() - 1 {
-        for (k, &g) in loc_map[loc_start[e]..loc_start[e + 1]].iter().enumerate() {
-            if g != NONE {
-                adj[fill[g]] = (e as u32, k as u8);
-                fill[g] += 1;
+    for (e, p) in plan.iter().enumerate() {
+        let local = &map32[p.map as usize..][..p.local as usize];
+        for (k, &g) in local.iter().enumerate() {
+            if g != NONE32 {
+                adj[fill[g as usize]] = (e as u32, k as u8);
+                fill[g as usize] += 1;
             }
         }
     }
@@ -816,58 +823,87 @@ impl System {
             pin_start,
         } = circuit;
         let ne = elements.len();
-        // Sized once: a supply's one internal unknown would double lists of every node.
-        let internals: usize = elements.iter().map(|e| e.internals().len()).sum();
+        // Sized once (a supply's one internal unknown would double lists of every node), and
+        // checked before anything is built: every index is kept in 32 bits.
+        let (mut internals, mut slot_count) = (0usize, 0usize);
+        for (e, element) in elements.iter().enumerate() {
+            let own = element.internals().len();
+            let nl = pin_start[e + 1] - pin_start[e] + own;
+            if nl > u8::MAX as usize {
+                return Err(EngineError::Invalid(
+                    "an element has more than 255 local unknowns".into(),
+                ));
+            }
+            internals += own;
+            slot_count = slot_count.saturating_add(nl * nl);
+        }
         let n_all = n_nodes + internals;
+        let locals = pins.len() + internals;
+        if n_all == 0 {
+            return Err(EngineError::Invalid("the circuit has no unknowns".into()));
+        }
+        let too_large = |what: &str| {
+            EngineError::Invalid(format!(
+                "the circuit is too large: {n_all} unknowns, {locals} element terminals and \
+                 {what}"
+            ))
+        };
+        if n_all >= NONE32 as usize || locals >= NONE32 as usize || slot_count >= NONE32 as usize {
+            return Err(too_large(&format!("{slot_count} element matrix entries")));
+        }
         let mut kinds = Vec::with_capacity(n_all);
         kinds.resize(n_nodes, UnknownKind::Voltage);
         let mut unknown_owner = Vec::with_capacity(n_all);
         unknown_owner.resize(n_nodes, None);
         let mut linear_unknown = Vec::with_capacity(n_all);
         linear_unknown.resize(n_nodes, false);
-        let mut loc_start = Vec::with_capacity(ne + 1);
-        let mut loc_map = Vec::with_capacity(pins.len() + internals);
-        let mut slot_start = Vec::with_capacity(ne + 1);
-        let mut has_charge = Vec::with_capacity(ne);
+        // Per element, where its local unknowns and slots start (`Plan`), and every element's
+        // local-to-global map in one list.
+        let mut plan = Vec::with_capacity(ne);
+        let mut map32: Vec<u32> = Vec::with_capacity(locals);
         let mut breakpoint_elements = Vec::new();
         let mut max_local = 0;
-        let mut slot_count = 0;
+        let mut slot_at = 0usize;
         for (e, element) in elements.iter().enumerate() {
-            loc_start.push(loc_map.len());
+            let map_at = map32.len();
             for p in &pins[pin_start[e]..pin_start[e + 1]] {
-                loc_map.push(if p.is_ground() { NONE } else { p.0 - 1 });
+                map32.push(if p.is_ground() {
+                    NONE32
+                } else {
+                    (p.0 - 1) as u32
+                });
             }
             for internal in element.internals() {
                 let idx = kinds.len();
                 linear_unknown.push(element.is_ideal_voltage_source());
                 kinds.push(internal.kind);
                 unknown_owner.push(Some(e));
-                loc_map.push(idx);
+                map32.push(idx as u32);
             }
-            let nl = loc_map.len() - loc_start[e];
+            let nl = map32.len() - map_at;
             max_local = max_local.max(nl);
-            slot_start.push(slot_count);
-            slot_count += nl * nl;
-            has_charge.push(element.has_charge());
+            plan.push(Plan {
+                map: map_at as u32,
+                slot: slot_at as u32,
+                local: nl as u8,
+                pins: (pin_start[e + 1] - pin_start[e]) as u8,
+                charge: element.has_charge(),
+                bypass: element.bypassable(),
+            });
+            slot_at += nl * nl;
             if element.next_breakpoint(f64::NEG_INFINITY).is_some() {
                 breakpoint_elements.push(e);
             }
         }
-        loc_start.push(loc_map.len());
-        slot_start.push(slot_count);
         let n = kinds.len();
-        if n == 0 {
-            return Err(EngineError::Invalid("the circuit has no unknowns".into()));
-        }
-        if loc_start.windows(2).any(|w| w[1] - w[0] > u8::MAX as usize) {
-            return Err(EngineError::Invalid(
-                "an element has more than 255 local unknowns".into(),
-            ));
-        }
+        let local_of = |e: usize| {
+            let p: &Plan = &plan[e];
+            &map32[p.map as usize..p.map as usize + p.local as usize]
+        };
 
         // Per unknown, the elements that have it as a local unknown, with the local index, in
         // element order.
-        let (adj_ptr, adj) = element_adjacency(&loc_map, &loc_start, n);
+        let (adj_ptr, adj) = element_adjacency(&map32, &plan, n);
         // Compressed columns with sorted, unique rows: every element's local pairs and the
         // diagonal (branch rows of voltage-defined elements have a zero diagonal; it stays in
         // the pattern so that clamps and pseudo-transient terms can use it). Row `r` is added
@@ -877,10 +913,9 @@ impl System {
         let each_column = |r: usize, f: &mut dyn FnMut(usize)| {
             f(r);
             for &(e, _) in &adj[adj_ptr[r]..adj_ptr[r + 1]] {
-                let e = e as usize;
-                for &c in &loc_map[loc_start[e]..loc_start[e + 1]] {
-                    if c != NONE {
-                        f(c);
+                for &c in local_of(e as usize) {
+                    if c != NONE32 {
+                        f(c as usize);
                     }
                 }
             }
@@ -899,10 +934,8 @@ impl System {
             col_ptr[c + 1] += col_ptr[c];
         }
         let nnz = col_ptr[n];
-        if n >= NONE32 as usize || nnz >= NONE32 as usize || slot_count >= NONE32 as usize {
-            return Err(EngineError::Invalid(format!(
-                "the circuit is too large: {n} unknowns and {nnz} matrix entries"
-            )));
+        if nnz >= NONE32 as usize {
+            return Err(too_large(&format!("{nnz} matrix entries")));
         }
         let mut row_idx = vec![0usize; nnz];
         let mut fill = col_ptr.clone();
@@ -920,20 +953,19 @@ impl System {
         // Each element's slots, local row by local column: column `c`'s rows are marked with
         // their slots, then read by every element on `c`.
         let mut slots32 = vec![NONE32; slot_count];
-        let mut diag_slot = vec![0usize; n];
+        let mut diag_slot = vec![0u32; n];
         let mut at = last;
         for c in 0..n {
             for s in col_ptr[c]..col_ptr[c + 1] {
                 at[row_idx[s]] = s;
             }
-            diag_slot[c] = at[c];
+            diag_slot[c] = at[c] as u32;
             for &(e, k) in &adj[adj_ptr[c]..adj_ptr[c + 1]] {
-                let e = e as usize;
-                let local = &loc_map[loc_start[e]..loc_start[e + 1]];
+                let (local, slot) = (local_of(e as usize), plan[e as usize].slot as usize);
                 let nl = local.len();
                 for (j, &r) in local.iter().enumerate() {
-                    if r != NONE {
-                        slots32[slot_start[e] + j * nl + k as usize] = at[r] as u32;
+                    if r != NONE32 {
+                        slots32[slot + j * nl + k as usize] = at[r as usize] as u32;
                     }
                 }
             }
@@ -946,29 +978,17 @@ impl System {
         for r in 0..n {
             row_slot_ptr[r + 1] += row_slot_ptr[r];
         }
-        let mut row_slots = vec![0usize; row_idx.len()];
+        let mut row_slots = vec![0u32; row_idx.len()];
         let mut next = row_slot_ptr.clone();
         for (s, &r) in row_idx.iter().enumerate() {
-            row_slots[next[r]] = s;
+            row_slots[next[r]] = s as u32;
             next[r] += 1;
         }
-        let narrow = |v: &usize| if *v == NONE { NONE32 } else { *v as u32 };
-        let map32: Vec<u32> = loc_map.iter().map(narrow).collect();
-        let plan: Vec<Plan> = (0..elements.len())
-            .map(|e| Plan {
-                map: loc_start[e] as u32,
-                slot: slot_start[e] as u32,
-                local: (loc_start[e + 1] - loc_start[e]) as u8,
-                charge: has_charge[e],
-                bypass: elements[e].bypassable(),
-            })
-            .collect();
         let reduced = Reduction::build(
             &elements,
             &pin_start,
             &pins,
-            &loc_start,
-            &loc_map,
+            (&plan, &map32),
             &kinds,
             &col_ptr,
             &row_idx,
@@ -981,12 +1001,10 @@ impl System {
         };
         let lu = SparseLu::new(solved_pattern, strategy).map_err(EngineError::Invalid)?;
         let mut is_charge_row = vec![false; n];
-        for e in 0..elements.len() {
-            if has_charge[e] {
-                for &g in &loc_map[loc_start[e]..loc_start[e + 1]] {
-                    if g != NONE {
-                        is_charge_row[g] = true;
-                    }
+        for p in plan.iter().filter(|p| p.charge) {
+            for &g in &map32[p.map as usize..][..p.local as usize] {
+                if g != NONE32 {
+                    is_charge_row[g as usize] = true;
                 }
             }
         }
@@ -1006,8 +1024,6 @@ impl System {
             kinds,
             unknown_owner,
             layout: Layout {
-                loc_start,
-                loc_map,
                 adj_ptr,
                 adj,
                 diag_slot,
@@ -1062,7 +1078,7 @@ impl System {
             None => node_label(self.node_names.get(i + 1)),
             Some(e) => {
                 // The element's internals follow its pins, numbered in order.
-                let first = self.layout.loc_map[self.layout.loc_start[e] + self.pin_count(e)];
+                let first = self.layout.local(e)[self.pin_count(e)] as usize;
                 let k = i - first;
                 format!(
                     "{}.{}",
@@ -1117,13 +1133,13 @@ impl System {
         if e >= self.elements.len() {
             return None;
         }
-        let local = &self.layout.loc_map[self.layout.loc_start[e]..self.layout.loc_start[e + 1]];
+        let local = self.layout.local(e);
         let pins = self.pin_count(e);
         let internals = self.elements[e].internals();
         internals
             .iter()
             .position(|i| i.kind == UnknownKind::Current)
-            .map(|k| local[pins + k])
+            .map(|k| local[pins + k] as usize)
     }
 
     /// The name of a node.
@@ -1428,11 +1444,11 @@ impl System {
             if i < n_nodes {
                 if load.gmin != 0.0 {
                     fi += load.gmin * x[i];
-                    self.jac[self.layout.diag_slot[i]] += load.gmin;
+                    self.jac[self.layout.diag_slot[i] as usize] += load.gmin;
                 }
                 if let Some((g, prev)) = load.pseudo {
                     fi += g * (x[i] - prev[i]);
-                    self.jac[self.layout.diag_slot[i]] += g;
+                    self.jac[self.layout.diag_slot[i] as usize] += g;
                 }
             }
             self.rhs[i] = -fi;
@@ -1441,9 +1457,9 @@ impl System {
             for &s in
                 &self.layout.row_slots[self.layout.row_slot_ptr[i]..self.layout.row_slot_ptr[i + 1]]
             {
-                self.jac[s] = 0.0;
+                self.jac[s as usize] = 0.0;
             }
-            self.jac[self.layout.diag_slot[i]] = 1.0;
+            self.jac[self.layout.diag_slot[i] as usize] = 1.0;
             self.rhs[i] = -(x[i] - v);
             self.scale[i] = v.abs();
         }
@@ -1779,13 +1795,13 @@ impl System {
             red.r_node[k] = v[p.node];
         }
         for (value, &s) in red.values.iter_mut().zip(&red.gather) {
-            *value = jac[s];
+            *value = jac[s as usize];
         }
         for (r, &i) in red.rhs.iter_mut().zip(&red.full) {
             *r = v[i];
         }
         for &(r, s, p) in &red.coupling {
-            red.rhs[r] -= jac[s] * red.d_node[p];
+            red.rhs[r as usize] -= jac[s as usize] * red.d_node[p as usize];
         }
         let full = &red.full;
         let back = |e: Singular| Singular {
@@ -1802,7 +1818,7 @@ impl System {
         for (k, p) in red.pinned.iter().enumerate() {
             let mut rest = red.r_node[k];
             for &(c, s) in &p.row {
-                rest -= jac[s] * v[c];
+                rest -= jac[s as usize] * v[c as usize];
             }
             let j = jac[p.slot_nb];
             if j == 0.0 {
