@@ -6,7 +6,8 @@
 use lamina_devices::{Polarity, SquareLawFet};
 use lamina_engine::elements::Capacitor;
 use lamina_engine::elements::VoltageSource;
-use lamina_engine::{Circuit, CircuitError, ElementId, NodeId};
+use lamina_engine::{Circuit, CircuitError, Element, ElementId, NodeId};
+use std::sync::Arc;
 
 /// Parameters of a square-law inverter stage.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -44,37 +45,54 @@ impl Default for SquareStage {
     }
 }
 
-fn fets(s: &SquareStage) -> (SquareLawFet, SquareLawFet) {
-    let n = SquareLawFet::new(Polarity::N, s.kn, s.vtn)
-        .with_length_modulation(s.lambda)
-        .with_gate_capacitance(s.gate_capacitance);
-    let p = SquareLawFet::new(Polarity::P, s.kp, s.vtp)
-        .with_length_modulation(s.lambda)
-        .with_gate_capacitance(s.gate_capacitance);
-    (n, p)
+/// The models of one stage's devices and load, shared by every stage built from them (one
+/// copy of the parameters however long the ring).
+struct StageModels {
+    pull_down: Arc<dyn Element>,
+    pull_up: Arc<dyn Element>,
+    load: Option<Arc<dyn Element>>,
+}
+
+impl StageModels {
+    fn new(s: &SquareStage) -> Self {
+        let n = SquareLawFet::new(Polarity::N, s.kn, s.vtn)
+            .with_length_modulation(s.lambda)
+            .with_gate_capacitance(s.gate_capacitance);
+        let p = SquareLawFet::new(Polarity::P, s.kp, s.vtp)
+            .with_length_modulation(s.lambda)
+            .with_gate_capacitance(s.gate_capacitance);
+        StageModels {
+            pull_down: Arc::new(n),
+            pull_up: Arc::new(p),
+            load: (s.load != 0.0).then(|| Arc::new(Capacitor::new(s.load)) as Arc<dyn Element>),
+        }
+    }
 }
 
 fn add_inverter(
     c: &mut Circuit,
-    s: &SquareStage,
+    m: &StageModels,
     name: &str,
     input: NodeId,
     output: NodeId,
     vdd: NodeId,
     buf: &mut String,
 ) -> Result<(), CircuitError> {
-    let (n, p) = fets(s);
     // `buf` takes the three element names in turn: a 30001-stage ring builds 90,000 names.
-    c.add(
+    c.add_shared(
         joined(buf, name, "pull_down"),
-        n,
+        m.pull_down.clone(),
         &[output, input, Circuit::GROUND],
     )?;
-    c.add(joined(buf, name, "pull_up"), p, &[output, input, vdd])?;
-    if s.load != 0.0 {
-        c.add(
+    c.add_shared(
+        joined(buf, name, "pull_up"),
+        m.pull_up.clone(),
+        &[output, input, vdd],
+    )?;
+    if let Some(load) = &m.load {
+        c.add_shared(
             joined(buf, name, "load"),
-            Capacitor::new(s.load),
+            load.clone(),
             &[output, Circuit::GROUND],
         )?;
     }
@@ -141,11 +159,12 @@ pub fn square_ring(stages: usize, stage: &SquareStage) -> Result<(Circuit, Ring)
         .map(|i| c.node(indexed(&mut buf, "out", i)))
         .collect();
     let mut part = String::new();
+    let models = StageModels::new(stage);
     for i in 0..stages {
         let input = outputs[(i + stages - 1) % stages];
         add_inverter(
             &mut c,
-            stage,
+            &models,
             indexed(&mut buf, "stage", i),
             input,
             outputs[i],
@@ -185,7 +204,16 @@ pub fn square_inverter(stage: &SquareStage) -> Result<Inverter, CircuitError> {
         &[vdd, Circuit::GROUND],
     )?;
     let input = c.add("drive", VoltageSource::dc(0.0), &[inp, Circuit::GROUND])?;
-    add_inverter(&mut c, stage, "inverter", inp, out, vdd, &mut String::new())?;
+    let models = StageModels::new(stage);
+    add_inverter(
+        &mut c,
+        &models,
+        "inverter",
+        inp,
+        out,
+        vdd,
+        &mut String::new(),
+    )?;
     Ok(Inverter {
         circuit: c,
         input,

@@ -5,10 +5,14 @@ use foldhash::fast::FixedState;
 use hashbrown::HashTable;
 use std::fmt;
 use std::hash::BuildHasher;
+use std::sync::Arc;
 
 /// A node of a [`Circuit`]. [`Circuit::GROUND`] is the reference node at 0 V.
+///
+/// Four bytes: a circuit holds one per element terminal. The last value is not a node (see
+/// [`Circuit::node`]).
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]
-pub struct NodeId(pub(crate) usize);
+pub struct NodeId(pub(crate) u32);
 
 impl NodeId {
     /// Whether this is the ground node.
@@ -44,6 +48,8 @@ pub enum CircuitError {
     },
     /// A node id that does not belong to this circuit.
     ForeignNode(String),
+    /// A node past the most a circuit can number (`u32::MAX - 1` besides ground).
+    TooManyNodes(String),
 }
 
 impl fmt::Display for CircuitError {
@@ -63,6 +69,12 @@ impl fmt::Display for CircuitError {
             CircuitError::ForeignNode(element) => {
                 write!(f, "element `{element}` refers to a node of another circuit")
             }
+            CircuitError::TooManyNodes(element) => write!(
+                f,
+                "element `{element}` refers to a node past the {} a circuit can hold; split the \
+                 circuit",
+                u32::MAX - 1
+            ),
         }
     }
 }
@@ -137,6 +149,11 @@ impl Names {
     }
 }
 
+/// The id of node number `i`: `u32::MAX` for every node past the last that fits.
+pub(crate) fn node_id(i: usize) -> NodeId {
+    NodeId(u32::try_from(i).unwrap_or(u32::MAX))
+}
+
 /// The `i`-th of the names ending at `ends` in `text`.
 fn name_at<'a>(text: &'a str, ends: &[usize], i: usize) -> &'a str {
     let start = if i == 0 { 0 } else { ends[i - 1] };
@@ -155,7 +172,9 @@ fn name_at<'a>(text: &'a str, ends: &[usize], i: usize) -> &'a str {
 /// ```
 pub struct Circuit {
     pub(crate) node_names: Names,
-    pub(crate) elements: Vec<Box<dyn Element>>,
+    /// Elements may share one model (see [`Circuit::add_shared`]); an analysis that changes
+    /// one (a sweep's source) copies it first.
+    pub(crate) elements: Vec<Arc<dyn Element>>,
     pub(crate) element_names: Names,
     /// Every element's pins in one list; element `e`'s are `pins[pin_start[e]..pin_start[e + 1]]`.
     pub(crate) pins: Vec<NodeId>,
@@ -199,19 +218,21 @@ impl Circuit {
         self.pin_start.reserve(elements);
     }
 
-    /// The node called `name`, created if new. `ground` is the reference node.
+    /// The node called `name`, created if new. `ground` is the reference node. Past
+    /// `u32::MAX - 1` nodes every new one gets the same id, which [`Circuit::add`] refuses
+    /// ([`CircuitError::TooManyNodes`]).
     pub fn node(&mut self, name: &str) -> NodeId {
-        NodeId(self.node_names.push(name).unwrap_or_else(|id| id))
+        node_id(self.node_names.push(name).unwrap_or_else(|id| id))
     }
 
     /// The node called `name`, if it exists.
     pub fn find_node(&self, name: &str) -> Option<NodeId> {
-        self.node_names.find(name).map(NodeId)
+        self.node_names.find(name).map(node_id)
     }
 
     /// The name of `node`.
     pub fn node_name(&self, node: NodeId) -> &str {
-        self.node_names.get(node.0)
+        self.node_names.get(node.0 as usize)
     }
 
     /// Number of nodes, ground included.
@@ -228,7 +249,7 @@ impl Circuit {
         element: impl Element + 'static,
         pins: &[NodeId],
     ) -> Result<ElementId, CircuitError> {
-        self.add_boxed(name, Box::new(element), pins)
+        self.add_shared(name, Arc::new(element), pins)
     }
 
     /// Adds an already boxed element; see [`Circuit::add`].
@@ -236,6 +257,19 @@ impl Circuit {
         &mut self,
         name: &str,
         element: Box<dyn Element>,
+        pins: &[NodeId],
+    ) -> Result<ElementId, CircuitError> {
+        self.add_shared(name, Arc::from(element), pins)
+    }
+
+    /// Adds an element whose model other elements may share: identical devices (a ring's
+    /// thousands of equal inverters) then hold one copy of their parameters, built once and
+    /// read from cache at every evaluation. Elements are pure functions of their unknowns,
+    /// so sharing changes no result; see [`Circuit::add`].
+    pub fn add_shared(
+        &mut self,
+        name: &str,
+        element: Arc<dyn Element>,
         pins: &[NodeId],
     ) -> Result<ElementId, CircuitError> {
         let expected = element.terminals().len();
@@ -246,7 +280,10 @@ impl Circuit {
                 found: pins.len(),
             });
         }
-        if pins.iter().any(|p| p.0 >= self.node_names.len()) {
+        if pins.iter().any(|p| p.0 == u32::MAX) {
+            return Err(CircuitError::TooManyNodes(name.to_string()));
+        }
+        if pins.iter().any(|p| p.0 as usize >= self.node_names.len()) {
             return Err(CircuitError::ForeignNode(name.to_string()));
         }
         // Adding the name finds a duplicate too (one hash and probe per element).
@@ -278,7 +315,7 @@ impl Circuit {
                 found,
             });
         }
-        self.elements[id.0] = element;
+        self.elements[id.0] = Arc::from(element);
         Ok(())
     }
 
@@ -314,7 +351,7 @@ impl Circuit {
 
     /// Every node except ground, in creation order.
     pub fn nodes(&self) -> impl Iterator<Item = NodeId> {
-        (1..self.node_names.len()).map(NodeId)
+        (1..self.node_names.len()).map(node_id)
     }
 
     /// Number of elements.

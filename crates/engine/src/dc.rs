@@ -120,7 +120,7 @@ impl System {
             .iter()
             .map(|p| match *p {
                 Probe::Voltage(node) => {
-                    if node.0 > self.n_nodes {
+                    if node.0 as usize > self.n_nodes {
                         return Err(EngineError::Invalid(
                             "probe names a node of another circuit".into(),
                         ));
@@ -429,7 +429,7 @@ impl System {
                 "only an independent source can be set, to a finite value".into(),
             ));
         }
-        self.elements[e].set_constant_value(value);
+        self.element_mut(e).set_constant_value(value);
         Ok(())
     }
 
@@ -441,7 +441,7 @@ impl System {
         waveform: &crate::elements::Waveform,
     ) -> Result<(), EngineError> {
         let e = source.0;
-        if e >= self.elements.len() || !self.elements[e].set_waveform(waveform) {
+        if e >= self.elements.len() || !self.element_mut(e).set_waveform(waveform) {
             return Err(EngineError::Invalid(
                 "only an independent source can be given a waveform".into(),
             ));
@@ -480,7 +480,7 @@ impl System {
         let names = self.names_of(probes, &idx);
         let original = self.elements[e].boxed_clone();
         let result = self.sweep_inner(e, values, &idx, params);
-        self.elements[e] = original;
+        self.elements[e] = original.into();
         let (signals, info) = result?;
         Ok(SweepResult {
             values: values.to_vec(),
@@ -509,7 +509,7 @@ impl System {
         for &target in values {
             match current {
                 None => {
-                    self.elements[e].set_constant_value(target);
+                    self.element_mut(e).set_constant_value(target);
                     let info = self.operating_point_from(&mut x, &params.op, &[])?;
                     iterations += info.iterations;
                     op = Some(info);
@@ -525,7 +525,7 @@ impl System {
                         } else {
                             s + step
                         };
-                        self.elements[e].set_constant_value(next);
+                        self.element_mut(e).set_constant_value(next);
                         trial.copy_from_slice(&x);
                         if let Some((sp, xp)) = &prev {
                             if s != *sp {

@@ -156,6 +156,12 @@ const PASS_DEPTH: usize = 3;
 /// Column entries that search may read before it gives up (and the row is not held).
 const PASS_ENTRIES: usize = 1 << 16;
 
+/// A refresh that changes more than one unknown in this many examines every element once
+/// instead of each changed unknown's elements (see [`System::refreeze`]): an element has
+/// about three local unknowns, so past a quarter of the unknowns the whole list is the
+/// smaller walk, and it runs in memory order.
+const BULK_REFREEZE: usize = 4;
+
 /// Active share (active unknowns over all unknowns, after an accepted step's holds) above
 /// which latency falls back to the whole system, nothing held. On the demo 2D-FET ring of 21
 /// stages most unknowns stay active, and the dense LU of that active set plus the
@@ -824,7 +830,7 @@ impl System {
             return false;
         }
         let internal_ok =
-            match self.unknown_owner[u] {
+            match self.owner(u) {
                 None => true,
                 Some(e) => self.layout.local(e).iter().all(|&g| {
                     g == NONE32 || l.held[g as usize] || l.quiet[g as usize] >= QUIET_STEPS
@@ -1082,6 +1088,15 @@ impl System {
             .filter(|&e| !l.frozen[e as usize])
             .collect();
         assert_eq!(l.live, live, "live elements");
+        for e in 0..l.frozen.len() {
+            let want = !l.source[e]
+                && self
+                    .layout
+                    .local(e)
+                    .iter()
+                    .all(|&g| g == NONE32 || l.held[g as usize]);
+            assert_eq!(l.frozen[e], want, "element {e} frozen");
+        }
         let mut count = vec![0u32; self.n];
         for &e in &live {
             let e = e as usize;
@@ -1111,50 +1126,58 @@ impl System {
 
     /// Freezes and thaws the elements of the changed unknowns (`l.changed`, sorted), storing a
     /// newly frozen element's evaluation at `x`; lists the flipped elements and the rows they
-    /// touch (`l.flipped`, `l.dirty_rows`) and updates the wide rows' trees.
+    /// touch (`l.flipped`, `l.dirty_rows`) and marks the wide rows' trees.
+    ///
+    /// An element is frozen exactly when it is not a source and all its local unknowns are
+    /// held, and every unknown whose hold changed is listed, so only the changed unknowns'
+    /// elements can flip. When many changed (the start's holds take most of a circuit at
+    /// once), every element is examined once, in order, instead of once per changed unknown
+    /// it has: the same elements flip.
     fn refreeze(&self, l: &mut Latency, x: &[f64], ctx: &EvalContext) {
         l.dirty_rows.clear();
         l.flipped.clear();
-        for c in 0..l.changed.len() {
-            let u = l.changed[c];
-            for &(e, _) in self.layout.elements_of(u) {
-                let e = e as usize;
-                let local = self.layout.local(e);
-                let want = !l.source[e] && local.iter().all(|&g| g == NONE32 || l.held[g as usize]);
-                if want == l.frozen[e] {
-                    continue;
-                }
-                l.frozen[e] = want;
-                l.flipped.push(e as u32);
-                for &g in local.iter().filter(|&&g| g != NONE32) {
-                    if want {
-                        l.live_count[g as usize] -= 1;
-                    } else {
-                        l.live_count[g as usize] += 1;
-                    }
-                }
-                if want && !l.st_all {
-                    let stores = (&mut l.st_f[..], &mut l.st_q[..]);
-                    self.evaluate_into(e, x, ctx, stores, &mut l.scratch);
-                }
-                let plan = &self.layout.plan[e];
-                for (k, &g) in local.iter().enumerate() {
-                    let Some(t) = tree_of(&l.tree_of, g) else {
-                        continue;
-                    };
-                    let at = plan.map as usize + k;
-                    let leaf = if want {
-                        let q = if plan.charge { l.st_q[at] } else { 0.0 };
-                        [l.st_f[at], q, l.st_f[at].abs(), q.abs()]
-                    } else {
-                        [0.0; 4]
-                    };
-                    l.trees[t].set(l.adj_at[at] as usize, leaf);
-                }
-                for &g in local.iter().filter(|&&g| g != NONE32) {
-                    push_unique(&mut l.dirty_rows, &mut l.marks, g as usize);
+        if l.changed.len().saturating_mul(BULK_REFREEZE) > self.n {
+            for e in 0..l.frozen.len() {
+                self.flip(l, e, x, ctx);
+            }
+        } else {
+            for c in 0..l.changed.len() {
+                for &(e, _) in self.layout.elements_of(l.changed[c]) {
+                    self.flip(l, e as usize, x, ctx);
                 }
             }
+        }
+    }
+
+    /// Freezes or thaws element `e` if its local unknowns' holds ask for it (see
+    /// [`Self::refreeze`]).
+    fn flip(&self, l: &mut Latency, e: usize, x: &[f64], ctx: &EvalContext) {
+        let local = self.layout.local(e);
+        let want = !l.source[e] && local.iter().all(|&g| g == NONE32 || l.held[g as usize]);
+        if want == l.frozen[e] {
+            return;
+        }
+        l.frozen[e] = want;
+        l.flipped.push(e as u32);
+        for &g in local.iter().filter(|&&g| g != NONE32) {
+            if want {
+                l.live_count[g as usize] -= 1;
+            } else {
+                l.live_count[g as usize] += 1;
+            }
+        }
+        if want && !l.st_all {
+            let stores = (&mut l.st_f[..], &mut l.st_q[..]);
+            self.evaluate_into(e, x, ctx, stores, &mut l.scratch);
+        }
+        let map = self.layout.plan[e].map as usize;
+        for (k, &g) in local.iter().enumerate() {
+            if let Some(t) = tree_of(&l.tree_of, g) {
+                l.trees[t].mark(l.adj_at[map + k] as usize);
+            }
+        }
+        for &g in local.iter().filter(|&&g| g != NONE32) {
+            push_unique(&mut l.dirty_rows, &mut l.marks, g as usize);
         }
     }
 
@@ -1163,8 +1186,21 @@ impl System {
         sort_marked(&mut l.dirty_rows, &mut l.marks);
         for &r in &l.dirty_rows {
             if let Some(t) = tree_of(&l.tree_of, r as u32) {
-                let tree = &mut l.trees[t];
-                [l.fz_f[r], l.fz_q[r], l.fz_scale[r], l.fz_qscale[r]] = tree.total();
+                let (layout, elements) = (&self.layout, self.layout.elements_of(r));
+                let (frozen, st_f, st_q) = (&l.frozen, &l.st_f, &l.st_q);
+                let leaf = |p: usize| {
+                    let Some(&(e, k)) = elements.get(p) else {
+                        return [0.0; 4];
+                    };
+                    let plan = &layout.plan[e as usize];
+                    if !frozen[e as usize] {
+                        return [0.0; 4];
+                    }
+                    let at = plan.map as usize + k as usize;
+                    let q = if plan.charge { st_q[at] } else { 0.0 };
+                    [st_f[at], q, st_f[at].abs(), q.abs()]
+                };
+                [l.fz_f[r], l.fz_q[r], l.fz_scale[r], l.fz_qscale[r]] = l.trees[t].total(leaf);
                 continue;
             }
             let (mut f, mut q, mut sf, mut sq) = (0.0, 0.0, 0.0f64, 0.0f64);
@@ -1555,51 +1591,62 @@ const WIDE: usize = 64;
 /// elements in element order: a binary tree whose shape depends only on the row's degree, so
 /// the sums depend only on which elements are frozen, not on the order they froze in.
 ///
-/// Leaves are set first and their sums brought up to date when the total is read: along
-/// each changed leaf's path, or, when that would visit more nodes than the tree has (the
-/// first holds of a run freeze most of a supply's devices at once), by rebuilding every
-/// inner node. Either way each inner node ends as the sum of its two children, so the
-/// total is the same bit for bit.
+/// Leaves are not stored: they are the frozen elements' stored currents and charges, read
+/// when the sums are brought up to date. A leaf is marked when its element freezes or thaws,
+/// and the sums are brought up to date when the total is read: along each marked leaf's path,
+/// or, when that would visit more nodes than the tree has (the first holds of a run freeze
+/// most of a supply's devices at once), by rebuilding every inner node. Either way each inner
+/// node ends as the sum of its two children, so the total is the same bit for bit.
 struct SumTree {
+    /// Leaves, a power of two (at least 2): leaf `p` is node `size + p`.
     size: usize,
-    /// Per node: sum of `f`, sum of `q`, largest `|f|`, largest `|q|`.
+    /// Per inner node (1 to `size - 1`): sum of `f`, sum of `q`, largest `|f|`, largest `|q|`.
     node: Vec<[f64; 4]>,
-    /// Leaves set since the sums were last brought up to date.
+    /// Leaves marked since the sums were last brought up to date.
     changed: Vec<u32>,
 }
 
 impl SumTree {
     fn new(leaves: usize) -> Self {
-        let size = leaves.next_power_of_two();
+        let size = leaves.next_power_of_two().max(2);
         SumTree {
             size,
-            node: vec![[0.0; 4]; 2 * size],
+            node: vec![[0.0; 4]; size],
             changed: Vec::new(),
         }
     }
 
-    fn set(&mut self, pos: usize, leaf: [f64; 4]) {
-        self.node[self.size + pos] = leaf;
+    fn mark(&mut self, pos: usize) {
         self.changed.push(pos as u32);
     }
 
-    fn join(&mut self, i: usize) {
-        let (a, b) = (self.node[2 * i], self.node[2 * i + 1]);
+    /// Inner node `i` from its children (`leaf(p)`: leaf `p`'s value).
+    fn join(&mut self, i: usize, leaf: &impl Fn(usize) -> [f64; 4]) {
+        let child = |c: usize| {
+            if c >= self.size {
+                leaf(c - self.size)
+            } else {
+                self.node[c]
+            }
+        };
+        let (a, b) = (child(2 * i), child(2 * i + 1));
         self.node[i] = [a[0] + b[0], a[1] + b[1], a[2].max(b[2]), a[3].max(b[3])];
     }
 
-    fn total(&mut self) -> [f64; 4] {
+    /// The sums over every leaf, `leaf(p)` giving leaf `p`'s value (zero past the row's
+    /// elements and for live ones).
+    fn total(&mut self, leaf: impl Fn(usize) -> [f64; 4]) -> [f64; 4] {
         let depth = self.size.trailing_zeros() as usize;
         if self.changed.len() * depth > self.size {
             for i in (1..self.size).rev() {
-                self.join(i);
+                self.join(i, &leaf);
             }
         } else {
             for c in 0..self.changed.len() {
                 let mut i = self.size + self.changed[c] as usize;
                 while i > 1 {
                     i /= 2;
-                    self.join(i);
+                    self.join(i, &leaf);
                 }
             }
         }

@@ -130,9 +130,10 @@ impl FixedPivot {
         let mut b_row = Vec::with_capacity(row_idx.len());
         b_ptr.push(0);
         for &ac in col_fwd {
+            // Every slot and row index fits 32 bits (checked by `SparseLu::new`).
             for slot in col_ptr[ac]..col_ptr[ac + 1] {
-                b_slot.push(slot);
-                b_row.push(row_inv[row_idx[slot]]);
+                b_slot.push(slot as u32);
+                b_row.push(row_inv[row_idx[slot]] as u32);
             }
             b_ptr.push(b_slot.len());
         }
@@ -146,7 +147,7 @@ impl FixedPivot {
         let mut u_row = Vec::with_capacity(off);
         let mut l_ptr = Vec::with_capacity(n + 1);
         l_ptr.push(0);
-        let mut l_row: Vec<usize> = Vec::with_capacity(off);
+        let mut l_row: Vec<u32> = Vec::with_capacity(off);
         let mut mark = vec![usize::MAX; n];
         let mut heap = std::collections::BinaryHeap::new();
         let mut lower = Vec::new();
@@ -166,34 +167,33 @@ impl FixedPivot {
                 }
             };
             for &r in &b_row[b_ptr[j]..b_ptr[j + 1]] {
-                visit(r, &mut heap, &mut lower, &mut mark);
+                visit(r as usize, &mut heap, &mut lower, &mut mark);
             }
             while let Some(std::cmp::Reverse(k)) = heap.pop() {
-                u_row.push(k);
+                u_row.push(k as u32);
                 for &i in &l_row[l_ptr[k]..l_ptr[k + 1]] {
-                    visit(i, &mut heap, &mut lower, &mut mark);
+                    visit(i as usize, &mut heap, &mut lower, &mut mark);
                 }
             }
             u_ptr.push(u_row.len());
             lower.sort_unstable();
-            l_row.extend_from_slice(&lower);
+            l_row.extend(lower.iter().map(|&i| i as u32));
             l_ptr.push(l_row.len());
         }
         let (nu, nl) = (u_row.len(), l_row.len());
         // Every stored index is < n (rows) or < nnz (slots); the numeric loops rely on it.
-        let narrow = |v: Vec<usize>| -> Vec<u32> { v.into_iter().map(|i| i as u32).collect() };
         FixedPivot {
             row_fwd: row_fwd.to_vec(),
             col_fwd: col_fwd.to_vec(),
             b_ptr,
-            b_slot: narrow(b_slot),
-            b_row: narrow(b_row),
+            b_slot,
+            b_row,
             u_ptr,
-            u_row: narrow(u_row),
+            u_row,
             u_val: vec![0.0; nu],
             diag: vec![0.0; n],
             l_ptr,
-            l_row: narrow(l_row),
+            l_row,
             l_val: vec![0.0; nl],
             work: vec![0.0; n],
         }
@@ -370,6 +370,13 @@ impl SparseLu {
     /// at once and no AMD order.
     pub fn new(pattern: SymbolicSparseColMat<usize>, strategy: LuStrategy) -> Result<Self, String> {
         let n = pattern.nrows();
+        // The fixed-order factors keep row indices and slots in 32 bits.
+        if n >= u32::MAX as usize || pattern.row_idx().len() >= u32::MAX as usize {
+            return Err(format!(
+                "a matrix of {n} unknowns and {} entries is too large to factorise",
+                pattern.row_idx().len()
+            ));
+        }
         let (order, faer) = match strategy {
             LuStrategy::FaerOnly => (Vec::new(), Some(Faer::new(&pattern)?)),
             LuStrategy::FixedPivot => (amd_order(&pattern)?, None),

@@ -100,12 +100,13 @@
 //! With `TransientParams::latency`, Newton in a transient solves the active unknowns only and
 //! holds and checks the latent ones (the `latency` module).
 
-use crate::circuit::{Circuit, ElementId, Names, NodeId};
+use crate::circuit::{node_id, Circuit, ElementId, Names, NodeId};
 use crate::element::{Analysis, Element, EvalContext, Stamp, UnknownKind};
 use crate::error::{Culprit, EngineError};
 use crate::latency::Latency;
 use crate::lu::{LuStats, LuStrategy, Singular, SparseLu};
 use faer::sparse::SymbolicSparseColMat;
+use std::sync::Arc;
 
 pub(crate) const NONE: usize = usize::MAX;
 /// Elements with at most this many local unknowns are evaluated into stack buffers.
@@ -424,7 +425,7 @@ impl Reduction {
     /// nothing would be left).
     #[allow(clippy::too_many_arguments)]
     fn build(
-        elements: &[Box<dyn Element>],
+        elements: &[Arc<dyn Element>],
         pin_start: &[usize],
         pins: &[NodeId],
         (plan, map32): (&[Plan], &[u32]),
@@ -753,7 +754,7 @@ fn scratch_for(buf: &mut Vec<f64>, len: usize) {
 ///
 /// Build it once with [`System::new`] and run any number of analyses on it.
 pub struct System {
-    pub(crate) elements: Vec<Box<dyn Element>>,
+    pub(crate) elements: Vec<Arc<dyn Element>>,
     element_names: Names,
     /// Element `e`'s pins are `pins[pin_start[e]..pin_start[e + 1]]`.
     pins: Vec<NodeId>,
@@ -762,7 +763,8 @@ pub struct System {
     pub(crate) n: usize,
     pub(crate) n_nodes: usize,
     pub(crate) kinds: Vec<UnknownKind>,
-    pub(crate) unknown_owner: Vec<Option<usize>>,
+    /// Per unknown: the element owning it (`NONE32` for a node voltage); see [`Self::owner`].
+    unknown_owner: Vec<u32>,
     pub(crate) layout: Layout,
     pub(crate) pattern: SymbolicSparseColMat<usize>,
     pub(crate) charge_rows: Vec<usize>,
@@ -848,13 +850,17 @@ impl System {
                  {what}"
             ))
         };
-        if n_all >= NONE32 as usize || locals >= NONE32 as usize || slot_count >= NONE32 as usize {
+        if n_all >= NONE32 as usize
+            || ne >= NONE32 as usize
+            || locals >= NONE32 as usize
+            || slot_count >= NONE32 as usize
+        {
             return Err(too_large(&format!("{slot_count} element matrix entries")));
         }
         let mut kinds = Vec::with_capacity(n_all);
         kinds.resize(n_nodes, UnknownKind::Voltage);
         let mut unknown_owner = Vec::with_capacity(n_all);
-        unknown_owner.resize(n_nodes, None);
+        unknown_owner.resize(n_nodes, NONE32);
         let mut linear_unknown = Vec::with_capacity(n_all);
         linear_unknown.resize(n_nodes, false);
         // Per element, where its local unknowns and slots start (`Plan`), and every element's
@@ -867,17 +873,13 @@ impl System {
         for (e, element) in elements.iter().enumerate() {
             let map_at = map32.len();
             for p in &pins[pin_start[e]..pin_start[e + 1]] {
-                map32.push(if p.is_ground() {
-                    NONE32
-                } else {
-                    (p.0 - 1) as u32
-                });
+                map32.push(if p.is_ground() { NONE32 } else { p.0 - 1 });
             }
             for internal in element.internals() {
                 let idx = kinds.len();
                 linear_unknown.push(element.is_ideal_voltage_source());
                 kinds.push(internal.kind);
-                unknown_owner.push(Some(e));
+                unknown_owner.push(e as u32);
                 map32.push(idx as u32);
             }
             let nl = map32.len() - map_at;
@@ -1074,7 +1076,7 @@ impl System {
     /// The name of unknown `i`: `node out` for a node voltage, `element.internal` (such as
     /// `supply.i`) for an element's own unknown.
     pub fn unknown_name(&self, i: usize) -> String {
-        match self.unknown_owner[i] {
+        match self.owner(i) {
             None => node_label(self.node_names.get(i + 1)),
             Some(e) => {
                 // The element's internals follow its pins, numbered in order.
@@ -1124,7 +1126,7 @@ impl System {
 
     /// The unknown holding the voltage of `node` (`None` for ground).
     pub fn node_unknown(&self, node: NodeId) -> Option<usize> {
-        (!node.is_ground()).then(|| node.0 - 1)
+        (!node.is_ground()).then(|| node.0 as usize - 1)
     }
 
     /// The unknown of the first branch current an element owns, if any.
@@ -1144,7 +1146,7 @@ impl System {
 
     /// The name of a node.
     pub fn node_name(&self, node: NodeId) -> &str {
-        self.node_names.get(node.0)
+        self.node_names.get(node.0 as usize)
     }
 
     /// The element called `name`, if any.
@@ -1154,7 +1156,7 @@ impl System {
 
     /// The node called `name`, if any.
     pub fn find_node(&self, name: &str) -> Option<NodeId> {
-        self.node_names.find(name).map(NodeId)
+        self.node_names.find(name).map(node_id)
     }
 
     pub(crate) fn element_name(&self, e: usize) -> &str {
@@ -1405,6 +1407,23 @@ impl System {
                 x[p.node] += step;
             }
         }
+    }
+
+    /// Element `e` for changing: a model shared with other elements is copied first, so the
+    /// change is this element's alone.
+    pub(crate) fn element_mut(&mut self, e: usize) -> &mut dyn Element {
+        let element = &mut self.elements[e];
+        if Arc::get_mut(element).is_none() {
+            *element = Arc::from(element.boxed_clone());
+        }
+        Arc::get_mut(element).expect("a fresh copy has no other owner")
+    }
+
+    /// The element owning unknown `u` (an internal unknown), or `None` for a node voltage.
+    pub(crate) fn owner(&self, u: usize) -> Option<usize> {
+        Some(self.unknown_owner[u])
+            .filter(|&e| e != NONE32)
+            .map(|e| e as usize)
     }
 
     /// The number of pins of element `e` (its internal unknowns follow them).
@@ -1687,7 +1706,7 @@ impl System {
     /// Names an unknown together with the elements attached to it.
     pub(crate) fn culprit(&self, unknown: usize, value: f64, tolerance: f64) -> Culprit {
         let mut elements = Vec::new();
-        if let Some(owner) = self.unknown_owner.get(unknown).copied().flatten() {
+        if let Some(owner) = (unknown < self.n).then(|| self.owner(unknown)).flatten() {
             elements.push(format!(
                 "{} ({})",
                 self.element_names.get(owner),
@@ -1696,7 +1715,10 @@ impl System {
         } else {
             for e in 0..self.elements.len() {
                 let pins = &self.pins[self.pin_start[e]..self.pin_start[e + 1]];
-                if pins.iter().any(|p| !p.is_ground() && p.0 - 1 == unknown) {
+                if pins
+                    .iter()
+                    .any(|p| !p.is_ground() && p.0 as usize - 1 == unknown)
+                {
                     elements.push(format!(
                         "{} ({})",
                         self.element_names.get(e),

@@ -442,7 +442,7 @@ impl System {
                     .into_iter()
                     .find(|&(node, _)| clamps.iter().any(|&(i, _)| i == node))
                 {
-                    let source = self.unknown_owner[branch].map_or("?", |e| self.element_name(e));
+                    let source = self.owner(branch).map_or("?", |e| self.element_name(e));
                     return Err(EngineError::Invalid(format!(
                         "the start clamps {}, which the ideal source `{source}` holds at its own \
                          value; clamp other nodes, or set the source's value instead",
