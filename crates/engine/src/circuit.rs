@@ -2,6 +2,7 @@
 
 use crate::element::Element;
 use foldhash::fast::FixedState;
+use hashbrown::hash_table::Entry;
 use hashbrown::HashTable;
 use std::fmt;
 use std::hash::BuildHasher;
@@ -123,21 +124,35 @@ impl Names {
             .map(|&i| i as usize)
     }
 
-    /// Adds `name` and returns its index, or the index it already has as the error.
+    /// Adds `name` and returns its index, or the index it already has as the error (one
+    /// probe of the index finds a repeat and the new name's place).
     pub(crate) fn push(&mut self, name: &str) -> Result<usize, usize> {
         let hash = Self::hash(name);
-        if let Some(i) = self.find_hashed(name, hash) {
-            return Err(i);
-        }
         let i = self.ends.len();
-        self.text.push_str(name);
-        self.ends.push(self.text.len());
+        let Names { text, ends, index } = self;
         // Names past u32::MAX go unindexed: a circuit that large is refused when compiled.
-        if let Ok(k) = u32::try_from(i) {
-            let Names { text, ends, index } = self;
-            index.insert_unique(hash, k, |&k| Self::hash(name_at(text, ends, k as usize)));
+        let Ok(k) = u32::try_from(i) else {
+            if let Some(found) = self.find_hashed(name, hash) {
+                return Err(found);
+            }
+            self.text.push_str(name);
+            self.ends.push(self.text.len());
+            return Ok(i);
+        };
+        let entry = index.entry(
+            hash,
+            |&j| name_at(text, ends, j as usize) == name,
+            |&j| Self::hash(name_at(text, ends, j as usize)),
+        );
+        match entry {
+            Entry::Occupied(found) => Err(*found.get() as usize),
+            Entry::Vacant(slot) => {
+                slot.insert(k);
+                text.push_str(name);
+                ends.push(text.len());
+                Ok(i)
+            }
         }
-        Ok(i)
     }
 
     /// Room for `more` names of about `bytes` bytes each.

@@ -133,7 +133,7 @@
 
 use crate::element::{Analysis, EvalContext, UnknownKind};
 use crate::lu::{DenseLu, LuStrategy, Singular, SparseLu};
-use crate::system::{Layout, LocalScratch, System, Tolerances, NONE, NONE32};
+use crate::system::{Layout, LocalScratch, Stores, System, Tolerances, NONE, NONE32};
 use faer::sparse::SymbolicSparseColMat;
 use std::cmp::Reverse;
 use std::collections::BinaryHeap;
@@ -255,9 +255,11 @@ pub(crate) struct Latency {
     /// Per element: frozen, never frozen (sources).
     frozen: Vec<bool>,
     source: Vec<bool>,
-    /// Stored currents and charges of frozen elements at their `Plan::map` offsets.
+    /// Stored currents and charges of frozen elements: the currents at their `Plan::map`
+    /// offsets, the charges of elements with charge at `q_at` (see [`Stores`]).
     st_f: Vec<f64>,
     st_q: Vec<f64>,
+    q_at: Vec<u32>,
     /// `st_f` and `st_q` hold every element's evaluation at the start state and time: set by
     /// the holds at the start from their assembly for the refresh they run at once (freezing
     /// an element there evaluates nothing), and cleared by them after it.
@@ -440,11 +442,21 @@ impl System {
             eq_row[node] = branch;
             eq_row[branch] = node;
         }
-        let (count, adj) = (&self.layout.adj_ptr, &self.layout.adj);
+        let count = &self.layout.adj_ptr;
         let locs = self.layout.map32.len();
+        // Charges are kept for the elements with charge only, packed in element order.
+        let mut q_at = vec![NONE32; ne];
+        let mut charge_locs = 0usize;
+        for (e, plan) in self.layout.plan.iter().enumerate() {
+            if plan.charge {
+                q_at[e] = charge_locs as u32;
+                charge_locs += plan.local as usize;
+            }
+        }
         let mut adj_at = vec![0u32; locs];
         for r in 0..n {
-            for (i, &(e, k)) in adj[count[r]..count[r + 1]].iter().enumerate() {
+            let (elements, at) = self.layout.elements_of(r);
+            for (i, (&e, &k)) in elements.iter().zip(at).enumerate() {
                 adj_at[self.layout.plan[e as usize].map as usize + k as usize] = i as u32;
             }
         }
@@ -489,7 +501,8 @@ impl System {
                 .map(|e| e.is_independent_source())
                 .collect(),
             st_f: vec![0.0; locs],
-            st_q: vec![0.0; locs],
+            st_q: vec![0.0; charge_locs],
+            q_at,
             st_all: false,
             scratch: LocalScratch::new(self.max_local()),
             adj_at,
@@ -719,7 +732,12 @@ impl System {
         };
         // Every element's evaluation is kept: the refresh below, if any row is held, runs at
         // the same state and time and freezes from it instead of evaluating each again.
-        self.assemble_keeping(x, &ctx, a0, (&mut l.st_f, &mut l.st_q));
+        let keep = Stores {
+            f: &mut l.st_f,
+            q: &mut l.st_q,
+            q_at: &l.q_at,
+        };
+        self.assemble_keeping(x, &ctx, a0, keep);
         l.st_all = true;
         l.keep_scale(&self.scale);
         for w in 0..l.work.len() {
@@ -1142,7 +1160,7 @@ impl System {
             }
         } else {
             for c in 0..l.changed.len() {
-                for &(e, _) in self.layout.elements_of(l.changed[c]) {
+                for &e in self.layout.elements_of(l.changed[c]).0 {
                     self.flip(l, e as usize, x, ctx);
                 }
             }
@@ -1167,7 +1185,11 @@ impl System {
             }
         }
         if want && !l.st_all {
-            let stores = (&mut l.st_f[..], &mut l.st_q[..]);
+            let stores = Stores {
+                f: &mut l.st_f,
+                q: &mut l.st_q,
+                q_at: &l.q_at,
+            };
             self.evaluate_into(e, x, ctx, stores, &mut l.scratch);
         }
         let map = self.layout.plan[e].map as usize;
@@ -1186,33 +1208,41 @@ impl System {
         sort_marked(&mut l.dirty_rows, &mut l.marks);
         for &r in &l.dirty_rows {
             if let Some(t) = tree_of(&l.tree_of, r as u32) {
-                let (layout, elements) = (&self.layout, self.layout.elements_of(r));
-                let (frozen, st_f, st_q) = (&l.frozen, &l.st_f, &l.st_q);
+                let (layout, (elements, at)) = (&self.layout, self.layout.elements_of(r));
+                let (frozen, st_f, st_q, q_at) = (&l.frozen, &l.st_f, &l.st_q, &l.q_at);
                 let leaf = |p: usize| {
-                    let Some(&(e, k)) = elements.get(p) else {
+                    let (Some(&e), Some(&k)) = (elements.get(p), at.get(p)) else {
                         return [0.0; 4];
                     };
-                    let plan = &layout.plan[e as usize];
-                    if !frozen[e as usize] {
+                    let (e, k) = (e as usize, k as usize);
+                    if !frozen[e] {
                         return [0.0; 4];
                     }
-                    let at = plan.map as usize + k as usize;
-                    let q = if plan.charge { st_q[at] } else { 0.0 };
-                    [st_f[at], q, st_f[at].abs(), q.abs()]
+                    let plan = &layout.plan[e];
+                    let f = st_f[plan.map as usize + k];
+                    let q = if plan.charge {
+                        st_q[q_at[e] as usize + k]
+                    } else {
+                        0.0
+                    };
+                    [f, q, f.abs(), q.abs()]
                 };
                 [l.fz_f[r], l.fz_q[r], l.fz_scale[r], l.fz_qscale[r]] = l.trees[t].total(leaf);
                 continue;
             }
             let (mut f, mut q, mut sf, mut sq) = (0.0, 0.0, 0.0f64, 0.0f64);
-            for &(e, k) in self.layout.elements_of(r) {
+            let (elements, at) = self.layout.elements_of(r);
+            for (&e, &k) in elements.iter().zip(at) {
                 let e = e as usize;
                 if !l.frozen[e] {
                     continue;
                 }
-                let at = self.layout.plan[e].map as usize + k as usize;
+                let plan = &self.layout.plan[e];
+                let at = plan.map as usize + k as usize;
                 f += l.st_f[at];
                 sf = sf.max(l.st_f[at].abs());
-                if self.layout.plan[e].charge {
+                if plan.charge {
+                    let at = l.q_at[e] as usize + k as usize;
                     q += l.st_q[at];
                     sq = sq.max(l.st_q[at].abs());
                 }
@@ -1694,7 +1724,7 @@ fn tree_of(tree_of: &[u32], r: u32) -> Option<usize> {
 /// unknown is latent only with all of its element's unknowns).
 fn wake(l: &mut Latency, u: usize, layout: &Layout) {
     l.release(u);
-    for &(e, _) in layout.elements_of(u) {
+    for &e in layout.elements_of(u).0 {
         let e = e as usize;
         let pins = layout.plan[e].pins as usize;
         for &g in &layout.local(e)[pins..] {

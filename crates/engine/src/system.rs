@@ -671,9 +671,10 @@ pub(crate) struct Layout {
     row_slot_ptr: Vec<usize>,
     row_slots: Vec<u32>,
     /// Per unknown `u`: the elements that have it as a local unknown, with its local index,
-    /// in element order (`adj[adj_ptr[u]..adj_ptr[u + 1]]`).
+    /// in element order (`adj_e` and `adj_k` from `adj_ptr[u]` to `adj_ptr[u + 1]`).
     pub(crate) adj_ptr: Vec<usize>,
-    pub(crate) adj: Vec<(u32, u8)>,
+    adj_e: Vec<u32>,
+    adj_k: Vec<u8>,
     /// Per element: where its local unknowns and slots start; every element's local
     /// unknowns (`NONE32`: ground), and its slots local row by local column.
     pub(crate) plan: Vec<Plan>,
@@ -688,16 +689,17 @@ impl Layout {
         &self.map32[p.map as usize..][..p.local as usize]
     }
 
-    /// The elements that have unknown `u` as a local unknown, with its local index, in
-    /// element order.
-    pub(crate) fn elements_of(&self, u: usize) -> &[(u32, u8)] {
-        &self.adj[self.adj_ptr[u]..self.adj_ptr[u + 1]]
+    /// The elements that have unknown `u` as a local unknown, in element order, and its
+    /// local index in each.
+    pub(crate) fn elements_of(&self, u: usize) -> (&[u32], &[u8]) {
+        let range = self.adj_ptr[u]..self.adj_ptr[u + 1];
+        (&self.adj_e[range.clone()], &self.adj_k[range])
     }
 }
 
 /// Per unknown, the elements that have it as a local unknown with the local index, in element
-/// order, as compressed lists: `(ptr, entries)`.
-fn element_adjacency(map32: &[u32], plan: &[Plan], n: usize) -> (Vec<usize>, Vec<(u32, u8)>) {
+/// order, as compressed lists: `(ptr, elements, local indices)`.
+fn element_adjacency(map32: &[u32], plan: &[Plan], n: usize) -> (Vec<usize>, Vec<u32>, Vec<u8>) {
     let mut ptr = vec![0usize; n + 1];
     for &g in map32 {
         if g != NONE32 {
@@ -707,18 +709,19 @@ fn element_adjacency(map32: &[u32], plan: &[Plan], n: usize) -> (Vec<usize>, Vec
     for r in 0..n {
         ptr[r + 1] += ptr[r];
     }
-    let mut adj = vec![(0u32, 0u8); ptr[n]];
+    let (mut adj_e, mut adj_k) = (vec![0u32; ptr[n]], vec![0u8; ptr[n]]);
     let mut fill = ptr.clone();
     for (e, p) in plan.iter().enumerate() {
         let local = &map32[p.map as usize..][..p.local as usize];
         for (k, &g) in local.iter().enumerate() {
             if g != NONE32 {
-                adj[fill[g as usize]] = (e as u32, k as u8);
+                let at = fill[g as usize];
+                (adj_e[at], adj_k[at]) = (e as u32, k as u8);
                 fill[g as usize] += 1;
             }
         }
     }
-    (ptr, adj)
+    (ptr, adj_e, adj_k)
 }
 
 /// Buffers for evaluating one element of more than `SMALL` local unknowns alone (its local
@@ -729,6 +732,8 @@ pub(crate) struct LocalScratch {
     x: Vec<f64>,
     df: Vec<f64>,
     dq: Vec<f64>,
+    /// The charges of an element without charge, which [`Stores`] does not keep.
+    q: Vec<f64>,
 }
 
 impl LocalScratch {
@@ -738,8 +743,19 @@ impl LocalScratch {
             x: vec![0.0; local],
             df: vec![0.0; local * local],
             dq: vec![0.0; local * local],
+            q: vec![0.0; local],
         }
     }
+}
+
+/// Stored local currents and charges of elements (the latency partition's frozen values):
+/// element `e`'s currents at its `Plan::map` offset in `f`, and, for an element with charge,
+/// its charges at `q_at[e]` in `q` (elements without charge keep none: a square-law ring's
+/// devices, say).
+pub(crate) struct Stores<'a> {
+    pub(crate) f: &'a mut [f64],
+    pub(crate) q: &'a mut [f64],
+    pub(crate) q_at: &'a [u32],
 }
 
 /// Zeroes `buf`'s first `len` entries, growing it to `len` if it is shorter.
@@ -905,7 +921,7 @@ impl System {
 
         // Per unknown, the elements that have it as a local unknown, with the local index, in
         // element order.
-        let (adj_ptr, adj) = element_adjacency(&map32, &plan, n);
+        let (adj_ptr, adj_e, adj_k) = element_adjacency(&map32, &plan, n);
         // Compressed columns with sorted, unique rows: every element's local pairs and the
         // diagonal (branch rows of voltage-defined elements have a zero diagonal; it stays in
         // the pattern so that clamps and pseudo-transient terms can use it). Row `r` is added
@@ -914,7 +930,7 @@ impl System {
         // holds tens of thousands of rows).
         let each_column = |r: usize, f: &mut dyn FnMut(usize)| {
             f(r);
-            for &(e, _) in &adj[adj_ptr[r]..adj_ptr[r + 1]] {
+            for &e in &adj_e[adj_ptr[r]..adj_ptr[r + 1]] {
                 for &c in local_of(e as usize) {
                     if c != NONE32 {
                         f(c as usize);
@@ -962,7 +978,8 @@ impl System {
                 at[row_idx[s]] = s;
             }
             diag_slot[c] = at[c] as u32;
-            for &(e, k) in &adj[adj_ptr[c]..adj_ptr[c + 1]] {
+            let range = adj_ptr[c]..adj_ptr[c + 1];
+            for (&e, &k) in adj_e[range.clone()].iter().zip(&adj_k[range]) {
                 let (local, slot) = (local_of(e as usize), plan[e as usize].slot as usize);
                 let nl = local.len();
                 for (j, &r) in local.iter().enumerate() {
@@ -1027,7 +1044,8 @@ impl System {
             unknown_owner,
             layout: Layout {
                 adj_ptr,
-                adj,
+                adj_e,
+                adj_k,
                 diag_slot,
                 row_slot_ptr,
                 row_slots,
@@ -1170,14 +1188,14 @@ impl System {
     }
 
     /// [`System::assemble`], also writing every element's local currents and charges into
-    /// `keep` at its `Plan::map` offset: what [`System::evaluate_into`] would store for each
-    /// element at the same `x` and `ctx`, bit for bit (the same evaluation).
+    /// `keep`: what [`System::evaluate_into`] would store for each element at the same `x`
+    /// and `ctx`, bit for bit (the same evaluation).
     pub(crate) fn assemble_keeping(
         &mut self,
         x: &[f64],
         ctx: &EvalContext,
         a0: f64,
-        keep: (&mut [f64], &mut [f64]),
+        keep: Stores<'_>,
     ) {
         self.assemble_with(x, ctx, a0, None, false, Some(keep));
     }
@@ -1194,7 +1212,7 @@ impl System {
         a0: f64,
         rule: Option<BypassRule>,
         live: bool,
-        mut keep: Option<(&mut [f64], &mut [f64])>,
+        mut keep: Option<Stores<'_>>,
     ) {
         if rule.is_some() {
             self.bypass.prepare(&self.layout, ctx.analysis);
@@ -1306,30 +1324,41 @@ impl System {
             if plan.bypass && rule.is_none() {
                 evaluations.evaluated += 1;
             }
-            if let Some((kf, kq)) = keep.as_mut() {
+            if let Some(k) = keep.as_mut() {
                 let at = plan.map as usize;
-                kf[at..at + nl].copy_from_slice(fb);
-                kq[at..at + nl].copy_from_slice(qb);
+                k.f[at..at + nl].copy_from_slice(fb);
+                if charge {
+                    let at = k.q_at[e] as usize;
+                    k.q[at..at + nl].copy_from_slice(qb);
+                }
             }
             out.scatter(map, slots, charge, a0, fb, qb, dfb, dqb);
         }
     }
 
     /// Evaluates element `e` alone at `x` and writes its local currents and charges into
-    /// `f` and `q` at its `Plan::map` offset (`scratch` for an element of more than `SMALL`
-    /// local unknowns).
+    /// `stores` (`scratch` for an element of more than `SMALL` local unknowns, and for the
+    /// charges of an element without charge, which are not kept).
     pub(crate) fn evaluate_into(
         &self,
         e: usize,
         x: &[f64],
         ctx: &EvalContext,
-        (f, q): (&mut [f64], &mut [f64]),
+        stores: Stores<'_>,
         scratch: &mut LocalScratch,
     ) {
         let plan = &self.layout.plan[e];
         let (lo, nl) = (plan.map as usize, plan.local as usize);
-        let (fs, qs) = (&mut f[lo..lo + nl], &mut q[lo..lo + nl]);
-        self.evaluate_local(e, x, ctx, fs, qs, scratch, |_| {});
+        let fs = &mut stores.f[lo..lo + nl];
+        if plan.charge {
+            let at = stores.q_at[e] as usize;
+            self.evaluate_local(e, x, ctx, fs, &mut stores.q[at..at + nl], scratch, |_| {});
+        } else {
+            let mut spare = std::mem::take(&mut scratch.q);
+            scratch_for(&mut spare, nl);
+            self.evaluate_local(e, x, ctx, fs, &mut spare[..nl], scratch, |_| {});
+            scratch.q = spare;
+        }
     }
 
     /// Evaluates element `e` alone at `x` into its local currents `fs` and charges `qs`, and
@@ -1362,7 +1391,7 @@ impl System {
             self.elements[e].evaluate(&xs[..nl], ctx, stamp);
             with_df(&df[..nl * nl]);
         } else {
-            let LocalScratch { x: xs, df, dq } = scratch;
+            let LocalScratch { x: xs, df, dq, .. } = scratch;
             scratch_for(xs, nl);
             scratch_for(df, nl * nl);
             scratch_for(dq, nl * nl);

@@ -278,7 +278,8 @@ pub struct TransientStats {
 pub struct TransientResult {
     /// Sample times.
     pub time: Vec<f64>,
-    /// One vector per probe (named by [`System::probe_names`]), one entry per sample time.
+    /// One vector per probe (named by [`System::probe_names`]), one entry per sample time;
+    /// none with [`Output::Streaming`], which stores nothing.
     pub signals: Vec<Vec<f64>>,
     /// Run counters.
     pub stats: TransientStats,
@@ -1132,6 +1133,8 @@ impl Recorder {
             Output::Decimated(max) => Some(Decimator::new(max, m)),
             _ => None,
         };
+        // Streaming keeps nothing per probe (a long ring's run watches tens of thousands).
+        let m = if mode == Output::Streaming { 0 } else { m };
         Recorder {
             mode,
             time: Vec::new(),
@@ -1158,7 +1161,7 @@ impl Recorder {
                     d.push(t, values);
                 }
             }
-            Output::Streaming => {}
+            Output::Streaming => return,
         }
         self.last_t = t;
         self.last.copy_from_slice(values);
