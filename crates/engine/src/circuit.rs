@@ -72,8 +72,8 @@ impl fmt::Display for CircuitError {
             }
             CircuitError::TooManyNodes(element) => write!(
                 f,
-                "element `{element}` refers to a node past the {} a circuit can hold; split the \
-                 circuit",
+                "element `{element}` refers to a node past the {} nodes a circuit can hold; \
+                 split the circuit",
                 u32::MAX - 1
             ),
         }

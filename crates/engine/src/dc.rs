@@ -441,7 +441,11 @@ impl System {
         waveform: &crate::elements::Waveform,
     ) -> Result<(), EngineError> {
         let e = source.0;
-        if e >= self.elements.len() || !self.element_mut(e).set_waveform(waveform) {
+        // A shared model is copied only for an element that takes a waveform (a source).
+        if e >= self.elements.len()
+            || !self.elements[e].is_independent_source()
+            || !self.element_mut(e).set_waveform(waveform)
+        {
             return Err(EngineError::Invalid(
                 "only an independent source can be given a waveform".into(),
             ));

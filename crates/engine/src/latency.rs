@@ -444,6 +444,17 @@ impl System {
         }
         let count = &self.layout.adj_ptr;
         let locs = self.layout.map32.len();
+        // Nothing is held yet: only an element with every pin on ground (no unknown to hold)
+        // starts frozen, as the rule "not a source, every local unknown held" has it.
+        let source: Vec<bool> = self
+            .elements
+            .iter()
+            .map(|e| e.is_independent_source())
+            .collect();
+        let frozen: Vec<bool> = (0..ne)
+            .map(|e| !source[e] && self.layout.local(e).iter().all(|&g| g == NONE32))
+            .collect();
+        let live = (0..ne as u32).filter(|&e| !frozen[e as usize]).collect();
         // Charges are kept for the elements with charge only, packed in element order.
         let mut q_at = vec![NONE32; ne];
         let mut charge_locs = 0usize;
@@ -494,12 +505,8 @@ impl System {
             qtol: vec![f64::INFINITY; n],
             eq_row,
             pos: vec![NONE; n],
-            frozen: vec![false; ne],
-            source: self
-                .elements
-                .iter()
-                .map(|e| e.is_independent_source())
-                .collect(),
+            frozen,
+            source,
             st_f: vec![0.0; locs],
             st_q: vec![0.0; charge_locs],
             q_at,
@@ -510,7 +517,7 @@ impl System {
             fz_q: vec![0.0; n],
             fz_scale: vec![0.0; n],
             fz_qscale: vec![0.0; n],
-            live: (0..ne as u32).collect(),
+            live,
             live_count,
             active: Vec::new(),
             gather: Vec::new(),
@@ -1737,9 +1744,9 @@ fn wake(l: &mut Latency, u: usize, layout: &Layout) {
 
 #[cfg(test)]
 mod tests {
-    use super::{push_unique, sort_marked, sort_unique};
-    use crate::elements::{Capacitor, CurrentSource, Waveform};
-    use crate::{Circuit, System, Tolerances};
+    use super::{push_unique, sort_marked, sort_unique, WIDE};
+    use crate::elements::{Capacitor, CurrentSource, Resistor, VoltageSource, Waveform};
+    use crate::{Circuit, OpParams, Output, Probe, Start, System, Tolerances, TransientParams};
 
     /// The evaluations kept by the holds at the start serve their own refresh only: when no
     /// row passes the hold test there (a node at rest on a large capacitor whose current does
@@ -1764,6 +1771,69 @@ mod tests {
         let l = s.latency.as_ref().unwrap();
         assert!(!l.held[0], "the node's current fails the hold test");
         assert!(!l.st_all);
+    }
+
+    /// A step travels down an RC line whose nodes also leak to a supply (a row of more than
+    /// `WIDE` elements, summed in a tree), beside an element with every pin on ground: the
+    /// partition check, run after every refresh in these tests, sees the start's bulk refresh
+    /// and the later ones through the changed unknowns, and the latent run follows the whole
+    /// system's.
+    #[test]
+    fn the_partition_stays_whole_through_bulk_and_single_refreshes() {
+        let build = || {
+            let mut c = Circuit::new();
+            let supply = c.node("supply");
+            c.add("vs", VoltageSource::dc(1.0), &[supply, Circuit::GROUND])
+                .unwrap();
+            let drive = c.node("drive");
+            // A step at 1 ns.
+            let step = Waveform::PiecewiseLinear(vec![(0.0, 0.0), (1e-9, 0.0), (1.1e-9, 1.0)]);
+            c.add("vin", VoltageSource::new(step), &[drive, Circuit::GROUND])
+                .unwrap();
+            let mut prev = drive;
+            for i in 0..2 * WIDE {
+                let n = c.node(&format!("n{i}"));
+                c.add(&format!("r{i}"), Resistor::new(1e3), &[prev, n])
+                    .unwrap();
+                c.add(
+                    &format!("c{i}"),
+                    Capacitor::new(1e-13),
+                    &[n, Circuit::GROUND],
+                )
+                .unwrap();
+                c.add(&format!("leak{i}"), Resistor::new(1e7), &[supply, n])
+                    .unwrap();
+                prev = n;
+            }
+            c.add(
+                "grounded",
+                Resistor::new(1e3),
+                &[Circuit::GROUND, Circuit::GROUND],
+            )
+            .unwrap();
+            (System::new(c).unwrap(), prev)
+        };
+        let run = |latency: bool| {
+            let (mut s, far) = build();
+            let near = s.find_node("n3").unwrap();
+            let mut p = TransientParams::new(8e-9);
+            p.output = Output::Interval(1e-10);
+            p.latency = latency;
+            p.latency_fallback = false;
+            let start = Start::OperatingPoint(OpParams::default());
+            let probes = [Probe::Voltage(near), Probe::Voltage(far)];
+            s.transient(&p, &start, &probes, None).unwrap()
+        };
+        let (on, off) = (run(true), run(false));
+        assert!(on.stats.latent_unknown_steps > 0, "{:?}", on.stats);
+        for (a, b) in on.signals.iter().zip(&off.signals) {
+            let worst = a
+                .iter()
+                .zip(b)
+                .map(|(a, b)| (a - b).abs())
+                .fold(0.0, f64::max);
+            assert!(worst < 2e-3, "largest difference {worst} V");
+        }
     }
 
     #[test]

@@ -371,9 +371,11 @@ impl SparseLu {
     pub fn new(pattern: SymbolicSparseColMat<usize>, strategy: LuStrategy) -> Result<Self, String> {
         let n = pattern.nrows();
         // The fixed-order factors keep row indices and slots in 32 bits.
-        if n >= u32::MAX as usize || pattern.row_idx().len() >= u32::MAX as usize {
+        let narrow = n >= u32::MAX as usize || pattern.row_idx().len() >= u32::MAX as usize;
+        if narrow && strategy == LuStrategy::FixedPivot {
             return Err(format!(
-                "a matrix of {n} unknowns and {} entries is too large to factorise",
+                "a matrix of {n} unknowns and {} entries is too large for the fixed-order \
+                 factors (32-bit indices); LuStrategy::FaerOnly has no such limit",
                 pattern.row_idx().len()
             ));
         }

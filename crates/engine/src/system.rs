@@ -862,8 +862,8 @@ impl System {
         }
         let too_large = |what: &str| {
             EngineError::Invalid(format!(
-                "the circuit is too large: {n_all} unknowns, {locals} element terminals and \
-                 {what}"
+                "the circuit is too large: {n_all} unknowns, {ne} elements, {locals} element \
+                 terminals and {what}"
             ))
         };
         if n_all >= NONE32 as usize

@@ -278,8 +278,7 @@ pub struct TransientStats {
 pub struct TransientResult {
     /// Sample times.
     pub time: Vec<f64>,
-    /// One vector per probe (named by [`System::probe_names`]), one entry per sample time;
-    /// none with [`Output::Streaming`], which stores nothing.
+    /// One vector per probe (named by [`System::probe_names`]), one entry per sample time.
     pub signals: Vec<Vec<f64>>,
     /// Run counters.
     pub stats: TransientStats,
@@ -1133,14 +1132,14 @@ impl Recorder {
             Output::Decimated(max) => Some(Decimator::new(max, m)),
             _ => None,
         };
-        // Streaming keeps nothing per probe (a long ring's run watches tens of thousands).
-        let m = if mode == Output::Streaming { 0 } else { m };
+        // Streaming keeps no last values (a long ring's run watches tens of thousands).
+        let kept = if mode == Output::Streaming { 0 } else { m };
         Recorder {
             mode,
             time: Vec::new(),
             signals: vec![Vec::new(); m],
             last_t: 0.0,
-            last: vec![0.0; m],
+            last: vec![0.0; kept],
             next_k: 1,
             decimator,
         }
