@@ -9,9 +9,9 @@
 //! in order, whose own order fills no more than the AMD order's. The trial gives up past that
 //! many entries (or [`TRIAL_VISITS`] times as many visits), so a numbering that would fill
 //! (device-internal unknowns numbered after every node, say) costs no more than a fill-free
-//! elimination before the AMD order is computed; the AMD order of a 30001-stage ring cost 3.4
-//! ms of a 75 ms single-edge estimate, the trial under 1 ms, and its fill pattern serves the
-//! first factorisation. The first factorisation tries the
+//! elimination before the AMD order is computed. A kept trial's fill pattern is the one the
+//! first factorisation would build anyway: a 30001-stage ring saves its AMD order's 3.4 ms
+//! (the trial takes 2 ms, which that factorisation then skips). The first factorisation tries the
 //! diagonal pivots in that order: rows and columns both in the same order (`P = Qᵀ`). Node
 //! equations of a circuit carry each node's own conductance and capacitance on the diagonal,
 //! which usually makes these pivots the largest of their columns (common practice in circuit
