@@ -444,25 +444,30 @@ impl System {
         }
         let count = &self.layout.adj_ptr;
         let locs = self.layout.map32.len();
-        // Nothing is held yet: only an element with every pin on ground (no unknown to hold)
-        // starts frozen, as the rule "not a source, every local unknown held" has it.
-        let source: Vec<bool> = self
-            .elements
-            .iter()
-            .map(|e| e.is_independent_source())
-            .collect();
-        let frozen: Vec<bool> = (0..ne)
-            .map(|e| !source[e] && self.layout.local(e).iter().all(|&g| g == NONE32))
-            .collect();
-        let live = (0..ne as u32).filter(|&e| !frozen[e as usize]).collect();
-        // Charges are kept for the elements with charge only, packed in element order.
-        let mut q_at = vec![NONE32; ne];
+        // Per element, in one pass: a source; frozen (nothing is held yet, so only an element
+        // with every pin on ground, no unknown to hold, as the rule "not a source, every
+        // local unknown held" has it); live; where its charges are kept (elements with charge
+        // only, packed in element order).
+        let mut source = Vec::with_capacity(ne);
+        let mut frozen = Vec::with_capacity(ne);
+        let mut live = Vec::with_capacity(ne);
+        let mut q_at = Vec::with_capacity(ne);
         let mut charge_locs = 0usize;
-        for (e, plan) in self.layout.plan.iter().enumerate() {
-            if plan.charge {
-                q_at[e] = charge_locs as u32;
-                charge_locs += plan.local as usize;
+        for (e, element) in self.elements.iter().enumerate() {
+            let is_source = element.is_independent_source();
+            let plan = &self.layout.plan[e];
+            let all_ground = self.layout.local(e).iter().all(|&g| g == NONE32);
+            source.push(is_source);
+            frozen.push(!is_source && all_ground);
+            if is_source || !all_ground {
+                live.push(e as u32);
             }
+            q_at.push(if plan.charge {
+                charge_locs += plan.local as usize;
+                (charge_locs - plan.local as usize) as u32
+            } else {
+                NONE32
+            });
         }
         let mut adj_at = vec![0u32; locs];
         for r in 0..n {
