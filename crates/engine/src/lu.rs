@@ -492,13 +492,12 @@ impl SparseLu {
             rows.binary_search(&c)
                 .is_ok_and(|k| values[col_ptr[c] + k] != 0.0)
         });
+        // The trial's pattern serves this attempt only (kept or not, it is dropped here).
+        let trial = self.trial.take();
         if !nonzero {
             return None;
         }
-        if let Some(fixed) = self.trial.take() {
-            return Some(fixed);
-        }
-        Some(FixedPivot::build(&self.pattern, &self.order, &self.order))
+        Some(trial.unwrap_or_else(|| FixedPivot::build(&self.pattern, &self.order, &self.order)))
     }
 
     /// Factorises the matrix whose values (in pattern order) are `values`.
