@@ -6,7 +6,8 @@
 //! from [`TRIAL_FROM`] unknowns it first works out the fill of the diagonal pivots in the
 //! unknowns' own numbering, and keeps that order when its factors add at most `2n` entries to
 //! the pattern's (about one per column in each triangle) — a ring or chain of stages numbered
-//! in order, whose own order fills no more than the AMD order's. The trial gives up past that
+//! in order, whose own order fills about as little as the AMD order's (not always as little:
+//! a chain wrapping round its first unknown fills up to the budget). The trial gives up past that
 //! many entries (or [`TRIAL_VISITS`] times as many visits), so a numbering that would fill
 //! (device-internal unknowns numbered after every node, say) costs no more than a fill-free
 //! elimination before the AMD order is computed. A kept trial's fill pattern is the one the
@@ -418,7 +419,8 @@ fn amd_order(pattern: &SymbolicSparseColMat<usize>) -> Result<Vec<usize>, String
 }
 
 impl SparseLu {
-    /// The AMD order of `pattern` (square, sorted rows per column); faer's analysis waits for
+    /// The diagonal order of `pattern` (square, sorted rows per column): its own order when the
+    /// trial keeps it, else its AMD order (module doc); faer's analysis waits for
     /// the first factorisation that pivots. [`LuStrategy::FaerOnly`] takes faer's analysis
     /// at once and no AMD order.
     pub fn new(pattern: SymbolicSparseColMat<usize>, strategy: LuStrategy) -> Result<Self, String> {
@@ -483,7 +485,7 @@ impl SparseLu {
         self.fixed.as_ref().map_or(0, FixedPivot::factor_nnz)
     }
 
-    /// The fixed pattern of the diagonal pivots in the AMD order (module doc), when every
+    /// The fixed pattern of the diagonal pivots in the diagonal order (module doc), when every
     /// diagonal entry of `values` is nonzero.
     fn diagonal_order(&mut self, values: &[f64]) -> Option<FixedPivot> {
         let (col_ptr, row_idx) = (self.pattern.col_ptr(), self.pattern.row_idx());
