@@ -127,6 +127,13 @@ pub(crate) struct Plan {
     pub(crate) bypass: bool,
 }
 
+impl Plan {
+    /// This element's local unknowns in the list `map32` of every element's.
+    fn local_in<'a>(&self, map32: &'a [u32]) -> &'a [u32] {
+        &map32[self.map as usize..][..self.local as usize]
+    }
+}
+
 #[inline]
 fn gather(map: &[u32], x: &[f64], local: &mut [f64]) {
     for (k, &g) in map.iter().enumerate() {
@@ -442,7 +449,7 @@ impl Reduction {
         let mut taken = vec![false; n];
         let mut pinned = Vec::new();
         for (e, element) in elements.iter().enumerate() {
-            let local = &map32[plan[e].map as usize..][..plan[e].local as usize];
+            let local = plan[e].local_in(map32);
             let pins = &pins[pin_start[e]..pin_start[e + 1]];
             if !element.is_ideal_voltage_source()
                 || element.has_charge()
@@ -685,8 +692,7 @@ pub(crate) struct Layout {
 impl Layout {
     /// Element `e`'s local unknowns, pins first, then its internals (`NONE32`: ground).
     pub(crate) fn local(&self, e: usize) -> &[u32] {
-        let p = &self.plan[e];
-        &self.map32[p.map as usize..][..p.local as usize]
+        self.plan[e].local_in(&self.map32)
     }
 
     /// The elements that have unknown `u` as a local unknown, in element order, and its
@@ -712,7 +718,7 @@ fn element_adjacency(map32: &[u32], plan: &[Plan], n: usize) -> (Vec<usize>, Vec
     let (mut adj_e, mut adj_k) = (vec![0u32; ptr[n]], vec![0u8; ptr[n]]);
     let mut fill = ptr.clone();
     for (e, p) in plan.iter().enumerate() {
-        let local = &map32[p.map as usize..][..p.local as usize];
+        let local = p.local_in(map32);
         for (k, &g) in local.iter().enumerate() {
             if g != NONE32 {
                 let at = fill[g as usize];
@@ -914,10 +920,7 @@ impl System {
             }
         }
         let n = kinds.len();
-        let local_of = |e: usize| {
-            let p: &Plan = &plan[e];
-            &map32[p.map as usize..p.map as usize + p.local as usize]
-        };
+        let local_of = |e: usize| plan[e].local_in(&map32);
 
         // Per unknown, the elements that have it as a local unknown, with the local index, in
         // element order.
@@ -1021,7 +1024,7 @@ impl System {
         let lu = SparseLu::new(solved_pattern, strategy).map_err(EngineError::Invalid)?;
         let mut is_charge_row = vec![false; n];
         for p in plan.iter().filter(|p| p.charge) {
-            for &g in &map32[p.map as usize..][..p.local as usize] {
+            for &g in p.local_in(&map32) {
                 if g != NONE32 {
                     is_charge_row[g as usize] = true;
                 }
